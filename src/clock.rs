@@ -1,0 +1,52 @@
+//! The injected clock: honours `SOURCE_DATE_EPOCH` so records and certificates are reproducible.
+
+use chrono::{DateTime, Utc};
+
+use crate::error::{Error, Result};
+
+/// Returns "now": `SOURCE_DATE_EPOCH` (seconds since 1970-01-01 UTC) when set, else the system clock.
+///
+/// Convention: reproducible-builds.org `SOURCE_DATE_EPOCH` specification.
+pub fn now() -> Result<DateTime<Utc>> {
+    from_env(std::env::var("SOURCE_DATE_EPOCH").ok().as_deref())
+}
+
+/// Parses an optional `SOURCE_DATE_EPOCH` value; `None` gives the system clock.
+pub fn from_env(value: Option<&str>) -> Result<DateTime<Utc>> {
+    match value {
+        None | Some("") => Ok(Utc::now()),
+        Some(text) => {
+            let secs: i64 = text.trim().parse().map_err(|_| {
+                Error::invalid(
+                    "environment variable SOURCE_DATE_EPOCH",
+                    format!("'{text}' is not a whole number of seconds"),
+                    "Set it to seconds since 1970-01-01 UTC (e.g. 1767225600) or unset it.",
+                )
+            })?;
+            DateTime::from_timestamp(secs, 0).ok_or_else(|| {
+                Error::invalid(
+                    "environment variable SOURCE_DATE_EPOCH",
+                    format!("{secs} is outside the supported date range"),
+                    "Use a timestamp between year 1970 and 9999.",
+                )
+            })
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn epoch_is_honoured() {
+        // 1767225600 s = 2026-01-01T00:00:00Z (date arithmetic, common practice).
+        let t = from_env(Some("1767225600")).unwrap();
+        assert_eq!(t.to_rfc3339(), "2026-01-01T00:00:00+00:00");
+    }
+
+    #[test]
+    fn garbage_epoch_is_refused() {
+        assert!(from_env(Some("yesterday")).is_err());
+    }
+}

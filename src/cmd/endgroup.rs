@@ -1,0 +1,186 @@
+//! `resinlot endgroup`: one acid value and hydroxyl value to Mn, and with a recipe to p, Xn, r.
+
+use std::path::PathBuf;
+
+use anyhow::Context;
+
+use crate::analysis::{analyse, Analysis, Titration};
+use crate::cmd::Outcome;
+use crate::recipe::Recipe;
+
+/// Arguments of `resinlot endgroup`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// Acid value of the sample in mg KOH/g (e.g. ISO 2114).
+    #[arg(long, value_name = "MG_KOH_G", allow_hyphen_values = true)]
+    pub av: f64,
+    /// Hydroxyl value of the sample in mg KOH/g. Taken as already corrected for acidity unless
+    /// --raw-ohv is given.
+    #[arg(long, value_name = "MG_KOH_G", allow_hyphen_values = true)]
+    pub ohv: f64,
+    /// End groups per molecule used for the end-group Mn. Default: 2 (linear chains).
+    #[arg(long, default_value_t = 2.0, value_name = "F")]
+    pub functionality: f64,
+    /// The --ohv given is the raw result of an acetylation method (ISO 4629-1/-2, ASTM D4274
+    /// method A), which measures OHV - AV: the acid value is added before any calculation. Do
+    /// not use it for isocyanate-reagent methods. Default: off.
+    #[arg(long)]
+    pub raw_ohv: bool,
+    /// Expanded uncertainty (k = 2) of the acid value, in mg KOH/g. With --ohv-u it gives the
+    /// expanded uncertainty of Mn. Default: none.
+    #[arg(long, value_name = "MG_KOH_G")]
+    pub av_u: Option<f64>,
+    /// Expanded uncertainty (k = 2) of the entered hydroxyl value, in mg KOH/g. Default: none.
+    #[arg(long, value_name = "MG_KOH_G")]
+    pub ohv_u: Option<f64>,
+    /// Non-volatile (solids) mass fraction of the measured sample, 0 to 1, when AV and OHV were
+    /// measured on a resin solution; results are converted to solids basis. Default: 1.
+    #[arg(long, value_name = "FRACTION")]
+    pub solids: Option<f64>,
+    /// Batch recipe (TOML) for extent of reaction, water of condensation, Xn, gel points and the
+    /// recipe Mn. Default: none.
+    #[arg(long, value_name = "FILE")]
+    pub recipe: Option<PathBuf>,
+    /// Print one JSON object instead of the table.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Runs the command.
+pub fn run(args: &Args) -> anyhow::Result<Outcome> {
+    let recipe = match &args.recipe {
+        Some(path) => Some(Recipe::load(path).context("cannot use the recipe")?),
+        None => None,
+    };
+    let t = Titration {
+        av: args.av,
+        ohv: args.ohv,
+        acidity_correction: args.raw_ohv,
+        functionality: args.functionality,
+        u_av: args.av_u,
+        u_ohv: args.ohv_u,
+        solids_fraction: args.solids,
+    };
+    let a = analyse(&t, recipe.as_ref())?;
+    let text = if args.json {
+        serde_json::to_string_pretty(&a)? + "\n"
+    } else {
+        render(&a, args.solids.is_some())
+    };
+    crate::output::print(&text)?;
+    Ok(Outcome::AllGood)
+}
+
+fn opt(v: Option<f64>, decimals: usize, unit: &str) -> String {
+    v.map_or_else(
+        || "not computable".to_string(),
+        |x| format!("{x:.decimals$} {unit}").trim_end().to_string(),
+    )
+}
+
+/// The human-readable table.
+pub fn render(a: &Analysis, solids: bool) -> String {
+    let basis = if solids { " (solids basis)" } else { "" };
+    let mut rows: Vec<(String, String)> = vec![
+        (
+            format!("Acid value{basis}"),
+            format!("{:.2} mg KOH/g", a.acid_value),
+        ),
+        (
+            format!("Hydroxyl value, corrected{basis}"),
+            format!("{:.2} mg KOH/g", a.hydroxyl_value_corrected),
+        ),
+        (
+            "Hydroxyl equivalent weight".into(),
+            opt(a.hydroxyl_equivalent_weight, 1, "g/eq"),
+        ),
+        (
+            format!("Mn, end groups (f = {})", a.functionality),
+            match (a.mn, a.mn_uncertainty) {
+                (Some(mn), Some(u)) => format!("{mn:.0} ± {u:.0} g/mol (k = 2)"),
+                (mn, _) => opt(mn, 0, "g/mol"),
+            },
+        ),
+    ];
+    if let Some(r) = &a.recipe {
+        let pct = |x: f64| format!("{:.4}", x);
+        rows.extend([
+            ("Recipe".into(), r.recipe_name.clone()),
+            (
+                "Initial acid value AV0".into(),
+                format!("{:.1} mg KOH/g", r.initial_acid_value),
+            ),
+            (
+                "Initial hydroxyl value OHV0".into(),
+                format!("{:.1} mg KOH/g", r.initial_hydroxyl_value),
+            ),
+            (
+                "Extent of reaction p (acid)".into(),
+                pct(r.extent_of_reaction),
+            ),
+            (
+                "  naive 1 - AV/AV0, for comparison".into(),
+                pct(r.extent_of_reaction_naive),
+            ),
+            (
+                "Extent of reaction (hydroxyl)".into(),
+                pct(r.extent_of_reaction_hydroxyl),
+            ),
+            (
+                "Water of condensation".into(),
+                format!("{:.2} kg", r.water_released_kg),
+            ),
+            (
+                "Batch mass after water loss".into(),
+                format!("{:.2} kg", r.batch_mass_kg),
+            ),
+            (
+                "Predicted OHV, no glycol loss".into(),
+                format!("{:.2} mg KOH/g", r.predicted_hydroxyl_value),
+            ),
+            (
+                "Hydroxyl shortfall".into(),
+                format!(
+                    "{:.3} mol OH{}",
+                    r.hydroxyl_shortfall_mol,
+                    match (&r.main_polyol, r.polyol_lost_kg) {
+                        (Some(n), Some(kg)) => format!(" (= {kg:.2} kg {n})"),
+                        _ => String::new(),
+                    }
+                ),
+            ),
+            (
+                "Stoichiometric ratio r".into(),
+                format!(
+                    "{:.4} ({} groups in the minority)",
+                    r.stoichiometric_ratio, r.minority_group
+                ),
+            ),
+            (
+                "Average functionality f_avg".into(),
+                format!("{:.4}", r.average_functionality),
+            ),
+            ("Xn (Carothers)".into(), opt(r.xn_carothers, 2, "")),
+            (
+                "Gel point, Carothers".into(),
+                r.gel_point_carothers
+                    .map_or("none (f_avg ≤ 2)".into(), |g| {
+                        format!("p_c = {g:.4} (now {:.4})", r.extent_of_reaction_minority)
+                    }),
+            ),
+            (
+                "Gel point, Flory-Stockmayer".into(),
+                r.gel_point_statistical.map_or(
+                    "none (no gel before full conversion, or no single branch type)".into(),
+                    |g| format!("p_c = {g:.4} (now {:.4})", r.extent_of_reaction_minority),
+                ),
+            ),
+            ("Mn from recipe".into(), opt(r.mn_recipe, 0, "g/mol")),
+            (
+                "End-group vs recipe Mn".into(),
+                opt(r.mn_disagreement_percent, 1, "%"),
+            ),
+        ]);
+    }
+    crate::table::pairs(&rows)
+}

@@ -1,0 +1,31 @@
+//! One module per subcommand, each with a `run` entry point; `dispatch` picks one.
+
+pub mod endgroup;
+
+use crate::cli::{Cli, Command};
+
+/// How a command ended when it did not fail outright.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Outcome {
+    /// Everything passed (exit 0).
+    AllGood,
+    /// The command ran but a lot or check fell short (exit 1).
+    FellShort,
+}
+
+impl Outcome {
+    /// The process exit code.
+    pub fn code(self) -> u8 {
+        match self {
+            Outcome::AllGood => 0,
+            Outcome::FellShort => 1,
+        }
+    }
+}
+
+/// Runs the command the user asked for.
+pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
+    match cli.command {
+        Command::Endgroup(args) => endgroup::run(&args),
+    }
+}
