@@ -7,9 +7,14 @@ pub mod chemistry;
 pub mod cli;
 pub mod clock;
 pub mod cmd;
+pub mod decision;
 pub mod error;
+pub mod evaluate;
+pub mod ids;
+pub mod intake;
 pub mod output;
 pub mod recipe;
+pub mod spec;
 pub mod table;
 pub mod tomlfile;
 

@@ -1,0 +1,218 @@
+//! Conformity decisions: ASTM E29 rounding on decimals and ILAC-G8 guard-banded verdicts.
+
+use rust_decimal::{Decimal, RoundingStrategy};
+use serde::{Deserialize, Serialize};
+
+/// How an exact trailing 5 is rounded.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Rounding {
+    /// ASTM E29-13 §6.4.3: an exact 5 rounds to the even digit (default).
+    #[default]
+    HalfEven,
+    /// Some pharmacopoeias: an exact 5 rounds away from zero.
+    HalfUp,
+}
+
+/// The product's decision rule.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum DecisionRule {
+    /// ILAC-G8:09/2019 §4.2.1 simple acceptance, guard band w = 0: pass or fail.
+    Simple,
+    /// ILAC-G8:09/2019 §4.2.3 non-binary statement with guard band w = U.
+    Guarded,
+}
+
+impl DecisionRule {
+    /// Plain statement of the rule for certificates.
+    pub fn statement(self) -> &'static str {
+        match self {
+            DecisionRule::Simple => {
+                "simple acceptance (ILAC-G8:09/2019 §4.2.1): a result within the limits passes; guard band zero"
+            }
+            DecisionRule::Guarded => {
+                "guarded acceptance (ILAC-G8:09/2019 §4.2.3): guard band equal to the expanded uncertainty U (k = 2); results within U of a limit are conditional"
+            }
+        }
+    }
+}
+
+/// Verdict for one property (ILAC-G8:09/2019 §4.2.3 terms).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Verdict {
+    /// Within the acceptance zone.
+    Pass,
+    /// Inside the limit but within the guard band of it.
+    ConditionalPass,
+    /// Outside the limit but within the guard band of it.
+    ConditionalFail,
+    /// Outside the limit by more than the guard band.
+    Fail,
+}
+
+impl Verdict {
+    /// The snake_case name used in files and JSON.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Verdict::Pass => "pass",
+            Verdict::ConditionalPass => "conditional_pass",
+            Verdict::ConditionalFail => "conditional_fail",
+            Verdict::Fail => "fail",
+        }
+    }
+
+    /// Parses the snake_case name.
+    pub fn parse(text: &str) -> Option<Verdict> {
+        [
+            Verdict::Pass,
+            Verdict::ConditionalPass,
+            Verdict::ConditionalFail,
+            Verdict::Fail,
+        ]
+        .into_iter()
+        .find(|v| v.as_str() == text)
+    }
+
+    /// Plain words for people.
+    pub fn words(self) -> &'static str {
+        match self {
+            Verdict::Pass => "pass",
+            Verdict::ConditionalPass => "conditional pass",
+            Verdict::ConditionalFail => "conditional fail",
+            Verdict::Fail => "fail",
+        }
+    }
+}
+
+/// Rounds `value` to `decimals` places with the given method, on the exact decimal.
+///
+/// ASTM E29-13 §6.4: keep the digit when the next is < 5, raise it when > 5; for an exact
+/// 5 (nothing but zeros after it) §6.4.3 rounds to the even digit. `HalfUp` rounds it away
+/// from zero instead.
+pub fn round(value: Decimal, decimals: u32, method: Rounding) -> Decimal {
+    let strategy = match method {
+        Rounding::HalfEven => RoundingStrategy::MidpointNearestEven,
+        Rounding::HalfUp => RoundingStrategy::MidpointAwayFromZero,
+    };
+    let mut r = value.round_dp_with_strategy(decimals, strategy);
+    r.rescale(decimals);
+    r
+}
+
+/// Verdict of a reported value against optional limits with guard band `w` (≥ 0).
+///
+/// ILAC-G8:09/2019 §4.2.3 zones for an upper tolerance limit TL: x ≤ TL − w pass;
+/// TL − w < x ≤ TL conditional pass; TL < x ≤ TL + w conditional fail; x > TL + w fail.
+/// Lower limits mirror this; with two limits the worse verdict counts. Values exactly on a
+/// zone boundary fall in the more favourable zone (convention stated here; ILAC-G8 leaves it to
+/// the decision rule). With w = 0 (§4.2.1) only pass and fail remain.
+pub fn verdict(x: Decimal, min: Option<Decimal>, max: Option<Decimal>, w: Decimal) -> Verdict {
+    let upper = max.map_or(Verdict::Pass, |tl| {
+        if x <= tl - w {
+            Verdict::Pass
+        } else if x <= tl {
+            Verdict::ConditionalPass
+        } else if x <= tl + w {
+            Verdict::ConditionalFail
+        } else {
+            Verdict::Fail
+        }
+    });
+    let lower = min.map_or(Verdict::Pass, |tl| {
+        if x >= tl + w {
+            Verdict::Pass
+        } else if x >= tl {
+            Verdict::ConditionalPass
+        } else if x >= tl - w {
+            Verdict::ConditionalFail
+        } else {
+            Verdict::Fail
+        }
+    });
+    upper.max(lower)
+}
+
+/// Converts a finite f64 to a Decimal (about 15 significant digits kept).
+pub fn decimal_from_f64(x: f64) -> Option<Decimal> {
+    if !x.is_finite() {
+        return None;
+    }
+    let text = format!("{:.*e}", 14, x);
+    Decimal::from_scientific(&text).ok().map(|d| d.normalize())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::str::FromStr;
+
+    fn d(s: &str) -> Decimal {
+        Decimal::from_str(s).unwrap()
+    }
+
+    #[test]
+    fn astm_e29_rounding_examples() {
+        // ASTM E29-13 §6.4 examples (rounding to the nearest unit of the last kept place):
+        // 3.14159 → 3.142 (4 places to 3 by the 4th digit), 2.7182818 → 2.718.
+        assert_eq!(round(d("3.14159"), 3, Rounding::HalfEven), d("3.142"));
+        assert_eq!(round(d("2.7182818"), 3, Rounding::HalfEven), d("2.718"));
+        // §6.4.3: exact 5 rounds to even: 0.125 → 0.12, 0.135 → 0.14, 2.5 → 2, 3.5 → 4.
+        assert_eq!(round(d("0.125"), 2, Rounding::HalfEven), d("0.12"));
+        assert_eq!(round(d("0.135"), 2, Rounding::HalfEven), d("0.14"));
+        assert_eq!(round(d("2.5"), 0, Rounding::HalfEven), d("2"));
+        assert_eq!(round(d("3.5"), 0, Rounding::HalfEven), d("4"));
+        // A 5 followed by non-zero digits is above half: 0.1251 → 0.13.
+        assert_eq!(round(d("0.1251"), 2, Rounding::HalfEven), d("0.13"));
+        // Half up (pharmacopoeial practice): 0.125 → 0.13.
+        assert_eq!(round(d("0.125"), 2, Rounding::HalfUp), d("0.13"));
+        // Reporting precision is kept: 56 to one decimal is 56.0.
+        assert_eq!(round(d("56"), 1, Rounding::HalfEven).to_string(), "56.0");
+    }
+
+    #[test]
+    fn binary_float_would_get_the_tie_wrong() {
+        // 0.125 is exact in binary, but 2.675 is not (it is 2.67499999... as f64), so f64
+        // rounding gives 2.67 where ASTM E29 on the decimal as entered gives 2.68.
+        assert_eq!(format!("{:.2}", 2.675_f64), "2.67");
+        assert_eq!(round(d("2.675"), 2, Rounding::HalfEven), d("2.68"));
+    }
+
+    #[test]
+    fn ilac_g8_zones_upper_limit() {
+        // ILAC-G8:09/2019 §4.2.3, upper limit 1.0, w = U = 0.05.
+        let (max, w) = (Some(d("1.0")), d("0.05"));
+        assert_eq!(verdict(d("0.90"), None, max, w), Verdict::Pass);
+        assert_eq!(verdict(d("0.95"), None, max, w), Verdict::Pass); // on the acceptance limit
+        assert_eq!(verdict(d("0.96"), None, max, w), Verdict::ConditionalPass);
+        assert_eq!(verdict(d("1.00"), None, max, w), Verdict::ConditionalPass); // exactly at TL
+        assert_eq!(verdict(d("1.01"), None, max, w), Verdict::ConditionalFail);
+        assert_eq!(verdict(d("1.05"), None, max, w), Verdict::ConditionalFail);
+        assert_eq!(verdict(d("1.06"), None, max, w), Verdict::Fail);
+    }
+
+    #[test]
+    fn ilac_g8_zones_lower_limit_and_window() {
+        let (min, max, w) = (Some(d("53.0")), Some(d("59.0")), d("0.8"));
+        assert_eq!(verdict(d("56.0"), min, max, w), Verdict::Pass);
+        assert_eq!(verdict(d("53.5"), min, max, w), Verdict::ConditionalPass);
+        assert_eq!(verdict(d("52.5"), min, max, w), Verdict::ConditionalFail);
+        assert_eq!(verdict(d("52.1"), min, max, w), Verdict::Fail);
+        assert_eq!(verdict(d("59.5"), min, max, w), Verdict::ConditionalFail);
+    }
+
+    #[test]
+    fn simple_rule_is_binary() {
+        // ILAC-G8:09/2019 §4.2.1: w = 0.
+        let z = Decimal::ZERO;
+        assert_eq!(verdict(d("1.00"), None, Some(d("1.0")), z), Verdict::Pass);
+        assert_eq!(verdict(d("1.01"), None, Some(d("1.0")), z), Verdict::Fail);
+    }
+
+    #[test]
+    fn f64_conversion_keeps_fifteen_digits() {
+        assert_eq!(decimal_from_f64(1989.3617021276596).unwrap(), d("1989.36170212766"));
+        assert!(decimal_from_f64(f64::NAN).is_none());
+    }
+}

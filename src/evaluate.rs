@@ -1,0 +1,533 @@
+//! Evaluates one lot against its spec: unit and temperature handling, replicates, derived
+//! values (Mn, Xn, p, HEW) with uncertainty, rounding, verdicts and the lot status.
+
+use std::str::FromStr;
+
+use rust_decimal::prelude::ToPrimitive;
+use rust_decimal::Decimal;
+use serde::Serialize;
+
+use crate::analysis::{analyse, Titration};
+use crate::decision::{decimal_from_f64, round, verdict, DecisionRule, Verdict};
+use crate::error::{Error, Result};
+use crate::intake::{LotResults, Reading};
+use crate::spec::{ProductSpec, Property};
+
+/// Release status of a lot.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Status {
+    /// Every property passes.
+    Released,
+    /// A property is conditional (or replicates disagree): QA must decide.
+    OnHold,
+    /// A property fails.
+    Rejected,
+    /// A spec'd measured property is missing.
+    Incomplete,
+}
+
+impl Status {
+    /// The snake_case name used in files and JSON.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Status::Released => "released",
+            Status::OnHold => "on_hold",
+            Status::Rejected => "rejected",
+            Status::Incomplete => "incomplete",
+        }
+    }
+
+    /// Parses the snake_case name.
+    pub fn parse(text: &str) -> Option<Status> {
+        [Status::Released, Status::OnHold, Status::Rejected, Status::Incomplete]
+            .into_iter()
+            .find(|s| s.as_str() == text)
+    }
+}
+
+/// The outcome for one property.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PropertyResult {
+    /// Property key.
+    pub property: String,
+    /// Value at full precision (mean of replicates, in the spec's unit), None when missing.
+    pub value: Option<f64>,
+    /// Exact decimal text of the value for measured properties.
+    #[serde(skip)]
+    pub exact: Option<String>,
+    /// Value rounded to the spec's decimals (ASTM E29), as text.
+    pub reported: Option<String>,
+    /// The spec's unit.
+    pub unit: String,
+    /// Verdict; None when missing or when the property has no limit.
+    pub verdict: Option<Verdict>,
+    /// Expanded uncertainty used as guard band (k = 2), when known.
+    pub uncertainty: Option<f64>,
+}
+
+/// The decision for one lot.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct LotDecision {
+    /// Lot id.
+    pub lot: String,
+    /// Product code.
+    pub product: String,
+    /// Spec revision applied.
+    pub spec_revision: String,
+    /// Manufacture date.
+    pub manufactured: chrono::NaiveDate,
+    /// Lot status.
+    pub status: Status,
+    /// Every property of the spec, in its order.
+    pub properties: Vec<PropertyResult>,
+    /// Reasons and notes (conditional results, corrections, missing values).
+    pub notes: Vec<String>,
+}
+
+impl LotDecision {
+    /// The result for `key`.
+    pub fn get(&self, key: &str) -> Option<&PropertyResult> {
+        self.properties.iter().find(|p| p.property == key)
+    }
+}
+
+fn unit_factor(from: &str, to: &str) -> Option<Decimal> {
+    let norm = |u: &str| {
+        u.trim()
+            .to_ascii_lowercase()
+            .replace(['·', '.', ' ', '*'], "")
+    };
+    let (f, t) = (norm(from), norm(to));
+    if f == t {
+        return Some(Decimal::ONE);
+    }
+    // Viscosity: 1 cP = 1 mPa·s; 1 Pa·s = 1000 mPa·s (SI; ISO 80000-4).
+    let mpas = |u: &str| match u {
+        "mpas" | "cp" | "cps" => Some(Decimal::ONE),
+        "pas" => Some(Decimal::from(1000)),
+        _ => None,
+    };
+    match (mpas(&f), mpas(&t)) {
+        (Some(a), Some(b)) => Some(a / b),
+        _ => None,
+    }
+}
+
+/// Converts a viscosity from `t_meas` to `t_spec` (°C) with Andrade's equation.
+///
+/// ln η = A + B/T (T in K), so η(T_spec) = η(T_meas) · exp(B·(1/T_spec − 1/T_meas)).
+/// Source: E. N. da C. Andrade, Nature 125, 309 (1930).
+pub fn andrade_correct(eta: f64, t_meas_c: f64, t_spec_c: f64, b_k: f64) -> f64 {
+    let k = |c: f64| c + 273.15;
+    eta * (b_k * (1.0 / k(t_spec_c) - 1.0 / k(t_meas_c))).exp()
+}
+
+fn to_f64(d: Decimal) -> f64 {
+    d.to_f64().unwrap_or(f64::NAN)
+}
+
+struct Mean {
+    value: Decimal,
+    range: Decimal,
+    n: usize,
+}
+
+fn mean_reading(
+    lot: &LotResults,
+    p: &Property,
+    readings: &[Reading],
+    notes: &mut Vec<String>,
+    file: &str,
+) -> Result<Mean> {
+    let mut values = Vec::with_capacity(readings.len());
+    for r in readings {
+        let mut v = r.value;
+        if let Some(u) = &r.unit {
+            let f = unit_factor(u, &p.unit).ok_or_else(|| {
+                Error::invalid(
+                    format!("{file}:{}, lot '{}', {}", r.line, lot.lot, p.key),
+                    format!("unit '{u}' cannot be converted to the spec's '{}'", p.unit),
+                    "Report the result in the spec's unit (known conversions: cP, mPa·s, Pa·s).",
+                )
+            })?;
+            v *= f;
+        }
+        if let (Some(t), Some(ts)) = (r.temperature_c, p.temperature_c) {
+            if (t - ts).abs() > 0.05 {
+                let b = p.andrade_b_k.ok_or_else(|| {
+                    Error::invalid(
+                        format!("{file}:{}, lot '{}', {}", r.line, lot.lot, p.key),
+                        format!("measured at {t} °C but the spec temperature is {ts} °C"),
+                        "Measure at the spec temperature, or give andrade_b_k in the spec to allow a correction.",
+                    )
+                })?;
+                let corrected = andrade_correct(to_f64(v), t, ts, b);
+                v = decimal_from_f64(corrected).unwrap_or(v);
+                notes.push(format!(
+                    "{}: measured at {t} °C, corrected to {ts} °C by Andrade's equation (B = {b} K)",
+                    p.label
+                ));
+            }
+        }
+        values.push(v);
+    }
+    let n = values.len();
+    let sum: Decimal = values.iter().copied().sum();
+    let max = values.iter().copied().max().unwrap_or_default();
+    let min = values.iter().copied().min().unwrap_or_default();
+    Ok(Mean {
+        value: sum / Decimal::from(n as u64),
+        range: max - min,
+        n,
+    })
+}
+
+/// Evaluates one lot; `file` names the results file in messages.
+pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotDecision> {
+    for key in lot.readings.keys() {
+        match spec.property(key) {
+            None => {
+                return Err(Error::invalid(
+                    format!("{file}:{}, lot '{}'", lot.line, lot.lot),
+                    format!(
+                        "property '{key}' is not in the spec of {} revision {}",
+                        spec.code, spec.revision
+                    ),
+                    format!(
+                        "Known properties: {}.",
+                        spec.measured().map(|p| p.key.as_str()).collect::<Vec<_>>().join(", ")
+                    ),
+                ))
+            }
+            Some(p) if p.derived => {
+                return Err(Error::invalid(
+                    format!("{file}:{}, lot '{}'", lot.line, lot.lot),
+                    format!("'{key}' is computed by resinlot and cannot be entered"),
+                    "Remove this column or row; enter acid_value and hydroxyl_value instead.",
+                ))
+            }
+            _ => {}
+        }
+    }
+    let guarded = spec.decision_rule == DecisionRule::Guarded;
+    let mut notes = Vec::new();
+    let mut results = Vec::new();
+    let mut means: Vec<(String, Decimal)> = Vec::new();
+    let mut any_missing = false;
+    let mut repeat_fail = false;
+    for p in spec.measured() {
+        let Some(readings) = lot.readings.get(&p.key) else {
+            any_missing = true;
+            notes.push(format!("{} was not measured", p.label));
+            results.push(missing(p));
+            continue;
+        };
+        let m = mean_reading(lot, p, readings, &mut notes, file)?;
+        if m.n > 1 {
+            match p.repeatability {
+                Some(r) if m.range > r => {
+                    repeat_fail = true;
+                    notes.push(format!(
+                        "{}: range of {} replicates {} exceeds the repeatability limit {}",
+                        p.label, m.n, m.range, r
+                    ));
+                }
+                _ => notes.push(format!("{}: mean of {} replicates (range {})", p.label, m.n, m.range)),
+            }
+        }
+        means.push((p.key.clone(), m.value));
+        let w = if guarded { p.uncertainty.unwrap_or_default() } else { Decimal::ZERO };
+        results.push(decide(p, m.value, w, spec, Some(m.value.normalize().to_string()), p.uncertainty.map(to_f64)));
+    }
+    let mean_of = |k: &str| means.iter().find(|(key, _)| key == k).map(|(_, v)| to_f64(*v));
+    let av = mean_of("acid_value");
+    let ohv = mean_of("hydroxyl_value");
+    let u = |k: &str| spec.property(k).and_then(|p| p.uncertainty).map(to_f64);
+    let hv_corr = spec.property("hydroxyl_value").is_some_and(|p| p.acidity_correction);
+    for p in spec.properties.iter().filter(|p| p.derived) {
+        let computed = derived_value(spec, &p.key, av, ohv, u("acid_value"), u("hydroxyl_value"), hv_corr)
+            .map_err(|e| match e {
+                Error::Invalid { problem, fix, .. } => Error::invalid(
+                    format!("{file}:{}, lot '{}'", lot.line, lot.lot),
+                    problem,
+                    fix,
+                ),
+                other => other,
+            })?;
+        match computed {
+            Some((value, unc)) => {
+                let d = decimal_from_f64(value).unwrap_or_default();
+                let w = match (guarded, unc) {
+                    (true, Some(u)) => decimal_from_f64(u).unwrap_or_default(),
+                    _ => Decimal::ZERO,
+                };
+                let mut r = decide(p, d, w, spec, None, unc);
+                r.value = Some(value);
+                results.push(r);
+            }
+            None => {
+                any_missing = true;
+                results.push(missing(p));
+            }
+        }
+    }
+    for r in &results {
+        if let Some(v) = r.verdict {
+            if v != Verdict::Pass {
+                let label = &spec.property(&r.property).unwrap().label;
+                notes.push(format!(
+                    "{label} {} {}: {}",
+                    r.reported.as_deref().unwrap_or(""),
+                    r.unit,
+                    v.words()
+                ));
+            }
+        }
+    }
+    let worst = results.iter().filter_map(|r| r.verdict).max();
+    let status = if worst == Some(Verdict::Fail) {
+        Status::Rejected
+    } else if any_missing {
+        Status::Incomplete
+    } else if worst.is_some_and(|w| w != Verdict::Pass) || repeat_fail {
+        Status::OnHold
+    } else {
+        Status::Released
+    };
+    Ok(LotDecision {
+        lot: lot.lot.clone(),
+        product: spec.code.clone(),
+        spec_revision: spec.revision.clone(),
+        manufactured: lot.manufactured,
+        status,
+        properties: results,
+        notes,
+    })
+}
+
+fn missing(p: &Property) -> PropertyResult {
+    PropertyResult {
+        property: p.key.clone(),
+        value: None,
+        exact: None,
+        reported: None,
+        unit: p.unit.clone(),
+        verdict: None,
+        uncertainty: None,
+    }
+}
+
+fn decide(
+    p: &Property,
+    value: Decimal,
+    w: Decimal,
+    spec: &ProductSpec,
+    exact: Option<String>,
+    uncertainty: Option<f64>,
+) -> PropertyResult {
+    let reported = round(value, p.decimals, spec.rounding);
+    PropertyResult {
+        property: p.key.clone(),
+        value: Some(to_f64(value)),
+        exact,
+        reported: Some(reported.to_string()),
+        unit: p.unit.clone(),
+        verdict: p.has_limit().then(|| verdict(reported, p.min, p.max, w)),
+        uncertainty,
+    }
+}
+
+/// A derived value and its expanded uncertainty, or None when an input is missing.
+///
+/// Mn and HEW use the closed-form propagation of `chemistry`; Xn and p propagate U(AV) by a
+/// central finite difference of the sensitivity coefficient (GUM, JCGM 100:2008 §5.1.3).
+pub fn derived_value(
+    spec: &ProductSpec,
+    key: &str,
+    av: Option<f64>,
+    ohv: Option<f64>,
+    u_av: Option<f64>,
+    u_ohv: Option<f64>,
+    acidity_correction: bool,
+) -> Result<Option<(f64, Option<f64>)>> {
+    let (Some(ohv), av) = (ohv, av) else {
+        return Ok(None);
+    };
+    let needs_av = key != "hydroxyl_equivalent_weight" || acidity_correction;
+    if needs_av && av.is_none() {
+        return Ok(None);
+    }
+    let av_v = av.unwrap_or(0.0);
+    let t = |av: f64| Titration {
+        av,
+        ohv,
+        acidity_correction,
+        functionality: spec.functionality,
+        u_av,
+        u_ohv,
+        solids_fraction: None,
+    };
+    let a = analyse(&t(av_v), spec.recipe.as_ref())?;
+    let spread = |f: &dyn Fn(f64) -> Option<f64>| -> Option<f64> {
+        let u = u_av?;
+        if u == 0.0 {
+            return Some(0.0);
+        }
+        let hi = f(av_v + u)?;
+        let lo = f((av_v - u).max(0.0))?;
+        let step = av_v + u - (av_v - u).max(0.0);
+        Some(((hi - lo) / step * u).abs())
+    };
+    let recipe_at = |x: f64| analyse(&t(x), spec.recipe.as_ref()).ok().and_then(|a| a.recipe);
+    Ok(match key {
+        "mn" => a.mn.map(|mn| (mn, a.mn_uncertainty)),
+        "hydroxyl_equivalent_weight" => a.hydroxyl_equivalent_weight.map(|hew| {
+            let u = match (u_av, u_ohv) {
+                (Some(ua), Some(uo)) => {
+                    let uc = if acidity_correction { (ua * ua + uo * uo).sqrt() } else { uo };
+                    Some(hew * uc / a.hydroxyl_value_corrected)
+                }
+                _ => None,
+            };
+            (hew, u)
+        }),
+        "xn" => a
+            .recipe
+            .as_ref()
+            .and_then(|r| r.xn_carothers)
+            .map(|x| (x, spread(&|v| recipe_at(v).and_then(|r| r.xn_carothers)))),
+        "extent_of_reaction" => a
+            .recipe
+            .as_ref()
+            .map(|r| (r.extent_of_reaction, spread(&|v| recipe_at(v).map(|r| r.extent_of_reaction)))),
+        _ => None,
+    })
+}
+
+/// Parses an exact decimal string (used when reading trend files back).
+pub fn parse_decimal(text: &str) -> Option<Decimal> {
+    Decimal::from_str(text).ok()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::intake::{parse, Options};
+    use std::path::Path;
+
+    const SPEC: &str = r#"
+code = "PD-2000"
+name = "Linear polyester diol"
+revision = "C"
+effective = 2026-01-01
+functionality = 2.0
+decision_rule = "guarded"
+retest_months = 12
+[properties.acid_value]
+label = "Acid value"
+unit = "mg KOH/g"
+max = 1.0
+decimals = 2
+uncertainty = 0.05
+[properties.hydroxyl_value]
+label = "Hydroxyl value"
+unit = "mg KOH/g"
+acidity_correction = true
+min = 53.0
+max = 59.0
+decimals = 1
+uncertainty = 0.8
+repeatability = 1.0
+[properties.viscosity]
+label = "Viscosity"
+unit = "mPa·s"
+temperature_c = 75
+andrade_b_k = 6000
+max = 650
+decimals = 0
+uncertainty = 15
+[properties.mn]
+min = 1900
+max = 2100
+decimals = 0
+"#;
+
+    fn run(csv: &str) -> LotDecision {
+        let spec = ProductSpec::parse(Path::new("s.toml"), SPEC).unwrap();
+        let lots = parse("r.csv", csv.as_bytes(), Options::default()).unwrap();
+        evaluate(&spec, &lots[0], "r.csv").unwrap()
+    }
+
+    #[test]
+    fn clean_lot_is_released_with_mn() {
+        let d = run("lot,product,manufactured,acid_value,hydroxyl_value,viscosity\nL1,PD-2000,2026-10-01,0.50,55.6,520\n");
+        assert_eq!(d.status, Status::Released, "{:?}", d.notes);
+        // Mn = 56100·2/(0.5 + 55.6 + 0.5) = 1982.3 (definition, acidity-corrected OHV).
+        let mn = d.get("mn").unwrap();
+        approx::assert_relative_eq!(mn.value.unwrap(), 112200.0 / 56.6, max_relative = 1e-12);
+        assert_eq!(mn.reported.as_deref(), Some("1982"));
+    }
+
+    #[test]
+    fn guard_band_holds_and_rejects() {
+        let d = run("lot,product,manufactured,acid_value,hydroxyl_value,viscosity\nL1,PD-2000,2026-10-01,0.98,55.6,520\n");
+        assert_eq!(d.status, Status::OnHold);
+        let d = run("lot,product,manufactured,acid_value,hydroxyl_value,viscosity\nL1,PD-2000,2026-10-01,1.20,55.6,520\n");
+        assert_eq!(d.status, Status::Rejected);
+    }
+
+    #[test]
+    fn missing_property_is_incomplete() {
+        let d = run("lot,product,manufactured,acid_value,hydroxyl_value\nL1,PD-2000,2026-10-01,0.5,55.6\n");
+        assert_eq!(d.status, Status::Incomplete);
+    }
+
+    #[test]
+    fn units_and_temperature_are_converted() {
+        // 0.52 Pa·s = 520 mPa·s (SI).
+        let d = run("lot,product,property,value,unit,temperature_c,manufactured\n\
+                     L1,PD-2000,acid_value,0.5,mg KOH/g,,2026-10-01\n\
+                     L1,PD-2000,hydroxyl_value,55.6,mg KOH/g,,\n\
+                     L1,PD-2000,viscosity,0.52,Pa·s,75,\n");
+        approx::assert_relative_eq!(d.get("viscosity").unwrap().value.unwrap(), 520.0);
+        let d = run("lot,product,property,value,unit,temperature_c,manufactured\n\
+                     L1,PD-2000,acid_value,0.5,mg KOH/g,,2026-10-01\n\
+                     L1,PD-2000,hydroxyl_value,55.6,mg KOH/g,,\n\
+                     L1,PD-2000,viscosity,400,mPa·s,80,\n");
+        let expected = andrade_correct(400.0, 80.0, 75.0, 6000.0);
+        approx::assert_relative_eq!(d.get("viscosity").unwrap().value.unwrap(), expected, max_relative = 1e-9);
+        assert!(d.notes.iter().any(|n| n.contains("Andrade")));
+    }
+
+    #[test]
+    fn andrade_correction_direction() {
+        // A liquid is more viscous when colder (Andrade 1930): B > 0 raises η from 80 to 75 °C;
+        // by hand: exp(6000·(1/348.15 − 1/353.15)) = exp(0.244003) = 1.276349.
+        approx::assert_relative_eq!(andrade_correct(100.0, 80.0, 75.0, 6000.0), 127.6349, epsilon = 1e-3);
+    }
+
+    #[test]
+    fn replicate_range_over_repeatability_holds_the_lot() {
+        let d = run("lot,product,property,value,replicate,manufactured\n\
+                     L1,PD-2000,acid_value,0.5,1,2026-10-01\n\
+                     L1,PD-2000,hydroxyl_value,55.0,1,\n\
+                     L1,PD-2000,hydroxyl_value,56.5,2,\n\
+                     L1,PD-2000,viscosity,520,1,\n");
+        assert_eq!(d.status, Status::OnHold);
+        assert!(d.notes.iter().any(|n| n.contains("repeatability")));
+    }
+
+    #[test]
+    fn unknown_unit_is_refused() {
+        let spec = ProductSpec::parse(Path::new("s.toml"), SPEC).unwrap();
+        let lots = parse(
+            "r.csv",
+            b"lot,product,property,value,unit,manufactured\nL1,PD-2000,viscosity,5,St,2026-10-01\n",
+            Options::default(),
+        )
+        .unwrap();
+        let e = evaluate(&spec, &lots[0], "r.csv").unwrap_err().to_string();
+        assert!(e.contains("unit 'St' cannot be converted"), "{e}");
+    }
+}

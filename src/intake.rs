@@ -1,0 +1,613 @@
+//! Lab results intake: wide or long CSV, comma or semicolon, decimal point or comma, with BOM.
+
+use std::path::Path;
+use std::str::FromStr;
+
+use chrono::NaiveDate;
+use indexmap::IndexMap;
+use rust_decimal::Decimal;
+
+use crate::error::{Error, Result};
+use crate::ids::is_safe_id;
+
+/// Limits that keep a hostile or mistaken file from exhausting the machine.
+#[derive(Debug, Clone, Copy)]
+pub struct Limits {
+    /// Largest file accepted, bytes.
+    pub max_bytes: u64,
+    /// Most columns accepted.
+    pub max_columns: usize,
+    /// Longest cell accepted, characters.
+    pub max_cell_chars: usize,
+}
+
+impl Default for Limits {
+    fn default() -> Self {
+        Limits {
+            max_bytes: 64 << 20,
+            max_columns: 200,
+            max_cell_chars: 200,
+        }
+    }
+}
+
+/// One entered result (a replicate), as read.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Reading {
+    /// The value exactly as entered, as a decimal.
+    pub value: Decimal,
+    /// Unit given in the file, if any.
+    pub unit: Option<String>,
+    /// Measurement temperature given in the file (°C), if any.
+    pub temperature_c: Option<f64>,
+    /// Line in the results file.
+    pub line: u64,
+}
+
+/// All results of one lot.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LotResults {
+    /// Lot id (safe characters only).
+    pub lot: String,
+    /// Product code.
+    pub product: String,
+    /// Manufacture date.
+    pub manufactured: NaiveDate,
+    /// Property key to its replicates, in file order.
+    pub readings: IndexMap<String, Vec<Reading>>,
+    /// Analysts named in the file.
+    pub analysts: Vec<String>,
+    /// Line of the lot's first row.
+    pub line: u64,
+}
+
+/// Options for reading a results file.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct Options {
+    /// Numbers use a decimal comma (then the delimiter must be ';').
+    pub decimal_comma: bool,
+    /// Size bounds.
+    pub limits: Limits,
+}
+
+/// Reads and validates a results file; `name` is used in messages.
+pub fn read_file(path: &Path, opts: Options) -> Result<Vec<LotResults>> {
+    let name = path.display().to_string();
+    let meta = std::fs::metadata(path).map_err(|e| Error::io(path, "reading", e))?;
+    if meta.len() > opts.limits.max_bytes {
+        return Err(Error::invalid(
+            &name,
+            format!(
+                "the file is {} bytes, over the limit of {} bytes",
+                meta.len(),
+                opts.limits.max_bytes
+            ),
+            "Split the file, or raise the limit with --max-bytes if it is genuine.",
+        ));
+    }
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "reading", e))?;
+    parse(&name, &bytes, opts)
+}
+
+/// Parses results from bytes.
+pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>> {
+    let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
+    let text = std::str::from_utf8(bytes).map_err(|e| {
+        let (line, _) = crate::tomlfile::line_column(
+            &String::from_utf8_lossy(&bytes[..e.valid_up_to()]),
+            e.valid_up_to(),
+        );
+        Error::invalid(
+            format!("{name}:{line}"),
+            "the file is not valid UTF-8",
+            "Export the results as UTF-8 CSV.",
+        )
+    })?;
+    let header_line = text.lines().next().unwrap_or("");
+    if header_line.trim().is_empty() {
+        return Err(Error::invalid(
+            name,
+            "the file is empty or its first line is blank",
+            "The first line must be the header, e.g. lot,product,manufactured,acid_value,...",
+        ));
+    }
+    let delimiter = if header_line.matches(';').count() > header_line.matches(',').count() {
+        b';'
+    } else {
+        b','
+    };
+    if opts.decimal_comma && delimiter == b',' {
+        return Err(Error::invalid(
+            format!("{name}:1"),
+            "--decimal-comma was given but the columns are separated by commas",
+            "Files with decimal commas must separate columns with ';'.",
+        ));
+    }
+    if header_line.split(delimiter as char).count() > opts.limits.max_columns {
+        return Err(Error::invalid(
+            format!("{name}:1"),
+            format!("the header has more than {} columns", opts.limits.max_columns),
+            "Check that this is a results file; it has far more columns than any spec.",
+        ));
+    }
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .trim(csv::Trim::All)
+        .from_reader(text.as_bytes());
+    let headers: Vec<String> = reader
+        .headers()
+        .map_err(|e| csv_error(name, e))?
+        .iter()
+        .map(|h| h.trim().to_ascii_lowercase())
+        .collect();
+    for (i, h) in headers.iter().enumerate() {
+        if headers[..i].contains(h) {
+            return Err(Error::invalid(
+                format!("{name}:1"),
+                format!("column '{h}' appears twice"),
+                "Remove or rename the duplicate column.",
+            ));
+        }
+    }
+    let ctx = Ctx {
+        name,
+        headers: &headers,
+        opts,
+    };
+    let lots = if headers.iter().any(|h| h == "property") {
+        ctx.long(&mut reader)?
+    } else {
+        ctx.wide(&mut reader)?
+    };
+    if lots.is_empty() {
+        return Err(Error::invalid(
+            name,
+            "the file has a header but no results",
+            "Add one row per lot (wide) or per test result (long).",
+        ));
+    }
+    Ok(lots)
+}
+
+fn csv_error(name: &str, e: csv::Error) -> Error {
+    let line = e.position().map_or(0, |p| p.line());
+    let problem = match e.kind() {
+        csv::ErrorKind::UnequalLengths {
+            expected_len, len, ..
+        } => format!("the row has {len} fields where the header has {expected_len}"),
+        _ => e.to_string(),
+    };
+    Error::invalid(
+        format!("{name}:{line}"),
+        problem,
+        "Check the row for a missing or extra separator.",
+    )
+}
+
+struct Ctx<'a> {
+    name: &'a str,
+    headers: &'a [String],
+    opts: Options,
+}
+
+impl Ctx<'_> {
+    fn col(&self, key: &str) -> Option<usize> {
+        self.headers.iter().position(|h| h == key)
+    }
+
+    fn require(&self, keys: &[&str], shape: &str) -> Result<Vec<usize>> {
+        let missing: Vec<&str> = keys
+            .iter()
+            .copied()
+            .filter(|k| self.col(k).is_none())
+            .collect();
+        if !missing.is_empty() {
+            return Err(Error::invalid(
+                format!("{}:1", self.name),
+                format!("the {shape} header lacks column(s): {}", missing.join(", ")),
+                "Wide files need lot,product,manufactured and one column per property; long files need lot,product,property,value.",
+            ));
+        }
+        Ok(keys.iter().map(|k| self.col(k).unwrap()).collect())
+    }
+
+    fn cell<'r>(&self, rec: &'r csv::StringRecord, i: usize, line: u64) -> Result<&'r str> {
+        let v = rec.get(i).unwrap_or("");
+        if v.chars().count() > self.opts.limits.max_cell_chars {
+            return Err(Error::invalid(
+                format!("{}:{line}, column '{}'", self.name, self.headers[i]),
+                format!("the cell is longer than {} characters", self.opts.limits.max_cell_chars),
+                "Shorten it; results cells hold numbers, ids and short names.",
+            ));
+        }
+        if v.chars().any(|c| c.is_control()) {
+            return Err(Error::invalid(
+                format!("{}:{line}, column '{}'", self.name, self.headers[i]),
+                "the cell contains a control character",
+                "Remove tabs, line breaks and other control characters from the cell.",
+            ));
+        }
+        Ok(v)
+    }
+
+    fn lot_id(&self, v: &str, line: u64) -> Result<String> {
+        if !is_safe_id(v) {
+            return Err(Error::invalid(
+                format!("{}:{line}, column 'lot'", self.name),
+                format!("'{v}' is not a usable lot id"),
+                "Lot ids are 1 to 40 letters, digits, '-', '_' or '.', starting with a letter or digit.",
+            ));
+        }
+        Ok(v.to_string())
+    }
+
+    fn product(&self, v: &str, line: u64) -> Result<String> {
+        if !is_safe_id(v) {
+            return Err(Error::invalid(
+                format!("{}:{line}, column 'product'", self.name),
+                format!("'{v}' is not a usable product code"),
+                "Enter the product code as in the spec file, e.g. PD-2000.",
+            ));
+        }
+        Ok(v.to_string())
+    }
+
+    fn date(&self, v: &str, line: u64) -> Result<NaiveDate> {
+        NaiveDate::parse_from_str(v, "%Y-%m-%d").map_err(|_| {
+            Error::invalid(
+                format!("{}:{line}, column 'manufactured'", self.name),
+                format!("'{v}' is not a date"),
+                "Write manufacture dates as YYYY-MM-DD.",
+            )
+        })
+    }
+
+    fn number(&self, v: &str, line: u64, column: &str) -> Result<Decimal> {
+        let place = || format!("{}:{line}, column '{column}'", self.name);
+        let text = if self.opts.decimal_comma {
+            v.replace(',', ".")
+        } else {
+            v.to_string()
+        };
+        if !self.opts.decimal_comma && v.contains(',') {
+            return Err(Error::invalid(
+                place(),
+                format!("'{v}' has a decimal comma"),
+                "Use a decimal point, or pass --decimal-comma for ';'-separated files.",
+            ));
+        }
+        let d = Decimal::from_str(&text).map_err(|_| {
+            Error::invalid(
+                place(),
+                format!("'{v}' is not a number"),
+                "Enter the result as a plain decimal number, e.g. 55.2 (no units, no formulas).",
+            )
+        })?;
+        if d.is_sign_negative() {
+            return Err(Error::invalid(
+                place(),
+                format!("{v} is negative"),
+                "Results are zero or more; check the sign.",
+            ));
+        }
+        if d > Decimal::from(1_000_000_000u64) {
+            return Err(Error::invalid(
+                place(),
+                format!("{v} is implausibly large"),
+                "Check the value and its unit.",
+            ));
+        }
+        Ok(d)
+    }
+
+    fn temperature(&self, v: &str, line: u64, column: &str) -> Result<Option<f64>> {
+        if v.is_empty() {
+            return Ok(None);
+        }
+        let t = self.number(v, line, column)?;
+        let t: f64 = t.to_string().parse().unwrap_or(f64::NAN);
+        if !(0.0..=400.0).contains(&t) {
+            return Err(Error::invalid(
+                format!("{}:{line}, column '{column}'", self.name),
+                format!("{v} °C is outside 0 to 400 °C"),
+                "Give the measurement temperature in °C.",
+            ));
+        }
+        Ok(Some(t))
+    }
+
+    fn wide(&self, reader: &mut csv::Reader<&[u8]>) -> Result<Vec<LotResults>> {
+        let idx = self.require(&["lot", "product", "manufactured"], "wide")?;
+        let vt = self.col("viscosity_temperature_c");
+        let analyst = self.col("analyst");
+        let value_cols: Vec<usize> = (0..self.headers.len())
+            .filter(|i| {
+                !idx.contains(i)
+                    && Some(*i) != vt
+                    && Some(*i) != analyst
+                    && self.headers[*i] != "notes"
+            })
+            .collect();
+        for &i in &value_cols {
+            let h = &self.headers[i];
+            let ok = h.chars().next().is_some_and(|c| c.is_ascii_lowercase())
+                && h.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
+            if !ok {
+                return Err(Error::invalid(
+                    format!("{}:1", self.name),
+                    format!("column '{h}' is not a property key"),
+                    "Name value columns by the spec's property keys, e.g. acid_value.",
+                ));
+            }
+        }
+        let mut lots: Vec<LotResults> = Vec::new();
+        for rec in reader.records() {
+            let rec = rec.map_err(|e| csv_error(self.name, e))?;
+            let line = rec.position().map_or(0, |p| p.line());
+            let lot = self.lot_id(self.cell(&rec, idx[0], line)?, line)?;
+            let product = self.product(self.cell(&rec, idx[1], line)?, line)?;
+            let manufactured = self.date(self.cell(&rec, idx[2], line)?, line)?;
+            let temperature_c = match vt {
+                Some(i) => self.temperature(self.cell(&rec, i, line)?, line, "viscosity_temperature_c")?,
+                None => None,
+            };
+            let mut readings = IndexMap::new();
+            for &i in &value_cols {
+                let v = self.cell(&rec, i, line)?;
+                if v.is_empty() {
+                    continue;
+                }
+                let key = self.headers[i].clone();
+                let value = self.number(v, line, &key)?;
+                let t = if key == "viscosity" { temperature_c } else { None };
+                readings.insert(
+                    key,
+                    vec![Reading {
+                        value,
+                        unit: None,
+                        temperature_c: t,
+                        line,
+                    }],
+                );
+            }
+            let analysts = match analyst {
+                Some(i) => {
+                    let a = self.cell(&rec, i, line)?;
+                    if a.is_empty() { vec![] } else { vec![a.to_string()] }
+                }
+                None => vec![],
+            };
+            let new = LotResults {
+                lot,
+                product,
+                manufactured,
+                readings,
+                analysts,
+                line,
+            };
+            if let Some(old) = lots.iter().find(|l| l.lot == new.lot) {
+                if same_results(old, &new) {
+                    continue;
+                }
+                return Err(Error::invalid(
+                    format!("{}:{line}, lot '{}'", self.name, new.lot),
+                    format!("the lot already appears on line {} with different results", old.line),
+                    "Keep one row per lot; enter a retest as a separate release with --retest.",
+                ));
+            }
+            lots.push(new);
+        }
+        Ok(lots)
+    }
+
+    fn long(&self, reader: &mut csv::Reader<&[u8]>) -> Result<Vec<LotResults>> {
+        let idx = self.require(&["lot", "product", "property", "value"], "long")?;
+        let unit = self.col("unit");
+        let temp = self.col("temperature_c");
+        let made = self.col("manufactured");
+        let analyst = self.col("analyst");
+        let replicate = self.col("replicate");
+        let mut lots: Vec<LotResults> = Vec::new();
+        let mut dates: Vec<Option<NaiveDate>> = Vec::new();
+        let mut seen_replicates: Vec<(String, String, String, Decimal, u64)> = Vec::new();
+        for rec in reader.records() {
+            let rec = rec.map_err(|e| csv_error(self.name, e))?;
+            let line = rec.position().map_or(0, |p| p.line());
+            let lot = self.lot_id(self.cell(&rec, idx[0], line)?, line)?;
+            let product = self.product(self.cell(&rec, idx[1], line)?, line)?;
+            let key = self.cell(&rec, idx[2], line)?.to_ascii_lowercase();
+            let ok = key.chars().next().is_some_and(|c| c.is_ascii_lowercase())
+                && key.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
+            if !ok {
+                return Err(Error::invalid(
+                    format!("{}:{line}, column 'property'", self.name),
+                    format!("'{key}' is not a property key"),
+                    "Use the spec's property keys, e.g. acid_value.",
+                ));
+            }
+            let raw = self.cell(&rec, idx[3], line)?;
+            if raw.is_empty() {
+                return Err(Error::invalid(
+                    format!("{}:{line}, column 'value'", self.name),
+                    "the value is empty",
+                    "Enter the result, or leave the row out if the test was not done.",
+                ));
+            }
+            let value = self.number(raw, line, "value")?;
+            let unit_v = match unit {
+                Some(i) => Some(self.cell(&rec, i, line)?.to_string()).filter(|u| !u.is_empty()),
+                None => None,
+            };
+            let t = match temp {
+                Some(i) => self.temperature(self.cell(&rec, i, line)?, line, "temperature_c")?,
+                None => None,
+            };
+            let date = match made {
+                Some(i) => {
+                    let v = self.cell(&rec, i, line)?;
+                    if v.is_empty() { None } else { Some(self.date(v, line)?) }
+                }
+                None => None,
+            };
+            if let Some(i) = replicate {
+                let r = self.cell(&rec, i, line)?.to_string();
+                if let Some(prev) = seen_replicates
+                    .iter()
+                    .find(|(l, k, rr, _, _)| *l == lot && *k == key && *rr == r && !r.is_empty())
+                {
+                    if prev.3 != value {
+                        return Err(Error::invalid(
+                            format!("{}:{line}, lot '{lot}'", self.name),
+                            format!(
+                                "replicate {r} of {key} already appears on line {} with value {}",
+                                prev.4, prev.3
+                            ),
+                            "Remove the conflicting row or number the replicates distinctly.",
+                        ));
+                    }
+                    continue;
+                }
+                seen_replicates.push((lot.clone(), key.clone(), r, value, line));
+            }
+            let pos = match lots.iter().position(|l| l.lot == lot) {
+                Some(p) => {
+                    if lots[p].product != product {
+                        return Err(Error::invalid(
+                            format!("{}:{line}, lot '{lot}'", self.name),
+                            format!(
+                                "product '{product}' differs from '{}' on line {}",
+                                lots[p].product, lots[p].line
+                            ),
+                            "A lot belongs to one product; correct the product code.",
+                        ));
+                    }
+                    p
+                }
+                None => {
+                    lots.push(LotResults {
+                        lot: lot.clone(),
+                        product,
+                        manufactured: NaiveDate::MIN,
+                        readings: IndexMap::new(),
+                        analysts: vec![],
+                        line,
+                    });
+                    dates.push(None);
+                    lots.len() - 1
+                }
+            };
+            if let Some(d) = date {
+                match dates[pos] {
+                    Some(old) if old != d => {
+                        return Err(Error::invalid(
+                            format!("{}:{line}, lot '{lot}'", self.name),
+                            format!("manufacture date {d} differs from {old} given earlier"),
+                            "Give one manufacture date per lot.",
+                        ))
+                    }
+                    _ => dates[pos] = Some(d),
+                }
+            }
+            if let Some(i) = analyst {
+                let a = self.cell(&rec, i, line)?.to_string();
+                if !a.is_empty() && !lots[pos].analysts.contains(&a) {
+                    lots[pos].analysts.push(a);
+                }
+            }
+            lots[pos].readings.entry(key).or_default().push(Reading {
+                value,
+                unit: unit_v,
+                temperature_c: t,
+                line,
+            });
+        }
+        for (lot, date) in lots.iter_mut().zip(dates) {
+            lot.manufactured = date.ok_or_else(|| {
+                Error::invalid(
+                    format!("{}:{}, lot '{}'", self.name, lot.line, lot.lot),
+                    "no manufacture date is given for this lot",
+                    "Add a 'manufactured' column (YYYY-MM-DD) on at least one row of the lot.",
+                )
+            })?;
+        }
+        Ok(lots)
+    }
+}
+
+fn same_results(a: &LotResults, b: &LotResults) -> bool {
+    a.product == b.product
+        && a.manufactured == b.manufactured
+        && a.readings.len() == b.readings.len()
+        && a.readings.iter().all(|(k, v)| {
+            b.readings.get(k).is_some_and(|w| {
+                v.len() == w.len()
+                    && v.iter().zip(w).all(|(x, y)| x.value == y.value && x.unit == y.unit)
+            })
+        })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn p(text: &str) -> Result<Vec<LotResults>> {
+        parse("r.csv", text.as_bytes(), Options::default())
+    }
+
+    #[test]
+    fn wide_with_bom_and_semicolons() {
+        let lots = parse(
+            "r.csv",
+            "\u{feff}lot;product;manufactured;acid_value;hydroxyl_value\nL1;PD-2000;2026-10-01;0,52;55,1\n"
+                .as_bytes(),
+            Options { decimal_comma: true, ..Options::default() },
+        )
+        .unwrap();
+        assert_eq!(lots[0].readings["acid_value"][0].value.to_string(), "0.52");
+    }
+
+    #[test]
+    fn long_replicates_are_grouped() {
+        let lots = p("lot,product,property,value,replicate,manufactured\n\
+                      L1,PD-2000,acid_value,0.50,1,2026-10-01\n\
+                      L1,PD-2000,acid_value,0.54,2,\n\
+                      L1,PD-2000,hydroxyl_value,55.0,1,\n")
+        .unwrap();
+        assert_eq!(lots.len(), 1);
+        assert_eq!(lots[0].readings["acid_value"].len(), 2);
+    }
+
+    #[test]
+    fn bad_cells_name_line_and_column() {
+        let e = p("lot,product,manufactured,acid_value\nL1,PD-2000,2026-10-01,abc\n").unwrap_err();
+        assert!(e.to_string().starts_with("r.csv:2, column 'acid_value'"), "{e}");
+        let e = p("lot,product,manufactured,acid_value\nL1,PD-2000,2026-10-01,=SUM(A1)\n").unwrap_err();
+        assert!(e.to_string().contains("not a number"), "{e}");
+        let e = p("lot,product,manufactured,acid_value\n../x,PD-2000,2026-10-01,1\n").unwrap_err();
+        assert!(e.to_string().contains("not a usable lot id"), "{e}");
+        let e = p("lot,product,manufactured,acid_value\nL1,PD-2000,2026-10-01,NaN\n").unwrap_err();
+        assert!(e.to_string().contains("not a number"), "{e}");
+    }
+
+    #[test]
+    fn conflicting_duplicates_are_refused_identical_accepted() {
+        let ok = p("lot,product,manufactured,acid_value\nL1,P,2026-10-01,1\nL1,P,2026-10-01,1\n").unwrap();
+        assert_eq!(ok.len(), 1);
+        let e = p("lot,product,manufactured,acid_value\nL1,P,2026-10-01,1\nL1,P,2026-10-01,2\n").unwrap_err();
+        assert!(e.to_string().contains("different results"), "{e}");
+    }
+
+    #[test]
+    fn empty_and_headless_files_are_refused() {
+        assert!(p("").is_err());
+        assert!(p("lot,product,manufactured,acid_value\n").is_err());
+        assert!(p("lot,acid_value\nL1,1\n").unwrap_err().to_string().contains("lacks column"));
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn arbitrary_bytes_never_panic(bytes in proptest::collection::vec(proptest::num::u8::ANY, 0..400)) {
+            let _ = parse("x.csv", &bytes, Options::default());
+        }
+    }
+}

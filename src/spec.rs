@@ -1,0 +1,607 @@
+//! Product specifications: one TOML file per product revision, chosen by effective date.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use chrono::NaiveDate;
+use indexmap::IndexMap;
+use rust_decimal::Decimal;
+use serde::Deserialize;
+
+use crate::decision::{decimal_from_f64, DecisionRule, Rounding};
+use crate::error::{Error, Result};
+use crate::recipe::Recipe;
+
+/// Derived property keys: computed by resinlot, never entered.
+pub const DERIVED_KEYS: [&str; 4] = ["mn", "xn", "extent_of_reaction", "hydroxyl_equivalent_weight"];
+
+/// True for the derived keys.
+pub fn is_derived(key: &str) -> bool {
+    DERIVED_KEYS.contains(&key)
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SpecFile {
+    code: String,
+    name: String,
+    revision: String,
+    effective: toml::value::Datetime,
+    functionality: f64,
+    decision_rule: DecisionRule,
+    recipe: Option<String>,
+    retest_months: u32,
+    #[serde(default)]
+    rounding: Rounding,
+    #[serde(default)]
+    properties: IndexMap<String, PropertyFile>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct PropertyFile {
+    label: Option<String>,
+    unit: Option<String>,
+    method: Option<String>,
+    min: Option<f64>,
+    max: Option<f64>,
+    decimals: u32,
+    uncertainty: Option<f64>,
+    acidity_correction: Option<bool>,
+    temperature_c: Option<f64>,
+    andrade_b_k: Option<f64>,
+    repeatability: Option<f64>,
+}
+
+/// One property of a product spec, validated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Property {
+    /// Key used in results files, trend files and JSON.
+    pub key: String,
+    /// Label for people and certificates.
+    pub label: String,
+    /// Unit as written on the certificate.
+    pub unit: String,
+    /// Test method, when stated.
+    pub method: Option<String>,
+    /// Lower specification limit.
+    pub min: Option<Decimal>,
+    /// Upper specification limit.
+    pub max: Option<Decimal>,
+    /// Reporting precision (decimal places).
+    pub decimals: u32,
+    /// Expanded uncertainty U (k = 2), in `unit`.
+    pub uncertainty: Option<Decimal>,
+    /// Hydroxyl value entered raw (acetylation): AV is added.
+    pub acidity_correction: bool,
+    /// Spec temperature of a viscosity, °C.
+    pub temperature_c: Option<f64>,
+    /// Andrade coefficient B (K) in ln η = A + B/T, for temperature correction.
+    pub andrade_b_k: Option<f64>,
+    /// Largest allowed range between replicates.
+    pub repeatability: Option<Decimal>,
+    /// True for computed properties (mn, xn, ...).
+    pub derived: bool,
+}
+
+impl Property {
+    /// True when the property has at least one limit.
+    pub fn has_limit(&self) -> bool {
+        self.min.is_some() || self.max.is_some()
+    }
+}
+
+/// One product revision, validated, with its recipe loaded.
+#[derive(Debug, Clone)]
+pub struct ProductSpec {
+    /// Product code.
+    pub code: String,
+    /// Product name.
+    pub name: String,
+    /// Revision label.
+    pub revision: String,
+    /// First manufacture date this revision applies to.
+    pub effective: NaiveDate,
+    /// End groups per molecule for the end-group Mn.
+    pub functionality: f64,
+    /// The decision rule.
+    pub decision_rule: DecisionRule,
+    /// Rounding method for reported values.
+    pub rounding: Rounding,
+    /// Months from manufacture to the retest date.
+    pub retest_months: u32,
+    /// The recipe, when the spec names one.
+    pub recipe: Option<Recipe>,
+    /// Properties in the file's order.
+    pub properties: Vec<Property>,
+    /// The file it came from.
+    pub path: PathBuf,
+}
+
+impl ProductSpec {
+    /// Finds a property by key.
+    pub fn property(&self, key: &str) -> Option<&Property> {
+        self.properties.iter().find(|p| p.key == key)
+    }
+
+    /// Measured (entered) properties.
+    pub fn measured(&self) -> impl Iterator<Item = &Property> {
+        self.properties.iter().filter(|p| !p.derived)
+    }
+
+    /// Parses and validates one spec file's text; `path` locates the recipe and names errors.
+    pub fn parse(path: &Path, text: &str) -> Result<ProductSpec> {
+        let file = path.display().to_string();
+        let raw: SpecFile = crate::tomlfile::parse(&file, text)?;
+        let bad = |what: &str, problem: String, fix: &str| {
+            Error::invalid(format!("{file}: {what}"), problem, fix)
+        };
+        if !crate::ids::is_safe_id(&raw.code) {
+            return Err(bad(
+                "code",
+                format!("'{}' is not a usable product code", raw.code),
+                "Use letters, digits, '-', '_' or '.', starting with a letter or digit.",
+            ));
+        }
+        let effective = NaiveDate::parse_from_str(&raw.effective.to_string(), "%Y-%m-%d")
+            .map_err(|_| {
+                bad(
+                    "effective",
+                    format!("'{}' is not a plain date", raw.effective),
+                    "Write the date as YYYY-MM-DD without quotes, e.g. effective = 2026-09-01.",
+                )
+            })?;
+        crate::error::positive(&format!("{file}: functionality"), raw.functionality)?;
+        let recipe = match &raw.recipe {
+            Some(rel) => {
+                let p = path.parent().unwrap_or(Path::new(".")).join(rel);
+                Some(Recipe::load(&p)?)
+            }
+            None => None,
+        };
+        if raw.properties.is_empty() {
+            return Err(bad(
+                "properties",
+                "the spec has no [properties.*] tables".into(),
+                "Add one table per property, e.g. [properties.acid_value].",
+            ));
+        }
+        let mut properties = Vec::new();
+        for (key, p) in &raw.properties {
+            properties.push(property(&file, key, p, raw.decision_rule, recipe.is_some())?);
+        }
+        let spec = ProductSpec {
+            code: raw.code,
+            name: raw.name,
+            revision: raw.revision,
+            effective,
+            functionality: raw.functionality,
+            decision_rule: raw.decision_rule,
+            rounding: raw.rounding,
+            retest_months: raw.retest_months,
+            recipe,
+            properties,
+            path: path.to_path_buf(),
+        };
+        for needs in ["mn", "hydroxyl_equivalent_weight", "xn", "extent_of_reaction"] {
+            if spec.property(needs).is_some() {
+                let inputs: &[&str] = if needs == "hydroxyl_equivalent_weight" {
+                    &["hydroxyl_value"]
+                } else {
+                    &["acid_value", "hydroxyl_value"]
+                };
+                let inputs: &[&str] = if matches!(needs, "xn" | "extent_of_reaction") {
+                    &["acid_value"]
+                } else {
+                    inputs
+                };
+                for input in inputs {
+                    if spec.property(input).is_none_or(|p| p.derived) {
+                        return Err(bad(
+                            &format!("properties.{needs}"),
+                            format!("'{needs}' cannot be computed without a measured '{input}'"),
+                            &format!("Add [properties.{input}] or remove [properties.{needs}]."),
+                        ));
+                    }
+                }
+            }
+        }
+        if spec.property("hydroxyl_value").is_some() && spec.property("acid_value").is_none() {
+            let hv = spec.property("hydroxyl_value").unwrap();
+            if hv.acidity_correction {
+                return Err(bad(
+                    "properties.hydroxyl_value.acidity_correction",
+                    "the acidity correction needs the acid value, which the spec does not measure"
+                        .into(),
+                    "Add [properties.acid_value] or set acidity_correction = false.",
+                ));
+            }
+        }
+        Ok(spec)
+    }
+}
+
+fn dec(file: &str, key: &str, field: &str, v: Option<f64>) -> Result<Option<Decimal>> {
+    match v {
+        None => Ok(None),
+        Some(x) => {
+            let place = format!("{file}: properties.{key}.{field}");
+            if !x.is_finite() {
+                return Err(Error::invalid(place, "the value is not finite", "Enter a number."));
+            }
+            Ok(Some(decimal_from_f64(x).ok_or_else(|| {
+                Error::invalid(place, "the value is out of range", "Enter a plain number.")
+            })?))
+        }
+    }
+}
+
+fn property(
+    file: &str,
+    key: &str,
+    p: &PropertyFile,
+    rule: DecisionRule,
+    has_recipe: bool,
+) -> Result<Property> {
+    let place = |field: &str| format!("{file}: properties.{key}{field}");
+    let valid_key = key.chars().next().is_some_and(|c| c.is_ascii_lowercase())
+        && key.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
+    if !valid_key || key.len() > 40 {
+        return Err(Error::invalid(
+            place(""),
+            format!("'{key}' is not a usable property key"),
+            "Use lower-case letters, digits and '_', starting with a letter (e.g. acid_value).",
+        ));
+    }
+    let derived = is_derived(key);
+    if derived && matches!(key, "xn" | "extent_of_reaction") && !has_recipe {
+        return Err(Error::invalid(
+            place(""),
+            format!("'{key}' cannot be computed without a recipe"),
+            "Add recipe = \"recipes/<file>.toml\" to the spec, or remove this property.",
+        ));
+    }
+    if key == "mn" && p.uncertainty.is_some() {
+        return Err(Error::invalid(
+            place(".uncertainty"),
+            "the uncertainty of Mn is computed from those of AV and OHV, not given",
+            "Remove this line; give uncertainties on acid_value and hydroxyl_value.",
+        ));
+    }
+    let default_unit = match key {
+        "mn" => Some("g/mol"),
+        "hydroxyl_equivalent_weight" => Some("g/eq"),
+        "xn" | "extent_of_reaction" => Some("1"),
+        _ => None,
+    };
+    let unit = match (&p.unit, default_unit) {
+        (Some(u), _) if !u.trim().is_empty() => u.trim().to_string(),
+        (_, Some(u)) => u.to_string(),
+        _ => {
+            return Err(Error::invalid(
+                place(".unit"),
+                "the unit is missing",
+                "Add unit = \"...\", e.g. unit = \"mg KOH/g\".",
+            ))
+        }
+    };
+    let label = match (&p.label, derived) {
+        (Some(l), _) if !l.trim().is_empty() => l.trim().to_string(),
+        (_, true) => default_label(key).to_string(),
+        _ => {
+            return Err(Error::invalid(
+                place(".label"),
+                "the label is missing",
+                "Add label = \"...\", the name printed on certificates.",
+            ))
+        }
+    };
+    if p.decimals > 10 {
+        return Err(Error::invalid(
+            place(".decimals"),
+            format!("{} decimal places is more than any method resolves", p.decimals),
+            "Use 0 to 10.",
+        ));
+    }
+    let min = dec(file, key, "min", p.min)?;
+    let max = dec(file, key, "max", p.max)?;
+    if let (Some(lo), Some(hi)) = (min, max) {
+        if lo > hi {
+            return Err(Error::invalid(
+                place(""),
+                format!("min {lo} is greater than max {hi}"),
+                "Swap or correct the limits.",
+            ));
+        }
+    }
+    let uncertainty = dec(file, key, "uncertainty", p.uncertainty)?;
+    if uncertainty.is_some_and(|u| u.is_sign_negative()) {
+        return Err(Error::invalid(
+            place(".uncertainty"),
+            "the uncertainty is negative",
+            "Give the expanded uncertainty U (k = 2) as a positive number.",
+        ));
+    }
+    if rule == DecisionRule::Guarded
+        && !derived
+        && (min.is_some() || max.is_some())
+        && uncertainty.is_none()
+    {
+        return Err(Error::invalid(
+            place(".uncertainty"),
+            "the guarded decision rule needs the expanded uncertainty of every limited property",
+            "Add uncertainty = U (k = 2, in the property's unit), or use decision_rule = \"simple\".",
+        ));
+    }
+    if p.acidity_correction.is_some() && key != "hydroxyl_value" {
+        return Err(Error::invalid(
+            place(".acidity_correction"),
+            "only hydroxyl_value takes an acidity correction",
+            "Remove this line.",
+        ));
+    }
+    if (p.temperature_c.is_some() || p.andrade_b_k.is_some()) && key != "viscosity" {
+        return Err(Error::invalid(
+            place(""),
+            "temperature_c and andrade_b_k belong to viscosity only",
+            "Remove them, or rename the property to viscosity.",
+        ));
+    }
+    if p.andrade_b_k.is_some() && p.temperature_c.is_none() {
+        return Err(Error::invalid(
+            place(".andrade_b_k"),
+            "a temperature correction needs the spec temperature",
+            "Add temperature_c = ... (°C).",
+        ));
+    }
+    Ok(Property {
+        key: key.to_string(),
+        label,
+        unit,
+        method: p.method.clone(),
+        min,
+        max,
+        decimals: p.decimals,
+        uncertainty,
+        acidity_correction: p.acidity_correction.unwrap_or(false),
+        temperature_c: p.temperature_c,
+        andrade_b_k: p.andrade_b_k,
+        repeatability: dec(file, key, "repeatability", p.repeatability)?,
+        derived,
+    })
+}
+
+fn default_label(key: &str) -> &'static str {
+    match key {
+        "mn" => "Number-average molar mass Mn",
+        "xn" => "Degree of polymerisation Xn",
+        "extent_of_reaction" => "Extent of reaction p",
+        _ => "Hydroxyl equivalent weight",
+    }
+}
+
+/// Every product spec in a folder (top level only), grouped by code and sorted by date.
+#[derive(Debug, Clone, Default)]
+pub struct SpecSet {
+    /// Product code to its revisions, oldest first.
+    pub products: BTreeMap<String, Vec<ProductSpec>>,
+    /// The folder they came from.
+    pub dir: PathBuf,
+}
+
+/// Compares revision labels: shorter first, then alphabetical ("B" < "C" < "AA", "9" < "10").
+fn revision_order(a: &str, b: &str) -> std::cmp::Ordering {
+    a.len().cmp(&b.len()).then_with(|| a.cmp(b))
+}
+
+impl SpecSet {
+    /// Loads and validates every `*.toml` directly inside `dir`.
+    pub fn load(dir: &Path) -> Result<SpecSet> {
+        let entries = std::fs::read_dir(dir).map_err(|e| Error::io(dir, "reading folder", e))?;
+        let mut paths: Vec<PathBuf> = entries
+            .filter_map(|e| e.ok().map(|e| e.path()))
+            .filter(|p| p.is_file() && p.extension().is_some_and(|x| x == "toml"))
+            .collect();
+        paths.sort();
+        let mut products: BTreeMap<String, Vec<ProductSpec>> = BTreeMap::new();
+        for path in paths {
+            let text = read_text(&path)?;
+            let spec = ProductSpec::parse(&path, &text)?;
+            products.entry(spec.code.clone()).or_default().push(spec);
+        }
+        for revs in products.values_mut() {
+            revs.sort_by(|a, b| a.effective.cmp(&b.effective));
+            for pair in revs.windows(2) {
+                let (old, new) = (&pair[0], &pair[1]);
+                if old.effective == new.effective {
+                    return Err(Error::invalid(
+                        new.path.display().to_string(),
+                        format!(
+                            "{} revisions {} and {} are both effective from {} ({} also)",
+                            new.code,
+                            old.revision,
+                            new.revision,
+                            new.effective,
+                            old.path.display()
+                        ),
+                        "Give the newer revision a later effective date.",
+                    ));
+                }
+                if revision_order(&new.revision, &old.revision) != std::cmp::Ordering::Greater {
+                    return Err(Error::invalid(
+                        new.path.display().to_string(),
+                        format!(
+                            "{} revision {} (effective {}) does not come after revision {} (effective {})",
+                            new.code, new.revision, new.effective, old.revision, old.effective
+                        ),
+                        "Revisions must go forward with the effective date; correct the revision label or the date.",
+                    ));
+                }
+            }
+        }
+        if products.is_empty() {
+            return Err(Error::invalid(
+                dir.display().to_string(),
+                "no product spec files (*.toml) found",
+                "Point --specs at the folder holding the product specs.",
+            ));
+        }
+        Ok(SpecSet {
+            products,
+            dir: dir.to_path_buf(),
+        })
+    }
+
+    /// The revision of `code` in effect on `date`.
+    pub fn for_date(&self, code: &str, date: NaiveDate) -> Result<&ProductSpec> {
+        let revs = self.products.get(code).ok_or_else(|| {
+            let known: Vec<&str> = self.products.keys().map(String::as_str).collect();
+            Error::invalid(
+                format!("product '{code}'"),
+                format!("no spec in {} has this code", self.dir.display()),
+                format!("Known products: {}.", known.join(", ")),
+            )
+        })?;
+        revs.iter().rev().find(|s| s.effective <= date).ok_or_else(|| {
+            Error::invalid(
+                format!("product '{code}', manufactured {date}"),
+                format!(
+                    "no revision is effective yet on that date (the earliest, {}, starts {})",
+                    revs[0].revision, revs[0].effective
+                ),
+                "Check the manufacture date, or add the revision that applied then.",
+            )
+        })
+    }
+
+    /// The newest revision of `code`.
+    pub fn latest(&self, code: &str) -> Option<&ProductSpec> {
+        self.products.get(code).and_then(|v| v.last())
+    }
+
+    /// Every property key used by any revision of `code`, in first-seen order.
+    pub fn all_keys(&self, code: &str) -> Vec<String> {
+        let mut keys: Vec<String> = Vec::new();
+        for spec in self.products.get(code).into_iter().flatten().rev() {
+            for p in &spec.properties {
+                if !keys.contains(&p.key) {
+                    keys.push(p.key.clone());
+                }
+            }
+        }
+        keys
+    }
+}
+
+/// Reads a UTF-8 text file with a clear message on failure.
+pub fn read_text(path: &Path) -> Result<String> {
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "reading", e))?;
+    String::from_utf8(bytes).map_err(|e| {
+        Error::invalid(
+            path.display().to_string(),
+            format!("byte {} is not valid UTF-8", e.utf8_error().valid_up_to()),
+            "Save the file as UTF-8.",
+        )
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    pub(crate) const SPEC: &str = r#"
+code = "PD-2000"
+name = "Linear polyester diol"
+revision = "C"
+effective = 2026-09-01
+functionality = 2.0
+decision_rule = "guarded"
+retest_months = 12
+[properties.acid_value]
+label = "Acid value"
+unit = "mg KOH/g"
+method = "ISO 2114"
+max = 1.0
+decimals = 2
+uncertainty = 0.05
+[properties.hydroxyl_value]
+label = "Hydroxyl value"
+unit = "mg KOH/g"
+acidity_correction = true
+min = 53.0
+max = 59.0
+decimals = 1
+uncertainty = 0.8
+[properties.mn]
+min = 1900
+max = 2100
+decimals = 0
+"#;
+
+    fn parse(text: &str) -> Result<ProductSpec> {
+        ProductSpec::parse(Path::new("specs/x.toml"), text)
+    }
+
+    #[test]
+    fn parses_the_documented_example() {
+        let s = parse(SPEC).unwrap();
+        assert_eq!(s.properties.len(), 3);
+        assert_eq!(s.properties[0].key, "acid_value");
+        assert_eq!(s.property("mn").unwrap().unit, "g/mol");
+        assert!(s.property("hydroxyl_value").unwrap().acidity_correction);
+    }
+
+    #[test]
+    fn min_above_max_is_refused() {
+        let e = parse(&SPEC.replace("min = 53.0", "min = 60.0")).unwrap_err();
+        assert!(e.to_string().contains("min 60 is greater than max 59"), "{e}");
+    }
+
+    #[test]
+    fn xn_without_recipe_is_refused() {
+        let e = parse(&format!("{SPEC}[properties.xn]\ndecimals = 1\n")).unwrap_err();
+        assert!(e.to_string().contains("without a recipe"), "{e}");
+    }
+
+    #[test]
+    fn guarded_needs_uncertainty() {
+        let e = parse(&SPEC.replace("uncertainty = 0.05\n", "")).unwrap_err();
+        assert!(e.to_string().contains("expanded uncertainty"), "{e}");
+    }
+
+    #[test]
+    fn missing_unit_is_refused() {
+        let e = parse(&SPEC.replace("unit = \"mg KOH/g\"\nmethod", "method")).unwrap_err();
+        assert!(e.to_string().contains("unit is missing"), "{e}");
+    }
+
+    #[test]
+    fn unknown_field_names_line() {
+        let e = parse(&SPEC.replace("decimals = 2", "decimals = 2\ncolor = 1")).unwrap_err();
+        assert!(e.to_string().contains("specs/x.toml:"), "{e}");
+    }
+
+    #[test]
+    fn revisions_must_go_forward() {
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::write(dir.path().join("c.toml"), SPEC).unwrap();
+        let b = SPEC.replace("revision = \"C\"", "revision = \"B\"").replace("2026-09-01", "2026-10-01");
+        std::fs::write(dir.path().join("b.toml"), b).unwrap();
+        let e = SpecSet::load(dir.path()).unwrap_err();
+        assert!(e.to_string().contains("does not come after"), "{e}");
+    }
+
+    #[test]
+    fn revision_in_effect_is_chosen_by_date() {
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::write(dir.path().join("c.toml"), SPEC).unwrap();
+        let b = SPEC.replace("revision = \"C\"", "revision = \"B\"").replace("2026-09-01", "2025-06-01");
+        std::fs::write(dir.path().join("b.toml"), b).unwrap();
+        let set = SpecSet::load(dir.path()).unwrap();
+        let d = |s| NaiveDate::parse_from_str(s, "%Y-%m-%d").unwrap();
+        assert_eq!(set.for_date("PD-2000", d("2026-08-31")).unwrap().revision, "B");
+        assert_eq!(set.for_date("PD-2000", d("2026-09-01")).unwrap().revision, "C");
+        assert!(set.for_date("PD-2000", d("2025-01-01")).is_err());
+        assert!(set.for_date("XX", d("2026-01-01")).is_err());
+    }
+}
