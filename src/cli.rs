@@ -30,6 +30,13 @@ pub enum Command {
     /// points and water loss from one acid value and hydroxyl value.
     #[command(after_help = EXIT_STATUS)]
     Endgroup(cmd::endgroup::Args),
+    /// Decide every lot of a lab results file against its product spec and append it to the
+    /// product's trend file.
+    #[command(after_help = EXIT_STATUS)]
+    Release(cmd::release::Args),
+    /// Check product specs, recipes and customer files.
+    #[command(after_help = EXIT_STATUS)]
+    Specs(cmd::specs::Args),
 }
 
 #[cfg(test)]

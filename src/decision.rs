@@ -212,7 +212,10 @@ mod tests {
 
     #[test]
     fn f64_conversion_keeps_fifteen_digits() {
-        assert_eq!(decimal_from_f64(1989.3617021276596).unwrap(), d("1989.36170212766"));
+        assert_eq!(
+            decimal_from_f64(1989.3617021276596).unwrap(),
+            d("1989.36170212766")
+        );
         assert!(decimal_from_f64(f64::NAN).is_none());
     }
 }

@@ -40,9 +40,14 @@ impl Status {
 
     /// Parses the snake_case name.
     pub fn parse(text: &str) -> Option<Status> {
-        [Status::Released, Status::OnHold, Status::Rejected, Status::Incomplete]
-            .into_iter()
-            .find(|s| s.as_str() == text)
+        [
+            Status::Released,
+            Status::OnHold,
+            Status::Rejected,
+            Status::Incomplete,
+        ]
+        .into_iter()
+        .find(|s| s.as_str() == text)
     }
 }
 
@@ -92,7 +97,8 @@ impl LotDecision {
     }
 }
 
-fn unit_factor(from: &str, to: &str) -> Option<Decimal> {
+/// Factor converting a value in unit `from` to unit `to`; None when not a known conversion.
+pub fn unit_factor(from: &str, to: &str) -> Option<Decimal> {
     let norm = |u: &str| {
         u.trim()
             .to_ascii_lowercase()
@@ -177,7 +183,11 @@ fn mean_reading(
     let max = values.iter().copied().max().unwrap_or_default();
     let min = values.iter().copied().min().unwrap_or_default();
     Ok(Mean {
-        value: sum / Decimal::from(n as u64),
+        value: if n == 1 {
+            values[0]
+        } else {
+            (sum / Decimal::from(n as u64)).normalize()
+        },
         range: max - min,
         n,
     })
@@ -196,7 +206,10 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
                     ),
                     format!(
                         "Known properties: {}.",
-                        spec.measured().map(|p| p.key.as_str()).collect::<Vec<_>>().join(", ")
+                        spec.measured()
+                            .map(|p| p.key.as_str())
+                            .collect::<Vec<_>>()
+                            .join(", ")
                     ),
                 ))
             }
@@ -233,28 +246,57 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
                         p.label, m.n, m.range, r
                     ));
                 }
-                _ => notes.push(format!("{}: mean of {} replicates (range {})", p.label, m.n, m.range)),
+                _ => notes.push(format!(
+                    "{}: mean of {} replicates (range {})",
+                    p.label, m.n, m.range
+                )),
             }
         }
         means.push((p.key.clone(), m.value));
-        let w = if guarded { p.uncertainty.unwrap_or_default() } else { Decimal::ZERO };
-        results.push(decide(p, m.value, w, spec, Some(m.value.normalize().to_string()), p.uncertainty.map(to_f64)));
+        let w = if guarded {
+            p.uncertainty.unwrap_or_default()
+        } else {
+            Decimal::ZERO
+        };
+        results.push(decide(
+            p,
+            m.value,
+            w,
+            spec,
+            Some(m.value.to_string()),
+            p.uncertainty.map(to_f64),
+        ));
     }
-    let mean_of = |k: &str| means.iter().find(|(key, _)| key == k).map(|(_, v)| to_f64(*v));
+    let mean_of = |k: &str| {
+        means
+            .iter()
+            .find(|(key, _)| key == k)
+            .map(|(_, v)| to_f64(*v))
+    };
     let av = mean_of("acid_value");
     let ohv = mean_of("hydroxyl_value");
     let u = |k: &str| spec.property(k).and_then(|p| p.uncertainty).map(to_f64);
-    let hv_corr = spec.property("hydroxyl_value").is_some_and(|p| p.acidity_correction);
+    let hv_corr = spec
+        .property("hydroxyl_value")
+        .is_some_and(|p| p.acidity_correction);
     for p in spec.properties.iter().filter(|p| p.derived) {
-        let computed = derived_value(spec, &p.key, av, ohv, u("acid_value"), u("hydroxyl_value"), hv_corr)
-            .map_err(|e| match e {
-                Error::Invalid { problem, fix, .. } => Error::invalid(
-                    format!("{file}:{}, lot '{}'", lot.line, lot.lot),
-                    problem,
-                    fix,
-                ),
-                other => other,
-            })?;
+        let computed = derived_value(
+            spec,
+            &p.key,
+            av,
+            ohv,
+            u("acid_value"),
+            u("hydroxyl_value"),
+            hv_corr,
+        )
+        .map_err(|e| match e {
+            Error::Invalid { problem, fix, .. } => Error::invalid(
+                format!("{file}:{}, lot '{}'", lot.line, lot.lot),
+                problem,
+                fix,
+            ),
+            other => other,
+        })?;
         match computed {
             Some((value, unc)) => {
                 let d = decimal_from_f64(value).unwrap_or_default();
@@ -379,13 +421,21 @@ pub fn derived_value(
         let step = av_v + u - (av_v - u).max(0.0);
         Some(((hi - lo) / step * u).abs())
     };
-    let recipe_at = |x: f64| analyse(&t(x), spec.recipe.as_ref()).ok().and_then(|a| a.recipe);
+    let recipe_at = |x: f64| {
+        analyse(&t(x), spec.recipe.as_ref())
+            .ok()
+            .and_then(|a| a.recipe)
+    };
     Ok(match key {
         "mn" => a.mn.map(|mn| (mn, a.mn_uncertainty)),
         "hydroxyl_equivalent_weight" => a.hydroxyl_equivalent_weight.map(|hew| {
             let u = match (u_av, u_ohv) {
                 (Some(ua), Some(uo)) => {
-                    let uc = if acidity_correction { (ua * ua + uo * uo).sqrt() } else { uo };
+                    let uc = if acidity_correction {
+                        (ua * ua + uo * uo).sqrt()
+                    } else {
+                        uo
+                    };
                     Some(hew * uc / a.hydroxyl_value_corrected)
                 }
                 _ => None,
@@ -397,10 +447,12 @@ pub fn derived_value(
             .as_ref()
             .and_then(|r| r.xn_carothers)
             .map(|x| (x, spread(&|v| recipe_at(v).and_then(|r| r.xn_carothers)))),
-        "extent_of_reaction" => a
-            .recipe
-            .as_ref()
-            .map(|r| (r.extent_of_reaction, spread(&|v| recipe_at(v).map(|r| r.extent_of_reaction)))),
+        "extent_of_reaction" => a.recipe.as_ref().map(|r| {
+            (
+                r.extent_of_reaction,
+                spread(&|v| recipe_at(v).map(|r| r.extent_of_reaction)),
+            )
+        }),
         _ => None,
     })
 }
@@ -479,24 +531,34 @@ decimals = 0
 
     #[test]
     fn missing_property_is_incomplete() {
-        let d = run("lot,product,manufactured,acid_value,hydroxyl_value\nL1,PD-2000,2026-10-01,0.5,55.6\n");
+        let d = run(
+            "lot,product,manufactured,acid_value,hydroxyl_value\nL1,PD-2000,2026-10-01,0.5,55.6\n",
+        );
         assert_eq!(d.status, Status::Incomplete);
     }
 
     #[test]
     fn units_and_temperature_are_converted() {
         // 0.52 Pa·s = 520 mPa·s (SI).
-        let d = run("lot,product,property,value,unit,temperature_c,manufactured\n\
+        let d = run(
+            "lot,product,property,value,unit,temperature_c,manufactured\n\
                      L1,PD-2000,acid_value,0.5,mg KOH/g,,2026-10-01\n\
                      L1,PD-2000,hydroxyl_value,55.6,mg KOH/g,,\n\
-                     L1,PD-2000,viscosity,0.52,Pa·s,75,\n");
+                     L1,PD-2000,viscosity,0.52,Pa·s,75,\n",
+        );
         approx::assert_relative_eq!(d.get("viscosity").unwrap().value.unwrap(), 520.0);
-        let d = run("lot,product,property,value,unit,temperature_c,manufactured\n\
+        let d = run(
+            "lot,product,property,value,unit,temperature_c,manufactured\n\
                      L1,PD-2000,acid_value,0.5,mg KOH/g,,2026-10-01\n\
                      L1,PD-2000,hydroxyl_value,55.6,mg KOH/g,,\n\
-                     L1,PD-2000,viscosity,400,mPa·s,80,\n");
+                     L1,PD-2000,viscosity,400,mPa·s,80,\n",
+        );
         let expected = andrade_correct(400.0, 80.0, 75.0, 6000.0);
-        approx::assert_relative_eq!(d.get("viscosity").unwrap().value.unwrap(), expected, max_relative = 1e-9);
+        approx::assert_relative_eq!(
+            d.get("viscosity").unwrap().value.unwrap(),
+            expected,
+            max_relative = 1e-9
+        );
         assert!(d.notes.iter().any(|n| n.contains("Andrade")));
     }
 
@@ -504,7 +566,11 @@ decimals = 0
     fn andrade_correction_direction() {
         // A liquid is more viscous when colder (Andrade 1930): B > 0 raises η from 80 to 75 °C;
         // by hand: exp(6000·(1/348.15 − 1/353.15)) = exp(0.244003) = 1.276349.
-        approx::assert_relative_eq!(andrade_correct(100.0, 80.0, 75.0, 6000.0), 127.6349, epsilon = 1e-3);
+        approx::assert_relative_eq!(
+            andrade_correct(100.0, 80.0, 75.0, 6000.0),
+            127.6349,
+            epsilon = 1e-3
+        );
     }
 
     #[test]

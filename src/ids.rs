@@ -23,7 +23,9 @@ mod tests {
     #[test]
     fn path_like_ids_are_refused() {
         assert!(is_safe_id("PD2-26-0412"));
-        for bad in ["", "../x", "a/b", "a\\b", "a b", "=SUM(A1)", "-x", "a..b", "x\u{7}"] {
+        for bad in [
+            "", "../x", "a/b", "a\\b", "a b", "=SUM(A1)", "-x", "a..b", "x\u{7}",
+        ] {
             assert!(!is_safe_id(bad), "{bad:?}");
         }
         assert!(!is_safe_id(&"a".repeat(41)));

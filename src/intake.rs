@@ -126,7 +126,10 @@ pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>>
     if header_line.split(delimiter as char).count() > opts.limits.max_columns {
         return Err(Error::invalid(
             format!("{name}:1"),
-            format!("the header has more than {} columns", opts.limits.max_columns),
+            format!(
+                "the header has more than {} columns",
+                opts.limits.max_columns
+            ),
             "Check that this is a results file; it has far more columns than any spec.",
         ));
     }
@@ -216,7 +219,10 @@ impl Ctx<'_> {
         if v.chars().count() > self.opts.limits.max_cell_chars {
             return Err(Error::invalid(
                 format!("{}:{line}, column '{}'", self.name, self.headers[i]),
-                format!("the cell is longer than {} characters", self.opts.limits.max_cell_chars),
+                format!(
+                    "the cell is longer than {} characters",
+                    self.opts.limits.max_cell_chars
+                ),
                 "Shorten it; results cells hold numbers, ids and short names.",
             ));
         }
@@ -331,7 +337,8 @@ impl Ctx<'_> {
         for &i in &value_cols {
             let h = &self.headers[i];
             let ok = h.chars().next().is_some_and(|c| c.is_ascii_lowercase())
-                && h.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
+                && h.chars()
+                    .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
             if !ok {
                 return Err(Error::invalid(
                     format!("{}:1", self.name),
@@ -348,7 +355,9 @@ impl Ctx<'_> {
             let product = self.product(self.cell(&rec, idx[1], line)?, line)?;
             let manufactured = self.date(self.cell(&rec, idx[2], line)?, line)?;
             let temperature_c = match vt {
-                Some(i) => self.temperature(self.cell(&rec, i, line)?, line, "viscosity_temperature_c")?,
+                Some(i) => {
+                    self.temperature(self.cell(&rec, i, line)?, line, "viscosity_temperature_c")?
+                }
                 None => None,
             };
             let mut readings = IndexMap::new();
@@ -359,7 +368,11 @@ impl Ctx<'_> {
                 }
                 let key = self.headers[i].clone();
                 let value = self.number(v, line, &key)?;
-                let t = if key == "viscosity" { temperature_c } else { None };
+                let t = if key == "viscosity" {
+                    temperature_c
+                } else {
+                    None
+                };
                 readings.insert(
                     key,
                     vec![Reading {
@@ -373,7 +386,11 @@ impl Ctx<'_> {
             let analysts = match analyst {
                 Some(i) => {
                     let a = self.cell(&rec, i, line)?;
-                    if a.is_empty() { vec![] } else { vec![a.to_string()] }
+                    if a.is_empty() {
+                        vec![]
+                    } else {
+                        vec![a.to_string()]
+                    }
                 }
                 None => vec![],
             };
@@ -391,7 +408,10 @@ impl Ctx<'_> {
                 }
                 return Err(Error::invalid(
                     format!("{}:{line}, lot '{}'", self.name, new.lot),
-                    format!("the lot already appears on line {} with different results", old.line),
+                    format!(
+                        "the lot already appears on line {} with different results",
+                        old.line
+                    ),
                     "Keep one row per lot; enter a retest as a separate release with --retest.",
                 ));
             }
@@ -417,7 +437,9 @@ impl Ctx<'_> {
             let product = self.product(self.cell(&rec, idx[1], line)?, line)?;
             let key = self.cell(&rec, idx[2], line)?.to_ascii_lowercase();
             let ok = key.chars().next().is_some_and(|c| c.is_ascii_lowercase())
-                && key.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
+                && key
+                    .chars()
+                    .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
             if !ok {
                 return Err(Error::invalid(
                     format!("{}:{line}, column 'property'", self.name),
@@ -445,7 +467,11 @@ impl Ctx<'_> {
             let date = match made {
                 Some(i) => {
                     let v = self.cell(&rec, i, line)?;
-                    if v.is_empty() { None } else { Some(self.date(v, line)?) }
+                    if v.is_empty() {
+                        None
+                    } else {
+                        Some(self.date(v, line)?)
+                    }
                 }
                 None => None,
             };
@@ -541,7 +567,9 @@ fn same_results(a: &LotResults, b: &LotResults) -> bool {
         && a.readings.iter().all(|(k, v)| {
             b.readings.get(k).is_some_and(|w| {
                 v.len() == w.len()
-                    && v.iter().zip(w).all(|(x, y)| x.value == y.value && x.unit == y.unit)
+                    && v.iter()
+                        .zip(w)
+                        .all(|(x, y)| x.value == y.value && x.unit == y.unit)
             })
         })
 }
@@ -580,8 +608,12 @@ mod tests {
     #[test]
     fn bad_cells_name_line_and_column() {
         let e = p("lot,product,manufactured,acid_value\nL1,PD-2000,2026-10-01,abc\n").unwrap_err();
-        assert!(e.to_string().starts_with("r.csv:2, column 'acid_value'"), "{e}");
-        let e = p("lot,product,manufactured,acid_value\nL1,PD-2000,2026-10-01,=SUM(A1)\n").unwrap_err();
+        assert!(
+            e.to_string().starts_with("r.csv:2, column 'acid_value'"),
+            "{e}"
+        );
+        let e =
+            p("lot,product,manufactured,acid_value\nL1,PD-2000,2026-10-01,=SUM(A1)\n").unwrap_err();
         assert!(e.to_string().contains("not a number"), "{e}");
         let e = p("lot,product,manufactured,acid_value\n../x,PD-2000,2026-10-01,1\n").unwrap_err();
         assert!(e.to_string().contains("not a usable lot id"), "{e}");
@@ -591,9 +623,11 @@ mod tests {
 
     #[test]
     fn conflicting_duplicates_are_refused_identical_accepted() {
-        let ok = p("lot,product,manufactured,acid_value\nL1,P,2026-10-01,1\nL1,P,2026-10-01,1\n").unwrap();
+        let ok = p("lot,product,manufactured,acid_value\nL1,P,2026-10-01,1\nL1,P,2026-10-01,1\n")
+            .unwrap();
         assert_eq!(ok.len(), 1);
-        let e = p("lot,product,manufactured,acid_value\nL1,P,2026-10-01,1\nL1,P,2026-10-01,2\n").unwrap_err();
+        let e = p("lot,product,manufactured,acid_value\nL1,P,2026-10-01,1\nL1,P,2026-10-01,2\n")
+            .unwrap_err();
         assert!(e.to_string().contains("different results"), "{e}");
     }
 
@@ -601,7 +635,10 @@ mod tests {
     fn empty_and_headless_files_are_refused() {
         assert!(p("").is_err());
         assert!(p("lot,product,manufactured,acid_value\n").is_err());
-        assert!(p("lot,acid_value\nL1,1\n").unwrap_err().to_string().contains("lacks column"));
+        assert!(p("lot,acid_value\nL1,1\n")
+            .unwrap_err()
+            .to_string()
+            .contains("lacks column"));
     }
 
     proptest::proptest! {

@@ -13,7 +13,12 @@ use crate::error::{Error, Result};
 use crate::recipe::Recipe;
 
 /// Derived property keys: computed by resinlot, never entered.
-pub const DERIVED_KEYS: [&str; 4] = ["mn", "xn", "extent_of_reaction", "hydroxyl_equivalent_weight"];
+pub const DERIVED_KEYS: [&str; 4] = [
+    "mn",
+    "xn",
+    "extent_of_reaction",
+    "hydroxyl_equivalent_weight",
+];
 
 /// True for the derived keys.
 pub fn is_derived(key: &str) -> bool {
@@ -143,8 +148,8 @@ impl ProductSpec {
                 "Use letters, digits, '-', '_' or '.', starting with a letter or digit.",
             ));
         }
-        let effective = NaiveDate::parse_from_str(&raw.effective.to_string(), "%Y-%m-%d")
-            .map_err(|_| {
+        let effective =
+            NaiveDate::parse_from_str(&raw.effective.to_string(), "%Y-%m-%d").map_err(|_| {
                 bad(
                     "effective",
                     format!("'{}' is not a plain date", raw.effective),
@@ -168,7 +173,13 @@ impl ProductSpec {
         }
         let mut properties = Vec::new();
         for (key, p) in &raw.properties {
-            properties.push(property(&file, key, p, raw.decision_rule, recipe.is_some())?);
+            properties.push(property(
+                &file,
+                key,
+                p,
+                raw.decision_rule,
+                recipe.is_some(),
+            )?);
         }
         let spec = ProductSpec {
             code: raw.code,
@@ -183,7 +194,12 @@ impl ProductSpec {
             properties,
             path: path.to_path_buf(),
         };
-        for needs in ["mn", "hydroxyl_equivalent_weight", "xn", "extent_of_reaction"] {
+        for needs in [
+            "mn",
+            "hydroxyl_equivalent_weight",
+            "xn",
+            "extent_of_reaction",
+        ] {
             if spec.property(needs).is_some() {
                 let inputs: &[&str] = if needs == "hydroxyl_equivalent_weight" {
                     &["hydroxyl_value"]
@@ -227,7 +243,11 @@ fn dec(file: &str, key: &str, field: &str, v: Option<f64>) -> Result<Option<Deci
         Some(x) => {
             let place = format!("{file}: properties.{key}.{field}");
             if !x.is_finite() {
-                return Err(Error::invalid(place, "the value is not finite", "Enter a number."));
+                return Err(Error::invalid(
+                    place,
+                    "the value is not finite",
+                    "Enter a number.",
+                ));
             }
             Ok(Some(decimal_from_f64(x).ok_or_else(|| {
                 Error::invalid(place, "the value is out of range", "Enter a plain number.")
@@ -245,7 +265,9 @@ fn property(
 ) -> Result<Property> {
     let place = |field: &str| format!("{file}: properties.{key}{field}");
     let valid_key = key.chars().next().is_some_and(|c| c.is_ascii_lowercase())
-        && key.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
+        && key
+            .chars()
+            .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
     if !valid_key || key.len() > 40 {
         return Err(Error::invalid(
             place(""),
@@ -299,7 +321,10 @@ fn property(
     if p.decimals > 10 {
         return Err(Error::invalid(
             place(".decimals"),
-            format!("{} decimal places is more than any method resolves", p.decimals),
+            format!(
+                "{} decimal places is more than any method resolves",
+                p.decimals
+            ),
             "Use 0 to 10.",
         ));
     }
@@ -410,7 +435,7 @@ impl SpecSet {
             products.entry(spec.code.clone()).or_default().push(spec);
         }
         for revs in products.values_mut() {
-            revs.sort_by(|a, b| a.effective.cmp(&b.effective));
+            revs.sort_by_key(|s| s.effective);
             for pair in revs.windows(2) {
                 let (old, new) = (&pair[0], &pair[1]);
                 if old.effective == new.effective {
@@ -462,16 +487,19 @@ impl SpecSet {
                 format!("Known products: {}.", known.join(", ")),
             )
         })?;
-        revs.iter().rev().find(|s| s.effective <= date).ok_or_else(|| {
-            Error::invalid(
-                format!("product '{code}', manufactured {date}"),
-                format!(
-                    "no revision is effective yet on that date (the earliest, {}, starts {})",
-                    revs[0].revision, revs[0].effective
-                ),
-                "Check the manufacture date, or add the revision that applied then.",
-            )
-        })
+        revs.iter()
+            .rev()
+            .find(|s| s.effective <= date)
+            .ok_or_else(|| {
+                Error::invalid(
+                    format!("product '{code}', manufactured {date}"),
+                    format!(
+                        "no revision is effective yet on that date (the earliest, {}, starts {})",
+                        revs[0].revision, revs[0].effective
+                    ),
+                    "Check the manufacture date, or add the revision that applied then.",
+                )
+            })
     }
 
     /// The newest revision of `code`.
@@ -554,7 +582,10 @@ decimals = 0
     #[test]
     fn min_above_max_is_refused() {
         let e = parse(&SPEC.replace("min = 53.0", "min = 60.0")).unwrap_err();
-        assert!(e.to_string().contains("min 60 is greater than max 59"), "{e}");
+        assert!(
+            e.to_string().contains("min 60 is greater than max 59"),
+            "{e}"
+        );
     }
 
     #[test]
@@ -585,7 +616,9 @@ decimals = 0
     fn revisions_must_go_forward() {
         let dir = tempfile::tempdir().unwrap();
         std::fs::write(dir.path().join("c.toml"), SPEC).unwrap();
-        let b = SPEC.replace("revision = \"C\"", "revision = \"B\"").replace("2026-09-01", "2026-10-01");
+        let b = SPEC
+            .replace("revision = \"C\"", "revision = \"B\"")
+            .replace("2026-09-01", "2026-10-01");
         std::fs::write(dir.path().join("b.toml"), b).unwrap();
         let e = SpecSet::load(dir.path()).unwrap_err();
         assert!(e.to_string().contains("does not come after"), "{e}");
@@ -595,12 +628,20 @@ decimals = 0
     fn revision_in_effect_is_chosen_by_date() {
         let dir = tempfile::tempdir().unwrap();
         std::fs::write(dir.path().join("c.toml"), SPEC).unwrap();
-        let b = SPEC.replace("revision = \"C\"", "revision = \"B\"").replace("2026-09-01", "2025-06-01");
+        let b = SPEC
+            .replace("revision = \"C\"", "revision = \"B\"")
+            .replace("2026-09-01", "2025-06-01");
         std::fs::write(dir.path().join("b.toml"), b).unwrap();
         let set = SpecSet::load(dir.path()).unwrap();
         let d = |s| NaiveDate::parse_from_str(s, "%Y-%m-%d").unwrap();
-        assert_eq!(set.for_date("PD-2000", d("2026-08-31")).unwrap().revision, "B");
-        assert_eq!(set.for_date("PD-2000", d("2026-09-01")).unwrap().revision, "C");
+        assert_eq!(
+            set.for_date("PD-2000", d("2026-08-31")).unwrap().revision,
+            "B"
+        );
+        assert_eq!(
+            set.for_date("PD-2000", d("2026-09-01")).unwrap().revision,
+            "C"
+        );
         assert!(set.for_date("PD-2000", d("2025-01-01")).is_err());
         assert!(set.for_date("XX", d("2026-01-01")).is_err());
     }

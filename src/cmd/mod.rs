@@ -1,6 +1,8 @@
 //! One module per subcommand, each with a `run` entry point; `dispatch` picks one.
 
 pub mod endgroup;
+pub mod release;
+pub mod specs;
 
 use crate::cli::{Cli, Command};
 
@@ -27,5 +29,7 @@ impl Outcome {
 pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
     match cli.command {
         Command::Endgroup(args) => endgroup::run(&args),
+        Command::Release(args) => release::run(&args),
+        Command::Specs(args) => specs::run(&args),
     }
 }

@@ -1,0 +1,368 @@
+//! Customer overlays: a customer's names, part numbers, report order, tighter windows and units.
+
+use std::path::{Path, PathBuf};
+
+use indexmap::IndexMap;
+use rust_decimal::Decimal;
+use serde::Deserialize;
+
+use crate::decision::decimal_from_f64;
+use crate::error::{Error, Result};
+use crate::spec::{ProductSpec, SpecSet};
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct CustomerFile {
+    name: String,
+    #[serde(default)]
+    products: IndexMap<String, ProductFile>,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct ProductFile {
+    part_number: Option<String>,
+    report: Option<Vec<String>>,
+    #[serde(default)]
+    statements: Vec<String>,
+    #[serde(default)]
+    limits: IndexMap<String, WindowFile>,
+    #[serde(default)]
+    units: IndexMap<String, String>,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct WindowFile {
+    min: Option<f64>,
+    max: Option<f64>,
+}
+
+/// A customer's window on one property.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Window {
+    /// Lower limit.
+    pub min: Option<Decimal>,
+    /// Upper limit.
+    pub max: Option<Decimal>,
+}
+
+/// A customer's requirements for one product.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CustomerProduct {
+    /// The customer's part number.
+    pub part_number: Option<String>,
+    /// Properties to report, in order (None: all of the spec, in spec order).
+    pub report: Option<Vec<String>>,
+    /// Extra statements printed on the certificate.
+    pub statements: Vec<String>,
+    /// Tighter windows by property key.
+    pub limits: IndexMap<String, Window>,
+    /// Reporting units by property key.
+    pub units: IndexMap<String, String>,
+}
+
+/// A validated customer file.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Customer {
+    /// File stem, the name given to `--customer`.
+    pub id: String,
+    /// The customer's legal name.
+    pub name: String,
+    /// Requirements per product code.
+    pub products: IndexMap<String, CustomerProduct>,
+    /// The file.
+    pub path: PathBuf,
+}
+
+impl Customer {
+    /// Loads `<dir>/<id>.toml` and validates it against the specs.
+    pub fn load(dir: &Path, id: &str, specs: &SpecSet) -> Result<Customer> {
+        if !crate::ids::is_safe_id(id) {
+            return Err(Error::invalid(
+                format!("--customer '{id}'"),
+                "not a usable customer name",
+                "Give the customer file's stem: letters, digits, '-', '_' or '.'.",
+            ));
+        }
+        let path = dir.join(format!("{id}.toml"));
+        if !path.is_file() {
+            let known = list(dir);
+            return Err(Error::invalid(
+                format!("--customer '{id}'"),
+                format!("no file {} exists", path.display()),
+                if known.is_empty() {
+                    "Create the customer file first.".to_string()
+                } else {
+                    format!("Known customers: {}.", known.join(", "))
+                },
+            ));
+        }
+        let raw: CustomerFile = crate::tomlfile::load(&path)?;
+        validate(id, raw, &path, specs)
+    }
+
+    /// The customer's requirements for `product`, or a clear error.
+    pub fn product(&self, product: &str) -> Result<&CustomerProduct> {
+        self.products.get(product).ok_or_else(|| {
+            Error::invalid(
+                self.path.display().to_string(),
+                format!(
+                    "customer '{}' has no entry for product {product}",
+                    self.name
+                ),
+                format!("Add a [products.{product}] table to the customer file."),
+            )
+        })
+    }
+}
+
+/// Customer stems in a folder, sorted.
+pub fn list(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(dir)
+        .into_iter()
+        .flatten()
+        .filter_map(|e| e.ok())
+        .filter_map(|e| {
+            let p = e.path();
+            (p.extension().is_some_and(|x| x == "toml"))
+                .then(|| p.file_stem().map(|s| s.to_string_lossy().to_string()))
+                .flatten()
+        })
+        .collect();
+    v.sort();
+    v
+}
+
+/// Loads and validates every customer file in `dir` (none when the folder is missing).
+pub fn load_all(dir: &Path, specs: &SpecSet) -> Result<Vec<Customer>> {
+    list(dir)
+        .iter()
+        .map(|id| Customer::load(dir, id, specs))
+        .collect()
+}
+
+fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result<Customer> {
+    let file = path.display().to_string();
+    if raw.name.trim().is_empty() || raw.name.chars().any(char::is_control) {
+        return Err(Error::invalid(
+            format!("{file}: name"),
+            "the customer's name is empty or has control characters",
+            "Write the customer's legal name.",
+        ));
+    }
+    let mut products = IndexMap::new();
+    for (code, p) in raw.products {
+        let place = |f: &str| format!("{file}: products.{code}{f}");
+        let spec = specs.latest(&code).ok_or_else(|| {
+            Error::invalid(
+                place(""),
+                format!("no product spec has code {code}"),
+                format!(
+                    "Known products: {}.",
+                    specs
+                        .products
+                        .keys()
+                        .cloned()
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            )
+        })?;
+        let known = |key: &str, f: &str| -> Result<()> {
+            if spec.property(key).is_none() {
+                return Err(Error::invalid(
+                    place(f),
+                    format!("'{key}' is not a property of {code}"),
+                    format!(
+                        "Use one of: {}.",
+                        spec.properties
+                            .iter()
+                            .map(|p| p.key.as_str())
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    ),
+                ));
+            }
+            Ok(())
+        };
+        if let Some(r) = &p.report {
+            for k in r {
+                known(k, ".report")?;
+            }
+        }
+        let mut limits = IndexMap::new();
+        for (k, w) in &p.limits {
+            known(k, &format!(".limits.{k}"))?;
+            let conv = |v: Option<f64>, f: &str| -> Result<Option<Decimal>> {
+                v.map(|x| {
+                    decimal_from_f64(x).ok_or_else(|| {
+                        Error::invalid(
+                            place(&format!(".limits.{k}.{f}")),
+                            "not a finite number",
+                            "Enter a number.",
+                        )
+                    })
+                })
+                .transpose()
+            };
+            let win = Window {
+                min: conv(w.min, "min")?,
+                max: conv(w.max, "max")?,
+            };
+            check_not_looser(spec, k, &win, &place(&format!(".limits.{k}")))?;
+            limits.insert(k.clone(), win);
+        }
+        for (k, unit) in &p.units {
+            known(k, &format!(".units.{k}"))?;
+            let sp = spec.property(k).expect("checked");
+            if crate::evaluate::unit_factor(&sp.unit, unit).is_none() {
+                return Err(Error::invalid(
+                    place(&format!(".units.{k}")),
+                    format!("'{unit}' cannot be converted from the spec's '{}'", sp.unit),
+                    "Known conversions: mPa·s, cP, Pa·s.",
+                ));
+            }
+        }
+        products.insert(
+            code,
+            CustomerProduct {
+                part_number: p.part_number,
+                report: p.report,
+                statements: p.statements,
+                limits,
+                units: p.units,
+            },
+        );
+    }
+    Ok(Customer {
+        id: id.to_string(),
+        name: raw.name.trim().to_string(),
+        products,
+        path: path.to_path_buf(),
+    })
+}
+
+fn check_not_looser(spec: &ProductSpec, key: &str, w: &Window, place: &str) -> Result<()> {
+    let p = spec.property(key).expect("checked by caller");
+    if let (Some(lo), Some(hi)) = (w.min, w.max) {
+        if lo > hi {
+            return Err(Error::invalid(
+                place,
+                format!("min {lo} is above max {hi}"),
+                "Correct the window.",
+            ));
+        }
+    }
+    let looser_min = match (p.min, w.min) {
+        (Some(s), Some(c)) => c < s,
+        (Some(_), None) => false,
+        _ => false,
+    };
+    let looser_max = match (p.max, w.max) {
+        (Some(s), Some(c)) => c > s,
+        _ => false,
+    };
+    if looser_min || looser_max {
+        let fmt = |v: Option<Decimal>| v.map_or("open".to_string(), |d| d.to_string());
+        return Err(Error::invalid(
+            place,
+            format!(
+                "the customer window {}..{} is looser than the {} revision {} window {}..{}",
+                fmt(w.min),
+                fmt(w.max),
+                spec.code,
+                spec.revision,
+                fmt(p.min),
+                fmt(p.max)
+            ),
+            "A customer window may only tighten the product spec; correct the customer file.",
+        ));
+    }
+    Ok(())
+}
+
+/// The tighter of the spec's and the customer's limits.
+pub fn combined(
+    spec_min: Option<Decimal>,
+    spec_max: Option<Decimal>,
+    w: Option<&Window>,
+) -> Window {
+    let tight_min = match (spec_min, w.and_then(|w| w.min)) {
+        (Some(a), Some(b)) => Some(a.max(b)),
+        (a, b) => a.or(b),
+    };
+    let tight_max = match (spec_max, w.and_then(|w| w.max)) {
+        (Some(a), Some(b)) => Some(a.min(b)),
+        (a, b) => a.or(b),
+    };
+    Window {
+        min: tight_min,
+        max: tight_max,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn specs(dir: &Path) -> SpecSet {
+        std::fs::write(
+            dir.join("pd.toml"),
+            "code='PD-2000'\nname='d'\nrevision='C'\neffective=2026-01-01\nfunctionality=2.0\n\
+             decision_rule='simple'\nretest_months=12\n[properties.acid_value]\nlabel='AV'\nunit='mg KOH/g'\nmax=1.0\ndecimals=2\n\
+             [properties.hydroxyl_value]\nlabel='OHV'\nunit='mg KOH/g'\nmin=53\nmax=59\ndecimals=1\n\
+             [properties.viscosity]\nlabel='V'\nunit='mPa·s'\nmax=650\ndecimals=0\n[properties.mn]\nmin=1900\nmax=2100\ndecimals=0\n",
+        )
+        .unwrap();
+        SpecSet::load(dir).unwrap()
+    }
+
+    #[test]
+    fn tighter_window_accepted_looser_refused() {
+        let d = tempfile::tempdir().unwrap();
+        let set = specs(d.path());
+        let c = d.path().join("customers");
+        std::fs::create_dir(&c).unwrap();
+        std::fs::write(
+            c.join("acme.toml"),
+            "name='A & B <Ltd>'\n[products.PD-2000]\npart_number='C-1'\nreport=['mn','acid_value']\n\
+             [products.PD-2000.limits.mn]\nmin=1950\nmax=2050\n[products.PD-2000.units]\nviscosity='Pa·s'\n",
+        )
+        .unwrap();
+        let cu = Customer::load(&c, "acme", &set).unwrap();
+        assert_eq!(
+            cu.product("PD-2000").unwrap().limits["mn"].min,
+            Some(Decimal::from(1950))
+        );
+        std::fs::write(
+            c.join("loose.toml"),
+            "name='L'\n[products.PD-2000.limits.mn]\nmin=1800\n",
+        )
+        .unwrap();
+        let e = Customer::load(&c, "loose", &set).unwrap_err().to_string();
+        assert!(e.contains("looser"), "{e}");
+        assert!(Customer::load(&c, "../x", &set).is_err());
+        assert!(Customer::load(&c, "nobody", &set)
+            .unwrap_err()
+            .to_string()
+            .contains("Known customers"));
+    }
+
+    #[test]
+    fn combined_takes_the_tighter_limits() {
+        let w = Window {
+            min: Some(Decimal::from(1950)),
+            max: None,
+        };
+        let c = combined(
+            Some(Decimal::from(1900)),
+            Some(Decimal::from(2100)),
+            Some(&w),
+        );
+        assert_eq!(
+            (c.min, c.max),
+            (Some(Decimal::from(1950)), Some(Decimal::from(2100)))
+        );
+    }
+}

@@ -1,0 +1,532 @@
+//! The trend file: one append-only CSV per product, hash-chained, locked while appending.
+//!
+//! Layout: `seq,recorded_at,lot,product,manufactured,spec_revision,status,approver,supersedes,
+//! reason,<key>,<key>_verdict,...,mn_uncertainty,notes,chain`. `chain` is the SHA-256 (hex) of
+//! the previous row's chain value (the header's hash for the first row), a line feed, and this
+//! row's text up to the comma before `chain`. Any later edit, deletion or reordering breaks it.
+
+use std::fs::{File, OpenOptions};
+use std::io::{Read, Seek, SeekFrom, Write};
+use std::path::{Path, PathBuf};
+use std::time::{Duration, Instant};
+
+use sha2::{Digest, Sha256};
+
+use crate::error::{Error, Result};
+
+/// Columns before the property columns.
+pub const PREFIX: [&str; 10] = [
+    "seq",
+    "recorded_at",
+    "lot",
+    "product",
+    "manufactured",
+    "spec_revision",
+    "status",
+    "approver",
+    "supersedes",
+    "reason",
+];
+
+/// Columns after the property columns.
+pub const SUFFIX: [&str; 3] = ["mn_uncertainty", "notes", "chain"];
+
+/// The trend file path of a product.
+pub fn path_for(register: &Path, product: &str) -> PathBuf {
+    register.join(format!("{product}.csv"))
+}
+
+/// The header line (without line feed) for a product with these property keys.
+pub fn header_line(keys: &[String]) -> String {
+    let mut cols: Vec<String> = PREFIX.iter().map(|s| s.to_string()).collect();
+    for k in keys {
+        cols.push(k.clone());
+        cols.push(format!("{k}_verdict"));
+    }
+    cols.extend(SUFFIX.iter().map(|s| s.to_string()));
+    cols.join(",")
+}
+
+/// SHA-256 hex of `prev` + "\n" + `body`.
+pub fn chain_hash(prev: &str, body: &str) -> String {
+    let mut h = Sha256::new();
+    h.update(prev.as_bytes());
+    h.update(b"\n");
+    h.update(body.as_bytes());
+    hex(&h.finalize())
+}
+
+/// Lower-case hex of bytes.
+pub fn hex(bytes: &[u8]) -> String {
+    bytes.iter().map(|b| format!("{b:02x}")).collect()
+}
+
+/// The chain seed: SHA-256 hex of the header line.
+pub fn seed(header: &str) -> String {
+    hex(&Sha256::digest(header.as_bytes()))
+}
+
+/// Makes a text cell safe for a CSV opened in a spreadsheet: quotes it when needed and
+/// neutralises formula-like text (leading =, +, -, @) with a leading apostrophe
+/// (OWASP "CSV Injection" guidance). Numbers are written as they are.
+pub fn text_cell(s: &str) -> String {
+    let s = if s.starts_with(['=', '+', '-', '@']) && s.parse::<f64>().is_err() {
+        format!("'{s}")
+    } else {
+        s.to_string()
+    };
+    if s.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s
+    }
+}
+
+/// One parsed row of a trend file.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Row {
+    /// Line number in the file (header is line 1).
+    pub line: usize,
+    /// Cells by column, unquoted.
+    pub cells: Vec<String>,
+}
+
+/// A trend file read into memory.
+#[derive(Debug, Clone)]
+pub struct Trend {
+    /// The file.
+    pub path: PathBuf,
+    /// Column names.
+    pub columns: Vec<String>,
+    /// Rows in file order.
+    pub rows: Vec<Row>,
+    /// Chain value of the last row (or the seed).
+    pub head: String,
+}
+
+impl Trend {
+    /// Index of a column.
+    pub fn col(&self, name: &str) -> Option<usize> {
+        self.columns.iter().position(|c| c == name)
+    }
+
+    /// Property keys (columns between the prefix and the suffix that are not verdicts).
+    pub fn keys(&self) -> Vec<String> {
+        let n = self.columns.len();
+        self.columns[PREFIX.len()..n.saturating_sub(SUFFIX.len())]
+            .iter()
+            .filter(|c| !c.ends_with("_verdict"))
+            .cloned()
+            .collect()
+    }
+
+    /// Cell `name` of `row`, empty when absent.
+    pub fn cell<'a>(&self, row: &'a Row, name: &str) -> &'a str {
+        self.col(name)
+            .and_then(|i| row.cells.get(i))
+            .map_or("", String::as_str)
+    }
+
+    /// The current (latest) row of each lot, in file order of their latest row.
+    pub fn current_rows(&self) -> Vec<&Row> {
+        let lot = self.col("lot").unwrap_or(2);
+        let mut latest: std::collections::HashMap<&str, usize> = std::collections::HashMap::new();
+        for (i, r) in self.rows.iter().enumerate() {
+            latest.insert(r.cells[lot].as_str(), i);
+        }
+        let mut idx: Vec<usize> = latest.into_values().collect();
+        idx.sort_unstable();
+        idx.into_iter().map(|i| &self.rows[i]).collect()
+    }
+
+    /// Every row of one lot, newest first.
+    pub fn lot_rows(&self, lot: &str) -> Vec<&Row> {
+        let c = self.col("lot").unwrap_or(2);
+        let mut v: Vec<&Row> = self.rows.iter().filter(|r| r.cells[c] == lot).collect();
+        v.reverse();
+        v
+    }
+}
+
+/// A problem found when checking a trend file.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Damage {
+    /// Line number (1-based).
+    pub line: usize,
+    /// Byte offset of the line start.
+    pub offset: u64,
+    /// Lot on that line, when readable.
+    pub lot: Option<String>,
+    /// What is wrong.
+    pub problem: String,
+    /// True for a partial last line left by an interrupted write.
+    pub torn_tail: bool,
+}
+
+/// Splits a CSV line into unquoted cells (the writer never puts line breaks inside cells).
+pub fn split_line(line: &str) -> Vec<String> {
+    let mut cells = Vec::new();
+    let mut cur = String::new();
+    let mut quoted = false;
+    let mut chars = line.chars().peekable();
+    while let Some(c) = chars.next() {
+        match (c, quoted) {
+            ('"', true) if chars.peek() == Some(&'"') => {
+                cur.push('"');
+                chars.next();
+            }
+            ('"', true) => quoted = false,
+            ('"', false) if cur.is_empty() => quoted = true,
+            (',', false) => cells.push(std::mem::take(&mut cur)),
+            (c, _) => cur.push(c),
+        }
+    }
+    cells.push(cur);
+    cells
+}
+
+/// Parses trend-file text, checking structure and the hash chain. Returns the trend with the
+/// rows read up to the first damage, and the damage if any.
+pub fn parse(path: &Path, text: &str) -> (Trend, Option<Damage>) {
+    let mut trend = Trend {
+        path: path.to_path_buf(),
+        columns: Vec::new(),
+        rows: Vec::new(),
+        head: String::new(),
+    };
+    let torn = !text.is_empty() && !text.ends_with('\n');
+    let mut offset = 0u64;
+    let mut prev = String::new();
+    for (i, raw) in text.split_inclusive('\n').enumerate() {
+        let line_no = i + 1;
+        let line = raw.strip_suffix('\n').unwrap_or(raw);
+        let here = offset;
+        offset += raw.len() as u64;
+        let is_last_torn = torn && offset == text.len() as u64;
+        let damage = |problem: String, lot: Option<String>| Damage {
+            line: line_no,
+            offset: here,
+            lot,
+            problem,
+            torn_tail: is_last_torn,
+        };
+        if is_last_torn {
+            let cells = split_line(line);
+            let d = damage(
+                format!(
+                    "the last line is incomplete ({} bytes, no line end): an interrupted write",
+                    raw.len()
+                ),
+                cells.get(2).cloned(),
+            );
+            return (trend, Some(d));
+        }
+        if i == 0 {
+            trend.columns = split_line(line);
+            let ok = trend.columns.len() >= PREFIX.len() + SUFFIX.len()
+                && trend.columns[..PREFIX.len()] == PREFIX
+                && trend.columns[trend.columns.len() - SUFFIX.len()..] == SUFFIX;
+            if !ok {
+                let d = damage(
+                    "the header is not a resinlot trend-file header".into(),
+                    None,
+                );
+                return (trend, Some(d));
+            }
+            prev = seed(line);
+            trend.head = prev.clone();
+            continue;
+        }
+        let cells = split_line(line);
+        let lot = cells.get(2).cloned();
+        if cells.len() != trend.columns.len() {
+            let d = damage(
+                format!(
+                    "{} fields where the header has {}",
+                    cells.len(),
+                    trend.columns.len()
+                ),
+                lot,
+            );
+            return (trend, Some(d));
+        }
+        if cells[0] != (trend.rows.len() + 1).to_string() {
+            let d = damage(
+                format!(
+                    "sequence number '{}' where {} was expected (row deleted or moved)",
+                    cells[0],
+                    trend.rows.len() + 1
+                ),
+                lot,
+            );
+            return (trend, Some(d));
+        }
+        let body = &line[..line.rfind(',').unwrap_or(0)];
+        let expect = chain_hash(&prev, body);
+        if cells[cells.len() - 1] != expect {
+            let d = damage(
+                    "the chain value does not match the row's content: the row, or one before it, was changed".into(),
+                    lot,
+                );
+            return (trend, Some(d));
+        }
+        prev = expect;
+        trend.head = prev.clone();
+        trend.rows.push(Row {
+            line: line_no,
+            cells,
+        });
+    }
+    (trend, None)
+}
+
+/// Reads and checks a trend file; damage is an error naming file, line and lot.
+pub fn read(path: &Path) -> Result<Trend> {
+    let text = crate::spec::read_text(path)?;
+    let (trend, damage) = parse(path, &text);
+    match damage {
+        None => Ok(trend),
+        Some(d) => Err(damage_error(path, &d)),
+    }
+}
+
+/// The error for a damaged trend file.
+pub fn damage_error(path: &Path, d: &Damage) -> Error {
+    Error::invalid(
+        format!(
+            "{}:{} (byte {}{})",
+            path.display(),
+            d.line,
+            d.offset,
+            d.lot
+                .as_ref()
+                .map(|l| format!(", lot '{l}'"))
+                .unwrap_or_default()
+        ),
+        d.problem.clone(),
+        if d.torn_tail {
+            "Run `resinlot verify --register DIR --quarantine` to move the fragment aside, then re-release the lot."
+        } else {
+            "The record was altered: restore the file from backup; `resinlot verify` names the first broken row."
+        },
+    )
+}
+
+/// An exclusively locked trend file, open for appending.
+pub struct Locked {
+    file: File,
+    /// The trend as read under the lock.
+    pub trend: Trend,
+    /// True when the file was created by this lock and still lacks its header.
+    fresh: bool,
+    header: String,
+}
+
+/// How long to wait for another process's lock before giving up.
+#[derive(Debug, Clone, Copy)]
+pub struct Wait {
+    /// Give up after this long.
+    pub timeout: Duration,
+}
+
+/// Opens (creating if needed) and exclusively locks a product's trend file, then reads it.
+///
+/// `keys` are the property columns for a new file; an existing file must hold every key in
+/// `needed`. A message goes to stderr when the wait exceeds one second.
+pub fn lock(path: &Path, keys: &[String], needed: &[String], wait: Wait) -> Result<Locked> {
+    if let Some(dir) = path.parent() {
+        std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, "creating folder", e))?;
+    }
+    let mut file = OpenOptions::new()
+        .read(true)
+        .append(true)
+        .create(true)
+        .open(path)
+        .map_err(|e| Error::io(path, "opening", e))?;
+    let start = Instant::now();
+    let mut told = false;
+    loop {
+        match file.try_lock() {
+            Ok(()) => break,
+            Err(std::fs::TryLockError::WouldBlock) => {}
+            Err(std::fs::TryLockError::Error(e)) => return Err(Error::io(path, "locking", e)),
+        }
+        if !told && start.elapsed() > Duration::from_secs(1) {
+            eprintln!(
+                "resinlot: waiting for another release to finish writing {} ...",
+                path.display()
+            );
+            told = true;
+        }
+        if start.elapsed() > wait.timeout {
+            return Err(Error::invalid(
+                path.display().to_string(),
+                format!(
+                    "another process has held the lock for more than {} s",
+                    wait.timeout.as_secs()
+                ),
+                "Wait for the other release to finish, or raise --lock-timeout.",
+            ));
+        }
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    let mut text = String::new();
+    file.seek(SeekFrom::Start(0))
+        .map_err(|e| Error::io(path, "reading", e))?;
+    file.read_to_string(&mut text)
+        .map_err(|e| Error::io(path, "reading", e))?;
+    let header = header_line(keys);
+    let fresh = text.is_empty();
+    let trend = if fresh {
+        Trend {
+            path: path.to_path_buf(),
+            columns: split_line(&header),
+            rows: vec![],
+            head: seed(&header),
+        }
+    } else {
+        let (trend, damage) = parse(path, &text);
+        if let Some(d) = damage {
+            return Err(damage_error(path, &d));
+        }
+        trend
+    };
+    let missing: Vec<&String> = needed.iter().filter(|k| trend.col(k).is_none()).collect();
+    if !missing.is_empty() {
+        return Err(Error::invalid(
+            path.display().to_string(),
+            format!(
+                "the trend file has no column for {}",
+                missing.iter().map(|s| format!("'{s}'")).collect::<Vec<_>>().join(", ")
+            ),
+            "A spec revision added a property after this trend file was started: keep the old file as the record and start a new one (rename it), or remove the property.",
+        ));
+    }
+    Ok(Locked {
+        file,
+        trend,
+        fresh,
+        header: if fresh { header } else { String::new() },
+    })
+}
+
+impl Locked {
+    /// Appends one row (cells by column name, missing ones empty); each row is one write.
+    /// Call [`Locked::sync`] before reporting success.
+    pub fn append(&mut self, cells: &[(&str, String)]) -> Result<usize> {
+        let path = self.trend.path.clone();
+        if self.fresh {
+            let h = format!("{}\n", self.header);
+            self.file
+                .write_all(h.as_bytes())
+                .map_err(|e| Error::io(&path, "writing", e))?;
+            self.fresh = false;
+        }
+        let seq = self.trend.rows.len() + 1;
+        let n = self.trend.columns.len();
+        let mut row = vec![String::new(); n];
+        row[0] = seq.to_string();
+        for (name, value) in cells {
+            if let Some(i) = self.trend.col(name) {
+                row[i] = value.clone();
+            }
+        }
+        let body: Vec<String> = row[..n - 1].iter().map(|c| text_cell(c)).collect();
+        let body = body.join(",");
+        let chain = chain_hash(&self.trend.head, &body);
+        let line = format!("{body},{chain}\n");
+        self.file
+            .write_all(line.as_bytes())
+            .map_err(|e| Error::io(&path, "writing", e))?;
+        row[n - 1] = chain.clone();
+        self.trend.head = chain;
+        // Keep the stored cells as they read back from the file.
+        let cells = split_line(line.trim_end_matches('\n'));
+        self.trend.rows.push(Row {
+            line: seq + 1,
+            cells,
+        });
+        Ok(seq)
+    }
+
+    /// Flushes appended rows to stable storage.
+    pub fn sync(&mut self) -> Result<()> {
+        self.file
+            .sync_all()
+            .map_err(|e| Error::io(&self.trend.path, "syncing", e))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn keys() -> Vec<String> {
+        vec!["acid_value".into(), "mn".into()]
+    }
+
+    fn wait() -> Wait {
+        Wait {
+            timeout: Duration::from_secs(5),
+        }
+    }
+
+    fn write_two(path: &Path) {
+        let mut l = lock(path, &keys(), &keys(), wait()).unwrap();
+        l.append(&[
+            ("lot", "L1".into()),
+            ("acid_value", "0.5".into()),
+            ("approver", "=cmd".into()),
+        ])
+        .unwrap();
+        l.append(&[("lot", "L2".into()), ("acid_value", "0.6".into())])
+            .unwrap();
+        l.sync().unwrap();
+    }
+
+    #[test]
+    fn round_trip_and_chain() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        write_two(&p);
+        let t = read(&p).unwrap();
+        assert_eq!(t.rows.len(), 2);
+        assert_eq!(t.cell(&t.rows[0], "acid_value"), "0.5");
+        // Formula-like text is neutralised (OWASP CSV injection guidance).
+        assert_eq!(t.cell(&t.rows[0], "approver"), "'=cmd");
+        assert_eq!(t.keys(), keys());
+    }
+
+    #[test]
+    fn tampering_is_detected_with_line() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        write_two(&p);
+        let text = std::fs::read_to_string(&p).unwrap();
+        let edited = text.replacen(",0.5,", ",0.4,", 1);
+        let (_, d) = parse(&p, &edited);
+        assert_eq!(d.unwrap().line, 2);
+        let lines: Vec<&str> = text.lines().collect();
+        let swapped = format!("{}\n{}\n{}\n", lines[0], lines[2], lines[1]);
+        assert_eq!(parse(&p, &swapped).1.unwrap().line, 2);
+        let deleted = format!("{}\n{}\n", lines[0], lines[2]);
+        assert!(parse(&p, &deleted).1.unwrap().problem.contains("sequence"));
+    }
+
+    #[test]
+    fn torn_tail_is_reported_and_blocks_append() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        write_two(&p);
+        let mut f = OpenOptions::new().append(true).open(&p).unwrap();
+        f.write_all(b"3,2026-").unwrap();
+        let d = parse(&p, &std::fs::read_to_string(&p).unwrap()).1.unwrap();
+        assert!(d.torn_tail);
+        assert!(lock(&p, &keys(), &keys(), wait()).is_err());
+    }
+
+    #[test]
+    fn split_line_unquotes() {
+        assert_eq!(split_line("a,\"b,c\",\"d\"\"e\""), vec!["a", "b,c", "d\"e"]);
+    }
+}

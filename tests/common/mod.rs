@@ -1,0 +1,98 @@
+//! Shared helpers for the integration tests: a temp workspace with the fixtures and the binary.
+#![allow(dead_code)]
+
+use std::path::{Path, PathBuf};
+
+use assert_cmd::Command;
+
+/// A temporary workspace holding a copy of tests/fixtures.
+pub struct Workspace {
+    pub dir: tempfile::TempDir,
+}
+
+fn copy_dir(from: &Path, to: &Path) {
+    std::fs::create_dir_all(to).unwrap();
+    for e in std::fs::read_dir(from).unwrap() {
+        let e = e.unwrap();
+        let target = to.join(e.file_name());
+        if e.path().is_dir() {
+            copy_dir(&e.path(), &target);
+        } else {
+            std::fs::copy(e.path(), target).unwrap();
+        }
+    }
+}
+
+impl Workspace {
+    pub fn new() -> Workspace {
+        let dir = tempfile::tempdir().unwrap();
+        copy_dir(
+            &Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures"),
+            dir.path(),
+        );
+        Workspace { dir }
+    }
+
+    pub fn path(&self, rel: &str) -> PathBuf {
+        self.dir.path().join(rel)
+    }
+
+    pub fn write(&self, rel: &str, text: &str) -> PathBuf {
+        let p = self.path(rel);
+        std::fs::create_dir_all(p.parent().unwrap()).unwrap();
+        std::fs::write(&p, text).unwrap();
+        p
+    }
+
+    /// The binary, run inside the workspace with a fixed clock.
+    pub fn cmd(&self) -> Command {
+        let mut c = Command::cargo_bin("resinlot").unwrap();
+        c.current_dir(self.dir.path())
+            .env("SOURCE_DATE_EPOCH", "1780000000")
+            .env_remove("RESINLOT_APPROVER");
+        c
+    }
+
+    /// `release FILE --specs specs --register register --approver ...`.
+    pub fn release(&self, file: &str) -> Command {
+        let mut c = self.cmd();
+        c.args([
+            "release",
+            file,
+            "--specs",
+            "specs",
+            "--register",
+            "register",
+        ])
+        .args(["--approver", "QC Laboratory Supervisor"]);
+        c
+    }
+
+    /// Every file under the workspace with its bytes, for "nothing changed" checks.
+    pub fn snapshot(&self) -> Vec<(PathBuf, Vec<u8>)> {
+        fn walk(p: &Path, out: &mut Vec<(PathBuf, Vec<u8>)>) {
+            let mut entries: Vec<_> = std::fs::read_dir(p)
+                .unwrap()
+                .map(|e| e.unwrap().path())
+                .collect();
+            entries.sort();
+            for e in entries {
+                if e.is_dir() {
+                    out.push((e.clone(), vec![]));
+                    walk(&e, out);
+                } else {
+                    out.push((e.clone(), std::fs::read(&e).unwrap()));
+                }
+            }
+        }
+        let mut v = Vec::new();
+        walk(self.dir.path(), &mut v);
+        v
+    }
+}
+
+/// Three released lots of TP-2000 (wide CSV).
+pub const GOOD: &str = "lot,product,manufactured,acid_value,hydroxyl_value,viscosity\n\
+T26-101,TP-2000,2026-05-02,0.52,55.4,540\n\
+T26-102,TP-2000,2026-05-09,0.48,55.9,530\n\
+T26-103,TP-2000,2026-05-16,0.55,55.1,548\n";

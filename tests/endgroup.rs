@@ -1,0 +1,144 @@
+//! Integration tests of `resinlot endgroup` (issue #2).
+
+mod common;
+
+use common::Workspace;
+use predicates::prelude::*;
+
+#[test]
+fn json_keys_with_recipe() {
+    let w = Workspace::new();
+    let out = w
+        .cmd()
+        .args([
+            "endgroup",
+            "--av",
+            "0.6",
+            "--ohv",
+            "55.2",
+            "--raw-ohv",
+            "--av-u",
+            "0.05",
+            "--ohv-u",
+            "0.8",
+        ])
+        .args(["--recipe", "specs/recipes/tp-2000.toml", "--json"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    for key in [
+        "mn",
+        "mn_uncertainty",
+        "hydroxyl_value_corrected",
+        "hydroxyl_equivalent_weight",
+        "initial_acid_value",
+        "initial_hydroxyl_value",
+        "extent_of_reaction",
+        "water_released_kg",
+        "batch_mass_kg",
+        "predicted_hydroxyl_value",
+        "stoichiometric_ratio",
+        "average_functionality",
+        "xn_carothers",
+        "gel_point_carothers",
+        "mn_recipe",
+    ] {
+        assert!(v.get(key).is_some(), "missing key {key}");
+    }
+    // Acidity correction (ISO 4629-2): 55.2 + 0.6.
+    assert!((v["hydroxyl_value_corrected"].as_f64().unwrap() - 55.8).abs() < 1e-12);
+    assert!(
+        v["gel_point_carothers"].is_null(),
+        "linear charge: no gel point"
+    );
+}
+
+#[test]
+fn negative_value_is_refused() {
+    Workspace::new()
+        .cmd()
+        .args(["endgroup", "--av", "-1", "--ohv", "55"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "acid value (--av): -1 is negative",
+        ));
+}
+
+#[test]
+fn non_finite_value_is_refused() {
+    Workspace::new()
+        .cmd()
+        .args(["endgroup", "--av", "0.5", "--ohv", "inf"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("not a finite number"));
+}
+
+#[test]
+fn av_above_initial_is_refused() {
+    Workspace::new()
+        .cmd()
+        .args([
+            "endgroup",
+            "--av",
+            "500",
+            "--ohv",
+            "55",
+            "--recipe",
+            "specs/recipes/tp-2000.toml",
+        ])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "above the recipe's initial acid value",
+        ));
+}
+
+#[test]
+fn recipe_unknown_key_names_line_and_column() {
+    let w = Workspace::new();
+    w.write("r.toml", "name = 'x'\n[[component]]\nname = 'aa'\nmass_kg = 1\nmolar_mass = 146.14\nacid_groups = 2\nfoo = 1\n");
+    w.cmd()
+        .args(["endgroup", "--av", "1", "--ohv", "55", "--recipe", "r.toml"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("r.toml:7:1"))
+        .stderr(predicate::str::contains("foo"));
+}
+
+#[test]
+fn empty_recipe_is_refused() {
+    let w = Workspace::new();
+    w.write("r.toml", "name = 'x'\n");
+    w.cmd()
+        .args(["endgroup", "--av", "1", "--ohv", "55", "--recipe", "r.toml"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("no [[component]] entries"));
+}
+
+#[test]
+fn recipe_without_hydroxyl_is_refused() {
+    let w = Workspace::new();
+    w.write("r.toml", "name = 'x'\n[[component]]\nname = 'aa'\nmass_kg = 1\nmolar_mass = 146.14\nacid_groups = 2\n");
+    w.cmd()
+        .args(["endgroup", "--av", "1", "--ohv", "55", "--recipe", "r.toml"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "no component carries hydroxyl groups",
+        ));
+}
+
+#[test]
+fn help_states_units() {
+    Workspace::new()
+        .cmd()
+        .args(["endgroup", "--help"])
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains("mg KOH/g"))
+        .stdout(predicate::str::contains("Exit status"));
+}
