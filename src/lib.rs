@@ -3,6 +3,7 @@
 //! Domain modules know nothing of the command line; `cli` and `cmd` sit on top of them.
 
 pub mod analysis;
+pub mod certlog;
 pub mod chemistry;
 pub mod cli;
 pub mod clock;
@@ -14,6 +15,7 @@ pub mod evaluate;
 pub mod ids;
 pub mod intake;
 pub mod output;
+pub mod query;
 pub mod recipe;
 pub mod register;
 pub mod spec;

@@ -185,9 +185,27 @@ pub fn split_line(line: &str) -> Vec<String> {
     cells
 }
 
+/// True when `columns` is a trend-file header.
+pub fn is_trend_header(columns: &[String]) -> bool {
+    columns.len() >= PREFIX.len() + SUFFIX.len()
+        && columns[..PREFIX.len()] == PREFIX
+        && columns[columns.len() - SUFFIX.len()..] == SUFFIX
+}
+
 /// Parses trend-file text, checking structure and the hash chain. Returns the trend with the
 /// rows read up to the first damage, and the damage if any.
 pub fn parse(path: &Path, text: &str) -> (Trend, Option<Damage>) {
+    parse_chained(path, text, true, &is_trend_header)
+}
+
+/// Parses any hash-chained resinlot CSV (trend file or certificate log). With `verify` false
+/// the chain is not recomputed (fast read-only queries; `verify` and writers always check it).
+pub fn parse_chained(
+    path: &Path,
+    text: &str,
+    verify: bool,
+    header_ok: &dyn Fn(&[String]) -> bool,
+) -> (Trend, Option<Damage>) {
     let mut trend = Trend {
         path: path.to_path_buf(),
         columns: Vec::new(),
@@ -223,12 +241,9 @@ pub fn parse(path: &Path, text: &str) -> (Trend, Option<Damage>) {
         }
         if i == 0 {
             trend.columns = split_line(line);
-            let ok = trend.columns.len() >= PREFIX.len() + SUFFIX.len()
-                && trend.columns[..PREFIX.len()] == PREFIX
-                && trend.columns[trend.columns.len() - SUFFIX.len()..] == SUFFIX;
-            if !ok {
+            if !header_ok(&trend.columns) {
                 let d = damage(
-                    "the header is not a resinlot trend-file header".into(),
+                    "the header is not the expected resinlot header".into(),
                     None,
                 );
                 return (trend, Some(d));
@@ -261,6 +276,11 @@ pub fn parse(path: &Path, text: &str) -> (Trend, Option<Damage>) {
             );
             return (trend, Some(d));
         }
+        if !verify {
+            trend.head = cells[cells.len() - 1].clone();
+            trend.rows.push(Row { line: line_no, cells });
+            continue;
+        }
         let body = &line[..line.rfind(',').unwrap_or(0)];
         let expect = chain_hash(&prev, body);
         if cells[cells.len() - 1] != expect {
@@ -284,6 +304,17 @@ pub fn parse(path: &Path, text: &str) -> (Trend, Option<Damage>) {
 pub fn read(path: &Path) -> Result<Trend> {
     let text = crate::spec::read_text(path)?;
     let (trend, damage) = parse(path, &text);
+    match damage {
+        None => Ok(trend),
+        Some(d) => Err(damage_error(path, &d)),
+    }
+}
+
+/// Reads a trend file for a query: structure is checked, the chain is not recomputed
+/// (`resinlot verify` does that).
+pub fn read_fast(path: &Path) -> Result<Trend> {
+    let text = crate::spec::read_text(path)?;
+    let (trend, damage) = parse_chained(path, &text, false, &is_trend_header);
     match damage {
         None => Ok(trend),
         Some(d) => Err(damage_error(path, &d)),
@@ -334,6 +365,17 @@ pub struct Wait {
 /// `keys` are the property columns for a new file; an existing file must hold every key in
 /// `needed`. A message goes to stderr when the wait exceeds one second.
 pub fn lock(path: &Path, keys: &[String], needed: &[String], wait: Wait) -> Result<Locked> {
+    lock_with(path, &header_line(keys), needed, wait, &is_trend_header)
+}
+
+/// Locks any hash-chained resinlot CSV, creating it with `header` when missing.
+pub fn lock_with(
+    path: &Path,
+    header: &str,
+    needed: &[String],
+    wait: Wait,
+    header_ok: &dyn Fn(&[String]) -> bool,
+) -> Result<Locked> {
     if let Some(dir) = path.parent() {
         std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, "creating folder", e))?;
     }
@@ -375,7 +417,7 @@ pub fn lock(path: &Path, keys: &[String], needed: &[String], wait: Wait) -> Resu
         .map_err(|e| Error::io(path, "reading", e))?;
     file.read_to_string(&mut text)
         .map_err(|e| Error::io(path, "reading", e))?;
-    let header = header_line(keys);
+    let header = header.to_string();
     let fresh = text.is_empty();
     let trend = if fresh {
         Trend {
@@ -385,7 +427,7 @@ pub fn lock(path: &Path, keys: &[String], needed: &[String], wait: Wait) -> Resu
             head: seed(&header),
         }
     } else {
-        let (trend, damage) = parse(path, &text);
+        let (trend, damage) = parse_chained(path, &text, true, header_ok);
         if let Some(d) = damage {
             return Err(damage_error(path, &d));
         }

@@ -646,3 +646,43 @@ decimals = 0
         assert!(set.for_date("XX", d("2026-01-01")).is_err());
     }
 }
+
+/// Limits as written on certificates and answers: "≤ 1.00", "≥ 53.0", "53.0 – 59.0".
+pub fn limits_text(min: Option<Decimal>, max: Option<Decimal>, decimals: u32) -> String {
+    let f = |d: Decimal| {
+        let mut d = d;
+        d.rescale(decimals);
+        d.to_string()
+    };
+    match (min, max) {
+        (Some(lo), Some(hi)) => format!("{} – {}", f(lo), f(hi)),
+        (None, Some(hi)) => format!("≤ {}", f(hi)),
+        (Some(lo), None) => format!("≥ {}", f(lo)),
+        (None, None) => "report only".to_string(),
+    }
+}
+
+/// Plain words for the end groups assumed in Mn: "two end groups per chain", "2.7 ...".
+pub fn end_groups_words(f: f64) -> String {
+    if (f - 2.0).abs() < 1e-9 {
+        "two end groups per chain".to_string()
+    } else if (f - 3.0).abs() < 1e-9 {
+        "three end groups per molecule".to_string()
+    } else {
+        format!("{f} end groups per molecule on average")
+    }
+}
+
+#[cfg(test)]
+mod text_tests {
+    use super::*;
+
+    #[test]
+    fn limits_are_written_with_reporting_precision() {
+        let d = |s: &str| s.parse::<Decimal>().unwrap();
+        assert_eq!(limits_text(None, Some(d("1")), 2), "≤ 1.00");
+        assert_eq!(limits_text(Some(d("53")), Some(d("59")), 1), "53.0 – 59.0");
+        assert_eq!(limits_text(Some(d("1900")), None, 0), "≥ 1900");
+        assert_eq!(end_groups_words(2.0), "two end groups per chain");
+    }
+}

@@ -1,0 +1,169 @@
+//! The certificate issue log: every certificate issued, hash-chained like the trend files.
+
+use std::path::{Path, PathBuf};
+
+use crate::error::Result;
+use crate::register::{self, Locked, Trend, Wait};
+
+/// Columns of the issue log.
+pub const COLUMNS: [&str; 12] = [
+    "seq",
+    "issued_at",
+    "number",
+    "lot",
+    "product",
+    "customer",
+    "customer_name",
+    "file",
+    "sha256",
+    "supersedes",
+    "reason",
+    "chain",
+];
+
+/// The log's path inside a register folder.
+pub fn path(register: &Path) -> PathBuf {
+    register.join("certificates.csv")
+}
+
+fn header_ok(cols: &[String]) -> bool {
+    cols == COLUMNS
+}
+
+/// One issued certificate.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Entry {
+    /// Certificate number.
+    pub number: String,
+    /// When it was issued (RFC 3339, UTC).
+    pub issued_at: String,
+    /// Lot id.
+    pub lot: String,
+    /// Product code.
+    pub product: String,
+    /// Customer file stem; empty for an internal certificate.
+    pub customer: String,
+    /// Customer's legal name.
+    pub customer_name: String,
+    /// File name of the PDF (in the certificates folder).
+    pub file: String,
+    /// SHA-256 of the PDF bytes.
+    pub sha256: String,
+    /// Number of the certificate this one supersedes.
+    pub supersedes: String,
+    /// Reason for a reissue.
+    pub reason: String,
+}
+
+fn entry(t: &Trend, row: &register::Row) -> Entry {
+    let c = |n: &str| t.cell(row, n).to_string();
+    Entry {
+        number: c("number"),
+        issued_at: c("issued_at"),
+        lot: c("lot"),
+        product: c("product"),
+        customer: c("customer"),
+        customer_name: c("customer_name"),
+        file: c("file"),
+        sha256: c("sha256"),
+        supersedes: c("supersedes"),
+        reason: c("reason"),
+    }
+}
+
+/// Every entry of the log (none when it does not exist yet); the chain is verified.
+pub fn entries(register: &Path) -> Result<Vec<Entry>> {
+    let p = path(register);
+    if !p.exists() {
+        return Ok(vec![]);
+    }
+    let text = crate::spec::read_text(&p)?;
+    let (t, damage) = register::parse_chained(&p, &text, true, &header_ok);
+    if let Some(d) = damage {
+        return Err(register::damage_error(&p, &d));
+    }
+    Ok(t.rows.iter().map(|r| entry(&t, r)).collect())
+}
+
+/// Checks the log's structure and chain; returns the damage if any.
+pub fn check(register: &Path) -> Result<Option<register::Damage>> {
+    let p = path(register);
+    if !p.exists() {
+        return Ok(None);
+    }
+    let text = crate::spec::read_text(&p)?;
+    Ok(register::parse_chained(&p, &text, true, &header_ok).1)
+}
+
+/// The locked log, open for appending.
+pub struct Log {
+    locked: Locked,
+}
+
+impl Log {
+    /// Locks the log (creating it when missing).
+    pub fn lock(register: &Path, wait: Wait) -> Result<Log> {
+        let header = COLUMNS.join(",");
+        Ok(Log {
+            locked: register::lock_with(&path(register), &header, &[], wait, &header_ok)?,
+        })
+    }
+
+    /// Entries as read under the lock.
+    pub fn entries(&self) -> Vec<Entry> {
+        let t = &self.locked.trend;
+        t.rows.iter().map(|r| entry(t, r)).collect()
+    }
+
+    /// The next certificate number: `prefix` followed by the six-digit sequence.
+    pub fn next_number(&self, prefix: &str) -> String {
+        format!("{prefix}{:06}", self.locked.trend.rows.len() + 1)
+    }
+
+    /// Appends an entry and syncs it to disk.
+    pub fn append(&mut self, e: &Entry) -> Result<()> {
+        self.locked.append(&[
+            ("issued_at", e.issued_at.clone()),
+            ("number", e.number.clone()),
+            ("lot", e.lot.clone()),
+            ("product", e.product.clone()),
+            ("customer", e.customer.clone()),
+            ("customer_name", e.customer_name.clone()),
+            ("file", e.file.clone()),
+            ("sha256", e.sha256.clone()),
+            ("supersedes", e.supersedes.clone()),
+            ("reason", e.reason.clone()),
+        ])?;
+        self.locked.sync()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::time::Duration;
+
+    #[test]
+    fn numbers_are_sequential_and_entries_round_trip() {
+        let dir = tempfile::tempdir().unwrap();
+        let wait = Wait { timeout: Duration::from_secs(5) };
+        let mut log = Log::lock(dir.path(), wait).unwrap();
+        assert_eq!(log.next_number("FW-"), "FW-000001");
+        let e = Entry {
+            number: "FW-000001".into(),
+            issued_at: "2026-10-01T10:00:00Z".into(),
+            lot: "L1".into(),
+            product: "P".into(),
+            customer: "acme".into(),
+            customer_name: "A, B & \"C\"".into(),
+            file: "L1_FW-000001.pdf".into(),
+            sha256: "ab".into(),
+            supersedes: String::new(),
+            reason: String::new(),
+        };
+        log.append(&e).unwrap();
+        assert_eq!(log.next_number("FW-"), "FW-000002");
+        drop(log);
+        assert_eq!(entries(dir.path()).unwrap(), vec![e]);
+    }
+}
