@@ -22,7 +22,7 @@ import math
 import random
 import sys
 import tomllib
-from decimal import ROUND_HALF_EVEN, Decimal
+from decimal import ROUND_HALF_EVEN, ROUND_HALF_UP, Decimal
 from pathlib import Path
 
 SEED = 20261201
@@ -72,17 +72,28 @@ def state_at(ch: dict, av: float, f: float) -> dict:
 # Decisions: ASTM E29 rounding on the decimal value as entered, ILAC-G8:09/2019 §4.2 zones.
 
 
-def rnd(value: Decimal, decimals: int) -> Decimal:
-    return value.quantize(Decimal(1).scaleb(-decimals), rounding=ROUND_HALF_EVEN)
+def rnd(value: Decimal, decimals: int, mode: str = "half_even") -> Decimal:
+    how = ROUND_HALF_UP if mode == "half_up" else ROUND_HALF_EVEN
+    return value.quantize(Decimal(1).scaleb(-decimals), rounding=how)
 
 
-def verdict(value: Decimal, prop: dict, guarded: bool, u: float | None) -> str:
-    v = float(rnd(value, prop.get("decimals", 6)))
+EDGES: list[str] = []  # results that sit within half a reporting step of a zone boundary
+
+
+def verdict(value: Decimal, prop: dict, guarded: bool, u: float | None, mode: str = "half_even",
+            where: str = "") -> str:
+    v = float(rnd(value, prop.get("decimals", 6), mode))
     lo, hi = prop.get("min"), prop.get("max")
+    w = (u or 0.0) if guarded else 0.0
+    half = 0.5 * 10.0 ** -prop.get("decimals", 6)
+    for edge in [e for e in (lo, hi) if e is not None] + [e + s * w for e in (lo, hi) if e is not None
+                                                           for s in (-1, 1)]:
+        note = f"{where}: {float(value):.6g} near boundary {edge:.6g}"
+        if abs(float(value) - edge) <= half + 1e-9 and note not in EDGES:
+            EDGES.append(note)
     inside = (lo is None or v >= lo) and (hi is None or v <= hi)
     if not guarded:
         return "pass" if inside else "fail"
-    w = u or 0.0
     if inside:
         safe = (lo is None or v >= lo + w) and (hi is None or v <= hi - w)
         return "pass" if safe else "conditional_pass"
@@ -94,19 +105,22 @@ def decide(spec: dict, entered: dict[str, str]) -> tuple[str, dict[str, tuple[fl
     """Status and per-property (value, verdict) of one lot under one spec revision."""
     props = spec["properties"]
     guarded = spec["decision_rule"] == "guarded"
+    mode = spec.get("rounding", "half_even")
+    where = f"{entered.get('_lot', '?')} {spec['code']} rev {spec['revision']}"
     out: dict[str, tuple[float, str]] = {}
     av = Decimal(entered["acid_value"])
     oh_entry = Decimal(entered["hydroxyl_value"])
     corr = props["hydroxyl_value"].get("acidity_correction", False)
     ohv = oh_entry + av if corr else oh_entry
-    values = {k: Decimal(v) for k, v in entered.items() if v != ""}
+    values = {k: Decimal(v) for k, v in entered.items() if v != "" and not k.startswith("_")}
     values["hydroxyl_value"] = ohv
     for key, prop in props.items():
         if key in ("mn", "xn", "extent_of_reaction", "hydroxyl_equivalent_weight"):
             continue
         if key not in values:
             return "incomplete", out
-        out[key] = (float(values[key]), verdict(values[key], prop, guarded, prop.get("uncertainty")))
+        out[key] = (float(values[key]),
+                    verdict(values[key], prop, guarded, prop.get("uncertainty"), mode, f"{where} {key}"))
     mn = KOH * spec["functionality"] / float(av + ohv)
     ua = props["acid_value"]["uncertainty"]
     uo = props["hydroxyl_value"]["uncertainty"]
@@ -115,7 +129,7 @@ def decide(spec: dict, entered: dict[str, str]) -> tuple[str, dict[str, tuple[fl
     else:
         u_mn = mn * math.hypot(ua, uo) / float(av + oh_entry)
     if "mn" in props:
-        out["mn"] = (mn, verdict(Decimal(repr(mn)), props["mn"], guarded, u_mn))
+        out["mn"] = (mn, verdict(Decimal(repr(mn)), props["mn"], guarded, u_mn, mode, f"{where} mn"))
     verdicts = {vv for _, vv in out.values()}
     # Any fail: rejected; any conditional verdict (ILAC-G8 §4.2.3): on hold for QA.
     if "fail" in verdicts:
@@ -290,7 +304,7 @@ def build() -> tuple[dict[str, list[dict]], list[dict], dict]:
     plan["offline_viscosity"] = replant(pd, 33, eta_factor=1.14, eta_noise=0.0, loss=20.5, av_true=0.50)["lot"]
     plan["held_pb_av"] = replant(pb, 17, av_true=2.43, loss=3.0)["lot"]
     plan["rejected_pb_ohv"] = replant(pb, 41, loss=-40.0, av_true=1.80)["lot"]
-    plan["rejected_spc_av"] = replant(spc, 14, av_true=39.1, loss=8.0, colour=1)["lot"]
+    plan["rejected_spc_av"] = replant(spc, 14, av_true=38.8, loss=8.0, colour=1)["lot"]
     plan["rejected_spc_colour"] = replant(spc, 36, colour=4, loss=8.0, av_true=35.0)["lot"]
     plan["drift_from"] = pd[N_HISTORY - DRIFT_LOTS]["lot"]
 
@@ -407,6 +421,7 @@ def check(history, lims, plan, specs) -> list[str]:
     for lot in [l for lots in history.values() for l in lots] + lims:
         spec = spec_for(specs, lot["product"], lot["manufactured"])
         entered = {c: lot[c] for c in COLUMNS[lot["product"]]}
+        entered["_lot"] = lot["lot"]
         st, props = decide(spec, entered)
         statuses[lot["lot"]] = (st, props, spec)
     not_released = {k: v[0] for k, v in statuses.items() if v[0] != "released"}
@@ -510,7 +525,8 @@ def check(history, lims, plan, specs) -> list[str]:
                 ua = spec["properties"]["acid_value"]["uncertainty"]
                 uo = spec["properties"]["hydroxyl_value"]["uncertainty"]
                 u = value * math.hypot(2 * ua, uo) / (2 * av + raw)
-            verdicts[key] = verdict(Decimal(repr(value)), prop, spec["decision_rule"] == "guarded", u)
+            verdicts[key] = verdict(Decimal(repr(value)), prop, spec["decision_rule"] == "guarded", u,
+                                    spec.get("rounding", "half_even"), f"{lot_id} for {stem} {key}")
         certifies = st == "released" and all(v == "pass" for v in verdicts.values())
         assert certifies == ok, f"{lot_id} -> {stem}: {st} {verdicts}"
         report.append(f"certify {lot_id} for {stem}: {'issued' if ok else 'refused'} {verdicts}")
@@ -556,9 +572,9 @@ def check_files(specs: dict[str, list[dict]]) -> None:
         assert set(c) == {"name", "products"}, path
         for code, p in c["products"].items():
             assert not set(p) - {"part_number", "report", "statements", "limits", "units"}, path
-            current = specs[code][-1]["properties"]
-            for key in p["report"]:
-                assert key in current, f"{path.name}: {code} has no property {key}"
+            for rev in specs[code]:
+                for key in p["report"]:
+                    assert key in rev["properties"], f"{path.name}: {code} rev {rev['revision']} has no {key}"
             for key, lim in p.get("limits", {}).items():
                 assert not set(lim) - {"min", "max"}, path
                 for rev in specs[code]:
@@ -642,6 +658,11 @@ def main() -> None:
         print(line)
     for line in answers(history, lims, specs):
         print(line)
+    at_limit = [e for e in EDGES if " colour: " in e]
+    print(f"{len(at_limit)} colour results sit exactly on a colour limit (integer Gardner scale, inclusive)")
+    for line in EDGES:
+        if line not in at_limit:
+            print(f"EDGE {line}")
     for p in paths:
         print(f"wrote {p.relative_to(HERE.parent)}")
 
