@@ -61,6 +61,9 @@ pub struct PropertyResult {
     /// Exact decimal text of the value for measured properties.
     #[serde(skip)]
     pub exact: Option<String>,
+    /// The value as entered (mean of replicates), before any acidity correction.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub entered: Option<String>,
     /// Value rounded to the spec's decimals (ASTM E29), as text.
     pub reported: Option<String>,
     /// The spec's unit.
@@ -233,7 +236,6 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
         let Some(readings) = lot.readings.get(&p.key) else {
             any_missing = true;
             notes.push(format!("{} was not measured", p.label));
-            results.push(missing(p));
             continue;
         };
         let m = mean_reading(lot, p, readings, &mut notes, file)?;
@@ -253,19 +255,33 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
             }
         }
         means.push((p.key.clone(), m.value));
-        let w = if guarded {
-            p.uncertainty.unwrap_or_default()
-        } else {
-            Decimal::ZERO
+    }
+    let av_mean = means.iter().find(|(k, _)| k == "acid_value").map(|(_, v)| *v);
+    for p in spec.measured() {
+        let Some(entered) = means.iter().find(|(k, _)| *k == p.key).map(|(_, v)| *v) else {
+            results.push(missing(p));
+            continue;
         };
-        results.push(decide(
-            p,
-            m.value,
-            w,
-            spec,
-            Some(m.value.to_string()),
-            p.uncertainty.map(to_f64),
-        ));
+        // ISO 4629-2 acidity correction: the limits apply to the corrected hydroxyl value.
+        let corrected = p.key == "hydroxyl_value" && p.acidity_correction;
+        let (value, u) = if corrected {
+            let Some(av) = av_mean else {
+                results.push(missing(p));
+                continue;
+            };
+            let u_av = spec.property("acid_value").and_then(|a| a.uncertainty);
+            let u = match (p.uncertainty, u_av) {
+                (Some(uo), Some(ua)) => decimal_from_f64((to_f64(uo).powi(2) + to_f64(ua).powi(2)).sqrt()),
+                (uo, _) => uo,
+            };
+            (entered + av, u)
+        } else {
+            (entered, p.uncertainty)
+        };
+        let w = if guarded { u.unwrap_or_default() } else { Decimal::ZERO };
+        let mut r = decide(p, value, w, spec, Some(value.to_string()), u.map(to_f64));
+        r.entered = Some(entered.to_string());
+        results.push(r);
     }
     let mean_of = |k: &str| {
         means
@@ -353,6 +369,7 @@ fn missing(p: &Property) -> PropertyResult {
         property: p.key.clone(),
         value: None,
         exact: None,
+        entered: None,
         reported: None,
         unit: p.unit.clone(),
         verdict: None,
@@ -373,6 +390,7 @@ fn decide(
         property: p.key.clone(),
         value: Some(to_f64(value)),
         exact,
+        entered: None,
         reported: Some(reported.to_string()),
         unit: p.unit.clone(),
         verdict: p.has_limit().then(|| verdict(reported, p.min, p.max, w)),
@@ -527,6 +545,18 @@ decimals = 0
         assert_eq!(d.status, Status::OnHold);
         let d = run("lot,product,manufactured,acid_value,hydroxyl_value,viscosity\nL1,PD-2000,2026-10-01,1.20,55.6,520\n");
         assert_eq!(d.status, Status::Rejected);
+    }
+
+    #[test]
+    fn hydroxyl_limits_apply_to_the_corrected_value() {
+        // ISO 4629-2: OHV = raw acetylation value + AV. Raw 53.5 + AV 0.5 = 54.0 passes the
+        // 53.0 minimum with U = √(0.8² + 0.05²) = 0.8016 (GUM); 53.5 alone would be conditional.
+        let d = run("lot,product,manufactured,acid_value,hydroxyl_value,viscosity\nL1,PD-2000,2026-10-01,0.5,53.5,520\n");
+        let ohv = d.get("hydroxyl_value").unwrap();
+        assert_eq!(ohv.reported.as_deref(), Some("54.0"));
+        assert_eq!(ohv.entered.as_deref(), Some("53.5"));
+        assert_eq!(ohv.verdict, Some(Verdict::Pass));
+        approx::assert_relative_eq!(ohv.uncertainty.unwrap(), 0.801561, epsilon = 1e-6);
     }
 
     #[test]

@@ -1,7 +1,7 @@
 //! The trend file: one append-only CSV per product, hash-chained, locked while appending.
 //!
 //! Layout: `seq,recorded_at,lot,product,manufactured,spec_revision,status,approver,supersedes,
-//! reason,<key>,<key>_verdict,...,mn_uncertainty,notes,chain`. `chain` is the SHA-256 (hex) of
+//! reason,<key>,<key>_verdict,...,hydroxyl_value_entered,mn_uncertainty,notes,chain`. `chain` is the SHA-256 (hex) of
 //! the previous row's chain value (the header's hash for the first row), a line feed, and this
 //! row's text up to the comma before `chain`. Any later edit, deletion or reordering breaks it.
 
@@ -29,7 +29,7 @@ pub const PREFIX: [&str; 10] = [
 ];
 
 /// Columns after the property columns.
-pub const SUFFIX: [&str; 3] = ["mn_uncertainty", "notes", "chain"];
+pub const SUFFIX: [&str; 4] = ["hydroxyl_value_entered", "mn_uncertainty", "notes", "chain"];
 
 /// The trend file path of a product.
 pub fn path_for(register: &Path, product: &str) -> PathBuf {

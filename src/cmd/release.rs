@@ -233,8 +233,14 @@ fn record(
                             .for_date(&d.product, d.manufactured)
                             .ok()
                             .and_then(|s| s.property(&p.property).cloned());
+                        let entered_col = if p.property == "hydroxyl_value" {
+                            "hydroxyl_value_entered"
+                        } else {
+                            p.property.as_str()
+                        };
                         spec_p.is_none_or(|sp| sp.derived)
-                            || t.cell(row, &p.property) == p.exact.as_deref().unwrap_or("")
+                            || t.cell(row, entered_col)
+                                == p.entered.as_deref().unwrap_or("")
                     });
                 if same {
                     out[i] = Recorded::Unchanged(seq);
@@ -287,6 +293,9 @@ fn record(
                     .map(|v| v.as_str().to_string())
                     .unwrap_or_default(),
             ));
+            if p.property == "hydroxyl_value" {
+                cells.push(("hydroxyl_value_entered", p.entered.clone().unwrap_or_default()));
+            }
             if p.property == "mn" {
                 cells.push((
                     "mn_uncertainty",
