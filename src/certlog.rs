@@ -146,7 +146,9 @@ mod tests {
     #[test]
     fn numbers_are_sequential_and_entries_round_trip() {
         let dir = tempfile::tempdir().unwrap();
-        let wait = Wait { timeout: Duration::from_secs(5) };
+        let wait = Wait {
+            timeout: Duration::from_secs(5),
+        };
         let mut log = Log::lock(dir.path(), wait).unwrap();
         assert_eq!(log.next_number("FW-"), "FW-000001");
         let e = Entry {

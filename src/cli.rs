@@ -34,6 +34,14 @@ pub enum Command {
     /// product's trend file.
     #[command(after_help = EXIT_STATUS)]
     Release(cmd::release::Args),
+    /// Answer "what is lot X?": status, every value with unit and verdict, Mn with its
+    /// uncertainty, certificates issued and retest history.
+    #[command(after_help = EXIT_STATUS)]
+    Lookup(cmd::lookup::Args),
+    /// List the lots of a product that fit property windows or a customer's requirements,
+    /// newest first.
+    #[command(after_help = EXIT_STATUS)]
+    Find(cmd::find::Args),
     /// Check product specs, recipes and customer files.
     #[command(after_help = EXIT_STATUS)]
     Specs(cmd::specs::Args),

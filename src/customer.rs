@@ -302,6 +302,30 @@ pub fn combined(
     }
 }
 
+/// Verdict of a recorded value against a customer's window, under the product's decision rule.
+///
+/// The value is rounded as the spec says (ASTM E29) and compared with the tighter of the spec
+/// and customer limits, with guard band w = U under the guarded rule (ILAC-G8:09/2019 §4.2.3).
+pub fn customer_verdict(
+    spec: &ProductSpec,
+    key: &str,
+    value: Decimal,
+    u: Option<Decimal>,
+    window: Option<&Window>,
+) -> Option<crate::decision::Verdict> {
+    let p = spec.property(key)?;
+    let lim = combined(p.min, p.max, window);
+    if lim.min.is_none() && lim.max.is_none() {
+        return None;
+    }
+    let reported = crate::decision::round(value, p.decimals, spec.rounding);
+    let w = match spec.decision_rule {
+        crate::decision::DecisionRule::Guarded => u.unwrap_or_default(),
+        crate::decision::DecisionRule::Simple => Decimal::ZERO,
+    };
+    Some(crate::decision::verdict(reported, lim.min, lim.max, w))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -256,7 +256,10 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
         }
         means.push((p.key.clone(), m.value));
     }
-    let av_mean = means.iter().find(|(k, _)| k == "acid_value").map(|(_, v)| *v);
+    let av_mean = means
+        .iter()
+        .find(|(k, _)| k == "acid_value")
+        .map(|(_, v)| *v);
     for p in spec.measured() {
         let Some(entered) = means.iter().find(|(k, _)| *k == p.key).map(|(_, v)| *v) else {
             results.push(missing(p));
@@ -264,21 +267,21 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
         };
         // ISO 4629-2 acidity correction: the limits apply to the corrected hydroxyl value.
         let corrected = p.key == "hydroxyl_value" && p.acidity_correction;
-        let (value, u) = if corrected {
+        let u = guard_uncertainty(spec, p);
+        let value = if corrected {
             let Some(av) = av_mean else {
                 results.push(missing(p));
                 continue;
             };
-            let u_av = spec.property("acid_value").and_then(|a| a.uncertainty);
-            let u = match (p.uncertainty, u_av) {
-                (Some(uo), Some(ua)) => decimal_from_f64((to_f64(uo).powi(2) + to_f64(ua).powi(2)).sqrt()),
-                (uo, _) => uo,
-            };
-            (entered + av, u)
+            entered + av
         } else {
-            (entered, p.uncertainty)
+            entered
         };
-        let w = if guarded { u.unwrap_or_default() } else { Decimal::ZERO };
+        let w = if guarded {
+            u.unwrap_or_default()
+        } else {
+            Decimal::ZERO
+        };
         let mut r = decide(p, value, w, spec, Some(value.to_string()), u.map(to_f64));
         r.entered = Some(entered.to_string());
         results.push(r);
@@ -362,6 +365,22 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
         properties: results,
         notes,
     })
+}
+
+/// Expanded uncertainty of a measured property's decided value: the spec's U, combined with
+/// U(AV) for an acidity-corrected hydroxyl value (GUM, JCGM 100:2008 §5.1.2, uncorrelated).
+pub fn guard_uncertainty(spec: &ProductSpec, p: &Property) -> Option<Decimal> {
+    if p.key == "hydroxyl_value" && p.acidity_correction {
+        let u_av = spec.property("acid_value").and_then(|a| a.uncertainty);
+        match (p.uncertainty, u_av) {
+            (Some(uo), Some(ua)) => {
+                decimal_from_f64((to_f64(uo).powi(2) + to_f64(ua).powi(2)).sqrt())
+            }
+            (uo, _) => uo,
+        }
+    } else {
+        p.uncertainty
+    }
 }
 
 fn missing(p: &Property) -> PropertyResult {

@@ -46,14 +46,20 @@ pub fn lot_rows_in(path: &Path, lot: &str) -> Result<Option<Trend>> {
         if cells.get(2).map(String::as_str) == Some(lot) && cells.len() == columns.len() {
             let line_no = memchr::memchr_iter(b'\n', &bytes[..start]).count() + 1;
             if rows.last().is_none_or(|r: &Row| r.line != line_no) {
-                rows.push(Row { line: line_no, cells });
+                rows.push(Row {
+                    line: line_no,
+                    cells,
+                });
             }
         }
     }
     if rows.is_empty() {
         return Ok(None);
     }
-    let head = rows.last().map(|r| r.cells[r.cells.len() - 1].clone()).unwrap_or_default();
+    let head = rows
+        .last()
+        .map(|r| r.cells[r.cells.len() - 1].clone())
+        .unwrap_or_default();
     Ok(Some(Trend {
         path: path.to_path_buf(),
         columns,
@@ -89,7 +95,12 @@ pub fn suggestions(register: &Path, lot: &str, n: usize) -> Result<Vec<String>> 
         }
     }
     scored.sort_by(|a, b| b.0.total_cmp(&a.0).then_with(|| a.1.cmp(&b.1)));
-    Ok(scored.into_iter().filter(|(s, _)| *s > 0.7).take(n).map(|(_, id)| id).collect())
+    Ok(scored
+        .into_iter()
+        .filter(|(s, _)| *s > 0.7)
+        .take(n)
+        .map(|(_, id)| id)
+        .collect())
 }
 
 /// A window on one property, either end open.
@@ -119,8 +130,12 @@ pub fn parse_window(text: &str) -> Result<Window> {
             "Write key=lo..hi with either end open, e.g. mn=1900..2100 or acid_value=..0.5.",
         )
     };
-    let (key, range) = text.split_once('=').ok_or_else(|| bad("there is no '='".into()))?;
-    let (lo, hi) = range.split_once("..").ok_or_else(|| bad("there is no '..' in the range".into()))?;
+    let (key, range) = text
+        .split_once('=')
+        .ok_or_else(|| bad("there is no '='".into()))?;
+    let (lo, hi) = range
+        .split_once("..")
+        .ok_or_else(|| bad("there is no '..' in the range".into()))?;
     let num = |s: &str| -> Result<Option<f64>> {
         let s = s.trim();
         if s.is_empty() {
@@ -150,7 +165,11 @@ pub fn parse_window(text: &str) -> Result<Window> {
 /// Parses a YYYY-MM-DD date given to `flag`.
 pub fn parse_date(flag: &str, text: &str) -> Result<NaiveDate> {
     NaiveDate::parse_from_str(text, "%Y-%m-%d").map_err(|_| {
-        Error::invalid(format!("{flag} '{text}'"), "not a date", "Write dates as YYYY-MM-DD.")
+        Error::invalid(
+            format!("{flag} '{text}'"),
+            "not a date",
+            "Write dates as YYYY-MM-DD.",
+        )
     })
 }
 

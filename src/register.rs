@@ -278,7 +278,10 @@ pub fn parse_chained(
         }
         if !verify {
             trend.head = cells[cells.len() - 1].clone();
-            trend.rows.push(Row { line: line_no, cells });
+            trend.rows.push(Row {
+                line: line_no,
+                cells,
+            });
             continue;
         }
         let body = &line[..line.rfind(',').unwrap_or(0)];

@@ -533,6 +533,32 @@ pub fn read_text(path: &Path) -> Result<String> {
     })
 }
 
+/// Limits as written on certificates and answers: "≤ 1.00", "≥ 53.0", "53.0 – 59.0".
+pub fn limits_text(min: Option<Decimal>, max: Option<Decimal>, decimals: u32) -> String {
+    let f = |d: Decimal| {
+        let mut d = d;
+        d.rescale(decimals);
+        d.to_string()
+    };
+    match (min, max) {
+        (Some(lo), Some(hi)) => format!("{} – {}", f(lo), f(hi)),
+        (None, Some(hi)) => format!("≤ {}", f(hi)),
+        (Some(lo), None) => format!("≥ {}", f(lo)),
+        (None, None) => "report only".to_string(),
+    }
+}
+
+/// Plain words for the end groups assumed in Mn: "two end groups per chain", "2.7 ...".
+pub fn end_groups_words(f: f64) -> String {
+    if (f - 2.0).abs() < 1e-9 {
+        "two end groups per chain".to_string()
+    } else if (f - 3.0).abs() < 1e-9 {
+        "three end groups per molecule".to_string()
+    } else {
+        format!("{f} end groups per molecule on average")
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -644,32 +670,6 @@ decimals = 0
         );
         assert!(set.for_date("PD-2000", d("2025-01-01")).is_err());
         assert!(set.for_date("XX", d("2026-01-01")).is_err());
-    }
-}
-
-/// Limits as written on certificates and answers: "≤ 1.00", "≥ 53.0", "53.0 – 59.0".
-pub fn limits_text(min: Option<Decimal>, max: Option<Decimal>, decimals: u32) -> String {
-    let f = |d: Decimal| {
-        let mut d = d;
-        d.rescale(decimals);
-        d.to_string()
-    };
-    match (min, max) {
-        (Some(lo), Some(hi)) => format!("{} – {}", f(lo), f(hi)),
-        (None, Some(hi)) => format!("≤ {}", f(hi)),
-        (Some(lo), None) => format!("≥ {}", f(lo)),
-        (None, None) => "report only".to_string(),
-    }
-}
-
-/// Plain words for the end groups assumed in Mn: "two end groups per chain", "2.7 ...".
-pub fn end_groups_words(f: f64) -> String {
-    if (f - 2.0).abs() < 1e-9 {
-        "two end groups per chain".to_string()
-    } else if (f - 3.0).abs() < 1e-9 {
-        "three end groups per molecule".to_string()
-    } else {
-        format!("{f} end groups per molecule on average")
     }
 }
 

@@ -1,6 +1,8 @@
 //! One module per subcommand, each with a `run` entry point; `dispatch` picks one.
 
 pub mod endgroup;
+pub mod find;
+pub mod lookup;
 pub mod release;
 pub mod specs;
 
@@ -30,6 +32,8 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
     match cli.command {
         Command::Endgroup(args) => endgroup::run(&args),
         Command::Release(args) => release::run(&args),
+        Command::Lookup(args) => lookup::run(&args),
+        Command::Find(args) => find::run(&args),
         Command::Specs(args) => specs::run(&args),
     }
 }

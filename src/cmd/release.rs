@@ -239,8 +239,7 @@ fn record(
                             p.property.as_str()
                         };
                         spec_p.is_none_or(|sp| sp.derived)
-                            || t.cell(row, entered_col)
-                                == p.entered.as_deref().unwrap_or("")
+                            || t.cell(row, entered_col) == p.entered.as_deref().unwrap_or("")
                     });
                 if same {
                     out[i] = Recorded::Unchanged(seq);
@@ -294,7 +293,10 @@ fn record(
                     .unwrap_or_default(),
             ));
             if p.property == "hydroxyl_value" {
-                cells.push(("hydroxyl_value_entered", p.entered.clone().unwrap_or_default()));
+                cells.push((
+                    "hydroxyl_value_entered",
+                    p.entered.clone().unwrap_or_default(),
+                ));
             }
             if p.property == "mn" {
                 cells.push((

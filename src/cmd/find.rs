@@ -1,0 +1,267 @@
+//! `resinlot find`: which lots of a product fit given windows, or a customer's requirements.
+
+use std::path::PathBuf;
+
+use rust_decimal::Decimal;
+use serde_json::{json, Map, Value};
+
+use crate::cmd::Outcome;
+use crate::customer::{customer_verdict, Customer};
+use crate::decision::{decimal_from_f64, Verdict};
+use crate::error::Error;
+use crate::evaluate::{guard_uncertainty, Status};
+use crate::query::{parse_date, parse_window, Window};
+use crate::spec::SpecSet;
+
+/// Arguments of `resinlot find`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// Product code, e.g. PD-2000.
+    #[arg(long, value_name = "CODE")]
+    pub product: String,
+    /// A window a lot must meet, as key=lo..hi with either end open (mn=1900..2100,
+    /// acid_value=..0.5); bounds are inclusive, on the recorded full-precision value. Repeat
+    /// for several properties.
+    #[arg(long = "where", value_name = "KEY=LO..HI")]
+    pub windows: Vec<String>,
+    /// Only lots with this status: released, on_hold, rejected or incomplete. Default: any
+    /// status (released only with --customer).
+    #[arg(long, value_name = "STATUS")]
+    pub status: Option<String>,
+    /// Only lots manufactured on or after this date (YYYY-MM-DD).
+    #[arg(long, value_name = "DATE")]
+    pub from: Option<String>,
+    /// Only lots manufactured on or before this date (YYYY-MM-DD).
+    #[arg(long, value_name = "DATE")]
+    pub to: Option<String>,
+    /// Apply this customer's windows (file stem in SPECS/customers) under the product's
+    /// decision rule, as `certify` would: lists the lots that can be certified for them.
+    #[arg(long, value_name = "NAME")]
+    pub customer: Option<String>,
+    /// Folder holding the trend files. Default: register.
+    #[arg(long, default_value = "register", value_name = "DIR")]
+    pub register: PathBuf,
+    /// Folder holding the product specs and customers/. Default: specs.
+    #[arg(long, default_value = "specs", value_name = "DIR")]
+    pub specs: PathBuf,
+    /// Print JSON instead of the table.
+    #[arg(long, conflicts_with = "csv")]
+    pub json: bool,
+    /// Print CSV (for a spreadsheet) instead of the table.
+    #[arg(long)]
+    pub csv: bool,
+}
+
+/// Runs the command.
+pub fn run(args: &Args) -> anyhow::Result<Outcome> {
+    let windows: Vec<Window> = args
+        .windows
+        .iter()
+        .map(|w| parse_window(w))
+        .collect::<Result<_, _>>()?;
+    let status = match &args.status {
+        Some(s) => Some(Status::parse(s).ok_or_else(|| {
+            Error::invalid(
+                format!("--status '{s}'"),
+                "not a lot status",
+                "Use released, on_hold, rejected or incomplete.",
+            )
+        })?),
+        None => args.customer.as_ref().map(|_| Status::Released),
+    };
+    let from = args
+        .from
+        .as_deref()
+        .map(|d| parse_date("--from", d))
+        .transpose()?;
+    let to = args
+        .to
+        .as_deref()
+        .map(|d| parse_date("--to", d))
+        .transpose()?;
+    let path = crate::register::path_for(&args.register, &args.product);
+    if !path.is_file() {
+        return Err(Error::invalid(
+            format!("--product '{}'", args.product),
+            format!("no trend file {} exists", path.display()),
+            "Check the product code; lots appear once `resinlot release` has recorded them.",
+        )
+        .into());
+    }
+    let trend = crate::register::read_fast(&path)?;
+    let keys = trend.keys();
+    for w in &windows {
+        if !keys.contains(&w.key) {
+            return Err(Error::invalid(
+                format!("--where '{}=...'", w.key),
+                format!("{} has no property '{}'", args.product, w.key),
+                format!("Use one of: {}.", keys.join(", ")),
+            )
+            .into());
+        }
+    }
+    let (specs, customer) = match &args.customer {
+        Some(c) => {
+            let specs = SpecSet::load(&args.specs)?;
+            let cu = Customer::load(&args.specs.join("customers"), c, &specs)?;
+            cu.product(&args.product)?;
+            (Some(specs), Some(cu))
+        }
+        None => (None, None),
+    };
+    let col = |n: &str| trend.col(n).expect("trend header checked");
+    let (c_status, c_made, c_rev) = (col("status"), col("manufactured"), col("spec_revision"));
+    let mut hits = Vec::new();
+    for row in trend.current_rows() {
+        let cells = &row.cells;
+        if status.is_some_and(|s| s.as_str() != cells[c_status]) {
+            continue;
+        }
+        let made = chrono::NaiveDate::parse_from_str(&cells[c_made], "%Y-%m-%d").ok();
+        if from.is_some_and(|f| made.is_none_or(|m| m < f))
+            || to.is_some_and(|t| made.is_none_or(|m| m > t))
+        {
+            continue;
+        }
+        let fits = windows.iter().all(|w| {
+            trend
+                .cell(row, &w.key)
+                .parse::<f64>()
+                .is_ok_and(|v| w.contains(v))
+        });
+        if !fits {
+            continue;
+        }
+        if let (Some(specs), Some(cu)) = (&specs, &customer) {
+            let Some(spec) = specs
+                .products
+                .get(&args.product)
+                .and_then(|r| r.iter().find(|s| s.revision == cells[c_rev]))
+            else {
+                continue;
+            };
+            let cp = cu.product(&args.product)?;
+            let ok = spec.properties.iter().all(|p| {
+                let Some(value) = value_of(trend.cell(row, &p.key)) else {
+                    return !p.has_limit() && !cp.limits.contains_key(&p.key);
+                };
+                let u = if p.key == "mn" {
+                    value_of(trend.cell(row, "mn_uncertainty"))
+                } else if p.derived {
+                    None
+                } else {
+                    guard_uncertainty(spec, p)
+                };
+                customer_verdict(spec, &p.key, value, u, cp.limits.get(&p.key))
+                    .is_none_or(|v| v == Verdict::Pass)
+            });
+            if !ok {
+                continue;
+            }
+        }
+        hits.push(row);
+    }
+    hits.sort_by(|a, b| {
+        b.cells[c_made]
+            .cmp(&a.cells[c_made])
+            .then(b.line.cmp(&a.line))
+    });
+    let text = if args.json {
+        let lots: Vec<Value> = hits
+            .iter()
+            .map(|r| {
+                let mut m = Map::new();
+                m.insert("lot".into(), json!(trend.cell(r, "lot")));
+                m.insert("product".into(), json!(trend.cell(r, "product")));
+                m.insert("manufactured".into(), json!(trend.cell(r, "manufactured")));
+                m.insert("status".into(), json!(trend.cell(r, "status")));
+                for k in &keys {
+                    m.insert(
+                        k.clone(),
+                        trend
+                            .cell(r, k)
+                            .parse::<f64>()
+                            .map_or(Value::Null, |v| json!(v)),
+                    );
+                }
+                Value::Object(m)
+            })
+            .collect();
+        serde_json::to_string_pretty(&json!({ "lots": lots }))? + "\n"
+    } else if args.csv {
+        let mut w = csv::Writer::from_writer(Vec::new());
+        let mut header = vec!["lot", "product", "manufactured", "status"];
+        header.extend(keys.iter().map(String::as_str));
+        w.write_record(&header)?;
+        for r in &hits {
+            let rec: Vec<&str> = header.iter().map(|h| trend.cell(r, h)).collect();
+            w.write_record(&rec)?;
+        }
+        String::from_utf8(w.into_inner()?)?
+    } else if hits.is_empty() {
+        "No lots match.\n".to_string()
+    } else {
+        let mut show: Vec<String> = windows.iter().map(|w| w.key.clone()).collect();
+        for k in ["mn", "acid_value", "hydroxyl_value"] {
+            if keys.iter().any(|x| x == k) && !show.iter().any(|s| s == k) {
+                show.push(k.to_string());
+            }
+        }
+        let mut rows = vec![{
+            let mut h = vec!["lot".to_string(), "manufactured".into(), "status".into()];
+            h.extend(show.iter().cloned());
+            h
+        }];
+        for r in &hits {
+            let mut line = vec![
+                trend.cell(r, "lot").to_string(),
+                trend.cell(r, "manufactured").to_string(),
+                trend.cell(r, "status").to_string(),
+            ];
+            for k in &show {
+                line.push(short_number(trend.cell(r, k)));
+            }
+            rows.push(line);
+        }
+        let mut t = crate::table::render(&rows);
+        t.push_str(&format!(
+            "{} lot{} of {} match{}.\n",
+            hits.len(),
+            if hits.len() == 1 { "" } else { "s" },
+            args.product,
+            customer
+                .as_ref()
+                .map(|c| format!(
+                    " {}'s requirements (tighter windows, product decision rule)",
+                    c.name
+                ))
+                .unwrap_or_default()
+        ));
+        t
+    };
+    crate::output::print(&text)?;
+    Ok(Outcome::AllGood)
+}
+
+fn value_of(cell: &str) -> Option<Decimal> {
+    cell.parse::<Decimal>()
+        .ok()
+        .or_else(|| cell.parse::<f64>().ok().and_then(decimal_from_f64))
+}
+
+/// Shortens a full-precision number for the table (four significant decimals at most).
+fn short_number(cell: &str) -> String {
+    match cell.parse::<f64>() {
+        Ok(v) if cell.len() > 8 => {
+            let digits = if v.abs() >= 100.0 {
+                0
+            } else if v.abs() >= 10.0 {
+                2
+            } else {
+                4
+            };
+            format!("{v:.digits$}")
+        }
+        _ => cell.to_string(),
+    }
+}
