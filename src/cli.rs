@@ -45,6 +45,10 @@ pub enum Command {
     /// Check product specs, recipes and customer files.
     #[command(after_help = EXIT_STATUS)]
     Specs(cmd::specs::Args),
+    /// Check that the record is intact (trend files, hash chains, certificate log and PDFs),
+    /// quarantine a torn last line, or identify certificate PDFs as genuine, altered or unknown.
+    #[command(after_help = EXIT_STATUS)]
+    Verify(cmd::verify::Args),
 }
 
 #[cfg(test)]

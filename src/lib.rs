@@ -14,6 +14,7 @@ pub mod error;
 pub mod evaluate;
 pub mod ids;
 pub mod intake;
+pub mod integrity;
 pub mod output;
 pub mod query;
 pub mod recipe;

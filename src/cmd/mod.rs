@@ -5,6 +5,7 @@ pub mod find;
 pub mod lookup;
 pub mod release;
 pub mod specs;
+pub mod verify;
 
 use crate::cli::{Cli, Command};
 
@@ -35,5 +36,6 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Lookup(args) => lookup::run(&args),
         Command::Find(args) => find::run(&args),
         Command::Specs(args) => specs::run(&args),
+        Command::Verify(args) => verify::run(&args),
     }
 }

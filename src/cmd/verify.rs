@@ -1,0 +1,139 @@
+//! `resinlot verify`: check the record (trend files, certificate log) or identify certificates.
+
+use std::path::PathBuf;
+
+use crate::cmd::Outcome;
+use crate::integrity::{self, CertVerdict};
+
+/// Arguments of `resinlot verify`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// Certificate PDFs to identify against the issue log (genuine, altered or unknown).
+    /// Without any, the whole record is checked instead.
+    pub certificates: Vec<PathBuf>,
+    /// Folder holding the trend files and the certificate log. Default: register.
+    #[arg(long, default_value = "register", value_name = "DIR")]
+    pub register: PathBuf,
+    /// Folder where certificates are issued, to check each logged PDF is present and
+    /// unchanged. Default: certificates.
+    #[arg(
+        long = "certificates-dir",
+        default_value = "certificates",
+        value_name = "DIR"
+    )]
+    pub certificates_dir: PathBuf,
+    /// Move a torn last line (left by an interrupted write) to a side file beside the trend
+    /// file, never deleting it, and log the move in quarantine.log.
+    #[arg(long)]
+    pub quarantine: bool,
+    /// Print JSON instead of text.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Runs the command.
+pub fn run(args: &Args) -> anyhow::Result<Outcome> {
+    if !args.certificates.is_empty() {
+        return certificates(args);
+    }
+    let mut checks = integrity::check_register(&args.register, &args.certificates_dir)?;
+    let mut out = String::new();
+    if args.quarantine {
+        let now = crate::clock::now()?.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
+        for c in checks.iter_mut().filter(|c| c.torn_tail) {
+            let side = integrity::quarantine(&c.path, c.offset.unwrap_or(0), &now)?;
+            out.push_str(&format!(
+                "{}: moved the torn last line to {} (logged in quarantine.log)\n",
+                c.path.display(),
+                side.display()
+            ));
+        }
+        checks = integrity::check_register(&args.register, &args.certificates_dir)?;
+    }
+    let ok = checks.iter().all(integrity::FileCheck::ok);
+    if args.json {
+        out = serde_json::to_string_pretty(&serde_json::json!({ "intact": ok, "files": checks }))?
+            + "\n";
+    } else {
+        for c in &checks {
+            match &c.problem {
+                None => out.push_str(&format!("{}: {} rows, intact\n", c.path.display(), c.rows)),
+                Some(p) => out.push_str(&format!(
+                    "{}:{} (byte {}{}): BROKEN: {p}{}\n",
+                    c.path.display(),
+                    c.line.unwrap_or(0),
+                    c.offset.unwrap_or(0),
+                    c.lot
+                        .as_ref()
+                        .map(|l| format!(", lot '{l}'"))
+                        .unwrap_or_default(),
+                    if c.torn_tail {
+                        " (run with --quarantine to move it aside)"
+                    } else {
+                        ""
+                    }
+                )),
+            }
+        }
+        out.push_str(if ok {
+            "The record is intact.\n"
+        } else {
+            "The record is NOT intact: restore the named file from backup, or quarantine a torn tail.\n"
+        });
+    }
+    crate::output::print(&out)?;
+    Ok(if ok {
+        Outcome::AllGood
+    } else {
+        Outcome::FellShort
+    })
+}
+
+fn certificates(args: &Args) -> anyhow::Result<Outcome> {
+    let mut all_genuine = true;
+    let mut out = String::new();
+    let mut json = Vec::new();
+    for pdf in &args.certificates {
+        let v = integrity::verify_certificate(pdf, &args.register)?;
+        match &v {
+            CertVerdict::Genuine { entry } => out.push_str(&format!(
+                "{}: genuine: certificate {} for lot {}{}, issued {}\n",
+                pdf.display(),
+                entry.number,
+                entry.lot,
+                if entry.customer_name.is_empty() {
+                    String::new()
+                } else {
+                    format!(" to {}", entry.customer_name)
+                },
+                entry.issued_at
+            )),
+            CertVerdict::Altered { entry, .. } => {
+                all_genuine = false;
+                out.push_str(&format!(
+                    "{}: ALTERED: its bytes differ from certificate {} as issued on {}\n",
+                    pdf.display(),
+                    entry.number,
+                    entry.issued_at
+                ));
+            }
+            CertVerdict::Unknown { .. } => {
+                all_genuine = false;
+                out.push_str(&format!(
+                    "{}: UNKNOWN: no certificate with these bytes was issued from this record\n",
+                    pdf.display()
+                ));
+            }
+        }
+        json.push(serde_json::json!({"file": pdf, "result": v}));
+    }
+    if args.json {
+        out = serde_json::to_string_pretty(&json)? + "\n";
+    }
+    crate::output::print(&out)?;
+    Ok(if all_genuine {
+        Outcome::AllGood
+    } else {
+        Outcome::FellShort
+    })
+}
