@@ -444,7 +444,11 @@ mod tests {
             branch_functionality: 3,
             branch_is_hydroxyl: true,
         };
-        assert_relative_eq!(gel_point_statistical(&b).unwrap(), std::f64::consts::FRAC_1_SQRT_2, epsilon = 1e-12);
+        assert_relative_eq!(
+            gel_point_statistical(&b).unwrap(),
+            std::f64::consts::FRAC_1_SQRT_2,
+            epsilon = 1e-12
+        );
         assert_relative_eq!(
             gel_point_carothers(2.0 * 6.0 / 5.0).unwrap(),
             0.83333,

@@ -7,9 +7,12 @@ pub mod chemistry;
 pub mod cli;
 pub mod clock;
 pub mod cmd;
+pub mod correction;
 pub mod error;
+pub mod kinetics;
 pub mod output;
 pub mod recipe;
+pub mod samples;
 pub mod table;
 pub mod tomlfile;
 
