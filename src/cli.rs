@@ -30,6 +30,15 @@ pub enum Command {
     /// points and water loss from one acid value and hydroxyl value.
     #[command(after_help = EXIT_STATUS)]
     Endgroup(cmd::endgroup::Args),
+    /// Fit a cook's in-process acid values to step-growth kinetics (order 2, 2.5 or 3), predict
+    /// when the target is reached with a 95 % prediction interval, and optionally chart it; with
+    /// --arrhenius, fit the activation energy over several cooks.
+    #[command(after_help = EXIT_STATUS)]
+    Cook(cmd::cook::Args),
+    /// Compute the diol or acid addition that brings a batch to a target hydroxyl value, with
+    /// the expected acid value, hydroxyl value and Mn afterwards.
+    #[command(after_help = EXIT_STATUS)]
+    Adjust(cmd::adjust::Args),
 }
 
 #[cfg(test)]

@@ -367,7 +367,7 @@ pub fn select_points(points: &[Point], exclude_below: f64) -> Selection {
             sel.excluded.push(Exclusion {
                 index: i,
                 reason: format!(
-                    "early point: p = {:.4} is below the threshold {exclude_below} (monomers and short chains react faster than the equal-reactivity law)",
+                    "early point: p = {:.4} is below the threshold {exclude_below}",
                     pt.p
                 ),
             });

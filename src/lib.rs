@@ -7,6 +7,7 @@ pub mod chemistry;
 pub mod cli;
 pub mod clock;
 pub mod cmd;
+pub mod cook_chart;
 pub mod correction;
 pub mod error;
 pub mod kinetics;

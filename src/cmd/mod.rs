@@ -1,5 +1,7 @@
 //! One module per subcommand, each with a `run` entry point; `dispatch` picks one.
 
+pub mod adjust;
+pub mod cook;
 pub mod endgroup;
 
 use crate::cli::{Cli, Command};
@@ -27,5 +29,7 @@ impl Outcome {
 pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
     match cli.command {
         Command::Endgroup(args) => endgroup::run(&args),
+        Command::Cook(args) => cook::run(&args),
+        Command::Adjust(args) => adjust::run(&args),
     }
 }
