@@ -71,7 +71,14 @@ pub fn parse(file: &str, text: &str) -> Result<Samples> {
         .iter()
         .map(str::to_string)
         .collect::<Vec<_>>();
-    let header_line = rdr.position().line().max(1);
+    // The header is the first line that is neither blank nor a comment.
+    let header_line = text
+        .lines()
+        .position(|l| {
+            let l = l.trim();
+            !l.is_empty() && !l.starts_with('#')
+        })
+        .map_or(1, |i| i + 1);
     for h in &headers {
         if !REQUIRED.contains(&h.as_str()) && !OPTIONAL.contains(&h.as_str()) {
             return Err(Error::invalid(
@@ -290,8 +297,8 @@ mod tests {
             ),
             ("elapsed_min,acid_value\n0,-1\n", "negative"),
             (
-                "elapsed_min,acid_value,colour\n0,1,red\n",
-                "unknown column 'colour'",
+                "# c\nelapsed_min,acid_value,colour\n0,1,red\n",
+                "c.csv:2: unknown column 'colour'",
             ),
             ("elapsed_min\n0\n", "no 'acid_value' column"),
             ("elapsed_min,acid_value\n", "no samples"),
