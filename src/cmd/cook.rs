@@ -95,6 +95,8 @@ pub struct CookReport {
     pub outliers: Vec<FlaggedSample>,
     /// Acid groups per kg of charge, C0 (mol/kg).
     pub c0_mol_per_kg: f64,
+    /// Stoichiometric ratio r of the charge (minority / majority groups).
+    pub stoichiometric_ratio: f64,
     /// Rate constant k.
     pub rate_constant: f64,
     /// Standard error of k.
@@ -263,14 +265,19 @@ pub fn extents(data: &Samples, ch: &Charge) -> Result<Vec<Progress>> {
     data.samples
         .iter()
         .map(|s| {
-            chemistry::progress_at(ch, s.acid_value).map_err(|e| match e {
-                Error::Invalid { problem, fix, .. } => Error::invalid(
-                    format!("{}:{}, field acid_value", data.file, s.line),
-                    problem,
-                    fix,
-                ),
+            let place = format!("{}:{}, field acid_value", data.file, s.line);
+            let pr = chemistry::progress_at(ch, s.acid_value).map_err(|e| match e {
+                Error::Invalid { problem, fix, .. } => Error::invalid(&place, problem, fix),
                 other => other,
-            })
+            })?;
+            if pr.p_acid >= 1.0 - 1e-12 {
+                return Err(Error::invalid(
+                    place,
+                    "an acid value of zero means every acid group has reacted, which the rate laws cannot use",
+                    "Check the titration; write the measured value, not zero, or remove the line.",
+                ));
+            }
+            Ok(pr)
         })
         .collect()
 }
@@ -419,6 +426,7 @@ pub fn analyse(
         excluded_detail,
         outliers,
         c0_mol_per_kg: c0,
+        stoichiometric_ratio: chemistry::stoichiometric_ratio(&ch),
         rate_constant: fit.rate_constant,
         rate_constant_standard_error: fit.rate_constant_se,
         rate_constant_unit: kinetics::rate_constant_unit(fit.order),
@@ -622,7 +630,16 @@ pub fn render(r: &CookReport) -> String {
         ("R²".into(), format!("{:.5}", r.r_squared)),
         (
             "C0 (acid groups)".into(),
-            format!("{:.4} mol/kg", r.c0_mol_per_kg),
+            format!(
+                "{:.4} mol/kg; r = {:.4}{}",
+                r.c0_mol_per_kg,
+                r.stoichiometric_ratio,
+                if r.stoichiometric_ratio < 0.999 {
+                    " (unequal groups: k is an apparent constant)"
+                } else {
+                    ""
+                }
+            ),
         ),
         (
             "Rate constant k".into(),
@@ -926,6 +943,14 @@ mod tests {
         let data = samples::parse("s.csv", "elapsed_min,acid_value\n0,900\n").unwrap();
         let err = extents(&data, &recipe.charge()).unwrap_err().to_string();
         assert!(err.starts_with("s.csv:2, field acid_value"), "{err}");
+    }
+
+    #[test]
+    fn zero_acid_value_is_refused() {
+        let recipe = Recipe::parse("pd", PD).unwrap();
+        let data = samples::parse("s.csv", "elapsed_min,acid_value\n0,20\n60,0\n").unwrap();
+        let err = extents(&data, &recipe.charge()).unwrap_err().to_string();
+        assert!(err.starts_with("s.csv:3, field acid_value"), "{err}");
     }
 
     #[test]
