@@ -23,11 +23,27 @@ pub const CANDIDATE_ORDERS: [f64; 3] = [2.0, 2.5, 3.0];
 /// region is faster than the equal-reactivity law.
 pub const DEFAULT_EXCLUDE_BELOW: f64 = 0.80;
 
-/// Studentized residual above which a kept point is flagged as an outlier (never dropped).
+/// Externally studentized residual above which a kept point is flagged as an outlier (never
+/// dropped).
 ///
-/// Common practice: |r_i| > 3 for internally studentized residuals (NIST/SEMATECH
-/// e-Handbook of Statistical Methods §4.4.4 uses plots of standardized residuals with ±3 bands).
+/// Common practice: |t_i| > 3 for the studentized deleted residual (D. A. Belsley, E. Kuh and
+/// R. E. Welsch, Regression Diagnostics, Wiley 1980, §2.1). The internally studentized residual
+/// cannot exceed √(n-2), so it could never reach 3 in a cook of ten samples.
 pub const OUTLIER_LIMIT: f64 = 3.0;
+
+/// Externally studentized (deleted) residual from the internally studentized one.
+///
+/// t_i = r_i·√((n-3)/(n-2-r_i²)) for a straight line (two parameters); infinite when the point
+/// alone carries all the residual scatter. Source: Belsley, Kuh and Welsch (1980), eq. 2.26;
+/// Cook and Weisberg, Residuals and Influence in Regression (1982), §2.2.
+pub fn externally_studentized(r_internal: f64, n: usize) -> f64 {
+    let n = n as f64;
+    let d = n - 2.0 - r_internal * r_internal;
+    if d <= 0.0 {
+        return f64::INFINITY.copysign(r_internal);
+    }
+    r_internal * ((n - 3.0) / d).sqrt()
+}
 
 /// The linearised quantity of the order-n rate law: y = (1-p)^(1-n).
 ///
@@ -321,7 +337,8 @@ pub struct Exclusion {
 pub struct Outlier {
     /// Index of the point (0-based, in file order).
     pub index: usize,
-    /// Internally studentized residual r_i = e_i / (s·√(1-h_i)).
+    /// Externally studentized residual t_i (see [`externally_studentized`]) from
+    /// r_i = e_i / (s·√(1-h_i)).
     pub studentized_residual: f64,
 }
 
@@ -418,7 +435,7 @@ pub fn fit_order(points: &[Point], kept: &[usize], order: f64, c0: f64) -> Resul
         signs.push(s);
         let denom = line.residual_sd * (1.0 - line.leverage(x[j])).max(1e-12).sqrt();
         if denom > 0.0 {
-            let r = e / denom;
+            let r = externally_studentized(e / denom, line.n);
             if r.abs() > OUTLIER_LIMIT {
                 outliers.push(Outlier {
                     index: i,
@@ -715,17 +732,28 @@ mod tests {
             seed ^= seed << 17;
             (seed >> 11) as f64 / (1u64 << 53) as f64 - 0.5
         };
-        (0..30)
-            .map(|i| {
-                let t = 20.0 * f64::from(i);
-                let y = 1.0 + slope * t + early * (1.0 - (-t / 30.0).exp());
-                let one_minus_p =
-                    (1.0 - extent_from_linearised(y, order)) * (1.0 + noise * uniform());
-                Point {
-                    elapsed_min: t,
-                    p: 1.0 - one_minus_p,
-                }
+        let first = [0.5, 0.65, 0.75].map(|p| Point {
+            elapsed_min: 0.0,
+            p,
+        });
+        let late = (1..30).map(|i| {
+            let t = 20.0 * f64::from(i);
+            let y = 1.0 + slope * t + early * (1.0 - (-t / 30.0).exp());
+            let one_minus_p = (1.0 - extent_from_linearised(y, order)) * (1.0 + noise * uniform());
+            Point {
+                elapsed_min: t,
+                p: 1.0 - one_minus_p,
+            }
+        });
+        // Early points at 0, 5 and 10 min, above the backward extrapolation of the line.
+        first
+            .into_iter()
+            .enumerate()
+            .map(|(i, pt)| Point {
+                elapsed_min: 5.0 * i as f64,
+                ..pt
             })
+            .chain(late)
             .collect()
     }
 
@@ -737,7 +765,7 @@ mod tests {
         for (order, slope) in [(2.0, 0.15), (2.5, 0.9), (3.0, 12.0)] {
             let pts = synthetic(order, slope, 3.0, 0.004);
             let sel = select_points(&pts, DEFAULT_EXCLUDE_BELOW);
-            assert!(!sel.excluded.is_empty(), "order {order}: no early points");
+            assert_eq!(sel.excluded.len(), 3, "order {order}: {:?}", sel.excluded);
             let (fits, best) = choose_model(&pts, &sel.kept, &CANDIDATE_ORDERS, c0).unwrap();
             let fit = &fits[best];
             assert_eq!(fit.order, order, "candidates {fits:?}");
@@ -751,6 +779,22 @@ mod tests {
             let k = rate_constant(slope, order, c0);
             assert_relative_eq!(fit.rate_constant, k, max_relative = 0.02);
         }
+    }
+
+    #[test]
+    fn deleted_residual_matches_its_definition() {
+        // Brute force (definition, Belsley, Kuh and Welsch 1980 §2.1): refit without point j and
+        // divide its prediction error by its standard error; compare with the closed form.
+        let x = [1.0, 2.0, 3.0, 4.0, 5.0, 6.0];
+        let y = [2.0, 4.1, 5.9, 8.2, 13.0, 12.1];
+        let fit = fit_line(&x, &y).unwrap();
+        let j = 4;
+        let r = (y[j] - fit.at(x[j])) / (fit.residual_sd * (1.0 - fit.leverage(x[j])).sqrt());
+        let xs: Vec<f64> = (0..6).filter(|&i| i != j).map(|i| x[i]).collect();
+        let ys: Vec<f64> = (0..6).filter(|&i| i != j).map(|i| y[i]).collect();
+        let f = fit_line(&xs, &ys).unwrap();
+        let brute = (y[j] - f.at(x[j])) / (f.residual_sd * (1.0 + f.leverage(x[j])).sqrt());
+        assert_relative_eq!(externally_studentized(r, 6), brute, max_relative = 1e-9);
     }
 
     #[test]

@@ -61,7 +61,8 @@ pub struct Args {
     /// exists). Default: no chart.
     #[arg(long, value_name = "FILE")]
     pub chart: Option<PathBuf>,
-    /// Print one JSON object instead of the text report.
+    /// Print one JSON object instead of the text report. "excluded" lists the left-out samples
+    /// as 0-based indices in file order; "excluded_detail" adds their file lines and reasons.
     #[arg(long)]
     pub json: bool,
 }
