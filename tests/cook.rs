@@ -536,3 +536,36 @@ fn adjust_unreachable_target_is_refused() {
             "not below the hydroxyl value of pure",
         ));
 }
+
+#[test]
+fn late_outlier_is_flagged_and_kept() {
+    // A synthetic third-order cook (test fixture) with one late titration 25 % off in (1-p).
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("elapsed_min,acid_value\n");
+    for i in 0..14 {
+        let t = 60.0 + 40.0 * f64::from(i);
+        let mut one_minus_p = (100.0 + 300.0 * t).powf(-0.5) * (1.0 + 0.002 * f64::from(i % 3));
+        if i == 10 {
+            one_minus_p *= 1.25;
+        }
+        text.push_str(&format!("{t},{:.6}\n", pd_av(1.0 - one_minus_p)));
+    }
+    let path = dir.path().join("o.csv");
+    std::fs::write(&path, text).unwrap();
+    let out = bin()
+        .arg("cook")
+        .arg(&path)
+        .arg("--recipe")
+        .arg(recipe())
+        .args(["--target-av", "1.0", "--order", "3", "--json"])
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let v = json(&out);
+    assert_eq!(v["outliers"][0]["index"], 10, "{v}");
+    assert_eq!(v["outliers"][0]["line"], 12);
+    assert_eq!(v["excluded"], serde_json::json!([]));
+    assert!(v["samples"][10]["kept"].as_bool().unwrap());
+}
