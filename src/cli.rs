@@ -35,8 +35,9 @@ pub enum Command {
     /// --arrhenius, fit the activation energy over several cooks.
     ///
     /// Each acid value becomes an extent of reaction p through the recipe's condensation-water
-    /// balance. For order n the quantity (1-p)^(1-n) is fitted against elapsed minutes by least
-    /// squares (n = 2: 1/(1-p), external acid catalysis; n = 3: 1/(1-p)², self-catalysis), and
+    /// balance. For order n the quantity y = (1-p)^(1-n) is fitted against elapsed minutes by
+    /// least squares weighted by 1/y², as suits a constant relative titration error (n = 2:
+    /// 1/(1-p), external acid catalysis; n = 3: 1/(1-p)², self-catalysis), and
     /// the rate constant k = slope / ((n-1)·C0^(n-1)) is given in (kg/mol)^(n-1) per minute with
     /// C0 the acid groups in mol per kg of charge. The laws assume equal reactivity of all chain
     /// lengths and equal acid and hydroxyl concentrations; with a hydroxyl excess k is an

@@ -79,7 +79,7 @@ pub fn rate_constant_unit(order: f64) -> String {
     }
 }
 
-/// Ordinary least-squares straight line y = intercept + slope·x.
+/// Least-squares straight line y = intercept + slope·x (ordinary or weighted).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct LineFit {
     /// Slope.
@@ -90,34 +90,50 @@ pub struct LineFit {
     pub slope_se: f64,
     /// Standard error of the intercept.
     pub intercept_se: f64,
-    /// Coefficient of determination.
+    /// Coefficient of determination (weighted when the fit is weighted).
     pub r_squared: f64,
-    /// Residual standard deviation s = sqrt(SSE/(n-2)).
+    /// Residual standard deviation of unit weight, s = sqrt(Σw·e²/(n-2)).
     pub residual_sd: f64,
     /// Number of points.
     pub n: usize,
-    /// Mean of x.
+    /// Sum of the weights, W (= n for an ordinary fit).
+    pub weight_sum: f64,
+    /// Weighted mean of x.
     pub x_mean: f64,
-    /// Sum of squared deviations of x, Sxx.
+    /// Weighted sum of squared deviations of x, Sxx = Σw(x - x̄)².
     pub sxx: f64,
 }
 
-/// Fits y = a + b·x by least squares; needs at least three points with distinct x.
+/// Fits y = a + b·x by ordinary least squares; needs at least three points with distinct x.
 ///
 /// b = Sxy/Sxx, a = ȳ - b·x̄, s² = SSE/(n-2), SE(b) = s/√Sxx, SE(a) = s·√(1/n + x̄²/Sxx),
 /// R² = 1 - SSE/Syy. Source: NIST/SEMATECH e-Handbook §4.1.4.1 and §4.4.
 pub fn fit_line(x: &[f64], y: &[f64]) -> Option<LineFit> {
+    fit_weighted(x, y, &vec![1.0; x.len()])
+}
+
+/// Weighted least squares: as [`fit_line`] with every sum weighted by w_i (x̄ = Σwx/W,
+/// Sxx = Σw(x-x̄)², s² = Σw·e²/(n-2), SE(a) = s·√(1/W + x̄²/Sxx)); w_i = 1 gives the ordinary fit.
+/// Source: N. R. Draper and H. Smith, Applied Regression Analysis, 3rd ed., §9.2; NIST/SEMATECH
+/// e-Handbook §4.4.5.2 (weighted least squares).
+pub fn fit_weighted(x: &[f64], y: &[f64], w: &[f64]) -> Option<LineFit> {
     let n = x.len();
-    if n < 3 || y.len() != n {
+    if n < 3 || y.len() != n || w.len() != n || w.iter().any(|v| !v.is_finite() || *v <= 0.0) {
         return None;
     }
     let nf = n as f64;
-    let xm = x.iter().sum::<f64>() / nf;
-    let ym = y.iter().sum::<f64>() / nf;
-    let sxx: f64 = x.iter().map(|v| (v - xm).powi(2)).sum();
-    let syy: f64 = y.iter().map(|v| (v - ym).powi(2)).sum();
-    let sxy: f64 = x.iter().zip(y).map(|(a, b)| (a - xm) * (b - ym)).sum();
-    if sxx <= 0.0 {
+    let ws: f64 = w.iter().sum();
+    let xm = x.iter().zip(w).map(|(a, c)| a * c).sum::<f64>() / ws;
+    let ym = y.iter().zip(w).map(|(a, c)| a * c).sum::<f64>() / ws;
+    let mut sxx = 0.0;
+    let mut syy = 0.0;
+    let mut sxy = 0.0;
+    for ((a, b), c) in x.iter().zip(y).zip(w) {
+        sxx += c * (a - xm).powi(2);
+        syy += c * (b - ym).powi(2);
+        sxy += c * (a - xm) * (b - ym);
+    }
+    if sxx <= 0.0 || !sxx.is_finite() {
         return None;
     }
     let slope = sxy / sxx;
@@ -125,18 +141,19 @@ pub fn fit_line(x: &[f64], y: &[f64]) -> Option<LineFit> {
     let sse: f64 = x
         .iter()
         .zip(y)
-        .map(|(a, b)| (b - intercept - slope * a).powi(2))
+        .zip(w)
+        .map(|((a, b), c)| c * (b - intercept - slope * a).powi(2))
         .sum();
-    let s2 = sse / (nf - 2.0);
-    let s = s2.sqrt();
+    let s = (sse / (nf - 2.0)).sqrt();
     Some(LineFit {
         slope,
         intercept,
         slope_se: s / sxx.sqrt(),
-        intercept_se: s * (1.0 / nf + xm * xm / sxx).sqrt(),
+        intercept_se: s * (1.0 / ws + xm * xm / sxx).sqrt(),
         r_squared: if syy > 0.0 { 1.0 - sse / syy } else { 1.0 },
         residual_sd: s,
         n,
+        weight_sum: ws,
         x_mean: xm,
         sxx,
     })
@@ -148,21 +165,22 @@ impl LineFit {
         self.intercept + self.slope * x
     }
 
-    /// Leverage h = 1/n + (x - x̄)²/Sxx of a point at x.
+    /// Leverage per unit weight, 1/W + (x - x̄)²/Sxx, at x (the leverage of a point of
+    /// weight w is w times this; for an ordinary fit it is 1/n + (x - x̄)²/Sxx).
     pub fn leverage(&self, x: f64) -> f64 {
-        1.0 / self.n as f64 + (x - self.x_mean).powi(2) / self.sxx
+        1.0 / self.weight_sum + (x - self.x_mean).powi(2) / self.sxx
     }
 
-    /// Inverse prediction: the x at which a new observation is expected to equal `y0`, with
-    /// its two-sided prediction interval at the given level (e.g. 0.95).
+    /// Inverse prediction: the x at which a new observation of weight `w0` (1 for an ordinary
+    /// fit) is expected to equal `y0`, with its two-sided prediction interval at `level`.
     ///
-    /// The limits are the x where the prediction band ŷ(x) ± t·s·√(1 + 1/n + (x-x̄)²/Sxx) meets
-    /// y0 (Fieller's construction). With u = x - x̄, d = y0 - ȳ, q = t²s²:
-    /// (b² - q/Sxx)·u² - 2bd·u + d² - q(1+1/n) = 0.
+    /// The limits are the x where the prediction band ŷ(x) ± t·s·√(1/w0 + 1/W + (x-x̄)²/Sxx)
+    /// meets y0 (Fieller's construction). With u = x - x̄, d = y0 - ȳ, q = t²s²:
+    /// (b² - q/Sxx)·u² - 2bd·u + d² - q(1/w0 + 1/W) = 0.
     /// Returns None for the interval when the slope is not significant at that level (the band
     /// never closes). Source: N. R. Draper and H. Smith, Applied Regression Analysis, 3rd ed.,
     /// §3.2 (inverse regression); E. C. Fieller, J. R. Stat. Soc. Suppl. 7, 1 (1940).
-    pub fn inverse_predict(&self, y0: f64, level: f64) -> (f64, Option<(f64, f64)>) {
+    pub fn inverse_predict(&self, y0: f64, w0: f64, level: f64) -> (f64, Option<(f64, f64)>) {
         let x0 = (y0 - self.intercept) / self.slope;
         let dof = self.n as f64 - 2.0;
         let t = student_t_quantile(0.5 + level / 2.0, dof);
@@ -173,7 +191,7 @@ impl LineFit {
         if a2 <= 0.0 {
             return (x0, None);
         }
-        let c = d * d - q * (1.0 + 1.0 / self.n as f64);
+        let c = d * d - q * (1.0 / w0 + 1.0 / self.weight_sum);
         let disc = b * b * d * d - a2 * c;
         if disc < 0.0 {
             return (x0, None);
@@ -395,7 +413,18 @@ pub fn select_points(points: &[Point], exclude_below: f64) -> Selection {
     sel
 }
 
-/// Fits one order to the kept points.
+/// Weight of a linearised value y in the cook fits: w = 1/y².
+///
+/// A titration with a constant relative error σ_AV/AV gives, since y = (1-p)^(1-n) and 1-p is
+/// nearly proportional to AV late in the cook, σ_y/y ≈ (n-1)·σ_AV/AV: the scatter of y grows in
+/// proportion to y, so each point is weighted by 1/y² (propagation of uncertainty, GUM,
+/// JCGM 100:2008 §5.1.2; weights 1/σ², Draper and Smith §9.2). Without weights the last
+/// samples would dominate the fit and be flagged as outliers by their size alone.
+pub fn cook_weight(y: f64) -> f64 {
+    1.0 / (y * y)
+}
+
+/// Fits one order to the kept points by weighted least squares (weights [`cook_weight`]).
 ///
 /// Errors when fewer than three points are kept or their times do not differ.
 pub fn fit_order(points: &[Point], kept: &[usize], order: f64, c0: f64) -> Result<ModelFit> {
@@ -414,7 +443,8 @@ pub fn fit_order(points: &[Point], kept: &[usize], order: f64, c0: f64) -> Resul
         .iter()
         .map(|&i| linearised(points[i].p, order))
         .collect();
-    let line = fit_line(&x, &y).ok_or_else(|| {
+    let w: Vec<f64> = y.iter().map(|&v| cook_weight(v)).collect();
+    let line = fit_weighted(&x, &y, &w).ok_or_else(|| {
         Error::invalid(
             "samples",
             "the kept points all have the same elapsed time",
@@ -433,9 +463,10 @@ pub fn fit_order(points: &[Point], kept: &[usize], order: f64, c0: f64) -> Resul
             last = s;
         }
         signs.push(s);
-        let denom = line.residual_sd * (1.0 - line.leverage(x[j])).max(1e-12).sqrt();
+        // Internally studentized weighted residual r = e·√w / (s·√(1 - w·h)).
+        let denom = line.residual_sd * (1.0 - w[j] * line.leverage(x[j])).max(1e-12).sqrt();
         if denom > 0.0 {
-            let r = externally_studentized(e / denom, line.n);
+            let r = externally_studentized(e * w[j].sqrt() / denom, line.n);
             if r.abs() > OUTLIER_LIMIT {
                 outliers.push(Outlier {
                     index: i,
@@ -486,10 +517,11 @@ pub struct EndPoint {
 
 /// Predicts when the extent of reaction reaches `p_target` under the fitted model.
 ///
-/// t* = ((1-p*)^(1-n) - a)/b with the inverse-prediction interval of [`LineFit::inverse_predict`].
+/// t* = ((1-p*)^(1-n) - a)/b with the inverse-prediction interval of [`LineFit::inverse_predict`]
+/// for a new titration of weight [`cook_weight`] at the target.
 pub fn predict_end_point(fit: &ModelFit, p_target: f64) -> EndPoint {
     let y0 = linearised(p_target, fit.order);
-    let (t, pi) = fit.line.inverse_predict(y0, 0.95);
+    let (t, pi) = fit.line.inverse_predict(y0, cook_weight(y0), 0.95);
     EndPoint {
         elapsed_min: t,
         pi95: pi,
@@ -703,26 +735,54 @@ mod tests {
     }
 
     #[test]
+    fn integer_weights_equal_repeated_points() {
+        // First principles: a point of weight 2 is the same, for the estimates, as the point
+        // entered twice (the weighted normal equations are the same sums).
+        let x = [1.0, 2.0, 3.0, 4.0, 5.0];
+        let y = [2.1, 3.9, 6.2, 7.8, 10.1];
+        let w = fit_weighted(&x, &y, &[1.0, 2.0, 1.0, 1.0, 3.0]).unwrap();
+        let xr = [1.0, 2.0, 2.0, 3.0, 4.0, 5.0, 5.0, 5.0];
+        let yr = [2.1, 3.9, 3.9, 6.2, 7.8, 10.1, 10.1, 10.1];
+        let r = fit_line(&xr, &yr).unwrap();
+        assert_relative_eq!(w.slope, r.slope, max_relative = 1e-12);
+        assert_relative_eq!(w.intercept, r.intercept, max_relative = 1e-12);
+        assert_relative_eq!(w.r_squared, r.r_squared, max_relative = 1e-12);
+        assert_relative_eq!(w.sxx, r.sxx, max_relative = 1e-12);
+        // Equal weights give the ordinary fit whatever their size.
+        let e = fit_weighted(&x, &y, &[4.0; 5]).unwrap();
+        let o = fit_line(&x, &y).unwrap();
+        assert_relative_eq!(e.slope_se, o.slope_se, max_relative = 1e-12);
+        assert_relative_eq!(e.slope, o.slope, max_relative = 1e-12);
+        assert!(fit_weighted(&x, &y, &[1.0, 0.0, 1.0, 1.0, 1.0]).is_none());
+    }
+
+    #[test]
     fn prediction_interval_brackets_the_point_estimate() {
-        let fit = fit_line(&[1.0, 2.0, 3.0, 4.0, 5.0], &[2.1, 3.9, 6.2, 7.8, 10.1]).unwrap();
-        let (x0, pi) = fit.inverse_predict(12.0, 0.95);
-        let (lo, hi) = pi.unwrap();
-        assert!(lo < x0 && x0 < hi);
-        // At the limits the prediction band equals the target (definition of the interval).
-        let t = student_t_quantile(0.975, 3.0);
-        for x in [lo, hi] {
-            let half = t * fit.residual_sd * (1.0 + fit.leverage(x)).sqrt();
-            let edge = if x < x0 {
-                fit.at(x) + half
-            } else {
-                fit.at(x) - half
-            };
-            assert_relative_eq!(edge, 12.0, max_relative = 1e-9);
+        // Definition of the inverse-prediction limits (Draper and Smith §3.2): at each limit the
+        // prediction band for a new observation of weight w0 passes through the target.
+        let x = [1.0, 2.0, 3.0, 4.0, 5.0];
+        let y = [2.1, 3.9, 6.2, 7.8, 10.1];
+        for (w, w0) in [([1.0; 5], 1.0), ([2.0, 1.5, 1.0, 0.7, 0.4], 0.25)] {
+            let fit = fit_weighted(&x, &y, &w).unwrap();
+            let (x0, pi) = fit.inverse_predict(12.0, w0, 0.95);
+            let (lo, hi) = pi.unwrap();
+            assert!(lo < x0 && x0 < hi);
+            let t = student_t_quantile(0.975, 3.0);
+            for xl in [lo, hi] {
+                let half = t * fit.residual_sd * (1.0 / w0 + fit.leverage(xl)).sqrt();
+                let edge = if xl < x0 {
+                    fit.at(xl) + half
+                } else {
+                    fit.at(xl) - half
+                };
+                assert_relative_eq!(edge, 12.0, max_relative = 1e-9);
+            }
         }
     }
 
-    /// Synthetic cook: y = 1 + b·t for the law of `order`, plus a faster early region that
-    /// decays (extra E·(1 - e^(-t/τ))), plus small multiplicative noise on (1-p).
+    /// Synthetic cook: y = 1 + b·t for the law of `order`, plus a faster early region (three
+    /// points at p = 0.5 to 0.75 in the first 10 min and an extra E·(1 - e^(-t/τ)), τ = 8 min,
+    /// that has died out by the later samples), plus small multiplicative noise on (1-p).
     /// Invented numbers, a test fixture.
     fn synthetic(order: f64, slope: f64, early: f64, noise: f64) -> Vec<Point> {
         let mut seed: u64 = 0x2545_f491_4f6c_dd1d;
@@ -738,7 +798,7 @@ mod tests {
         });
         let late = (1..30).map(|i| {
             let t = 20.0 * f64::from(i);
-            let y = 1.0 + slope * t + early * (1.0 - (-t / 30.0).exp());
+            let y = 1.0 + slope * t + early * (1.0 - (-t / 8.0).exp());
             let one_minus_p = (1.0 - extent_from_linearised(y, order)) * (1.0 + noise * uniform());
             Point {
                 elapsed_min: t,
