@@ -14,7 +14,8 @@ pub const SAFETY_CAUTION: &str = "\
 CAUTION: these figures advise work at a hot reactor. Any addition to a hot batch follows the
 site's operating procedure: temperature limits, inerting, rate of addition, and the flash point
 of the additive. The numbers are estimates from a model; the lab's next titration decides.
-Local codes and the site's process-safety rules take precedence over this tool.";
+Local codes, licensed engineering practice and the site's process-safety rules take precedence
+over this tool.";
 
 /// Which way the correction goes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]

@@ -17,7 +17,10 @@ use crate::samples::{self, Samples, Warning};
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// In-process samples (CSV with elapsed_min,acid_value and optionally temperature_c,
-    /// viscosity, hydroxyl_value, sampled_at). Exactly one file, or several with --arrhenius.
+    /// viscosity, hydroxyl_value, sampled_at; lines starting with # are comments). Exactly one
+    /// file, or several with --arrhenius. Viscosities (any one unit) are fitted against Mn: the
+    /// end-group Mn where the sample has a hydroxyl value (corrected for acidity), otherwise the
+    /// recipe Mn.
     #[arg(value_name = "SAMPLES.csv", required = true, num_args = 1..)]
     pub samples: Vec<PathBuf>,
     /// Batch recipe (TOML): converts each acid value to extent of reaction with the
