@@ -40,8 +40,8 @@ pub enum Command {
     /// 1/(1-p), external acid catalysis; n = 3: 1/(1-p)², self-catalysis), and
     /// the rate constant k = slope / ((n-1)·C0^(n-1)) is given in (kg/mol)^(n-1) per minute with
     /// C0 the acid groups in mol per kg of charge. The laws assume equal reactivity of all chain
-    /// lengths and equal acid and hydroxyl concentrations; with a hydroxyl excess k is an
-    /// apparent constant. Early samples below --exclude-below are left out and listed with their
+    /// lengths; a hydroxyl excess Δ of the recipe enters the rate law -dc/dt = k·c^(n-1)·(c+Δ),
+    /// integrated exactly, which reduces to the forms above for an equal charge. Early samples below --exclude-below are left out and listed with their
     /// reason; later samples are never left out, and those with a studentized residual beyond ±3
     /// are flagged. The end point comes with a 95 % prediction interval, and, when the samples
     /// carry viscosities, with the viscosity expected at the end point from a log-log fit

@@ -22,6 +22,8 @@ pub struct ChartInput {
     pub title: String,
     /// Reaction order of the plotted model.
     pub order: f64,
+    /// Hydroxyl minus acid groups (mol/kg of charge) used in the linearisation.
+    pub excess: f64,
     /// Samples: elapsed minutes, linearised value, mark.
     pub points: Vec<(f64, f64, Mark)>,
     /// Fitted intercept and slope (per minute).
@@ -52,9 +54,11 @@ fn chart_error(e: impl std::fmt::Display) -> Error {
     )
 }
 
-/// The y-axis label of the linearised quantity of order n.
-pub fn y_label(order: f64) -> String {
-    if (order - 2.0).abs() < 1e-12 {
+/// The y-axis label of the linearised quantity of order n with hydroxyl excess Δ (mol/kg).
+pub fn y_label(order: f64, excess: f64) -> String {
+    if excess != 0.0 {
+        format!("Y, order {order} law with hydroxyl excess {excess:.3} mol/kg")
+    } else if (order - 2.0).abs() < 1e-12 {
         "1/(1-p)".into()
     } else if (order - 3.0).abs() < 1e-12 {
         "1/(1-p)^2".into()
@@ -96,11 +100,7 @@ pub fn render(input: &ChartInput) -> Result<Vec<u8>> {
             .x_label_formatter(&|v| format!("{v:.0}"))
             .y_label_formatter(&|v| format!("{v:.0}"))
             .x_desc("Elapsed time (min)")
-            .y_desc(format!(
-                "{}  (order {} model)",
-                y_label(input.order),
-                input.order
-            ))
+            .y_desc(y_label(input.order, input.excess))
             .draw()
             .map_err(chart_error)?;
         if let Some((t, Some((lo, hi)))) = input.predicted {
@@ -195,6 +195,7 @@ mod tests {
         let input = ChartInput {
             title: "t".into(),
             order: 3.0,
+            excess: 0.0,
             points: vec![
                 (0.0, 5.0, Mark::Excluded),
                 (60.0, 80.0, Mark::Kept),

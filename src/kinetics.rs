@@ -61,6 +61,71 @@ pub fn extent_from_linearised(y: f64, order: f64) -> f64 {
     1.0 - y.powf(1.0 / (1.0 - order))
 }
 
+/// Group concentrations of the charge, in mol per kg of charge.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Groups {
+    /// Acid groups at the start, C0 (mol/kg).
+    pub c0: f64,
+    /// Hydroxyl minus acid groups, Δ (mol/kg): 0 for an equal charge, negative with acid in
+    /// excess. [OH] = [COOH] + Δ throughout the cook.
+    pub excess: f64,
+}
+
+impl Groups {
+    /// Equal acid and hydroxyl groups.
+    pub fn equal(c0: f64) -> Groups {
+        Groups { c0, excess: 0.0 }
+    }
+}
+
+/// ∫ from c to C0 of du / (u^(n-1)·(u + Δ)), by composite Simpson's rule in s = ln(C0/u).
+///
+/// The substitution u = C0·e^(-s) makes the integrand u^(2-n)/(u + Δ) smooth; 4000 panels give
+/// a relative error far below 1e-9 for the orders used here (checked against the closed forms
+/// in the tests). Returns infinity when u + Δ reaches zero (the minority hydroxyls run out).
+pub fn rate_integral(c: f64, c0: f64, order: f64, excess: f64) -> f64 {
+    if c >= c0 {
+        return 0.0;
+    }
+    if c <= 0.0 || c + excess <= 0.0 {
+        return f64::INFINITY;
+    }
+    const PANELS: usize = 4000;
+    let s_max = (c0 / c).ln();
+    let h = s_max / PANELS as f64;
+    let f = |s: f64| {
+        let u = c0 * (-s).exp();
+        u.powf(2.0 - order) / (u + excess)
+    };
+    let mut sum = f(0.0) + f(s_max);
+    for i in 1..PANELS {
+        let weight = if i % 2 == 1 { 4.0 } else { 2.0 };
+        sum += weight * f(h * i as f64);
+    }
+    sum * h / 3.0
+}
+
+/// The linearised quantity of the order-n law with unequal groups.
+///
+/// With -d[COOH]/dt = k·[COOH]^(n-1)·[OH], [COOH] = c = C0(1-p) and [OH] = c + Δ (one hydroxyl
+/// and n-2 acid groups per elementary step as catalyst: n = 2 external catalysis, n = 3
+/// self-catalysis), separating variables gives Y = 1 + (n-1)·C0^(n-1)·∫_c^C0 du/(u^(n-1)(u+Δ))
+/// = 1 + (n-1)·k·C0^(n-1)·t, so the slope and k have the same meaning as in [`linearised`], to
+/// which Y reduces exactly at Δ = 0. For n = 2 the integral is (1/Δ)·ln[(C0/(C0+Δ))·((c+Δ)/c)]
+/// and for n = 3 it is [1/(Δu) + ln(u/(u+Δ))/Δ²] from C0 to c.
+/// Source: first-principles integration by partial fractions of the rate law with
+/// stoichiometric imbalance (Odian, Principles of Polymerization, 4th ed., §2-2a-3, from memory
+/// for the section number; Flory, J. Am. Chem. Soc. 61, 3334 (1939) for the self-catalysed law).
+pub fn linearised_with_excess(p: f64, order: f64, groups: Groups) -> f64 {
+    if groups.excess == 0.0 {
+        return linearised(p, order);
+    }
+    let c = groups.c0 * (1.0 - p);
+    1.0 + (order - 1.0)
+        * groups.c0.powf(order - 1.0)
+        * rate_integral(c, groups.c0, order, groups.excess)
+}
+
 /// Rate constant from the fitted slope: k = slope / ((n-1)·C0^(n-1)).
 ///
 /// Units: (kg/mol)^(n-1) per minute with C0 in mol/kg and the slope per minute.
@@ -365,7 +430,9 @@ pub struct Outlier {
 pub struct ModelFit {
     /// Reaction order n.
     pub order: f64,
-    /// Least-squares line of (1-p)^(1-n) against minutes.
+    /// Group concentrations the linearisation used.
+    pub groups: Groups,
+    /// Weighted least-squares line of Y ([`linearised_with_excess`]) against minutes.
     pub line: LineFit,
     /// Signs of the residuals in time order ('+' above the line, '-' below).
     pub residual_signs: String,
@@ -413,21 +480,22 @@ pub fn select_points(points: &[Point], exclude_below: f64) -> Selection {
     sel
 }
 
-/// Weight of a linearised value y in the cook fits: w = 1/y².
+/// Weight of a sample in the cook fits: w = 1/(c·dY/dc)², up to a constant factor.
 ///
-/// A titration with a constant relative error σ_AV/AV gives, since y = (1-p)^(1-n) and 1-p is
-/// nearly proportional to AV late in the cook, σ_y/y ≈ (n-1)·σ_AV/AV: the scatter of y grows in
-/// proportion to y, so each point is weighted by 1/y² (propagation of uncertainty, GUM,
-/// JCGM 100:2008 §5.1.2; weights 1/σ², Draper and Smith §9.2). Without weights the last
-/// samples would dominate the fit and be flagged as outliers by their size alone.
-pub fn cook_weight(y: f64) -> f64 {
-    1.0 / (y * y)
+/// A titration with a constant relative error σ_c/c = σ_AV/AV gives σ_Y = |dY/dc|·c·σ_AV/AV
+/// (propagation of uncertainty, GUM, JCGM 100:2008 §5.1.2), and dY/dc ∝ 1/(c^(n-1)(c+Δ)), so
+/// w ∝ [(1-p)^(n-2)·((1-p) + Δ/C0)]² (weights 1/σ², Draper and Smith §9.2). At Δ = 0 this is
+/// 1/Y²: the scatter of Y grows in proportion to Y. Without weights the last samples would
+/// dominate the fit and be flagged as outliers by their size alone.
+pub fn cook_weight(p: f64, order: f64, groups: Groups) -> f64 {
+    let q = 1.0 - p;
+    (q.powf(order - 2.0) * (q + groups.excess / groups.c0)).powi(2)
 }
 
 /// Fits one order to the kept points by weighted least squares (weights [`cook_weight`]).
 ///
 /// Errors when fewer than three points are kept or their times do not differ.
-pub fn fit_order(points: &[Point], kept: &[usize], order: f64, c0: f64) -> Result<ModelFit> {
+pub fn fit_order(points: &[Point], kept: &[usize], order: f64, groups: Groups) -> Result<ModelFit> {
     if kept.len() < 3 {
         return Err(Error::invalid(
             "samples",
@@ -441,9 +509,12 @@ pub fn fit_order(points: &[Point], kept: &[usize], order: f64, c0: f64) -> Resul
     let x: Vec<f64> = kept.iter().map(|&i| points[i].elapsed_min).collect();
     let y: Vec<f64> = kept
         .iter()
-        .map(|&i| linearised(points[i].p, order))
+        .map(|&i| linearised_with_excess(points[i].p, order, groups))
         .collect();
-    let w: Vec<f64> = y.iter().map(|&v| cook_weight(v)).collect();
+    let w: Vec<f64> = kept
+        .iter()
+        .map(|&i| cook_weight(points[i].p, order, groups))
+        .collect();
     let line = fit_weighted(&x, &y, &w).ok_or_else(|| {
         Error::invalid(
             "samples",
@@ -475,9 +546,10 @@ pub fn fit_order(points: &[Point], kept: &[usize], order: f64, c0: f64) -> Resul
             }
         }
     }
-    let k = rate_constant(line.slope, order, c0);
+    let k = rate_constant(line.slope, order, groups.c0);
     Ok(ModelFit {
         order,
+        groups,
         rate_constant: k,
         rate_constant_se: k * line.slope_se / line.slope.abs(),
         line,
@@ -492,11 +564,11 @@ pub fn choose_model(
     points: &[Point],
     kept: &[usize],
     orders: &[f64],
-    c0: f64,
+    groups: Groups,
 ) -> Result<(Vec<ModelFit>, usize)> {
     let fits = orders
         .iter()
-        .map(|&n| fit_order(points, kept, n, c0))
+        .map(|&n| fit_order(points, kept, n, groups))
         .collect::<Result<Vec<_>>>()?;
     let best = fits
         .iter()
@@ -517,11 +589,12 @@ pub struct EndPoint {
 
 /// Predicts when the extent of reaction reaches `p_target` under the fitted model.
 ///
-/// t* = ((1-p*)^(1-n) - a)/b with the inverse-prediction interval of [`LineFit::inverse_predict`]
+/// t* = (Y(p*) - a)/b with the inverse-prediction interval of [`LineFit::inverse_predict`]
 /// for a new titration of weight [`cook_weight`] at the target.
 pub fn predict_end_point(fit: &ModelFit, p_target: f64) -> EndPoint {
-    let y0 = linearised(p_target, fit.order);
-    let (t, pi) = fit.line.inverse_predict(y0, cook_weight(y0), 0.95);
+    let y0 = linearised_with_excess(p_target, fit.order, fit.groups);
+    let w0 = cook_weight(p_target, fit.order, fit.groups);
+    let (t, pi) = fit.line.inverse_predict(y0, w0, 0.95);
     EndPoint {
         elapsed_min: t,
         pi95: pi,
@@ -722,6 +795,69 @@ mod tests {
     }
 
     #[test]
+    fn unequal_groups_match_the_closed_forms() {
+        // First principles, partial fractions of 1/(u(u+Δ)) and 1/(u²(u+Δ)); C0 = 7.54 and
+        // Δ = 0.888 mol/kg are the demo PD-2000 charge's (an invented test fixture).
+        let (c0, d) = (7.54, 0.888);
+        let g = Groups { c0, excess: d };
+        for p in [0.5, 0.8, 0.95, 0.99, 0.998] {
+            let c = c0 * (1.0 - p);
+            let i2 = ((c0 / (c0 + d)) * ((c + d) / c)).ln() / d;
+            let f3 = |u: f64| -1.0 / (d * u) - (u / (u + d)).ln() / (d * d);
+            let i3 = f3(c0) - f3(c);
+            assert_relative_eq!(rate_integral(c, c0, 2.0, d), i2, max_relative = 1e-9);
+            assert_relative_eq!(rate_integral(c, c0, 3.0, d), i3, max_relative = 1e-9);
+            assert_relative_eq!(
+                linearised_with_excess(p, 3.0, g),
+                1.0 + 2.0 * c0 * c0 * i3,
+                max_relative = 1e-9
+            );
+            // Δ → 0: the general form reduces to (1-p)^(1-n) (Odian §2-2a).
+            for n in [2.0, 2.5, 3.0] {
+                let tiny = Groups { c0, excess: 1e-9 };
+                assert_relative_eq!(
+                    linearised_with_excess(p, n, tiny),
+                    linearised(p, n),
+                    max_relative = 1e-6
+                );
+            }
+        }
+        // The weight reduces to 1/Y² at Δ = 0.
+        let y = linearised(0.97, 3.0);
+        assert_relative_eq!(
+            cook_weight(0.97, 3.0, Groups::equal(c0)),
+            1.0 / (y * y),
+            max_relative = 1e-12
+        );
+    }
+
+    #[test]
+    fn round_trip_with_hydroxyl_excess() {
+        // Synthetic cook (test fixture) from the unequal-groups law of each order: times from
+        // t = (Y(p) - 1)/b on a grid of p; the fit must recover order and slope.
+        let g = Groups {
+            c0: 7.54,
+            excess: 0.888,
+        };
+        for (order, slope) in [(2.0, 0.05), (2.5, 0.8), (3.0, 60.0)] {
+            let pts: Vec<Point> = (0..15)
+                .map(|i| {
+                    let p = 0.85 + 0.0099 * f64::from(i);
+                    let wobble = 1.0 + 0.002 * (f64::from(i % 3) - 1.0);
+                    Point {
+                        elapsed_min: (linearised_with_excess(p, order, g) - 1.0) / slope * wobble,
+                        p,
+                    }
+                })
+                .collect();
+            let sel = select_points(&pts, DEFAULT_EXCLUDE_BELOW);
+            let (fits, best) = choose_model(&pts, &sel.kept, &CANDIDATE_ORDERS, g).unwrap();
+            assert_eq!(fits[best].order, order, "{fits:?}");
+            assert_relative_eq!(fits[best].line.slope, slope, max_relative = 0.02);
+        }
+    }
+
+    #[test]
     fn line_fit_matches_hand_computation() {
         // First principles: x = 1..5, y = 2.1, 3.9, 6.2, 7.8, 10.1. Sxx = 10, Sxy = 19.9,
         // b = 1.99, a = 6.02 - 5.97 = 0.05; residuals 0.06,-0.13,0.18,-0.21,0.10; SSE = 0.107,
@@ -826,7 +962,8 @@ mod tests {
             let pts = synthetic(order, slope, 3.0, 0.004);
             let sel = select_points(&pts, DEFAULT_EXCLUDE_BELOW);
             assert_eq!(sel.excluded.len(), 3, "order {order}: {:?}", sel.excluded);
-            let (fits, best) = choose_model(&pts, &sel.kept, &CANDIDATE_ORDERS, c0).unwrap();
+            let (fits, best) =
+                choose_model(&pts, &sel.kept, &CANDIDATE_ORDERS, Groups::equal(c0)).unwrap();
             let fit = &fits[best];
             assert_eq!(fit.order, order, "candidates {fits:?}");
             assert_relative_eq!(fit.line.slope, slope, max_relative = 0.02);
@@ -864,14 +1001,16 @@ mod tests {
         pts[last].p = 1.0 - (1.0 - pts[last].p) * 1.3;
         let sel = select_points(&pts, DEFAULT_EXCLUDE_BELOW);
         assert!(sel.kept.contains(&last));
-        let fit = fit_order(&pts, &sel.kept, 3.0, 7.5).unwrap();
+        let fit = fit_order(&pts, &sel.kept, 3.0, Groups::equal(7.5)).unwrap();
         assert!(fit.outliers.iter().any(|o| o.index == last), "{fit:?}");
     }
 
     #[test]
     fn fewer_than_three_kept_points_is_an_error() {
         let pts = synthetic(3.0, 12.0, 3.0, 0.0);
-        let err = fit_order(&pts, &[5, 6], 3.0, 7.5).unwrap_err().to_string();
+        let err = fit_order(&pts, &[5, 6], 3.0, Groups::equal(7.5))
+            .unwrap_err()
+            .to_string();
         assert!(err.contains("at least three"), "{err}");
     }
 

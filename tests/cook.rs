@@ -35,18 +35,27 @@ fn pd_av(p: f64) -> f64 {
     56.1 * (e_a - x) / (m0 - 0.018015 * x)
 }
 
+/// Group concentrations of the demo recipe, as the library computes them.
+fn groups() -> resinlot::kinetics::Groups {
+    let r = resinlot::recipe::Recipe::load(&recipe()).unwrap();
+    resinlot::cmd::cook::groups_of(&r.charge())
+}
+
 /// A synthetic cook (test fixture, invented numbers): early points at p = 0.5..0.75, then the
-/// order-n law (1-p)^(1-n) = y1 + slope·t, with a small alternating disturbance on (1-p).
+/// order-n law with the recipe's hydroxyl excess, Y(p) = y1 + slope·(t - 60), on a grid of p
+/// with a small alternating disturbance on (1-p).
 fn synthetic(dir: &Path, order: f64, slope: f64, y1: f64) -> PathBuf {
+    let g = groups();
     let mut text = String::from("elapsed_min,acid_value\n");
     for (t, p) in [(0.0, 0.5), (20.0, 0.62), (40.0, 0.75)] {
         text.push_str(&format!("{t},{:.6}\n", pd_av(p)));
     }
     for i in 0..14 {
-        let t = 60.0 + 40.0 * f64::from(i);
-        let y = y1 + slope * t;
-        let one_minus_p = y.powf(1.0 / (1.0 - order)) * (1.0 + 0.003 * f64::from(i % 3) - 0.003);
-        text.push_str(&format!("{t},{:.6}\n", pd_av(1.0 - one_minus_p)));
+        let one_minus_p = 0.15 * (0.003f64 / 0.15).powf(f64::from(i) / 13.0);
+        let p = 1.0 - one_minus_p;
+        let t = 60.0 + (resinlot::kinetics::linearised_with_excess(p, order, g) - y1) / slope;
+        let noisy = one_minus_p * (1.0 + 0.003 * f64::from(i % 3) - 0.003);
+        text.push_str(&format!("{t:.3},{:.6}\n", pd_av(1.0 - noisy)));
     }
     let path = dir.join(format!("synthetic-{order}.csv"));
     std::fs::write(&path, text).unwrap();
@@ -94,7 +103,7 @@ fn demo_cook_picks_third_order_and_draws_the_chart() {
         .unwrap()
         .contains("next titration decides"));
     let svg = std::fs::read_to_string(&chart).unwrap();
-    assert!(svg.contains("<svg") && svg.contains("1/(1-p)^2"));
+    assert!(svg.contains("<svg") && svg.contains("Y, order 3 law with hydroxyl excess"));
 }
 
 #[test]
@@ -120,7 +129,10 @@ fn synthetic_cooks_round_trip_through_the_binary() {
     // Each law of Odian §2-2a, synthesised with a known slope: the binary must recover the
     // order, the slope within 2 % and the time to AV 2.0 within 3 %.
     let dir = tempfile::tempdir().unwrap();
-    for (order, slope, y1) in [(2.0, 0.5, 5.0), (2.5, 12.0, 40.0), (3.0, 300.0, 100.0)] {
+    // y1 = Y at p = 0.85, the first late sample (at 60 min).
+    let g = groups();
+    for (order, slope) in [(2.0, 0.1), (2.5, 1.0), (3.0, 10.0)] {
+        let y1 = resinlot::kinetics::linearised_with_excess(0.85, order, g);
         let file = synthetic(dir.path(), order, slope, y1);
         let out = bin()
             .arg("cook")
@@ -141,7 +153,8 @@ fn synthetic_cooks_round_trip_through_the_binary() {
             "order {order}: slope {got}"
         );
         let p = v["target_extent"].as_f64().unwrap();
-        let truth = ((1.0 - p).powf(1.0 - order) - y1) / slope;
+        let truth =
+            60.0 + (resinlot::kinetics::linearised_with_excess(p, order, groups()) - y1) / slope;
         let t = v["predicted_elapsed_min"].as_f64().unwrap();
         assert!(
             (t / truth - 1.0).abs() < 0.03,
@@ -542,13 +555,16 @@ fn late_outlier_is_flagged_and_kept() {
     // A synthetic third-order cook (test fixture) with one late titration 25 % off in (1-p).
     let dir = tempfile::tempdir().unwrap();
     let mut text = String::from("elapsed_min,acid_value\n");
+    let g = groups();
     for i in 0..14 {
-        let t = 60.0 + 40.0 * f64::from(i);
-        let mut one_minus_p = (100.0 + 300.0 * t).powf(-0.5) * (1.0 + 0.002 * f64::from(i % 3));
+        let one_minus_p = 0.15 * (0.003f64 / 0.15).powf(f64::from(i) / 13.0);
+        let t =
+            (resinlot::kinetics::linearised_with_excess(1.0 - one_minus_p, 3.0, g) - 15.0) / 10.0;
+        let mut noisy = one_minus_p * (1.0 + 0.002 * f64::from(i % 3));
         if i == 10 {
-            one_minus_p *= 1.25;
+            noisy *= 1.25;
         }
-        text.push_str(&format!("{t},{:.6}\n", pd_av(1.0 - one_minus_p)));
+        text.push_str(&format!("{t:.3},{:.6}\n", pd_av(1.0 - noisy)));
     }
     let path = dir.path().join("o.csv");
     std::fs::write(&path, text).unwrap();

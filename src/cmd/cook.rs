@@ -99,6 +99,8 @@ pub struct CookReport {
     pub outliers: Vec<FlaggedSample>,
     /// Acid groups per kg of charge, C0 (mol/kg).
     pub c0_mol_per_kg: f64,
+    /// Hydroxyl minus acid groups per kg of charge, Δ (mol/kg), used in the rate law.
+    pub hydroxyl_excess_mol_per_kg: f64,
     /// Stoichiometric ratio r of the charge (minority / majority groups).
     pub stoichiometric_ratio: f64,
     /// Rate constant k.
@@ -286,6 +288,14 @@ pub fn extents(data: &Samples, ch: &Charge) -> Result<Vec<Progress>> {
         .collect()
 }
 
+/// Group concentrations of the charge per kg of charge: C0 = acid groups, Δ = OH - acid.
+pub fn groups_of(ch: &Charge) -> kinetics::Groups {
+    kinetics::Groups {
+        c0: ch.acid_eq / ch.mass_kg,
+        excess: (ch.hydroxyl_eq - ch.acid_eq) / ch.mass_kg,
+    }
+}
+
 /// Acid value at which the recipe Mn equals `mn` (bisection; recipe Mn falls as AV rises).
 fn acid_value_for_mn(ch: &Charge, mn: f64) -> Result<f64> {
     let av0 = chemistry::initial_acid_value(ch);
@@ -324,7 +334,7 @@ pub fn analyse(
     exclude_below: f64,
 ) -> Result<CookReport> {
     let ch = recipe.charge();
-    let c0 = ch.acid_eq / ch.mass_kg;
+    let groups = groups_of(&ch);
     let progress = extents(data, &ch)?;
     let points: Vec<Point> = data
         .samples
@@ -337,7 +347,7 @@ pub fn analyse(
         .collect();
     let sel = kinetics::select_points(&points, exclude_below);
     let orders: Vec<f64> = order.map_or(kinetics::CANDIDATE_ORDERS.to_vec(), |n| vec![n]);
-    let (fits, best) = kinetics::choose_model(&points, &sel.kept, &orders, c0)
+    let (fits, best) = kinetics::choose_model(&points, &sel.kept, &orders, groups)
         .map_err(|e| relocate(e, &data.file))?;
     let fit = &fits[best];
     let target_av = match target {
@@ -429,7 +439,8 @@ pub fn analyse(
         excluded: sel.excluded.iter().map(|e| e.index).collect(),
         excluded_detail,
         outliers,
-        c0_mol_per_kg: c0,
+        c0_mol_per_kg: groups.c0,
+        hydroxyl_excess_mol_per_kg: groups.excess,
         stoichiometric_ratio: chemistry::stoichiometric_ratio(&ch),
         rate_constant: fit.rate_constant,
         rate_constant_standard_error: fit.rate_constant_se,
@@ -453,7 +464,7 @@ pub fn analyse(
                 elapsed_min: s.elapsed_min,
                 acid_value: s.acid_value,
                 extent: pt.p,
-                linearised: kinetics::linearised(pt.p, fit.order),
+                linearised: kinetics::linearised_with_excess(pt.p, fit.order, groups),
                 kept: sel.kept.contains(&i),
             })
             .collect(),
@@ -524,6 +535,7 @@ fn chart_bytes(rep: &CookReport, recipe: &Recipe) -> Result<Vec<u8>> {
     let input = ChartInput {
         title: format!("{} — {}", recipe.name, file_name(&rep.file)),
         order: rep.order,
+        excess: rep.hydroxyl_excess_mol_per_kg,
         points: rep
             .samples
             .iter()
@@ -541,7 +553,14 @@ fn chart_bytes(rep: &CookReport, recipe: &Recipe) -> Result<Vec<u8>> {
             .collect(),
         intercept: rep.intercept,
         slope: rep.slope_per_min,
-        target_y: kinetics::linearised(rep.target_extent, rep.order),
+        target_y: kinetics::linearised_with_excess(
+            rep.target_extent,
+            rep.order,
+            kinetics::Groups {
+                c0: rep.c0_mol_per_kg,
+                excess: rep.hydroxyl_excess_mol_per_kg,
+            },
+        ),
         target_label: format!("target AV {} mg KOH/g", rep.target_acid_value),
         predicted: Some((
             rep.predicted_elapsed_min,
@@ -612,7 +631,7 @@ pub fn render(r: &CookReport) -> String {
             format!(
                 "order {} ({}), {}",
                 r.order,
-                cook_chart::y_label(r.order),
+                cook_chart::y_label(r.order, r.hydroxyl_excess_mol_per_kg),
                 if r.order_forced {
                     "forced by --order"
                 } else {
@@ -635,14 +654,8 @@ pub fn render(r: &CookReport) -> String {
         (
             "C0 (acid groups)".into(),
             format!(
-                "{:.4} mol/kg; r = {:.4}{}",
-                r.c0_mol_per_kg,
-                r.stoichiometric_ratio,
-                if r.stoichiometric_ratio < 0.999 {
-                    " (unequal groups: k is an apparent constant)"
-                } else {
-                    ""
-                }
+                "{:.4} mol/kg; hydroxyl excess Δ = {:.4} mol/kg (r = {:.4}), in the rate law",
+                r.c0_mol_per_kg, r.hydroxyl_excess_mol_per_kg, r.stoichiometric_ratio
             ),
         ),
         (
@@ -769,7 +782,7 @@ pub fn arrhenius(
     exclude_below: f64,
 ) -> Result<ArrheniusReport> {
     let ch = recipe.charge();
-    let c0 = ch.acid_eq / ch.mass_kg;
+    let groups = groups_of(&ch);
     let mut cooks = Vec::new();
     let mut warnings = Vec::new();
     for path in files {
@@ -814,7 +827,7 @@ pub fn arrhenius(
     for &n in &orders {
         let mut total = 0.0;
         for (file, _, points, sel) in &cooks {
-            total += kinetics::fit_order(points, &sel.kept, n, c0)
+            total += kinetics::fit_order(points, &sel.kept, n, groups)
                 .map_err(|e| relocate(e, file))?
                 .line
                 .r_squared;
@@ -827,7 +840,7 @@ pub fn arrhenius(
     let mut batches = Vec::new();
     let mut rates = Vec::new();
     for (file, t, points, sel) in &cooks {
-        let fit = kinetics::fit_order(points, &sel.kept, n, c0)?;
+        let fit = kinetics::fit_order(points, &sel.kept, n, groups)?;
         rates.push(kinetics::RateAtTemperature {
             temperature_c: *t,
             rate_constant: fit.rate_constant,
