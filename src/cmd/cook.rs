@@ -53,7 +53,7 @@ pub struct Args {
     ///
     /// Give three or more samples files of the same recipe, cooked at no fewer than two
     /// temperatures. Each file must have a temperature_c column; its mean is the cook's
-    /// temperature (a warning is shown if it varies by more than 2 °C). One common order is
+    /// temperature (a warning is shown if it varies by more than 5 °C). One common order is
     /// fitted to every cook (the order with the best summed R², or --order), each file gives its
     /// rate constant k, and ln k is fitted against 1/T (T in kelvin). The activation energy is
     /// Ea = -R·slope, reported with its standard error and 95 % confidence interval (Student t,
@@ -774,6 +774,10 @@ pub struct ArrheniusReport {
     pub warnings: Vec<Warning>,
 }
 
+/// Range of a cook's temperature readings (°C) above which --arrhenius warns that the mean is a
+/// rough summary (common practice: a hold controlled within a few kelvin).
+const MAX_TEMPERATURE_SPREAD: f64 = 5.0;
+
 /// Fits several cooks at one common order and then ln k against 1/T.
 pub fn arrhenius(
     files: &[PathBuf],
@@ -801,7 +805,7 @@ pub fn arrhenius(
         let mean = temps.iter().sum::<f64>() / temps.len() as f64;
         let spread = temps.iter().cloned().fold(f64::MIN, f64::max)
             - temps.iter().cloned().fold(f64::MAX, f64::min);
-        if spread > 2.0 {
+        if spread > MAX_TEMPERATURE_SPREAD {
             warnings.push(Warning {
                 place: data.file.clone(),
                 message: format!(
