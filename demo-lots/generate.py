@@ -598,36 +598,6 @@ COOK_EA = 60000.0  # J/mol, activation energy of the rate constant (invented)
 COOK_DELTA = 1.0  # mol/kg, excess of hydroxyl over carboxyl groups (from the recipe, rounded)
 
 
-def write_cooks(history: dict, lims: list[dict]) -> list[Path]:
-    """In-process AV samples: dc/dt = -k c (c + delta), c = AV/56.1 mol/kg, k(T) Arrhenius."""
-    made = {l["lot"]: l["manufactured"] for l in history["PD-2000"] + lims}
-    final_av = {l["lot"]: float(l["acid_value"]) for l in history["PD-2000"] + lims}
-    rng = random.Random(SEED + 3000)
-    out = []
-    (HERE / "cooks").mkdir(exist_ok=True)
-    for lot, temp_c, t0, av_first, step in COOKS:
-        k = COOK_K220 * math.exp(-COOK_EA / 8.314 * (1 / (temp_c + 273.15) - 1 / 493.15))
-        c0 = av_first / 56.1
-        start = dt.datetime.combine(made[lot], dt.time(6, 0))
-        path = HERE / "cooks" / f"{lot}-cook.csv"
-        with path.open("w", newline="", encoding="utf-8") as f:
-            w = csv.writer(f, lineterminator="\n")
-            w.writerow(["elapsed_min", "acid_value", "temperature_c", "sampled_at"])
-            t = t0
-            while True:
-                g = math.log((c0 + COOK_DELTA) / c0) + k * COOK_DELTA * (t - t0)
-                c = COOK_DELTA / (math.exp(g) - 1)
-                av = 56.1 * c * (1 + rng.gauss(0, 0.015))
-                temp = temp_c + rng.gauss(0, 0.8)
-                w.writerow([t, f"{av:.2f}", f"{temp:.1f}",
-                            (start + dt.timedelta(minutes=t)).strftime("%Y-%m-%dT%H:%M:%SZ")])
-                if av <= final_av[lot] + 0.05:  # the cook is stopped; the lab titrates the lot
-                    break
-                t += step
-        out.append(path)
-    return out
-
-
 def answers(history: dict, lims: list[dict], specs: dict) -> list[str]:
     """Expected answers to the customer-service questions of README.md."""
     rows = []
@@ -653,7 +623,6 @@ def main() -> None:
     history, lims, plan = build()
     paths = write_history(history)
     paths.append(write_lims(lims, specs))
-    paths.extend(write_cooks(history, lims))
     for line in check(history, lims, plan, specs):
         print(line)
     for line in answers(history, lims, specs):

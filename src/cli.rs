@@ -49,6 +49,35 @@ pub enum Command {
     /// quarantine a torn last line, or identify certificate PDFs as genuine, altered or unknown.
     #[command(after_help = EXIT_STATUS)]
     Verify(cmd::verify::Args),
+    /// Fit a cook's in-process acid values to step-growth kinetics (order 2, 2.5 or 3), predict
+    /// when the target is reached with a 95 % prediction interval, and optionally chart it; with
+    /// --arrhenius, fit the activation energy over several cooks.
+    ///
+    /// Each acid value becomes an extent of reaction p through the recipe's condensation-water
+    /// balance. For order n the quantity y = (1-p)^(1-n) is fitted against elapsed minutes by
+    /// least squares weighted by 1/y², as suits a constant relative titration error (n = 2:
+    /// 1/(1-p), external acid catalysis; n = 3: 1/(1-p)², self-catalysis), and
+    /// the rate constant k = slope / ((n-1)·C0^(n-1)) is given in (kg/mol)^(n-1) per minute with
+    /// C0 the acid groups in mol per kg of charge. The laws assume equal reactivity of all chain
+    /// lengths; a hydroxyl excess Δ of the recipe enters the rate law -dc/dt = k·c^(n-1)·(c+Δ),
+    /// integrated exactly, which reduces to the forms above for an equal charge. Early samples below --exclude-below are left out and listed with their
+    /// reason; later samples are never left out, and those with a studentized residual beyond ±3
+    /// are flagged. The end point comes with a 95 % prediction interval, and, when the samples
+    /// carry viscosities, with the viscosity expected at the end point from a log-log fit
+    /// against Mn. The safety cautions are printed with every result.
+    #[command(after_help = EXIT_STATUS)]
+    Cook(cmd::cook::Args),
+    /// Compute the diol or acid addition that brings a batch to a target hydroxyl value, with
+    /// the expected acid value, hydroxyl value and Mn afterwards.
+    ///
+    /// Raising the hydroxyl value: the named hydroxyl component is mixed in and taken up by
+    /// transesterification, which conserves every end group, so the mass follows from the group
+    /// balance. Lowering it: the named acid is esterified until the acid value is back at its
+    /// present value, with the condensation water removed. The result states its assumption,
+    /// shows the group balance, and always prints the safety cautions: additions to a hot batch
+    /// follow the site's operating procedure, and the lab's next titration decides.
+    #[command(after_help = EXIT_STATUS)]
+    Adjust(cmd::adjust::Args),
 }
 
 #[cfg(test)]

@@ -1,5 +1,7 @@
 //! One module per subcommand, each with a `run` entry point; `dispatch` picks one.
 
+pub mod adjust;
+pub mod cook;
 pub mod endgroup;
 pub mod find;
 pub mod lookup;
@@ -37,5 +39,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Find(args) => find::run(&args),
         Command::Specs(args) => specs::run(&args),
         Command::Verify(args) => verify::run(&args),
+        Command::Cook(args) => cook::run(&args),
+        Command::Adjust(args) => adjust::run(&args),
     }
 }

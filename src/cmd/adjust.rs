@@ -1,0 +1,167 @@
+//! `resinlot adjust`: the diol or acid addition that brings a batch to its target hydroxyl value.
+
+use std::path::PathBuf;
+
+use anyhow::Context;
+
+use crate::cmd::Outcome;
+use crate::correction::{self, BatchNow, Correction, Direction};
+use crate::error::Error;
+use crate::recipe::Recipe;
+
+/// Arguments of `resinlot adjust`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// Batch recipe (TOML); the added component is one of its components.
+    #[arg(long, value_name = "FILE")]
+    pub recipe: PathBuf,
+    /// Batch mass now, in kg (the charge less the water distilled so far).
+    #[arg(long, value_name = "KG", allow_hyphen_values = true)]
+    pub batch_kg: f64,
+    /// Acid value of the batch now, in mg KOH/g.
+    #[arg(long, value_name = "MG_KOH_G", allow_hyphen_values = true)]
+    pub av: f64,
+    /// Hydroxyl value of the batch now, in mg KOH/g, already corrected for acidity.
+    #[arg(long, value_name = "MG_KOH_G", allow_hyphen_values = true)]
+    pub ohv: f64,
+    /// Hydroxyl value to reach, in mg KOH/g. Above --ohv a hydroxyl component is added;
+    /// below it an acid is added and cooked back to the present acid value.
+    #[arg(long, value_name = "MG_KOH_G", allow_hyphen_values = true)]
+    pub target_ohv: f64,
+    /// Recipe component to add to raise the hydroxyl value (case is ignored). Default: the
+    /// recipe's main hydroxyl component.
+    #[arg(long, value_name = "NAME", conflicts_with = "acid")]
+    pub diol: Option<String>,
+    /// Recipe component to add to lower the hydroxyl value (case is ignored). Default: the
+    /// recipe's main acid component.
+    #[arg(long, value_name = "NAME")]
+    pub acid: Option<String>,
+    /// Print one JSON object instead of the text report.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Runs the command.
+pub fn run(args: &Args) -> anyhow::Result<Outcome> {
+    let recipe = Recipe::load(&args.recipe).context("cannot use the recipe")?;
+    let raising = args.target_ohv > args.ohv;
+    let (flag, asked) = match (&args.diol, &args.acid) {
+        (Some(d), _) => ("--diol", Some(d)),
+        (None, Some(a)) => ("--acid", Some(a)),
+        (None, None) => ("", None),
+    };
+    if raising && flag == "--acid" {
+        return Err(Error::invalid(
+            "--acid",
+            "the target hydroxyl value is above the present one, and adding acid lowers it",
+            "Name a glycol with --diol, or leave both out to use the recipe's main hydroxyl component.",
+        )
+        .into());
+    }
+    if !raising && flag == "--diol" {
+        return Err(Error::invalid(
+            "--diol",
+            "the target hydroxyl value is below the present one, and adding a diol raises it",
+            "Name an acid with --acid, or leave both out to use the recipe's main acid.",
+        )
+        .into());
+    }
+    let component = match asked {
+        Some(name) => recipe.component(name).ok_or_else(|| {
+            let names: Vec<&str> = recipe.components.iter().map(|c| c.name.as_str()).collect();
+            Error::invalid(
+                flag,
+                format!("'{name}' is not a component of {}", args.recipe.display()),
+                format!("Use one of: {}.", names.join(", ")),
+            )
+        })?,
+        None => if raising {
+            recipe.main_hydroxyl_component()
+        } else {
+            recipe.main_acid_component()
+        }
+        .expect("a validated recipe has acid and hydroxyl components"),
+    };
+    let batch = BatchNow {
+        mass_kg: args.batch_kg,
+        acid_value: args.av,
+        hydroxyl_value: args.ohv,
+    };
+    let c = correction::correct(&batch, component, args.target_ohv)?;
+    let text = if args.json {
+        let mut v = serde_json::to_value(&c)?;
+        v["caution"] = serde_json::Value::String(correction::SAFETY_CAUTION.into());
+        serde_json::to_string_pretty(&v)? + "\n"
+    } else {
+        render(&c, args.target_ohv)
+    };
+    crate::output::print(&text)?;
+    Ok(Outcome::AllGood)
+}
+
+/// The text report.
+pub fn render(c: &Correction, target: f64) -> String {
+    let verb = match c.direction {
+        Direction::RaiseHydroxyl => "to raise the hydroxyl value",
+        Direction::LowerHydroxyl => "to lower the hydroxyl value",
+    };
+    let mut rows: Vec<(String, String)> = vec![
+        (
+            "Add".into(),
+            format!(
+                "{:.1} kg {} ({verb} to {target} mg KOH/g)",
+                c.add_kg, c.component
+            ),
+        ),
+        (
+            "Expected acid value".into(),
+            format!("{:.2} mg KOH/g", c.new_acid_value),
+        ),
+        (
+            "Expected hydroxyl value".into(),
+            format!("{:.2} mg KOH/g", c.new_hydroxyl_value),
+        ),
+        (
+            "Mn, end groups (f = 2)".into(),
+            format!("{:.0} g/mol now, {:.0} g/mol expected", c.mn_now, c.new_mn),
+        ),
+        (
+            "Batch mass afterwards".into(),
+            format!("{:.1} kg", c.new_batch_kg),
+        ),
+    ];
+    if c.direction == Direction::LowerHydroxyl {
+        rows.push((
+            "Water to remove".into(),
+            format!(
+                "{:.1} kg ({:.1} mol ester bonds formed)",
+                c.water_released_kg, c.esters_formed_mol
+            ),
+        ));
+    }
+    rows.push((
+        "Hydroxyl groups".into(),
+        format!(
+            "{:.2} mol now + {:.2} added - {:.2} reacted = {:.2} mol",
+            c.hydroxyl_groups_mol.before,
+            c.hydroxyl_groups_mol.added,
+            c.hydroxyl_groups_mol.consumed,
+            c.hydroxyl_groups_mol.after
+        ),
+    ));
+    rows.push((
+        "Acid groups".into(),
+        format!(
+            "{:.2} mol now + {:.2} added - {:.2} reacted = {:.2} mol",
+            c.acid_groups_mol.before,
+            c.acid_groups_mol.added,
+            c.acid_groups_mol.consumed,
+            c.acid_groups_mol.after
+        ),
+    ));
+    let mut out = crate::table::pairs(&rows);
+    out.push_str(&format!("\nAssumption: {}\n\n", c.assumption));
+    out.push_str(correction::SAFETY_CAUTION);
+    out.push('\n');
+    out
+}
