@@ -373,6 +373,13 @@ mod tests {
             .contains("Known customers"));
     }
 
+    proptest::proptest! {
+        #[test]
+        fn customer_parser_never_panics(s in "\\PC{0,300}") {
+            let _ = crate::tomlfile::parse::<CustomerFile>("c.toml", &s);
+        }
+    }
+
     #[test]
     fn combined_takes_the_tighter_limits() {
         let w = Window {

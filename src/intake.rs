@@ -103,6 +103,13 @@ pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>>
             "Export the results as UTF-8 CSV.",
         )
     })?;
+    if let Some(line) = unterminated_quote(text) {
+        return Err(Error::invalid(
+            format!("{name}:{line}"),
+            "a quoted cell opened on this line is never closed (truncated file?)",
+            "Check the end of the file and close the quote, or export the file again.",
+        ));
+    }
     let header_line = text.lines().next().unwrap_or("");
     if header_line.trim().is_empty() {
         return Err(Error::invalid(
@@ -170,6 +177,24 @@ pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>>
         ));
     }
     Ok(lots)
+}
+
+/// The line where a quote opens that is never closed, if any ("" inside quotes is an escape).
+fn unterminated_quote(text: &str) -> Option<usize> {
+    let (mut open, mut line, mut opened_at) = (false, 1, 0);
+    for c in text.chars() {
+        match c {
+            '"' => {
+                open = !open;
+                if open {
+                    opened_at = line;
+                }
+            }
+            '\n' => line += 1,
+            _ => {}
+        }
+    }
+    open.then_some(opened_at)
 }
 
 fn csv_error(name: &str, e: csv::Error) -> Error {

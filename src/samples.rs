@@ -54,7 +54,18 @@ const OPTIONAL: [&str; 4] = ["temperature_c", "viscosity", "hydroxyl_value", "sa
 
 /// Reads and validates a samples file.
 pub fn load(path: &Path) -> Result<Samples> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, "reading", e))?;
+    let meta = std::fs::metadata(path).map_err(|e| Error::io(path, "reading", e))?;
+    if meta.len() > 16 << 20 {
+        return Err(Error::invalid(
+            path.display().to_string(),
+            format!(
+                "the file is {} bytes; a cook's samples file is a few kilobytes",
+                meta.len()
+            ),
+            "Check that this is the samples file of one cook.",
+        ));
+    }
+    let text = crate::spec::read_text(path)?;
     parse(&path.display().to_string(), &text)
 }
 
