@@ -1,0 +1,7 @@
+//! Fuzz target: the product spec TOML parser.
+#![no_main]
+libfuzzer_sys::fuzz_target!(|data: &[u8]| {
+    if let Ok(text) = std::str::from_utf8(data) {
+        let _ = resinlot::spec::ProductSpec::parse(std::path::Path::new("fuzz.toml"), text);
+    }
+});
