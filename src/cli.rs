@@ -42,6 +42,14 @@ pub enum Command {
     /// newest first.
     #[command(after_help = EXIT_STATUS)]
     Find(cmd::find::Args),
+    /// Build the demo plant's workspace (default ./resinlot-demo) and run the whole job there:
+    /// releases, certificates, trends, customer questions, a cook fit and a correction.
+    #[command(after_help = EXIT_STATUS)]
+    Demo(cmd::demo::Args),
+    /// Create an empty workspace with a commented example spec, recipe, customer and the
+    /// default templates.
+    #[command(after_help = EXIT_STATUS)]
+    Init(cmd::init::Args),
     /// Check product specs, recipes and customer files.
     #[command(after_help = EXIT_STATUS)]
     Specs(cmd::specs::Args),

@@ -26,5 +26,6 @@ pub mod samples;
 pub mod spec;
 pub mod table;
 pub mod tomlfile;
+pub mod workspace;
 
 pub use error::{Error, Result};

@@ -2,8 +2,10 @@
 
 pub mod adjust;
 pub mod cook;
+pub mod demo;
 pub mod endgroup;
 pub mod find;
+pub mod init;
 pub mod lookup;
 pub mod release;
 pub mod specs;
@@ -35,6 +37,8 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
     match cli.command {
         Command::Endgroup(args) => endgroup::run(&args),
         Command::Release(args) => release::run(&args),
+        Command::Demo(args) => demo::run(&args),
+        Command::Init(args) => init::run(&args),
         Command::Lookup(args) => lookup::run(&args),
         Command::Find(args) => find::run(&args),
         Command::Specs(args) => specs::run(&args),

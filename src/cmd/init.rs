@@ -1,0 +1,27 @@
+//! `resinlot init`: an empty workspace for a lab adopting the tool.
+
+use std::path::PathBuf;
+
+use crate::cmd::Outcome;
+
+/// Arguments of `resinlot init`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// The new workspace folder; it must not exist or must be empty.
+    pub dir: PathBuf,
+}
+
+/// Runs the command.
+pub fn run(args: &Args) -> anyhow::Result<Outcome> {
+    let files = crate::workspace::init(&args.dir)?;
+    let mut out = format!("Created the workspace {}:\n", args.dir.display());
+    for f in files {
+        out.push_str(&format!("  {f}\n"));
+    }
+    out.push_str(
+        "Edit first: templates/site.toml (site name, address, certificate prefix), then the example spec and recipe.\n\
+         Check them with: resinlot specs check specs\n",
+    );
+    crate::output::print(&out)?;
+    Ok(Outcome::AllGood)
+}
