@@ -16,7 +16,10 @@ const LOTS: usize = 1_000_000;
 struct Rng(u64);
 impl Rng {
     fn uniform(&mut self) -> f64 {
-        self.0 = self.0.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+        self.0 = self
+            .0
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
         ((self.0 >> 11) as f64 + 0.5) / (1u64 << 53) as f64
     }
     fn normal(&mut self) -> f64 {
@@ -27,12 +30,24 @@ impl Rng {
 /// Writes a valid, hash-chained PD-2000 trend file of `n` lots.
 pub fn generate(register: &Path, n: usize) -> std::io::Result<()> {
     std::fs::create_dir_all(register)?;
-    let keys: Vec<String> = ["acid_value", "hydroxyl_value", "viscosity", "water", "mn", "xn", "extent_of_reaction", "hydroxyl_equivalent_weight"]
-        .iter()
-        .map(|s| s.to_string())
-        .collect();
+    let keys: Vec<String> = [
+        "acid_value",
+        "hydroxyl_value",
+        "viscosity",
+        "water",
+        "mn",
+        "xn",
+        "extent_of_reaction",
+        "hydroxyl_equivalent_weight",
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
     let header = header_line(&keys);
-    let mut out = std::io::BufWriter::with_capacity(1 << 20, std::fs::File::create(register.join("PD-2000.csv"))?);
+    let mut out = std::io::BufWriter::with_capacity(
+        1 << 20,
+        std::fs::File::create(register.join("PD-2000.csv"))?,
+    );
     writeln!(out, "{header}")?;
     let mut prev = seed(&header);
     let mut rng = Rng(42);
@@ -62,9 +77,16 @@ pub fn generate(register: &Path, n: usize) -> std::io::Result<()> {
 }
 
 /// Runs the binary; returns (wall seconds, peak resident memory in MB).
+// The child is reaped by wait4 below (which also gives its rusage), not by Child::wait.
+#[allow(clippy::zombie_processes)]
 fn measure(bin: &Path, dir: &Path, args: &[&str]) -> (f64, f64) {
     let t = Instant::now();
-    let child = Command::new(bin).current_dir(dir).args(args).stdout(std::process::Stdio::null()).spawn().unwrap();
+    let child = Command::new(bin)
+        .current_dir(dir)
+        .args(args)
+        .stdout(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
     let pid = child.id() as libc::pid_t;
     let mut status = 0;
     let mut usage: libc::rusage = unsafe { std::mem::zeroed() };
@@ -85,19 +107,39 @@ fn main() {
     if !register.join("PD-2000.csv").exists() {
         let t = Instant::now();
         generate(&register, LOTS).unwrap();
-        eprintln!("generated {LOTS} lots in {:.1} s", t.elapsed().as_secs_f64());
+        eprintln!(
+            "generated {LOTS} lots in {:.1} s",
+            t.elapsed().as_secs_f64()
+        );
     }
     let specs = dir.join("specs");
     if !specs.exists() {
         let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("specs");
         copy_dir(&src, &specs);
     }
-    let size = std::fs::metadata(register.join("PD-2000.csv")).unwrap().len();
+    let size = std::fs::metadata(register.join("PD-2000.csv"))
+        .unwrap()
+        .len();
     println!("trend file: {LOTS} lots, {:.0} MB", size as f64 / 1e6);
     let runs: &[(&str, Vec<&str>)] = &[
         ("lookup (one lot)", vec!["lookup", "B0500000"]),
-        ("find (two windows)", vec!["find", "--product", "PD-2000", "--where", "mn=1950..2050", "--where", "acid_value=..0.5", "--csv"]),
-        ("trend (one property)", vec!["trend", "PD-2000", "--property", "hydroxyl_value", "--json"]),
+        (
+            "find (two windows)",
+            vec![
+                "find",
+                "--product",
+                "PD-2000",
+                "--where",
+                "mn=1950..2050",
+                "--where",
+                "acid_value=..0.5",
+                "--csv",
+            ],
+        ),
+        (
+            "trend (one property)",
+            vec!["trend", "PD-2000", "--property", "hydroxyl_value", "--json"],
+        ),
     ];
     for (name, args) in runs {
         if args[0] == "trend" && !trend_available(&bin) {
@@ -111,12 +153,20 @@ fn main() {
             peak = peak.max(m);
         }
         times.sort_by(f64::total_cmp);
-        println!("{name:<22} median {:>7.0} ms  (min {:.0}, max {:.0})  peak RSS {peak:.0} MB", times[2] * 1e3, times[0] * 1e3, times[4] * 1e3);
+        println!(
+            "{name:<22} median {:>7.0} ms  (min {:.0}, max {:.0})  peak RSS {peak:.0} MB",
+            times[2] * 1e3,
+            times[0] * 1e3,
+            times[4] * 1e3
+        );
     }
 }
 
 fn trend_available(bin: &Path) -> bool {
-    Command::new(bin).args(["trend", "--help"]).output().is_ok_and(|o| o.status.success())
+    Command::new(bin)
+        .args(["trend", "--help"])
+        .output()
+        .is_ok_and(|o| o.status.success())
 }
 
 fn copy_dir(from: &Path, to: &Path) {

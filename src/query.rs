@@ -173,6 +173,103 @@ pub fn parse_date(flag: &str, text: &str) -> Result<NaiveDate> {
     })
 }
 
+/// The current (latest) row of one lot, reduced to what queries need.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LotRow {
+    /// Line in the trend file.
+    pub line: usize,
+    /// Lot id.
+    pub lot: String,
+    /// Manufacture date (YYYY-MM-DD).
+    pub manufactured: String,
+    /// Status (snake_case).
+    pub status: String,
+    /// Spec revision applied.
+    pub revision: String,
+    /// Expanded uncertainty of Mn.
+    pub mn_uncertainty: Option<f64>,
+    /// Values of the requested keys, in order (None when empty).
+    pub values: Vec<Option<f64>>,
+}
+
+/// Streams a trend file and keeps the latest row of every lot, with the values of `keys`.
+/// Returns the property keys the file has, and the lots in order of their latest row.
+pub fn current_lots(path: &Path, keys: &[String]) -> Result<(Vec<String>, Vec<LotRow>)> {
+    let mut wanted: Vec<&str> = vec![
+        "lot",
+        "manufactured",
+        "status",
+        "spec_revision",
+        "mn_uncertainty",
+    ];
+    wanted.extend(keys.iter().map(String::as_str));
+    let mut index: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
+    let mut rows: Vec<LotRow> = Vec::new();
+    let num = |s: &str| {
+        if s.is_empty() {
+            None
+        } else {
+            s.parse::<f64>().ok()
+        }
+    };
+    let columns = register::scan(path, &wanted, |line, c| {
+        let row = LotRow {
+            line,
+            lot: String::new(),
+            manufactured: c[1].to_string(),
+            status: c[2].to_string(),
+            revision: c[3].to_string(),
+            mn_uncertainty: num(c[4]),
+            values: c[5..].iter().map(|v| num(v)).collect(),
+        };
+        match index.get(c[0]) {
+            Some(&i) => {
+                rows[i] = LotRow {
+                    lot: rows[i].lot.clone(),
+                    ..row
+                }
+            }
+            None => {
+                index.insert(c[0].to_string(), rows.len());
+                rows.push(LotRow {
+                    lot: c[0].to_string(),
+                    ..row
+                });
+            }
+        }
+    })?;
+    rows.sort_by_key(|r| r.line);
+    let n = columns.len();
+    let file_keys = columns[register::PREFIX.len()..n - register::SUFFIX.len()]
+        .iter()
+        .filter(|c| !c.ends_with("_verdict"))
+        .cloned()
+        .collect();
+    Ok((file_keys, rows))
+}
+
+/// The property keys of a trend file (from its header only).
+pub fn trend_keys(path: &Path) -> Result<Vec<String>> {
+    let file = std::fs::File::open(path).map_err(|e| Error::io(path, "reading", e))?;
+    let mut first = String::new();
+    std::io::BufRead::read_line(&mut std::io::BufReader::new(file), &mut first)
+        .map_err(|e| Error::io(path, "reading", e))?;
+    let columns = register::split_line(first.trim_end());
+    if !register::is_trend_header(&columns) {
+        return Err(Error::invalid(
+            format!("{}:1", path.display()),
+            "this is not a resinlot trend file (unexpected header)",
+            "Keep only trend files and certificates.csv in the register folder.",
+        ));
+    }
+    let n = columns.len();
+    Ok(columns[register::PREFIX.len()..n - register::SUFFIX.len()]
+        .iter()
+        .filter(|c| !c.ends_with("_verdict"))
+        .cloned()
+        .collect())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

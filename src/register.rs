@@ -502,6 +502,72 @@ impl Locked {
     }
 }
 
+/// Streams a trend file's rows for a read-only query, handing `visit` the 1-based line number
+/// and the cells of the requested columns (in the order asked). The header is checked; rows
+/// are not hash-verified (that is `verify`'s job). Memory stays flat however long the file is.
+pub fn scan(
+    path: &Path,
+    wanted: &[&str],
+    mut visit: impl FnMut(usize, &[&str]),
+) -> Result<Vec<String>> {
+    let file = File::open(path).map_err(|e| Error::io(path, "reading", e))?;
+    let mut reader = csv::ReaderBuilder::new()
+        .has_headers(true)
+        .flexible(false)
+        .from_reader(std::io::BufReader::with_capacity(1 << 20, file));
+    let columns: Vec<String> = reader
+        .headers()
+        .map_err(|e| {
+            Error::invalid(
+                path.display().to_string(),
+                e.to_string(),
+                "Check the trend file with `resinlot verify`.",
+            )
+        })?
+        .iter()
+        .map(str::to_string)
+        .collect();
+    if !is_trend_header(&columns) {
+        return Err(Error::invalid(
+            format!("{}:1", path.display()),
+            "this is not a resinlot trend file (unexpected header)",
+            "Keep only trend files and certificates.csv in the register folder.",
+        ));
+    }
+    let idx: Vec<Option<usize>> = wanted
+        .iter()
+        .map(|w| columns.iter().position(|c| c == w))
+        .collect();
+    let mut record = csv::ByteRecord::new();
+    let mut line = 1usize;
+    loop {
+        match reader.read_byte_record(&mut record) {
+            Ok(false) => break,
+            Ok(true) => {}
+            Err(e) => {
+                return Err(Error::invalid(
+                    format!(
+                        "{}:{}",
+                        path.display(),
+                        e.position().map_or(line + 1, |p| p.line() as usize)
+                    ),
+                    e.to_string(),
+                    "Check the trend file with `resinlot verify`.",
+                ))
+            }
+        }
+        line += 1;
+        let cells: Vec<&str> = idx
+            .iter()
+            .map(|i| {
+                std::str::from_utf8(i.and_then(|i| record.get(i)).unwrap_or(b"")).unwrap_or("")
+            })
+            .collect();
+        visit(line, &cells);
+    }
+    Ok(columns)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -48,46 +48,148 @@ fn steps() -> Vec<Step> {
     }
     let mut a = vec!["release", "demo-lots/lims-export-2026-11.csv"];
     a.extend(approver);
-    v.push(step("release the newest lots from the lab-system export, with internal certificates", &a, &[0]));
     v.push(step(
-        "certify a shipment for a customer",
-        &["certify", "F2611-D05", "--customer", "brantwick", "--po", "BE-PO-88121", "--quantity", "20 t", "--html"],
+        "release the newest lots from the lab-system export, with internal certificates",
+        &a,
         &[0],
     ));
-    v.push(step("certify a shipment for a customer", &["certify", "F2611-B04", "--customer", "quillon", "--po", "QAS-5530", "--quantity", "8 drums"], &[0]));
-    v.push(step("certify a shipment for a customer", &["certify", "F2611-C04", "--customer", "kessel", "--po", "KD/2026/417", "--quantity", "12 t"], &[0]));
-    v.push(step("refuse a lot that misses a customer's tighter window", &["certify", "F2611-D03", "--customer", "brantwick"], &[1]));
-    for (code, file) in [("PD-2000", "pd-2000"), ("PB-4800", "pb-4800"), ("SPC-35", "spc-35")] {
+    v.push(step(
+        "certify a shipment for a customer",
+        &[
+            "certify",
+            "F2611-D05",
+            "--customer",
+            "brantwick",
+            "--po",
+            "BE-PO-88121",
+            "--quantity",
+            "20 t",
+            "--html",
+        ],
+        &[0],
+    ));
+    v.push(step(
+        "certify a shipment for a customer",
+        &[
+            "certify",
+            "F2611-B04",
+            "--customer",
+            "quillon",
+            "--po",
+            "QAS-5530",
+            "--quantity",
+            "8 drums",
+        ],
+        &[0],
+    ));
+    v.push(step(
+        "certify a shipment for a customer",
+        &[
+            "certify",
+            "F2611-C04",
+            "--customer",
+            "kessel",
+            "--po",
+            "KD/2026/417",
+            "--quantity",
+            "12 t",
+        ],
+        &[0],
+    ));
+    v.push(step(
+        "refuse a lot that misses a customer's tighter window",
+        &["certify", "F2611-D03", "--customer", "brantwick"],
+        &[1],
+    ));
+    for (code, file) in [
+        ("PD-2000", "pd-2000"),
+        ("PB-4800", "pb-4800"),
+        ("SPC-35", "spc-35"),
+    ] {
         let report = format!("outputs/{file}-trend.pdf");
         v.push(Step {
             what: "trend every property of a product, with the PDF report",
-            args: ["trend", code, "--report", report.as_str()].iter().map(|s| s.to_string()).collect(),
+            args: ["trend", code, "--report", report.as_str()]
+                .iter()
+                .map(|s| s.to_string())
+                .collect(),
             expect: &[0, 1],
         });
     }
     v.push(step(
         "chart the drifting hydroxyl value",
-        &["trend", "PD-2000", "--property", "hydroxyl_value", "--chart", "outputs/pd-2000-hydroxyl-value.svg", "--png"],
+        &[
+            "trend",
+            "PD-2000",
+            "--property",
+            "hydroxyl_value",
+            "--chart",
+            "outputs/pd-2000-hydroxyl-value.svg",
+            "--png",
+        ],
         &[0, 1],
     ));
-    v.push(step("customer service: what is the Mn of lot F2611-D05?", &["lookup", "F2611-D05"], &[0]));
     v.push(step(
-        "customer service: PD-2000 lots with Mn 1950-2050 and AV at most 0.5",
-        &["find", "--product", "PD-2000", "--where", "mn=1950..2050", "--where", "acid_value=..0.5", "--status", "released"],
+        "customer service: what is the Mn of lot F2611-D05?",
+        &["lookup", "F2611-D05"],
         &[0],
     ));
-    v.push(step("customer service: which SPC-35 lots can go to Marlpit?", &["find", "--product", "SPC-35", "--customer", "marlpit"], &[0]));
+    v.push(step(
+        "customer service: PD-2000 lots with Mn 1950-2050 and AV at most 0.5",
+        &[
+            "find",
+            "--product",
+            "PD-2000",
+            "--where",
+            "mn=1950..2050",
+            "--where",
+            "acid_value=..0.5",
+            "--status",
+            "released",
+        ],
+        &[0],
+    ));
+    v.push(step(
+        "customer service: which SPC-35 lots can go to Marlpit?",
+        &["find", "--product", "SPC-35", "--customer", "marlpit"],
+        &[0],
+    ));
     v.push(step(
         "fit a cook and predict its end point",
-        &["cook", "demo-lots/cooks/pd2000-200-a.csv", "--recipe", "specs/recipes/pd-2000.toml", "--target-av", "1.0", "--chart", "outputs/cook.svg"],
+        &[
+            "cook",
+            "demo-lots/cooks/pd2000-200-a.csv",
+            "--recipe",
+            "specs/recipes/pd-2000.toml",
+            "--target-av",
+            "1.0",
+            "--chart",
+            "outputs/cook.svg",
+        ],
         &[0],
     ));
     v.push(step(
         "size a correction for a batch whose hydroxyl value is low",
-        &["adjust", "--recipe", "specs/recipes/pd-2000.toml", "--batch-kg", "9740", "--av", "1.1", "--ohv", "50.4", "--target-ohv", "56"],
+        &[
+            "adjust",
+            "--recipe",
+            "specs/recipes/pd-2000.toml",
+            "--batch-kg",
+            "9740",
+            "--av",
+            "1.1",
+            "--ohv",
+            "50.4",
+            "--target-ohv",
+            "56",
+        ],
         &[0],
     ));
-    v.push(step("check that the whole record is intact", &["verify"], &[0]));
+    v.push(step(
+        "check that the whole record is intact",
+        &["verify"],
+        &[0],
+    ));
     v
 }
 
@@ -95,7 +197,13 @@ fn slug(n: usize, args: &[String]) -> String {
     let name: String = args[..args.len().min(2)]
         .join("-")
         .chars()
-        .map(|c| if c.is_ascii_alphanumeric() || c == '-' { c.to_ascii_lowercase() } else { '-' })
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '-' {
+                c.to_ascii_lowercase()
+            } else {
+                '-'
+            }
+        })
         .collect();
     format!("{n:02}-{name}.txt")
 }
@@ -106,7 +214,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     crate::workspace::prepare_demo(dir)?;
     let outputs = dir.join("outputs");
     std::fs::create_dir_all(&outputs).map_err(|e| Error::io(&outputs, "creating folder", e))?;
-    let exe = std::env::current_exe().context("cannot find the resinlot executable to run the demo steps")?;
+    let exe = std::env::current_exe()
+        .context("cannot find the resinlot executable to run the demo steps")?;
     let steps = steps();
     let bar = indicatif::ProgressBar::new(steps.len() as u64);
     bar.set_style(
@@ -125,7 +234,15 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             "{:>2}. {}\n    resinlot {}\n    exit {code}{}; output in outputs/{out_name}\n",
             i + 1,
             s.what,
-            s.args.iter().map(|a| if a.contains(' ') { format!("\"{a}\"") } else { a.clone() }).collect::<Vec<_>>().join(" "),
+            s.args
+                .iter()
+                .map(|a| if a.contains(' ') {
+                    format!("\"{a}\"")
+                } else {
+                    a.clone()
+                })
+                .collect::<Vec<_>>()
+                .join(" "),
             if ok { "" } else { " (UNEXPECTED)" },
         ));
         bar.inc(1);
@@ -143,12 +260,18 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         "Some steps did not behave as intended: see the outputs marked UNEXPECTED.\n"
     });
     crate::output::print(&report)?;
-    Ok(if all_ok { Outcome::AllGood } else { Outcome::FellShort })
+    Ok(if all_ok {
+        Outcome::AllGood
+    } else {
+        Outcome::FellShort
+    })
 }
 
 fn run_step(exe: &Path, dir: &Path, args: &[String], out: &Path) -> anyhow::Result<i32> {
     let file = std::fs::File::create(out).map_err(|e| Error::io(out, "creating", e))?;
-    let err = file.try_clone().map_err(|e| Error::io(out, "creating", e))?;
+    let err = file
+        .try_clone()
+        .map_err(|e| Error::io(out, "creating", e))?;
     let status = Command::new(exe)
         .args(args)
         .current_dir(dir)

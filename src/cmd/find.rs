@@ -2,7 +2,6 @@
 
 use std::path::PathBuf;
 
-use rust_decimal::Decimal;
 use serde_json::{json, Map, Value};
 
 use crate::cmd::Outcome;
@@ -88,8 +87,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         )
         .into());
     }
-    let trend = crate::register::read_fast(&path)?;
-    let keys = trend.keys();
+    let keys = crate::query::trend_keys(&path)?;
     for w in &windows {
         if !keys.contains(&w.key) {
             return Err(Error::invalid(
@@ -109,26 +107,24 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         }
         None => (None, None),
     };
-    let col = |n: &str| trend.col(n).expect("trend header checked");
-    let (c_status, c_made, c_rev) = (col("status"), col("manufactured"), col("spec_revision"));
-    let mut hits = Vec::new();
-    for row in trend.current_rows() {
-        let cells = &row.cells;
-        if status.is_some_and(|s| s.as_str() != cells[c_status]) {
+    let (_, lots) = crate::query::current_lots(&path, &keys)?;
+    let at = |k: &str| keys.iter().position(|x| x == k).expect("key checked");
+    let win_idx: Vec<usize> = windows.iter().map(|w| at(&w.key)).collect();
+    let mut hits: Vec<&crate::query::LotRow> = Vec::new();
+    for row in &lots {
+        if status.is_some_and(|s| s.as_str() != row.status) {
             continue;
         }
-        let made = chrono::NaiveDate::parse_from_str(&cells[c_made], "%Y-%m-%d").ok();
+        let made = chrono::NaiveDate::parse_from_str(&row.manufactured, "%Y-%m-%d").ok();
         if from.is_some_and(|f| made.is_none_or(|m| m < f))
             || to.is_some_and(|t| made.is_none_or(|m| m > t))
         {
             continue;
         }
-        let fits = windows.iter().all(|w| {
-            trend
-                .cell(row, &w.key)
-                .parse::<f64>()
-                .is_ok_and(|v| w.contains(v))
-        });
+        let fits = windows
+            .iter()
+            .zip(&win_idx)
+            .all(|(w, &i)| row.values[i].is_some_and(|v| w.contains(v)));
         if !fits {
             continue;
         }
@@ -136,17 +132,22 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             let Some(spec) = specs
                 .products
                 .get(&args.product)
-                .and_then(|r| r.iter().find(|s| s.revision == cells[c_rev]))
+                .and_then(|r| r.iter().find(|s| s.revision == row.revision))
             else {
                 continue;
             };
             let cp = cu.product(&args.product)?;
             let ok = spec.properties.iter().all(|p| {
-                let Some(value) = value_of(trend.cell(row, &p.key)) else {
+                let Some(value) = keys
+                    .iter()
+                    .position(|k| *k == p.key)
+                    .and_then(|i| row.values[i])
+                    .and_then(decimal_from_f64)
+                else {
                     return !p.has_limit() && !cp.limits.contains_key(&p.key);
                 };
                 let u = if p.key == "mn" {
-                    value_of(trend.cell(row, "mn_uncertainty"))
+                    row.mn_uncertainty.and_then(decimal_from_f64)
                 } else if p.derived {
                     None
                 } else {
@@ -162,27 +163,22 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         hits.push(row);
     }
     hits.sort_by(|a, b| {
-        b.cells[c_made]
-            .cmp(&a.cells[c_made])
+        b.manufactured
+            .cmp(&a.manufactured)
             .then(b.line.cmp(&a.line))
     });
+    let fmt = |v: Option<f64>| v.map(|x| x.to_string()).unwrap_or_default();
     let text = if args.json {
         let lots: Vec<Value> = hits
             .iter()
             .map(|r| {
                 let mut m = Map::new();
-                m.insert("lot".into(), json!(trend.cell(r, "lot")));
-                m.insert("product".into(), json!(trend.cell(r, "product")));
-                m.insert("manufactured".into(), json!(trend.cell(r, "manufactured")));
-                m.insert("status".into(), json!(trend.cell(r, "status")));
-                for k in &keys {
-                    m.insert(
-                        k.clone(),
-                        trend
-                            .cell(r, k)
-                            .parse::<f64>()
-                            .map_or(Value::Null, |v| json!(v)),
-                    );
+                m.insert("lot".into(), json!(r.lot));
+                m.insert("product".into(), json!(args.product));
+                m.insert("manufactured".into(), json!(r.manufactured));
+                m.insert("status".into(), json!(r.status));
+                for (k, v) in keys.iter().zip(&r.values) {
+                    m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
                 }
                 Value::Object(m)
             })
@@ -194,7 +190,13 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         header.extend(keys.iter().map(String::as_str));
         w.write_record(&header)?;
         for r in &hits {
-            let rec: Vec<&str> = header.iter().map(|h| trend.cell(r, h)).collect();
+            let mut rec = vec![
+                r.lot.clone(),
+                args.product.clone(),
+                r.manufactured.clone(),
+                r.status.clone(),
+            ];
+            rec.extend(r.values.iter().map(|v| fmt(*v)));
             w.write_record(&rec)?;
         }
         String::from_utf8(w.into_inner()?)?
@@ -213,13 +215,9 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             h
         }];
         for r in &hits {
-            let mut line = vec![
-                trend.cell(r, "lot").to_string(),
-                trend.cell(r, "manufactured").to_string(),
-                trend.cell(r, "status").to_string(),
-            ];
+            let mut line = vec![r.lot.clone(), r.manufactured.clone(), r.status.clone()];
             for k in &show {
-                line.push(short_number(trend.cell(r, k)));
+                line.push(short_number(&fmt(r.values[at(k)])));
             }
             rows.push(line);
         }
@@ -241,12 +239,6 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     };
     crate::output::print(&text)?;
     Ok(Outcome::AllGood)
-}
-
-fn value_of(cell: &str) -> Option<Decimal> {
-    cell.parse::<Decimal>()
-        .ok()
-        .or_else(|| cell.parse::<f64>().ok().and_then(decimal_from_f64))
 }
 
 /// Shortens a full-precision number for the table (four significant decimals at most).
