@@ -3,6 +3,7 @@
 //! Domain modules know nothing of the command line; `cli` and `cmd` sit on top of them.
 
 pub mod analysis;
+pub mod certificate;
 pub mod chemistry;
 pub mod cli;
 pub mod clock;
@@ -10,6 +11,7 @@ pub mod cmd;
 pub mod error;
 pub mod output;
 pub mod recipe;
+pub mod render;
 pub mod table;
 pub mod tomlfile;
 

@@ -1,0 +1,318 @@
+//! PDF step: lays the certificate HTML out with printpdf's HTML engine on A4, using only the
+//! bundled DejaVu fonts, then stamps footer and NOT RELEASED marking with printpdf operations.
+
+use std::collections::{BTreeMap, HashMap};
+use std::sync::{Arc, Mutex};
+
+use printpdf::html::{rust_fontconfig, SharedFontPool};
+use printpdf::{
+    Base64OrRaw, BuiltinFont, Color, GeneratePdfOptions, Op, PaintMode, PdfDocument, PdfFontHandle,
+    PdfPage, PdfSaveOptions, Point, Pt, Rect, Rgb, TextItem, TextMatrix, TextRenderingMode,
+};
+
+use crate::certificate::Certificate;
+use crate::error::{Error, Result};
+
+/// DejaVu Sans (Bitstream Vera licence, see `fonts/LICENSE-DejaVu.txt`).
+const DEJAVU_SANS: &[u8] = include_bytes!("../../fonts/DejaVuSans.ttf");
+/// DejaVu Sans Bold (same licence).
+const DEJAVU_SANS_BOLD: &[u8] = include_bytes!("../../fonts/DejaVuSans-Bold.ttf");
+
+/// A4 in millimetres (ISO 216).
+const PAGE_W_MM: f32 = 210.0;
+const PAGE_H_MM: f32 = 297.0;
+/// Points per millimetre (1 pt = 1/72 in, 1 in = 25.4 mm).
+const PT_PER_MM: f32 = 72.0 / 25.4;
+/// Page margins of the HTML layout, mm. The bottom margin leaves room for the stamped footer,
+/// the top margin for the NOT RELEASED banner.
+const MARGIN_TOP_MM: f32 = 16.0;
+const MARGIN_SIDE_MM: f32 = 16.0;
+const MARGIN_BOTTOM_MM: f32 = 20.0;
+
+/// The fonts every certificate is laid out with, parsed once and shared across threads.
+///
+/// Only the bundled fonts are registered: no system font is scanned or used, so a certificate
+/// looks the same on every machine.
+#[derive(Debug, Clone)]
+pub struct FontPool {
+    pool: SharedFontPool,
+    fonts: BTreeMap<String, Base64OrRaw>,
+}
+
+impl FontPool {
+    /// Builds the pool from the bundled DejaVu Sans regular and bold faces. The template
+    /// selects them with `font-family: "DejaVu Sans"` and `font-weight: bold`.
+    pub fn bundled() -> FontPool {
+        let raw: BTreeMap<String, Vec<u8>> = BTreeMap::from([
+            ("DejaVu Sans".to_string(), DEJAVU_SANS.to_vec()),
+            ("DejaVu Sans Bold".to_string(), DEJAVU_SANS_BOLD.to_vec()),
+        ]);
+        // An empty fontconfig cache with only our memory fonts: printpdf's
+        // `build_font_pool` would also scan the system font folders.
+        let cache = rust_fontconfig::FcFontCache::default();
+        for (name, bytes) in &raw {
+            if let Some(faces) = rust_fontconfig::FcParseFontBytes(bytes, name) {
+                cache.with_memory_fonts(faces);
+            }
+        }
+        let pool = SharedFontPool {
+            fc_cache: Arc::new(cache),
+            parsed_fonts: Arc::new(Mutex::new(HashMap::new())),
+        };
+        let fonts = raw
+            .into_iter()
+            .map(|(k, v)| (k, Base64OrRaw::Raw(v)))
+            .collect();
+        FontPool { pool, fonts }
+    }
+}
+
+/// Lays `html` out as an A4 PDF and stamps every page with the certificate number and
+/// "Page x of y", plus the NOT RELEASED marking when `cert.released` is false.
+pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Vec<u8>> {
+    let options = GeneratePdfOptions {
+        page_width: Some(PAGE_W_MM),
+        page_height: Some(PAGE_H_MM),
+        margin_top: Some(MARGIN_TOP_MM),
+        margin_right: Some(MARGIN_SIDE_MM),
+        margin_bottom: Some(MARGIN_BOTTOM_MM),
+        margin_left: Some(MARGIN_SIDE_MM),
+        ..GeneratePdfOptions::default()
+    };
+    let mut warnings = Vec::new();
+    let mut doc = PdfDocument::from_html_with_cache(
+        html,
+        &BTreeMap::new(),
+        &fonts.fonts,
+        &options,
+        &mut warnings,
+        Some(fonts.pool.clone()),
+    )
+    .map_err(|e| layout_error(cert, &e))?;
+    if doc.pages.is_empty() {
+        let detail = warnings
+            .iter()
+            .map(|w| w.msg.clone())
+            .collect::<Vec<_>>()
+            .join("; ");
+        return Err(layout_error(
+            cert,
+            &format!("no page was produced ({detail})"),
+        ));
+    }
+    doc.metadata.info.document_title = format!("{} {}", cert.title, cert.number);
+    doc.metadata.info.subject = format!("Lot {} of {}", cert.lot.id, cert.product.code);
+    doc.metadata.info.creator = "resinlot".to_string();
+    doc.metadata.info.producer = "resinlot (printpdf)".to_string();
+    doc.metadata.info.identifier = cert.number.clone();
+    let pages = doc.pages.len();
+    for (i, page) in doc.pages.iter_mut().enumerate() {
+        stamp_footer(page, cert, i + 1, pages);
+        if !cert.released {
+            stamp_not_released(page);
+        }
+    }
+    let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);
+    set_document_id(&mut bytes, cert);
+    Ok(bytes)
+}
+
+/// Replaces the random file identifier printpdf writes into the trailer (`/ID[(..)(..)]`,
+/// ISO 32000-1 §14.4) with one derived from the certificate's content, so the same
+/// certificate always gives the same bytes (and the same SHA-256). Both strings keep their
+/// length of 32 characters, so no byte offset in the file moves.
+fn set_document_id(bytes: &mut [u8], cert: &Certificate) {
+    use sha2::{Digest, Sha256};
+    const MARK: &[u8] = b"/ID[(";
+    const LEN: usize = 32;
+    let Some(start) = bytes.windows(MARK.len()).rposition(|w| w == MARK) else {
+        return;
+    };
+    let first = start + MARK.len();
+    let second = first + LEN + 2; // skip ")("
+    if bytes.len() < second + LEN || &bytes[first + LEN..second] != b")(" {
+        return;
+    }
+    let json = serde_json::to_vec(cert).unwrap_or_default();
+    let digest = Sha256::digest(&json);
+    let hex: String = digest.iter().map(|b| format!("{b:02X}")).collect();
+    // Permanent and instance identifier are equal for a file that is never updated.
+    bytes[first..first + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
+    bytes[second..second + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
+}
+
+fn layout_error(cert: &Certificate, problem: &str) -> Error {
+    Error::invalid(
+        format!("certificate {}", cert.number),
+        format!("the PDF layout failed: {problem}"),
+        "Check the certificate template for markup the PDF engine cannot lay out.",
+    )
+}
+
+/// Advance widths of Helvetica / Helvetica-Bold in 1/1000 em (Adobe Core 14 AFM files;
+/// from memory, checked on the rendered pages), for the characters the stamps use.
+fn helvetica_width(text: &str, bold: bool) -> f32 {
+    text.chars()
+        .map(|c| match (c, bold) {
+            ('0'..='9', _) => 556.0,
+            (' ', _) => 278.0,
+            ('A' | 'D' | 'N' | 'R' | 'H' | 'U', _) => 722.0,
+            ('E' | 'S' | 'P' | 'K' | 'B' | 'V' | 'X', _) => 667.0,
+            ('O' | 'Q' | 'G', _) => 778.0,
+            ('T' | 'L' | 'F' | 'Z', _) => 611.0,
+            ('C', _) => 722.0,
+            ('M', _) => 833.0,
+            ('W', _) => 944.0,
+            ('I', _) => 278.0,
+            ('f' | 't', false) => 278.0,
+            ('f' | 't', true) => 333.0,
+            ('i' | 'l', _) => 222.0,
+            ('-', _) => 333.0,
+            ('.' | ',' | ':' | '/', _) => 278.0,
+            (_, false) => 556.0,
+            (_, true) => 611.0,
+        })
+        .sum::<f32>()
+        / 1000.0
+}
+
+fn rgb(r: f32, g: f32, b: f32) -> Color {
+    Color::Rgb(Rgb::new(r, g, b, None))
+}
+
+fn text_ops(font: BuiltinFont, size: f32, x: f32, y: f32, text: &str) -> Vec<Op> {
+    vec![
+        Op::StartTextSection,
+        Op::SetFont {
+            font: PdfFontHandle::Builtin(font),
+            size: Pt(size),
+        },
+        Op::SetTextCursor {
+            pos: Point { x: Pt(x), y: Pt(y) },
+        },
+        Op::ShowText {
+            items: vec![TextItem::Text(text.to_string())],
+        },
+        Op::EndTextSection,
+    ]
+}
+
+/// Keeps only printable ASCII for the builtin-font stamps (their encoding is WinAnsi).
+fn ascii(text: &str) -> String {
+    text.chars()
+        .map(|c| {
+            if c.is_ascii_graphic() || c == ' ' {
+                c
+            } else {
+                '?'
+            }
+        })
+        .collect()
+}
+
+/// Footer: a rule, the certificate and lot numbers on the left, "Page x of y" on the right.
+fn stamp_footer(page: &mut PdfPage, cert: &Certificate, index: usize, count: usize) {
+    let left_x = MARGIN_SIDE_MM * PT_PER_MM;
+    let right_x = (PAGE_W_MM - MARGIN_SIDE_MM) * PT_PER_MM;
+    let rule_y = 14.0 * PT_PER_MM;
+    let text_y = 10.0 * PT_PER_MM;
+    let size = 8.0;
+    let left = ascii(&format!(
+        "Certificate No. {}   Lot {}   {} rev. {}",
+        cert.number, cert.lot.id, cert.spec.code, cert.spec.revision
+    ));
+    let right = format!("Page {index} of {count}");
+    let right_w = helvetica_width(&right, true) * size;
+    page.ops.push(Op::SaveGraphicsState);
+    page.ops.push(Op::SetFillColor {
+        col: rgb(0.60, 0.66, 0.69),
+    });
+    page.ops.push(Op::DrawRectangle {
+        rectangle: Rect {
+            mode: Some(PaintMode::Fill),
+            ..Rect::from_xywh(Pt(left_x), Pt(rule_y), Pt(right_x - left_x), Pt(0.6))
+        },
+    });
+    page.ops.push(Op::SetFillColor {
+        col: rgb(0.11, 0.14, 0.16),
+    });
+    page.ops.extend(text_ops(
+        BuiltinFont::Helvetica,
+        size,
+        left_x,
+        text_y,
+        &left,
+    ));
+    page.ops.extend(text_ops(
+        BuiltinFont::HelveticaBold,
+        size,
+        right_x - right_w,
+        text_y,
+        &right,
+    ));
+    page.ops.push(Op::RestoreGraphicsState);
+}
+
+/// NOT RELEASED marking: a red banner across the top edge and large outlined red letters on
+/// the page diagonal, drawn over the content so no copy or crop can lose it.
+fn stamp_not_released(page: &mut PdfPage) {
+    let w = PAGE_W_MM * PT_PER_MM;
+    let h = PAGE_H_MM * PT_PER_MM;
+    let red = rgb(0.80, 0.05, 0.05);
+    page.ops.push(Op::SaveGraphicsState);
+
+    // Banner in the top margin.
+    let banner_h = 9.0 * PT_PER_MM;
+    let banner_y = h - 3.5 * PT_PER_MM - banner_h;
+    page.ops.push(Op::SetFillColor { col: red.clone() });
+    page.ops.push(Op::DrawRectangle {
+        rectangle: Rect {
+            mode: Some(PaintMode::Fill),
+            ..Rect::from_xywh(Pt(0.0), Pt(banner_y), Pt(w), Pt(banner_h))
+        },
+    });
+    let banner = "NOT RELEASED - INTERNAL RECORD - NOT FOR SHIPMENT";
+    let size = 12.0;
+    let bw = helvetica_width(banner, true) * size;
+    page.ops.push(Op::SetFillColor {
+        col: rgb(1.0, 1.0, 1.0),
+    });
+    page.ops.extend(text_ops(
+        BuiltinFont::HelveticaBold,
+        size,
+        (w - bw) / 2.0,
+        banner_y + (banner_h - 0.72 * size) / 2.0,
+        banner,
+    ));
+
+    // Diagonal outlined letters, centred on the page.
+    let text = "NOT RELEASED";
+    let size = 84.0;
+    let angle = (h / w).atan();
+    let tw = helvetica_width(text, true) * size;
+    let cap = 0.72 * size; // cap height of Helvetica-Bold, about 0.72 em
+    let (s, c) = angle.sin_cos();
+    let x = w / 2.0 - tw / 2.0 * c + cap / 2.0 * s;
+    let y = h / 2.0 - tw / 2.0 * s - cap / 2.0 * c;
+    page.ops.push(Op::SetOutlineColor { col: red });
+    page.ops.push(Op::SetOutlineThickness { pt: Pt(2.0) });
+    page.ops.push(Op::StartTextSection);
+    page.ops.push(Op::SetTextRenderingMode {
+        mode: TextRenderingMode::Stroke,
+    });
+    page.ops.push(Op::SetFont {
+        font: PdfFontHandle::Builtin(BuiltinFont::HelveticaBold),
+        size: Pt(size),
+    });
+    page.ops.push(Op::SetTextMatrix {
+        matrix: TextMatrix::TranslateRotate(Pt(x), Pt(y), angle.to_degrees()),
+    });
+    page.ops.push(Op::ShowText {
+        items: vec![TextItem::Text(text.to_string())],
+    });
+    page.ops.push(Op::SetTextRenderingMode {
+        mode: TextRenderingMode::Fill,
+    });
+    page.ops.push(Op::EndTextSection);
+    page.ops.push(Op::RestoreGraphicsState);
+}
