@@ -32,6 +32,9 @@ pub struct Site {
     pub contact: Vec<String>,
 }
 
+/// File name of the site file inside the templates folder.
+pub const SITE_FILE: &str = "site.toml";
+
 impl Site {
     /// Reads and validates a site file; errors name the file, line and field.
     pub fn load(path: &Path) -> Result<Site> {
@@ -302,7 +305,9 @@ mod tests {
 
     #[test]
     fn shipped_site_file_loads() {
-        let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("templates/site.toml");
+        let p = Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("templates")
+            .join(SITE_FILE);
         let site = Site::load(&p).unwrap();
         assert!(site.name.contains("Fenmoor"));
     }

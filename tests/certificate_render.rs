@@ -172,7 +172,7 @@ fn held_certificate_is_marked_not_released() {
     assert_eq!(pages.len(), 1);
     assert_all_fields(&cert, &pages[0]);
     assert!(
-        pages[0].contains("NOT RELEASED - INTERNAL RECORD"),
+        pages[0].contains("NOT RELEASED · INTERNAL RECORD · NOT FOR SHIPMENT"),
         "{}",
         pages[0]
     );

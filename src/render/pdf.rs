@@ -6,8 +6,9 @@ use std::sync::{Arc, Mutex};
 
 use printpdf::html::{rust_fontconfig, SharedFontPool};
 use printpdf::{
-    Base64OrRaw, BuiltinFont, Color, GeneratePdfOptions, Op, PaintMode, PdfDocument, PdfFontHandle,
-    PdfPage, PdfSaveOptions, Point, Pt, Rect, Rgb, TextItem, TextMatrix, TextRenderingMode,
+    Base64OrRaw, Color, FontId, GeneratePdfOptions, Op, PaintMode, ParsedFont, PdfDocument,
+    PdfFont, PdfFontHandle, PdfPage, PdfSaveOptions, Point, Pt, Rect, Rgb, TextItem, TextMatrix,
+    TextRenderingMode,
 };
 
 use crate::certificate::Certificate;
@@ -37,6 +38,9 @@ const MARGIN_BOTTOM_MM: f32 = 20.0;
 pub struct FontPool {
     pool: SharedFontPool,
     fonts: BTreeMap<String, Base64OrRaw>,
+    /// The same faces parsed for the stamps drawn after layout (footer, marking).
+    regular: ParsedFont,
+    bold: ParsedFont,
 }
 
 impl FontPool {
@@ -63,7 +67,61 @@ impl FontPool {
             .into_iter()
             .map(|(k, v)| (k, Base64OrRaw::Raw(v)))
             .collect();
-        FontPool { pool, fonts }
+        let parse = |bytes: &[u8]| {
+            ParsedFont::from_bytes(bytes, 0, &mut Vec::new())
+                .expect("the bundled DejaVu fonts are valid TrueType files")
+        };
+        FontPool {
+            pool,
+            fonts,
+            regular: parse(DEJAVU_SANS),
+            bold: parse(DEJAVU_SANS_BOLD),
+        }
+    }
+}
+
+/// A bundled face registered in one document, for drawing stamps.
+struct StampFont<'a> {
+    id: FontId,
+    face: &'a ParsedFont,
+}
+
+impl<'a> StampFont<'a> {
+    /// Registers `face` in `doc` under the id printpdf's HTML bridge gives it (`F<hash>`),
+    /// reusing the entry when the layout already embedded the same face.
+    fn register(doc: &mut PdfDocument, face: &'a ParsedFont) -> StampFont<'a> {
+        let id = FontId(format!("F{}", face.hash));
+        doc.resources
+            .fonts
+            .map
+            .entry(id.clone())
+            .or_insert_with(|| PdfFont::new(face.clone()));
+        StampFont { id, face }
+    }
+
+    /// Advance width of `text` at `size` points (hmtx advances, no kerning).
+    fn width(&self, text: &str, size: f32) -> f32 {
+        let units: u32 = text
+            .chars()
+            .map(|c| {
+                let gid = self.face.lookup_glyph_index(c as u32).unwrap_or(0);
+                u32::from(self.face.get_horizontal_advance(gid))
+            })
+            .sum();
+        units as f32 / f32::from(self.face.font_metrics.units_per_em) * size
+    }
+
+    /// Cap height at `size` points (OS/2 sCapHeight; 0.73 em when the font omits it).
+    fn cap_height(&self, size: f32) -> f32 {
+        let upem = f32::from(self.face.font_metrics.units_per_em);
+        self.face
+            .font_metrics
+            .cap_height
+            .map_or(0.73 * size, |c| c / upem * size)
+    }
+
+    fn handle(&self) -> PdfFontHandle {
+        PdfFontHandle::External(self.id.clone())
     }
 }
 
@@ -105,11 +163,13 @@ pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Ve
     doc.metadata.info.creator = "resinlot".to_string();
     doc.metadata.info.producer = "resinlot (printpdf)".to_string();
     doc.metadata.info.identifier = cert.number.clone();
+    let regular = StampFont::register(&mut doc, &fonts.regular);
+    let bold = StampFont::register(&mut doc, &fonts.bold);
     let pages = doc.pages.len();
     for (i, page) in doc.pages.iter_mut().enumerate() {
-        stamp_footer(page, cert, i + 1, pages);
+        stamp_footer(page, cert, i + 1, pages, &regular, &bold);
         if !cert.released {
-            stamp_not_released(page);
+            stamp_not_released(page, &bold);
         }
     }
     let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);
@@ -149,42 +209,15 @@ fn layout_error(cert: &Certificate, problem: &str) -> Error {
     )
 }
 
-/// Advance widths of Helvetica / Helvetica-Bold in 1/1000 em (Adobe Core 14 AFM files;
-/// from memory, checked on the rendered pages), for the characters the stamps use.
-fn helvetica_width(text: &str, bold: bool) -> f32 {
-    text.chars()
-        .map(|c| match (c, bold) {
-            ('0'..='9', _) => 556.0,
-            (' ', _) => 278.0,
-            ('A' | 'D' | 'N' | 'R' | 'H' | 'U', _) => 722.0,
-            ('E' | 'S' | 'P' | 'K' | 'B' | 'V' | 'X', _) => 667.0,
-            ('O' | 'Q' | 'G', _) => 778.0,
-            ('T' | 'L' | 'F' | 'Z', _) => 611.0,
-            ('C', _) => 722.0,
-            ('M', _) => 833.0,
-            ('W', _) => 944.0,
-            ('I', _) => 278.0,
-            ('f' | 't', false) => 278.0,
-            ('f' | 't', true) => 333.0,
-            ('i' | 'l', _) => 222.0,
-            ('-', _) => 333.0,
-            ('.' | ',' | ':' | '/', _) => 278.0,
-            (_, false) => 556.0,
-            (_, true) => 611.0,
-        })
-        .sum::<f32>()
-        / 1000.0
-}
-
 fn rgb(r: f32, g: f32, b: f32) -> Color {
     Color::Rgb(Rgb::new(r, g, b, None))
 }
 
-fn text_ops(font: BuiltinFont, size: f32, x: f32, y: f32, text: &str) -> Vec<Op> {
+fn text_ops(font: &StampFont, size: f32, x: f32, y: f32, text: &str) -> Vec<Op> {
     vec![
         Op::StartTextSection,
         Op::SetFont {
-            font: PdfFontHandle::Builtin(font),
+            font: font.handle(),
             size: Pt(size),
         },
         Op::SetTextCursor {
@@ -197,32 +230,26 @@ fn text_ops(font: BuiltinFont, size: f32, x: f32, y: f32, text: &str) -> Vec<Op>
     ]
 }
 
-/// Keeps only printable ASCII for the builtin-font stamps (their encoding is WinAnsi).
-fn ascii(text: &str) -> String {
-    text.chars()
-        .map(|c| {
-            if c.is_ascii_graphic() || c == ' ' {
-                c
-            } else {
-                '?'
-            }
-        })
-        .collect()
-}
-
 /// Footer: a rule, the certificate and lot numbers on the left, "Page x of y" on the right.
-fn stamp_footer(page: &mut PdfPage, cert: &Certificate, index: usize, count: usize) {
+fn stamp_footer(
+    page: &mut PdfPage,
+    cert: &Certificate,
+    index: usize,
+    count: usize,
+    regular: &StampFont,
+    bold: &StampFont,
+) {
     let left_x = MARGIN_SIDE_MM * PT_PER_MM;
     let right_x = (PAGE_W_MM - MARGIN_SIDE_MM) * PT_PER_MM;
     let rule_y = 14.0 * PT_PER_MM;
     let text_y = 10.0 * PT_PER_MM;
     let size = 8.0;
-    let left = ascii(&format!(
-        "Certificate No. {}   Lot {}   {} rev. {}",
+    let left = format!(
+        "Certificate No. {}  ·  Lot {}  ·  {} rev. {}",
         cert.number, cert.lot.id, cert.spec.code, cert.spec.revision
-    ));
+    );
     let right = format!("Page {index} of {count}");
-    let right_w = helvetica_width(&right, true) * size;
+    let right_w = bold.width(&right, size);
     page.ops.push(Op::SaveGraphicsState);
     page.ops.push(Op::SetFillColor {
         col: rgb(0.60, 0.66, 0.69),
@@ -236,26 +263,16 @@ fn stamp_footer(page: &mut PdfPage, cert: &Certificate, index: usize, count: usi
     page.ops.push(Op::SetFillColor {
         col: rgb(0.11, 0.14, 0.16),
     });
-    page.ops.extend(text_ops(
-        BuiltinFont::Helvetica,
-        size,
-        left_x,
-        text_y,
-        &left,
-    ));
-    page.ops.extend(text_ops(
-        BuiltinFont::HelveticaBold,
-        size,
-        right_x - right_w,
-        text_y,
-        &right,
-    ));
+    page.ops
+        .extend(text_ops(regular, size, left_x, text_y, &left));
+    page.ops
+        .extend(text_ops(bold, size, right_x - right_w, text_y, &right));
     page.ops.push(Op::RestoreGraphicsState);
 }
 
 /// NOT RELEASED marking: a red banner across the top edge and large outlined red letters on
 /// the page diagonal, drawn over the content so no copy or crop can lose it.
-fn stamp_not_released(page: &mut PdfPage) {
+fn stamp_not_released(page: &mut PdfPage, bold: &StampFont) {
     let w = PAGE_W_MM * PT_PER_MM;
     let h = PAGE_H_MM * PT_PER_MM;
     let red = rgb(0.80, 0.05, 0.05);
@@ -271,26 +288,27 @@ fn stamp_not_released(page: &mut PdfPage) {
             ..Rect::from_xywh(Pt(0.0), Pt(banner_y), Pt(w), Pt(banner_h))
         },
     });
-    let banner = "NOT RELEASED - INTERNAL RECORD - NOT FOR SHIPMENT";
+    let banner = "NOT RELEASED · INTERNAL RECORD · NOT FOR SHIPMENT";
     let size = 12.0;
-    let bw = helvetica_width(banner, true) * size;
+    let bw = bold.width(banner, size);
     page.ops.push(Op::SetFillColor {
         col: rgb(1.0, 1.0, 1.0),
     });
     page.ops.extend(text_ops(
-        BuiltinFont::HelveticaBold,
+        bold,
         size,
         (w - bw) / 2.0,
-        banner_y + (banner_h - 0.72 * size) / 2.0,
+        banner_y + (banner_h - bold.cap_height(size)) / 2.0,
         banner,
     ));
 
     // Diagonal outlined letters, centred on the page.
     let text = "NOT RELEASED";
-    let size = 84.0;
+    let size: f32 = 84.0;
     let angle = (h / w).atan();
-    let tw = helvetica_width(text, true) * size;
-    let cap = 0.72 * size; // cap height of Helvetica-Bold, about 0.72 em
+    let size = size.min(0.8 * (w * w + h * h).sqrt() / bold.width(text, 1.0));
+    let tw = bold.width(text, size);
+    let cap = bold.cap_height(size);
     let (s, c) = angle.sin_cos();
     let x = w / 2.0 - tw / 2.0 * c + cap / 2.0 * s;
     let y = h / 2.0 - tw / 2.0 * s - cap / 2.0 * c;
@@ -301,7 +319,7 @@ fn stamp_not_released(page: &mut PdfPage) {
         mode: TextRenderingMode::Stroke,
     });
     page.ops.push(Op::SetFont {
-        font: PdfFontHandle::Builtin(BuiltinFont::HelveticaBold),
+        font: bold.handle(),
         size: Pt(size),
     });
     page.ops.push(Op::SetTextMatrix {
