@@ -139,6 +139,15 @@ fn sample_certificate_carries_every_field() {
     assert!(pages[0].contains("Page 1 of 1"), "{}", pages[0]);
     assert!(pages[0].contains("Release authorised 2026-09-15"));
     assert!(!pages[0].contains("NOT RELEASED"), "{}", pages[0]);
+    // Only the bundled faces are embedded: no base-14 or system font.
+    let raw = String::from_utf8_lossy(&out.pdf);
+    assert!(raw.contains("DejaVuSans-Bold") && raw.contains("DejaVuSans"));
+    assert_eq!(
+        raw.matches("/FontFile2").count(),
+        2,
+        "exactly two embedded faces"
+    );
+    assert!(!raw.contains("/Helvetica"));
     // The symbols of the trade render as themselves.
     for sym in ["≤ 1.00", "53.0 – 59.0", "°C", "mPa·s", "± 29"] {
         assert!(pages[0].contains(sym), "{sym} missing");

@@ -6,8 +6,8 @@ use std::sync::{Arc, Mutex};
 
 use printpdf::html::{rust_fontconfig, SharedFontPool};
 use printpdf::{
-    Base64OrRaw, Color, FontId, GeneratePdfOptions, Op, PaintMode, ParsedFont, PdfDocument,
-    PdfFont, PdfFontHandle, PdfPage, PdfSaveOptions, Point, Pt, Rect, Rgb, TextItem, TextMatrix,
+    Color, FontId, GeneratePdfOptions, Op, PaintMode, ParsedFont, PdfDocument, PdfFont,
+    PdfFontHandle, PdfPage, PdfSaveOptions, Point, Pt, Rect, Rgb, TextItem, TextMatrix,
     TextRenderingMode,
 };
 
@@ -37,7 +37,6 @@ const MARGIN_BOTTOM_MM: f32 = 20.0;
 #[derive(Debug, Clone)]
 pub struct FontPool {
     pool: SharedFontPool,
-    fonts: BTreeMap<String, Base64OrRaw>,
     /// The same faces parsed for the stamps drawn after layout (footer, marking).
     regular: ParsedFont,
     bold: ParsedFont,
@@ -47,14 +46,13 @@ impl FontPool {
     /// Builds the pool from the bundled DejaVu Sans regular and bold faces. The template
     /// selects them with `font-family: "DejaVu Sans"` and `font-weight: bold`.
     pub fn bundled() -> FontPool {
-        let raw: BTreeMap<String, Vec<u8>> = BTreeMap::from([
-            ("DejaVu Sans".to_string(), DEJAVU_SANS.to_vec()),
-            ("DejaVu Sans Bold".to_string(), DEJAVU_SANS_BOLD.to_vec()),
-        ]);
         // An empty fontconfig cache with only our memory fonts: printpdf's
         // `build_font_pool` would also scan the system font folders.
         let cache = rust_fontconfig::FcFontCache::default();
-        for (name, bytes) in &raw {
+        for (name, bytes) in [
+            ("DejaVu Sans", DEJAVU_SANS),
+            ("DejaVu Sans Bold", DEJAVU_SANS_BOLD),
+        ] {
             if let Some(faces) = rust_fontconfig::FcParseFontBytes(bytes, name) {
                 cache.with_memory_fonts(faces);
             }
@@ -63,17 +61,12 @@ impl FontPool {
             fc_cache: Arc::new(cache),
             parsed_fonts: Arc::new(Mutex::new(HashMap::new())),
         };
-        let fonts = raw
-            .into_iter()
-            .map(|(k, v)| (k, Base64OrRaw::Raw(v)))
-            .collect();
         let parse = |bytes: &[u8]| {
             ParsedFont::from_bytes(bytes, 0, &mut Vec::new())
                 .expect("the bundled DejaVu fonts are valid TrueType files")
         };
         FontPool {
             pool,
-            fonts,
             regular: parse(DEJAVU_SANS),
             bold: parse(DEJAVU_SANS_BOLD),
         }
@@ -141,7 +134,10 @@ pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Ve
     let mut doc = PdfDocument::from_html_with_cache(
         html,
         &BTreeMap::new(),
-        &fonts.fonts,
+        // The faces reach the layout through the pool's font cache; passing them again in
+        // this map makes printpdf re-register both on every call (about 9 ms per certificate
+        // here) and gives byte-identical output, so the map stays empty.
+        &BTreeMap::new(),
         &options,
         &mut warnings,
         Some(fonts.pool.clone()),
