@@ -12,6 +12,18 @@ use resinlot::render::{self, FontPool, Templates};
 
 const BATCH: usize = 1_000;
 
+/// CPU time used by this process so far (user + system), in seconds, from /proc/self/stat
+/// (fields 14 and 15, in clock ticks of 1/100 s on Linux); `None` elsewhere. Reported beside
+/// wall time because these machines are shared and wall time depends on the other load.
+fn cpu_seconds() -> Option<f64> {
+    let stat = std::fs::read_to_string("/proc/self/stat").ok()?;
+    let after = &stat[stat.rfind(')')? + 2..];
+    let fields: Vec<&str> = after.split_whitespace().collect();
+    let utime: f64 = fields.get(11)?.parse().ok()?;
+    let stime: f64 = fields.get(12)?.parse().ok()?;
+    Some((utime + stime) / 100.0)
+}
+
 fn sample() -> Certificate {
     let path =
         Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/certificates/sample.json");
@@ -65,9 +77,13 @@ fn main() {
             c
         })
         .collect();
+    let cpu0 = cpu_seconds();
     let t = Instant::now();
     let batch = render::render_batch(&templates_dir, &certs, &fonts).expect("batch");
     let batch_s = t.elapsed().as_secs_f64();
+    let cpu_per_cert_ms = cpu_seconds()
+        .zip(cpu0)
+        .map(|(b, a)| (b - a) / BATCH as f64 * 1e3);
     assert_eq!(batch.len(), BATCH);
     let bytes: usize = batch.iter().map(|r| r.pdf.len()).sum();
 
@@ -83,4 +99,13 @@ fn main() {
         BATCH as f64 / batch_s,
         bytes as f64 / 1e6
     );
+    if let Some(ms) = cpu_per_cert_ms {
+        println!(
+            "CPU time per certificate in the batch: {ms:.1} ms (= {:.0} certificates/s per idle core)",
+            1e3 / ms
+        );
+    }
+    if let Ok(load) = std::fs::read_to_string("/proc/loadavg") {
+        println!("load average during the run: {}", load.trim());
+    }
 }
