@@ -149,7 +149,7 @@ fn sample_certificate_carries_every_field() {
     );
     assert!(!raw.contains("/Helvetica"));
     // The symbols of the trade render as themselves.
-    for sym in ["≤ 1.00", "53.0 – 59.0", "°C", "mPa·s", "± 29"] {
+    for sym in ["≤ 1.00", "≥ 99.5", "53.0 – 59.0", "°C", "mPa·s", "± 29"] {
         assert!(pages[0].contains(sym), "{sym} missing");
     }
 }
@@ -221,6 +221,20 @@ fn every_page_of_a_long_unreleased_certificate_is_stamped() {
             "page {}",
             i + 1
         );
+    }
+    // Nothing is hidden under the banner: only the banner's own line sits in its strip, and
+    // every other line's cap height (under 10 pt at these sizes) stays below it.
+    let strip_bottom = (297.0 - render::BANNER_BOTTOM_MM) * 72.0 / 25.4;
+    for (i, baselines) in text_baselines(&out.pdf).iter().enumerate() {
+        let in_strip = baselines.iter().filter(|&&y| y >= strip_bottom).count();
+        assert_eq!(in_strip, 1, "page {}: text inside the banner strip", i + 1);
+        for &y in baselines.iter().filter(|&&y| y < strip_bottom) {
+            assert!(
+                y + 10.0 < strip_bottom,
+                "page {}: line at {y} pt under the banner",
+                i + 1
+            );
+        }
     }
     // Every row made it onto some page.
     let all = pages.join(" ");
@@ -326,4 +340,33 @@ fn missing_template_is_an_io_error_naming_the_file() {
         .unwrap_err()
         .to_string();
     assert!(msg.contains("certificate.css"), "{msg}");
+}
+
+/// Baseline heights (pt from the bottom edge) of every text run on each page.
+fn text_baselines(pdf: &[u8]) -> Vec<Vec<f32>> {
+    use printpdf::{Op, TextMatrix};
+    let mut warnings = Vec::new();
+    let doc = PdfDocument::parse(pdf, &PdfParseOptions::default(), &mut warnings).unwrap();
+    doc.pages
+        .iter()
+        .map(|page| {
+            let mut y = 0.0;
+            let mut out = Vec::new();
+            for op in &page.ops {
+                match op {
+                    Op::SetTextCursor { pos } => y = pos.y.0,
+                    Op::SetTextMatrix { matrix } => {
+                        y = match matrix {
+                            TextMatrix::Translate(_, ty)
+                            | TextMatrix::TranslateRotate(_, ty, _) => ty.0,
+                            TextMatrix::Raw(m) => m[5],
+                        }
+                    }
+                    Op::ShowText { .. } => out.push(y),
+                    _ => {}
+                }
+            }
+            out
+        })
+        .collect()
 }

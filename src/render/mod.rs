@@ -10,7 +10,7 @@ mod html;
 mod pdf;
 
 pub use html::{render_html, Templates, CERTIFICATE_TEMPLATE, STYLESHEET};
-pub use pdf::{render_pdf, FontPool};
+pub use pdf::{render_pdf, FontPool, BANNER_BOTTOM_MM};
 
 use std::path::Path;
 

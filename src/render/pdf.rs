@@ -25,8 +25,12 @@ const PAGE_H_MM: f32 = 297.0;
 /// Points per millimetre (1 pt = 1/72 in, 1 in = 25.4 mm).
 const PT_PER_MM: f32 = 72.0 / 25.4;
 /// Page margins of the HTML layout, mm. The bottom margin leaves room for the stamped footer,
-/// the top margin for the NOT RELEASED banner.
-const MARGIN_TOP_MM: f32 = 16.0;
+/// the top margin for the NOT RELEASED banner: on continuation pages printpdf 0.12 draws a
+/// table row split by a page break up to about 7 mm above the top margin, so the banner
+/// (3 to 11 mm from the top edge) stays clear of content only with a 22 mm margin.
+const MARGIN_TOP_MM: f32 = 22.0;
+/// Distance of the banner's lower edge from the top edge of the page, mm.
+pub const BANNER_BOTTOM_MM: f32 = 11.0;
 const MARGIN_SIDE_MM: f32 = 16.0;
 const MARGIN_BOTTOM_MM: f32 = 20.0;
 
@@ -275,8 +279,8 @@ fn stamp_not_released(page: &mut PdfPage, bold: &StampFont) {
     page.ops.push(Op::SaveGraphicsState);
 
     // Banner in the top margin.
-    let banner_h = 9.0 * PT_PER_MM;
-    let banner_y = h - 3.5 * PT_PER_MM - banner_h;
+    let banner_h = 8.0 * PT_PER_MM;
+    let banner_y = h - BANNER_BOTTOM_MM * PT_PER_MM;
     page.ops.push(Op::SetFillColor { col: red.clone() });
     page.ops.push(Op::DrawRectangle {
         rectangle: Rect {
@@ -285,7 +289,7 @@ fn stamp_not_released(page: &mut PdfPage, bold: &StampFont) {
         },
     });
     let banner = "NOT RELEASED · INTERNAL RECORD · NOT FOR SHIPMENT";
-    let size = 12.0;
+    let size = 11.0;
     let bw = bold.width(banner, size);
     page.ops.push(Op::SetFillColor {
         col: rgb(1.0, 1.0, 1.0),
