@@ -81,14 +81,14 @@ fn template_error(dir: &Path, err: &tera::Error) -> Error {
                     span.start_col + 1
                 ),
                 r.message().trim_end_matches('.').to_string(),
-                "Fix the template: the variables available are listed in the comment at its top \
-                 and in the README.",
+                "Fix the template: the variables available are listed in the comment at the top of \
+                 certificate.html.tera.",
             )
         }
         None => Error::invalid(
             dir.join(CERTIFICATE_TEMPLATE).display().to_string(),
             err.to_string().trim_end_matches('.').to_string(),
-            "Fix the template (see the README, certificate templates).",
+            "Fix the template: its variables are listed in the comment at its top.",
         ),
     }
 }

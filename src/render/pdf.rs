@@ -163,6 +163,17 @@ pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Ve
     doc.metadata.info.creator = "resinlot".to_string();
     doc.metadata.info.producer = "resinlot (printpdf)".to_string();
     doc.metadata.info.identifier = cert.number.clone();
+    // Document dates: the issue date at 00:00 UTC, so the file is reproducible.
+    let issued = cert
+        .issue_date
+        .and_hms_opt(0, 0, 0)
+        .map(|t| t.and_utc().timestamp())
+        .and_then(|ts| printpdf::OffsetDateTime::from_unix_timestamp(ts).ok());
+    if let Some(date) = issued {
+        doc.metadata.info.creation_date = date;
+        doc.metadata.info.modification_date = date;
+        doc.metadata.info.metadata_date = date;
+    }
     let regular = StampFont::register(&mut doc, &fonts.regular);
     let bold = StampFont::register(&mut doc, &fonts.bold);
     let pages = doc.pages.len();
