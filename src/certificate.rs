@@ -216,8 +216,10 @@ pub struct Certificate {
     pub supersedes: Option<Supersedes>,
 }
 
-/// The standard scope statement (ISO/IEC 17025:2017 §7.8.2.1 items (o) and the
-/// "not reproduced except in full" requirement of §7.8.2.1 note; wording our own).
+/// The standard scope statement, wording our own. ISO/IEC 17025:2017 §7.8.2.1 asks for a
+/// statement that the results relate only to the items tested, and for a report not to be
+/// reproduced except in full without the laboratory's approval (item letters from memory,
+/// not confirmed here; the requirement itself is named in issue 4).
 pub const SCOPE_STATEMENT: &str = "The results relate only to the lot tested. This certificate \
      shall not be reproduced except in full without the written approval of the issuer.";
 
