@@ -3,6 +3,7 @@
 //! Domain modules know nothing of the command line; `cli` and `cmd` sit on top of them.
 
 pub mod analysis;
+pub mod certificate;
 pub mod certlog;
 pub mod chemistry;
 pub mod cli;
@@ -22,6 +23,7 @@ pub mod output;
 pub mod query;
 pub mod recipe;
 pub mod register;
+pub mod render;
 pub mod samples;
 pub mod spec;
 pub mod table;

@@ -1,0 +1,316 @@
+//! The certificate of analysis as data: every field the template and the PDF stamps receive.
+//!
+//! Content follows ISO/IEC 17025:2017 §7.8.2.1 (report content) and §7.8.6 (statements of
+//! conformity), adapted to a manufacturer's certificate in the way EN 10204:2004 type 3.1
+//! certificates are: the issuer, the product and lot, the results against the specification,
+//! the decision rule, and the person who authorised release. Values arrive already rounded and
+//! formatted (the decision module owns rounding); this module only carries and checks them.
+
+use std::path::Path;
+
+use chrono::{Months, NaiveDate};
+use serde::{Deserialize, Serialize};
+
+use crate::error::{Error, Result};
+
+/// The issuing site, read from `templates/site.toml`.
+///
+/// ```toml
+/// name = "Harrowgate Resins Ltd, Fenmoor Works"
+/// address = ["Fenmoor Industrial Estate", "Harrowgate HG9 0ZZ", "United Kingdom"]
+/// contact = ["Quality Control Laboratory", "qc@example.invalid"]
+/// ```
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Site {
+    /// Legal or trading name of the issuing site.
+    pub name: String,
+    /// Postal address, one entry per printed line.
+    pub address: Vec<String>,
+    /// Contact lines (department, telephone, e-mail), one entry per printed line.
+    #[serde(default)]
+    pub contact: Vec<String>,
+}
+
+/// File name of the site file inside the templates folder.
+pub const SITE_FILE: &str = "site.toml";
+
+impl Site {
+    /// Reads and validates a site file; errors name the file, line and field.
+    pub fn load(path: &Path) -> Result<Site> {
+        let site: Site = crate::tomlfile::load(path)?;
+        let place = path.display().to_string();
+        if site.name.trim().is_empty() {
+            return Err(Error::invalid(
+                format!("{place}: name"),
+                "the site name is empty",
+                "Enter the issuing site's name as it should appear on certificates.",
+            ));
+        }
+        if site.address.iter().all(|l| l.trim().is_empty()) {
+            return Err(Error::invalid(
+                format!("{place}: address"),
+                "the address has no lines",
+                "Give the postal address as a list of lines, e.g. address = [\"Street\", \"Town\"].",
+            ));
+        }
+        Ok(site)
+    }
+}
+
+/// Product identity as printed.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Product {
+    /// Product code, e.g. `PD-2000`.
+    pub code: String,
+    /// Product name.
+    pub name: String,
+}
+
+/// The specification (and its revision) the lot was judged against.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SpecRef {
+    /// Specification code (usually the product code).
+    pub code: String,
+    /// Revision letter or number.
+    pub revision: String,
+}
+
+/// The lot the results relate to.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Lot {
+    /// Lot number.
+    pub id: String,
+    /// Date of manufacture.
+    pub manufactured: NaiveDate,
+    /// Retest date: manufacture date plus the spec's `retest_months` (see [`retest_date`]).
+    pub retest: NaiveDate,
+}
+
+/// Shipment details when the certificate is issued for a customer.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Customer {
+    /// Customer's legal name.
+    pub name: String,
+    /// Customer's own part number for the product.
+    pub part_number: Option<String>,
+    /// Customer's purchase order.
+    pub purchase_order: Option<String>,
+    /// Quantity shipped as written, e.g. `20 t`.
+    pub quantity: Option<String>,
+}
+
+/// One reported property.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ResultRow {
+    /// Property key from the spec, e.g. `acid_value`.
+    pub key: String,
+    /// Printed name, e.g. `Acid value`.
+    pub label: String,
+    /// Test method, e.g. `ISO 2114`, or `Calculated (end-group analysis)`.
+    pub method: String,
+    /// Reporting unit, e.g. `mg KOH/g`.
+    pub unit: String,
+    /// Limits as written in the spec (see [`limits_text`]).
+    pub limits: String,
+    /// Result rounded as the spec says, as a string.
+    pub result: String,
+    /// Verdict text, e.g. `Pass` or `Conditional pass`.
+    pub verdict: String,
+}
+
+/// A value calculated rather than measured (Mn, Xn), with its expanded uncertainty.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CalculatedNote {
+    /// Property key, e.g. `mn`.
+    pub key: String,
+    /// Printed symbol or name, e.g. `Mn`.
+    pub label: String,
+    /// Reported value as a string.
+    pub value: String,
+    /// Unit, e.g. `g/mol`; empty for dimensionless values such as Xn.
+    pub unit: String,
+    /// Expanded uncertainty U as a string in the same unit, when known.
+    pub expanded_uncertainty: Option<String>,
+    /// Coverage factor k of U, as a string (usually `2`).
+    pub coverage_factor: Option<String>,
+    /// How it was obtained, e.g. `end-group analysis from acid value and hydroxyl value`.
+    pub basis: String,
+}
+
+/// The statement of conformity (ISO/IEC 17025:2017 §7.8.6.2).
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Conformity {
+    /// Name of the decision rule, e.g. `guarded acceptance (ILAC-G8:09/2019 §4.2.3)`.
+    pub decision_rule: String,
+    /// The guard band as applied, e.g. `w = U (k = 2)`.
+    pub guard_band: String,
+    /// The full statement as printed.
+    pub statement: String,
+}
+
+/// Who authorised release, and when.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Authorisation {
+    /// Name of the person.
+    pub name: String,
+    /// Role, e.g. `QC Manager`.
+    pub role: String,
+    /// Date of authorisation.
+    pub date: NaiveDate,
+}
+
+/// The certificate a reissue replaces.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Supersedes {
+    /// Number of the replaced certificate.
+    pub number: String,
+    /// Why it was reissued.
+    pub reason: String,
+}
+
+/// A complete certificate of analysis; the template receives every field at top level.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Certificate {
+    /// Document title, e.g. `Certificate of Analysis`.
+    pub title: String,
+    /// Issuing site.
+    pub issuer: Site,
+    /// Unique certificate number.
+    pub number: String,
+    /// Date of issue.
+    pub issue_date: NaiveDate,
+    /// Product code and name.
+    pub product: Product,
+    /// Specification and revision applied.
+    pub spec: SpecRef,
+    /// Lot, manufacture and retest dates.
+    pub lot: Lot,
+    /// Shipment details, for a customer certificate.
+    pub customer: Option<Customer>,
+    /// Reported properties, in reporting order.
+    pub rows: Vec<ResultRow>,
+    /// Calculated values with their uncertainty (Mn, Xn).
+    pub calculated: Vec<CalculatedNote>,
+    /// Statement of conformity with decision rule and guard band.
+    pub conformity: Conformity,
+    /// "Results relate only to the lot tested; not to be reproduced except in full."
+    pub scope_statement: String,
+    /// Extra statements (customer-specific), each printed as its own paragraph.
+    pub statements: Vec<String>,
+    /// Release authorisation.
+    pub authorisation: Authorisation,
+    /// False for a held or rejected lot: every page carries a NOT RELEASED marking.
+    pub released: bool,
+    /// Set on a reissue: the certificate this one replaces.
+    pub supersedes: Option<Supersedes>,
+}
+
+/// The standard scope statement, wording our own. ISO/IEC 17025:2017 §7.8.2.1 asks for a
+/// statement that the results relate only to the items tested, and for a report not to be
+/// reproduced except in full without the laboratory's approval (item letters from memory,
+/// not confirmed here; the requirement itself is named in issue 4).
+pub const SCOPE_STATEMENT: &str = "The results relate only to the lot tested. This certificate \
+     shall not be reproduced except in full without the written approval of the issuer.";
+
+/// Formats spec limits as written on a certificate.
+///
+/// Both limits give `min – max` (en dash), only a maximum `≤ max`, only a minimum `≥ min`,
+/// none `report` (the property is reported without a limit). Each limit is printed with
+/// `decimals` decimal places, so the limits read at the same precision as the result.
+pub fn limits_text(min: Option<f64>, max: Option<f64>, decimals: u32) -> String {
+    let d = decimals as usize;
+    match (min, max) {
+        (Some(lo), Some(hi)) => format!("{lo:.d$} – {hi:.d$}"),
+        (None, Some(hi)) => format!("≤ {hi:.d$}"),
+        (Some(lo), None) => format!("≥ {lo:.d$}"),
+        (None, None) => "report".to_string(),
+    }
+}
+
+/// Retest date: the manufacture date plus `months` calendar months; a day past the end of the
+/// target month falls back to its last day (31 January + 1 month = 28 or 29 February).
+/// `None` only when the date would leave chrono's range.
+pub fn retest_date(manufactured: NaiveDate, months: u32) -> Option<NaiveDate> {
+    manufactured.checked_add_months(Months::new(months))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn limits_text_follows_the_spec_form() {
+        assert_eq!(limits_text(Some(53.0), Some(59.0), 1), "53.0 – 59.0");
+        assert_eq!(limits_text(None, Some(1.0), 2), "≤ 1.00");
+        assert_eq!(limits_text(Some(450.0), None, 0), "≥ 450");
+        assert_eq!(limits_text(None, None, 2), "report");
+    }
+
+    #[test]
+    fn retest_date_adds_calendar_months() {
+        let d = |y, m, d| NaiveDate::from_ymd_opt(y, m, d).unwrap();
+        assert_eq!(retest_date(d(2026, 9, 14), 12), Some(d(2027, 9, 14)));
+        // End of month clamps: 2028 is a leap year (Gregorian rule).
+        assert_eq!(retest_date(d(2028, 1, 31), 1), Some(d(2028, 2, 29)));
+        assert_eq!(retest_date(d(2027, 1, 31), 1), Some(d(2027, 2, 28)));
+    }
+
+    #[test]
+    fn certificate_round_trips_through_json() {
+        let c: Certificate =
+            serde_json::from_str(include_str!("../tests/fixtures/certificates/customer.json"))
+                .unwrap();
+        let json = serde_json::to_string(&c).unwrap();
+        let back: Certificate = serde_json::from_str(&json).unwrap();
+        assert_eq!(back, c);
+    }
+
+    #[test]
+    fn site_file_loads_and_refuses_unknown_fields() {
+        let dir = tempfile::tempdir().unwrap();
+        let good = dir.path().join("site.toml");
+        std::fs::write(
+            &good,
+            "name = \"Harrowgate Resins Ltd, Fenmoor Works\"\naddress = [\"Fenmoor\"]\n",
+        )
+        .unwrap();
+        let site = Site::load(&good).unwrap();
+        assert_eq!(site.address, vec!["Fenmoor".to_string()]);
+        assert!(site.contact.is_empty());
+
+        let bad = dir.path().join("bad.toml");
+        std::fs::write(&bad, "name = \"X\"\naddress = [\"Y\"]\nfax = \"1\"\n").unwrap();
+        let msg = Site::load(&bad).unwrap_err().to_string();
+        assert!(msg.contains("bad.toml:3:1"), "{msg}");
+        assert!(msg.contains("fax"), "{msg}");
+    }
+
+    #[test]
+    fn site_file_needs_an_address() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("site.toml");
+        std::fs::write(&p, "name = \"X\"\naddress = []\n").unwrap();
+        let msg = Site::load(&p).unwrap_err().to_string();
+        assert!(msg.contains("address"), "{msg}");
+    }
+
+    #[test]
+    fn shipped_site_file_loads() {
+        let p = Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("templates")
+            .join(SITE_FILE);
+        let site = Site::load(&p).unwrap();
+        assert!(site.name.contains("Fenmoor"));
+    }
+}

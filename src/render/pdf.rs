@@ -1,0 +1,347 @@
+//! PDF step: lays the certificate HTML out with printpdf's HTML engine on A4, using only the
+//! bundled DejaVu fonts, then stamps footer and NOT RELEASED marking with printpdf operations.
+
+use std::collections::{BTreeMap, HashMap};
+use std::sync::{Arc, Mutex};
+
+use printpdf::html::{rust_fontconfig, SharedFontPool};
+use printpdf::{
+    Color, FontId, GeneratePdfOptions, Op, PaintMode, ParsedFont, PdfDocument, PdfFont,
+    PdfFontHandle, PdfPage, PdfSaveOptions, Point, Pt, Rect, Rgb, TextItem, TextMatrix,
+    TextRenderingMode,
+};
+
+use crate::certificate::Certificate;
+use crate::error::{Error, Result};
+
+/// DejaVu Sans (Bitstream Vera licence, see `fonts/LICENSE-DejaVu.txt`).
+const DEJAVU_SANS: &[u8] = include_bytes!("../../fonts/DejaVuSans.ttf");
+/// DejaVu Sans Bold (same licence).
+const DEJAVU_SANS_BOLD: &[u8] = include_bytes!("../../fonts/DejaVuSans-Bold.ttf");
+
+/// A4 in millimetres (ISO 216).
+const PAGE_W_MM: f32 = 210.0;
+const PAGE_H_MM: f32 = 297.0;
+/// Points per millimetre (1 pt = 1/72 in, 1 in = 25.4 mm).
+const PT_PER_MM: f32 = 72.0 / 25.4;
+/// Page margins of the HTML layout, mm. The bottom margin leaves room for the stamped footer,
+/// the top margin for the NOT RELEASED banner: on continuation pages printpdf 0.12 draws a
+/// table row split by a page break up to about 7 mm above the top margin, so the banner
+/// (3 to 11 mm from the top edge) stays clear of content only with a 22 mm margin.
+const MARGIN_TOP_MM: f32 = 22.0;
+/// Distance of the banner's lower edge from the top edge of the page, mm.
+pub const BANNER_BOTTOM_MM: f32 = 11.0;
+const MARGIN_SIDE_MM: f32 = 16.0;
+const MARGIN_BOTTOM_MM: f32 = 20.0;
+
+/// The fonts every certificate is laid out with, parsed once and shared across threads.
+///
+/// Only the bundled fonts are registered: no system font is scanned or used, so a certificate
+/// looks the same on every machine.
+#[derive(Debug, Clone)]
+pub struct FontPool {
+    pool: SharedFontPool,
+    /// The same faces parsed for the stamps drawn after layout (footer, marking).
+    regular: ParsedFont,
+    bold: ParsedFont,
+}
+
+impl FontPool {
+    /// Builds the pool from the bundled DejaVu Sans regular and bold faces. The template
+    /// selects them with `font-family: "DejaVu Sans"` and `font-weight: bold`.
+    pub fn bundled() -> FontPool {
+        // An empty fontconfig cache with only our memory fonts: printpdf's
+        // `build_font_pool` would also scan the system font folders.
+        let cache = rust_fontconfig::FcFontCache::default();
+        for (name, bytes) in [
+            ("DejaVu Sans", DEJAVU_SANS),
+            ("DejaVu Sans Bold", DEJAVU_SANS_BOLD),
+        ] {
+            if let Some(faces) = rust_fontconfig::FcParseFontBytes(bytes, name) {
+                cache.with_memory_fonts(faces);
+            }
+        }
+        let pool = SharedFontPool {
+            fc_cache: Arc::new(cache),
+            parsed_fonts: Arc::new(Mutex::new(HashMap::new())),
+        };
+        let parse = |bytes: &[u8]| {
+            ParsedFont::from_bytes(bytes, 0, &mut Vec::new())
+                .expect("the bundled DejaVu fonts are valid TrueType files")
+        };
+        FontPool {
+            pool,
+            regular: parse(DEJAVU_SANS),
+            bold: parse(DEJAVU_SANS_BOLD),
+        }
+    }
+}
+
+/// A bundled face registered in one document, for drawing stamps.
+struct StampFont<'a> {
+    id: FontId,
+    face: &'a ParsedFont,
+}
+
+impl<'a> StampFont<'a> {
+    /// Registers `face` in `doc` under the id printpdf's HTML bridge gives it (`F<hash>`),
+    /// reusing the entry when the layout already embedded the same face.
+    fn register(doc: &mut PdfDocument, face: &'a ParsedFont) -> StampFont<'a> {
+        let id = FontId(format!("F{}", face.hash));
+        doc.resources
+            .fonts
+            .map
+            .entry(id.clone())
+            .or_insert_with(|| PdfFont::new(face.clone()));
+        StampFont { id, face }
+    }
+
+    /// Advance width of `text` at `size` points (hmtx advances, no kerning).
+    fn width(&self, text: &str, size: f32) -> f32 {
+        let units: u32 = text
+            .chars()
+            .map(|c| {
+                let gid = self.face.lookup_glyph_index(c as u32).unwrap_or(0);
+                u32::from(self.face.get_horizontal_advance(gid))
+            })
+            .sum();
+        units as f32 / f32::from(self.face.font_metrics.units_per_em) * size
+    }
+
+    /// Cap height at `size` points (OS/2 sCapHeight; 0.73 em when the font omits it).
+    fn cap_height(&self, size: f32) -> f32 {
+        let upem = f32::from(self.face.font_metrics.units_per_em);
+        self.face
+            .font_metrics
+            .cap_height
+            .map_or(0.73 * size, |c| c / upem * size)
+    }
+
+    fn handle(&self) -> PdfFontHandle {
+        PdfFontHandle::External(self.id.clone())
+    }
+}
+
+/// Lays `html` out as an A4 PDF and stamps every page with the certificate number and
+/// "Page x of y", plus the NOT RELEASED marking when `cert.released` is false.
+pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Vec<u8>> {
+    let options = GeneratePdfOptions {
+        page_width: Some(PAGE_W_MM),
+        page_height: Some(PAGE_H_MM),
+        margin_top: Some(MARGIN_TOP_MM),
+        margin_right: Some(MARGIN_SIDE_MM),
+        margin_bottom: Some(MARGIN_BOTTOM_MM),
+        margin_left: Some(MARGIN_SIDE_MM),
+        ..GeneratePdfOptions::default()
+    };
+    let mut warnings = Vec::new();
+    let mut doc = PdfDocument::from_html_with_cache(
+        html,
+        &BTreeMap::new(),
+        // The faces reach the layout through the pool's font cache; passing them again in
+        // this map makes printpdf re-register both on every call (about 9 ms per certificate
+        // here) and gives byte-identical output, so the map stays empty.
+        &BTreeMap::new(),
+        &options,
+        &mut warnings,
+        Some(fonts.pool.clone()),
+    )
+    .map_err(|e| layout_error(cert, &e))?;
+    if doc.pages.is_empty() {
+        let detail = warnings
+            .iter()
+            .map(|w| w.msg.clone())
+            .collect::<Vec<_>>()
+            .join("; ");
+        return Err(layout_error(
+            cert,
+            &format!("no page was produced ({detail})"),
+        ));
+    }
+    doc.metadata.info.document_title = format!("{} {}", cert.title, cert.number);
+    doc.metadata.info.subject = format!("Lot {} of {}", cert.lot.id, cert.product.code);
+    doc.metadata.info.creator = "resinlot".to_string();
+    doc.metadata.info.producer = "resinlot (printpdf)".to_string();
+    doc.metadata.info.identifier = cert.number.clone();
+    // Document dates: the issue date at 00:00 UTC, so the file is reproducible.
+    let issued = cert
+        .issue_date
+        .and_hms_opt(0, 0, 0)
+        .map(|t| t.and_utc().timestamp())
+        .and_then(|ts| printpdf::OffsetDateTime::from_unix_timestamp(ts).ok());
+    if let Some(date) = issued {
+        doc.metadata.info.creation_date = date;
+        doc.metadata.info.modification_date = date;
+        doc.metadata.info.metadata_date = date;
+    }
+    let regular = StampFont::register(&mut doc, &fonts.regular);
+    let bold = StampFont::register(&mut doc, &fonts.bold);
+    let pages = doc.pages.len();
+    for (i, page) in doc.pages.iter_mut().enumerate() {
+        stamp_footer(page, cert, i + 1, pages, &regular, &bold);
+        if !cert.released {
+            stamp_not_released(page, &bold);
+        }
+    }
+    let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);
+    set_document_id(&mut bytes, cert);
+    Ok(bytes)
+}
+
+/// Replaces the random file identifier printpdf writes into the trailer (`/ID[(..)(..)]`,
+/// ISO 32000-1 §14.4) with one derived from the certificate's content, so the same
+/// certificate always gives the same bytes (and the same SHA-256). Both strings keep their
+/// length of 32 characters, so no byte offset in the file moves.
+fn set_document_id(bytes: &mut [u8], cert: &Certificate) {
+    use sha2::{Digest, Sha256};
+    const MARK: &[u8] = b"/ID[(";
+    const LEN: usize = 32;
+    let Some(start) = bytes.windows(MARK.len()).rposition(|w| w == MARK) else {
+        return;
+    };
+    let first = start + MARK.len();
+    let second = first + LEN + 2; // skip ")("
+    if bytes.len() < second + LEN || &bytes[first + LEN..second] != b")(" {
+        return;
+    }
+    let json = serde_json::to_vec(cert).unwrap_or_default();
+    let digest = Sha256::digest(&json);
+    let hex: String = digest.iter().map(|b| format!("{b:02X}")).collect();
+    // Permanent and instance identifier are equal for a file that is never updated.
+    bytes[first..first + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
+    bytes[second..second + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
+}
+
+fn layout_error(cert: &Certificate, problem: &str) -> Error {
+    Error::invalid(
+        format!("certificate {}", cert.number),
+        format!("the PDF layout failed: {problem}"),
+        "Check the certificate template for markup the PDF engine cannot lay out.",
+    )
+}
+
+fn rgb(r: f32, g: f32, b: f32) -> Color {
+    Color::Rgb(Rgb::new(r, g, b, None))
+}
+
+fn text_ops(font: &StampFont, size: f32, x: f32, y: f32, text: &str) -> Vec<Op> {
+    vec![
+        Op::StartTextSection,
+        Op::SetFont {
+            font: font.handle(),
+            size: Pt(size),
+        },
+        Op::SetTextCursor {
+            pos: Point { x: Pt(x), y: Pt(y) },
+        },
+        Op::ShowText {
+            items: vec![TextItem::Text(text.to_string())],
+        },
+        Op::EndTextSection,
+    ]
+}
+
+/// Footer: a rule, the certificate and lot numbers on the left, "Page x of y" on the right.
+fn stamp_footer(
+    page: &mut PdfPage,
+    cert: &Certificate,
+    index: usize,
+    count: usize,
+    regular: &StampFont,
+    bold: &StampFont,
+) {
+    let left_x = MARGIN_SIDE_MM * PT_PER_MM;
+    let right_x = (PAGE_W_MM - MARGIN_SIDE_MM) * PT_PER_MM;
+    let rule_y = 14.0 * PT_PER_MM;
+    let text_y = 10.0 * PT_PER_MM;
+    let size = 8.0;
+    let left = format!(
+        "Certificate No. {}  ·  Lot {}  ·  {} rev. {}",
+        cert.number, cert.lot.id, cert.spec.code, cert.spec.revision
+    );
+    let right = format!("Page {index} of {count}");
+    let right_w = bold.width(&right, size);
+    page.ops.push(Op::SaveGraphicsState);
+    page.ops.push(Op::SetFillColor {
+        col: rgb(0.60, 0.66, 0.69),
+    });
+    page.ops.push(Op::DrawRectangle {
+        rectangle: Rect {
+            mode: Some(PaintMode::Fill),
+            ..Rect::from_xywh(Pt(left_x), Pt(rule_y), Pt(right_x - left_x), Pt(0.6))
+        },
+    });
+    page.ops.push(Op::SetFillColor {
+        col: rgb(0.11, 0.14, 0.16),
+    });
+    page.ops
+        .extend(text_ops(regular, size, left_x, text_y, &left));
+    page.ops
+        .extend(text_ops(bold, size, right_x - right_w, text_y, &right));
+    page.ops.push(Op::RestoreGraphicsState);
+}
+
+/// NOT RELEASED marking: a red banner across the top edge and large outlined red letters on
+/// the page diagonal, drawn over the content so no copy or crop can lose it.
+fn stamp_not_released(page: &mut PdfPage, bold: &StampFont) {
+    let w = PAGE_W_MM * PT_PER_MM;
+    let h = PAGE_H_MM * PT_PER_MM;
+    let red = rgb(0.80, 0.05, 0.05);
+    page.ops.push(Op::SaveGraphicsState);
+
+    // Banner in the top margin.
+    let banner_h = 8.0 * PT_PER_MM;
+    let banner_y = h - BANNER_BOTTOM_MM * PT_PER_MM;
+    page.ops.push(Op::SetFillColor { col: red.clone() });
+    page.ops.push(Op::DrawRectangle {
+        rectangle: Rect {
+            mode: Some(PaintMode::Fill),
+            ..Rect::from_xywh(Pt(0.0), Pt(banner_y), Pt(w), Pt(banner_h))
+        },
+    });
+    let banner = "NOT RELEASED · INTERNAL RECORD · NOT FOR SHIPMENT";
+    let size = 11.0;
+    let bw = bold.width(banner, size);
+    page.ops.push(Op::SetFillColor {
+        col: rgb(1.0, 1.0, 1.0),
+    });
+    page.ops.extend(text_ops(
+        bold,
+        size,
+        (w - bw) / 2.0,
+        banner_y + (banner_h - bold.cap_height(size)) / 2.0,
+        banner,
+    ));
+
+    // Diagonal outlined letters, centred on the page.
+    let text = "NOT RELEASED";
+    let size: f32 = 84.0;
+    let angle = (h / w).atan();
+    let size = size.min(0.8 * (w * w + h * h).sqrt() / bold.width(text, 1.0));
+    let tw = bold.width(text, size);
+    let cap = bold.cap_height(size);
+    let (s, c) = angle.sin_cos();
+    let x = w / 2.0 - tw / 2.0 * c + cap / 2.0 * s;
+    let y = h / 2.0 - tw / 2.0 * s - cap / 2.0 * c;
+    page.ops.push(Op::SetOutlineColor { col: red });
+    page.ops.push(Op::SetOutlineThickness { pt: Pt(2.0) });
+    page.ops.push(Op::StartTextSection);
+    page.ops.push(Op::SetTextRenderingMode {
+        mode: TextRenderingMode::Stroke,
+    });
+    page.ops.push(Op::SetFont {
+        font: bold.handle(),
+        size: Pt(size),
+    });
+    page.ops.push(Op::SetTextMatrix {
+        matrix: TextMatrix::TranslateRotate(Pt(x), Pt(y), angle.to_degrees()),
+    });
+    page.ops.push(Op::ShowText {
+        items: vec![TextItem::Text(text.to_string())],
+    });
+    page.ops.push(Op::SetTextRenderingMode {
+        mode: TextRenderingMode::Fill,
+    });
+    page.ops.push(Op::EndTextSection);
+    page.ops.push(Op::RestoreGraphicsState);
+}
