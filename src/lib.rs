@@ -10,6 +10,7 @@ pub mod cmd;
 pub mod error;
 pub mod output;
 pub mod recipe;
+pub mod stats;
 pub mod table;
 pub mod tomlfile;
 
