@@ -3,6 +3,7 @@
 //! Domain modules know nothing of the command line; `cli` and `cmd` sit on top of them.
 
 pub mod analysis;
+pub mod chart;
 pub mod chemistry;
 pub mod cli;
 pub mod clock;
