@@ -89,6 +89,97 @@ pub fn imr_svg(input: &ChartInput) -> Result<Vec<u8>> {
     Ok(svg.into_bytes())
 }
 
+/// Scale of the PNG relative to the SVG's pixel size (2 gives 2200 × 1440 pixels).
+pub const PNG_SCALE: f32 = 2.0;
+
+/// Font families tried, in order, for the SVG's generic "sans-serif" when rasterizing.
+const SANS_FAMILIES: [&str; 6] = [
+    "DejaVu Sans",
+    "Liberation Sans",
+    "Noto Sans",
+    "FreeSans",
+    "Arial",
+    "Helvetica",
+];
+
+/// Renders the I-MR chart as a PNG image: the SVG of [`imr_svg`] rasterized by resvg at
+/// [`PNG_SCALE`], with text in a sans-serif font found among the system's fonts.
+///
+/// Errors as [`imr_svg`] does, and when no font is installed (the text could not be drawn).
+pub fn imr_png(input: &ChartInput) -> Result<Vec<u8>> {
+    let svg = imr_svg(input)?;
+    svg_to_png(&svg, PNG_SCALE)
+}
+
+/// Rasterizes an SVG document to PNG bytes at `scale` with resvg, using the system's fonts.
+pub fn svg_to_png(svg: &[u8], scale: f32) -> Result<Vec<u8>> {
+    let pixmap = rasterize(svg, scale)?;
+    pixmap.encode_png().map_err(|e| {
+        Error::invalid(
+            "--png",
+            format!("PNG encoding failed: {e}"),
+            "Report this as a bug.",
+        )
+    })
+}
+
+fn rasterize(svg: &[u8], scale: f32) -> Result<resvg::tiny_skia::Pixmap> {
+    use resvg::{tiny_skia, usvg};
+    let mut options = usvg::Options::default();
+    let fonts = options.fontdb_mut();
+    fonts.load_system_fonts();
+    if fonts.is_empty() {
+        return Err(Error::invalid(
+            "--png",
+            "no fonts are installed on this system, so the chart's text cannot be drawn",
+            "Install a font package (for example fonts-dejavu-core) or write the SVG chart instead.",
+        ));
+    }
+    let family = SANS_FAMILIES
+        .iter()
+        .find(|name| {
+            fonts
+                .faces()
+                .any(|f| f.families.iter().any(|(n, _)| n == *name))
+        })
+        .map(|s| s.to_string())
+        .or_else(|| {
+            fonts
+                .faces()
+                .find_map(|f| f.families.first().map(|(n, _)| n.clone()))
+        });
+    if let Some(family) = family {
+        fonts.set_sans_serif_family(family);
+    }
+    let tree = usvg::Tree::from_data(svg, &options).map_err(|e| {
+        Error::invalid(
+            "--png",
+            format!("the chart could not be read back: {e}"),
+            "Report this as a bug.",
+        )
+    })?;
+    let size = tree.size().to_int_size().scale_by(scale).ok_or_else(|| {
+        Error::invalid(
+            "--png",
+            "the image size is out of range",
+            "Report this as a bug.",
+        )
+    })?;
+    let mut pixmap = tiny_skia::Pixmap::new(size.width(), size.height()).ok_or_else(|| {
+        Error::invalid(
+            "--png",
+            "the image size is out of range",
+            "Report this as a bug.",
+        )
+    })?;
+    resvg::render(
+        &tree,
+        tiny_skia::Transform::from_scale(scale, scale),
+        &mut pixmap.as_mut(),
+    );
+    Ok(pixmap)
+}
+
 fn check(input: &ChartInput) -> Result<()> {
     let n = input.values.len();
     if n < 2 {
@@ -627,6 +718,27 @@ mod tests {
         assert!(signals.iter().any(|s| s.rule == 1 && s.index == 24));
         assert!(has("1"));
         assert!(has("limits frozen"));
+    }
+
+    #[test]
+    fn png_has_the_right_size_and_draws_the_title_text() {
+        let (svg, _, _) = render(Some(1900.0), Some(2100.0));
+        let png = svg_to_png(svg.as_bytes(), PNG_SCALE).unwrap();
+        // PNG signature and IHDR width/height (ISO/IEC 15948 §5.2, §11.2.2).
+        assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n");
+        let w = u32::from_be_bytes(png[16..20].try_into().unwrap());
+        let h = u32::from_be_bytes(png[20..24].try_into().unwrap());
+        assert_eq!((w, h), (2 * WIDTH, 2 * HEIGHT));
+        if let Ok(dir) = std::env::var("RESINLOT_CHART_DIR") {
+            std::fs::write(format!("{dir}/fixture-resvg.png"), &png).unwrap();
+        }
+        // The title band (above the plots) holds only text: dark pixels there mean a font was found.
+        let pixmap = rasterize(svg.as_bytes(), 1.0).unwrap();
+        let dark = (0..24)
+            .flat_map(|y| (0..WIDTH).map(move |x| (x, y)))
+            .filter(|&(x, y)| pixmap.pixel(x, y).is_some_and(|p| p.red() < 100))
+            .count();
+        assert!(dark > 50, "{dark} dark pixels in the title band");
     }
 
     #[test]
