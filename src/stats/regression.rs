@@ -70,18 +70,18 @@ pub fn log_log_fit(mn: &[f64], viscosity: &[f64]) -> Result<LogLogFit> {
         }
     }
     let nf = n as f64;
-    let (mut sx, mut sy) = (0.0, 0.0);
-    for (&m, &v) in mn.iter().zip(viscosity) {
-        sx += m.log10();
-        sy += v.log10();
-    }
-    let (mx, my) = (sx / nf, sy / nf);
-    let (mut sxx, mut sxy, mut syy) = (0.0, 0.0, 0.0);
-    for (&m, &v) in mn.iter().zip(viscosity) {
-        let (dx, dy) = (m.log10() - mx, v.log10() - my);
-        sxx += dx * dx;
-        sxy += dx * dy;
-        syy += dy * dy;
+    // One pass of Welford-type updates of the means and (co)moments (Welford, Technometrics
+    // 4(3), 1962), numerically stable without a separate pass for the means.
+    let (mut mx, mut my, mut sxx, mut sxy, mut syy) = (0.0, 0.0, 0.0, 0.0, 0.0);
+    for (k, (&m, &v)) in mn.iter().zip(viscosity).enumerate() {
+        let (x, y) = (m.log10(), v.log10());
+        let w = 1.0 / (k + 1) as f64;
+        let (dx, dy) = (x - mx, y - my);
+        mx += dx * w;
+        my += dy * w;
+        sxx += dx * (x - mx);
+        sxy += dx * (y - my);
+        syy += dy * (y - my);
     }
     if sxx.is_nan() || sxx <= 0.0 {
         return Err(Error::invalid(
