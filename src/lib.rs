@@ -5,6 +5,7 @@
 pub mod analysis;
 pub mod certificate;
 pub mod certlog;
+pub mod chart;
 pub mod chemistry;
 pub mod cli;
 pub mod clock;
@@ -26,8 +27,10 @@ pub mod register;
 pub mod render;
 pub mod samples;
 pub mod spec;
+pub mod stats;
 pub mod table;
 pub mod tomlfile;
+pub mod trending;
 pub mod workspace;
 
 pub use error::{Error, Result};

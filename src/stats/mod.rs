@@ -1,0 +1,16 @@
+//! Lot-to-lot statistics: I-MR control limits, Nelson run rules, capability, normality, log–log fit.
+//!
+//! Pure functions over `&[f64]` in manufacture order; no I/O. Results derive `Serialize`.
+
+pub mod capability;
+pub mod dist;
+pub mod imr;
+pub mod normality;
+pub mod regression;
+pub mod rules;
+
+pub use capability::{capability, capability_from_moments, Capability, Side, SpecWindow};
+pub use imr::{imr_limits, mean_and_sd, moving_ranges, Limits};
+pub use normality::{anderson_darling, Normality};
+pub use regression::{log_log_fit, LogLogFit};
+pub use rules::{nelson_signals, nelson_signals_into, RuleSet, Signal};

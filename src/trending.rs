@@ -1,0 +1,260 @@
+//! Lot-to-lot trending of one product: select lots, then I-MR limits, run rules, capability,
+//! normality and the viscosity–Mn check for each property (pure; no file I/O).
+
+use serde::Serialize;
+
+use crate::error::{Error, Result};
+use crate::query::LotRow;
+use crate::stats::{self, Capability, Limits, Normality, RuleSet, SpecWindow};
+
+/// Where the control limits come from.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Baseline {
+    /// All selected lots (phase I on everything).
+    All,
+    /// The first N selected lots; limits frozen and applied to the rest (phase II).
+    First(usize),
+    /// Lots manufactured up to and including this date.
+    Until(chrono::NaiveDate),
+}
+
+/// Which lots to trend.
+#[derive(Debug, Clone, Default)]
+pub struct Selection {
+    /// Earliest manufacture date.
+    pub from: Option<chrono::NaiveDate>,
+    /// Latest manufacture date.
+    pub to: Option<chrono::NaiveDate>,
+    /// Leave out lots that were not released.
+    pub released_only: bool,
+}
+
+/// Keeps the selected lots (latest row of each), in manufacture order (then record order).
+pub fn select(mut lots: Vec<LotRow>, sel: &Selection) -> Vec<LotRow> {
+    lots.retain(|l| {
+        let d = chrono::NaiveDate::parse_from_str(&l.manufactured, "%Y-%m-%d").ok();
+        (!sel.released_only || l.status == "released")
+            && sel.from.is_none_or(|f| d.is_some_and(|d| d >= f))
+            && sel.to.is_none_or(|t| d.is_some_and(|d| d <= t))
+    });
+    lots.sort_by(|a, b| {
+        a.manufactured
+            .cmp(&b.manufactured)
+            .then(a.line.cmp(&b.line))
+    });
+    lots
+}
+
+/// One signal, tied to its lot.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct LotSignal {
+    /// Nelson rule number (1-8).
+    pub rule: u8,
+    /// Lot that completes the pattern.
+    pub lot: String,
+    /// Index of that lot among the selected lots with a value (from 0).
+    pub index: usize,
+    /// Manufacture date of that lot.
+    pub manufactured: String,
+    /// Plain description.
+    pub description: &'static str,
+}
+
+/// Everything about one property's trend.
+#[derive(Debug, Clone, Serialize)]
+pub struct PropertyTrend {
+    /// Product code.
+    pub product: String,
+    /// Property key.
+    pub property: String,
+    /// Label from the spec.
+    pub label: String,
+    /// Unit from the spec.
+    pub unit: String,
+    /// Lots with a value.
+    pub n: usize,
+    /// First manufacture date.
+    pub date_from: String,
+    /// Last manufacture date.
+    pub date_to: String,
+    /// Lots used for the control limits.
+    pub baseline_n: usize,
+    /// Control limits.
+    #[serde(flatten)]
+    pub limits: Limits,
+    /// Run-rule signals, in lot order.
+    pub signals: Vec<LotSignal>,
+    /// Spec window the capability is computed against.
+    pub spec_min: Option<f64>,
+    /// Upper spec limit.
+    pub spec_max: Option<f64>,
+    /// Spec revision the window comes from.
+    pub spec_revision: Option<String>,
+    /// Capability indices (None without limits).
+    #[serde(skip)]
+    pub capability: Option<Capability>,
+    /// Anderson-Darling normality check.
+    pub normality: Option<Normality>,
+    /// Warnings about how far the figures can be trusted.
+    pub warnings: Vec<String>,
+    /// Lot ids in order (for charts).
+    #[serde(skip)]
+    pub lots: Vec<String>,
+    /// Values in order (for charts).
+    #[serde(skip)]
+    pub values: Vec<f64>,
+    /// Raw signals (for charts).
+    #[serde(skip)]
+    pub raw_signals: Vec<stats::Signal>,
+}
+
+/// Computes one property's trend over the selected lots.
+#[allow(clippy::too_many_arguments)]
+pub fn property_trend(
+    product: &str,
+    key: &str,
+    column: usize,
+    label: &str,
+    unit: &str,
+    lots: &[LotRow],
+    window: SpecWindow,
+    spec_revision: Option<String>,
+    baseline: &Baseline,
+    rules: RuleSet,
+) -> Result<PropertyTrend> {
+    let mut ids = Vec::new();
+    let mut dates = Vec::new();
+    let mut values = Vec::new();
+    for l in lots {
+        if let Some(v) = l.values[column] {
+            ids.push(l.lot.clone());
+            dates.push(l.manufactured.clone());
+            values.push(v);
+        }
+    }
+    if values.len() < 2 {
+        return Err(Error::invalid(
+            format!("{product} {key}"),
+            format!(
+                "{} lot(s) with a value in the selection; a chart needs at least 2",
+                values.len()
+            ),
+            "Widen the date range or choose another property.",
+        ));
+    }
+    let base_n = match baseline {
+        Baseline::All => values.len(),
+        Baseline::First(n) => (*n).min(values.len()),
+        Baseline::Until(d) => {
+            let d = d.to_string();
+            dates.iter().take_while(|m| **m <= d).count()
+        }
+    };
+    if base_n < 2 {
+        return Err(Error::invalid(
+            "--baseline",
+            format!("the baseline holds {base_n} lot(s) with a value for {key}"),
+            "Choose a baseline of at least 2 lots (more than 20 is common practice).",
+        ));
+    }
+    let limits = stats::imr_limits(&values[..base_n])?;
+    let raw_signals = stats::nelson_signals(&values, &limits, rules);
+    let signals = raw_signals
+        .iter()
+        .map(|s| LotSignal {
+            rule: s.rule,
+            lot: ids[s.index].clone(),
+            index: s.index,
+            manufactured: dates[s.index].clone(),
+            description: s.description,
+        })
+        .collect();
+    let capability = stats::capability(&values, window)?;
+    let normality = stats::anderson_darling(&values);
+    let mut warnings = capability
+        .as_ref()
+        .map(|c| c.warnings.clone())
+        .unwrap_or_default();
+    if normality.as_ref().is_some_and(|n| n.non_normal) {
+        warnings.push(
+            "the values do not look normally distributed (Anderson-Darling p < 0.05): capability indices may mislead".into(),
+        );
+    }
+    if base_n < values.len() {
+        warnings.push(format!(
+            "limits frozen from the first {base_n} lots and applied to the later {}",
+            values.len() - base_n
+        ));
+    }
+    Ok(PropertyTrend {
+        product: product.to_string(),
+        property: key.to_string(),
+        label: label.to_string(),
+        unit: unit.to_string(),
+        n: values.len(),
+        date_from: dates.first().cloned().unwrap_or_default(),
+        date_to: dates.last().cloned().unwrap_or_default(),
+        baseline_n: base_n,
+        limits,
+        signals,
+        spec_min: window.min,
+        spec_max: window.max,
+        spec_revision,
+        capability,
+        normality,
+        warnings,
+        lots: ids,
+        values,
+        raw_signals,
+    })
+}
+
+/// A lot whose viscosity is off the log-log line for its Mn.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct OffLine {
+    /// Lot id.
+    pub lot: String,
+    /// Manufacture date.
+    pub manufactured: String,
+    /// Residual in robust standard deviations.
+    pub robust_z: f64,
+}
+
+/// Viscosity against Mn over the selected lots.
+#[derive(Debug, Clone, Serialize)]
+pub struct ViscosityCheck {
+    /// The fit.
+    #[serde(flatten)]
+    pub fit: stats::LogLogFit,
+    /// Lots off the line by more than 3 robust standard deviations.
+    pub off_line: Vec<OffLine>,
+}
+
+/// Fits log viscosity against log Mn and lists the lots off the line, or None when fewer than
+/// three lots have both values.
+pub fn viscosity_check(lots: &[LotRow], mn: usize, visc: usize) -> Option<ViscosityCheck> {
+    let pairs: Vec<(&LotRow, f64, f64)> = lots
+        .iter()
+        .filter_map(|l| match (l.values[mn], l.values[visc]) {
+            (Some(m), Some(v)) if m > 0.0 && v > 0.0 => Some((l, m, v)),
+            _ => None,
+        })
+        .collect();
+    let m: Vec<f64> = pairs.iter().map(|p| p.1).collect();
+    let v: Vec<f64> = pairs.iter().map(|p| p.2).collect();
+    let fit = stats::log_log_fit(&m, &v).ok()?;
+    let off_line = fit
+        .flagged
+        .iter()
+        .map(|&i| OffLine {
+            lot: pairs[i].0.lot.clone(),
+            manufactured: pairs[i].0.manufactured.clone(),
+            robust_z: if fit.robust_sd > 0.0 {
+                (fit.residuals[i] - fit.residual_median) / fit.robust_sd
+            } else {
+                f64::INFINITY
+            },
+        })
+        .collect();
+    Some(ViscosityCheck { fit, off_line })
+}
