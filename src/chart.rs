@@ -59,6 +59,8 @@ const Y_LABEL_AREA: u32 = 80;
 const RIGHT_MARGIN: u32 = 120;
 /// Above this many lots the individual point markers are left out (the line remains).
 const MAX_MARKERS: usize = 400;
+/// Above this many signalled lots the points get small dots instead of numbered rings.
+const MAX_MARKED_SIGNALS: usize = 150;
 /// Horizontal room one rotated lot label needs, in pixels.
 const LABEL_PITCH: f64 = 15.0;
 
@@ -356,10 +358,12 @@ where
     if n <= MAX_MARKERS {
         bottom.draw_series(mr_points().map(|p| Circle::new(p, 2, POINT.filled())))?;
     }
+    let beyond = mr_points().filter(|&(_, r)| r > l.mr_ucl).count();
+    let dot = if beyond > MAX_MARKED_SIGNALS { 2 } else { 4 };
     bottom.draw_series(
         mr_points()
             .filter(|&(_, r)| r > l.mr_ucl)
-            .map(|p| Circle::new(p, 4, SIGNAL.filled())),
+            .map(|p| Circle::new(p, dot, SIGNAL.filled())),
     )?;
     draw_right_labels(root, &bottom, x_end, &mr_labels)?;
     draw_lot_axis(
@@ -546,6 +550,23 @@ where
             }
             _ => by_point.push((s.index, s.rule.to_string())),
         }
+    }
+    if by_point.len() > MAX_MARKED_SIGNALS {
+        // Too many to ring and number legibly: small dots and one note instead.
+        for (i, _) in &by_point {
+            let p = chart.backend_coord(&(*i as f64, input.values[*i]));
+            root.draw(&Circle::new(p, 2, SIGNAL.filled()))?;
+        }
+        let (x0, y0) = chart.backend_coord(&(chart.x_range().start, chart.y_range().end));
+        root.draw(&Text::new(
+            format!(
+                "{} lots signalled (amber dots): too many to number here, see the list of signals",
+                by_point.len()
+            ),
+            (x0 + 8, y0 + 4),
+            ("sans-serif", 12).into_font().color(&TEXT),
+        ))?;
+        return Ok(());
     }
     // Boxes (x0, y0, x1, y1 in pixels) of the labels placed so far; only recent ones can collide.
     let mut placed: Vec<(i32, i32, i32, i32)> = Vec::new();
@@ -750,6 +771,35 @@ mod tests {
             .filter(|t| ids.iter().any(|id| t.trim() == id))
             .count();
         assert!(shown > 5 && shown < 80, "{shown} lot labels");
+    }
+
+    #[test]
+    fn many_signals_become_dots_with_a_note() {
+        // Invented fixture: 300 lots alternating up and down fire rule 4 at almost every lot.
+        let values: Vec<f64> = (0..300)
+            .map(|i| if i % 2 == 0 { 10.0 } else { 12.0 })
+            .collect();
+        let ids: Vec<String> = (0..300).map(|i| format!("A{i:03}")).collect();
+        let limits = imr_limits(&values[..2]).unwrap();
+        let signals = nelson_signals(&values, &limits, RuleSet::parse("4", "--rules").unwrap());
+        assert!(signals.len() > MAX_MARKED_SIGNALS);
+        let input = ChartInput {
+            product: "PX-100",
+            property: "OHV",
+            unit: "mg KOH/g",
+            date_from: "2026-01-01",
+            date_to: "2026-02-01",
+            lot_ids: &ids,
+            values: &values,
+            limits: &limits,
+            spec_min: None,
+            spec_max: None,
+            signals: &signals,
+            baseline_len: Some(2),
+        };
+        let svg = String::from_utf8(imr_svg(&input).unwrap()).unwrap();
+        roxmltree::Document::parse(&svg).unwrap();
+        assert!(svg.contains(&format!("{} lots signalled", signals.len())));
     }
 
     #[test]
