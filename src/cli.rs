@@ -34,6 +34,10 @@ pub enum Command {
     /// product's trend file.
     #[command(after_help = EXIT_STATUS)]
     Release(cmd::release::Args),
+    /// Trend a product's lots: I-MR control charts, Nelson run rules, capability (Cp, Cpk,
+    /// Pp, Ppk) and the viscosity–Mn check; SVG/PNG charts and a PDF report.
+    #[command(after_help = EXIT_STATUS)]
+    Trend(cmd::trend::Args),
     /// Answer "what is lot X?": status, every value with unit and verdict, Mn with its
     /// uncertainty, certificates issued and retest history.
     #[command(after_help = EXIT_STATUS)]

@@ -9,6 +9,7 @@ pub mod init;
 pub mod lookup;
 pub mod release;
 pub mod specs;
+pub mod trend;
 pub mod verify;
 
 use crate::cli::{Cli, Command};
@@ -40,6 +41,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Demo(args) => demo::run(&args),
         Command::Init(args) => init::run(&args),
         Command::Lookup(args) => lookup::run(&args),
+        Command::Trend(args) => trend::run(&args),
         Command::Find(args) => find::run(&args),
         Command::Specs(args) => specs::run(&args),
         Command::Verify(args) => verify::run(&args),
