@@ -30,6 +30,13 @@ pub struct Site {
     /// Contact lines (department, telephone, e-mail), one entry per printed line.
     #[serde(default)]
     pub contact: Vec<String>,
+    /// Prefix of certificate numbers (letters, digits, '-', '_', '.'), e.g. "FW-".
+    #[serde(default = "default_prefix")]
+    pub certificate_prefix: String,
+}
+
+fn default_prefix() -> String {
+    "CoA-".to_string()
 }
 
 /// File name of the site file inside the templates folder.
@@ -45,6 +52,13 @@ impl Site {
                 format!("{place}: name"),
                 "the site name is empty",
                 "Enter the issuing site's name as it should appear on certificates.",
+            ));
+        }
+        if !crate::ids::is_safe_id(&site.certificate_prefix) || site.certificate_prefix.len() > 12 {
+            return Err(Error::invalid(
+                format!("{place}: certificate_prefix"),
+                format!("'{}' cannot start a file name", site.certificate_prefix),
+                "Use up to 12 letters, digits, '-', '_' or '.', e.g. certificate_prefix = \"FW-\".",
             ));
         }
         if site.address.iter().all(|l| l.trim().is_empty()) {

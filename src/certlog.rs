@@ -117,7 +117,12 @@ impl Log {
 
     /// The next certificate number: `prefix` followed by the six-digit sequence.
     pub fn next_number(&self, prefix: &str) -> String {
-        format!("{prefix}{:06}", self.locked.trend.rows.len() + 1)
+        self.number_after(prefix, 0)
+    }
+
+    /// The number `k` places after the next one (for numbering a batch before appending it).
+    pub fn number_after(&self, prefix: &str, k: usize) -> String {
+        format!("{prefix}{:06}", self.locked.trend.rows.len() + 1 + k)
     }
 
     /// Appends an entry and syncs it to disk.

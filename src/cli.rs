@@ -34,6 +34,10 @@ pub enum Command {
     /// product's trend file.
     #[command(after_help = EXIT_STATUS)]
     Release(cmd::release::Args),
+    /// Issue a customer's certificate of analysis (PDF) for a released lot, checked against
+    /// the customer's tighter windows, numbered and recorded in the certificate log.
+    #[command(after_help = EXIT_STATUS)]
+    Certify(cmd::certify::Args),
     /// Trend a product's lots: I-MR control charts, Nelson run rules, capability (Cp, Cpk,
     /// Pp, Ppk) and the viscosity–Mn check; SVG/PNG charts and a PDF report.
     #[command(after_help = EXIT_STATUS)]

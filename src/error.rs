@@ -19,7 +19,7 @@ pub enum Error {
         fix: String,
     },
     /// A file could not be read or written.
-    #[error("{}: {action} failed: {source}", path.display())]
+    #[error("{}: {action} failed", path.display())]
     Io {
         /// The file or folder concerned.
         path: PathBuf,

@@ -1,6 +1,7 @@
 //! One module per subcommand, each with a `run` entry point; `dispatch` picks one.
 
 pub mod adjust;
+pub mod certify;
 pub mod cook;
 pub mod demo;
 pub mod endgroup;
@@ -40,6 +41,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Release(args) => release::run(&args),
         Command::Demo(args) => demo::run(&args),
         Command::Init(args) => init::run(&args),
+        Command::Certify(args) => certify::run(&args),
         Command::Lookup(args) => lookup::run(&args),
         Command::Trend(args) => trend::run(&args),
         Command::Find(args) => find::run(&args),

@@ -8,10 +8,14 @@ use std::time::Duration;
 use anyhow::Context;
 use serde::Serialize;
 
+use crate::certificate::Supersedes;
+use crate::certlog::Log;
 use crate::cmd::Outcome;
+use crate::coa::{self, LotRecord};
 use crate::error::Error;
 use crate::evaluate::{evaluate, LotDecision, Status};
 use crate::intake::{self, LotResults};
+use crate::issue::{Issuer, Pending};
 use crate::register::{self, Locked, Wait};
 use crate::spec::SpecSet;
 
@@ -52,6 +56,16 @@ pub struct Args {
     /// Seconds to wait for another process writing the same trend file. Default: 30.
     #[arg(long, default_value_t = 30, value_name = "SECONDS")]
     pub lock_timeout: u64,
+    /// Do not write the internal certificate of each newly decided lot (for importing
+    /// history). Default: certificates are written.
+    #[arg(long)]
+    pub no_certificates: bool,
+    /// Folder the internal certificates are written to. Default: certificates.
+    #[arg(long, default_value = "certificates", value_name = "DIR")]
+    pub out: PathBuf,
+    /// Folder holding certificate.html.tera, certificate.css and site.toml. Default: templates.
+    #[arg(long, default_value = "templates", value_name = "DIR")]
+    pub templates: PathBuf,
     /// Largest results file accepted, in bytes. Default: 67108864 (64 MiB).
     #[arg(long, default_value_t = 64 << 20, value_name = "BYTES")]
     pub max_bytes: u64,
@@ -143,6 +157,16 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     }
     bar.finish_and_clear();
     let now = crate::clock::now()?;
+    let now_text = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
+    let with_certs = !args.dry_run && !args.no_certificates;
+    let issuer = if with_certs {
+        Some(Issuer::new(&args.templates, &args.out)?)
+    } else {
+        None
+    };
+    let mut log: Option<Log> = None;
+    let mut pending: Vec<Pending> = Vec::new();
+    let mut rendered = Vec::new();
     let recorded = if args.dry_run {
         vec![Recorded::NotWritten; decisions.len()]
     } else {
@@ -152,8 +176,58 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             &lots,
             &decisions,
             &approver,
-            &now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
+            &now_text,
+            &mut |plan| {
+                let Some(issuer) = &issuer else {
+                    return Ok(());
+                };
+                // Locked only once every trend-file check has passed, so a refused release
+                // leaves the certificate log untouched too.
+                let log = log.insert(Log::lock(
+                    &args.register,
+                    Wait {
+                        timeout: Duration::from_secs(args.lock_timeout),
+                    },
+                )?);
+                let entries = log.entries();
+                for (i, d) in decisions.iter().enumerate() {
+                    if plan[i] == Some(usize::MAX) {
+                        continue;
+                    }
+                    let spec = specs.for_date(&d.product, d.manufactured)?;
+                    let rec = LotRecord::from_decision(d, &approver, &now_text);
+                    let supersedes = entries
+                        .iter()
+                        .rev()
+                        .find(|e| e.lot == d.lot && e.customer.is_empty())
+                        .map(|e| Supersedes {
+                            number: e.number.clone(),
+                            reason: args.reason.clone().unwrap_or_else(|| "retest".into()),
+                        });
+                    let number = log.number_after(&issuer.site.certificate_prefix, pending.len());
+                    let certificate = coa::build(
+                        &issuer.site,
+                        spec,
+                        &rec,
+                        None,
+                        &number,
+                        now.date_naive(),
+                        supersedes,
+                    )?;
+                    pending.push(Pending {
+                        certificate,
+                        customer: String::new(),
+                        reason: args.reason.clone().unwrap_or_default(),
+                    });
+                }
+                rendered = issuer.render(&pending)?;
+                Ok(())
+            },
         )?
+    };
+    let issued = match (&issuer, &mut log) {
+        (Some(issuer), Some(log)) => issuer.file(log, &pending, &rendered, false, &now_text)?,
+        _ => Vec::new(),
     };
     let text = if args.json {
         let lots: Vec<JsonLot> = decisions
@@ -161,9 +235,21 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             .zip(&recorded)
             .map(|(decision, recorded)| JsonLot { decision, recorded })
             .collect();
-        serde_json::to_string_pretty(&serde_json::json!({ "lots": lots }))? + "\n"
+        serde_json::to_string_pretty(&serde_json::json!({ "lots": lots, "certificates": issued }))?
+            + "\n"
     } else {
-        render(&specs, &decisions, &recorded, &args.register, args.dry_run)
+        let mut t = render(&specs, &decisions, &recorded, &args.register, args.dry_run);
+        if !issued.is_empty() {
+            t.push_str(&format!(
+                "{} internal certificate{} written to {} ({} to {}).\n",
+                issued.len(),
+                if issued.len() == 1 { "" } else { "s" },
+                args.out.display(),
+                issued[0].certificate_number,
+                issued[issued.len() - 1].certificate_number
+            ));
+        }
+        t
     };
     crate::output::print(&text)?;
     Ok(if decisions.iter().all(|d| d.status == Status::Released) {
@@ -195,6 +281,7 @@ fn record(
     decisions: &[LotDecision],
     approver: &str,
     now: &str,
+    before_write: &mut dyn FnMut(&[Option<usize>]) -> anyhow::Result<()>,
 ) -> anyhow::Result<Vec<Recorded>> {
     let mut by_product: BTreeMap<&str, Vec<usize>> = BTreeMap::new();
     for (i, d) in decisions.iter().enumerate() {
@@ -260,6 +347,7 @@ fn record(
             }
         }
     }
+    before_write(&plan)?;
     for (i, d) in decisions.iter().enumerate() {
         if plan[i] == Some(usize::MAX) {
             continue;

@@ -67,8 +67,16 @@ pub struct Args {
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let rules = RuleSet::parse(&args.rules, "--rules")?;
     let sel = Selection {
-        from: args.from.as_deref().map(|d| parse_date("--from", d)).transpose()?,
-        to: args.to.as_deref().map(|d| parse_date("--to", d)).transpose()?,
+        from: args
+            .from
+            .as_deref()
+            .map(|d| parse_date("--from", d))
+            .transpose()?,
+        to: args
+            .to
+            .as_deref()
+            .map(|d| parse_date("--to", d))
+            .transpose()?,
         released_only: args.released_only,
     };
     let baseline = match (args.baseline, &args.baseline_until) {
@@ -107,7 +115,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         )
         .into());
     }
-    let latest_date = chrono::NaiveDate::parse_from_str(&lots[lots.len() - 1].manufactured, "%Y-%m-%d").ok();
+    let latest_date =
+        chrono::NaiveDate::parse_from_str(&lots[lots.len() - 1].manufactured, "%Y-%m-%d").ok();
     let spec = latest_date
         .and_then(|d| specs.for_date(&args.product, d).ok())
         .or_else(|| specs.latest(&args.product));
@@ -120,8 +129,12 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         let col = keys.iter().position(|k| k == key).expect("key from header");
         let p = spec.and_then(|s| s.property(key));
         let window = SpecWindow {
-            min: p.and_then(|p| p.min).and_then(|d| d.to_string().parse().ok()),
-            max: p.and_then(|p| p.max).and_then(|d| d.to_string().parse().ok()),
+            min: p
+                .and_then(|p| p.min)
+                .and_then(|d| d.to_string().parse().ok()),
+            max: p
+                .and_then(|p| p.max)
+                .and_then(|d| d.to_string().parse().ok()),
         };
         let label = p.map_or(key.as_str(), |p| p.label.as_str());
         let unit = p.map_or("", |p| if p.unit == "1" { "" } else { p.unit.as_str() });
@@ -145,7 +158,10 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             Err(e) => return Err(e.into()),
         }
     }
-    let visc = match (keys.iter().position(|k| k == "mn"), keys.iter().position(|k| k == "viscosity")) {
+    let visc = match (
+        keys.iter().position(|k| k == "mn"),
+        keys.iter().position(|k| k == "viscosity"),
+    ) {
         (Some(m), Some(v)) => trending::viscosity_check(&lots, m, v),
         _ => None,
     };
@@ -159,7 +175,12 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         }
     }
     if let Some(path) = &args.report {
-        let bytes = render_report(args, spec.map(|s| s.name.as_str()).unwrap_or(""), &trends, visc.as_ref())?;
+        let bytes = render_report(
+            args,
+            spec.map(|s| s.name.as_str()).unwrap_or(""),
+            &trends,
+            visc.as_ref(),
+        )?;
         crate::output::write_atomic(path, &bytes, true)?;
     }
     let text = if args.json {
@@ -179,8 +200,13 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         summary(&args.product, &trends, visc.as_ref(), args)
     };
     crate::output::print(&text)?;
-    let any_signal = trends.iter().any(|t| !t.signals.is_empty()) || visc.as_ref().is_some_and(|v| !v.off_line.is_empty());
-    Ok(if any_signal { Outcome::FellShort } else { Outcome::AllGood })
+    let any_signal = trends.iter().any(|t| !t.signals.is_empty())
+        || visc.as_ref().is_some_and(|v| !v.off_line.is_empty());
+    Ok(if any_signal {
+        Outcome::FellShort
+    } else {
+        Outcome::AllGood
+    })
 }
 
 fn chart_input(t: &PropertyTrend) -> crate::chart::ChartInput<'_> {
@@ -208,7 +234,12 @@ fn render_report(
     visc: Option<&ViscosityCheck>,
 ) -> anyhow::Result<Vec<u8>> {
     let _ = (args, name, trends, visc);
-    Err(Error::invalid("--report", "the PDF trend report is not available in this build", "Use --chart for the SVG chart.").into())
+    Err(Error::invalid(
+        "--report",
+        "the PDF trend report is not available in this build",
+        "Use --chart for the SVG chart.",
+    )
+    .into())
 }
 
 /// The JSON of one property's trend (the documented keys, and more).
@@ -275,8 +306,22 @@ fn cap_text(t: &PropertyTrend) -> String {
     match &t.capability {
         None => "no spec limit".into(),
         Some(c) => {
-            let ci = c.cpk_ci95.map(|[a, b]| format!(" [{a:.2}, {b:.2}]")).unwrap_or_default();
-            let side = c.cpk_side.map(|s| format!(" ({})", serde_json::to_value(s).ok().and_then(|v| v.as_str().map(String::from)).unwrap_or_default())).unwrap_or_default();
+            let ci = c
+                .cpk_ci95
+                .map(|[a, b]| format!(" [{a:.2}, {b:.2}]"))
+                .unwrap_or_default();
+            let side = c
+                .cpk_side
+                .map(|s| {
+                    format!(
+                        " ({})",
+                        serde_json::to_value(s)
+                            .ok()
+                            .and_then(|v| v.as_str().map(String::from))
+                            .unwrap_or_default()
+                    )
+                })
+                .unwrap_or_default();
             format!("Cpk {:.2}{ci}{side}", c.cpk)
         }
     }
@@ -301,7 +346,12 @@ fn visc_text(v: Option<&ViscosityCheck>) -> String {
     s
 }
 
-fn summary(product: &str, trends: &[PropertyTrend], visc: Option<&ViscosityCheck>, args: &Args) -> String {
+fn summary(
+    product: &str,
+    trends: &[PropertyTrend],
+    visc: Option<&ViscosityCheck>,
+    args: &Args,
+) -> String {
     let mut rows = vec![vec![
         "property".to_string(),
         "n".into(),
@@ -312,7 +362,9 @@ fn summary(product: &str, trends: &[PropertyTrend], visc: Option<&ViscosityCheck
         "first signal".into(),
     ]];
     for t in trends {
-        let first = t.signals.first().map_or(String::new(), |s| format!("rule {} at {} ({})", s.rule, s.lot, s.manufactured));
+        let first = t.signals.first().map_or(String::new(), |s| {
+            format!("rule {} at {} ({})", s.rule, s.lot, s.manufactured)
+        });
         let lots_signalled = {
             let mut l: Vec<&str> = t.signals.iter().map(|s| s.lot.as_str()).collect();
             l.dedup();
@@ -324,7 +376,11 @@ fn summary(product: &str, trends: &[PropertyTrend], visc: Option<&ViscosityCheck
             num(t.limits.mean),
             num(t.limits.sigma_within),
             cap_text(t),
-            if t.signals.is_empty() { "0".into() } else { format!("{} on {} lots", t.signals.len(), lots_signalled) },
+            if t.signals.is_empty() {
+                "0".into()
+            } else {
+                format!("{} on {} lots", t.signals.len(), lots_signalled)
+            },
             first,
         ]);
     }
@@ -333,7 +389,11 @@ fn summary(product: &str, trends: &[PropertyTrend], visc: Option<&ViscosityCheck
         trends.first().map_or(0, |t| t.n),
         trends.first().map_or("", |t| t.date_from.as_str()),
         trends.first().map_or("", |t| t.date_to.as_str()),
-        if args.released_only { " (released lots only)" } else { "" }
+        if args.released_only {
+            " (released lots only)"
+        } else {
+            ""
+        }
     );
     out.push_str(&crate::table::render(&rows));
     out.push_str(&visc_text(visc));
@@ -347,17 +407,31 @@ fn detail(t: &PropertyTrend, visc: Option<&ViscosityCheck>, args: &Args) -> Stri
         t.product,
         t.property,
         t.label,
-        if t.unit.is_empty() { String::new() } else { format!(", {}", t.unit) },
+        if t.unit.is_empty() {
+            String::new()
+        } else {
+            format!(", {}", t.unit)
+        },
         t.n,
         t.date_from,
         t.date_to
     );
-    let base = if t.baseline_n < t.n { format!("the first {} lots (frozen)", t.baseline_n) } else { format!("all {} lots", t.n) };
+    let base = if t.baseline_n < t.n {
+        format!("the first {} lots (frozen)", t.baseline_n)
+    } else {
+        format!("all {} lots", t.n)
+    };
     let mut pairs = vec![
         ("Control limits from".to_string(), base),
         ("Centre line x̄".to_string(), num(l.mean)),
-        ("UCL / LCL".to_string(), format!("{} / {}", num(l.ucl), num(l.lcl))),
-        ("MR̄ / MR UCL".to_string(), format!("{} / {}", num(l.mr_bar), num(l.mr_ucl))),
+        (
+            "UCL / LCL".to_string(),
+            format!("{} / {}", num(l.ucl), num(l.lcl)),
+        ),
+        (
+            "MR̄ / MR UCL".to_string(),
+            format!("{} / {}", num(l.mr_bar), num(l.mr_ucl)),
+        ),
         ("σ_within = MR̄/1.128".to_string(), num(l.sigma_within)),
         (
             "Spec window".to_string(),
@@ -367,13 +441,19 @@ fn detail(t: &PropertyTrend, visc: Option<&ViscosityCheck>, args: &Args) -> Stri
                     "{} to {}{}",
                     a.map_or("open".into(), num),
                     b.map_or("open".into(), num),
-                    t.spec_revision.as_ref().map(|r| format!(" (revision {r})")).unwrap_or_default()
+                    t.spec_revision
+                        .as_ref()
+                        .map(|r| format!(" (revision {r})"))
+                        .unwrap_or_default()
                 ),
             },
         ),
     ];
     if let Some(c) = &t.capability {
-        let ci = |v: Option<[f64; 2]>| v.map(|[a, b]| format!(" (95 % CI {a:.2} to {b:.2})")).unwrap_or_default();
+        let ci = |v: Option<[f64; 2]>| {
+            v.map(|[a, b]| format!(" (95 % CI {a:.2} to {b:.2})"))
+                .unwrap_or_default()
+        };
         if let Some(cp) = c.cp {
             pairs.push(("Cp".into(), format!("{cp:.2}{}", ci(c.cp_ci95))));
         }
@@ -381,19 +461,37 @@ fn detail(t: &PropertyTrend, visc: Option<&ViscosityCheck>, args: &Args) -> Stri
         if let Some(pp) = c.pp {
             pairs.push(("Pp".into(), format!("{pp:.2}")));
         }
-        pairs.push(("Ppk".into(), format!("{:.2} (overall s = {})", c.ppk, num(c.sigma_overall))));
+        pairs.push((
+            "Ppk".into(),
+            format!("{:.2} (overall s = {})", c.ppk, num(c.sigma_overall)),
+        ));
     }
     if let Some(n) = &t.normality {
-        pairs.push(("Normality (Anderson-Darling)".into(), format!("A²* = {:.3}, p = {:.3}", n.a2_star, n.p_value)));
+        pairs.push((
+            "Normality (Anderson-Darling)".into(),
+            format!("A²* = {:.3}, p = {:.3}", n.a2_star, n.p_value),
+        ));
     }
     out.push_str(&crate::table::pairs(&pairs));
     if t.signals.is_empty() {
         out.push_str(&format!("\nNo run-rule signals (rules: {}).\n", args.rules));
     } else {
         out.push_str(&format!("\nSignals ({}):\n", t.signals.len()));
-        let mut rows = vec![vec!["rule".to_string(), "lot".into(), "manufactured".into(), "#".into(), "pattern".into()]];
+        let mut rows = vec![vec![
+            "rule".to_string(),
+            "lot".into(),
+            "manufactured".into(),
+            "#".into(),
+            "pattern".into(),
+        ]];
         for s in &t.signals {
-            rows.push(vec![s.rule.to_string(), s.lot.clone(), s.manufactured.clone(), s.index.to_string(), s.description.to_string()]);
+            rows.push(vec![
+                s.rule.to_string(),
+                s.lot.clone(),
+                s.manufactured.clone(),
+                s.index.to_string(),
+                s.description.to_string(),
+            ]);
         }
         out.push_str(&crate::table::render(&rows));
     }

@@ -26,10 +26,9 @@ fn copy_dir(from: &Path, to: &Path) {
 impl Workspace {
     pub fn new() -> Workspace {
         let dir = tempfile::tempdir().unwrap();
-        copy_dir(
-            &Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures"),
-            dir.path(),
-        );
+        let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+        copy_dir(&root.join("tests/fixtures"), dir.path());
+        copy_dir(&root.join("templates"), &dir.path().join("templates"));
         Workspace { dir }
     }
 

@@ -1,0 +1,194 @@
+//! `resinlot certify`: a customer's certificate of analysis for one released lot.
+
+use std::path::PathBuf;
+use std::time::Duration;
+
+use crate::certificate::Supersedes;
+use crate::certlog::Log;
+use crate::cmd::Outcome;
+use crate::coa::{self, LotRecord, Shipment};
+use crate::customer::Customer;
+use crate::error::Error;
+use crate::evaluate::Status;
+use crate::issue::{Issuer, Pending};
+use crate::register::Wait;
+use crate::spec::SpecSet;
+
+/// Arguments of `resinlot certify`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// The lot id.
+    pub lot: String,
+    /// Customer file stem in SPECS/customers (e.g. brantwick for brantwick.toml).
+    #[arg(long, value_name = "NAME")]
+    pub customer: String,
+    /// The customer's purchase order number, printed on the certificate.
+    #[arg(long, value_name = "PO")]
+    pub po: Option<String>,
+    /// Quantity shipped, as it should be printed (e.g. "20 t", "80 drums").
+    #[arg(long, value_name = "TEXT")]
+    pub quantity: Option<String>,
+    /// Why a certificate is issued again for the same lot and customer; required for a
+    /// reissue, which supersedes the previous certificate (the old file stays).
+    #[arg(long, value_name = "TEXT")]
+    pub reason: Option<String>,
+    /// Folder holding the product specs and customers/. Default: specs.
+    #[arg(long, default_value = "specs", value_name = "DIR")]
+    pub specs: PathBuf,
+    /// Folder holding the trend files and the certificate log. Default: register.
+    #[arg(long, default_value = "register", value_name = "DIR")]
+    pub register: PathBuf,
+    /// Folder holding certificate.html.tera, certificate.css and site.toml. Default: templates.
+    #[arg(long, default_value = "templates", value_name = "DIR")]
+    pub templates: PathBuf,
+    /// Folder the certificate PDF is written to. Default: certificates.
+    #[arg(long, default_value = "certificates", value_name = "DIR")]
+    pub out: PathBuf,
+    /// Also write the certificate's HTML beside the PDF (for e-mail bodies).
+    #[arg(long)]
+    pub html: bool,
+    /// Print {"certificate_number","path","sha256"} as JSON.
+    #[arg(long)]
+    pub json: bool,
+    /// Seconds to wait for another process writing the certificate log. Default: 30.
+    #[arg(long, default_value_t = 30, value_name = "SECONDS")]
+    pub lock_timeout: u64,
+}
+
+fn text_arg(flag: &str, v: &Option<String>) -> anyhow::Result<()> {
+    if let Some(t) = v {
+        if t.trim().is_empty() || t.chars().count() > 120 || t.chars().any(char::is_control) {
+            return Err(Error::invalid(
+                flag,
+                "must be 1 to 120 printable characters",
+                "Shorten or correct it.",
+            )
+            .into());
+        }
+    }
+    Ok(())
+}
+
+/// Runs the command.
+pub fn run(args: &Args) -> anyhow::Result<Outcome> {
+    text_arg("--po", &args.po)?;
+    text_arg("--quantity", &args.quantity)?;
+    text_arg("--reason", &args.reason)?;
+    if !crate::ids::is_safe_id(&args.lot) {
+        return Err(Error::invalid(
+            format!("lot '{}'", args.lot),
+            "not a usable lot id",
+            "Lot ids are letters, digits, '-', '_' or '.'.",
+        )
+        .into());
+    }
+    let specs = SpecSet::load(&args.specs)?;
+    let customer = Customer::load(&args.specs.join("customers"), &args.customer, &specs)?;
+    let Some(trend) = crate::query::find_lot(&args.register, &args.lot)? else {
+        return Err(Error::Shortfall(format!(
+            "lot '{}' is not in the record at {}",
+            args.lot,
+            args.register.display()
+        ))
+        .into());
+    };
+    let row = trend.rows.last().expect("found rows");
+    let rec = LotRecord::from_row(&trend, row)?;
+    let spec = specs
+        .products
+        .get(&rec.product)
+        .and_then(|r| r.iter().find(|s| s.revision == rec.revision))
+        .ok_or_else(|| {
+            Error::invalid(
+                format!("lot {}", rec.lot),
+                format!(
+                    "spec {} revision {} is not in {}",
+                    rec.product,
+                    rec.revision,
+                    args.specs.display()
+                ),
+                "Keep every revision a lot was released under in the specs folder.",
+            )
+        })?;
+    let cp = customer.product(&rec.product)?;
+    if rec.status != Status::Released {
+        return Err(Error::Shortfall(format!(
+            "lot {} is {}: a customer certificate is issued only for released lots",
+            rec.lot,
+            rec.status.as_str().replace('_', " ")
+        ))
+        .into());
+    }
+    let ship = Shipment {
+        customer: &customer,
+        product: cp,
+        purchase_order: args.po.as_deref(),
+        quantity: args.quantity.as_deref(),
+    };
+    coa::check_customer(spec, &rec, &ship)?;
+    let issuer = Issuer::new(&args.templates, &args.out)?;
+    let wait = Wait {
+        timeout: Duration::from_secs(args.lock_timeout),
+    };
+    let mut log = Log::lock(&args.register, wait)?;
+    let previous = log
+        .entries()
+        .into_iter()
+        .rev()
+        .find(|e| e.lot == rec.lot && e.customer == customer.id);
+    let supersedes = match (&previous, &args.reason) {
+        (Some(p), Some(r)) => Some(Supersedes { number: p.number.clone(), reason: r.clone() }),
+        (Some(p), None) => {
+            return Err(Error::invalid(
+                format!("lot {} for {}", rec.lot, customer.name),
+                format!("certificate {} was already issued on {}", p.number, p.issued_at),
+                "To issue a new revision that supersedes it, add --reason \"...\"; the old certificate stays on record.",
+            )
+            .into())
+        }
+        (None, _) => None,
+    };
+    let now = crate::clock::now()?;
+    let number = log.next_number(&issuer.site.certificate_prefix);
+    let certificate = coa::build(
+        &issuer.site,
+        spec,
+        &rec,
+        Some(&ship),
+        &number,
+        now.date_naive(),
+        supersedes,
+    )?;
+    let pending = vec![Pending {
+        certificate,
+        customer: customer.id.clone(),
+        reason: args.reason.clone().unwrap_or_default(),
+    }];
+    let rendered = issuer.render(&pending)?;
+    let issued = issuer.file(
+        &mut log,
+        &pending,
+        &rendered,
+        args.html,
+        &now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
+    )?;
+    let i = &issued[0];
+    let text = if args.json {
+        serde_json::to_string_pretty(i)? + "\n"
+    } else {
+        format!(
+            "Certificate {} for lot {} ({}) issued to {}{}\n  {}\n  SHA-256 {}\n",
+            i.certificate_number,
+            rec.lot,
+            rec.product,
+            customer.name,
+            previous
+                .map(|p| format!(", superseding {}", p.number))
+                .unwrap_or_default(),
+            i.path.display(),
+            i.sha256
+        )
+    };
+    crate::output::print(&text)?;
+    Ok(Outcome::AllGood)
+}

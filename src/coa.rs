@@ -1,0 +1,408 @@
+//! Builds certificates of analysis from the record: a lot's decided values, its spec and,
+//! for a shipment, the customer's overlay (tighter windows, report order, units).
+
+use std::collections::HashMap;
+use std::str::FromStr;
+
+use chrono::NaiveDate;
+use rust_decimal::Decimal;
+
+use crate::certificate::{
+    self as cert, Authorisation, CalculatedNote, Certificate, Conformity, ResultRow, Site,
+    Supersedes,
+};
+use crate::customer::{combined, customer_verdict, Customer, CustomerProduct};
+use crate::decision::{decimal_from_f64, round, DecisionRule, Verdict};
+use crate::error::{Error, Result};
+use crate::evaluate::{guard_uncertainty, unit_factor, LotDecision, Status};
+use crate::register::{Row, Trend};
+use crate::spec::{end_groups_words, limits_text, ProductSpec};
+
+/// What the record holds about a lot, as needed for a certificate.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LotRecord {
+    /// Lot id.
+    pub lot: String,
+    /// Product code.
+    pub product: String,
+    /// Manufacture date.
+    pub manufactured: NaiveDate,
+    /// Release status.
+    pub status: Status,
+    /// Spec revision applied.
+    pub revision: String,
+    /// Values by key, full precision text.
+    pub values: HashMap<String, String>,
+    /// Recorded verdicts by key.
+    pub verdicts: HashMap<String, String>,
+    /// Expanded uncertainty of Mn.
+    pub mn_uncertainty: Option<f64>,
+    /// Who released it.
+    pub approver: String,
+    /// When it was decided (RFC 3339).
+    pub decided_at: String,
+}
+
+impl LotRecord {
+    /// From a trend-file row.
+    pub fn from_row(t: &Trend, row: &Row) -> Result<LotRecord> {
+        let c = |n: &str| t.cell(row, n).to_string();
+        let bad = |what: &str| {
+            Error::invalid(
+                format!("{}:{}", t.path.display(), row.line),
+                format!("the row's {what} cannot be read"),
+                "Check the record with `resinlot verify`.",
+            )
+        };
+        let mut values = HashMap::new();
+        let mut verdicts = HashMap::new();
+        for k in t.keys() {
+            values.insert(k.clone(), c(&k));
+            verdicts.insert(k.clone(), c(&format!("{k}_verdict")));
+        }
+        Ok(LotRecord {
+            lot: c("lot"),
+            product: c("product"),
+            manufactured: NaiveDate::parse_from_str(&c("manufactured"), "%Y-%m-%d")
+                .map_err(|_| bad("manufacture date"))?,
+            status: Status::parse(&c("status")).ok_or_else(|| bad("status"))?,
+            revision: c("spec_revision"),
+            values,
+            verdicts,
+            mn_uncertainty: c("mn_uncertainty").parse().ok(),
+            approver: c("approver"),
+            decided_at: c("recorded_at"),
+        })
+    }
+
+    /// From a decision about to be recorded.
+    pub fn from_decision(d: &LotDecision, approver: &str, now: &str) -> LotRecord {
+        let mut values = HashMap::new();
+        let mut verdicts = HashMap::new();
+        let mut mn_u = None;
+        for p in &d.properties {
+            let v = p
+                .exact
+                .clone()
+                .or_else(|| p.value.map(|v| v.to_string()))
+                .unwrap_or_default();
+            values.insert(p.property.clone(), v);
+            verdicts.insert(
+                p.property.clone(),
+                p.verdict
+                    .map(|v| v.as_str().to_string())
+                    .unwrap_or_default(),
+            );
+            if p.property == "mn" {
+                mn_u = p.uncertainty;
+            }
+        }
+        LotRecord {
+            lot: d.lot.clone(),
+            product: d.product.clone(),
+            manufactured: d.manufactured,
+            status: d.status,
+            revision: d.spec_revision.clone(),
+            values,
+            verdicts,
+            mn_uncertainty: mn_u,
+            approver: approver.to_string(),
+            decided_at: now.to_string(),
+        }
+    }
+
+    fn value(&self, key: &str) -> Option<Decimal> {
+        let text = self.values.get(key)?;
+        Decimal::from_str(text)
+            .ok()
+            .or_else(|| text.parse::<f64>().ok().and_then(decimal_from_f64))
+    }
+}
+
+/// A shipment to a customer.
+#[derive(Debug, Clone, Copy)]
+pub struct Shipment<'a> {
+    /// The customer.
+    pub customer: &'a Customer,
+    /// Their requirements for this product.
+    pub product: &'a CustomerProduct,
+    /// Purchase order.
+    pub purchase_order: Option<&'a str>,
+    /// Quantity shipped, as written.
+    pub quantity: Option<&'a str>,
+}
+
+fn verdict_words(v: &str) -> String {
+    match Verdict::parse(v) {
+        Some(v) => {
+            let w = v.words();
+            let mut c = w.chars();
+            c.next().map_or(String::new(), |f| {
+                f.to_uppercase().collect::<String>() + c.as_str()
+            })
+        }
+        None if v.is_empty() => "—".into(),
+        None => v.to_string(),
+    }
+}
+
+/// Number of decimals after converting by `factor` (a power of ten).
+fn decimals_after(decimals: u32, factor: Decimal) -> u32 {
+    let mut d = decimals as i64;
+    let mut f = factor;
+    while f < Decimal::ONE && f > Decimal::ZERO {
+        f *= Decimal::TEN;
+        d += 1;
+    }
+    while f >= Decimal::TEN {
+        f /= Decimal::TEN;
+        d -= 1;
+    }
+    d.max(0) as u32
+}
+
+/// Checks that a released lot meets a customer's windows under the product's decision rule;
+/// the error names the property and both windows.
+pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> Result<()> {
+    for p in &spec.properties {
+        let window = ship.product.limits.get(&p.key);
+        if window.is_none() {
+            continue;
+        }
+        let Some(value) = rec.value(&p.key) else {
+            return Err(Error::Shortfall(format!(
+                "lot {} has no {} result, which {} requires",
+                rec.lot, p.label, ship.customer.name
+            )));
+        };
+        let u = if p.key == "mn" {
+            rec.mn_uncertainty.and_then(decimal_from_f64)
+        } else if p.derived {
+            None
+        } else {
+            guard_uncertainty(spec, p)
+        };
+        let v = customer_verdict(spec, &p.key, value, u, window);
+        if v.is_some_and(|v| v != Verdict::Pass) {
+            let w = combined(p.min, p.max, window);
+            return Err(Error::Shortfall(format!(
+                "lot {} cannot be certified for {}: {} {} {} is {} against the customer's window {} (product spec {} revision {}: {}){}",
+                rec.lot,
+                ship.customer.name,
+                p.label,
+                round(value, p.decimals, spec.rounding),
+                p.unit,
+                v.map_or("", |v| v.words()),
+                limits_text(w.min, w.max, p.decimals),
+                spec.code,
+                spec.revision,
+                limits_text(p.min, p.max, p.decimals),
+                if spec.decision_rule == DecisionRule::Guarded {
+                    format!(", guard band U = {}", u.map_or("0".to_string(), |u| round(u, p.decimals, spec.rounding).to_string()))
+                } else {
+                    String::new()
+                }
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// Builds the certificate for `rec`; with a shipment, the customer's view of it.
+pub fn build(
+    site: &Site,
+    spec: &ProductSpec,
+    rec: &LotRecord,
+    ship: Option<&Shipment>,
+    number: &str,
+    issue_date: NaiveDate,
+    supersedes: Option<Supersedes>,
+) -> Result<Certificate> {
+    let keys: Vec<String> = match ship.and_then(|s| s.product.report.clone()) {
+        Some(r) => r,
+        None => spec
+            .properties
+            .iter()
+            .filter(|p| !p.derived || p.has_limit() || p.key == "xn")
+            .map(|p| p.key.clone())
+            .collect(),
+    };
+    let mut rows = Vec::new();
+    for key in &keys {
+        let Some(p) = spec.property(key) else {
+            continue;
+        };
+        let factor = ship
+            .and_then(|s| s.product.units.get(key))
+            .and_then(|u| unit_factor(&p.unit, u).map(|f| (u.clone(), f)));
+        let (unit, f) = factor.unwrap_or((p.unit.clone(), Decimal::ONE));
+        let dec = decimals_after(p.decimals, f);
+        let window = match ship {
+            Some(s) => combined(p.min, p.max, s.product.limits.get(key)),
+            None => combined(p.min, p.max, None),
+        };
+        let conv = |d: Option<Decimal>| d.map(|d| d * f);
+        let result = match rec.value(key) {
+            Some(v) => {
+                let mut r = round(v, p.decimals, spec.rounding) * f;
+                r.rescale(dec);
+                r.to_string()
+            }
+            None => "not measured".to_string(),
+        };
+        let verdict = match ship {
+            Some(s) => {
+                let u = if p.key == "mn" {
+                    rec.mn_uncertainty.and_then(decimal_from_f64)
+                } else if p.derived {
+                    None
+                } else {
+                    guard_uncertainty(spec, p)
+                };
+                rec.value(key)
+                    .and_then(|v| customer_verdict(spec, key, v, u, s.product.limits.get(key)))
+                    .map_or("—".to_string(), |v| verdict_words(v.as_str()))
+            }
+            None => verdict_words(rec.verdicts.get(key).map_or("", String::as_str)),
+        };
+        let label = match p.temperature_c {
+            Some(t) => format!("{} at {t} °C", p.label),
+            None => p.label.clone(),
+        };
+        rows.push(ResultRow {
+            key: key.clone(),
+            label,
+            method: match (&p.method, p.derived) {
+                (Some(m), _) => m.clone(),
+                (None, true) => "calculated".into(),
+                (None, false) => "—".into(),
+            },
+            unit: if unit == "1" { String::new() } else { unit },
+            limits: if window.min.is_some() || window.max.is_some() {
+                limits_text(conv(window.min), conv(window.max), dec)
+            } else {
+                "report".into()
+            },
+            result,
+            verdict,
+        });
+    }
+    let mut calculated = Vec::new();
+    if let (Some(mn), Some(p)) = (rec.value("mn"), spec.property("mn")) {
+        calculated.push(CalculatedNote {
+            key: "mn".into(),
+            label: "Number-average molar mass Mn".into(),
+            value: round(mn, p.decimals, spec.rounding).to_string(),
+            unit: "g/mol".into(),
+            expanded_uncertainty: rec
+                .mn_uncertainty
+                .and_then(decimal_from_f64)
+                .map(|u| round(u, p.decimals, spec.rounding).to_string()),
+            coverage_factor: rec.mn_uncertainty.map(|_| "2".to_string()),
+            basis: format!(
+                "calculated by end-group analysis from the acid value and hydroxyl value, Mn = 56100 · f / (AV + OHV), assuming {}; the uncertainty is propagated from those of the two titrations",
+                end_groups_words(spec.functionality)
+            ),
+        });
+    }
+    if let (Some(xn), Some(p)) = (rec.value("xn"), spec.property("xn")) {
+        calculated.push(CalculatedNote {
+            key: "xn".into(),
+            label: "Degree of polymerisation Xn".into(),
+            value: round(xn, p.decimals, spec.rounding).to_string(),
+            unit: String::new(),
+            expanded_uncertainty: None,
+            coverage_factor: None,
+            basis: "calculated from the batch recipe by the Carothers equation, with the extent of reaction from the acid value and the water of condensation".into(),
+        });
+    }
+    let released = rec.status == Status::Released;
+    let statement = if released {
+        format!(
+            "The lot conforms to specification {} revision {}{} under the decision rule stated.",
+            spec.code,
+            spec.revision,
+            ship.map(|s| format!(" and to the requirements of {}", s.customer.name))
+                .unwrap_or_default()
+        )
+    } else {
+        format!(
+            "NOT RELEASED: the lot's status is {}. No statement of conformity is made; this certificate is an internal quality record only.",
+            rec.status.as_str().replace('_', " ")
+        )
+    };
+    let (name, role) = match rec.approver.split_once(',') {
+        Some((n, r)) => (n.trim().to_string(), r.trim().to_string()),
+        None => (rec.approver.clone(), "Authorised for release".to_string()),
+    };
+    let decided = rec
+        .decided_at
+        .get(..10)
+        .and_then(|d| NaiveDate::parse_from_str(d, "%Y-%m-%d").ok())
+        .unwrap_or(issue_date);
+    Ok(Certificate {
+        title: if ship.is_some() {
+            "Certificate of Analysis".into()
+        } else {
+            "Certificate of Analysis (internal record)".into()
+        },
+        issuer: site.clone(),
+        number: number.to_string(),
+        issue_date,
+        product: cert::Product {
+            code: spec.code.clone(),
+            name: spec.name.clone(),
+        },
+        spec: cert::SpecRef {
+            code: spec.code.clone(),
+            revision: spec.revision.clone(),
+        },
+        lot: cert::Lot {
+            id: rec.lot.clone(),
+            manufactured: rec.manufactured,
+            retest: cert::retest_date(rec.manufactured, spec.retest_months)
+                .unwrap_or(rec.manufactured),
+        },
+        customer: ship.map(|s| cert::Customer {
+            name: s.customer.name.clone(),
+            part_number: s.product.part_number.clone(),
+            purchase_order: s.purchase_order.map(str::to_string),
+            quantity: s.quantity.map(str::to_string),
+        }),
+        rows,
+        calculated,
+        conformity: Conformity {
+            decision_rule: spec.decision_rule.statement().to_string(),
+            guard_band: match spec.decision_rule {
+                DecisionRule::Guarded => {
+                    "w = U, the expanded uncertainty (k = 2) of each result".into()
+                }
+                DecisionRule::Simple => "w = 0".into(),
+            },
+            statement,
+        },
+        scope_statement: cert::SCOPE_STATEMENT.to_string(),
+        statements: ship
+            .map(|s| s.product.statements.clone())
+            .unwrap_or_default(),
+        authorisation: Authorisation {
+            name,
+            role,
+            date: decided,
+        },
+        released,
+        supersedes,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn decimals_follow_the_unit_factor() {
+        assert_eq!(decimals_after(0, Decimal::new(1, 3)), 3); // mPa·s → Pa·s
+        assert_eq!(decimals_after(3, Decimal::from(1000)), 0); // Pa·s → mPa·s
+        assert_eq!(decimals_after(1, Decimal::ONE), 1);
+    }
+}
