@@ -382,17 +382,21 @@ pub fn lock_with(
     if let Some(dir) = path.parent() {
         std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, "creating folder", e))?;
     }
-    let mut file = OpenOptions::new()
-        .read(true)
-        .append(true)
-        .create(true)
-        .open(path)
-        .map_err(|e| Error::io(path, "opening", e))?;
     let start = Instant::now();
     let mut told = false;
+    let mut file;
     loop {
+        file = OpenOptions::new()
+            .read(true)
+            .append(true)
+            .create(true)
+            .open(path)
+            .map_err(|e| Error::io(path, "opening", e))?;
         match file.try_lock() {
-            Ok(()) => break,
+            // A lock holder may have removed a file it created but never wrote (see Drop):
+            // then this handle is stale and the path must be opened again.
+            Ok(()) if same_file(&file, path) => break,
+            Ok(()) => continue,
             Err(std::fs::TryLockError::WouldBlock) => {}
             Err(std::fs::TryLockError::Error(e)) => return Err(Error::io(path, "locking", e)),
         }
@@ -453,6 +457,29 @@ pub fn lock_with(
         fresh,
         header: if fresh { header } else { String::new() },
     })
+}
+
+/// True when the open `file` is still the file at `path` (same device and inode).
+fn same_file(file: &File, path: &Path) -> bool {
+    use std::os::unix::fs::MetadataExt;
+    match (file.metadata(), std::fs::metadata(path)) {
+        (Ok(a), Ok(b)) => a.dev() == b.dev() && a.ino() == b.ino(),
+        _ => false,
+    }
+}
+
+impl Drop for Locked {
+    /// A file this lock created but never wrote to is removed again (still under the lock),
+    /// so a refused command leaves no empty trend file or log behind; then its folder, if
+    /// that is now empty.
+    fn drop(&mut self) {
+        if self.fresh && self.file.metadata().is_ok_and(|m| m.len() == 0) {
+            let _ = std::fs::remove_file(&self.trend.path);
+            if let Some(dir) = self.trend.path.parent() {
+                let _ = std::fs::remove_dir(dir);
+            }
+        }
+    }
 }
 
 impl Locked {

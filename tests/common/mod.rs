@@ -67,9 +67,9 @@ impl Workspace {
         c
     }
 
-    /// Every file under the workspace with its bytes, for "nothing changed" checks.
-    pub fn snapshot(&self) -> Vec<(PathBuf, Vec<u8>)> {
-        fn walk(p: &Path, out: &mut Vec<(PathBuf, Vec<u8>)>) {
+    /// Every file under the workspace with a digest of its bytes, for "nothing changed" checks.
+    pub fn snapshot(&self) -> Vec<(PathBuf, String)> {
+        fn walk(p: &Path, out: &mut Vec<(PathBuf, String)>) {
             let mut entries: Vec<_> = std::fs::read_dir(p)
                 .unwrap()
                 .map(|e| e.unwrap().path())
@@ -77,10 +77,12 @@ impl Workspace {
             entries.sort();
             for e in entries {
                 if e.is_dir() {
-                    out.push((e.clone(), vec![]));
+                    out.push((e.clone(), "folder".into()));
                     walk(&e, out);
                 } else {
-                    out.push((e.clone(), std::fs::read(&e).unwrap()));
+                    use sha2::Digest;
+                    let digest = sha2::Sha256::digest(std::fs::read(&e).unwrap());
+                    out.push((e.clone(), resinlot::register::hex(&digest)));
                 }
             }
         }
@@ -95,3 +97,33 @@ pub const GOOD: &str = "lot,product,manufactured,acid_value,hydroxyl_value,visco
 T26-101,TP-2000,2026-05-02,0.52,55.4,540\n\
 T26-102,TP-2000,2026-05-09,0.48,55.9,530\n\
 T26-103,TP-2000,2026-05-16,0.55,55.1,548\n";
+
+/// Text of each page of a PDF, read back with printpdf's parser; runs joined by single
+/// spaces so phrases split across runs still match.
+pub fn page_texts(pdf: &[u8]) -> Vec<String> {
+    use printpdf::{PdfDocument, PdfParseOptions};
+    let mut warnings = Vec::new();
+    let doc = PdfDocument::parse(pdf, &PdfParseOptions::default(), &mut warnings).unwrap();
+    doc.extract_text()
+        .into_iter()
+        .map(|runs| {
+            runs.join(" ")
+                .split_whitespace()
+                .collect::<Vec<_>>()
+                .join(" ")
+        })
+        .collect()
+}
+
+/// The PDFs in a folder, sorted by name.
+pub fn pdfs(dir: &Path) -> Vec<PathBuf> {
+    let mut v: Vec<PathBuf> = std::fs::read_dir(dir)
+        .map(|rd| {
+            rd.map(|e| e.unwrap().path())
+                .filter(|p| p.extension().is_some_and(|x| x == "pdf"))
+                .collect()
+        })
+        .unwrap_or_default();
+    v.sort();
+    v
+}
