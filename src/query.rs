@@ -22,36 +22,80 @@ pub fn trend_files(register: &Path) -> Result<Vec<PathBuf>> {
 }
 
 /// The rows of `lot` in one trend file (file order), found by a byte search before any parse:
-/// the header is read, then only lines containing `,lot,` are split.
+/// the file is read in 8 MiB chunks and only lines containing `,lot,` are split, so memory
+/// stays small and a million-lot file is searched at memory speed.
 pub fn lot_rows_in(path: &Path, lot: &str) -> Result<Option<Trend>> {
-    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "reading", e))?;
-    let header_end = memchr::memchr(b'\n', &bytes).unwrap_or(bytes.len());
-    let header = String::from_utf8_lossy(&bytes[..header_end]).to_string();
-    let columns = register::split_line(&header);
-    if !register::is_trend_header(&columns) {
-        return Err(Error::invalid(
-            path.display().to_string(),
-            "this is not a resinlot trend file (unexpected header)",
-            "Keep only trend files and certificates.csv in the register folder.",
-        ));
-    }
+    lot_rows_chunked(path, lot, 8 << 20)
+}
+
+fn lot_rows_chunked(path: &Path, lot: &str, chunk: usize) -> Result<Option<Trend>> {
+    use std::io::Read;
+    let mut file = std::fs::File::open(path).map_err(|e| Error::io(path, "reading", e))?;
     let needle = format!(",{lot},");
     let finder = memchr::memmem::Finder::new(needle.as_bytes());
+    let mut buf: Vec<u8> = Vec::with_capacity(chunk + 4096);
+    let mut columns: Option<Vec<String>> = None;
     let mut rows = Vec::new();
-    for pos in finder.find_iter(&bytes) {
-        let start = memchr::memrchr(b'\n', &bytes[..pos]).map_or(0, |i| i + 1);
-        let end = memchr::memchr(b'\n', &bytes[pos..]).map_or(bytes.len(), |i| pos + i);
-        let line = String::from_utf8_lossy(&bytes[start..end]);
-        let cells = register::split_line(&line);
-        if cells.get(2).map(String::as_str) == Some(lot) && cells.len() == columns.len() {
-            let line_no = memchr::memchr_iter(b'\n', &bytes[..start]).count() + 1;
-            if rows.last().is_none_or(|r: &Row| r.line != line_no) {
+    let mut line_base = 1usize; // line number of buf's first line
+    let mut eof = false;
+    while !eof {
+        let start = buf.len();
+        buf.resize(start + chunk, 0);
+        let n = file
+            .read(&mut buf[start..])
+            .map_err(|e| Error::io(path, "reading", e))?;
+        buf.truncate(start + n);
+        eof = n == 0;
+        // Work on complete lines only; keep the partial last line for the next round.
+        let end = if eof {
+            buf.len()
+        } else {
+            memchr::memrchr(b'\n', &buf).map_or(0, |i| i + 1)
+        };
+        if end == 0 && !eof {
+            continue;
+        }
+        let mut body_from = 0;
+        if columns.is_none() {
+            let header_end = memchr::memchr(b'\n', &buf[..end]).unwrap_or(end);
+            let cols = register::split_line(&String::from_utf8_lossy(&buf[..header_end]));
+            if !register::is_trend_header(&cols) {
+                return Err(Error::invalid(
+                    path.display().to_string(),
+                    "this is not a resinlot trend file (unexpected header)",
+                    "Keep only trend files and certificates.csv in the register folder.",
+                ));
+            }
+            columns = Some(cols);
+            body_from = (header_end + 1).min(end);
+            line_base += 1;
+        }
+        let cols = columns.as_ref().expect("set above");
+        let mut counted_to = body_from;
+        let mut line_at = line_base;
+        for pos in finder
+            .find_iter(&buf[body_from..end])
+            .map(|p| p + body_from)
+        {
+            let ls = memchr::memrchr(b'\n', &buf[..pos])
+                .map_or(0, |i| i + 1)
+                .max(body_from);
+            let le = memchr::memchr(b'\n', &buf[pos..end]).map_or(end, |i| pos + i);
+            line_at += memchr::memchr_iter(b'\n', &buf[counted_to..ls]).count();
+            counted_to = ls;
+            let cells = register::split_line(&String::from_utf8_lossy(&buf[ls..le]));
+            if cells.get(2).map(String::as_str) == Some(lot)
+                && cells.len() == cols.len()
+                && rows.last().is_none_or(|r: &Row| r.line != line_at)
+            {
                 rows.push(Row {
-                    line: line_no,
+                    line: line_at,
                     cells,
                 });
             }
         }
+        line_base += memchr::memchr_iter(b'\n', &buf[body_from..end]).count();
+        buf.drain(..end);
     }
     if rows.is_empty() {
         return Ok(None);
@@ -62,7 +106,7 @@ pub fn lot_rows_in(path: &Path, lot: &str) -> Result<Option<Trend>> {
         .unwrap_or_default();
     Ok(Some(Trend {
         path: path.to_path_buf(),
-        columns,
+        columns: columns.unwrap_or_default(),
         rows,
         head,
     }))
@@ -273,6 +317,40 @@ pub fn trend_keys(path: &Path) -> Result<Vec<String>> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn chunked_search_finds_rows_across_chunk_boundaries() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        let keys = vec!["acid_value".to_string()];
+        {
+            let mut l = register::lock(
+                &p,
+                &keys,
+                &keys,
+                register::Wait {
+                    timeout: std::time::Duration::from_secs(5),
+                },
+            )
+            .unwrap();
+            for lot in ["A1", "B22", "A1", "C333", "A11"] {
+                l.append(&[("lot", lot.to_string()), ("acid_value", "0.5".into())])
+                    .unwrap();
+            }
+            l.sync().unwrap();
+        }
+        let full = register::read(&p).unwrap();
+        for chunk in [1, 7, 64, 1 << 20] {
+            let t = lot_rows_chunked(&p, "A1", chunk).unwrap().unwrap();
+            let seqs: Vec<&str> = t.rows.iter().map(|r| r.cells[0].as_str()).collect();
+            assert_eq!(seqs, ["1", "3"], "chunk {chunk}");
+            assert_eq!(
+                t.rows[1].line, full.rows[2].line,
+                "line numbers, chunk {chunk}"
+            );
+            assert!(lot_rows_chunked(&p, "Z9", chunk).unwrap().is_none());
+        }
+    }
 
     #[test]
     fn windows_open_on_either_end() {
