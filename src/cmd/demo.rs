@@ -193,8 +193,30 @@ fn steps() -> Vec<Step> {
     v
 }
 
+/// Output file name of step `n`: the command and its first argument that is not a flag or a
+/// flag's value, e.g. `03-release-history-spc-35.txt`, `15-find-spc-35.txt`.
 fn slug(n: usize, args: &[String]) -> String {
-    let name: String = args[..args.len().min(2)]
+    let mut parts = vec![args[0].clone()];
+    let mut skip = false;
+    for a in &args[1..] {
+        if skip {
+            skip = false;
+            continue;
+        }
+        if a.starts_with("--") {
+            if matches!(a.as_str(), "--product" | "--customer") {
+                continue;
+            }
+            skip = !matches!(a.as_str(), "--no-certificates" | "--html" | "--png");
+            continue;
+        }
+        let stem = std::path::Path::new(a)
+            .file_stem()
+            .map_or(a.clone(), |s| s.to_string_lossy().to_string());
+        parts.push(stem);
+        break;
+    }
+    let name: String = parts
         .join("-")
         .chars()
         .map(|c| {
@@ -281,4 +303,35 @@ fn run_step(exe: &Path, dir: &Path, args: &[String], out: &Path) -> anyhow::Resu
         .status()
         .with_context(|| format!("cannot run demo step resinlot {}", args.join(" ")))?;
     Ok(status.code().unwrap_or(-1))
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn step_output_names_are_readable() {
+        let a = |v: &[&str]| v.iter().map(|s| s.to_string()).collect::<Vec<_>>();
+        assert_eq!(
+            super::slug(
+                3,
+                &a(&[
+                    "release",
+                    "demo-lots/history-spc-35.csv",
+                    "--no-certificates"
+                ])
+            ),
+            "03-release-history-spc-35.txt"
+        );
+        assert_eq!(
+            super::slug(
+                15,
+                &a(&["find", "--product", "SPC-35", "--customer", "marlpit"])
+            ),
+            "15-find-spc-35.txt"
+        );
+        assert_eq!(
+            super::slug(17, &a(&["adjust", "--recipe", "r.toml", "--av", "1"])),
+            "17-adjust.txt"
+        );
+        assert_eq!(super::slug(18, &a(&["verify"])), "18-verify.txt");
+    }
 }
