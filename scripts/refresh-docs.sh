@@ -1,0 +1,30 @@
+#!/usr/bin/env bash
+# Regenerates what the README shows from a fresh demo run: the walkthrough outputs (the code
+# block after each `<!-- out:FILE -->` marker) and the pictures in docs/. Needs pdftoppm
+# (Debian package poppler-utils). Run from anywhere: bash scripts/refresh-docs.sh
+set -euo pipefail
+cd "$(dirname "$0")/.."
+export SOURCE_DATE_EPOCH=1796860800   # 2026-12-10T00:00:00Z, so the outputs are reproducible
+demo=target/readme-demo
+cargo build --release --quiet
+./target/release/resinlot demo "$demo" > target/readme-demo.txt
+cp target/readme-demo.txt "$demo/outputs/00-demo.txt"
+# Pictures: the first page of a customer certificate and the drifting hydroxyl-value chart.
+cert=$(ls "$demo"/certificates/F2611-D05_*.pdf | tail -n 1)
+pdftoppm -png -r 80 -f 1 -l 1 -singlefile "$cert" docs/certificate
+cp "$demo/outputs/pd-2000-hydroxyl-value.png" docs/control-chart.png
+pdftoppm -png -r 60 -f 1 -l 1 -singlefile "$demo/outputs/pd-2000-trend.pdf" docs/trend-report
+python3 - "$demo/outputs" <<'PY'
+import pathlib, re, sys
+out = pathlib.Path(sys.argv[1])
+readme = pathlib.Path("README.md")
+text = readme.read_text()
+def fill(m):
+    name = m.group(1)
+    body = (out / name).read_text().rstrip("\n")
+    body = body.replace(str(out.parent) + "/", "")
+    return f"<!-- out:{name} -->\n```text\n{body}\n```"
+text = re.sub(r"<!-- out:([\w.-]+) -->\n```text\n.*?\n```", fill, text, flags=re.S)
+readme.write_text(text)
+PY
+echo "README outputs and docs/*.png refreshed from $demo"
