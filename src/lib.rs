@@ -32,6 +32,7 @@ pub mod spec;
 pub mod stats;
 pub mod table;
 pub mod tomlfile;
+pub mod trend_report;
 pub mod trending;
 pub mod workspace;
 
