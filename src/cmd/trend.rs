@@ -61,6 +61,9 @@ pub struct Args {
     /// viscosity–Mn check.
     #[arg(long, value_name = "FILE")]
     pub report: Option<PathBuf>,
+    /// Folder holding site.toml, whose site name heads the report. Default: templates.
+    #[arg(long, default_value = "templates", value_name = "DIR")]
+    pub templates: PathBuf,
 }
 
 /// Runs the command.
@@ -226,20 +229,27 @@ fn chart_input(t: &PropertyTrend) -> crate::chart::ChartInput<'_> {
     }
 }
 
-#[allow(unused_variables)]
 fn render_report(
     args: &Args,
     name: &str,
     trends: &[PropertyTrend],
     visc: Option<&ViscosityCheck>,
 ) -> anyhow::Result<Vec<u8>> {
-    let _ = (args, name, trends, visc);
-    Err(Error::invalid(
-        "--report",
-        "the PDF trend report is not available in this build",
-        "Use --chart for the SVG chart.",
-    )
-    .into())
+    let site_file = args.templates.join(crate::certificate::SITE_FILE);
+    let site = if site_file.is_file() {
+        crate::certificate::Site::load(&site_file)?.name
+    } else {
+        String::new()
+    };
+    let input = crate::trend_report::ReportInput {
+        product_code: &args.product,
+        product_name: name,
+        generated_on: crate::clock::now()?.date_naive(),
+        site: &site,
+        trends,
+        viscosity: visc,
+    };
+    Ok(crate::trend_report::render_report(&input)?)
 }
 
 /// The JSON of one property's trend (the documented keys, and more).
