@@ -1043,6 +1043,25 @@ mod tests {
     }
 
     #[test]
+    fn long_names_and_many_warnings_are_cut_to_fit() {
+        let lots = invented_lots();
+        let mut t = trends(&lots);
+        t.truncate(1);
+        for i in 0..30 {
+            t[0].warnings.push(format!(
+                "invented warning number {i} with enough words to wrap onto a second line in the right column"
+            ));
+        }
+        let mut inp = input(&t, None);
+        inp.product_name = "An invented product name long enough to run into the date on the right of the title line";
+        let pdf = render("trend_report_crowded", &inp);
+        let page = &page_texts(&pdf)[0];
+        assert!(page.contains("more"), "{page}");
+        assert!(page.contains("…"), "{page}");
+        assert!(page.contains("Page 1 of 1"), "{page}");
+    }
+
+    #[test]
     fn rendering_is_deterministic() {
         let lots = invented_lots();
         let t = trends(&lots);
