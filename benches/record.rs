@@ -124,7 +124,19 @@ fn main() {
     let runs: &[(&str, Vec<&str>)] = &[
         ("lookup (one lot)", vec!["lookup", "B0500000"]),
         (
-            "find (two windows)",
+            "find (narrow windows)",
+            vec![
+                "find",
+                "--product",
+                "PD-2000",
+                "--where",
+                "mn=1995..2000",
+                "--where",
+                "acid_value=..0.3",
+            ],
+        ),
+        (
+            "find (broad, CSV out)",
             vec![
                 "find",
                 "--product",
@@ -142,9 +154,6 @@ fn main() {
         ),
     ];
     for (name, args) in runs {
-        if args[0] == "trend" && !trend_available(&bin) {
-            continue;
-        }
         let mut times = Vec::new();
         let mut peak: f64 = 0.0;
         for _ in 0..5 {
@@ -153,20 +162,26 @@ fn main() {
             peak = peak.max(m);
         }
         times.sort_by(f64::total_cmp);
+        let hits = if args[0] == "find" {
+            let out = Command::new(&bin)
+                .current_dir(&dir)
+                .args(args)
+                .output()
+                .unwrap();
+            format!(
+                "  ({} lines out)",
+                out.stdout.iter().filter(|b| **b == b'\n').count()
+            )
+        } else {
+            String::new()
+        };
         println!(
-            "{name:<22} median {:>7.0} ms  (min {:.0}, max {:.0})  peak RSS {peak:.0} MB",
+            "{name:<22} median {:>7.0} ms  (min {:.0}, max {:.0})  peak RSS {peak:.0} MB{hits}",
             times[2] * 1e3,
             times[0] * 1e3,
             times[4] * 1e3
         );
     }
-}
-
-fn trend_available(bin: &Path) -> bool {
-    Command::new(bin)
-        .args(["trend", "--help"])
-        .output()
-        .is_ok_and(|o| o.status.success())
 }
 
 fn copy_dir(from: &Path, to: &Path) {

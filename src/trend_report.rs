@@ -850,10 +850,10 @@ mod tests {
                 }
                 LotRow {
                     line: i + 2,
-                    lot: format!("TST-{:03}", i + 1),
-                    manufactured: format!("2026-03-{:02}", i + 1),
-                    status: "released".into(),
-                    revision: "B".into(),
+                    lot: format!("TST-{:03}", i + 1).into(),
+                    manufactured: format!("2026-03-{:02}", i + 1).as_str().into(),
+                    status: "released",
+                    revision: "B",
                     mn_uncertainty: Some(20.0),
                     values: vec![Some(mn), Some(av), Some(visc)],
                 }
@@ -1007,10 +1007,12 @@ mod tests {
         let lots: Vec<LotRow> = (0..80)
             .map(|i| LotRow {
                 line: i + 2,
-                lot: format!("RISE-{:03}", i + 1),
-                manufactured: format!("2026-{:02}-{:02}", 1 + i / 28, 1 + i % 28),
-                status: "released".into(),
-                revision: "A".into(),
+                lot: format!("RISE-{:03}", i + 1).into(),
+                manufactured: format!("2026-{:02}-{:02}", 1 + i / 28, 1 + i % 28)
+                    .as_str()
+                    .into(),
+                status: "released",
+                revision: "A",
                 mn_uncertainty: None,
                 values: vec![Some(100.0 + i as f64 + 0.1 * ((i * 3) % 4) as f64)],
             })

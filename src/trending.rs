@@ -127,8 +127,8 @@ pub fn property_trend(
     let mut values = Vec::new();
     for l in lots {
         if let Some(v) = l.values[column] {
-            ids.push(l.lot.clone());
-            dates.push(l.manufactured.clone());
+            ids.push(l.lot.to_string());
+            dates.push(l.manufactured);
             values.push(v);
         }
     }
@@ -147,7 +147,7 @@ pub fn property_trend(
         Baseline::First(n) => (*n).min(values.len()),
         Baseline::Until(d) => {
             let d = d.to_string();
-            dates.iter().take_while(|m| **m <= d).count()
+            dates.iter().take_while(|m| &***m <= d.as_str()).count()
         }
     };
     if base_n < 2 {
@@ -165,7 +165,7 @@ pub fn property_trend(
             rule: s.rule,
             lot: ids[s.index].clone(),
             index: s.index,
-            manufactured: dates[s.index].clone(),
+            manufactured: dates[s.index].to_string(),
             description: s.description,
         })
         .collect();
@@ -192,8 +192,8 @@ pub fn property_trend(
         label: label.to_string(),
         unit: unit.to_string(),
         n: values.len(),
-        date_from: dates.first().cloned().unwrap_or_default(),
-        date_to: dates.last().cloned().unwrap_or_default(),
+        date_from: dates.first().map(|d| d.to_string()).unwrap_or_default(),
+        date_to: dates.last().map(|d| d.to_string()).unwrap_or_default(),
         baseline_n: base_n,
         limits,
         signals,
@@ -247,8 +247,8 @@ pub fn viscosity_check(lots: &[LotRow], mn: usize, visc: usize) -> Option<Viscos
         .flagged
         .iter()
         .map(|&i| OffLine {
-            lot: pairs[i].0.lot.clone(),
-            manufactured: pairs[i].0.manufactured.clone(),
+            lot: pairs[i].0.lot.to_string(),
+            manufactured: pairs[i].0.manufactured.to_string(),
             robust_z: if fit.robust_sd > 0.0 {
                 (fit.residuals[i] - fit.residual_median) / fit.robust_sd
             } else {

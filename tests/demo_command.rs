@@ -16,7 +16,9 @@ fn demo_runs_the_whole_job_and_rebuilds_its_own_workspace() {
         .args(["demo", "ws"])
         .assert()
         .code(0)
-        .stdout(predicate::str::contains("Every step behaved as the demo scenario intends."));
+        .stdout(predicate::str::contains(
+            "Every step behaved as the demo scenario intends.",
+        ));
     let ws = d.path().join("ws");
     for f in [
         "register/PD-2000.csv",
@@ -44,13 +46,28 @@ fn demo_refuses_a_folder_that_is_not_its_own() {
         .assert()
         .code(2)
         .stderr(predicate::str::contains("not a demo workspace"));
-    assert_eq!(std::fs::read_to_string(d.path().join("lab/results.csv")).unwrap(), "keep");
+    assert_eq!(
+        std::fs::read_to_string(d.path().join("lab/results.csv")).unwrap(),
+        "keep"
+    );
 }
 
 #[test]
 fn init_creates_a_valid_workspace_and_refuses_an_existing_one() {
     let d = tempfile::tempdir().unwrap();
-    cmd(d.path()).args(["init", "lab"]).assert().code(0).stdout(predicate::str::contains("Edit first"));
-    cmd(&d.path().join("lab")).args(["specs", "check"]).assert().code(0).stdout(predicate::str::contains("EX-1000"));
-    cmd(d.path()).args(["init", "lab"]).assert().code(2).stderr(predicate::str::contains("not empty"));
+    cmd(d.path())
+        .args(["init", "lab"])
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains("Edit first"));
+    cmd(&d.path().join("lab"))
+        .args(["specs", "check"])
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains("EX-1000"));
+    cmd(d.path())
+        .args(["init", "lab"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("not empty"));
 }

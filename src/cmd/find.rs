@@ -107,8 +107,21 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         }
         None => (None, None),
     };
-    let (_, lots) = crate::query::current_lots(&path, &keys)?;
-    let at = |k: &str| keys.iter().position(|x| x == k).expect("key checked");
+    // The table needs only the windows and a few headline values; JSON, CSV and a customer's
+    // check need every property.
+    let loaded: Vec<String> = if args.json || args.csv || customer.is_some() {
+        keys.clone()
+    } else {
+        keys.iter()
+            .filter(|k| {
+                windows.iter().any(|w| w.key == **k)
+                    || ["mn", "acid_value", "hydroxyl_value"].contains(&k.as_str())
+            })
+            .cloned()
+            .collect()
+    };
+    let (_, lots) = crate::query::current_lots(&path, &loaded)?;
+    let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
     let win_idx: Vec<usize> = windows.iter().map(|w| at(&w.key)).collect();
     let mut hits: Vec<&crate::query::LotRow> = Vec::new();
     for row in &lots {
@@ -138,7 +151,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             };
             let cp = cu.product(&args.product)?;
             let ok = spec.properties.iter().all(|p| {
-                let Some(value) = keys
+                let Some(value) = loaded
                     .iter()
                     .position(|k| *k == p.key)
                     .and_then(|i| row.values[i])
@@ -191,10 +204,10 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         w.write_record(&header)?;
         for r in &hits {
             let mut rec = vec![
-                r.lot.clone(),
+                r.lot.to_string(),
                 args.product.clone(),
-                r.manufactured.clone(),
-                r.status.clone(),
+                r.manufactured.to_string(),
+                r.status.to_string(),
             ];
             rec.extend(r.values.iter().map(|v| fmt(*v)));
             w.write_record(&rec)?;
@@ -215,7 +228,11 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             h
         }];
         for r in &hits {
-            let mut line = vec![r.lot.clone(), r.manufactured.clone(), r.status.clone()];
+            let mut line = vec![
+                r.lot.to_string(),
+                r.manufactured.to_string(),
+                r.status.to_string(),
+            ];
             for k in &show {
                 line.push(short_number(&fmt(r.values[at(k)])));
             }

@@ -108,6 +108,19 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             .into());
         }
     }
+    // One property needs only its own column (and Mn and viscosity for their joint check).
+    let keys: Vec<String> = match &args.property {
+        Some(p) => keys
+            .iter()
+            .filter(|k| {
+                *k == p
+                    || (matches!(p.as_str(), "mn" | "viscosity")
+                        && matches!(k.as_str(), "mn" | "viscosity"))
+            })
+            .cloned()
+            .collect(),
+        None => keys,
+    };
     let (_, lots) = crate::query::current_lots(&path, &keys)?;
     let lots = trending::select(lots, &sel);
     if lots.is_empty() {
