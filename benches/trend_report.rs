@@ -20,12 +20,14 @@ fn lots(n: usize) -> Vec<LotRow> {
     (0..n)
         .map(|i| LotRow {
             line: i + 2,
-            lot: format!("BENCH-{:05}", i + 1),
+            lot: format!("BENCH-{:05}", i + 1).into(),
             manufactured: (NaiveDate::from_ymd_opt(2025, 1, 1).unwrap()
                 + chrono::Days::new(i as u64 / 3))
-            .to_string(),
-            status: "released".into(),
-            revision: "A".into(),
+            .to_string()
+            .as_str()
+            .into(),
+            status: "released",
+            revision: "A",
             mn_uncertainty: None,
             values: (0..PROPERTIES)
                 .map(|k| {

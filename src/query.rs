@@ -327,7 +327,7 @@ fn split_spans(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
 /// Reads in 8 MiB chunks and splits only the columns it needs, so a million-lot file takes a
 /// fraction of a second and memory grows only with the lots kept.
 pub fn current_lots(path: &Path, keys: &[String]) -> Result<(Vec<String>, Vec<LotRow>)> {
-    use std::hash::{BuildHasher, Hash, Hasher};
+    use std::hash::BuildHasher;
     use std::io::Read;
     let file_keys = trend_keys(path)?;
     let header = {
@@ -422,9 +422,7 @@ pub fn current_lots(path: &Path, keys: &[String]) -> Result<(Vec<String>, Vec<Lo
                 mn_uncertainty: num(field(4)),
                 values: (5..want.len()).map(|i| num(field(i))).collect(),
             };
-            let mut h = hasher.build_hasher();
-            lot.hash(&mut h);
-            let key = h.finish();
+            let key = hasher.hash_one(lot);
             match index.get(&key) {
                 Some(&i) if *rows[i as usize].lot == *lot => rows[i as usize] = row,
                 Some(_) => match collided.get(lot) {
