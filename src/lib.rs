@@ -17,6 +17,7 @@ pub mod customer;
 pub mod decision;
 pub mod error;
 pub mod evaluate;
+pub mod fonts;
 pub mod ids;
 pub mod intake;
 pub mod integrity;

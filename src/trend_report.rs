@@ -41,10 +41,7 @@ pub struct ReportInput<'a> {
     pub viscosity: Option<&'a ViscosityCheck>,
 }
 
-/// DejaVu Sans (Bitstream Vera licence, see `fonts/LICENSE-DejaVu.txt`).
-const DEJAVU_SANS: &[u8] = include_bytes!("../fonts/DejaVuSans.ttf");
-/// DejaVu Sans Bold (same licence).
-const DEJAVU_SANS_BOLD: &[u8] = include_bytes!("../fonts/DejaVuSans-Bold.ttf");
+use crate::fonts::{DEJAVU_SANS, DEJAVU_SANS_BOLD};
 
 /// A4 landscape, mm (ISO 216).
 const PAGE_W: f32 = 297.0;

@@ -14,10 +14,7 @@ use printpdf::{
 use crate::certificate::Certificate;
 use crate::error::{Error, Result};
 
-/// DejaVu Sans (Bitstream Vera licence, see `fonts/LICENSE-DejaVu.txt`).
-const DEJAVU_SANS: &[u8] = include_bytes!("../../fonts/DejaVuSans.ttf");
-/// DejaVu Sans Bold (same licence).
-const DEJAVU_SANS_BOLD: &[u8] = include_bytes!("../../fonts/DejaVuSans-Bold.ttf");
+use crate::fonts::{DEJAVU_SANS, DEJAVU_SANS_BOLD};
 
 /// A4 in millimetres (ISO 216).
 const PAGE_W_MM: f32 = 210.0;
