@@ -31,11 +31,16 @@ pub struct Selection {
 
 /// Keeps the selected lots (latest row of each), in manufacture order (then record order).
 pub fn select(mut lots: Vec<LotRow>, sel: &Selection) -> Vec<LotRow> {
+    // Dates are YYYY-MM-DD, so text order is date order: no parsing per lot.
+    let (from, to) = (
+        sel.from.map(|d| d.to_string()),
+        sel.to.map(|d| d.to_string()),
+    );
     lots.retain(|l| {
-        let d = chrono::NaiveDate::parse_from_str(&l.manufactured, "%Y-%m-%d").ok();
+        let d: &str = &l.manufactured;
         (!sel.released_only || l.status == "released")
-            && sel.from.is_none_or(|f| d.is_some_and(|d| d >= f))
-            && sel.to.is_none_or(|t| d.is_some_and(|d| d <= t))
+            && from.as_deref().is_none_or(|f| d >= f)
+            && to.as_deref().is_none_or(|t| d <= t)
     });
     lots.sort_by(|a, b| {
         a.manufactured

@@ -68,15 +68,15 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         })?),
         None => args.customer.as_ref().map(|_| Status::Released),
     };
-    let from = args
+    let from: Option<String> = args
         .from
         .as_deref()
-        .map(|d| parse_date("--from", d))
+        .map(|d| parse_date("--from", d).map(|d| d.to_string()))
         .transpose()?;
-    let to = args
+    let to: Option<String> = args
         .to
         .as_deref()
-        .map(|d| parse_date("--to", d))
+        .map(|d| parse_date("--to", d).map(|d| d.to_string()))
         .transpose()?;
     let path = crate::register::path_for(&args.register, &args.product);
     if !path.is_file() {
@@ -120,7 +120,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             .cloned()
             .collect()
     };
-    let (_, lots) = crate::query::current_lots(&path, &loaded)?;
+    let (_, lots) = crate::query::current_lots(&path, &loaded, customer.is_some())?;
     let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
     let win_idx: Vec<usize> = windows.iter().map(|w| at(&w.key)).collect();
     let mut hits: Vec<&crate::query::LotRow> = Vec::new();
@@ -128,10 +128,9 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         if status.is_some_and(|s| s.as_str() != row.status) {
             continue;
         }
-        let made = chrono::NaiveDate::parse_from_str(&row.manufactured, "%Y-%m-%d").ok();
-        if from.is_some_and(|f| made.is_none_or(|m| m < f))
-            || to.is_some_and(|t| made.is_none_or(|m| m > t))
-        {
+        // Dates are YYYY-MM-DD, so text order is date order: no parsing per row.
+        let made: &str = &row.manufactured;
+        if from.as_deref().is_some_and(|f| made < f) || to.as_deref().is_some_and(|t| made > t) {
             continue;
         }
         let fits = windows

@@ -121,7 +121,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             .collect(),
         None => keys,
     };
-    let (_, lots) = crate::query::current_lots(&path, &keys)?;
+    let (_, lots) = crate::query::current_lots(&path, &keys, false)?;
     let lots = trending::select(lots, &sel);
     if lots.is_empty() {
         return Err(Error::invalid(
