@@ -13,7 +13,7 @@ cp target/readme-demo.txt "$demo/outputs/00-demo.txt"
 cert=$(ls "$demo"/certificates/F2611-D05_*.pdf | tail -n 1)
 pdftoppm -png -r 80 -f 1 -l 1 -singlefile "$cert" docs/certificate
 cp "$demo/outputs/pd-2000-hydroxyl-value.png" docs/control-chart.png
-pdftoppm -png -r 60 -f 1 -l 1 -singlefile "$demo/outputs/pd-2000-trend.pdf" docs/trend-report
+pdftoppm -png -r 60 -f 2 -l 2 -singlefile "$demo/outputs/pd-2000-trend.pdf" docs/trend-report
 python3 - "$demo/outputs" <<'PY'
 import pathlib, re, sys
 out = pathlib.Path(sys.argv[1])
@@ -22,9 +22,9 @@ text = readme.read_text()
 def fill(m):
     name = m.group(1)
     body = (out / name).read_text().rstrip("\n")
-    body = body.replace(str(out.parent) + "/", "")
+    body = body.replace(str(out.parent) + "/", "").replace(str(out.parent), "resinlot-demo")
     return f"<!-- out:{name} -->\n```text\n{body}\n```"
-text = re.sub(r"<!-- out:([\w.-]+) -->\n```text\n.*?\n```", fill, text, flags=re.S)
+text = re.sub(r"<!-- out:([\w.-]+) -->\n```text\n(?:.*?\n)?```", fill, text, flags=re.S)
 readme.write_text(text)
 PY
 echo "README outputs and docs/*.png refreshed from $demo"
