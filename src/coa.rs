@@ -41,6 +41,8 @@ pub struct LotRecord {
     pub approver: String,
     /// When it was decided (RFC 3339).
     pub decided_at: String,
+    /// Notes recorded with the decision (corrections, replicates, conditional results).
+    pub notes: Vec<String>,
 }
 
 impl LotRecord {
@@ -72,6 +74,11 @@ impl LotRecord {
             mn_uncertainty: c("mn_uncertainty").parse().ok(),
             approver: c("approver"),
             decided_at: c("recorded_at"),
+            notes: c("notes")
+                .split("; ")
+                .filter(|n| !n.is_empty())
+                .map(str::to_string)
+                .collect(),
         })
     }
 
@@ -108,6 +115,7 @@ impl LotRecord {
             mn_uncertainty: mn_u,
             approver: approver.to_string(),
             decided_at: now.to_string(),
+            notes: d.notes.clone(),
         }
     }
 
@@ -382,9 +390,20 @@ pub fn build(
             statement,
         },
         scope_statement: cert::SCOPE_STATEMENT.to_string(),
-        statements: ship
-            .map(|s| s.product.statements.clone())
-            .unwrap_or_default(),
+        statements: {
+            // A result corrected to the spec temperature says so on the certificate.
+            let mut st: Vec<String> = rec
+                .notes
+                .iter()
+                .filter(|n| n.contains("Andrade"))
+                .cloned()
+                .collect();
+            st.extend(
+                ship.map(|s| s.product.statements.clone())
+                    .unwrap_or_default(),
+            );
+            st
+        },
         authorisation: Authorisation {
             name,
             role,

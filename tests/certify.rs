@@ -260,3 +260,20 @@ fn looser_customer_file_is_refused() {
             "looser than the TP-2000 revision C window",
         ));
 }
+
+#[test]
+fn temperature_corrected_viscosity_is_stated_on_the_certificate() {
+    let w = Workspace::new();
+    std::fs::remove_dir_all(w.path("certificates")).ok();
+    w.write(
+        "lims.csv",
+        "lot,product,property,value,unit,temperature_c,manufactured\n\
+         T26-501,TP-2000,acid_value,0.50,mg KOH/g,,2026-05-30\n\
+         T26-501,TP-2000,hydroxyl_value,55.3,mg KOH/g,,\n\
+         T26-501,TP-2000,viscosity,0.45,Pa·s,80,\n",
+    );
+    w.release("lims.csv").assert().code(0);
+    let pdf = &pdfs(&w.path("certificates"))[0];
+    let text = &page_texts(&std::fs::read(pdf).unwrap())[0];
+    assert!(text.contains("corrected to 75 °C by Andrade"), "{text}");
+}
