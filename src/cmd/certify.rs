@@ -33,16 +33,36 @@ pub struct Args {
     #[arg(long, value_name = "TEXT")]
     pub reason: Option<String>,
     /// Folder holding the product specs and customers/. Default: specs.
-    #[arg(long, default_value = "specs", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "specs",
+        value_name = "DIR"
+    )]
     pub specs: PathBuf,
     /// Folder holding the trend files and the certificate log. Default: register.
-    #[arg(long, default_value = "register", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "register",
+        value_name = "DIR"
+    )]
     pub register: PathBuf,
     /// Folder holding certificate.html.tera, certificate.css and site.toml. Default: templates.
-    #[arg(long, default_value = "templates", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "templates",
+        value_name = "DIR"
+    )]
     pub templates: PathBuf,
     /// Folder the certificate PDF is written to. Default: certificates.
-    #[arg(long, default_value = "certificates", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "certificates",
+        value_name = "DIR"
+    )]
     pub out: PathBuf,
     /// Also write the certificate's HTML beside the PDF (for e-mail bodies).
     #[arg(long)]
@@ -51,7 +71,12 @@ pub struct Args {
     #[arg(long)]
     pub json: bool,
     /// Seconds to wait for another process writing the certificate log. Default: 30.
-    #[arg(long, default_value_t = 30, value_name = "SECONDS")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value_t = 30,
+        value_name = "SECONDS"
+    )]
     pub lock_timeout: u64,
 }
 

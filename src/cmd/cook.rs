@@ -46,7 +46,7 @@ pub struct Args {
     pub order: Option<String>,
     /// Leave out of the fit the early samples whose extent of reaction p is below this value
     /// (they react faster than the equal-reactivity law). Default: 0.8.
-    #[arg(long, value_name = "P", default_value_t = kinetics::DEFAULT_EXCLUDE_BELOW)]
+    #[arg(hide_default_value = true, long, value_name = "P", default_value_t = kinetics::DEFAULT_EXCLUDE_BELOW)]
     pub exclude_below: f64,
     /// Fit several cooks of the same recipe at different temperatures and report the
     /// activation energy. Default: off.

@@ -13,7 +13,7 @@ use crate::error::Error;
 pub struct Args {
     /// Folder for the demo workspace. An earlier demo workspace there is rebuilt from scratch;
     /// any other existing folder is refused. Default: ./resinlot-demo.
-    #[arg(default_value = "resinlot-demo")]
+    #[arg(hide_default_value = true, default_value = "resinlot-demo")]
     pub dir: PathBuf,
 }
 

@@ -19,7 +19,12 @@ pub struct Args {
     #[arg(long, value_name = "MG_KOH_G", allow_hyphen_values = true)]
     pub ohv: f64,
     /// End groups per molecule used for the end-group Mn. Default: 2 (linear chains).
-    #[arg(long, default_value_t = 2.0, value_name = "F")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value_t = 2.0,
+        value_name = "F"
+    )]
     pub functionality: f64,
     /// The --ohv given is the raw result of an acetylation method (ISO 4629-1/-2, ASTM D4274
     /// method A), which measures OHV - AV: the acid value is added before any calculation. Do

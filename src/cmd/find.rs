@@ -38,10 +38,20 @@ pub struct Args {
     #[arg(long, value_name = "NAME")]
     pub customer: Option<String>,
     /// Folder holding the trend files. Default: register.
-    #[arg(long, default_value = "register", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "register",
+        value_name = "DIR"
+    )]
     pub register: PathBuf,
     /// Folder holding the product specs and customers/. Default: specs.
-    #[arg(long, default_value = "specs", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "specs",
+        value_name = "DIR"
+    )]
     pub specs: PathBuf,
     /// Print JSON instead of the table.
     #[arg(long, conflicts_with = "csv")]

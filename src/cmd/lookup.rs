@@ -15,10 +15,20 @@ pub struct Args {
     /// The lot id, as on the drum label or certificate.
     pub lot: String,
     /// Folder holding the trend files and the certificate log. Default: register.
-    #[arg(long, default_value = "register", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "register",
+        value_name = "DIR"
+    )]
     pub register: PathBuf,
     /// Folder holding the product specs, for labels, units and rounding. Default: specs.
-    #[arg(long, default_value = "specs", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "specs",
+        value_name = "DIR"
+    )]
     pub specs: PathBuf,
     /// Print JSON (values at full precision) instead of the text answer.
     #[arg(long)]

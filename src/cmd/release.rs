@@ -26,11 +26,21 @@ pub struct Args {
     /// semicolon separated, UTF-8 with or without BOM.
     pub results: PathBuf,
     /// Folder holding the product spec files. Default: specs.
-    #[arg(long, default_value = "specs", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "specs",
+        value_name = "DIR"
+    )]
     pub specs: PathBuf,
     /// Folder holding the trend files, one CSV per product (created when missing).
     /// Default: register.
-    #[arg(long, default_value = "register", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "register",
+        value_name = "DIR"
+    )]
     pub register: PathBuf,
     /// Name and role of the person releasing, recorded on every row and certificate.
     /// Default: the RESINLOT_APPROVER environment variable, else the login name.
@@ -54,20 +64,35 @@ pub struct Args {
     #[arg(long)]
     pub json: bool,
     /// Seconds to wait for another process writing the same trend file. Default: 30.
-    #[arg(long, default_value_t = 30, value_name = "SECONDS")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value_t = 30,
+        value_name = "SECONDS"
+    )]
     pub lock_timeout: u64,
     /// Do not write the internal certificate of each newly decided lot (for importing
     /// history). Default: certificates are written.
     #[arg(long)]
     pub no_certificates: bool,
     /// Folder the internal certificates are written to. Default: certificates.
-    #[arg(long, default_value = "certificates", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "certificates",
+        value_name = "DIR"
+    )]
     pub out: PathBuf,
     /// Folder holding certificate.html.tera, certificate.css and site.toml. Default: templates.
-    #[arg(long, default_value = "templates", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "templates",
+        value_name = "DIR"
+    )]
     pub templates: PathBuf,
     /// Largest results file accepted, in bytes. Default: 67108864 (64 MiB).
-    #[arg(long, default_value_t = 64 << 20, value_name = "BYTES")]
+    #[arg(hide_default_value = true, long, default_value_t = 64 << 20, value_name = "BYTES")]
     pub max_bytes: u64,
 }
 

@@ -19,7 +19,7 @@ pub enum Action {
     /// Validate every spec file, recipe and customer file and print one line per product.
     Check {
         /// Folder holding the product specs. Default: specs.
-        #[arg(default_value = "specs")]
+        #[arg(hide_default_value = true, default_value = "specs")]
         dir: PathBuf,
     },
 }

@@ -36,17 +36,32 @@ pub struct Args {
     pub baseline_until: Option<String>,
     /// Nelson rules to apply: a list such as 1,2,3,5, or "all", or "we" (the Western Electric
     /// tests, which are Nelson rules 1, 2, 5 and 6). Default: all.
-    #[arg(long, default_value = "all", value_name = "RULES")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "all",
+        value_name = "RULES"
+    )]
     pub rules: String,
     /// Leave out lots that were not released (by default held and rejected lots are part of
     /// the process and are included).
     #[arg(long)]
     pub released_only: bool,
     /// Folder holding the trend files. Default: register.
-    #[arg(long, default_value = "register", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "register",
+        value_name = "DIR"
+    )]
     pub register: PathBuf,
     /// Folder holding the product specs (labels, units, spec windows). Default: specs.
-    #[arg(long, default_value = "specs", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "specs",
+        value_name = "DIR"
+    )]
     pub specs: PathBuf,
     /// Print JSON instead of text.
     #[arg(long)]
@@ -62,7 +77,12 @@ pub struct Args {
     #[arg(long, value_name = "FILE")]
     pub report: Option<PathBuf>,
     /// Folder holding site.toml, whose site name heads the report. Default: templates.
-    #[arg(long, default_value = "templates", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "templates",
+        value_name = "DIR"
+    )]
     pub templates: PathBuf,
 }
 

@@ -12,11 +12,17 @@ pub struct Args {
     /// Without any, the whole record is checked instead.
     pub certificates: Vec<PathBuf>,
     /// Folder holding the trend files and the certificate log. Default: register.
-    #[arg(long, default_value = "register", value_name = "DIR")]
+    #[arg(
+        hide_default_value = true,
+        long,
+        default_value = "register",
+        value_name = "DIR"
+    )]
     pub register: PathBuf,
     /// Folder where certificates are issued, to check each logged PDF is present and
     /// unchanged. Default: certificates.
     #[arg(
+        hide_default_value = true,
         long = "certificates-dir",
         default_value = "certificates",
         value_name = "DIR"
