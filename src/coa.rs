@@ -14,7 +14,7 @@ use crate::certificate::{
 use crate::customer::{combined, customer_verdict, Customer, CustomerProduct};
 use crate::decision::{decimal_from_f64, round, DecisionRule, Verdict};
 use crate::error::{Error, Result};
-use crate::evaluate::{guard_uncertainty, unit_factor, LotDecision, Status};
+use crate::evaluate::{recorded_uncertainty, unit_factor, LotDecision, Status};
 use crate::register::{Row, Trend};
 use crate::spec::{end_groups_words, limits_text, ProductSpec};
 
@@ -183,13 +183,7 @@ pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> R
                 rec.lot, p.label, ship.customer.name
             )));
         };
-        let u = if p.key == "mn" {
-            rec.mn_uncertainty.and_then(decimal_from_f64)
-        } else if p.derived {
-            None
-        } else {
-            guard_uncertainty(spec, p)
-        };
+        let u = recorded_uncertainty(spec, p, rec.mn_uncertainty);
         let v = customer_verdict(spec, &p.key, value, u, window);
         if v.is_some_and(|v| v != Verdict::Pass) {
             let w = combined(p.min, p.max, window);
@@ -260,13 +254,7 @@ pub fn build(
         };
         let verdict = match ship {
             Some(s) => {
-                let u = if p.key == "mn" {
-                    rec.mn_uncertainty.and_then(decimal_from_f64)
-                } else if p.derived {
-                    None
-                } else {
-                    guard_uncertainty(spec, p)
-                };
+                let u = recorded_uncertainty(spec, p, rec.mn_uncertainty);
                 rec.value(key)
                     .and_then(|v| customer_verdict(spec, key, v, u, s.product.limits.get(key)))
                     .map_or("—".to_string(), |v| verdict_words(v.as_str()))

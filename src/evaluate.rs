@@ -383,6 +383,23 @@ pub fn guard_uncertainty(spec: &ProductSpec, p: &Property) -> Option<Decimal> {
     }
 }
 
+/// Guard band of a recorded value for a later check (a customer's window): the recorded
+/// expanded uncertainty of Mn, the spec's U for measured properties, and none for the other
+/// derived properties (their propagated U is not kept in the trend file, so w = 0 there).
+pub fn recorded_uncertainty(
+    spec: &ProductSpec,
+    p: &Property,
+    mn_uncertainty: Option<f64>,
+) -> Option<Decimal> {
+    if p.key == "mn" {
+        mn_uncertainty.and_then(decimal_from_f64)
+    } else if p.derived {
+        None
+    } else {
+        guard_uncertainty(spec, p)
+    }
+}
+
 fn missing(p: &Property) -> PropertyResult {
     PropertyResult {
         property: p.key.clone(),

@@ -8,7 +8,7 @@ use crate::cmd::Outcome;
 use crate::customer::{customer_verdict, Customer};
 use crate::decision::{decimal_from_f64, Verdict};
 use crate::error::Error;
-use crate::evaluate::{guard_uncertainty, Status};
+use crate::evaluate::{recorded_uncertainty, Status};
 use crate::query::{parse_date, parse_window, Window};
 use crate::spec::SpecSet;
 
@@ -168,13 +168,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                 else {
                     return !p.has_limit() && !cp.limits.contains_key(&p.key);
                 };
-                let u = if p.key == "mn" {
-                    row.mn_uncertainty.and_then(decimal_from_f64)
-                } else if p.derived {
-                    None
-                } else {
-                    guard_uncertainty(spec, p)
-                };
+                let u = recorded_uncertainty(spec, p, row.mn_uncertainty);
                 customer_verdict(spec, &p.key, value, u, cp.limits.get(&p.key))
                     .is_none_or(|v| v == Verdict::Pass)
             });
