@@ -502,6 +502,14 @@ impl SpecSet {
             })
     }
 
+    /// Revision `revision` of `code`, as recorded on a lot.
+    pub fn revision(&self, code: &str, revision: &str) -> Option<&ProductSpec> {
+        self.products
+            .get(code)?
+            .iter()
+            .find(|s| s.revision == revision)
+    }
+
     /// The newest revision of `code`.
     pub fn latest(&self, code: &str) -> Option<&ProductSpec> {
         self.products.get(code).and_then(|v| v.last())

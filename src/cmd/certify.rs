@@ -119,22 +119,18 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     };
     let row = trend.rows.last().expect("found rows");
     let rec = LotRecord::from_row(&trend, row)?;
-    let spec = specs
-        .products
-        .get(&rec.product)
-        .and_then(|r| r.iter().find(|s| s.revision == rec.revision))
-        .ok_or_else(|| {
-            Error::invalid(
-                format!("lot {}", rec.lot),
-                format!(
-                    "spec {} revision {} is not in {}",
-                    rec.product,
-                    rec.revision,
-                    args.specs.display()
-                ),
-                "Keep every revision a lot was released under in the specs folder.",
-            )
-        })?;
+    let spec = specs.revision(&rec.product, &rec.revision).ok_or_else(|| {
+        Error::invalid(
+            format!("lot {}", rec.lot),
+            format!(
+                "spec {} revision {} is not in {}",
+                rec.product,
+                rec.revision,
+                args.specs.display()
+            ),
+            "Keep every revision a lot was released under in the specs folder.",
+        )
+    })?;
     let cp = customer.product(&rec.product)?;
     if rec.status != Status::Released {
         return Err(Error::Shortfall(format!(

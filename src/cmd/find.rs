@@ -151,11 +151,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             continue;
         }
         if let (Some(specs), Some(cu)) = (&specs, &customer) {
-            let Some(spec) = specs
-                .products
-                .get(&args.product)
-                .and_then(|r| r.iter().find(|s| s.revision == row.revision))
-            else {
+            let Some(spec) = specs.revision(&args.product, row.revision) else {
                 continue;
             };
             let cp = cu.product(&args.product)?;

@@ -67,12 +67,9 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let rows: Vec<&Row> = trend.rows.iter().rev().collect();
     let current = rows[0];
     let product = trend.cell(current, "product").to_string();
-    let spec = specs.as_ref().and_then(|s| {
-        s.products.get(&product).and_then(|revs| {
-            revs.iter()
-                .find(|r| r.revision == trend.cell(current, "spec_revision"))
-        })
-    });
+    let spec = specs
+        .as_ref()
+        .and_then(|s| s.revision(&product, trend.cell(current, "spec_revision")));
     let certs: Vec<crate::certlog::Entry> = crate::certlog::entries(&args.register)?
         .into_iter()
         .filter(|e| e.lot == args.lot)
