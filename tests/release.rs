@@ -296,3 +296,25 @@ fn specs_check_summarises_products() {
             "B from 2025-06-01, C from 2026-03-01",
         ));
 }
+
+#[test]
+fn lot_id_already_used_by_another_product_is_refused() {
+    // Regression (issue #6): lookup finds a lot by id alone, so an id names one lot plant-wide.
+    let w = Workspace::new();
+    let spec = std::fs::read_to_string(w.path("specs/tp-2000-c.toml")).unwrap();
+    w.write(
+        "specs/tq-1.toml",
+        &spec.replace("code = \"TP-2000\"", "code = \"TQ-1\""),
+    );
+    w.write("good.csv", GOOD);
+    w.release("good.csv")
+        .arg("--no-certificates")
+        .assert()
+        .code(0);
+    refused(
+        &w,
+        "other.csv",
+        "lot,product,manufactured,acid_value,hydroxyl_value,viscosity\nT26-101,TQ-1,2026-05-02,0.5,55,540\n",
+        "already recorded for product TP-2000",
+    );
+}

@@ -329,6 +329,40 @@ fn record(
         let path = register::path_for(&args.register, product);
         locks.insert(product, register::lock(&path, &keys, &needed, wait)?);
     }
+    // A lot id names one lot plant-wide: refuse one already recorded under another product.
+    let mut elsewhere: std::collections::HashMap<String, String> = std::collections::HashMap::new();
+    let ours: std::collections::HashSet<&str> = decisions.iter().map(|d| d.lot.as_str()).collect();
+    if args.register.is_dir() {
+        for path in crate::query::trend_files(&args.register)? {
+            let product = path
+                .file_stem()
+                .map(|s| s.to_string_lossy().to_string())
+                .unwrap_or_default();
+            if by_product.contains_key(product.as_str()) {
+                continue;
+            }
+            register::scan(&path, &["lot"], |_, c| {
+                if ours.contains(c[0]) {
+                    elsewhere.insert(c[0].to_string(), product.clone());
+                }
+            })?;
+        }
+    }
+    for (i, d) in decisions.iter().enumerate() {
+        if let Some(other) = elsewhere.get(&d.lot) {
+            return Err(Error::invalid(
+                format!(
+                    "{}:{}, lot '{}'",
+                    args.results.display(),
+                    lots[i].line,
+                    d.lot
+                ),
+                format!("this lot id is already recorded for product {other}"),
+                "Lot ids must be unique across products; check the lot id and the product code.",
+            )
+            .into());
+        }
+    }
     // Plan: decide what each lot needs, refusing conflicts before writing anything.
     let mut plan: Vec<Option<usize>> = Vec::with_capacity(decisions.len());
     let mut out = vec![Recorded::NotWritten; decisions.len()];
