@@ -7,7 +7,7 @@ use sha2::{Digest, Sha256};
 
 use crate::certificate::{Certificate, Site, SITE_FILE};
 use crate::certlog::{Entry, Log};
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::render::{FontPool, Templates};
 
 /// Everything needed to render and file certificates.
@@ -65,6 +65,29 @@ impl Issuer {
             .par_iter()
             .map(|p| crate::render::render_one(&self.templates, &self.fonts, &p.certificate))
             .collect()
+    }
+
+    /// Checks, before anything is recorded, that every certificate can be filed: the output
+    /// folder exists or can be made and takes files, and no target file exists yet.
+    pub fn check_targets(&self, pending: &[Pending]) -> Result<()> {
+        if pending.is_empty() {
+            return Ok(());
+        }
+        std::fs::create_dir_all(&self.out)
+            .map_err(|e| Error::io(&self.out, "creating folder", e))?;
+        tempfile::tempfile_in(&self.out)
+            .map_err(|e| Error::io(&self.out, "writing a file in", e))?;
+        for p in pending {
+            let path = self.out.join(Self::file_name(&p.certificate));
+            if path.exists() {
+                return Err(Error::invalid(
+                    path.display().to_string(),
+                    "a file of this name already exists and is never overwritten",
+                    "Move the stray file aside (certificate numbers are never reused) and run again.",
+                ));
+            }
+        }
+        Ok(())
     }
 
     /// Writes rendered certificates and records them in the log (which must be locked by the

@@ -277,3 +277,37 @@ fn temperature_corrected_viscosity_is_stated_on_the_certificate() {
     let text = &page_texts(&std::fs::read(pdf).unwrap())[0];
     assert!(text.contains("corrected to 75 °C by Andrade"), "{text}");
 }
+
+#[test]
+fn certify_refuses_a_tampered_record() {
+    // Regression (issue #8): a certificate must never be issued from an edited row.
+    let w = released();
+    let p = w.path("register/TP-2000.csv");
+    let text = std::fs::read_to_string(&p).unwrap();
+    std::fs::write(&p, text.replacen(",0.52,", ",0.42,", 1)).unwrap();
+    let before = w.snapshot();
+    certify(&w, "T26-101")
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("TP-2000.csv:2"))
+        .stderr(predicate::str::contains("was changed"));
+    assert_eq!(before, w.snapshot());
+}
+
+#[test]
+fn unwritable_certificate_folder_refuses_before_recording() {
+    // Regression (issue #4): a certificate that cannot be filed must not leave a recorded row.
+    let w = Workspace::new();
+    w.write("good.csv", GOOD);
+    w.write("afile", "not a folder");
+    let before = w.snapshot();
+    w.release("good.csv")
+        .args(["--out", "afile/sub"])
+        .assert()
+        .code(2);
+    assert_eq!(
+        before,
+        w.snapshot(),
+        "no row recorded when certificates cannot be written"
+    );
+}

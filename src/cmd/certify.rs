@@ -117,6 +117,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         ))
         .into());
     };
+    // A certificate is issued only from an intact record: check the whole trend file's chain.
+    crate::register::read(&trend.path)?;
     let row = trend.rows.last().expect("found rows");
     let rec = LotRecord::from_row(&trend, row)?;
     let spec = specs.revision(&rec.product, &rec.revision).ok_or_else(|| {
@@ -186,6 +188,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         reason: args.reason.clone().unwrap_or_default(),
     }];
     let rendered = issuer.render(&pending)?;
+    issuer.check_targets(&pending)?;
     let issued = issuer.file(
         &mut log,
         &pending,

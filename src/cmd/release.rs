@@ -246,6 +246,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                     });
                 }
                 rendered = issuer.render(&pending)?;
+                issuer.check_targets(&pending)?;
                 Ok(())
             },
         )?
