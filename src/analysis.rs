@@ -37,6 +37,13 @@ impl Titration {
         if let Some(u) = self.u_ohv {
             non_negative("hydroxyl value uncertainty (--ohv-u)", u)?;
         }
+        if self.u_av.is_some() != self.u_ohv.is_some() {
+            return Err(Error::invalid(
+                "--av-u and --ohv-u",
+                "only one of the two uncertainties is given",
+                "Give both expanded uncertainties (k = 2) for the uncertainty of Mn, or neither.",
+            ));
+        }
         if let Some(s) = self.solids_fraction {
             positive("solids fraction (--solids)", s)?;
             if s > 1.0 {

@@ -170,8 +170,9 @@ fn decimals_after(decimals: u32, factor: Decimal) -> u32 {
 }
 
 /// Checks that a released lot meets a customer's windows under the product's decision rule;
-/// the error names the property and both windows.
+/// the error names every property that falls short, with both windows.
 pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> Result<()> {
+    let mut failures = Vec::new();
     for p in &spec.properties {
         let window = ship.product.limits.get(&p.key);
         if window.is_none() {
@@ -187,10 +188,8 @@ pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> R
         let v = customer_verdict(spec, &p.key, value, u, window);
         if v.is_some_and(|v| v != Verdict::Pass) {
             let w = combined(p.min, p.max, window);
-            return Err(Error::Shortfall(format!(
-                "lot {} cannot be certified for {}: {} {} {} is {} against the customer's window {} (product spec {} revision {}: {}){}",
-                rec.lot,
-                ship.customer.name,
+            failures.push(format!(
+                "{} {} {} is {} against the customer's window {} (product spec {} revision {}: {}){}",
                 p.label,
                 round(value, p.decimals, spec.rounding),
                 p.unit,
@@ -200,14 +199,26 @@ pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> R
                 spec.revision,
                 limits_text(p.min, p.max, p.decimals),
                 if spec.decision_rule == DecisionRule::Guarded {
-                    format!(", guard band U = {}", u.map_or("0".to_string(), |u| round(u, p.decimals, spec.rounding).to_string()))
+                    format!(
+                        ", guard band U = {}",
+                        u.map_or("0".to_string(), |u| round(u, p.decimals, spec.rounding).to_string())
+                    )
                 } else {
                     String::new()
                 }
-            )));
+            ));
         }
     }
-    Ok(())
+    if failures.is_empty() {
+        Ok(())
+    } else {
+        Err(Error::Shortfall(format!(
+            "lot {} cannot be certified for {}: {}",
+            rec.lot,
+            ship.customer.name,
+            failures.join("; ")
+        )))
+    }
 }
 
 /// Builds the certificate for `rec`; with a shipment, the customer's view of it.
@@ -284,7 +295,11 @@ pub fn build(
         });
     }
     let mut calculated = Vec::new();
-    if let (Some(mn), Some(p)) = (rec.value("mn"), spec.property("mn")) {
+    if let (Some(mn), Some(p), true) = (
+        rec.value("mn"),
+        spec.property("mn"),
+        keys.iter().any(|k| k == "mn"),
+    ) {
         calculated.push(CalculatedNote {
             key: "mn".into(),
             label: "Number-average molar mass Mn".into(),
@@ -301,7 +316,11 @@ pub fn build(
             ),
         });
     }
-    if let (Some(xn), Some(p)) = (rec.value("xn"), spec.property("xn")) {
+    if let (Some(xn), Some(p), true) = (
+        rec.value("xn"),
+        spec.property("xn"),
+        keys.iter().any(|k| k == "xn"),
+    ) {
         calculated.push(CalculatedNote {
             key: "xn".into(),
             label: "Degree of polymerisation Xn".into(),
@@ -329,7 +348,15 @@ pub fn build(
     };
     let (name, role) = match rec.approver.split_once(',') {
         Some((n, r)) => (n.trim().to_string(), r.trim().to_string()),
-        None => (rec.approver.clone(), "Authorised for release".to_string()),
+        None => (
+            rec.approver.clone(),
+            if rec.status == Status::Released {
+                "Authorised for release"
+            } else {
+                "Recorded the decision"
+            }
+            .to_string(),
+        ),
     };
     let decided = rec
         .decided_at

@@ -263,6 +263,19 @@ fn check_not_looser(spec: &ProductSpec, key: &str, w: &Window, place: &str) -> R
         (Some(s), Some(c)) => c > s,
         _ => false,
     };
+    let both = combined(p.min, p.max, Some(w));
+    if let (Some(lo), Some(hi)) = (both.min, both.max) {
+        if lo > hi {
+            return Err(Error::invalid(
+                place,
+                format!(
+                    "together with the {} revision {} window the customer's window leaves nothing ({lo} to {hi})",
+                    spec.code, spec.revision
+                ),
+                format!("Customer limits are written in the spec's unit ({}); correct the window.", p.unit),
+            ));
+        }
+    }
     if looser_min || looser_max {
         let fmt = |v: Option<Decimal>| v.map_or("open".to_string(), |d| d.to_string());
         return Err(Error::invalid(

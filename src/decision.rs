@@ -29,10 +29,10 @@ impl DecisionRule {
     pub fn statement(self) -> &'static str {
         match self {
             DecisionRule::Simple => {
-                "simple acceptance (ILAC-G8:09/2019 §4.2.1): a result within the limits passes; guard band zero"
+                "simple acceptance (ILAC-G8:09/2019 §4.2.1): a result within the limits passes"
             }
             DecisionRule::Guarded => {
-                "guarded acceptance (ILAC-G8:09/2019 §4.2.3): guard band equal to the expanded uncertainty U (k = 2); results within U of a limit are conditional"
+                "non-binary statement with guard band (ILAC-G8:09/2019 §4.2.3): results within U of a limit are conditional"
             }
         }
     }

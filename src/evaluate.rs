@@ -123,6 +123,10 @@ pub fn unit_factor(from: &str, to: &str) -> Option<Decimal> {
     }
 }
 
+/// Largest gap (°C) between measurement and spec temperature that a viscosity correction may
+/// bridge; one Andrade coefficient holds only over a short span (common practice).
+pub const MAX_CORRECTION_SPAN_C: f64 = 10.0;
+
 /// Converts a viscosity from `t_meas` to `t_spec` (°C) with Andrade's equation.
 ///
 /// ln η = A + B/T (T in K), so η(T_spec) = η(T_meas) · exp(B·(1/T_spec − 1/T_meas)).
@@ -164,6 +168,13 @@ fn mean_reading(
         }
         if let (Some(t), Some(ts)) = (r.temperature_c, p.temperature_c) {
             if (t - ts).abs() > 0.05 {
+                if (t - ts).abs() > MAX_CORRECTION_SPAN_C {
+                    return Err(Error::invalid(
+                        format!("{file}:{}, lot '{}', {}", r.line, lot.lot, p.key),
+                        format!("measured at {t} °C, more than {MAX_CORRECTION_SPAN_C} °C from the spec temperature {ts} °C"),
+                        "Measure at the spec temperature; a temperature correction is trusted only over a short span.",
+                    ));
+                }
                 let b = p.andrade_b_k.ok_or_else(|| {
                     Error::invalid(
                         format!("{file}:{}, lot '{}', {}", r.line, lot.lot, p.key),

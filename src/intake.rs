@@ -300,6 +300,13 @@ impl Ctx<'_> {
         } else {
             v.to_string()
         };
+        if self.opts.decimal_comma && v.contains('.') {
+            return Err(Error::invalid(
+                place(),
+                format!("'{v}' has a point in a file read with --decimal-comma"),
+                "Write decimals with a comma only and no thousands separators (e.g. 1530 or 0,52).",
+            ));
+        }
         if !self.opts.decimal_comma && v.contains(',') {
             return Err(Error::invalid(
                 place(),

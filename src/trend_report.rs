@@ -592,7 +592,8 @@ fn property_page(
     } else {
         format!("{} ({})", t.label, t.unit)
     };
-    let title = format!("{} {}  ·  {prop}", input.product_code, input.product_name);
+    // The property comes first so a long product name is what gets shortened.
+    let title = format!("{prop}  ·  {} {}", input.product_code, input.product_name);
     let context = format!(
         "Lots manufactured {} to {}  ·  {} lots  ·  {}",
         t.date_from, t.date_to, t.n, input.site

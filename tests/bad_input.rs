@@ -116,6 +116,11 @@ fn results_csv_catalogue() {
         (results("T1,TP-2000,2026-05-01,\"0,5\",55,540"), "decimal comma"),
         (results("T1,TP-2000,01/05/2026,0.5,55,540"), "not a date"),
         (results("T1,TP-2000,2026-02-30,0.5,55,540"), "not a date"),
+        (results("T1,TP-2000,2099-01-01,0.5,55,540"), "in the future"),
+        (
+            b"lot,product,manufactured,acid_value,hydroxyl_value,viscosity,viscosity_temperature_c\nT1,TP-2000,2026-05-01,0.5,55,540,25\n".to_vec(),
+            "more than 10 °C from the spec temperature",
+        ),
         (results("../x,TP-2000,2026-05-01,0.5,55,540"), "not a usable lot id"),
         (results("a/b,TP-2000,2026-05-01,0.5,55,540"), "not a usable lot id"),
         (results(&format!("{},TP-2000,2026-05-01,0.5,55,540", "L".repeat(300))), "longer than"),
@@ -254,6 +259,10 @@ fn customer_toml_catalogue() {
         ),
         ("name = \"C\"\n[products.TP-2000]\nprice = 3\n", "price"),
         ("name = \"\"\n", "name"),
+        (
+            "name = \"C\"\n[products.TP-2000.limits.viscosity]\nmax = 0.6\n",
+            "leaves nothing",
+        ),
     ];
     for (contents, needle) in cases {
         check(Kind::Customer, contents.as_bytes(), needle);

@@ -142,3 +142,15 @@ fn help_states_units() {
         .stdout(predicate::str::contains("mg KOH/g"))
         .stdout(predicate::str::contains("Exit status"));
 }
+
+#[test]
+fn one_uncertainty_without_the_other_is_refused() {
+    Workspace::new()
+        .cmd()
+        .args(["endgroup", "--av", "0.5", "--ohv", "55", "--ohv-u", "0.8"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "only one of the two uncertainties",
+        ));
+}

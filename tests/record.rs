@@ -38,7 +38,7 @@ fn release_cmd(w: &Workspace, file: &str) -> Command {
             "QC",
             "--no-certificates",
         ])
-        .env("SOURCE_DATE_EPOCH", "1780000000")
+        .env("SOURCE_DATE_EPOCH", "1796860800")
         .stdout(Stdio::null())
         .stderr(Stdio::null());
     c

@@ -20,7 +20,7 @@ fn mixed_file_decides_every_lot_and_exits_1() {
     let text = std::fs::read_to_string(w.path("register/TP-2000.csv")).unwrap();
     assert_eq!(text.lines().count(), 6);
     assert!(
-        text.contains("2026-05-28T20:26:40Z"),
+        text.contains("2026-12-10T00:00:00Z"),
         "SOURCE_DATE_EPOCH is the recorded-at time"
     );
 }
@@ -317,4 +317,43 @@ fn lot_id_already_used_by_another_product_is_refused() {
         "lot,product,manufactured,acid_value,hydroxyl_value,viscosity\nT26-101,TQ-1,2026-05-02,0.5,55,540\n",
         "already recorded for product TP-2000",
     );
+}
+
+#[test]
+fn decimal_comma_file_refuses_points() {
+    // Regression (issue #3): "1.530" in a decimal-comma file is a thousands separator, not 1.53.
+    refused_with(
+        &["--decimal-comma"],
+        "lot;product;manufactured;acid_value;hydroxyl_value;viscosity\nT26-302;TP-2000;2026-05-01;0,52;55,4;1.530\n",
+        "has a point in a file read with --decimal-comma",
+    );
+}
+
+fn refused_with(extra: &[&str], text: &str, needle: &str) {
+    let w = Workspace::new();
+    w.write("r.csv", text);
+    let before = w.snapshot();
+    w.release("r.csv")
+        .args(extra)
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(needle));
+    assert_eq!(before, w.snapshot());
+}
+
+#[test]
+fn same_numbers_with_other_trailing_zeros_are_unchanged() {
+    // Regression (issue #3): 0.52 and 0.520 are the same result; a re-import is a no-op.
+    let w = Workspace::new();
+    w.write("good.csv", GOOD);
+    w.release("good.csv")
+        .arg("--no-certificates")
+        .assert()
+        .code(0);
+    w.write("again.csv", &GOOD.replace("0.52,55.4", "0.520,55.40"));
+    w.release("again.csv")
+        .arg("--no-certificates")
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains("unchanged (row 1)"));
 }

@@ -219,3 +219,18 @@ fn unknown_product_is_refused() {
         .code(2)
         .stderr(predicate::str::contains("no trend file"));
 }
+
+#[test]
+fn baseline_of_fewer_than_two_lots_is_refused() {
+    let w = trended();
+    w.cmd()
+        .args(["trend", "TP-2000", "--baseline", "1"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("--baseline"));
+    w.cmd()
+        .args(["trend", "TP-2000", "--baseline-until", "2020-01-01"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("at least 2 lots"));
+}

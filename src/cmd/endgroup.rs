@@ -70,7 +70,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let text = if args.json {
         serde_json::to_string_pretty(&a)? + "\n"
     } else {
-        render(&a, args.solids.is_some())
+        render(&a, args.solids.is_some(), args.raw_ohv)
     };
     crate::output::print(&text)?;
     Ok(Outcome::AllGood)
@@ -84,7 +84,7 @@ fn opt(v: Option<f64>, decimals: usize, unit: &str) -> String {
 }
 
 /// The human-readable table.
-pub fn render(a: &Analysis, solids: bool) -> String {
+pub fn render(a: &Analysis, solids: bool, corrected: bool) -> String {
     let basis = if solids { " (solids basis)" } else { "" };
     let mut rows: Vec<(String, String)> = vec![
         (
@@ -92,7 +92,10 @@ pub fn render(a: &Analysis, solids: bool) -> String {
             format!("{:.2} mg KOH/g", a.acid_value),
         ),
         (
-            format!("Hydroxyl value, corrected{basis}"),
+            format!(
+                "Hydroxyl value{}{basis}",
+                if corrected { ", acidity-corrected" } else { "" }
+            ),
             format!("{:.2} mg KOH/g", a.hydroxyl_value_corrected),
         ),
         (

@@ -166,7 +166,19 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let file = args.results.display().to_string();
     let bar = progress(lots.len());
     let mut decisions = Vec::with_capacity(lots.len());
+    let today = crate::clock::now()?.date_naive();
     for lot in &lots {
+        if lot.manufactured > today {
+            return Err(Error::invalid(
+                format!("{file}:{}, lot '{}'", lot.line, lot.lot),
+                format!(
+                    "manufacture date {} is in the future (today is {today})",
+                    lot.manufactured
+                ),
+                "Check the manufacture date.",
+            )
+            .into());
+        }
         let spec = specs
             .for_date(&lot.product, lot.manufactured)
             .map_err(|e| match e {
@@ -386,7 +398,10 @@ fn record(
                             p.property.as_str()
                         };
                         spec_p.is_none_or(|sp| sp.derived)
-                            || t.cell(row, entered_col) == p.entered.as_deref().unwrap_or("")
+                            || same_number(
+                                t.cell(row, entered_col),
+                                p.entered.as_deref().unwrap_or(""),
+                            )
                     });
                 if same {
                     out[i] = Recorded::Unchanged(seq);
@@ -577,4 +592,15 @@ fn render(
         }
     ));
     out
+}
+
+/// True when two recorded values are the same number ("0.98" and "0.980" are), or both empty.
+fn same_number(a: &str, b: &str) -> bool {
+    match (
+        a.parse::<rust_decimal::Decimal>(),
+        b.parse::<rust_decimal::Decimal>(),
+    ) {
+        (Ok(x), Ok(y)) => x == y,
+        _ => a == b,
+    }
 }

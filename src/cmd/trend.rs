@@ -103,6 +103,14 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         released_only: args.released_only,
     };
     let baseline = match (args.baseline, &args.baseline_until) {
+        (Some(n), _) if n < 2 => {
+            return Err(Error::invalid(
+                "--baseline",
+                format!("{n} lot(s) cannot give a moving range"),
+                "Give at least 2 lots (more than 20 is common practice).",
+            )
+            .into())
+        }
         (Some(n), _) => Baseline::First(n),
         (None, Some(d)) => Baseline::Until(parse_date("--baseline-until", d)?),
         _ => Baseline::All,
@@ -194,6 +202,14 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             Err(e) => return Err(e.into()),
         }
     }
+    if trends.is_empty() {
+        return Err(Error::invalid(
+            format!("product '{}'", args.product),
+            "no property has at least 2 lots in the selection and the baseline",
+            "Widen --from/--to, or move --baseline-until past the first lots.",
+        )
+        .into());
+    }
     let visc = match (
         keys.iter().position(|k| k == "mn"),
         keys.iter().position(|k| k == "viscosity"),
@@ -204,7 +220,16 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     if let (Some(path), Some(t)) = (&args.chart, trends.first()) {
         let input = chart_input(t);
         let svg = crate::chart::imr_svg(&input)?;
-        crate::output::write_atomic(path, &svg, true)?;
+        if path
+            .extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("png"))
+        {
+            // A .png name gets a PNG, not SVG text under the wrong name.
+            let png = crate::chart::svg_to_png(&svg, crate::chart::PNG_SCALE)?;
+            crate::output::write_atomic(path, &png, true)?;
+        } else {
+            crate::output::write_atomic(path, &svg, true)?;
+        }
         if args.png {
             let png = crate::chart::svg_to_png(&svg, crate::chart::PNG_SCALE)?;
             crate::output::write_atomic(&path.with_extension("png"), &png, true)?;

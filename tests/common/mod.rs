@@ -47,7 +47,7 @@ impl Workspace {
     pub fn cmd(&self) -> Command {
         let mut c = Command::cargo_bin("resinlot").unwrap();
         c.current_dir(self.dir.path())
-            .env("SOURCE_DATE_EPOCH", "1780000000")
+            .env("SOURCE_DATE_EPOCH", "1796860800")
             .env_remove("RESINLOT_APPROVER");
         c
     }
