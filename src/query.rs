@@ -59,13 +59,7 @@ fn lot_rows_chunked(path: &Path, lot: &str, chunk: usize) -> Result<Option<Trend
         if columns.is_none() {
             let header_end = memchr::memchr(b'\n', &buf[..end]).unwrap_or(end);
             let cols = register::split_line(&String::from_utf8_lossy(&buf[..header_end]));
-            if !register::is_trend_header(&cols) {
-                return Err(Error::invalid(
-                    path.display().to_string(),
-                    "this is not a resinlot trend file (unexpected header)",
-                    "Keep only trend files and certificates.csv in the register folder.",
-                ));
-            }
+            register::check_trend_header(path, &cols)?;
             columns = Some(cols);
             body_from = (header_end + 1).min(end);
             line_base += 1;
@@ -347,14 +341,8 @@ pub fn current_lots(
 ) -> Result<(Vec<String>, Vec<LotRow>)> {
     use std::hash::BuildHasher;
     use std::io::Read;
-    let file_keys = trend_keys(path)?;
-    let header = {
-        let f = std::fs::File::open(path).map_err(|e| Error::io(path, "reading", e))?;
-        let mut first = String::new();
-        std::io::BufRead::read_line(&mut std::io::BufReader::new(f), &mut first)
-            .map_err(|e| Error::io(path, "reading", e))?;
-        register::split_line(first.trim_end())
-    };
+    let header = read_header(path)?;
+    let file_keys = register::property_keys(&header);
     let col = |name: &str| header.iter().position(|c| c == name);
     let fixed = [
         "lot",
@@ -479,26 +467,20 @@ pub fn current_lots(
     Ok((file_keys, rows))
 }
 
-/// The property keys of a trend file (from its header only).
-pub fn trend_keys(path: &Path) -> Result<Vec<String>> {
+/// The checked header columns of a trend file (its first line only).
+fn read_header(path: &Path) -> Result<Vec<String>> {
     let file = std::fs::File::open(path).map_err(|e| Error::io(path, "reading", e))?;
     let mut first = String::new();
     std::io::BufRead::read_line(&mut std::io::BufReader::new(file), &mut first)
         .map_err(|e| Error::io(path, "reading", e))?;
     let columns = register::split_line(first.trim_end());
-    if !register::is_trend_header(&columns) {
-        return Err(Error::invalid(
-            format!("{}:1", path.display()),
-            "this is not a resinlot trend file (unexpected header)",
-            "Keep only trend files and certificates.csv in the register folder.",
-        ));
-    }
-    let n = columns.len();
-    Ok(columns[register::PREFIX.len()..n - register::SUFFIX.len()]
-        .iter()
-        .filter(|c| !c.ends_with("_verdict"))
-        .cloned()
-        .collect())
+    register::check_trend_header(path, &columns)?;
+    Ok(columns)
+}
+
+/// The property keys of a trend file (from its header only).
+pub fn trend_keys(path: &Path) -> Result<Vec<String>> {
+    Ok(register::property_keys(&read_header(path)?))
 }
 
 #[cfg(test)]

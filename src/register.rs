@@ -112,12 +112,7 @@ impl Trend {
 
     /// Property keys (columns between the prefix and the suffix that are not verdicts).
     pub fn keys(&self) -> Vec<String> {
-        let n = self.columns.len();
-        self.columns[PREFIX.len()..n.saturating_sub(SUFFIX.len())]
-            .iter()
-            .filter(|c| !c.ends_with("_verdict"))
-            .cloned()
-            .collect()
+        property_keys(&self.columns)
     }
 
     /// Cell `name` of `row`, empty when absent.
@@ -190,6 +185,31 @@ pub fn is_trend_header(columns: &[String]) -> bool {
     columns.len() >= PREFIX.len() + SUFFIX.len()
         && columns[..PREFIX.len()] == PREFIX
         && columns[columns.len() - SUFFIX.len()..] == SUFFIX
+}
+
+/// Refuses a file whose header is not a trend-file header (the error names file and line 1).
+pub fn check_trend_header(path: &Path, columns: &[String]) -> Result<()> {
+    if is_trend_header(columns) {
+        return Ok(());
+    }
+    Err(Error::invalid(
+        format!("{}:1", path.display()),
+        "this is not a resinlot trend file (unexpected header)",
+        "Keep only trend files and certificates.csv in the register folder.",
+    ))
+}
+
+/// Property keys of a trend-file header: the columns between the prefix and the suffix that
+/// are not verdicts (none for a header that is not a trend-file header).
+pub fn property_keys(columns: &[String]) -> Vec<String> {
+    if !is_trend_header(columns) {
+        return Vec::new();
+    }
+    columns[PREFIX.len()..columns.len() - SUFFIX.len()]
+        .iter()
+        .filter(|c| !c.ends_with("_verdict"))
+        .cloned()
+        .collect()
 }
 
 /// Parses trend-file text, checking structure and the hash chain. Returns the trend with the
@@ -554,13 +574,7 @@ pub fn scan(
         .iter()
         .map(str::to_string)
         .collect();
-    if !is_trend_header(&columns) {
-        return Err(Error::invalid(
-            format!("{}:1", path.display()),
-            "this is not a resinlot trend file (unexpected header)",
-            "Keep only trend files and certificates.csv in the register folder.",
-        ));
-    }
+    check_trend_header(path, &columns)?;
     let idx: Vec<Option<usize>> = wanted
         .iter()
         .map(|w| columns.iter().position(|c| c == w))

@@ -15,7 +15,7 @@ fn demo() -> Workspace {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
     std::fs::remove_dir_all(w.path("specs")).unwrap();
     for (from, to) in [("specs", "specs"), ("demo-lots", "demo-lots")] {
-        copy(&root.join(from), &w.path(to));
+        common::copy_dir(&root.join(from), &w.path(to));
     }
     for product in ["pd-2000", "pb-4800", "spc-35"] {
         w.release(&format!("demo-lots/history-{product}.csv"))
@@ -28,18 +28,6 @@ fn demo() -> Workspace {
         .assert()
         .code(0);
     w
-}
-
-fn copy(from: &Path, to: &Path) {
-    std::fs::create_dir_all(to).unwrap();
-    for e in std::fs::read_dir(from).unwrap() {
-        let e = e.unwrap();
-        if e.path().is_dir() {
-            copy(&e.path(), &to.join(e.file_name()));
-        } else {
-            std::fs::copy(e.path(), to.join(e.file_name())).unwrap();
-        }
-    }
 }
 
 fn status_of(w: &Workspace, lot: &str) -> String {

@@ -10,7 +10,8 @@ pub struct Workspace {
     pub dir: tempfile::TempDir,
 }
 
-fn copy_dir(from: &Path, to: &Path) {
+/// Copies a folder tree.
+pub fn copy_dir(from: &Path, to: &Path) {
     std::fs::create_dir_all(to).unwrap();
     for e in std::fs::read_dir(from).unwrap() {
         let e = e.unwrap();
