@@ -7,8 +7,8 @@
 use std::path::Path;
 use std::time::Instant;
 
-use resinlot::certificate::Certificate;
-use resinlot::render::{self, FontPool, Templates};
+use resinlot::certificate::model::Certificate;
+use resinlot::certificate::render::{self, FontPool, Templates};
 
 const BATCH: usize = 1_000;
 

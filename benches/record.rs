@@ -8,7 +8,7 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::time::Instant;
 
-use resinlot::register::{chain_hash, header_line, seed};
+use resinlot::record::trend_file::{chain_hash, header_line, seed};
 
 const LOTS: usize = 1_000_000;
 

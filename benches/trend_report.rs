@@ -7,10 +7,10 @@
 use std::time::Instant;
 
 use chrono::NaiveDate;
-use resinlot::query::LotRow;
+use resinlot::record::query::LotRow;
 use resinlot::stats::{RuleSet, SpecWindow};
-use resinlot::trend_report::{render_report, ReportInput};
-use resinlot::trending::{property_trend, viscosity_check, Baseline, PropertyTrend};
+use resinlot::trend::product::{property_trend, viscosity_check, Baseline, PropertyTrend};
+use resinlot::trend::report::{render_report, ReportInput};
 
 const PROPERTIES: usize = 8;
 const RUNS: usize = 5;
@@ -91,7 +91,7 @@ fn main() {
     // The chart step alone (SVG, then PNG at the report's scale), one thread, for comparison.
     let start = Instant::now();
     for t in &trends {
-        let chart = resinlot::chart::ChartInput {
+        let chart = resinlot::trend::chart::ChartInput {
             product: &t.product,
             property: &t.label,
             unit: &t.unit,
@@ -105,7 +105,7 @@ fn main() {
             signals: &t.raw_signals,
             baseline_len: None,
         };
-        resinlot::chart::imr_png(&chart).expect("chart");
+        resinlot::trend::chart::imr_png(&chart).expect("chart");
     }
     let charts = start.elapsed().as_secs_f64();
     println!(

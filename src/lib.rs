@@ -1,40 +1,31 @@
 //! resinlot: QC lab tool for polyester resins, from titrations to certificates and trends.
 //!
-//! Domain modules know nothing of the command line; `cli` and `cmd` sit on top of them.
+//! The layers, each a folder, from the bottom up; a layer uses only those below it:
+//!
+//! | layer | holds |
+//! |---|---|
+//! | [`error`] | the typed errors and exit-code mapping of the library |
+//! | [`support`] | clock, atomic writes, TOML reading, tables, ids, fonts |
+//! | [`stats`] | I-MR, run rules, capability, distributions, regression: the numerics |
+//! | [`chem`] | end-group analysis, recipes, water balance, Carothers and Flory–Stockmayer |
+//! | [`spec`] | product specs, revisions, customers, the decision rule |
+//! | [`lot`] | lab results intake, one lot evaluated against its spec |
+//! | [`record`] | trend files, certificate log, integrity, queries, workspaces |
+//! | [`certificate`] | certificate model, building from the record, issue, HTML/PDF rendering |
+//! | [`trend`] | one product's trend, the I-MR chart, the PDF trend report |
+//! | [`cook`] | in-process kinetics, end point, Arrhenius, correction additions |
+//! | [`cmd`] | the command line: one file per command, which only orchestrates |
 
-pub mod analysis;
 pub mod certificate;
-pub mod certlog;
-pub mod chart;
-pub mod chemistry;
-pub mod cli;
-pub mod clock;
+pub mod chem;
 pub mod cmd;
-pub mod coa;
-pub mod cook_chart;
-pub mod correction;
-pub mod customer;
-pub mod decision;
+pub mod cook;
 pub mod error;
-pub mod evaluate;
-pub mod fonts;
-pub mod ids;
-pub mod intake;
-pub mod integrity;
-pub mod issue;
-pub mod kinetics;
-pub mod output;
-pub mod query;
-pub mod recipe;
-pub mod register;
-pub mod render;
-pub mod samples;
+pub mod lot;
+pub mod record;
 pub mod spec;
 pub mod stats;
-pub mod table;
-pub mod tomlfile;
-pub mod trend_report;
-pub mod trending;
-pub mod workspace;
+pub mod support;
+pub mod trend;
 
 pub use error::{Error, Result};

@@ -8,7 +8,7 @@ fn main() -> ExitCode {
     match run() {
         Ok(code) => code,
         Err(err) => {
-            if resinlot::output::is_broken_pipe(&err) {
+            if resinlot::support::output::is_broken_pipe(&err) {
                 return ExitCode::SUCCESS;
             }
             eprintln!("resinlot: error: {err:#}");
@@ -22,7 +22,7 @@ fn main() -> ExitCode {
 }
 
 fn run() -> anyhow::Result<ExitCode> {
-    let cli = resinlot::cli::Cli::parse();
+    let cli = resinlot::cmd::cli::Cli::parse();
     let outcome = resinlot::cmd::dispatch(cli)?;
     Ok(ExitCode::from(outcome.code()))
 }

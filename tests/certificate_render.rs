@@ -4,8 +4,8 @@
 use std::path::{Path, PathBuf};
 
 use printpdf::{PdfDocument, PdfParseOptions};
-use resinlot::certificate::{Certificate, ResultRow};
-use resinlot::render::{self, FontPool, Templates};
+use resinlot::certificate::model::{Certificate, ResultRow};
+use resinlot::certificate::render::{self, FontPool, Templates};
 
 fn templates_dir() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("templates")

@@ -93,7 +93,7 @@ fn customer_certificate_has_every_field() {
     use sha2::Digest;
     assert_eq!(
         v["sha256"],
-        resinlot::register::hex(&sha2::Sha256::digest(&bytes))
+        resinlot::record::trend_file::hex(&sha2::Sha256::digest(&bytes))
     );
     let text = &page_texts(&bytes)[0];
     for needle in [

@@ -36,8 +36,8 @@ fn pd_av(p: f64) -> f64 {
 }
 
 /// Group concentrations of the demo recipe, as the library computes them.
-fn groups() -> resinlot::kinetics::Groups {
-    let r = resinlot::recipe::Recipe::load(&recipe()).unwrap();
+fn groups() -> resinlot::cook::kinetics::Groups {
+    let r = resinlot::chem::recipe::Recipe::load(&recipe()).unwrap();
     resinlot::cmd::cook::groups_of(&r.charge())
 }
 
@@ -53,7 +53,7 @@ fn synthetic(dir: &Path, order: f64, slope: f64, y1: f64) -> PathBuf {
     for i in 0..14 {
         let one_minus_p = 0.15 * (0.003f64 / 0.15).powf(f64::from(i) / 13.0);
         let p = 1.0 - one_minus_p;
-        let t = 60.0 + (resinlot::kinetics::linearised_with_excess(p, order, g) - y1) / slope;
+        let t = 60.0 + (resinlot::cook::kinetics::linearised_with_excess(p, order, g) - y1) / slope;
         let noisy = one_minus_p * (1.0 + 0.003 * f64::from(i % 3) - 0.003);
         text.push_str(&format!("{t:.3},{:.6}\n", pd_av(1.0 - noisy)));
     }
@@ -132,7 +132,7 @@ fn synthetic_cooks_round_trip_through_the_binary() {
     // y1 = Y at p = 0.85, the first late sample (at 60 min).
     let g = groups();
     for (order, slope) in [(2.0, 0.1), (2.5, 1.0), (3.0, 10.0)] {
-        let y1 = resinlot::kinetics::linearised_with_excess(0.85, order, g);
+        let y1 = resinlot::cook::kinetics::linearised_with_excess(0.85, order, g);
         let file = synthetic(dir.path(), order, slope, y1);
         let out = bin()
             .arg("cook")
@@ -153,8 +153,8 @@ fn synthetic_cooks_round_trip_through_the_binary() {
             "order {order}: slope {got}"
         );
         let p = v["target_extent"].as_f64().unwrap();
-        let truth =
-            60.0 + (resinlot::kinetics::linearised_with_excess(p, order, groups()) - y1) / slope;
+        let truth = 60.0
+            + (resinlot::cook::kinetics::linearised_with_excess(p, order, groups()) - y1) / slope;
         let t = v["predicted_elapsed_min"].as_f64().unwrap();
         assert!(
             (t / truth - 1.0).abs() < 0.03,
@@ -558,8 +558,9 @@ fn late_outlier_is_flagged_and_kept() {
     let g = groups();
     for i in 0..14 {
         let one_minus_p = 0.15 * (0.003f64 / 0.15).powf(f64::from(i) / 13.0);
-        let t =
-            (resinlot::kinetics::linearised_with_excess(1.0 - one_minus_p, 3.0, g) - 15.0) / 10.0;
+        let t = (resinlot::cook::kinetics::linearised_with_excess(1.0 - one_minus_p, 3.0, g)
+            - 15.0)
+            / 10.0;
         let mut noisy = one_minus_p * (1.0 + 0.002 * f64::from(i % 3));
         if i == 10 {
             noisy *= 1.25;

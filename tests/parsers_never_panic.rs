@@ -12,13 +12,13 @@ proptest! {
 
     #[test]
     fn results_parser(bytes in proptest::collection::vec(any::<u8>(), 0..600)) {
-        let _ = resinlot::intake::parse("x.csv", &bytes, resinlot::intake::Options::default());
+        let _ = resinlot::lot::intake::parse("x.csv", &bytes, resinlot::lot::intake::Options::default());
     }
 
     #[test]
     fn results_parser_csv_like(s in "[a-z0-9_,;\"\\.\\-\n ]{0,300}") {
         let input = format!("lot,product,manufactured,acid_value\n{s}");
-        let _ = resinlot::intake::parse("x.csv", input.as_bytes(), resinlot::intake::Options::default());
+        let _ = resinlot::lot::intake::parse("x.csv", input.as_bytes(), resinlot::lot::intake::Options::default());
     }
 
     #[test]
@@ -33,26 +33,26 @@ proptest! {
 
     #[test]
     fn recipe_parser(bytes in proptest::collection::vec(any::<u8>(), 0..600)) {
-        let _ = resinlot::recipe::Recipe::parse("x.toml", &text(&bytes));
+        let _ = resinlot::chem::recipe::Recipe::parse("x.toml", &text(&bytes));
     }
 
     #[test]
     fn samples_parser(bytes in proptest::collection::vec(any::<u8>(), 0..600)) {
-        let _ = resinlot::samples::parse("x.csv", &text(&bytes));
+        let _ = resinlot::cook::samples::parse("x.csv", &text(&bytes));
     }
 
     #[test]
     fn samples_parser_csv_like(s in "[0-9,\\.\\-\n e]{0,300}") {
-        let _ = resinlot::samples::parse("x.csv", &format!("elapsed_min,acid_value\n{s}"));
+        let _ = resinlot::cook::samples::parse("x.csv", &format!("elapsed_min,acid_value\n{s}"));
     }
 
     #[test]
     fn trend_file_parser(bytes in proptest::collection::vec(any::<u8>(), 0..600)) {
-        let _ = resinlot::register::parse(Path::new("x.csv"), &text(&bytes));
+        let _ = resinlot::record::trend_file::parse(Path::new("x.csv"), &text(&bytes));
     }
 
     #[test]
     fn window_parser(s in "\\PC{0,40}") {
-        let _ = resinlot::query::parse_window(&s);
+        let _ = resinlot::record::query::parse_window(&s);
     }
 }

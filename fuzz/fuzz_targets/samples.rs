@@ -2,6 +2,6 @@
 #![no_main]
 libfuzzer_sys::fuzz_target!(|data: &[u8]| {
     if let Ok(text) = std::str::from_utf8(data) {
-        let _ = resinlot::samples::parse("fuzz.csv", text);
+        let _ = resinlot::cook::samples::parse("fuzz.csv", text);
     }
 });

@@ -4,10 +4,10 @@ use std::path::PathBuf;
 
 use anyhow::Context;
 
+use crate::chem::recipe::Recipe;
 use crate::cmd::Outcome;
-use crate::correction::{self, BatchNow, Correction, Direction};
+use crate::cook::correction::{self, BatchNow, Correction, Direction};
 use crate::error::Error;
-use crate::recipe::Recipe;
 
 /// Arguments of `resinlot adjust`.
 #[derive(Debug, clap::Args)]
@@ -95,7 +95,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     } else {
         render(&c, args.target_ohv)
     };
-    crate::output::print(&text)?;
+    crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }
 
@@ -159,7 +159,7 @@ pub fn render(c: &Correction, target: f64) -> String {
             c.acid_groups_mol.after
         ),
     ));
-    let mut out = crate::table::pairs(&rows);
+    let mut out = crate::support::table::pairs(&rows);
     out.push_str(&format!("\nAssumption: {}\n\n", c.assumption));
     out.push_str(correction::SAFETY_CAUTION);
     out.push('\n');

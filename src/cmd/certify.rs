@@ -3,15 +3,15 @@
 use std::path::PathBuf;
 use std::time::Duration;
 
-use crate::certificate::Supersedes;
-use crate::certlog::Log;
+use crate::certificate::build::{self, LotRecord, Shipment};
+use crate::certificate::issue::{Issuer, Pending};
+use crate::certificate::model::Supersedes;
 use crate::cmd::Outcome;
-use crate::coa::{self, LotRecord, Shipment};
-use crate::customer::Customer;
 use crate::error::Error;
-use crate::evaluate::Status;
-use crate::issue::{Issuer, Pending};
-use crate::register::Wait;
+use crate::lot::evaluate::Status;
+use crate::record::certlog::Log;
+use crate::record::trend_file::Wait;
+use crate::spec::customer::Customer;
 use crate::spec::SpecSet;
 
 /// Arguments of `resinlot certify`.
@@ -99,7 +99,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     text_arg("--po", &args.po)?;
     text_arg("--quantity", &args.quantity)?;
     text_arg("--reason", &args.reason)?;
-    if !crate::ids::is_safe_id(&args.lot) {
+    if !crate::support::ids::is_safe_id(&args.lot) {
         return Err(Error::invalid(
             format!("lot '{}'", args.lot),
             "not a usable lot id",
@@ -109,7 +109,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     }
     let specs = SpecSet::load(&args.specs)?;
     let customer = Customer::load(&args.specs.join("customers"), &args.customer, &specs)?;
-    let Some(trend) = crate::query::find_lot(&args.register, &args.lot)? else {
+    let Some(trend) = crate::record::query::find_lot(&args.register, &args.lot)? else {
         return Err(Error::Shortfall(format!(
             "lot '{}' is not in the record at {}",
             args.lot,
@@ -118,7 +118,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .into());
     };
     // A certificate is issued only from an intact record: check the whole trend file's chain.
-    crate::register::read(&trend.path)?;
+    crate::record::trend_file::read(&trend.path)?;
     let row = trend.rows.last().expect("found rows");
     let rec = LotRecord::from_row(&trend, row)?;
     let spec = specs.revision(&rec.product, &rec.revision).ok_or_else(|| {
@@ -148,7 +148,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         purchase_order: args.po.as_deref(),
         quantity: args.quantity.as_deref(),
     };
-    coa::check_customer(spec, &rec, &ship)?;
+    build::check_customer(spec, &rec, &ship)?;
     let issuer = Issuer::new(&args.templates, &args.out)?;
     let wait = Wait {
         timeout: Duration::from_secs(args.lock_timeout),
@@ -171,9 +171,9 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         }
         (None, _) => None,
     };
-    let now = crate::clock::now()?;
+    let now = crate::support::clock::now()?;
     let number = log.next_number(&issuer.site.certificate_prefix);
-    let certificate = coa::build(
+    let certificate = build::build(
         &issuer.site,
         spec,
         &rec,
@@ -213,6 +213,6 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             i.sha256
         )
     };
-    crate::output::print(&text)?;
+    crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }

@@ -5,13 +5,13 @@ use std::path::{Path, PathBuf};
 use anyhow::Context;
 use serde::Serialize;
 
-use crate::chemistry::{self, Progress};
+use crate::chem::recipe::{Charge, Recipe};
+use crate::chem::stepgrowth::{self, Progress};
 use crate::cmd::Outcome;
-use crate::cook_chart::{self, ChartInput, Mark};
+use crate::cook::chart::{self, ChartInput, Mark};
+use crate::cook::kinetics::{self, Arrhenius, Exclusion, ModelFit, Outlier, Point, ViscosityFit};
+use crate::cook::samples::{self, Samples, Warning};
 use crate::error::{Error, Result};
-use crate::kinetics::{self, Arrhenius, Exclusion, ModelFit, Outlier, Point, ViscosityFit};
-use crate::recipe::{Charge, Recipe};
-use crate::samples::{self, Samples, Warning};
 
 /// Arguments of `resinlot cook`.
 #[derive(Debug, clap::Args)]
@@ -223,7 +223,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         } else {
             render_arrhenius(&rep)
         };
-        crate::output::print(&text)?;
+        crate::support::output::print(&text)?;
         return Ok(Outcome::AllGood);
     }
     if args.samples.len() != 1 {
@@ -251,9 +251,9 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         render(&rep)
     };
     if let Some((path, bytes)) = chart {
-        crate::output::write_atomic(path, &bytes, true)?;
+        crate::support::output::write_atomic(path, &bytes, true)?;
     }
-    crate::output::print(&text)?;
+    crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }
 
@@ -272,7 +272,7 @@ pub fn extents(data: &Samples, ch: &Charge) -> Result<Vec<Progress>> {
         .iter()
         .map(|s| {
             let place = format!("{}:{}, field acid_value", data.file, s.line);
-            let pr = chemistry::progress_at(ch, s.acid_value).map_err(|e| match e {
+            let pr = stepgrowth::progress_at(ch, s.acid_value).map_err(|e| match e {
                 Error::Invalid { problem, fix, .. } => Error::invalid(&place, problem, fix),
                 other => other,
             })?;
@@ -298,9 +298,9 @@ pub fn groups_of(ch: &Charge) -> kinetics::Groups {
 
 /// Acid value at which the recipe Mn equals `mn` (bisection; recipe Mn falls as AV rises).
 fn acid_value_for_mn(ch: &Charge, mn: f64) -> Result<f64> {
-    let av0 = chemistry::initial_acid_value(ch);
+    let av0 = stepgrowth::initial_acid_value(ch);
     let mn_at = |av: f64| -> Result<f64> {
-        Ok(chemistry::mn_recipe(&chemistry::progress_at(ch, av)?).unwrap_or(f64::INFINITY))
+        Ok(stepgrowth::mn_recipe(&stepgrowth::progress_at(ch, av)?).unwrap_or(f64::INFINITY))
     };
     let (mut lo, mut hi) = (0.0, av0);
     if mn <= mn_at(av0)? || mn >= mn_at(0.0)? {
@@ -360,7 +360,7 @@ pub fn analyse(
             acid_value_for_mn(&ch, mn)?
         }
     };
-    let at_target = chemistry::progress_at(&ch, target_av).map_err(|e| match e {
+    let at_target = stepgrowth::progress_at(&ch, target_av).map_err(|e| match e {
         Error::Invalid { problem, fix, .. } => Error::invalid("--target-av", problem, fix),
         other => other,
     })?;
@@ -399,9 +399,9 @@ pub fn analyse(
             ),
         });
     }
-    let predicted_mn = chemistry::mn_recipe(&at_target);
-    let f_avg = chemistry::average_functionality(&ch);
-    let predicted_xn = chemistry::xn_carothers(at_target.p_minority(&ch), f_avg);
+    let predicted_mn = stepgrowth::mn_recipe(&at_target);
+    let f_avg = stepgrowth::average_functionality(&ch);
+    let predicted_xn = stepgrowth::xn_carothers(at_target.p_minority(&ch), f_avg);
     let viscosity = viscosity_report(data, &progress, predicted_mn);
     let excluded_detail = sel
         .excluded
@@ -441,7 +441,7 @@ pub fn analyse(
         outliers,
         c0_mol_per_kg: groups.c0,
         hydroxyl_excess_mol_per_kg: groups.excess,
-        stoichiometric_ratio: chemistry::stoichiometric_ratio(&ch),
+        stoichiometric_ratio: stepgrowth::stoichiometric_ratio(&ch),
         rate_constant: fit.rate_constant,
         rate_constant_standard_error: fit.rate_constant_se,
         rate_constant_unit: kinetics::rate_constant_unit(fit.order),
@@ -469,7 +469,7 @@ pub fn analyse(
             })
             .collect(),
         warnings,
-        caution: crate::correction::SAFETY_CAUTION.into(),
+        caution: crate::cook::correction::SAFETY_CAUTION.into(),
     })
 }
 
@@ -510,9 +510,9 @@ fn viscosity_report(
         let m = match s.hydroxyl_value {
             Some(oh) => {
                 end_group += 1;
-                chemistry::mn_end_group(s.acid_value, oh, 2.0)
+                stepgrowth::mn_end_group(s.acid_value, oh, 2.0)
             }
-            None => chemistry::mn_recipe(p),
+            None => stepgrowth::mn_recipe(p),
         };
         if let Some(m) = m {
             mn.push(m);
@@ -567,7 +567,7 @@ fn chart_bytes(rep: &CookReport, recipe: &Recipe) -> Result<Vec<u8>> {
             rep.predicted_elapsed_min_pi95.map(|[a, b]| (a, b)),
         )),
     };
-    cook_chart::render(&input)
+    chart::render(&input)
 }
 
 fn file_name(path: &str) -> String {
@@ -623,7 +623,7 @@ pub fn render(r: &CookReport) -> String {
             ),
         ]);
     }
-    out.push_str(&crate::table::render(&rows));
+    out.push_str(&crate::support::table::render(&rows));
     out.push('\n');
     let mut pairs: Vec<(String, String)> = vec![
         (
@@ -631,7 +631,7 @@ pub fn render(r: &CookReport) -> String {
             format!(
                 "order {} ({}), {}",
                 r.order,
-                cook_chart::y_label(r.order, r.hydroxyl_excess_mol_per_kg),
+                chart::y_label(r.order, r.hydroxyl_excess_mol_per_kg),
                 if r.order_forced {
                     "forced by --order"
                 } else {
@@ -729,12 +729,12 @@ pub fn render(r: &CookReport) -> String {
             ),
         ]);
     }
-    out.push_str(&crate::table::pairs(&pairs));
+    out.push_str(&crate::support::table::pairs(&pairs));
     for w in &r.warnings {
         out.push_str(&format!("warning: {}: {}\n", w.place, w.message));
     }
     out.push('\n');
-    out.push_str(crate::correction::SAFETY_CAUTION);
+    out.push_str(crate::cook::correction::SAFETY_CAUTION);
     out.push('\n');
     out
 }
@@ -897,9 +897,9 @@ pub fn render_arrhenius(r: &ArrheniusReport) -> String {
             b.excluded.len().to_string(),
         ]);
     }
-    out.push_str(&crate::table::render(&rows));
+    out.push_str(&crate::support::table::render(&rows));
     out.push('\n');
-    out.push_str(&crate::table::pairs(&[
+    out.push_str(&crate::support::table::pairs(&[
         (
             "Activation energy Ea".into(),
             format!(
@@ -943,7 +943,7 @@ mod tests {
 
     #[test]
     fn extents_agree_with_the_core_engine_and_hand_balance() {
-        // First-principles mass balance (Odian §2-1), checked against chemistry::progress_at.
+        // First-principles mass balance (Odian §2-1), checked against stepgrowth::progress_at.
         let recipe = Recipe::parse("pd", PD).unwrap();
         let ch = recipe.charge();
         let ps = [0.7, 0.9, 0.99, 0.998];
@@ -979,7 +979,7 @@ mod tests {
         let recipe = Recipe::parse("pd", PD).unwrap();
         let ch = recipe.charge();
         let av = acid_value_for_mn(&ch, 1800.0).unwrap();
-        let mn = chemistry::mn_recipe(&chemistry::progress_at(&ch, av).unwrap()).unwrap();
+        let mn = stepgrowth::mn_recipe(&stepgrowth::progress_at(&ch, av).unwrap()).unwrap();
         assert_relative_eq!(mn, 1800.0, max_relative = 1e-9);
         assert!(acid_value_for_mn(&ch, 1e7).is_err());
     }

@@ -233,7 +233,7 @@ fn slug(n: usize, args: &[String]) -> String {
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let dir = &args.dir;
-    crate::workspace::prepare_demo(dir)?;
+    crate::record::workspace::prepare_demo(dir)?;
     let outputs = dir.join("outputs");
     std::fs::create_dir_all(&outputs).map_err(|e| Error::io(&outputs, "creating folder", e))?;
     let exe = std::env::current_exe()
@@ -281,7 +281,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     } else {
         "Some steps did not behave as intended: see the outputs marked UNEXPECTED.\n"
     });
-    crate::output::print(&report)?;
+    crate::support::output::print(&report)?;
     Ok(if all_ok {
         Outcome::AllGood
     } else {

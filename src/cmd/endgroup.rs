@@ -4,9 +4,9 @@ use std::path::PathBuf;
 
 use anyhow::Context;
 
-use crate::analysis::{analyse, Analysis, Titration};
+use crate::chem::analysis::{analyse, Analysis, Titration};
+use crate::chem::recipe::Recipe;
 use crate::cmd::Outcome;
-use crate::recipe::Recipe;
 
 /// Arguments of `resinlot endgroup`.
 #[derive(Debug, clap::Args)]
@@ -72,7 +72,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     } else {
         render(&a, args.solids.is_some(), args.raw_ohv)
     };
-    crate::output::print(&text)?;
+    crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }
 
@@ -190,5 +190,5 @@ pub fn render(a: &Analysis, solids: bool, corrected: bool) -> String {
             ),
         ]);
     }
-    crate::table::pairs(&rows)
+    crate::support::table::pairs(&rows)
 }

@@ -5,11 +5,11 @@ use std::path::PathBuf;
 use serde_json::{json, Map, Value};
 
 use crate::cmd::Outcome;
-use crate::customer::{customer_verdict, Customer};
-use crate::decision::{decimal_from_f64, Verdict};
 use crate::error::Error;
-use crate::evaluate::{recorded_uncertainty, Status};
-use crate::query::{parse_date, parse_window, Window};
+use crate::lot::evaluate::{recorded_uncertainty, Status};
+use crate::record::query::{parse_date, parse_window, Window};
+use crate::spec::customer::{customer_verdict, Customer};
+use crate::spec::decision::{decimal_from_f64, Verdict};
 use crate::spec::SpecSet;
 
 /// Arguments of `resinlot find`.
@@ -88,7 +88,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .as_deref()
         .map(|d| parse_date("--to", d).map(|d| d.to_string()))
         .transpose()?;
-    let path = crate::register::path_for(&args.register, &args.product);
+    let path = crate::record::trend_file::path_for(&args.register, &args.product);
     if !path.is_file() {
         return Err(Error::invalid(
             format!("--product '{}'", args.product),
@@ -97,7 +97,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         )
         .into());
     }
-    let keys = crate::query::trend_keys(&path)?;
+    let keys = crate::record::query::trend_keys(&path)?;
     for w in &windows {
         if !keys.contains(&w.key) {
             return Err(Error::invalid(
@@ -130,10 +130,10 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             .cloned()
             .collect()
     };
-    let (_, lots) = crate::query::current_lots(&path, &loaded, customer.is_some())?;
+    let (_, lots) = crate::record::query::current_lots(&path, &loaded, customer.is_some())?;
     let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
     let win_idx: Vec<usize> = windows.iter().map(|w| at(&w.key)).collect();
-    let mut hits: Vec<&crate::query::LotRow> = Vec::new();
+    let mut hits: Vec<&crate::record::query::LotRow> = Vec::new();
     for row in &lots {
         if status.is_some_and(|s| s.as_str() != row.status) {
             continue;
@@ -237,7 +237,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             }
             rows.push(line);
         }
-        let mut t = crate::table::render(&rows);
+        let mut t = crate::support::table::render(&rows);
         t.push_str(&format!(
             "{} lot{} of {} match{}.\n",
             hits.len(),
@@ -253,7 +253,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         ));
         t
     };
-    crate::output::print(&text)?;
+    crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }
 

@@ -13,7 +13,7 @@ pub struct Args {
 
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
-    let files = crate::workspace::init(&args.dir)?;
+    let files = crate::record::workspace::init(&args.dir)?;
     let mut out = format!("Created the workspace {}:\n", args.dir.display());
     for f in files {
         out.push_str(&format!("  {f}\n"));
@@ -22,6 +22,6 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         "Edit first: templates/site.toml (site name, address, certificate prefix), then the example spec and recipe.\n\
          Check them with: resinlot specs check specs\n",
     );
-    crate::output::print(&out)?;
+    crate::support::output::print(&out)?;
     Ok(Outcome::AllGood)
 }

@@ -6,7 +6,7 @@ use serde_json::{json, Map, Value};
 
 use crate::cmd::Outcome;
 use crate::error::Error;
-use crate::register::{Row, Trend};
+use crate::record::trend_file::{Row, Trend};
 use crate::spec::{end_groups_words, limits_text, ProductSpec, SpecSet};
 
 /// Arguments of `resinlot lookup`.
@@ -37,7 +37,7 @@ pub struct Args {
 
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
-    if !crate::ids::is_safe_id(&args.lot) {
+    if !crate::support::ids::is_safe_id(&args.lot) {
         return Err(Error::invalid(
             format!("lot '{}'", args.lot),
             "not a usable lot id",
@@ -45,8 +45,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         )
         .into());
     }
-    let Some(trend) = crate::query::find_lot(&args.register, &args.lot)? else {
-        let near = crate::query::suggestions(&args.register, &args.lot, 3)?;
+    let Some(trend) = crate::record::query::find_lot(&args.register, &args.lot)? else {
+        let near = crate::record::query::suggestions(&args.register, &args.lot, 3)?;
         let hint = if near.is_empty() {
             "No similar lot ids are recorded either; check the id on the label.".to_string()
         } else {
@@ -70,16 +70,17 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let spec = specs
         .as_ref()
         .and_then(|s| s.revision(&product, trend.cell(current, "spec_revision")));
-    let certs: Vec<crate::certlog::Entry> = crate::certlog::entries(&args.register)?
-        .into_iter()
-        .filter(|e| e.lot == args.lot)
-        .collect();
+    let certs: Vec<crate::record::certlog::Entry> =
+        crate::record::certlog::entries(&args.register)?
+            .into_iter()
+            .filter(|e| e.lot == args.lot)
+            .collect();
     let text = if args.json {
         serde_json::to_string_pretty(&as_json(&trend, &rows, &certs))? + "\n"
     } else {
         render(&trend, &rows, spec, &certs)
     };
-    crate::output::print(&text)?;
+    crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }
 
@@ -117,7 +118,7 @@ fn row_json(t: &Trend, row: &Row) -> Value {
 }
 
 /// The JSON answer: the current row's fields at the top level, older rows under `history`.
-pub fn as_json(t: &Trend, rows: &[&Row], certs: &[crate::certlog::Entry]) -> Value {
+pub fn as_json(t: &Trend, rows: &[&Row], certs: &[crate::record::certlog::Entry]) -> Value {
     let cur = rows[0];
     let mut v = row_json(t, cur);
     let obj = v.as_object_mut().expect("object");
@@ -149,19 +150,23 @@ fn reported(spec: Option<&ProductSpec>, key: &str, cell: &str) -> String {
         return cell.to_string();
     };
     match cell.parse::<rust_decimal::Decimal>() {
-        Ok(d) => {
-            crate::decision::round(d, p.decimals, spec.map(|s| s.rounding).unwrap_or_default())
-                .to_string()
-        }
+        Ok(d) => crate::spec::decision::round(
+            d,
+            p.decimals,
+            spec.map(|s| s.rounding).unwrap_or_default(),
+        )
+        .to_string(),
         Err(_) => match cell
             .parse::<f64>()
             .ok()
-            .and_then(crate::decision::decimal_from_f64)
+            .and_then(crate::spec::decision::decimal_from_f64)
         {
-            Some(d) => {
-                crate::decision::round(d, p.decimals, spec.map(|s| s.rounding).unwrap_or_default())
-                    .to_string()
-            }
+            Some(d) => crate::spec::decision::round(
+                d,
+                p.decimals,
+                spec.map(|s| s.rounding).unwrap_or_default(),
+            )
+            .to_string(),
             None => cell.to_string(),
         },
     }
@@ -171,7 +176,7 @@ fn render(
     t: &Trend,
     rows: &[&Row],
     spec: Option<&ProductSpec>,
-    certs: &[crate::certlog::Entry],
+    certs: &[crate::record::certlog::Entry],
 ) -> String {
     let cur = rows[0];
     let c = |n: &str| t.cell(cur, n);
@@ -204,7 +209,7 @@ fn render(
     if let Some(r) = retest {
         facts.push(("Retest date".into(), r.to_string()));
     }
-    out.push_str(&crate::table::pairs(&facts));
+    out.push_str(&crate::support::table::pairs(&facts));
     out.push('\n');
     let mut table = vec![vec![
         "Property".to_string(),
@@ -239,7 +244,7 @@ fn render(
             c(&format!("{k}_verdict")).replace('_', " "),
         ]);
     }
-    out.push_str(&crate::table::render(&table));
+    out.push_str(&crate::support::table::render(&table));
     if !c("mn").is_empty() {
         let u = c("mn_uncertainty").parse::<f64>().ok();
         let f = spec.map_or(2.0, |s| s.functionality);

@@ -2,6 +2,7 @@
 
 pub mod adjust;
 pub mod certify;
+pub mod cli;
 pub mod cook;
 pub mod demo;
 pub mod endgroup;
@@ -13,7 +14,7 @@ pub mod specs;
 pub mod trend;
 pub mod verify;
 
-use crate::cli::{Cli, Command};
+use cli::{Cli, Command};
 
 /// How a command ended when it did not fail outright.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

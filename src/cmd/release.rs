@@ -8,15 +8,15 @@ use std::time::Duration;
 use anyhow::Context;
 use serde::Serialize;
 
-use crate::certificate::Supersedes;
-use crate::certlog::Log;
+use crate::certificate::build::{self, LotRecord};
+use crate::certificate::issue::{Issuer, Pending};
+use crate::certificate::model::Supersedes;
 use crate::cmd::Outcome;
-use crate::coa::{self, LotRecord};
 use crate::error::Error;
-use crate::evaluate::{evaluate, LotDecision, Status};
-use crate::intake::{self, LotResults};
-use crate::issue::{Issuer, Pending};
-use crate::register::{self, Locked, Wait};
+use crate::lot::evaluate::{evaluate, LotDecision, Status};
+use crate::lot::intake::{self, LotResults};
+use crate::record::certlog::Log;
+use crate::record::trend_file::{self, Locked, Wait};
 use crate::spec::SpecSet;
 
 /// Arguments of `resinlot release`.
@@ -166,7 +166,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let file = args.results.display().to_string();
     let bar = progress(lots.len());
     let mut decisions = Vec::with_capacity(lots.len());
-    let today = crate::clock::now()?.date_naive();
+    let today = crate::support::clock::now()?.date_naive();
     for lot in &lots {
         if lot.manufactured > today {
             return Err(Error::invalid(
@@ -193,7 +193,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         bar.inc(1);
     }
     bar.finish_and_clear();
-    let now = crate::clock::now()?;
+    let now = crate::support::clock::now()?;
     let now_text = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
     let with_certs = !args.dry_run && !args.no_certificates;
     let issuer = if with_certs {
@@ -242,7 +242,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                             reason: args.reason.clone().unwrap_or_else(|| "retest".into()),
                         });
                     let number = log.number_after(&issuer.site.certificate_prefix, pending.len());
-                    let certificate = coa::build(
+                    let certificate = build::build(
                         &issuer.site,
                         spec,
                         &rec,
@@ -289,7 +289,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         }
         t
     };
-    crate::output::print(&text)?;
+    crate::support::output::print(&text)?;
     Ok(if decisions.iter().all(|d| d.status == Status::Released) {
         Outcome::AllGood
     } else {
@@ -339,14 +339,14 @@ fn record(
                 }
             }
         }
-        let path = register::path_for(&args.register, product);
-        locks.insert(product, register::lock(&path, &keys, &needed, wait)?);
+        let path = trend_file::path_for(&args.register, product);
+        locks.insert(product, trend_file::lock(&path, &keys, &needed, wait)?);
     }
     // A lot id names one lot plant-wide: refuse one already recorded under another product.
     let mut elsewhere: std::collections::HashMap<String, String> = std::collections::HashMap::new();
     let ours: std::collections::HashSet<&str> = decisions.iter().map(|d| d.lot.as_str()).collect();
     if args.register.is_dir() {
-        for path in crate::query::trend_files(&args.register)? {
+        for path in crate::record::query::trend_files(&args.register)? {
             let product = path
                 .file_stem()
                 .map(|s| s.to_string_lossy().to_string())
@@ -354,7 +354,7 @@ fn record(
             if by_product.contains_key(product.as_str()) {
                 continue;
             }
-            register::scan(&path, &["lot"], |_, c| {
+            trend_file::scan(&path, &["lot"], |_, c| {
                 if ours.contains(c[0]) {
                     elsewhere.insert(c[0].to_string(), product.clone());
                 }
@@ -487,8 +487,8 @@ fn record(
     Ok(out)
 }
 
-fn short(v: Option<crate::decision::Verdict>) -> &'static str {
-    use crate::decision::Verdict::*;
+fn short(v: Option<crate::spec::decision::Verdict>) -> &'static str {
+    use crate::spec::decision::Verdict::*;
     match v {
         Some(Pass) | None => "",
         Some(ConditionalPass) => " (cond. pass)",
@@ -551,7 +551,7 @@ fn render(
             });
             rows.push(r);
         }
-        out.push_str(&crate::table::render(&rows));
+        out.push_str(&crate::support::table::render(&rows));
         for &i in &idx {
             let d = &decisions[i];
             if d.status != Status::Released && !d.notes.is_empty() {

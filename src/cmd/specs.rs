@@ -28,7 +28,7 @@ pub enum Action {
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let Action::Check { dir } = &args.action;
     let set = SpecSet::load(dir)?;
-    let customers = crate::customer::load_all(&dir.join("customers"), &set)?;
+    let customers = crate::spec::customer::load_all(&dir.join("customers"), &set)?;
     let mut rows = vec![vec![
         "product".to_string(),
         "revisions".into(),
@@ -57,12 +57,12 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                 .map_or("none".to_string(), |r| r.name.clone()),
         ]);
     }
-    let mut text = crate::table::render(&rows);
+    let mut text = crate::support::table::render(&rows);
     text.push_str(&format!(
         "{} products, {} customer files: all valid.\n",
         set.products.len(),
         customers.len()
     ));
-    crate::output::print(&text)?;
+    crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }

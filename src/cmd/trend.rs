@@ -7,10 +7,10 @@ use serde_json::{json, Value};
 
 use crate::cmd::Outcome;
 use crate::error::Error;
-use crate::query::parse_date;
+use crate::record::query::parse_date;
 use crate::spec::SpecSet;
 use crate::stats::{RuleSet, SpecWindow};
-use crate::trending::{self, Baseline, PropertyTrend, Selection, ViscosityCheck};
+use crate::trend::product::{self, Baseline, PropertyTrend, Selection, ViscosityCheck};
 
 /// Arguments of `resinlot trend`.
 #[derive(Debug, clap::Args)]
@@ -116,7 +116,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         _ => Baseline::All,
     };
     let specs = SpecSet::load(&args.specs)?;
-    let path = crate::register::path_for(&args.register, &args.product);
+    let path = crate::record::trend_file::path_for(&args.register, &args.product);
     if !path.is_file() {
         return Err(Error::invalid(
             format!("product '{}'", args.product),
@@ -125,7 +125,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         )
         .into());
     }
-    let keys = crate::query::trend_keys(&path)?;
+    let keys = crate::record::query::trend_keys(&path)?;
     if let Some(p) = &args.property {
         if !keys.contains(p) {
             return Err(Error::invalid(
@@ -149,8 +149,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             .collect(),
         None => keys,
     };
-    let (_, lots) = crate::query::current_lots(&path, &keys, false)?;
-    let lots = trending::select(lots, &sel);
+    let (_, lots) = crate::record::query::current_lots(&path, &keys, false)?;
+    let lots = product::select(lots, &sel);
     if lots.is_empty() {
         return Err(Error::invalid(
             format!("product '{}'", args.product),
@@ -182,7 +182,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         };
         let label = p.map_or(key.as_str(), |p| p.label.as_str());
         let unit = p.map_or("", |p| if p.unit == "1" { "" } else { p.unit.as_str() });
-        match trending::property_trend(
+        match product::property_trend(
             &args.product,
             key,
             col,
@@ -214,25 +214,25 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         keys.iter().position(|k| k == "mn"),
         keys.iter().position(|k| k == "viscosity"),
     ) {
-        (Some(m), Some(v)) => trending::viscosity_check(&lots, m, v),
+        (Some(m), Some(v)) => product::viscosity_check(&lots, m, v),
         _ => None,
     };
     if let (Some(path), Some(t)) = (&args.chart, trends.first()) {
         let input = chart_input(t);
-        let svg = crate::chart::imr_svg(&input)?;
+        let svg = crate::trend::chart::imr_svg(&input)?;
         if path
             .extension()
             .is_some_and(|e| e.eq_ignore_ascii_case("png"))
         {
             // A .png name gets a PNG, not SVG text under the wrong name.
-            let png = crate::chart::svg_to_png(&svg, crate::chart::PNG_SCALE)?;
-            crate::output::write_atomic(path, &png, true)?;
+            let png = crate::trend::chart::svg_to_png(&svg, crate::trend::chart::PNG_SCALE)?;
+            crate::support::output::write_atomic(path, &png, true)?;
         } else {
-            crate::output::write_atomic(path, &svg, true)?;
+            crate::support::output::write_atomic(path, &svg, true)?;
         }
         if args.png {
-            let png = crate::chart::svg_to_png(&svg, crate::chart::PNG_SCALE)?;
-            crate::output::write_atomic(&path.with_extension("png"), &png, true)?;
+            let png = crate::trend::chart::svg_to_png(&svg, crate::trend::chart::PNG_SCALE)?;
+            crate::support::output::write_atomic(&path.with_extension("png"), &png, true)?;
         }
     }
     if let Some(path) = &args.report {
@@ -242,7 +242,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             &trends,
             visc.as_ref(),
         )?;
-        crate::output::write_atomic(path, &bytes, true)?;
+        crate::support::output::write_atomic(path, &bytes, true)?;
     }
     let text = if args.json {
         let v = if args.property.is_some() {
@@ -260,7 +260,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     } else {
         summary(&args.product, &trends, visc.as_ref(), args)
     };
-    crate::output::print(&text)?;
+    crate::support::output::print(&text)?;
     let any_signal = trends.iter().any(|t| !t.signals.is_empty())
         || visc.as_ref().is_some_and(|v| !v.off_line.is_empty());
     Ok(if any_signal {
@@ -270,8 +270,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     })
 }
 
-fn chart_input(t: &PropertyTrend) -> crate::chart::ChartInput<'_> {
-    crate::chart::ChartInput {
+fn chart_input(t: &PropertyTrend) -> crate::trend::chart::ChartInput<'_> {
+    crate::trend::chart::ChartInput {
         product: &t.product,
         property: &t.label,
         unit: &t.unit,
@@ -293,21 +293,21 @@ fn render_report(
     trends: &[PropertyTrend],
     visc: Option<&ViscosityCheck>,
 ) -> anyhow::Result<Vec<u8>> {
-    let site_file = args.templates.join(crate::certificate::SITE_FILE);
+    let site_file = args.templates.join(crate::certificate::model::SITE_FILE);
     let site = if site_file.is_file() {
-        crate::certificate::Site::load(&site_file)?.name
+        crate::certificate::model::Site::load(&site_file)?.name
     } else {
         String::new()
     };
-    let input = crate::trend_report::ReportInput {
+    let input = crate::trend::report::ReportInput {
         product_code: &args.product,
         product_name: name,
-        generated_on: crate::clock::now()?.date_naive(),
+        generated_on: crate::support::clock::now()?.date_naive(),
         site: &site,
         trends,
         viscosity: visc,
     };
-    Ok(crate::trend_report::render_report(&input)?)
+    Ok(crate::trend::report::render_report(&input)?)
 }
 
 /// The JSON of one property's trend (the documented keys, and more).
@@ -463,7 +463,7 @@ fn summary(
             ""
         }
     );
-    out.push_str(&crate::table::render(&rows));
+    out.push_str(&crate::support::table::render(&rows));
     out.push_str(&visc_text(visc));
     out
 }
@@ -540,7 +540,7 @@ fn detail(t: &PropertyTrend, visc: Option<&ViscosityCheck>, args: &Args) -> Stri
             format!("A²* = {:.3}, p = {:.3}", n.a2_star, n.p_value),
         ));
     }
-    out.push_str(&crate::table::pairs(&pairs));
+    out.push_str(&crate::support::table::pairs(&pairs));
     if t.signals.is_empty() {
         out.push_str(&format!("\nNo run-rule signals (rules: {}).\n", args.rules));
     } else {
@@ -561,7 +561,7 @@ fn detail(t: &PropertyTrend, visc: Option<&ViscosityCheck>, args: &Args) -> Stri
                 s.description.to_string(),
             ]);
         }
-        out.push_str(&crate::table::render(&rows));
+        out.push_str(&crate::support::table::render(&rows));
     }
     for w in &t.warnings {
         out.push_str(&format!("Warning: {w}\n"));

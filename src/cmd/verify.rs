@@ -3,7 +3,7 @@
 use std::path::PathBuf;
 
 use crate::cmd::Outcome;
-use crate::integrity::{self, CertVerdict};
+use crate::record::integrity::{self, CertVerdict};
 
 /// Arguments of `resinlot verify`.
 #[derive(Debug, clap::Args)]
@@ -45,7 +45,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let mut checks = integrity::check_register(&args.register, &args.certificates_dir)?;
     let mut out = String::new();
     if args.quarantine {
-        let now = crate::clock::now()?.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
+        let now = crate::support::clock::now()?.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
         for c in checks.iter_mut().filter(|c| c.torn_tail) {
             let side = integrity::quarantine(&c.path, c.offset.unwrap_or(0), &now)?;
             out.push_str(&format!(
@@ -87,7 +87,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             "The record is NOT intact: restore the named file from backup, or quarantine a torn tail.\n"
         });
     }
-    crate::output::print(&out)?;
+    crate::support::output::print(&out)?;
     Ok(if ok {
         Outcome::AllGood
     } else {
@@ -136,7 +136,7 @@ fn certificates(args: &Args) -> anyhow::Result<Outcome> {
     if args.json {
         out = serde_json::to_string_pretty(&json)? + "\n";
     }
-    crate::output::print(&out)?;
+    crate::support::output::print(&out)?;
     Ok(if all_genuine {
         Outcome::AllGood
     } else {

@@ -83,7 +83,7 @@ impl Workspace {
                 } else {
                     use sha2::Digest;
                     let digest = sha2::Sha256::digest(std::fs::read(&e).unwrap());
-                    out.push((e.clone(), resinlot::register::hex(&digest)));
+                    out.push((e.clone(), resinlot::record::trend_file::hex(&digest)));
                 }
             }
         }

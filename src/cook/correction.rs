@@ -5,9 +5,9 @@
 
 use serde::Serialize;
 
-use crate::chemistry::{self, KOH_MG_PER_MOL};
+use crate::chem::recipe::{Charge, Component};
+use crate::chem::stepgrowth::{self, KOH_MG_PER_MOL};
 use crate::error::{Error, Result};
-use crate::recipe::{Charge, Component};
 
 /// The cautions shown with every correction and end-point result (quoted in the README).
 pub const SAFETY_CAUTION: &str = "\
@@ -98,7 +98,7 @@ anhydride ring opening), which is removed; no glycol distils overhead.";
 /// hydroxyl value of the pure component, mixing gives OHV' = (OHV·m + OHV_c·x)/(m + x), so
 /// x = m·(OHV* - OHV)/(OHV_c - OHV*). Lowering (an acid component): the added acid is cooked
 /// back to the present AV; the ester bonds formed and the water released follow the same
-/// condensation-water balance as the cook ([`chemistry::progress_at`]), applied to the present
+/// condensation-water balance as the cook ([`stepgrowth::progress_at`]), applied to the present
 /// batch plus the addition, and x is found by bisection on the resulting OHV.
 /// Source: first-principles group and mass balance (Odian, Principles of Polymerization, 4th
 /// ed., §2-1); the end-group conservation under transesterification is common practice in
@@ -202,7 +202,7 @@ pub fn correct(batch: &BatchNow, component: &Component, target_ohv: f64) -> Resu
         },
     };
     let ohv_after = |x: f64| -> Result<f64> {
-        Ok(chemistry::progress_at(&pseudo(x), batch.acid_value)?.predicted_hydroxyl_value)
+        Ok(stepgrowth::progress_at(&pseudo(x), batch.acid_value)?.predicted_hydroxyl_value)
     };
     // Upper bracket: the acid that would consume every hydroxyl group.
     let mut hi = oh_before / comp_acid;
@@ -230,7 +230,7 @@ pub fn correct(batch: &BatchNow, component: &Component, target_ohv: f64) -> Resu
     }
     let x = 0.5 * (lo + hi);
     let ch = pseudo(x);
-    let pr = chemistry::progress_at(&ch, batch.acid_value)?;
+    let pr = stepgrowth::progress_at(&ch, batch.acid_value)?;
     let added_acid = comp_acid * x;
     let acid_after = acid_before + added_acid - pr.esters;
     let oh_after = oh_before - pr.esters;

@@ -7,15 +7,15 @@ use std::str::FromStr;
 use chrono::NaiveDate;
 use rust_decimal::Decimal;
 
-use crate::certificate::{
+use crate::certificate::model::{
     self as cert, Authorisation, CalculatedNote, Certificate, Conformity, ResultRow, Site,
     Supersedes,
 };
-use crate::customer::{combined, customer_verdict, Customer, CustomerProduct};
-use crate::decision::{decimal_from_f64, round, DecisionRule, Verdict};
 use crate::error::{Error, Result};
-use crate::evaluate::{recorded_uncertainty, unit_factor, LotDecision, Status};
-use crate::register::{Row, Trend};
+use crate::lot::evaluate::{recorded_uncertainty, unit_factor, LotDecision, Status};
+use crate::record::trend_file::{Row, Trend};
+use crate::spec::customer::{combined, customer_verdict, Customer, CustomerProduct};
+use crate::spec::decision::{decimal_from_f64, round, DecisionRule, Verdict};
 use crate::spec::{end_groups_words, limits_text, ProductSpec};
 
 /// What the record holds about a lot, as needed for a certificate.

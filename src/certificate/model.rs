@@ -45,7 +45,7 @@ pub const SITE_FILE: &str = "site.toml";
 impl Site {
     /// Reads and validates a site file; errors name the file, line and field.
     pub fn load(path: &Path) -> Result<Site> {
-        let site: Site = crate::tomlfile::load(path)?;
+        let site: Site = crate::support::tomlfile::load(path)?;
         let place = path.display().to_string();
         if site.name.trim().is_empty() {
             return Err(Error::invalid(
@@ -54,7 +54,9 @@ impl Site {
                 "Enter the issuing site's name as it should appear on certificates.",
             ));
         }
-        if !crate::ids::is_safe_id(&site.certificate_prefix) || site.certificate_prefix.len() > 12 {
+        if !crate::support::ids::is_safe_id(&site.certificate_prefix)
+            || site.certificate_prefix.len() > 12
+        {
             return Err(Error::invalid(
                 format!("{place}: certificate_prefix"),
                 format!("'{}' cannot start a file name", site.certificate_prefix),
@@ -282,9 +284,10 @@ mod tests {
 
     #[test]
     fn certificate_round_trips_through_json() {
-        let c: Certificate =
-            serde_json::from_str(include_str!("../tests/fixtures/certificates/customer.json"))
-                .unwrap();
+        let c: Certificate = serde_json::from_str(include_str!(
+            "../../tests/fixtures/certificates/customer.json"
+        ))
+        .unwrap();
         let json = serde_json::to_string(&c).unwrap();
         let back: Certificate = serde_json::from_str(&json).unwrap();
         assert_eq!(back, c);

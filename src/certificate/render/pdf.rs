@@ -11,10 +11,10 @@ use printpdf::{
     TextRenderingMode,
 };
 
-use crate::certificate::Certificate;
+use crate::certificate::model::Certificate;
 use crate::error::{Error, Result};
 
-use crate::fonts::{DEJAVU_SANS, DEJAVU_SANS_BOLD};
+use crate::support::fonts::{DEJAVU_SANS, DEJAVU_SANS_BOLD};
 
 /// A4 in millimetres (ISO 216).
 const PAGE_W_MM: f32 = 210.0;

@@ -7,10 +7,10 @@ use rust_decimal::prelude::ToPrimitive;
 use rust_decimal::Decimal;
 use serde::Serialize;
 
-use crate::analysis::{analyse, Titration};
-use crate::decision::{decimal_from_f64, round, verdict, DecisionRule, Verdict};
+use crate::chem::analysis::{analyse, Titration};
 use crate::error::{Error, Result};
-use crate::intake::{LotResults, Reading};
+use crate::lot::intake::{LotResults, Reading};
+use crate::spec::decision::{decimal_from_f64, round, verdict, DecisionRule, Verdict};
 use crate::spec::{ProductSpec, Property};
 
 /// Release status of a lot.
@@ -530,7 +530,7 @@ pub fn parse_decimal(text: &str) -> Option<Decimal> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::intake::{parse, Options};
+    use crate::lot::intake::{parse, Options};
     use std::path::Path;
 
     const SPEC: &str = r#"

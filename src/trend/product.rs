@@ -4,7 +4,7 @@
 use serde::Serialize;
 
 use crate::error::{Error, Result};
-use crate::query::LotRow;
+use crate::record::query::LotRow;
 use crate::stats::{self, Capability, Limits, Normality, RuleSet, SpecWindow};
 
 /// Where the control limits come from.

@@ -121,8 +121,8 @@ fn rasterize(svg: &[u8], scale: f32) -> Result<resvg::tiny_skia::Pixmap> {
     let fonts = options.fontdb_mut();
     // The bundled DejaVu faces (fonts/, with their licence), so the PNG looks the same on every
     // machine and needs no system fonts.
-    fonts.load_font_data(crate::fonts::DEJAVU_SANS.to_vec());
-    fonts.load_font_data(crate::fonts::DEJAVU_SANS_BOLD.to_vec());
+    fonts.load_font_data(crate::support::fonts::DEJAVU_SANS.to_vec());
+    fonts.load_font_data(crate::support::fonts::DEJAVU_SANS_BOLD.to_vec());
     fonts.set_sans_serif_family("DejaVu Sans");
     let tree = usvg::Tree::from_data(svg, &options).map_err(|e| {
         Error::invalid(

@@ -6,8 +6,8 @@ use indexmap::IndexMap;
 use rust_decimal::Decimal;
 use serde::Deserialize;
 
-use crate::decision::decimal_from_f64;
 use crate::error::{Error, Result};
+use crate::spec::decision::decimal_from_f64;
 use crate::spec::{ProductSpec, SpecSet};
 
 #[derive(Debug, Clone, Deserialize)]
@@ -78,7 +78,7 @@ pub struct Customer {
 impl Customer {
     /// Loads `<dir>/<id>.toml` and validates it against the specs.
     pub fn load(dir: &Path, id: &str, specs: &SpecSet) -> Result<Customer> {
-        if !crate::ids::is_safe_id(id) {
+        if !crate::support::ids::is_safe_id(id) {
             return Err(Error::invalid(
                 format!("--customer '{id}'"),
                 "not a usable customer name",
@@ -98,7 +98,7 @@ impl Customer {
                 },
             ));
         }
-        let raw: CustomerFile = crate::tomlfile::load(&path)?;
+        let raw: CustomerFile = crate::support::tomlfile::load(&path)?;
         validate(id, raw, &path, specs)
     }
 
@@ -216,7 +216,7 @@ fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result
         for (k, unit) in &p.units {
             known(k, &format!(".units.{k}"))?;
             let sp = spec.property(k).expect("checked");
-            if crate::evaluate::unit_factor(&sp.unit, unit).is_none() {
+            if crate::lot::evaluate::unit_factor(&sp.unit, unit).is_none() {
                 return Err(Error::invalid(
                     place(&format!(".units.{k}")),
                     format!("'{unit}' cannot be converted from the spec's '{}'", sp.unit),
@@ -325,18 +325,20 @@ pub fn customer_verdict(
     value: Decimal,
     u: Option<Decimal>,
     window: Option<&Window>,
-) -> Option<crate::decision::Verdict> {
+) -> Option<crate::spec::decision::Verdict> {
     let p = spec.property(key)?;
     let lim = combined(p.min, p.max, window);
     if lim.min.is_none() && lim.max.is_none() {
         return None;
     }
-    let reported = crate::decision::round(value, p.decimals, spec.rounding);
+    let reported = crate::spec::decision::round(value, p.decimals, spec.rounding);
     let w = match spec.decision_rule {
-        crate::decision::DecisionRule::Guarded => u.unwrap_or_default(),
-        crate::decision::DecisionRule::Simple => Decimal::ZERO,
+        crate::spec::decision::DecisionRule::Guarded => u.unwrap_or_default(),
+        crate::spec::decision::DecisionRule::Simple => Decimal::ZERO,
     };
-    Some(crate::decision::verdict(reported, lim.min, lim.max, w))
+    Some(crate::spec::decision::verdict(
+        reported, lim.min, lim.max, w,
+    ))
 }
 
 #[cfg(test)]
@@ -389,7 +391,7 @@ mod tests {
     proptest::proptest! {
         #[test]
         fn customer_parser_never_panics(s in "\\PC{0,300}") {
-            let _ = crate::tomlfile::parse::<CustomerFile>("c.toml", &s);
+            let _ = crate::support::tomlfile::parse::<CustomerFile>("c.toml", &s);
         }
     }
 

@@ -5,10 +5,10 @@ use std::path::{Path, PathBuf};
 
 use sha2::{Digest, Sha256};
 
-use crate::certificate::{Certificate, Site, SITE_FILE};
-use crate::certlog::{Entry, Log};
+use crate::certificate::model::{Certificate, Site, SITE_FILE};
+use crate::certificate::render::{FontPool, Templates};
 use crate::error::{Error, Result};
-use crate::render::{FontPool, Templates};
+use crate::record::certlog::{Entry, Log};
 
 /// Everything needed to render and file certificates.
 pub struct Issuer {
@@ -59,11 +59,13 @@ impl Issuer {
     }
 
     /// Renders every certificate (in parallel) and returns the bytes, in order.
-    pub fn render(&self, pending: &[Pending]) -> Result<Vec<crate::render::Rendered>> {
+    pub fn render(&self, pending: &[Pending]) -> Result<Vec<crate::certificate::render::Rendered>> {
         use rayon::prelude::*;
         pending
             .par_iter()
-            .map(|p| crate::render::render_one(&self.templates, &self.fonts, &p.certificate))
+            .map(|p| {
+                crate::certificate::render::render_one(&self.templates, &self.fonts, &p.certificate)
+            })
             .collect()
     }
 
@@ -96,7 +98,7 @@ impl Issuer {
         &self,
         log: &mut Log,
         pending: &[Pending],
-        rendered: &[crate::render::Rendered],
+        rendered: &[crate::certificate::render::Rendered],
         html: bool,
         issued_at: &str,
     ) -> Result<Vec<Issued>> {
@@ -104,15 +106,15 @@ impl Issuer {
         for (p, r) in pending.iter().zip(rendered) {
             let name = Self::file_name(&p.certificate);
             let path = self.out.join(&name);
-            crate::output::write_atomic(&path, &r.pdf, false)?;
+            crate::support::output::write_atomic(&path, &r.pdf, false)?;
             if html {
-                crate::output::write_atomic(
+                crate::support::output::write_atomic(
                     &path.with_extension("html"),
                     r.html.as_bytes(),
                     false,
                 )?;
             }
-            let sha = crate::register::hex(&Sha256::digest(&r.pdf));
+            let sha = crate::record::trend_file::hex(&Sha256::digest(&r.pdf));
             log.append(&Entry {
                 number: p.certificate.number.clone(),
                 issued_at: issued_at.to_string(),

@@ -4,8 +4,8 @@
 
 use serde::Serialize;
 
+use crate::chem::recipe::Charge;
 use crate::error::{Error, Result};
-use crate::recipe::Charge;
 
 /// mg KOH per mol of titrated group (molar mass of KOH taken as 56.1 g/mol).
 ///
@@ -231,7 +231,7 @@ pub fn gel_point_statistical(b: &BranchInput) -> Option<f64> {
 
 /// Extracts the branch-unit input from a recipe, or None when there are no branch units or
 /// both group types carry them (the single-branch-type formula does not apply).
-pub fn branch_input(recipe: &crate::recipe::Recipe) -> Option<BranchInput> {
+pub fn branch_input(recipe: &crate::chem::recipe::Recipe) -> Option<BranchInput> {
     let ch = recipe.charge();
     let mut oh_branch = (0.0, 0u32);
     let mut acid_branch = (0.0, 0u32);
@@ -289,7 +289,7 @@ pub fn hydroxyl_shortfall_eq(progress: &Progress, ohv_measured: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::recipe::Recipe;
+    use crate::chem::recipe::Recipe;
     use approx::assert_relative_eq;
 
     fn charge(parts: &[(f64, f64, u32, u32, bool)]) -> Charge {

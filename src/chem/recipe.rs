@@ -56,14 +56,14 @@ impl Component {
 impl Recipe {
     /// Loads and validates a recipe file.
     pub fn load(path: &Path) -> Result<Recipe> {
-        let recipe: Recipe = crate::tomlfile::load(path)?;
+        let recipe: Recipe = crate::support::tomlfile::load(path)?;
         recipe.validate(&path.display().to_string())?;
         Ok(recipe)
     }
 
     /// Parses and validates recipe TOML text; `name` is used in messages.
     pub fn parse(name: &str, text: &str) -> Result<Recipe> {
-        let recipe: Recipe = crate::tomlfile::parse(name, text)?;
+        let recipe: Recipe = crate::support::tomlfile::parse(name, text)?;
         recipe.validate(name)?;
         Ok(recipe)
     }

@@ -16,7 +16,7 @@ use std::path::Path;
 
 use rayon::prelude::*;
 
-use crate::certificate::Certificate;
+use crate::certificate::model::Certificate;
 use crate::error::Result;
 
 /// A rendered certificate: the HTML (for `--html` and e-mail bodies) and the PDF bytes.

@@ -3,7 +3,7 @@
 //!
 //! Every page is laid out on its own with fixed positions (no automatic pagination), then the
 //! pages are joined into one document. Text uses only the bundled DejaVu faces; the chart is the
-//! SVG of [`crate::chart::imr_svg`] rasterised by [`crate::chart::svg_to_png`] and placed as an
+//! SVG of [`crate::trend::chart::imr_svg`] rasterised by [`crate::trend::chart::svg_to_png`] and placed as an
 //! image. Ids, document dates and the trailer /ID are derived from the input, so the same input
 //! always gives the same bytes.
 
@@ -18,10 +18,10 @@ use printpdf::{
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::chart::{self, fmt_value, ChartInput};
 use crate::error::{Error, Result};
 use crate::stats::Side;
-use crate::trending::{PropertyTrend, ViscosityCheck};
+use crate::trend::chart::{self, fmt_value, ChartInput};
+use crate::trend::product::{PropertyTrend, ViscosityCheck};
 
 /// Everything the report shows; the caller has computed the trends.
 #[derive(Debug, Clone, Copy, Serialize)]
@@ -30,7 +30,7 @@ pub struct ReportInput<'a> {
     pub product_code: &'a str,
     /// Product name from the spec.
     pub product_name: &'a str,
-    /// Date the report is generated on (injected, e.g. from `crate::clock`), printed on every
+    /// Date the report is generated on (injected, e.g. from `crate::support::clock`), printed on every
     /// page and used as the document date so the file is reproducible.
     pub generated_on: NaiveDate,
     /// Site name printed in the header.
@@ -41,7 +41,7 @@ pub struct ReportInput<'a> {
     pub viscosity: Option<&'a ViscosityCheck>,
 }
 
-use crate::fonts::{DEJAVU_SANS, DEJAVU_SANS_BOLD};
+use crate::support::fonts::{DEJAVU_SANS, DEJAVU_SANS_BOLD};
 
 /// A4 landscape, mm (ISO 216).
 const PAGE_W: f32 = 297.0;
@@ -820,9 +820,9 @@ fn viscosity_page(page: &mut Canvas, input: &ReportInput, v: &ViscosityCheck) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::query::LotRow;
+    use crate::record::query::LotRow;
     use crate::stats::{RuleSet, SpecWindow};
-    use crate::trending::{property_trend, viscosity_check, Baseline};
+    use crate::trend::product::{property_trend, viscosity_check, Baseline};
     use printpdf::PdfParseOptions;
 
     /// INVENTED test lots "TST-001"…: column 0 is Mn (g/mol), column 1 acid value (mg KOH/g),

@@ -2,9 +2,9 @@
 
 use serde::Serialize;
 
-use crate::chemistry as chem;
+use crate::chem::recipe::Recipe;
+use crate::chem::stepgrowth as chem;
 use crate::error::{non_negative, positive, Error, Result};
-use crate::recipe::Recipe;
 
 /// Titration results of one sample, as entered.
 #[derive(Debug, Clone, Copy, PartialEq)]

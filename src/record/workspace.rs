@@ -184,7 +184,7 @@ mod tests {
         init(&ws).unwrap();
         let set = crate::spec::SpecSet::load(&ws.join("specs")).unwrap();
         assert!(set.products.contains_key("EX-1000"));
-        crate::customer::load_all(&ws.join("specs/customers"), &set).unwrap();
+        crate::spec::customer::load_all(&ws.join("specs/customers"), &set).unwrap();
         assert!(init(&ws).is_err());
     }
 

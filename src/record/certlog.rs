@@ -3,7 +3,7 @@
 use std::path::{Path, PathBuf};
 
 use crate::error::Result;
-use crate::register::{self, Locked, Trend, Wait};
+use crate::record::trend_file::{self, Locked, Trend, Wait};
 
 /// Columns of the issue log.
 pub const COLUMNS: [&str; 12] = [
@@ -55,7 +55,7 @@ pub struct Entry {
     pub reason: String,
 }
 
-fn entry(t: &Trend, row: &register::Row) -> Entry {
+fn entry(t: &Trend, row: &trend_file::Row) -> Entry {
     let c = |n: &str| t.cell(row, n).to_string();
     Entry {
         number: c("number"),
@@ -78,21 +78,21 @@ pub fn entries(register: &Path) -> Result<Vec<Entry>> {
         return Ok(vec![]);
     }
     let text = crate::spec::read_text(&p)?;
-    let (t, damage) = register::parse_chained(&p, &text, true, &header_ok);
+    let (t, damage) = trend_file::parse_chained(&p, &text, true, &header_ok);
     if let Some(d) = damage {
-        return Err(register::damage_error(&p, &d));
+        return Err(trend_file::damage_error(&p, &d));
     }
     Ok(t.rows.iter().map(|r| entry(&t, r)).collect())
 }
 
 /// Checks the log's structure and chain; returns the damage if any.
-pub fn check(register: &Path) -> Result<Option<register::Damage>> {
+pub fn check(register: &Path) -> Result<Option<trend_file::Damage>> {
     let p = path(register);
     if !p.exists() {
         return Ok(None);
     }
     let text = crate::spec::read_text(&p)?;
-    Ok(register::parse_chained(&p, &text, true, &header_ok).1)
+    Ok(trend_file::parse_chained(&p, &text, true, &header_ok).1)
 }
 
 /// The locked log, open for appending.
@@ -105,7 +105,7 @@ impl Log {
     pub fn lock(register: &Path, wait: Wait) -> Result<Log> {
         let header = COLUMNS.join(",");
         Ok(Log {
-            locked: register::lock_with(&path(register), &header, &[], wait, &header_ok)?,
+            locked: trend_file::lock_with(&path(register), &header, &[], wait, &header_ok)?,
         })
     }
 

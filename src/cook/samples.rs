@@ -165,7 +165,7 @@ pub fn parse(file: &str, text: &str) -> Result<Samples> {
                             "Write the batch temperature in °C, e.g. 220.",
                         )
                     })?;
-                    if !v.is_finite() || v <= -crate::kinetics::KELVIN_OFFSET {
+                    if !v.is_finite() || v <= -crate::cook::kinetics::KELVIN_OFFSET {
                         return Err(Error::invalid(
                             place("temperature_c"),
                             format!("{v} °C is not a possible temperature"),

@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 use sha2::{Digest, Sha256};
 
 use crate::error::{Error, Result};
-use crate::register::{self, Damage};
+use crate::record::trend_file::{self, Damage};
 
 /// The state of one checked file.
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
@@ -50,24 +50,24 @@ impl FileCheck {
 /// SHA-256 of a file's bytes, hex.
 pub fn file_sha256(path: &Path) -> Result<String> {
     let bytes = std::fs::read(path).map_err(|e| Error::io(path, "reading", e))?;
-    Ok(register::hex(&Sha256::digest(&bytes)))
+    Ok(trend_file::hex(&Sha256::digest(&bytes)))
 }
 
 /// Checks every trend file in `register`, the certificate log, and each logged certificate
 /// against the PDF in `certificates` (present, same SHA-256).
 pub fn check_register(register_dir: &Path, certificates: &Path) -> Result<Vec<FileCheck>> {
     let mut out = Vec::new();
-    for path in crate::query::trend_files(register_dir)? {
+    for path in crate::record::query::trend_files(register_dir)? {
         let text = crate::spec::read_text(&path)?;
-        let (t, d) = register::parse(&path, &text);
+        let (t, d) = trend_file::parse(&path, &text);
         out.push(FileCheck::from(&path, t.rows.len(), d));
     }
-    let log = crate::certlog::path(register_dir);
+    let log = crate::record::certlog::path(register_dir);
     if log.exists() {
-        match crate::certlog::check(register_dir)? {
+        match crate::record::certlog::check(register_dir)? {
             Some(d) => out.push(FileCheck::from(&log, 0, Some(d))),
             None => {
-                let entries = crate::certlog::entries(register_dir)?;
+                let entries = crate::record::certlog::entries(register_dir)?;
                 let mut check = FileCheck::from(&log, entries.len(), None);
                 for (i, e) in entries.iter().enumerate() {
                     let pdf = certificates.join(&e.file);
@@ -111,7 +111,7 @@ pub fn quarantine(path: &Path, offset: u64, now: &str) -> Result<PathBuf> {
         .map_err(|e| Error::io(path, "opening", e))?;
     file.lock().map_err(|e| Error::io(path, "locking", e))?;
     let bytes = std::fs::read(path).map_err(|e| Error::io(path, "reading", e))?;
-    let (_, damage) = register::parse(path, &String::from_utf8_lossy(&bytes));
+    let (_, damage) = trend_file::parse(path, &String::from_utf8_lossy(&bytes));
     match damage {
         Some(d) if d.torn_tail && d.offset == offset => {}
         _ => {
@@ -128,7 +128,7 @@ pub fn quarantine(path: &Path, offset: u64, now: &str) -> Result<PathBuf> {
         .map(|n| n.to_string_lossy().to_string())
         .unwrap_or_default();
     let side = path.with_file_name(format!("{name}.torn-{offset}"));
-    crate::output::write_atomic(&side, fragment, false)?;
+    crate::support::output::write_atomic(&side, fragment, false)?;
     file.set_len(offset)
         .map_err(|e| Error::io(path, "truncating", e))?;
     file.sync_all().map_err(|e| Error::io(path, "syncing", e))?;
@@ -157,12 +157,12 @@ pub enum CertVerdict {
     /// The bytes are exactly those issued.
     Genuine {
         /// The log entry.
-        entry: crate::certlog::Entry,
+        entry: crate::record::certlog::Entry,
     },
     /// A certificate of this file name was issued, but these bytes differ.
     Altered {
         /// The entry of the same file name.
-        entry: crate::certlog::Entry,
+        entry: crate::record::certlog::Entry,
         /// SHA-256 of the file given.
         sha256: String,
     },
@@ -176,7 +176,7 @@ pub enum CertVerdict {
 /// Identifies a certificate PDF against the issue log.
 pub fn verify_certificate(pdf: &Path, register_dir: &Path) -> Result<CertVerdict> {
     let sha = file_sha256(pdf)?;
-    let entries = crate::certlog::entries(register_dir)?;
+    let entries = crate::record::certlog::entries(register_dir)?;
     if let Some(e) = entries.iter().find(|e| e.sha256 == sha) {
         return Ok(CertVerdict::Genuine { entry: e.clone() });
     }

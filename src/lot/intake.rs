@@ -8,7 +8,7 @@ use indexmap::IndexMap;
 use rust_decimal::Decimal;
 
 use crate::error::{Error, Result};
-use crate::ids::is_safe_id;
+use crate::support::ids::is_safe_id;
 
 /// Limits that keep a hostile or mistaken file from exhausting the machine.
 #[derive(Debug, Clone, Copy)]
@@ -93,7 +93,7 @@ pub fn read_file(path: &Path, opts: Options) -> Result<Vec<LotResults>> {
 pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>> {
     let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
     let text = std::str::from_utf8(bytes).map_err(|e| {
-        let (line, _) = crate::tomlfile::line_column(
+        let (line, _) = crate::support::tomlfile::line_column(
             &String::from_utf8_lossy(&bytes[..e.valid_up_to()]),
             e.valid_up_to(),
         );

@@ -2,7 +2,7 @@
 
 use std::path::{Path, PathBuf};
 
-use crate::certificate::Certificate;
+use crate::certificate::model::Certificate;
 use crate::error::{Error, Result};
 
 /// File name of the certificate template inside the templates folder.

@@ -8,9 +8,9 @@ use indexmap::IndexMap;
 use rust_decimal::Decimal;
 use serde::Deserialize;
 
-use crate::decision::{decimal_from_f64, DecisionRule, Rounding};
+use crate::chem::recipe::Recipe;
 use crate::error::{Error, Result};
-use crate::recipe::Recipe;
+use crate::spec::decision::{decimal_from_f64, DecisionRule, Rounding};
 
 /// Derived property keys: computed by resinlot, never entered.
 pub const DERIVED_KEYS: [&str; 4] = [
@@ -137,11 +137,11 @@ impl ProductSpec {
     /// Parses and validates one spec file's text; `path` locates the recipe and names errors.
     pub fn parse(path: &Path, text: &str) -> Result<ProductSpec> {
         let file = path.display().to_string();
-        let raw: SpecFile = crate::tomlfile::parse(&file, text)?;
+        let raw: SpecFile = crate::support::tomlfile::parse(&file, text)?;
         let bad = |what: &str, problem: String, fix: &str| {
             Error::invalid(format!("{file}: {what}"), problem, fix)
         };
-        if !crate::ids::is_safe_id(&raw.code) {
+        if !crate::support::ids::is_safe_id(&raw.code) {
             return Err(bad(
                 "code",
                 format!("'{}' is not a usable product code", raw.code),

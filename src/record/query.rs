@@ -5,7 +5,7 @@ use std::path::{Path, PathBuf};
 use chrono::NaiveDate;
 
 use crate::error::{Error, Result};
-use crate::register::{self, Row, Trend};
+use crate::record::trend_file::{self, Row, Trend};
 
 /// Every product trend file in a register folder, sorted.
 pub fn trend_files(register: &Path) -> Result<Vec<PathBuf>> {
@@ -58,8 +58,8 @@ fn lot_rows_chunked(path: &Path, lot: &str, chunk: usize) -> Result<Option<Trend
         let mut body_from = 0;
         if columns.is_none() {
             let header_end = memchr::memchr(b'\n', &buf[..end]).unwrap_or(end);
-            let cols = register::split_line(&String::from_utf8_lossy(&buf[..header_end]));
-            register::check_trend_header(path, &cols)?;
+            let cols = trend_file::split_line(&String::from_utf8_lossy(&buf[..header_end]));
+            trend_file::check_trend_header(path, &cols)?;
             columns = Some(cols);
             body_from = (header_end + 1).min(end);
             line_base += 1;
@@ -77,7 +77,7 @@ fn lot_rows_chunked(path: &Path, lot: &str, chunk: usize) -> Result<Option<Trend
             let le = memchr::memchr(b'\n', &buf[pos..end]).map_or(end, |i| pos + i);
             line_at += memchr::memchr_iter(b'\n', &buf[counted_to..ls]).count();
             counted_to = ls;
-            let cells = register::split_line(&String::from_utf8_lossy(&buf[ls..le]));
+            let cells = trend_file::split_line(&String::from_utf8_lossy(&buf[ls..le]));
             if cells.get(2).map(String::as_str) == Some(lot)
                 && cells.len() == cols.len()
                 && rows.last().is_none_or(|r: &Row| r.line != line_at)
@@ -121,7 +121,7 @@ pub fn suggestions(register: &Path, lot: &str, n: usize) -> Result<Vec<String>> 
     let target = lot.to_ascii_uppercase();
     let mut scored: Vec<(f64, String)> = Vec::new();
     for path in trend_files(register)? {
-        let t = register::read_fast(&path)?;
+        let t = trend_file::read_fast(&path)?;
         let c = t.col("lot").unwrap_or(2);
         for r in &t.rows {
             let id = &r.cells[c];
@@ -342,7 +342,7 @@ pub fn current_lots(
     use std::hash::BuildHasher;
     use std::io::Read;
     let header = read_header(path)?;
-    let file_keys = register::property_keys(&header);
+    let file_keys = trend_file::property_keys(&header);
     let col = |name: &str| header.iter().position(|c| c == name);
     let fixed = [
         "lot",
@@ -473,14 +473,14 @@ fn read_header(path: &Path) -> Result<Vec<String>> {
     let mut first = String::new();
     std::io::BufRead::read_line(&mut std::io::BufReader::new(file), &mut first)
         .map_err(|e| Error::io(path, "reading", e))?;
-    let columns = register::split_line(first.trim_end());
-    register::check_trend_header(path, &columns)?;
+    let columns = trend_file::split_line(first.trim_end());
+    trend_file::check_trend_header(path, &columns)?;
     Ok(columns)
 }
 
 /// The property keys of a trend file (from its header only).
 pub fn trend_keys(path: &Path) -> Result<Vec<String>> {
-    Ok(register::property_keys(&read_header(path)?))
+    Ok(trend_file::property_keys(&read_header(path)?))
 }
 
 #[cfg(test)]
@@ -493,11 +493,11 @@ mod tests {
         let p = dir.path().join("P.csv");
         let keys = vec!["acid_value".to_string()];
         {
-            let mut l = register::lock(
+            let mut l = trend_file::lock(
                 &p,
                 &keys,
                 &keys,
-                register::Wait {
+                trend_file::Wait {
                     timeout: std::time::Duration::from_secs(5),
                 },
             )
@@ -508,7 +508,7 @@ mod tests {
             }
             l.sync().unwrap();
         }
-        let full = register::read(&p).unwrap();
+        let full = trend_file::read(&p).unwrap();
         for chunk in [1, 7, 64, 1 << 20] {
             let t = lot_rows_chunked(&p, "A1", chunk).unwrap().unwrap();
             let seqs: Vec<&str> = t.rows.iter().map(|r| r.cells[0].as_str()).collect();
@@ -527,11 +527,11 @@ mod tests {
         let p = dir.path().join("P.csv");
         let keys = vec!["acid_value".to_string()];
         {
-            let mut l = register::lock(
+            let mut l = trend_file::lock(
                 &p,
                 &keys,
                 &keys,
-                register::Wait {
+                trend_file::Wait {
                     timeout: std::time::Duration::from_secs(5),
                 },
             )
@@ -567,12 +567,12 @@ mod tests {
         #[test]
         fn spans_agree_with_the_writer(cells in proptest::collection::vec("[a-z0-9 ,\"=.-]{0,8}", 1..8)) {
             // Encode as the trend-file writer does, split, unescape: the cells come back.
-            let line: Vec<String> = cells.iter().map(|c| register::text_cell(c)).collect();
+            let line: Vec<String> = cells.iter().map(|c| trend_file::text_cell(c)).collect();
             let line = line.join(",");
             let mut v = Vec::new();
             split_spans(line.as_bytes(), cells.len() + 2, &mut v);
             let back: Vec<String> = v.iter().map(|&(a, b)| line[a..b].replace("\"\"", "\"")).collect();
-            let expect: Vec<String> = register::split_line(&line);
+            let expect: Vec<String> = trend_file::split_line(&line);
             proptest::prop_assert_eq!(back, expect);
         }
     }

@@ -1,0 +1,7 @@
+//! Chemistry layer: end-group analysis, batch recipes, the condensation-water balance and the
+//! Carothers and Flory–Stockmayer relations. Pure calculations, no I/O besides parsing a recipe
+//! text; may use `support` and `error` only.
+
+pub mod analysis;
+pub mod recipe;
+pub mod stepgrowth;

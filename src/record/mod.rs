@@ -1,0 +1,9 @@
+//! Record layer: the hash-chained trend files, the certificate log, integrity checks and
+//! quarantine, read-only queries, and workspace folders. The only layer that appends to the
+//! record. May use `lot`, `spec`, `chem`, `support` and `error`.
+
+pub mod certlog;
+pub mod integrity;
+pub mod query;
+pub mod trend_file;
+pub mod workspace;

@@ -1,0 +1,10 @@
+//! Support layer: the injected clock, printing and atomic file writes, TOML reading with
+//! file:line:column errors, aligned tables, safe identifiers and the bundled fonts. Uses only
+//! `error` and outside crates; every other layer may use it.
+
+pub mod clock;
+pub mod fonts;
+pub mod ids;
+pub mod output;
+pub mod table;
+pub mod tomlfile;
