@@ -1,13 +1,22 @@
 //! Plain-text aligned tables for terminal output.
 
+use unicode_width::UnicodeWidthStr;
+
+/// The width a cell takes on a terminal: combining marks (the bar of x̄ and MR̄) take no
+/// column, so they are not counted as characters are (Unicode UAX #11 via `unicode-width`).
+fn width(cell: &str) -> usize {
+    UnicodeWidthStr::width(cell)
+}
+
 /// Renders rows as left-aligned columns separated by two spaces; the first row is the header
-/// and gets an underline. Widths count characters, not bytes, so "mPa·s" aligns.
+/// and gets an underline. Widths are display widths, not bytes or characters, so "mPa·s" and
+/// "x̄" align.
 pub fn render(rows: &[Vec<String>]) -> String {
     let cols = rows.iter().map(Vec::len).max().unwrap_or(0);
     let mut widths = vec![0usize; cols];
     for row in rows {
         for (i, cell) in row.iter().enumerate() {
-            widths[i] = widths[i].max(cell.chars().count());
+            widths[i] = widths[i].max(width(cell));
         }
     }
     let mut out = String::new();
@@ -19,7 +28,7 @@ pub fn render(rows: &[Vec<String>]) -> String {
             }
             line.push_str(cell);
             if i + 1 < row.len() {
-                line.extend(std::iter::repeat_n(' ', widths[i] - cell.chars().count()));
+                line.extend(std::iter::repeat_n(' ', widths[i] - width(cell)));
             }
         }
         out.push_str(line.trim_end());
@@ -37,11 +46,11 @@ pub fn render(rows: &[Vec<String>]) -> String {
 pub fn pairs(rows: &[(String, String)]) -> String {
     let w = rows
         .iter()
-        .map(|(k, _)| k.chars().count())
+        .map(|(k, _)| width(k))
         .max()
         .unwrap_or(0);
     rows.iter()
-        .map(|(k, v)| format!("{k}{}  {v}\n", " ".repeat(w - k.chars().count())))
+        .map(|(k, v)| format!("{k}{}  {v}\n", " ".repeat(w - width(k))))
         .collect()
 }
 
@@ -54,5 +63,14 @@ mod tests {
             vec!["mPa·s".into(), "1".into()],
         ]);
         assert_eq!(t, "unit   x\n--------\nmPa·s  1\n");
+    }
+
+    /// Issue #12: "x̄" is x plus a combining macron, one column wide on a terminal.
+    #[test]
+    fn combining_bars_take_no_column_issue_12() {
+        let t = super::pairs(&[("x̄".into(), "1".into()), ("MR̄".into(), "2".into())]);
+        assert_eq!(t, "x̄   1\nMR̄  2\n");
+        let t = super::render(&[vec!["x̄".into(), "a".into()], vec!["MR̄".into(), "b".into()]]);
+        assert_eq!(t, "x̄   a\n-----\nMR̄  b\n");
     }
 }
