@@ -4,6 +4,7 @@
 
 pub mod customer;
 pub mod decision;
+pub mod keys;
 pub mod product;
 
 pub use product::*;

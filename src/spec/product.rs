@@ -11,19 +11,7 @@ use serde::Deserialize;
 use crate::chem::recipe::Recipe;
 use crate::error::{Error, Result};
 use crate::spec::decision::{decimal_from_f64, DecisionRule, Rounding};
-
-/// Derived property keys: computed by resinlot, never entered.
-pub const DERIVED_KEYS: [&str; 4] = [
-    "mn",
-    "xn",
-    "extent_of_reaction",
-    "hydroxyl_equivalent_weight",
-];
-
-/// True for the derived keys.
-pub fn is_derived(key: &str) -> bool {
-    DERIVED_KEYS.contains(&key)
-}
+use crate::spec::keys;
 
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -194,36 +182,24 @@ impl ProductSpec {
             properties,
             path: path.to_path_buf(),
         };
-        for needs in [
-            "mn",
-            "hydroxyl_equivalent_weight",
-            "xn",
-            "extent_of_reaction",
-        ] {
-            if spec.property(needs).is_some() {
-                let inputs: &[&str] = if needs == "hydroxyl_equivalent_weight" {
-                    &["hydroxyl_value"]
-                } else {
-                    &["acid_value", "hydroxyl_value"]
-                };
-                let inputs: &[&str] = if matches!(needs, "xn" | "extent_of_reaction") {
-                    &["acid_value"]
-                } else {
-                    inputs
-                };
-                for input in inputs {
-                    if spec.property(input).is_none_or(|p| p.derived) {
-                        return Err(bad(
-                            &format!("properties.{needs}"),
-                            format!("'{needs}' cannot be computed without a measured '{input}'"),
-                            &format!("Add [properties.{input}] or remove [properties.{needs}]."),
-                        ));
-                    }
+        for needs in keys::DERIVED {
+            if spec.property(needs).is_none() {
+                continue;
+            }
+            for input in keys::inputs_of(needs) {
+                if spec.property(input).is_none_or(|p| p.derived) {
+                    return Err(bad(
+                        &format!("properties.{needs}"),
+                        format!("'{needs}' cannot be computed without a measured '{input}'"),
+                        &format!("Add [properties.{input}] or remove [properties.{needs}]."),
+                    ));
                 }
             }
         }
-        if spec.property("hydroxyl_value").is_some() && spec.property("acid_value").is_none() {
-            let hv = spec.property("hydroxyl_value").unwrap();
+        if let (Some(hv), None) = (
+            spec.property(keys::HYDROXYL_VALUE),
+            spec.property(keys::ACID_VALUE),
+        ) {
             if hv.acidity_correction {
                 return Err(bad(
                     "properties.hydroxyl_value.acidity_correction",
@@ -256,6 +232,8 @@ fn dec(file: &str, key: &str, field: &str, v: Option<f64>) -> Result<Option<Deci
     }
 }
 
+/// Validates one `[properties.<key>]` table into a [`Property`], in three steps: the key,
+/// the unit and label, then the limits and the fields that belong to one property only.
 fn property(
     file: &str,
     key: &str,
@@ -264,60 +242,9 @@ fn property(
     has_recipe: bool,
 ) -> Result<Property> {
     let place = |field: &str| format!("{file}: properties.{key}{field}");
-    let valid_key = key.chars().next().is_some_and(|c| c.is_ascii_lowercase())
-        && key
-            .chars()
-            .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
-    if !valid_key || key.len() > 40 {
-        return Err(Error::invalid(
-            place(""),
-            format!("'{key}' is not a usable property key"),
-            "Use lower-case letters, digits and '_', starting with a letter (e.g. acid_value).",
-        ));
-    }
-    let derived = is_derived(key);
-    if derived && matches!(key, "xn" | "extent_of_reaction") && !has_recipe {
-        return Err(Error::invalid(
-            place(""),
-            format!("'{key}' cannot be computed without a recipe"),
-            "Add recipe = \"recipes/<file>.toml\" to the spec, or remove this property.",
-        ));
-    }
-    if key == "mn" && p.uncertainty.is_some() {
-        return Err(Error::invalid(
-            place(".uncertainty"),
-            "the uncertainty of Mn is computed from those of AV and OHV, not given",
-            "Remove this line; give uncertainties on acid_value and hydroxyl_value.",
-        ));
-    }
-    let default_unit = match key {
-        "mn" => Some("g/mol"),
-        "hydroxyl_equivalent_weight" => Some("g/eq"),
-        "xn" | "extent_of_reaction" => Some("1"),
-        _ => None,
-    };
-    let unit = match (&p.unit, default_unit) {
-        (Some(u), _) if !u.trim().is_empty() => u.trim().to_string(),
-        (_, Some(u)) => u.to_string(),
-        _ => {
-            return Err(Error::invalid(
-                place(".unit"),
-                "the unit is missing",
-                "Add unit = \"...\", e.g. unit = \"mg KOH/g\".",
-            ))
-        }
-    };
-    let label = match (&p.label, derived) {
-        (Some(l), _) if !l.trim().is_empty() => l.trim().to_string(),
-        (_, true) => default_label(key).to_string(),
-        _ => {
-            return Err(Error::invalid(
-                place(".label"),
-                "the label is missing",
-                "Add label = \"...\", the name printed on certificates.",
-            ))
-        }
-    };
+    check_key(&place(""), key, p, has_recipe)?;
+    let derived = keys::is_derived(key);
+    let (unit, label) = unit_and_label(&place, key, p, derived)?;
     if p.decimals > 10 {
         return Err(Error::invalid(
             place(".decimals"),
@@ -328,6 +255,94 @@ fn property(
             "Use 0 to 10.",
         ));
     }
+    let (min, max, uncertainty) = limits(file, key, p, rule, derived)?;
+    check_property_fields(&place, key, p)?;
+    Ok(Property {
+        key: key.to_string(),
+        label,
+        unit,
+        method: p.method.clone(),
+        min,
+        max,
+        decimals: p.decimals,
+        uncertainty,
+        acidity_correction: p.acidity_correction.unwrap_or(false),
+        temperature_c: p.temperature_c,
+        andrade_b_k: p.andrade_b_k,
+        repeatability: dec(file, key, "repeatability", p.repeatability)?,
+        derived,
+    })
+}
+
+/// The key is well formed, and a derived key can be computed from what the spec holds.
+fn check_key(place: &str, key: &str, p: &PropertyFile, has_recipe: bool) -> Result<()> {
+    if !keys::is_valid(key) {
+        return Err(Error::invalid(
+            place,
+            format!("'{key}' is not a usable property key"),
+            "Use lower-case letters, digits and '_', starting with a letter (e.g. acid_value).",
+        ));
+    }
+    if keys::needs_recipe(key) && !has_recipe {
+        return Err(Error::invalid(
+            place,
+            format!("'{key}' cannot be computed without a recipe"),
+            "Add recipe = \"recipes/<file>.toml\" to the spec, or remove this property.",
+        ));
+    }
+    if key == keys::MN && p.uncertainty.is_some() {
+        return Err(Error::invalid(
+            format!("{place}.uncertainty"),
+            "the uncertainty of Mn is computed from those of AV and OHV, not given",
+            "Remove this line; give uncertainties on acid_value and hydroxyl_value.",
+        ));
+    }
+    Ok(())
+}
+
+/// The unit and label as given, or a derived property's defaults.
+fn unit_and_label(
+    place: &impl Fn(&str) -> String,
+    key: &str,
+    p: &PropertyFile,
+    derived: bool,
+) -> Result<(String, String)> {
+    let unit = match (given(&p.unit), keys::default_unit(key)) {
+        (Some(u), _) | (None, Some(u)) => u.to_string(),
+        (None, None) => {
+            return Err(Error::invalid(
+                place(".unit"),
+                "the unit is missing",
+                "Add unit = \"...\", e.g. unit = \"mg KOH/g\".",
+            ))
+        }
+    };
+    let label = match (
+        given(&p.label),
+        keys::default_label(key).filter(|_| derived),
+    ) {
+        (Some(l), _) | (None, Some(l)) => l.to_string(),
+        (None, None) => {
+            return Err(Error::invalid(
+                place(".label"),
+                "the label is missing",
+                "Add label = \"...\", the name printed on certificates.",
+            ))
+        }
+    };
+    Ok((unit, label))
+}
+
+/// Lower and upper limits and the expanded uncertainty, checked against each other and the
+/// decision rule (the guarded rule needs U on every limited measured property).
+fn limits(
+    file: &str,
+    key: &str,
+    p: &PropertyFile,
+    rule: DecisionRule,
+    derived: bool,
+) -> Result<(Option<Decimal>, Option<Decimal>, Option<Decimal>)> {
+    let place = |field: &str| format!("{file}: properties.{key}{field}");
     let min = dec(file, key, "min", p.min)?;
     let max = dec(file, key, "max", p.max)?;
     if let (Some(lo), Some(hi)) = (min, max) {
@@ -358,14 +373,29 @@ fn property(
             "Add uncertainty = U (k = 2, in the property's unit), or use decision_rule = \"simple\".",
         ));
     }
-    if p.acidity_correction.is_some() && key != "hydroxyl_value" {
+    Ok((min, max, uncertainty))
+}
+
+/// A text field as given, trimmed, or `None` when absent or blank.
+fn given(v: &Option<String>) -> Option<&str> {
+    v.as_deref().map(str::trim).filter(|t| !t.is_empty())
+}
+
+/// Fields that belong to one property only: the acidity correction to the hydroxyl value,
+/// the spec temperature and Andrade constant to the viscosity.
+fn check_property_fields(
+    place: &impl Fn(&str) -> String,
+    key: &str,
+    p: &PropertyFile,
+) -> Result<()> {
+    if p.acidity_correction.is_some() && key != keys::HYDROXYL_VALUE {
         return Err(Error::invalid(
             place(".acidity_correction"),
             "only hydroxyl_value takes an acidity correction",
             "Remove this line.",
         ));
     }
-    if (p.temperature_c.is_some() || p.andrade_b_k.is_some()) && key != "viscosity" {
+    if (p.temperature_c.is_some() || p.andrade_b_k.is_some()) && key != keys::VISCOSITY {
         return Err(Error::invalid(
             place(""),
             "temperature_c and andrade_b_k belong to viscosity only",
@@ -379,30 +409,7 @@ fn property(
             "Add temperature_c = ... (°C).",
         ));
     }
-    Ok(Property {
-        key: key.to_string(),
-        label,
-        unit,
-        method: p.method.clone(),
-        min,
-        max,
-        decimals: p.decimals,
-        uncertainty,
-        acidity_correction: p.acidity_correction.unwrap_or(false),
-        temperature_c: p.temperature_c,
-        andrade_b_k: p.andrade_b_k,
-        repeatability: dec(file, key, "repeatability", p.repeatability)?,
-        derived,
-    })
-}
-
-fn default_label(key: &str) -> &'static str {
-    match key {
-        "mn" => "Number-average molar mass Mn",
-        "xn" => "Degree of polymerisation Xn",
-        "extent_of_reaction" => "Extent of reaction p",
-        _ => "Hydroxyl equivalent weight",
-    }
+    Ok(())
 }
 
 /// Every product spec in a folder (top level only), grouped by code and sorted by date.

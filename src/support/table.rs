@@ -44,11 +44,7 @@ pub fn render(rows: &[Vec<String>]) -> String {
 
 /// Key/value table without a header line.
 pub fn pairs(rows: &[(String, String)]) -> String {
-    let w = rows
-        .iter()
-        .map(|(k, _)| width(k))
-        .max()
-        .unwrap_or(0);
+    let w = rows.iter().map(|(k, _)| width(k)).max().unwrap_or(0);
     rows.iter()
         .map(|(k, v)| format!("{k}{}  {v}\n", " ".repeat(w - width(k))))
         .collect()
