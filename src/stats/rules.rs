@@ -144,134 +144,177 @@ pub fn nelson_signals(values: &[f64], limits: &Limits, rules: RuleSet) -> Vec<Si
 ///
 /// One pass, O(n), constant state; the only allocation is growth of `out`.
 pub fn nelson_signals_into(values: &[f64], limits: &Limits, rules: RuleSet, out: &mut Vec<Signal>) {
-    let c = limits.mean;
-    let (u1, u2, u3) = (
-        limits.at_sigma(1.0),
-        limits.at_sigma(2.0),
-        limits.at_sigma(3.0),
-    );
-    let (l1, l2, l3) = (
-        limits.at_sigma(-1.0),
-        limits.at_sigma(-2.0),
-        limits.at_sigma(-3.0),
-    );
-    let mut side_run = 0usize;
-    let mut side = 0i8;
-    let mut trend_run = 1usize; // points in the current monotone run
-    let mut trend_dir = 0i8;
-    let mut alt_run = 1usize; // points in the current alternating run
-    let mut last_diff = 0i8;
-    let (mut above2, mut below2, mut above1, mut below1) = (0u8, 0u8, 0u8, 0u8);
-    let mut within1_run = 0usize;
-    let mut outside1_run = 0usize;
-    let mut prev = f64::NAN;
-    let mut push = |rule: u8, index: usize, upward: bool| {
-        if rules.contains(rule) {
-            out.push(Signal {
-                rule,
-                index,
-                description: describe(rule, upward),
-            });
-        }
-    };
+    let zones = Zones::of(limits);
+    let mut runs = Runs::new();
     for (i, &x) in values.iter().enumerate() {
         if !x.is_finite() {
-            side_run = 0;
-            side = 0;
-            trend_run = 1;
-            trend_dir = 0;
-            alt_run = 1;
-            last_diff = 0;
-            (above2, below2, above1, below1) = (0, 0, 0, 0);
-            within1_run = 0;
-            outside1_run = 0;
-            prev = f64::NAN;
+            runs = Runs::new();
             continue;
         }
+        runs.step(x, &zones, &mut |rule, upward| {
+            if rules.contains(rule) {
+                out.push(Signal {
+                    rule,
+                    index: i,
+                    description: describe(rule, upward),
+                });
+            }
+        });
+    }
+}
+
+/// The centre line and the 1σ, 2σ and 3σ lines on both sides.
+struct Zones {
+    centre: f64,
+    upper: [f64; 3],
+    lower: [f64; 3],
+}
+
+impl Zones {
+    fn of(limits: &Limits) -> Zones {
+        Zones {
+            centre: limits.mean,
+            upper: [1.0, 2.0, 3.0].map(|k| limits.at_sigma(k)),
+            lower: [1.0, 2.0, 3.0].map(|k| limits.at_sigma(-k)),
+        }
+    }
+}
+
+/// The sign of `a - b`: 1, -1 or 0 for a tie.
+fn sign(a: f64, b: f64) -> i8 {
+    if a > b {
+        1
+    } else if a < b {
+        -1
+    } else {
+        0
+    }
+}
+
+/// The constant state of the one-pass rule check: run counters and the shift registers of
+/// rules 5 and 6. A non-finite value starts it afresh.
+struct Runs {
+    side_run: usize,
+    side: i8,
+    /// Points in the current monotone run.
+    trend_run: usize,
+    trend_dir: i8,
+    /// Points in the current alternating run.
+    alt_run: usize,
+    last_diff: i8,
+    above2: u8,
+    below2: u8,
+    above1: u8,
+    below1: u8,
+    within1_run: usize,
+    outside1_run: usize,
+    prev: f64,
+}
+
+impl Runs {
+    fn new() -> Runs {
+        Runs {
+            side_run: 0,
+            side: 0,
+            trend_run: 1,
+            trend_dir: 0,
+            alt_run: 1,
+            last_diff: 0,
+            above2: 0,
+            below2: 0,
+            above1: 0,
+            below1: 0,
+            within1_run: 0,
+            outside1_run: 0,
+            prev: f64::NAN,
+        }
+    }
+
+    /// Takes the next finite point; `push(rule, upward)` is called for each pattern it completes,
+    /// in rule order.
+    fn step(&mut self, x: f64, z: &Zones, push: &mut impl FnMut(u8, bool)) {
         // Rule 1.
-        if x > u3 {
-            push(1, i, true);
-        } else if x < l3 {
-            push(1, i, false);
+        if x > z.upper[2] {
+            push(1, true);
+        } else if x < z.lower[2] {
+            push(1, false);
         }
-        // Rule 2.
-        let s = if x > c {
-            1
-        } else if x < c {
-            -1
+        self.step_side(x, z, push);
+        self.step_trend(x, push);
+        self.step_zones(x, z, push);
+        self.step_band(x, z, push);
+        self.prev = x;
+    }
+
+    /// Rule 2: nine in a row on one side of the centre line.
+    fn step_side(&mut self, x: f64, z: &Zones, push: &mut impl FnMut(u8, bool)) {
+        let s = sign(x, z.centre);
+        if s != 0 && s == self.side {
+            self.side_run += 1;
         } else {
-            0
-        };
-        if s != 0 && s == side {
-            side_run += 1;
-        } else {
-            side_run = usize::from(s != 0);
-            side = s;
+            self.side_run = usize::from(s != 0);
+            self.side = s;
         }
-        if side_run >= RUN_SAME_SIDE {
-            push(2, i, side > 0);
+        if self.side_run >= RUN_SAME_SIDE {
+            push(2, self.side > 0);
         }
-        // Rules 3 and 4 look at the sign of the step from the previous point.
-        if prev.is_finite() {
-            let d = if x > prev {
-                1
-            } else if x < prev {
-                -1
+    }
+
+    /// Rules 3 and 4 look at the sign of the step from the previous point.
+    fn step_trend(&mut self, x: f64, push: &mut impl FnMut(u8, bool)) {
+        if self.prev.is_finite() {
+            let d = sign(x, self.prev);
+            if d != 0 && d == self.trend_dir {
+                self.trend_run += 1;
             } else {
-                0
-            };
-            if d != 0 && d == trend_dir {
-                trend_run += 1;
-            } else {
-                trend_run = if d != 0 { 2 } else { 1 };
-                trend_dir = d;
+                self.trend_run = if d != 0 { 2 } else { 1 };
+                self.trend_dir = d;
             }
-            if d != 0 && d == -last_diff {
-                alt_run += 1;
+            if d != 0 && d == -self.last_diff {
+                self.alt_run += 1;
             } else {
-                alt_run = if d != 0 { 2 } else { 1 };
+                self.alt_run = if d != 0 { 2 } else { 1 };
             }
-            last_diff = d;
+            self.last_diff = d;
         }
-        if trend_run >= RUN_TREND {
-            push(3, i, trend_dir > 0);
+        if self.trend_run >= RUN_TREND {
+            push(3, self.trend_dir > 0);
         }
-        if alt_run >= RUN_ALTERNATING {
-            push(4, i, true);
+        if self.alt_run >= RUN_ALTERNATING {
+            push(4, true);
         }
-        // Rules 5 and 6: shift registers of the last three and five points.
-        above2 = (above2 << 1 | u8::from(x > u2)) & 0b111;
-        below2 = (below2 << 1 | u8::from(x < l2)) & 0b111;
-        above1 = (above1 << 1 | u8::from(x > u1)) & 0b1_1111;
-        below1 = (below1 << 1 | u8::from(x < l1)) & 0b1_1111;
-        if above2 & 1 == 1 && above2.count_ones() >= 2 {
-            push(5, i, true);
-        } else if below2 & 1 == 1 && below2.count_ones() >= 2 {
-            push(5, i, false);
+    }
+
+    /// Rules 5 and 6: shift registers of the last three and five points.
+    fn step_zones(&mut self, x: f64, z: &Zones, push: &mut impl FnMut(u8, bool)) {
+        self.above2 = (self.above2 << 1 | u8::from(x > z.upper[1])) & 0b111;
+        self.below2 = (self.below2 << 1 | u8::from(x < z.lower[1])) & 0b111;
+        self.above1 = (self.above1 << 1 | u8::from(x > z.upper[0])) & 0b1_1111;
+        self.below1 = (self.below1 << 1 | u8::from(x < z.lower[0])) & 0b1_1111;
+        if self.above2 & 1 == 1 && self.above2.count_ones() >= 2 {
+            push(5, true);
+        } else if self.below2 & 1 == 1 && self.below2.count_ones() >= 2 {
+            push(5, false);
         }
-        if above1 & 1 == 1 && above1.count_ones() >= 4 {
-            push(6, i, true);
-        } else if below1 & 1 == 1 && below1.count_ones() >= 4 {
-            push(6, i, false);
+        if self.above1 & 1 == 1 && self.above1.count_ones() >= 4 {
+            push(6, true);
+        } else if self.below1 & 1 == 1 && self.below1.count_ones() >= 4 {
+            push(6, false);
         }
-        // Rules 7 and 8.
-        if x > l1 && x < u1 {
-            within1_run += 1;
-        } else {
-            within1_run = 0;
+    }
+
+    /// Rules 7 and 8: runs within and beyond the 1σ band.
+    fn step_band(&mut self, x: f64, z: &Zones, push: &mut impl FnMut(u8, bool)) {
+        let within = x > z.lower[0] && x < z.upper[0];
+        let outside = x > z.upper[0] || x < z.lower[0];
+        self.within1_run = if within { self.within1_run + 1 } else { 0 };
+        self.outside1_run = if outside { self.outside1_run + 1 } else { 0 };
+        if self.within1_run >= RUN_WITHIN_1 {
+            push(7, true);
         }
-        if x > u1 || x < l1 {
-            outside1_run += 1;
-        } else {
-            outside1_run = 0;
+        if self.outside1_run >= RUN_OUTSIDE_1 {
+            push(8, true);
         }
-        if within1_run >= RUN_WITHIN_1 {
-            push(7, i, true);
-        }
-        if outside1_run >= RUN_OUTSIDE_1 {
-            push(8, i, true);
-        }
-        prev = x;
     }
 }
 
