@@ -57,6 +57,24 @@ impl Error {
         }
     }
 
+    /// Places an [`Error::Invalid`] somewhere else: `place` receives the old place and returns
+    /// the new one (a command names the flag, a caller adds the file and line). Other errors
+    /// pass through unchanged.
+    pub fn at(self, place: impl FnOnce(&str) -> String) -> Self {
+        match self {
+            Error::Invalid {
+                place: old,
+                problem,
+                fix,
+            } => Error::Invalid {
+                place: place(&old),
+                problem,
+                fix,
+            },
+            other => other,
+        }
+    }
+
     /// The process exit code this error maps to: 1 for a shortfall, 2 otherwise.
     pub fn exit_code(&self) -> u8 {
         match self {
@@ -99,4 +117,17 @@ pub fn positive(place: &str, value: f64) -> Result<f64> {
         ));
     }
     Ok(value)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::Error;
+
+    #[test]
+    fn at_moves_only_invalid_errors() {
+        let e = Error::invalid("av", "negative", "Enter a value.").at(|p| format!("--{p}"));
+        assert_eq!(e.to_string(), "--av: negative. Enter a value.");
+        let e = Error::Shortfall("no".into()).at(|_| "x".into());
+        assert_eq!(e.to_string(), "no");
+    }
 }

@@ -171,18 +171,8 @@ pub fn analyse(t: &Titration, recipe: Option<&Recipe>) -> Result<Analysis> {
 fn recipe_figures(r: &Recipe, av: f64, ohv: f64, mn: Option<f64>) -> Result<RecipeFigures> {
     let ch = r.charge();
     let av0 = chem::initial_acid_value(&ch);
-    let pr = chem::progress_at(&ch, av).map_err(|e| match e {
-        Error::Invalid {
-            place,
-            problem,
-            fix,
-        } => Error::Invalid {
-            place: format!("{place} (recipe '{}')", r.name),
-            problem,
-            fix,
-        },
-        other => other,
-    })?;
+    let pr = chem::progress_at(&ch, av)
+        .map_err(|e| e.at(|place| format!("{place} (recipe '{}')", r.name)))?;
     let f_avg = chem::average_functionality(&ch);
     let p_min = pr.p_minority(&ch);
     let shortfall = chem::hydroxyl_shortfall_eq(&pr, ohv);
