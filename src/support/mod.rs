@@ -3,8 +3,10 @@
 //! `error` and outside crates; every other layer may use it.
 
 pub mod clock;
+pub mod csv_input;
 pub mod fonts;
 pub mod ids;
 pub mod output;
 pub mod table;
+pub mod text;
 pub mod tomlfile;
