@@ -1,6 +1,6 @@
 //! Integration tests of `resinlot release` (issue #3): decisions, trend file, bad input.
 
-mod common;
+use crate::common;
 
 use common::{Workspace, GOOD};
 use predicates::prelude::*;

@@ -1,6 +1,6 @@
 //! Integration tests of `resinlot endgroup` (issue #2).
 
-mod common;
+use crate::common;
 
 use common::Workspace;
 use predicates::prelude::*;

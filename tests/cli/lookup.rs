@@ -1,6 +1,6 @@
 //! Integration tests of `resinlot lookup` and `resinlot find` (issue #6).
 
-mod common;
+use crate::common;
 
 use common::{Workspace, GOOD};
 use predicates::prelude::*;

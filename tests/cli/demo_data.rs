@@ -3,7 +3,7 @@
 //! the customer-service questions get the designed answers. Expected values come from the
 //! demo scenario in demo-lots/README.md (invented data).
 
-mod common;
+use crate::common;
 
 use std::path::Path;
 

@@ -1,7 +1,7 @@
 //! The bad-input catalogue (issue #8): every malformed file gets a clear message naming the
 //! file and place, exit code 2, and leaves every file as it was.
 
-mod common;
+use crate::common;
 
 use common::{Workspace, GOOD};
 

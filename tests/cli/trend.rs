@@ -1,7 +1,7 @@
 //! Integration tests of `resinlot trend` (issue #5): JSON shape, one-sided windows, baseline,
 //! rule subsets, charts, bad input.
 
-mod common;
+use crate::common;
 
 use common::Workspace;
 use predicates::prelude::*;

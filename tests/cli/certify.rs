@@ -1,7 +1,7 @@
 //! Integration tests of certificates (issue #4): internal and customer certificates, the
 //! reissue chain, verify, customer windows, templates and escaping.
 
-mod common;
+use crate::common;
 
 use common::{page_texts, pdfs, Workspace, GOOD};
 use predicates::prelude::*;

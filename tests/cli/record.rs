@@ -1,6 +1,6 @@
 //! The record survives (issue #8): concurrent releases, kills mid-write, tampering, torn tails.
 
-mod common;
+use crate::common;
 
 use std::process::{Command, Stdio};
 

@@ -1,0 +1,17 @@
+//! The integration tests as one test binary (issue #12), so the suite links once: one module
+//! per area, sharing `common` (temp workspace with the fixtures, the binary, PDF text).
+
+mod common;
+
+mod bad_input;
+mod certificate_render;
+mod certify;
+mod cook;
+mod demo_command;
+mod demo_data;
+mod endgroup;
+mod lookup;
+mod parsers_never_panic;
+mod record;
+mod release;
+mod trend;
