@@ -11,6 +11,7 @@ mod demo_command;
 mod demo_data;
 mod endgroup;
 mod lookup;
+mod old_registers;
 mod parsers_never_panic;
 mod record;
 mod release;
