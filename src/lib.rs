@@ -16,6 +16,8 @@
 //! | [`cook`] | in-process kinetics, end point, Arrhenius, correction additions |
 //! | [`cmd`] | the command line: one file per command, which only orchestrates |
 
+#![warn(missing_docs)]
+
 pub mod certificate;
 pub mod chem;
 pub mod cmd;
