@@ -28,9 +28,13 @@ pub fn write_atomic(path: &Path, bytes: &[u8], overwrite: bool) -> Result<()> {
         _ => Path::new("."),
     };
     std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, "creating folder", e))?;
-    let mut tmp = tempfile::Builder::new()
-        .prefix(".resinlot-")
-        .suffix(".part")
+    let mut builder = tempfile::Builder::new();
+    builder.prefix(".resinlot-").suffix(".part");
+    // Created 0666 less the umask, as an ordinary file and the trend files are (issue #13,
+    // item 17); the temporary-file default of 0600 would hide certificates from the lab group.
+    #[cfg(unix)]
+    builder.permissions(std::os::unix::fs::PermissionsExt::from_mode(0o666));
+    let mut tmp = builder
         .tempfile_in(dir)
         .map_err(|e| Error::io(dir, "creating a temporary file", e))?;
     tmp.write_all(bytes)
@@ -78,5 +82,20 @@ mod tests {
         assert_eq!(std::fs::read(&p).unwrap(), b"three");
         // No temporary files left behind.
         assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 1);
+    }
+
+    /// Issue #13 item 17: outputs honour the umask like any file the user creates (0644 under
+    /// the usual umask 022), where the temporary file's own default would be 0600.
+    #[cfg(unix)]
+    #[test]
+    fn atomic_write_honours_the_umask_issue_13() {
+        use std::os::unix::fs::PermissionsExt;
+        let dir = tempfile::tempdir().unwrap();
+        let plain = dir.path().join("plain.txt");
+        std::fs::write(&plain, b"x").unwrap();
+        let p = dir.path().join("b.pdf");
+        write_atomic(&p, b"pdf", false).unwrap();
+        let mode = |p: &Path| std::fs::metadata(p).unwrap().permissions().mode() & 0o777;
+        assert_eq!(mode(&p), mode(&plain));
     }
 }
