@@ -106,6 +106,24 @@ pub fn non_negative(place: &str, value: f64) -> Result<f64> {
     Ok(value)
 }
 
+/// Checks that `value` is finite and within `lo..=hi`, the physically sensible range of the
+/// input (`unit` is printed with the bounds); `place` names the input.
+pub fn within(place: &str, value: f64, lo: f64, hi: f64, unit: &str) -> Result<f64> {
+    let unit = if unit.is_empty() {
+        String::new()
+    } else {
+        format!(" {unit}")
+    };
+    if !value.is_finite() || value < lo || value > hi {
+        return Err(Error::invalid(
+            place,
+            format!("{value}{unit} is outside the range {lo} to {hi}{unit} that resinlot accepts"),
+            format!("Enter a value from {lo} to {hi}{unit}."),
+        ));
+    }
+    Ok(value)
+}
+
 /// Checks that `value` is finite and strictly positive; `place` names the input.
 pub fn positive(place: &str, value: f64) -> Result<f64> {
     non_negative(place, value)?;
@@ -129,5 +147,14 @@ mod tests {
         assert_eq!(e.to_string(), "--av: negative. Enter a value.");
         let e = Error::Shortfall("no".into()).at(|_| "x".into());
         assert_eq!(e.to_string(), "no");
+    }
+
+    #[test]
+    fn within_refuses_non_finite_and_out_of_range() {
+        assert_eq!(super::within("t", 25.0, -40.0, 300.0, "°C").unwrap(), 25.0);
+        for bad in [f64::NAN, f64::INFINITY, -41.0, 300.5] {
+            let e = super::within("t", bad, -40.0, 300.0, "°C").unwrap_err();
+            assert!(e.to_string().contains("from -40 to 300 °C"), "{e}");
+        }
     }
 }

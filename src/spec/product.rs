@@ -144,7 +144,27 @@ impl ProductSpec {
                     "Write the date as YYYY-MM-DD without quotes, e.g. effective = 2026-09-01.",
                 )
             })?;
+        // Bounds of plausibility, common practice: an average functionality from 1 (a
+        // monofunctional end-capper) to 20 (dendritic polyols stay far below), and a retest
+        // interval of at most ten years.
         crate::error::positive(&format!("{file}: functionality"), raw.functionality)?;
+        crate::error::within(
+            &format!("{file}: functionality"),
+            raw.functionality,
+            1.0,
+            20.0,
+            "",
+        )?;
+        if !(1..=120).contains(&raw.retest_months) {
+            return Err(bad(
+                "retest_months",
+                format!(
+                    "{} months is not a usable retest interval",
+                    raw.retest_months
+                ),
+                "Give the retest interval in months, from 1 to 120.",
+            ));
+        }
         let recipe = match &raw.recipe {
             Some(rel) => {
                 let p = path.parent().unwrap_or(Path::new(".")).join(rel);
@@ -257,6 +277,7 @@ fn property(
     }
     let (min, max, uncertainty) = limits(file, key, p, rule, derived)?;
     check_property_fields(&place, key, p)?;
+    check_physical_ranges(&place, p)?;
     Ok(Property {
         key: key.to_string(),
         label,
@@ -374,6 +395,23 @@ fn limits(
         ));
     }
     Ok((min, max, uncertainty))
+}
+
+/// The viscosity's spec temperature, its Andrade constant and the repeatability must be finite
+/// and physically sensible (issue #13 item 19). Bounds, common practice: resin viscosities are
+/// measured from -40 °C to 300 °C; Andrade's B = E_a/R lies well inside 100–50 000 K for
+/// polyester melts and solutions (Andrade, Nature 125, 1930, for the form ln η = A + B/T).
+fn check_physical_ranges(place: &impl Fn(&str) -> String, p: &PropertyFile) -> Result<()> {
+    if let Some(t) = p.temperature_c {
+        crate::error::within(&place(".temperature_c"), t, -40.0, 300.0, "°C")?;
+    }
+    if let Some(b) = p.andrade_b_k {
+        crate::error::within(&place(".andrade_b_k"), b, 100.0, 50_000.0, "K")?;
+    }
+    if let Some(r) = p.repeatability {
+        crate::error::non_negative(&place(".repeatability"), r)?;
+    }
+    Ok(())
 }
 
 /// A text field as given, trimmed, or `None` when absent or blank.

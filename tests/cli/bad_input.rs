@@ -192,6 +192,27 @@ fn spec_toml_catalogue() {
             SPEC.replace("functionality = 2.0", "functionality = -2.0"),
             "negative",
         ),
+        // Issue #13 item 19: spec numbers must be finite and physically sensible.
+        (
+            SPEC.replace("retest_months = 12", "retest_months = 4294967295"),
+            "not a usable retest interval",
+        ),
+        (
+            SPEC.replace("functionality = 2.0", "functionality = 1e9"),
+            "outside the range 1 to 20",
+        ),
+        (
+            format!("{SPEC}repeatability = -0.1\n"),
+            "properties.acid_value.repeatability: -0.1 is negative",
+        ),
+        (
+            format!("{SPEC}[properties.viscosity]\nlabel = \"V\"\nunit = \"mPa·s\"\ndecimals = 0\ntemperature_c = nan\n"),
+            "properties.viscosity.temperature_c: NaN",
+        ),
+        (
+            format!("{SPEC}[properties.viscosity]\nlabel = \"V\"\nunit = \"mPa·s\"\ndecimals = 0\ntemperature_c = 25.0\nandrade_b_k = inf\n"),
+            "properties.viscosity.andrade_b_k: inf K is outside the range",
+        ),
     ];
     for (contents, needle) in cases {
         check(Kind::Spec, contents.as_bytes(), needle);
