@@ -111,7 +111,11 @@ pub fn cook_at_temperature(
 
 /// The common order: the forced one, or the candidate with the best R² summed over the cooks
 /// (the first of equal sums).
-pub fn common_order(cooks: &[CookAtTemperature], order: Option<f64>, groups: Groups) -> Result<f64> {
+pub fn common_order(
+    cooks: &[CookAtTemperature],
+    order: Option<f64>,
+    groups: Groups,
+) -> Result<f64> {
     let mut best: Option<(f64, f64)> = None;
     for n in orders_to_try(order) {
         let mut total = 0.0;
