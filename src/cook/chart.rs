@@ -1,5 +1,6 @@
 //! SVG chart of a cook: the linearised quantity of the chosen order against time, built in memory.
 
+use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 
 use crate::error::{Error, Result};
@@ -67,22 +68,10 @@ pub fn y_label(order: f64, excess: f64) -> String {
     }
 }
 
-/// Renders the chart as SVG bytes.
+/// Renders the chart as SVG bytes: axes, the prediction band, the fitted line, the target
+/// line, the samples by mark, and the legend.
 pub fn render(input: &ChartInput) -> Result<Vec<u8>> {
-    let mut x_max = input.points.iter().map(|p| p.0).fold(0.0_f64, f64::max);
-    if let Some((t, pi)) = input.predicted {
-        x_max = x_max.max(t);
-        if let Some((_, hi)) = pi {
-            x_max = x_max.max(hi);
-        }
-    }
-    x_max = if x_max > 0.0 { x_max * 1.05 } else { 1.0 };
-    let mut y_max = input
-        .points
-        .iter()
-        .map(|p| p.1)
-        .fold(input.target_y, f64::max);
-    y_max = if y_max > 0.0 { y_max * 1.08 } else { 1.0 };
+    let (x_max, y_max) = axis_ranges(input);
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, (960, 600)).into_drawing_area();
@@ -103,77 +92,8 @@ pub fn render(input: &ChartInput) -> Result<Vec<u8>> {
             .y_desc(y_label(input.order, input.excess))
             .draw()
             .map_err(chart_error)?;
-        if let Some((t, Some((lo, hi)))) = input.predicted {
-            chart
-                .draw_series(std::iter::once(Rectangle::new(
-                    [(lo, 0.0), (hi, y_max)],
-                    BAND.mix(0.35).filled(),
-                )))
-                .map_err(chart_error)?
-                .label(format!(
-                    "predicted end point {t:.0} min, 95 % prediction interval {lo:.0} to {hi:.0} min"
-                ))
-                .legend(|(x, y)| Rectangle::new([(x, y - 5), (x + 20, y + 5)], BAND.filled()));
-        }
-        // Draw only the part of the fitted line inside the plot (plotters does not clip lines).
-        let fit_end = input.predicted.map_or(x_max, |(t, _)| t.clamp(0.0, x_max));
-        let fit_start = if input.intercept < 0.0 && input.slope > 0.0 {
-            (-input.intercept / input.slope).min(fit_end)
-        } else {
-            0.0
-        };
-        chart
-            .draw_series(LineSeries::new(
-                [fit_start, fit_end]
-                    .iter()
-                    .map(|&t| (t, input.intercept + input.slope * t)),
-                FIT.stroke_width(2),
-            ))
-            .map_err(chart_error)?
-            .label(format!(
-                "fit: {:.4} + {:.5}·t",
-                input.intercept, input.slope
-            ))
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], FIT.stroke_width(2)));
-        chart
-            .draw_series(DashedLineSeries::new(
-                [(0.0, input.target_y), (x_max, input.target_y)],
-                8,
-                5,
-                TARGET.stroke_width(2),
-            ))
-            .map_err(chart_error)?
-            .label(input.target_label.clone())
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], TARGET.stroke_width(2)));
-        let pts = |m: Mark| {
-            input
-                .points
-                .iter()
-                .filter(move |p| p.2 == m)
-                .map(|p| (p.0, p.1))
-        };
-        chart
-            .draw_series(pts(Mark::Kept).map(|c| Circle::new(c, 5, KEPT.filled())))
-            .map_err(chart_error)?
-            .label("sample used in the fit")
-            .legend(|(x, y)| Circle::new((x + 10, y), 5, KEPT.filled()));
-        if pts(Mark::Excluded).next().is_some() {
-            chart
-                .draw_series(
-                    pts(Mark::Excluded)
-                        .map(|c| TriangleMarker::new(c, 6, EXCLUDED.stroke_width(2))),
-                )
-                .map_err(chart_error)?
-                .label("early sample, left out")
-                .legend(|(x, y)| TriangleMarker::new((x + 10, y), 6, EXCLUDED.stroke_width(2)));
-        }
-        if pts(Mark::Outlier).next().is_some() {
-            chart
-                .draw_series(pts(Mark::Outlier).map(|c| Cross::new(c, 6, OUTLIER.stroke_width(3))))
-                .map_err(chart_error)?
-                .label("flagged outlier (kept in the fit)")
-                .legend(|(x, y)| Cross::new((x + 10, y), 6, OUTLIER.stroke_width(3)));
-        }
+        draw_lines(&mut chart, input, x_max, y_max)?;
+        draw_samples(&mut chart, input)?;
         chart
             .configure_series_labels()
             .position(SeriesLabelPosition::UpperLeft)
@@ -184,6 +104,114 @@ pub fn render(input: &ChartInput) -> Result<Vec<u8>> {
         root.present().map_err(chart_error)?;
     }
     Ok(svg.into_bytes())
+}
+
+/// The cook chart's drawing context: minutes against the linearised quantity.
+type CookChart<'a, 'b> =
+    ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
+
+/// Upper ends of the axes: 5 % beyond the last time or prediction, 8 % above the highest value.
+fn axis_ranges(input: &ChartInput) -> (f64, f64) {
+    let mut x_max = input.points.iter().map(|p| p.0).fold(0.0_f64, f64::max);
+    if let Some((t, pi)) = input.predicted {
+        x_max = x_max.max(t);
+        if let Some((_, hi)) = pi {
+            x_max = x_max.max(hi);
+        }
+    }
+    x_max = if x_max > 0.0 { x_max * 1.05 } else { 1.0 };
+    let mut y_max = input
+        .points
+        .iter()
+        .map(|p| p.1)
+        .fold(input.target_y, f64::max);
+    y_max = if y_max > 0.0 { y_max * 1.08 } else { 1.0 };
+    (x_max, y_max)
+}
+
+/// The prediction band, the fitted line (clipped to the plot) and the dashed target line.
+fn draw_lines(
+    chart: &mut CookChart<'_, '_>,
+    input: &ChartInput,
+    x_max: f64,
+    y_max: f64,
+) -> Result<()> {
+    if let Some((t, Some((lo, hi)))) = input.predicted {
+        chart
+            .draw_series(std::iter::once(Rectangle::new(
+                [(lo, 0.0), (hi, y_max)],
+                BAND.mix(0.35).filled(),
+            )))
+            .map_err(chart_error)?
+            .label(format!(
+                "predicted end point {t:.0} min, 95 % prediction interval {lo:.0} to {hi:.0} min"
+            ))
+            .legend(|(x, y)| Rectangle::new([(x, y - 5), (x + 20, y + 5)], BAND.filled()));
+    }
+    // Draw only the part of the fitted line inside the plot (plotters does not clip lines).
+    let fit_end = input.predicted.map_or(x_max, |(t, _)| t.clamp(0.0, x_max));
+    let fit_start = if input.intercept < 0.0 && input.slope > 0.0 {
+        (-input.intercept / input.slope).min(fit_end)
+    } else {
+        0.0
+    };
+    chart
+        .draw_series(LineSeries::new(
+            [fit_start, fit_end]
+                .iter()
+                .map(|&t| (t, input.intercept + input.slope * t)),
+            FIT.stroke_width(2),
+        ))
+        .map_err(chart_error)?
+        .label(format!(
+            "fit: {:.4} + {:.5}·t",
+            input.intercept, input.slope
+        ))
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], FIT.stroke_width(2)));
+    chart
+        .draw_series(DashedLineSeries::new(
+            [(0.0, input.target_y), (x_max, input.target_y)],
+            8,
+            5,
+            TARGET.stroke_width(2),
+        ))
+        .map_err(chart_error)?
+        .label(input.target_label.clone())
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], TARGET.stroke_width(2)));
+    Ok(())
+}
+
+/// The samples: kept, left out (triangles) and flagged (crosses).
+fn draw_samples(chart: &mut CookChart<'_, '_>, input: &ChartInput) -> Result<()> {
+    let pts = |m: Mark| {
+        input
+            .points
+            .iter()
+            .filter(move |p| p.2 == m)
+            .map(|p| (p.0, p.1))
+    };
+    chart
+        .draw_series(pts(Mark::Kept).map(|c| Circle::new(c, 5, KEPT.filled())))
+        .map_err(chart_error)?
+        .label("sample used in the fit")
+        .legend(|(x, y)| Circle::new((x + 10, y), 5, KEPT.filled()));
+    if pts(Mark::Excluded).next().is_some() {
+        chart
+            .draw_series(
+                pts(Mark::Excluded).map(|c| TriangleMarker::new(c, 6, EXCLUDED.stroke_width(2))),
+            )
+            .map_err(chart_error)?
+            .label("early sample, left out")
+            .legend(|(x, y)| TriangleMarker::new((x + 10, y), 6, EXCLUDED.stroke_width(2)));
+    }
+    if pts(Mark::Outlier).next().is_some() {
+        chart
+            .draw_series(pts(Mark::Outlier).map(|c| Cross::new(c, 6, OUTLIER.stroke_width(3))))
+            .map_err(chart_error)?
+            .label("flagged outlier (kept in the fit)")
+            .legend(|(x, y)| Cross::new((x + 10, y), 6, OUTLIER.stroke_width(3)));
+    }
+    Ok(())
 }
 
 #[cfg(test)]

@@ -115,15 +115,7 @@ pub fn correct(batch: &BatchNow, component: &Component, target_ohv: f64) -> Resu
             "Enter the titrated values of the batch.",
         ));
     }
-    let m = batch.mass_kg;
-    let acid_before = batch.acid_value * m / (KOH_MG_PER_MOL / 1000.0);
-    let oh_before = batch.hydroxyl_value * m / (KOH_MG_PER_MOL / 1000.0);
-    let molecules_now = (acid_before + oh_before) / 2.0;
-    let mn_now = m * 1000.0 / molecules_now;
-    let comp_moles_per_kg = 1000.0 / component.molar_mass;
-    let comp_acid = f64::from(component.acid_groups) * comp_moles_per_kg;
-    let comp_oh = f64::from(component.hydroxyl_groups) * comp_moles_per_kg;
-    let place = format!("component '{}'", component.name);
+    let now = Balance::of(batch, component);
     if (target_ohv - batch.hydroxyl_value).abs() < 1e-12 {
         return Err(Error::invalid(
             "--target-ohv",
@@ -132,71 +124,135 @@ pub fn correct(batch: &BatchNow, component: &Component, target_ohv: f64) -> Resu
         ));
     }
     if target_ohv > batch.hydroxyl_value {
-        let ohv_c = KOH_MG_PER_MOL / 1000.0 * comp_oh;
-        if component.hydroxyl_groups == 0 || component.acid_groups > 0 {
-            return Err(Error::invalid(
-                place,
-                "raising the hydroxyl value needs a component with hydroxyl groups and no acid groups",
-                "Name a glycol or polyol of the recipe with --diol.",
-            ));
-        }
-        if ohv_c <= target_ohv {
-            return Err(Error::invalid(
-                "--target-ohv",
-                format!(
-                    "{target_ohv} mg KOH/g is not below the hydroxyl value of pure {} ({ohv_c:.1})",
-                    component.name
-                ),
-                "Choose a reachable target.",
-            ));
-        }
-        let x = m * (target_ohv - batch.hydroxyl_value) / (ohv_c - target_ohv);
-        let added_oh = comp_oh * x;
-        let new_mass = m + x;
-        let new_av = KOH_MG_PER_MOL / 1000.0 * acid_before / new_mass;
-        let new_ohv = KOH_MG_PER_MOL / 1000.0 * (oh_before + added_oh) / new_mass;
-        let molecules = molecules_now + comp_moles_per_kg * x;
-        return Ok(Correction {
-            component: component.name.clone(),
-            direction: Direction::RaiseHydroxyl,
-            add_kg: x,
-            new_acid_value: new_av,
-            new_hydroxyl_value: new_ohv,
-            mn_now,
-            new_mn: new_mass * 1000.0 / molecules,
-            new_batch_kg: new_mass,
-            water_released_kg: 0.0,
-            esters_formed_mol: 0.0,
-            acid_groups_mol: GroupBalance {
-                before: acid_before,
-                added: 0.0,
-                consumed: 0.0,
-                after: acid_before,
-            },
-            hydroxyl_groups_mol: GroupBalance {
-                before: oh_before,
-                added: added_oh,
-                consumed: 0.0,
-                after: oh_before + added_oh,
-            },
-            assumption: DIOL_ASSUMPTION.into(),
-        });
+        raise_hydroxyl(batch, component, target_ohv, &now)
+    } else {
+        lower_hydroxyl(batch, component, target_ohv, &now)
     }
+}
+
+/// The end groups of the batch now and those the component brings per kg.
+struct Balance {
+    /// Batch mass now (kg).
+    m: f64,
+    /// Acid groups now (mol): AV·m/56.1.
+    acid_before: f64,
+    /// Hydroxyl groups now (mol): OHV·m/56.1.
+    oh_before: f64,
+    /// Molecules now (mol), two end groups each.
+    molecules_now: f64,
+    /// End-group Mn now, f = 2 (g/mol).
+    mn_now: f64,
+    /// Moles of component per kg.
+    comp_moles_per_kg: f64,
+    /// Acid groups of the component per kg (mol/kg).
+    comp_acid: f64,
+    /// Hydroxyl groups of the component per kg (mol/kg).
+    comp_oh: f64,
+}
+
+impl Balance {
+    fn of(batch: &BatchNow, component: &Component) -> Balance {
+        let m = batch.mass_kg;
+        let acid_before = batch.acid_value * m / (KOH_MG_PER_MOL / 1000.0);
+        let oh_before = batch.hydroxyl_value * m / (KOH_MG_PER_MOL / 1000.0);
+        let molecules_now = (acid_before + oh_before) / 2.0;
+        let comp_moles_per_kg = 1000.0 / component.molar_mass;
+        Balance {
+            m,
+            acid_before,
+            oh_before,
+            molecules_now,
+            mn_now: m * 1000.0 / molecules_now,
+            comp_moles_per_kg,
+            comp_acid: f64::from(component.acid_groups) * comp_moles_per_kg,
+            comp_oh: f64::from(component.hydroxyl_groups) * comp_moles_per_kg,
+        }
+    }
+}
+
+/// A hydroxyl component mixed in: x = m·(OHV* - OHV)/(OHV_c - OHV*), end groups conserved.
+fn raise_hydroxyl(
+    batch: &BatchNow,
+    component: &Component,
+    target_ohv: f64,
+    now: &Balance,
+) -> Result<Correction> {
+    let ohv_c = KOH_MG_PER_MOL / 1000.0 * now.comp_oh;
+    if component.hydroxyl_groups == 0 || component.acid_groups > 0 {
+        return Err(Error::invalid(
+            format!("component '{}'", component.name),
+            "raising the hydroxyl value needs a component with hydroxyl groups and no acid groups",
+            "Name a glycol or polyol of the recipe with --diol.",
+        ));
+    }
+    if ohv_c <= target_ohv {
+        return Err(Error::invalid(
+            "--target-ohv",
+            format!(
+                "{target_ohv} mg KOH/g is not below the hydroxyl value of pure {} ({ohv_c:.1})",
+                component.name
+            ),
+            "Choose a reachable target.",
+        ));
+    }
+    let m = now.m;
+    let x = m * (target_ohv - batch.hydroxyl_value) / (ohv_c - target_ohv);
+    let added_oh = now.comp_oh * x;
+    let new_mass = m + x;
+    let new_av = KOH_MG_PER_MOL / 1000.0 * now.acid_before / new_mass;
+    let new_ohv = KOH_MG_PER_MOL / 1000.0 * (now.oh_before + added_oh) / new_mass;
+    let molecules = now.molecules_now + now.comp_moles_per_kg * x;
+    Ok(Correction {
+        component: component.name.clone(),
+        direction: Direction::RaiseHydroxyl,
+        add_kg: x,
+        new_acid_value: new_av,
+        new_hydroxyl_value: new_ohv,
+        mn_now: now.mn_now,
+        new_mn: new_mass * 1000.0 / molecules,
+        new_batch_kg: new_mass,
+        water_released_kg: 0.0,
+        esters_formed_mol: 0.0,
+        acid_groups_mol: GroupBalance {
+            before: now.acid_before,
+            added: 0.0,
+            consumed: 0.0,
+            after: now.acid_before,
+        },
+        hydroxyl_groups_mol: GroupBalance {
+            before: now.oh_before,
+            added: added_oh,
+            consumed: 0.0,
+            after: now.oh_before + added_oh,
+        },
+        assumption: DIOL_ASSUMPTION.into(),
+    })
+}
+
+/// An acid component cooked back to the present AV: x by bisection on the OHV after the
+/// condensation-water balance of the batch plus the addition.
+fn lower_hydroxyl(
+    batch: &BatchNow,
+    component: &Component,
+    target_ohv: f64,
+    now: &Balance,
+) -> Result<Correction> {
     if component.acid_groups == 0 || component.hydroxyl_groups > 0 {
         return Err(Error::invalid(
-            place,
+            format!("component '{}'", component.name),
             "lowering the hydroxyl value needs a component with acid groups and no hydroxyl groups",
             "Name an acid or anhydride of the recipe with --acid.",
         ));
     }
+    let (acid_before, oh_before) = (now.acid_before, now.oh_before);
     // The present batch plus x kg of acid, as a pseudo-charge for the water balance.
     let pseudo = |x: f64| Charge {
-        mass_kg: m + x,
-        acid_eq: acid_before + comp_acid * x,
+        mass_kg: now.m + x,
+        acid_eq: acid_before + now.comp_acid * x,
         hydroxyl_eq: oh_before,
-        molecules: molecules_now + comp_moles_per_kg * x,
+        molecules: now.molecules_now + now.comp_moles_per_kg * x,
         anhydride_rings: if component.anhydride {
-            comp_moles_per_kg * x
+            now.comp_moles_per_kg * x
         } else {
             0.0
         },
@@ -205,7 +261,7 @@ pub fn correct(batch: &BatchNow, component: &Component, target_ohv: f64) -> Resu
         Ok(stepgrowth::progress_at(&pseudo(x), batch.acid_value)?.predicted_hydroxyl_value)
     };
     // Upper bracket: the acid that would consume every hydroxyl group.
-    let mut hi = oh_before / comp_acid;
+    let mut hi = oh_before / now.comp_acid;
     if ohv_after(hi)? > target_ohv {
         return Err(Error::invalid(
             "--target-ohv",
@@ -231,7 +287,7 @@ pub fn correct(batch: &BatchNow, component: &Component, target_ohv: f64) -> Resu
     let x = 0.5 * (lo + hi);
     let ch = pseudo(x);
     let pr = stepgrowth::progress_at(&ch, batch.acid_value)?;
-    let added_acid = comp_acid * x;
+    let added_acid = now.comp_acid * x;
     let acid_after = acid_before + added_acid - pr.esters;
     let oh_after = oh_before - pr.esters;
     Ok(Correction {
@@ -240,7 +296,7 @@ pub fn correct(batch: &BatchNow, component: &Component, target_ohv: f64) -> Resu
         add_kg: x,
         new_acid_value: KOH_MG_PER_MOL / 1000.0 * acid_after / pr.batch_mass_kg,
         new_hydroxyl_value: KOH_MG_PER_MOL / 1000.0 * oh_after / pr.batch_mass_kg,
-        mn_now,
+        mn_now: now.mn_now,
         new_mn: pr.batch_mass_kg * 1000.0 / pr.molecules,
         new_batch_kg: pr.batch_mass_kg,
         water_released_kg: pr.water_kg,

@@ -70,6 +70,9 @@ pub fn load(path: &Path) -> Result<Samples> {
 }
 
 /// Parses samples CSV text; `file` names it in messages.
+///
+/// The steps: the header is checked ([`columns`]), each row is read ([`read_row`]) and checked
+/// against the previous one ([`check_order`]), and an empty file is refused.
 pub fn parse(file: &str, text: &str) -> Result<Samples> {
     let mut rdr = csv::ReaderBuilder::new()
         .comment(Some(b'#'))
@@ -82,154 +85,16 @@ pub fn parse(file: &str, text: &str) -> Result<Samples> {
         .iter()
         .map(str::to_string)
         .collect::<Vec<_>>();
-    // The header is the first line that is neither blank nor a comment.
-    let header_line = text
-        .lines()
-        .position(|l| {
-            let l = l.trim();
-            !l.is_empty() && !l.starts_with('#')
-        })
-        .map_or(1, |i| i + 1);
-    for h in &headers {
-        if !REQUIRED.contains(&h.as_str()) && !OPTIONAL.contains(&h.as_str()) {
-            return Err(Error::invalid(
-                format!("{file}:{header_line}"),
-                format!("unknown column '{h}'"),
-                format!(
-                    "Use only the columns {} (required) and {} (optional).",
-                    REQUIRED.join(", "),
-                    OPTIONAL.join(", ")
-                ),
-            ));
-        }
-    }
-    let col = |name: &str| headers.iter().position(|h| h == name);
-    let mut idx = [0usize; 2];
-    for (k, name) in REQUIRED.iter().enumerate() {
-        idx[k] = col(name).ok_or_else(|| {
-            Error::invalid(
-                format!("{file}:{header_line}"),
-                format!("the header has no '{name}' column"),
-                "The first non-comment line must name the columns, e.g. elapsed_min,acid_value.",
-            )
-        })?;
-    }
-    let (t_col, v_col, oh_col, at_col) = (
-        col("temperature_c"),
-        col("viscosity"),
-        col("hydroxyl_value"),
-        col("sampled_at"),
-    );
+    let cols = columns(file, text, &headers)?;
     let mut samples: Vec<Sample> = Vec::new();
     let mut warnings = Vec::new();
     for rec in rdr.records() {
         let rec = rec.map_err(|e| csv_error(file, &e))?;
-        let line = rec.position().map_or(0, csv::Position::line);
-        let place = |field: &str| format!("{file}:{line}, field {field}");
-        let number = |i: usize, field: &str| -> Result<Option<f64>> {
-            let cell = rec.get(i).unwrap_or("");
-            if cell.is_empty() {
-                return Ok(None);
-            }
-            let v: f64 = cell.parse().map_err(|_| {
-                Error::invalid(
-                    place(field),
-                    format!("'{cell}' is not a number"),
-                    "Write a plain decimal number with a point, e.g. 12.5.",
-                )
-            })?;
-            crate::error::non_negative(&place(field), v).map(Some)
-        };
-        let required = |i: usize, field: &str| -> Result<f64> {
-            number(i, field)?.ok_or_else(|| {
-                Error::invalid(
-                    place(field),
-                    "the value is missing",
-                    "Every sample needs its elapsed time and acid value.",
-                )
-            })
-        };
-        let elapsed_min = required(idx[0], "elapsed_min")?;
-        let acid_value = required(idx[1], "acid_value")?;
-        let opt = |c: Option<usize>, field: &str| c.map_or(Ok(None), |i| number(i, field));
-        let temperature_c = match t_col {
-            Some(i) => {
-                let cell = rec.get(i).unwrap_or("");
-                if cell.is_empty() {
-                    None
-                } else {
-                    let v: f64 = cell.parse().map_err(|_| {
-                        Error::invalid(
-                            place("temperature_c"),
-                            format!("'{cell}' is not a number"),
-                            "Write the batch temperature in °C, e.g. 220.",
-                        )
-                    })?;
-                    if !v.is_finite() || v <= -crate::cook::kinetics::KELVIN_OFFSET {
-                        return Err(Error::invalid(
-                            place("temperature_c"),
-                            format!("{v} °C is not a possible temperature"),
-                            "Write the batch temperature in °C, e.g. 220.",
-                        ));
-                    }
-                    Some(v)
-                }
-            }
-            None => None,
-        };
-        let viscosity = opt(v_col, "viscosity")?;
-        if viscosity == Some(0.0) {
-            return Err(Error::invalid(
-                place("viscosity"),
-                "the viscosity is zero",
-                "Leave the cell empty when no viscosity was measured.",
-            ));
-        }
-        let hydroxyl_value = opt(oh_col, "hydroxyl_value")?;
-        let sampled_at = match at_col {
-            Some(i) if !rec.get(i).unwrap_or("").is_empty() => {
-                let cell = rec.get(i).unwrap_or("");
-                if parse_time(cell).is_none() {
-                    return Err(Error::invalid(
-                        place("sampled_at"),
-                        format!("'{cell}' is not a date and time"),
-                        "Write ISO 8601 local time such as 2026-03-14T06:30 or 2026-03-14 06:30.",
-                    ));
-                }
-                Some(cell.to_string())
-            }
-            _ => None,
-        };
+        let sample = read_row(file, &rec, &cols)?;
         if let Some(prev) = samples.last() {
-            if elapsed_min <= prev.elapsed_min {
-                return Err(Error::invalid(
-                    place("elapsed_min"),
-                    format!(
-                        "{elapsed_min} min is not later than the previous sample ({} min, line {})",
-                        prev.elapsed_min, prev.line
-                    ),
-                    "List the samples in the order they were taken, each with a later time.",
-                ));
-            }
-            if acid_value > prev.acid_value {
-                warnings.push(Warning {
-                    place: place("acid_value"),
-                    message: format!(
-                        "the acid value rose from {} to {acid_value} mg KOH/g; check the titration (the point is kept)",
-                        prev.acid_value
-                    ),
-                });
-            }
+            check_order(file, prev, &sample, &mut warnings)?;
         }
-        samples.push(Sample {
-            line,
-            elapsed_min,
-            acid_value,
-            temperature_c,
-            viscosity,
-            hydroxyl_value,
-            sampled_at,
-        });
+        samples.push(sample);
     }
     if samples.is_empty() {
         return Err(Error::invalid(
@@ -243,6 +108,180 @@ pub fn parse(file: &str, text: &str) -> Result<Samples> {
         samples,
         warnings,
     })
+}
+
+/// Where each column is in the file's header.
+struct Columns {
+    /// `elapsed_min` and `acid_value`, in that order.
+    required: [usize; 2],
+    temperature_c: Option<usize>,
+    viscosity: Option<usize>,
+    hydroxyl_value: Option<usize>,
+    sampled_at: Option<usize>,
+}
+
+/// Checks the header: every column known, both required columns present.
+fn columns(file: &str, text: &str, headers: &[String]) -> Result<Columns> {
+    // The header is the first line that is neither blank nor a comment.
+    let header_line = text
+        .lines()
+        .position(|l| {
+            let l = l.trim();
+            !l.is_empty() && !l.starts_with('#')
+        })
+        .map_or(1, |i| i + 1);
+    for h in headers {
+        if !REQUIRED.contains(&h.as_str()) && !OPTIONAL.contains(&h.as_str()) {
+            return Err(Error::invalid(
+                format!("{file}:{header_line}"),
+                format!("unknown column '{h}'"),
+                format!(
+                    "Use only the columns {} (required) and {} (optional).",
+                    REQUIRED.join(", "),
+                    OPTIONAL.join(", ")
+                ),
+            ));
+        }
+    }
+    let col = |name: &str| headers.iter().position(|h| h == name);
+    let mut required = [0usize; 2];
+    for (k, name) in REQUIRED.iter().enumerate() {
+        required[k] = col(name).ok_or_else(|| {
+            Error::invalid(
+                format!("{file}:{header_line}"),
+                format!("the header has no '{name}' column"),
+                "The first non-comment line must name the columns, e.g. elapsed_min,acid_value.",
+            )
+        })?;
+    }
+    Ok(Columns {
+        required,
+        temperature_c: col("temperature_c"),
+        viscosity: col("viscosity"),
+        hydroxyl_value: col("hydroxyl_value"),
+        sampled_at: col("sampled_at"),
+    })
+}
+
+/// Reads one row: the required numbers, then temperature, viscosity, hydroxyl value and
+/// sampling time, each error naming the line and field.
+fn read_row(file: &str, rec: &csv::StringRecord, cols: &Columns) -> Result<Sample> {
+    let line = rec.position().map_or(0, csv::Position::line);
+    let place = |field: &str| format!("{file}:{line}, field {field}");
+    let number = |i: usize, field: &str| -> Result<Option<f64>> {
+        let cell = rec.get(i).unwrap_or("");
+        if cell.is_empty() {
+            return Ok(None);
+        }
+        let v: f64 = cell.parse().map_err(|_| {
+            Error::invalid(
+                place(field),
+                format!("'{cell}' is not a number"),
+                "Write a plain decimal number with a point, e.g. 12.5.",
+            )
+        })?;
+        crate::error::non_negative(&place(field), v).map(Some)
+    };
+    let required = |i: usize, field: &str| -> Result<f64> {
+        number(i, field)?.ok_or_else(|| {
+            Error::invalid(
+                place(field),
+                "the value is missing",
+                "Every sample needs its elapsed time and acid value.",
+            )
+        })
+    };
+    let elapsed_min = required(cols.required[0], "elapsed_min")?;
+    let acid_value = required(cols.required[1], "acid_value")?;
+    let opt = |c: Option<usize>, field: &str| c.map_or(Ok(None), |i| number(i, field));
+    let temperature_c = match cols.temperature_c {
+        Some(i) => temperature_cell(rec.get(i).unwrap_or(""), &place("temperature_c"))?,
+        None => None,
+    };
+    let viscosity = opt(cols.viscosity, "viscosity")?;
+    if viscosity == Some(0.0) {
+        return Err(Error::invalid(
+            place("viscosity"),
+            "the viscosity is zero",
+            "Leave the cell empty when no viscosity was measured.",
+        ));
+    }
+    let hydroxyl_value = opt(cols.hydroxyl_value, "hydroxyl_value")?;
+    let sampled_at = match cols.sampled_at {
+        Some(i) if !rec.get(i).unwrap_or("").is_empty() => {
+            let cell = rec.get(i).unwrap_or("");
+            if parse_time(cell).is_none() {
+                return Err(Error::invalid(
+                    place("sampled_at"),
+                    format!("'{cell}' is not a date and time"),
+                    "Write ISO 8601 local time such as 2026-03-14T06:30 or 2026-03-14 06:30.",
+                ));
+            }
+            Some(cell.to_string())
+        }
+        _ => None,
+    };
+    Ok(Sample {
+        line,
+        elapsed_min,
+        acid_value,
+        temperature_c,
+        viscosity,
+        hydroxyl_value,
+        sampled_at,
+    })
+}
+
+/// A batch temperature cell (°C): empty is none; it must be a number above absolute zero.
+fn temperature_cell(cell: &str, place: &str) -> Result<Option<f64>> {
+    if cell.is_empty() {
+        return Ok(None);
+    }
+    let v: f64 = cell.parse().map_err(|_| {
+        Error::invalid(
+            place,
+            format!("'{cell}' is not a number"),
+            "Write the batch temperature in °C, e.g. 220.",
+        )
+    })?;
+    if !v.is_finite() || v <= -crate::cook::kinetics::KELVIN_OFFSET {
+        return Err(Error::invalid(
+            place,
+            format!("{v} °C is not a possible temperature"),
+            "Write the batch temperature in °C, e.g. 220.",
+        ));
+    }
+    Ok(Some(v))
+}
+
+/// Time must rise from one sample to the next (an error); an acid value that rises is a warning.
+fn check_order(
+    file: &str,
+    prev: &Sample,
+    next: &Sample,
+    warnings: &mut Vec<Warning>,
+) -> Result<()> {
+    let place = |field: &str| format!("{file}:{}, field {field}", next.line);
+    if next.elapsed_min <= prev.elapsed_min {
+        return Err(Error::invalid(
+            place("elapsed_min"),
+            format!(
+                "{} min is not later than the previous sample ({} min, line {})",
+                next.elapsed_min, prev.elapsed_min, prev.line
+            ),
+            "List the samples in the order they were taken, each with a later time.",
+        ));
+    }
+    if next.acid_value > prev.acid_value {
+        warnings.push(Warning {
+            place: place("acid_value"),
+            message: format!(
+                "the acid value rose from {} to {} mg KOH/g; check the titration (the point is kept)",
+                prev.acid_value, next.acid_value
+            ),
+        });
+    }
+    Ok(())
 }
 
 fn parse_time(s: &str) -> Option<chrono::NaiveDateTime> {

@@ -1,4 +1,5 @@
-//! Lot-to-lot statistics: I-MR control limits, Nelson run rules, capability, normality, log–log fit.
+//! Lot-to-lot statistics: I-MR control limits, Nelson run rules, capability, normality, log–log fit;
+//! the shared numerics: distributions (normal, chi-square, Student t) and straight-line fits.
 //!
 //! Pure functions over `&[f64]` in manufacture order; no I/O. Results derive `Serialize`.
 
@@ -12,5 +13,5 @@ pub mod rules;
 pub use capability::{capability, capability_from_moments, Capability, Side, SpecWindow};
 pub use imr::{imr_limits, mean_and_sd, moving_ranges, Limits};
 pub use normality::{anderson_darling, Normality};
-pub use regression::{log_log_fit, LogLogFit};
+pub use regression::{fit_line, fit_weighted, log_log_fit, LineFit, LogLogFit};
 pub use rules::{nelson_signals, nelson_signals_into, RuleSet, Signal};

@@ -38,7 +38,7 @@ fn pd_av(p: f64) -> f64 {
 /// Group concentrations of the demo recipe, as the library computes them.
 fn groups() -> resinlot::cook::kinetics::Groups {
     let r = resinlot::chem::recipe::Recipe::load(&recipe()).unwrap();
-    resinlot::cmd::cook::groups_of(&r.charge())
+    resinlot::cook::fit::groups_of(&r.charge())
 }
 
 /// A synthetic cook (test fixture, invented numbers): early points at p = 0.5..0.75, then the
