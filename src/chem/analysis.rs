@@ -28,8 +28,8 @@ pub struct Titration {
 impl Titration {
     /// Checks every number before any work is done.
     pub fn validate(&self) -> Result<()> {
-        non_negative("acid value (--av)", self.av)?;
-        non_negative("hydroxyl value (--ohv)", self.ohv)?;
+        crate::chem::ranges::group_value("acid value (--av)", self.av)?;
+        crate::chem::ranges::group_value("hydroxyl value (--ohv)", self.ohv)?;
         positive("functionality (--functionality)", self.functionality)?;
         if let Some(u) = self.u_av {
             non_negative("acid value uncertainty (--av-u)", u)?;

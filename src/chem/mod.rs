@@ -3,5 +3,6 @@
 //! text; may use `support` and `error` only.
 
 pub mod analysis;
+pub mod ranges;
 pub mod recipe;
 pub mod stepgrowth;

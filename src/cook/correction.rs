@@ -104,10 +104,11 @@ anhydride ring opening), which is removed; no glycol distils overhead.";
 /// ed., §2-1); the end-group conservation under transesterification is common practice in
 /// polyester manufacture.
 pub fn correct(batch: &BatchNow, component: &Component, target_ohv: f64) -> Result<Correction> {
-    crate::error::positive("batch mass (--batch-kg)", batch.mass_kg)?;
-    crate::error::non_negative("acid value (--av)", batch.acid_value)?;
-    crate::error::non_negative("hydroxyl value (--ohv)", batch.hydroxyl_value)?;
+    crate::chem::ranges::batch_mass("batch mass (--batch-kg)", batch.mass_kg)?;
+    crate::chem::ranges::group_value("acid value (--av)", batch.acid_value)?;
+    crate::chem::ranges::group_value("hydroxyl value (--ohv)", batch.hydroxyl_value)?;
     crate::error::positive("target hydroxyl value (--target-ohv)", target_ohv)?;
+    crate::chem::ranges::group_value("target hydroxyl value (--target-ohv)", target_ohv)?;
     if batch.acid_value + batch.hydroxyl_value <= 0.0 {
         return Err(Error::invalid(
             "--av and --ohv",

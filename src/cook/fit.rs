@@ -233,7 +233,7 @@ pub fn target_acid_value(ch: &Charge, target: Target) -> Result<f64> {
     Ok(match target {
         Target::AcidValue(av) => {
             crate::error::positive("--target-av", av)?;
-            av
+            crate::chem::ranges::group_value("--target-av", av)?
         }
         Target::Mn(mn) => {
             crate::error::positive("--target-mn", mn)?;

@@ -586,3 +586,20 @@ fn late_outlier_is_flagged_and_kept() {
     assert_eq!(v["excluded"], serde_json::json!([]));
     assert!(v["samples"][10]["kept"].as_bool().unwrap());
 }
+
+/// Issue #13 item 20: `adjust --batch-kg 1e308` printed "Add inf kg"; a batch outside 1 kg to
+/// 1000 t is refused before any work.
+#[test]
+fn adjust_refuses_an_absurd_batch_mass_issue_13() {
+    bin()
+        .arg("adjust")
+        .arg("--recipe")
+        .arg(recipe())
+        .args(["--batch-kg", "1e308", "--av", "1.1", "--ohv", "50.4"])
+        .args(["--target-ohv", "56"])
+        .assert()
+        .code(2)
+        .stdout("")
+        .stderr(predicates::str::contains("batch mass (--batch-kg)"))
+        .stderr(predicates::str::contains("from 1 to 1000000 kg"));
+}

@@ -76,6 +76,21 @@ fn non_finite_value_is_refused() {
         .stderr(predicate::str::contains("not a finite number"));
 }
 
+/// Issue #13 item 20: `--av 1e308` gave Mn 0; values outside physical ranges are refused.
+#[test]
+fn value_outside_physical_range_is_refused_issue_13() {
+    Workspace::new()
+        .cmd()
+        .args(["endgroup", "--av", "1e308", "--ohv", "55"])
+        .assert()
+        .code(2)
+        .stdout("")
+        .stderr(predicate::str::contains("acid value (--av): 100000000"))
+        .stderr(predicate::str::contains(
+            "Enter a value from 0 to 2000 mg KOH/g.",
+        ));
+}
+
 #[test]
 fn av_above_initial_is_refused() {
     Workspace::new()
