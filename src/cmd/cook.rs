@@ -15,6 +15,7 @@ use crate::cook::fit::{self, CookReport, Target};
 use crate::cook::kinetics;
 use crate::cook::samples;
 use crate::error::Error;
+use crate::support::output::OutputKind;
 
 /// Arguments of `resinlot cook`.
 #[derive(Debug, clap::Args)]
@@ -125,7 +126,9 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         render(&rep)
     };
     if let Some((path, bytes)) = chart {
-        crate::support::output::write_atomic(path, &bytes, true)?;
+        // The cook has no workspace flags: the record folders are the default ones here.
+        let record = ["specs", "register", "certificates"].map(std::path::Path::new);
+        crate::support::output::write_output(path, bytes, OutputKind::Svg, &record)?;
     }
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)

@@ -603,3 +603,27 @@ fn adjust_refuses_an_absurd_batch_mass_issue_13() {
         .stderr(predicates::str::contains("batch mass (--batch-kg)"))
         .stderr(predicates::str::contains("from 1 to 1000000 kg"));
 }
+
+/// Issue #13 item 1: `cook ... --chart register/SPC-35.csv` replaced the trend file.
+#[test]
+fn cook_chart_never_lands_in_the_register_issue_13() {
+    let w = crate::common::Workspace::new();
+    std::fs::create_dir_all(w.path("register")).unwrap();
+    w.write("register/SPC-35.csv", "seq,lot\n");
+    let samples = w.write(
+        "c.csv",
+        "elapsed_min,acid_value\n0,60\n60,30\n120,20\n180,15\n240,12\n300,10\n",
+    );
+    w.cmd()
+        .arg("cook")
+        .arg(&samples)
+        .args(["--recipe", "specs/recipes/tp-2000.toml", "--target-av", "5"])
+        .args(["--chart", "register/SPC-35.csv"])
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("into the record folder register"));
+    assert_eq!(
+        std::fs::read_to_string(w.path("register/SPC-35.csv")).unwrap(),
+        "seq,lot\n"
+    );
+}
