@@ -129,11 +129,12 @@ impl ProductSpec {
         let bad = |what: &str, problem: String, fix: &str| {
             Error::invalid(format!("{file}: {what}"), problem, fix)
         };
-        if !crate::support::ids::is_safe_id(&raw.code) {
+        if !crate::support::ids::is_product_code(&raw.code) {
             return Err(bad(
                 "code",
                 format!("'{}' is not a usable product code", raw.code),
-                "Use letters, digits, '-', '_' or '.', starting with a letter or digit.",
+                "Use letters, digits, '-', '_' or '.', starting with a letter or digit; \
+                 'certificates', 'heads' and 'quarantine' name the register's own files.",
             ));
         }
         let effective =

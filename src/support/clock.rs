@@ -23,16 +23,21 @@ pub fn from_env(value: Option<&str>) -> Result<DateTime<Utc>> {
                     "Set it to seconds since 1970-01-01 UTC (e.g. 1767225600) or unset it.",
                 )
             })?;
-            DateTime::from_timestamp(secs, 0).ok_or_else(|| {
-                Error::invalid(
-                    "environment variable SOURCE_DATE_EPOCH",
-                    format!("{secs} is outside the supported date range"),
-                    "Use a timestamp between year 1970 and 9999.",
-                )
-            })
+            DateTime::from_timestamp(secs, 0)
+                .filter(|t| (0..=LAST_SECOND).contains(&t.timestamp()))
+                .ok_or_else(|| {
+                    Error::invalid(
+                        "environment variable SOURCE_DATE_EPOCH",
+                        format!("{secs} is outside the supported date range"),
+                        "Use a timestamp between year 1970 and 9999.",
+                    )
+                })
         }
     }
 }
+
+/// 9999-12-31T23:59:59Z in seconds since 1970 (the last instant a four-digit year can write).
+const LAST_SECOND: i64 = 253_402_300_799;
 
 #[cfg(test)]
 mod tests {
@@ -43,6 +48,16 @@ mod tests {
         // 1767225600 s = 2026-01-01T00:00:00Z (date arithmetic, common practice).
         let t = from_env(Some("1767225600")).unwrap();
         assert_eq!(t.to_rfc3339(), "2026-01-01T00:00:00+00:00");
+    }
+
+    /// Issue #13 item 15: a negative epoch or one past year 9999 is refused.
+    #[test]
+    fn epoch_outside_1970_to_9999_is_refused_issue_13() {
+        assert!(from_env(Some("-1")).is_err());
+        assert!(from_env(Some("253402300800")).is_err());
+        let last = from_env(Some("253402300799")).unwrap();
+        assert_eq!(last.to_rfc3339(), "9999-12-31T23:59:59+00:00");
+        assert!(from_env(Some("0")).is_ok());
     }
 
     #[test]

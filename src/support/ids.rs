@@ -16,9 +16,39 @@ pub fn is_safe_id(id: &str) -> bool {
         && !id.contains("..")
 }
 
+/// Names the register keeps for its own files (`register/certificates.csv`, the heads file);
+/// a product code equal to one of them, in any case, would share its file.
+pub const RESERVED_CODES: [&str; 3] = ["certificates", "heads", "quarantine"];
+
+/// True when `code` can name a product: a safe id ([`is_safe_id`]) that is not one of the
+/// register's own names ([`RESERVED_CODES`], compared without regard to case as file systems
+/// may).
+pub fn is_product_code(code: &str) -> bool {
+    is_safe_id(code)
+        && !RESERVED_CODES
+            .iter()
+            .any(|r| r.eq_ignore_ascii_case(code.trim_end_matches(".csv")))
+}
+
 #[cfg(test)]
 mod tests {
-    use super::is_safe_id;
+    use super::{is_product_code, is_safe_id};
+
+    /// Issue #13 item 16: reserved register names and path-like codes are not product codes.
+    #[test]
+    fn reserved_names_are_not_product_codes_issue_13() {
+        assert!(is_product_code("PD-2000"));
+        for bad in [
+            "certificates",
+            "Heads",
+            "heads.csv",
+            "QUARANTINE",
+            "../register/PD-2000",
+            "/abs",
+        ] {
+            assert!(!is_product_code(bad), "{bad}");
+        }
+    }
 
     #[test]
     fn path_like_ids_are_refused() {

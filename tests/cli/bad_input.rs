@@ -192,6 +192,11 @@ fn spec_toml_catalogue() {
             SPEC.replace("functionality = 2.0", "functionality = -2.0"),
             "negative",
         ),
+        // Issue #13 item 16: a product code that would share the certificate log's file.
+        (
+            SPEC.replace("code = \"ZZ-1\"", "code = \"certificates\""),
+            "'certificates' is not a usable product code",
+        ),
         // Issue #13 item 19: spec numbers must be finite and physically sensible.
         (
             SPEC.replace("retest_months = 12", "retest_months = 4294967295"),

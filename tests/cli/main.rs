@@ -14,5 +14,6 @@ mod lookup;
 mod old_registers;
 mod parsers_never_panic;
 mod record;
+mod record_faults;
 mod release;
 mod trend;
