@@ -77,8 +77,9 @@ impl Recipe {
                 "Add one [[component]] table per charged raw material.",
             ));
         }
+        crate::support::text::check_line(&format!("{file}: name"), "recipe name", &self.name, 120)?;
         for (i, c) in self.components.iter().enumerate() {
-            let place = format!("{file}: component {} ('{}')", i + 1, c.name);
+            let place = format!("{file}: component {} ('{}')", i + 1, c.name.escape_debug());
             if c.name.trim().is_empty() {
                 return Err(Error::invalid(
                     &place,
@@ -86,6 +87,7 @@ impl Recipe {
                     "Give every component a name.",
                 ));
             }
+            crate::support::text::check_line(&place, "component name", &c.name, 120)?;
             crate::error::positive(&format!("{place}, mass_kg"), c.mass_kg)?;
             crate::error::positive(&format!("{place}, molar_mass"), c.molar_mass)?;
             if c.anhydride && c.acid_groups < 2 {

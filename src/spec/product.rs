@@ -137,6 +137,15 @@ impl ProductSpec {
                  'certificates', 'heads' and 'quarantine' name the register's own files.",
             ));
         }
+        // Issue #13 item 6: every text that reaches a trend-file row or a certificate is one
+        // printable line, so the row can be read back.
+        crate::support::text::check_line(&format!("{file}: name"), "product name", &raw.name, 200)?;
+        crate::support::text::check_line(
+            &format!("{file}: revision"),
+            "revision",
+            &raw.revision,
+            40,
+        )?;
         let effective =
             NaiveDate::parse_from_str(&raw.effective.to_string(), "%Y-%m-%d").map_err(|_| {
                 bad(
@@ -264,6 +273,15 @@ fn property(
 ) -> Result<Property> {
     let place = |field: &str| format!("{file}: properties.{key}{field}");
     check_key(&place(""), key, p, has_recipe)?;
+    for (field, what, text) in [
+        (".label", "label", &p.label),
+        (".unit", "unit", &p.unit),
+        (".method", "method", &p.method),
+    ] {
+        if let Some(t) = text.as_deref().filter(|t| !t.trim().is_empty()) {
+            crate::support::text::check_line(&place(field), what, t, 200)?;
+        }
+    }
     let derived = keys::is_derived(key);
     let (unit, label) = unit_and_label(&place, key, p, derived)?;
     if p.decimals > 10 {

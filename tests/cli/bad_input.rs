@@ -197,6 +197,16 @@ fn spec_toml_catalogue() {
             SPEC.replace("code = \"ZZ-1\"", "code = \"certificates\""),
             "'certificates' is not a usable product code",
         ),
+        // Issue #13 item 6: a revision or label with a line break would write a row that
+        // cannot be read back; a bidirectional override would spoof text on a certificate.
+        (
+            SPEC.replace("revision = \"A\"", "revision = \"C\\nD\""),
+            "revision: the revision cannot be used",
+        ),
+        (
+            SPEC.replace("label = \"AV\"", "label = \"AV\\u202E\""),
+            "properties.acid_value.label: the label cannot be used",
+        ),
         // Issue #13 item 19: spec numbers must be finite and physically sensible.
         (
             SPEC.replace("retest_months = 12", "retest_months = 4294967295"),
@@ -254,6 +264,11 @@ fn recipe_toml_catalogue() {
         ),
         (format!("{RECIPE}density = 1.2\n"), "density"),
         (RECIPE[..40].to_string(), "bad.toml:"),
+        // Issue #13 item 6: names are one printable line.
+        (
+            RECIPE.replacen("name = \"aa\"", "name = \"a\\na\"", 1),
+            "the component name cannot be used",
+        ),
     ];
     for (contents, needle) in cases {
         check(Kind::Recipe, contents.as_bytes(), needle);
