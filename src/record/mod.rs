@@ -2,6 +2,7 @@
 //! quarantine, read-only queries, and workspace folders. The only layer that appends to the
 //! record. May use `lot`, `spec`, `chem`, `support` and `error`.
 
+pub mod append;
 pub mod certlog;
 pub mod integrity;
 pub mod query;
