@@ -5,6 +5,7 @@
 pub mod append;
 pub mod certlog;
 pub mod integrity;
+pub mod lines;
 pub mod query;
 pub mod trend_file;
 pub mod workspace;
