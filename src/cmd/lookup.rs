@@ -186,6 +186,19 @@ fn render(
         c("product"),
         spec.map(|s| format!(" {}", s.name)).unwrap_or_default()
     );
+    out.push_str(&facts_text(spec, &c));
+    out.push_str(&property_table(t, spec, &c));
+    out.push_str(&derived_text(spec, &c));
+    if !c("notes").is_empty() {
+        out.push_str(&format!("Notes: {}\n", c("notes")));
+    }
+    out.push_str(&certificates_text(certs));
+    out.push_str(&history_text(t, rows, spec));
+    out
+}
+
+/// The lot's status, dates and retest date, as label-value pairs.
+fn facts_text<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> String {
     let retest = spec.and_then(|s| {
         chrono::NaiveDate::parse_from_str(c("manufactured"), "%Y-%m-%d")
             .ok()
@@ -209,8 +222,17 @@ fn render(
     if let Some(r) = retest {
         facts.push(("Retest date".into(), r.to_string()));
     }
-    out.push_str(&crate::support::table::pairs(&facts));
+    let mut out = crate::support::table::pairs(&facts);
     out.push('\n');
+    out
+}
+
+/// The table of every recorded property: result, unit, limits and verdict.
+fn property_table<'a>(
+    t: &Trend,
+    spec: Option<&ProductSpec>,
+    c: &dyn Fn(&str) -> &'a str,
+) -> String {
     let mut table = vec![vec![
         "Property".to_string(),
         "Result".into(),
@@ -244,7 +266,12 @@ fn render(
             c(&format!("{k}_verdict")).replace('_', " "),
         ]);
     }
-    out.push_str(&crate::support::table::render(&table));
+    crate::support::table::render(&table)
+}
+
+/// How Mn, Xn and the extent of reaction were obtained, when recorded.
+fn derived_text<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> String {
+    let mut out = String::new();
     if !c("mn").is_empty() {
         let u = c("mn_uncertainty").parse::<f64>().ok();
         let f = spec.map_or(2.0, |s| s.functionality);
@@ -265,9 +292,12 @@ fn render(
             if c("extent_of_reaction").is_empty() { "-".to_string() } else { reported(spec, "extent_of_reaction", c("extent_of_reaction")) },
         ));
     }
-    if !c("notes").is_empty() {
-        out.push_str(&format!("Notes: {}\n", c("notes")));
-    }
+    out
+}
+
+/// The certificates issued for the lot.
+fn certificates_text(certs: &[crate::record::certlog::Entry]) -> String {
+    let mut out = String::new();
     out.push_str("\nCertificates issued:\n");
     if certs.is_empty() {
         out.push_str("  none\n");
@@ -289,6 +319,12 @@ fn render(
             }
         ));
     }
+    out
+}
+
+/// The lot's superseded rows, newest first, with the retest reason.
+fn history_text(t: &Trend, rows: &[&Row], spec: Option<&ProductSpec>) -> String {
+    let mut out = String::new();
     if rows.len() > 1 {
         out.push_str("\nHistory (superseded results, newest first):\n");
         for r in &rows[1..] {
@@ -307,8 +343,8 @@ fn render(
                 vals.join(", ")
             ));
         }
-        if !c("reason").is_empty() {
-            out.push_str(&format!("  Retest reason: {}\n", c("reason")));
+        if !t.cell(rows[0], "reason").is_empty() {
+            out.push_str(&format!("  Retest reason: {}\n", t.cell(rows[0], "reason")));
         }
     }
     out

@@ -1,6 +1,5 @@
 //! `resinlot release`: decide every lot of a results file and append it to the trend files.
 
-use std::collections::BTreeMap;
 use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::time::Duration;
@@ -9,14 +8,15 @@ use anyhow::Context;
 use serde::Serialize;
 
 use crate::certificate::build::{self, LotRecord};
-use crate::certificate::issue::{Issuer, Pending};
+use crate::certificate::issue::{Issued, Issuer, Pending};
 use crate::certificate::model::Supersedes;
 use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::lot::evaluate::{evaluate, LotDecision, Status};
 use crate::lot::intake::{self, LotResults};
+use crate::record::append::{self, Plan};
 use crate::record::certlog::Log;
-use crate::record::trend_file::{self, Locked, Wait};
+use crate::record::trend_file::Wait;
 use crate::spec::SpecSet;
 
 /// Arguments of `resinlot release`.
@@ -96,24 +96,7 @@ pub struct Args {
     pub max_bytes: u64,
 }
 
-/// What happened to one lot in the trend file.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Recorded {
-    /// Appended as row `seq`.
-    New(usize),
-    /// Appended as row `seq`, superseding row `old`.
-    Retest {
-        /// New row.
-        seq: usize,
-        /// Superseded row.
-        supersedes: usize,
-    },
-    /// Already recorded with identical results as row `seq`; nothing written.
-    Unchanged(usize),
-    /// Not written (dry run).
-    NotWritten,
-}
+pub use crate::record::append::Recorded;
 
 #[derive(Serialize)]
 struct JsonLot<'a> {
@@ -141,19 +124,11 @@ pub fn approver(flag: Option<&str>) -> anyhow::Result<String> {
     Ok(name)
 }
 
-/// Runs the command.
+/// Runs the command: check the flags, read and decide every lot, record them (with their
+/// internal certificates), print.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let approver = approver(args.approver.as_deref())?;
-    if let Some(r) = &args.reason {
-        if r.trim().is_empty() || r.chars().any(char::is_control) || r.chars().count() > 300 {
-            return Err(Error::invalid(
-                "--reason",
-                "the reason must be 1 to 300 printable characters",
-                "State briefly why the lot is retested.",
-            )
-            .into());
-        }
-    }
+    check_reason(args.reason.as_deref())?;
     let specs = SpecSet::load(&args.specs).context("cannot load the product specs")?;
     let opts = intake::Options {
         decimal_comma: args.decimal_comma,
@@ -163,11 +138,91 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         },
     };
     let lots = intake::read_file(&args.results, opts)?;
+    let decisions = decide(args, &specs, &lots)?;
+    let now = crate::support::clock::now()?;
+    let now_text = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
+    let with_certs = !args.dry_run && !args.no_certificates;
+    let issuer = if with_certs {
+        Some(Issuer::new(&args.templates, &args.out)?)
+    } else {
+        None
+    };
+    let mut log: Option<Log> = None;
+    let mut pending: Vec<Pending> = Vec::new();
+    let mut rendered = Vec::new();
+    let recorded = if args.dry_run {
+        vec![Recorded::NotWritten; decisions.len()]
+    } else {
+        record(
+            args,
+            &specs,
+            &lots,
+            &decisions,
+            &approver,
+            &now_text,
+            &mut |plans| {
+                let Some(issuer) = &issuer else {
+                    return Ok(());
+                };
+                // Locked only once every trend-file check has passed, so a refused release
+                // leaves the certificate log untouched too.
+                let log = log.insert(Log::lock(
+                    &args.register,
+                    Wait {
+                        timeout: Duration::from_secs(args.lock_timeout),
+                    },
+                )?);
+                let ctx = CertContext {
+                    args,
+                    specs: &specs,
+                    issuer,
+                    approver: &approver,
+                    now: &now,
+                    now_text: &now_text,
+                };
+                pending = prepare_certificates(&ctx, log, &decisions, plans)?;
+                rendered = issuer.render(&pending)?;
+                issuer.check_targets(&pending)?;
+                Ok(())
+            },
+        )?
+    };
+    let issued = match (&issuer, &mut log) {
+        (Some(issuer), Some(log)) => issuer.file(log, &pending, &rendered, false, &now_text)?,
+        _ => Vec::new(),
+    };
+    let text = report_text(args, &specs, &decisions, &recorded, &issued)?;
+    crate::support::output::print(&text)?;
+    Ok(if decisions.iter().all(|d| d.status == Status::Released) {
+        Outcome::AllGood
+    } else {
+        Outcome::FellShort
+    })
+}
+
+/// Refuses an unusable --reason.
+fn check_reason(reason: Option<&str>) -> anyhow::Result<()> {
+    if let Some(r) = reason {
+        if r.trim().is_empty() || r.chars().any(char::is_control) || r.chars().count() > 300 {
+            return Err(Error::invalid(
+                "--reason",
+                "the reason must be 1 to 300 printable characters",
+                "State briefly why the lot is retested.",
+            )
+            .into());
+        }
+    }
+    Ok(())
+}
+
+/// Evaluates every lot against the spec revision in force on its manufacture date, refusing
+/// a manufacture date in the future.
+fn decide(args: &Args, specs: &SpecSet, lots: &[LotResults]) -> anyhow::Result<Vec<LotDecision>> {
     let file = args.results.display().to_string();
     let bar = progress(lots.len());
     let mut decisions = Vec::with_capacity(lots.len());
     let today = crate::support::clock::now()?.date_naive();
-    for lot in &lots {
+    for lot in lots {
         if lot.manufactured > today {
             return Err(Error::invalid(
                 format!("{file}:{}, lot '{}'", lot.line, lot.lot),
@@ -193,108 +248,93 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         bar.inc(1);
     }
     bar.finish_and_clear();
-    let now = crate::support::clock::now()?;
-    let now_text = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
-    let with_certs = !args.dry_run && !args.no_certificates;
-    let issuer = if with_certs {
-        Some(Issuer::new(&args.templates, &args.out)?)
-    } else {
-        None
-    };
-    let mut log: Option<Log> = None;
+    Ok(decisions)
+}
+
+/// What building the internal certificates of a release needs.
+struct CertContext<'a> {
+    args: &'a Args,
+    specs: &'a SpecSet,
+    issuer: &'a Issuer,
+    approver: &'a str,
+    now: &'a chrono::DateTime<chrono::Utc>,
+    now_text: &'a str,
+}
+
+/// Builds the internal certificate of every lot that gets a new row, numbered after the
+/// log's last; a retested lot's certificate supersedes its latest internal one.
+fn prepare_certificates(
+    ctx: &CertContext<'_>,
+    log: &Log,
+    decisions: &[LotDecision],
+    plans: &[Plan],
+) -> anyhow::Result<Vec<Pending>> {
+    let args = ctx.args;
+    let entries = log.entries();
     let mut pending: Vec<Pending> = Vec::new();
-    let mut rendered = Vec::new();
-    let recorded = if args.dry_run {
-        vec![Recorded::NotWritten; decisions.len()]
-    } else {
-        record(
-            args,
-            &specs,
-            &lots,
-            &decisions,
-            &approver,
-            &now_text,
-            &mut |plan| {
-                let Some(issuer) = &issuer else {
-                    return Ok(());
-                };
-                // Locked only once every trend-file check has passed, so a refused release
-                // leaves the certificate log untouched too.
-                let log = log.insert(Log::lock(
-                    &args.register,
-                    Wait {
-                        timeout: Duration::from_secs(args.lock_timeout),
-                    },
-                )?);
-                let entries = log.entries();
-                for (i, d) in decisions.iter().enumerate() {
-                    if plan[i] == Some(usize::MAX) {
-                        continue;
-                    }
-                    let spec = specs.for_date(&d.product, d.manufactured)?;
-                    let rec = LotRecord::from_decision(d, &approver, &now_text);
-                    let supersedes = entries
-                        .iter()
-                        .rev()
-                        .find(|e| e.lot == d.lot && e.customer.is_empty())
-                        .map(|e| Supersedes {
-                            number: e.number.clone(),
-                            reason: args.reason.clone().unwrap_or_else(|| "retest".into()),
-                        });
-                    let number = log.number_after(&issuer.site.certificate_prefix, pending.len());
-                    let certificate = build::build(
-                        &issuer.site,
-                        spec,
-                        &rec,
-                        None,
-                        &number,
-                        now.date_naive(),
-                        supersedes,
-                    )?;
-                    pending.push(Pending {
-                        certificate,
-                        customer: String::new(),
-                        reason: args.reason.clone().unwrap_or_default(),
-                    });
-                }
-                rendered = issuer.render(&pending)?;
-                issuer.check_targets(&pending)?;
-                Ok(())
-            },
-        )?
-    };
-    let issued = match (&issuer, &mut log) {
-        (Some(issuer), Some(log)) => issuer.file(log, &pending, &rendered, false, &now_text)?,
-        _ => Vec::new(),
-    };
-    let text = if args.json {
+    for (d, plan) in decisions.iter().zip(plans) {
+        if !plan.writes() {
+            continue;
+        }
+        let spec = ctx.specs.for_date(&d.product, d.manufactured)?;
+        let rec = LotRecord::from_decision(d, ctx.approver, ctx.now_text);
+        let supersedes = entries
+            .iter()
+            .rev()
+            .find(|e| e.lot == d.lot && e.customer.is_empty())
+            .map(|e| Supersedes {
+                number: e.number.clone(),
+                reason: args.reason.clone().unwrap_or_else(|| "retest".into()),
+            });
+        let number = log.number_after(&ctx.issuer.site.certificate_prefix, pending.len());
+        let certificate = build::build(
+            &ctx.issuer.site,
+            spec,
+            &rec,
+            None,
+            &number,
+            ctx.now.date_naive(),
+            supersedes,
+        )?;
+        pending.push(Pending {
+            certificate,
+            customer: String::new(),
+            reason: args.reason.clone().unwrap_or_default(),
+        });
+    }
+    Ok(pending)
+}
+
+/// The command's output: JSON, or the table per product and the certificates line.
+fn report_text(
+    args: &Args,
+    specs: &SpecSet,
+    decisions: &[LotDecision],
+    recorded: &[Recorded],
+    issued: &[Issued],
+) -> anyhow::Result<String> {
+    if args.json {
         let lots: Vec<JsonLot> = decisions
             .iter()
-            .zip(&recorded)
+            .zip(recorded)
             .map(|(decision, recorded)| JsonLot { decision, recorded })
             .collect();
-        serde_json::to_string_pretty(&serde_json::json!({ "lots": lots, "certificates": issued }))?
-            + "\n"
-    } else {
-        let mut t = render(&specs, &decisions, &recorded, &args.register, args.dry_run);
-        if !issued.is_empty() {
-            t.push_str(&format!(
-                "{} internal certificate{} written to {} ({} to {}).\n",
-                issued.len(),
-                if issued.len() == 1 { "" } else { "s" },
-                args.out.display(),
-                issued[0].certificate_number,
-                issued[issued.len() - 1].certificate_number
-            ));
-        }
-        t
-    };
-    crate::support::output::print(&text)?;
-    Ok(if decisions.iter().all(|d| d.status == Status::Released) {
-        Outcome::AllGood
-    } else {
-        Outcome::FellShort
-    })
+        return Ok(serde_json::to_string_pretty(
+            &serde_json::json!({ "lots": lots, "certificates": issued }),
+        )? + "\n");
+    }
+    let mut t = render(specs, decisions, recorded, &args.register, args.dry_run);
+    if !issued.is_empty() {
+        t.push_str(&format!(
+            "{} internal certificate{} written to {} ({} to {}).\n",
+            issued.len(),
+            if issued.len() == 1 { "" } else { "s" },
+            args.out.display(),
+            issued[0].certificate_number,
+            issued[issued.len() - 1].certificate_number
+        ));
+    }
+    Ok(t)
 }
 
 fn progress(n: usize) -> indicatif::ProgressBar {
@@ -310,8 +350,9 @@ fn progress(n: usize) -> indicatif::ProgressBar {
     }
 }
 
-/// Appends every decision, under one exclusive lock per trend file. Every check runs before
-/// the first byte is written, so an error leaves every file as it was.
+/// Appends every decision, under one exclusive lock per trend file: lock, plan (every check
+/// runs before the first byte is written, so an error leaves every file as it was), let
+/// `before_write` prepare the certificates, commit.
 fn record(
     args: &Args,
     specs: &SpecSet,
@@ -319,172 +360,28 @@ fn record(
     decisions: &[LotDecision],
     approver: &str,
     now: &str,
-    before_write: &mut dyn FnMut(&[Option<usize>]) -> anyhow::Result<()>,
+    before_write: &mut dyn FnMut(&[Plan]) -> anyhow::Result<()>,
 ) -> anyhow::Result<Vec<Recorded>> {
-    let mut by_product: BTreeMap<&str, Vec<usize>> = BTreeMap::new();
-    for (i, d) in decisions.iter().enumerate() {
-        by_product.entry(&d.product).or_default().push(i);
-    }
     let wait = Wait {
         timeout: Duration::from_secs(args.lock_timeout),
     };
-    let mut locks: BTreeMap<&str, Locked> = BTreeMap::new();
-    for (&product, idx) in &by_product {
-        let keys = specs.all_keys(product);
-        let mut needed: Vec<String> = Vec::new();
-        for &i in idx {
-            for p in &decisions[i].properties {
-                if !needed.contains(&p.property) {
-                    needed.push(p.property.clone());
-                }
-            }
-        }
-        let path = trend_file::path_for(&args.register, product);
-        locks.insert(product, trend_file::lock(&path, &keys, &needed, wait)?);
-    }
-    // A lot id names one lot plant-wide: refuse one already recorded under another product.
-    let mut elsewhere: std::collections::HashMap<String, String> = std::collections::HashMap::new();
-    let ours: std::collections::HashSet<&str> = decisions.iter().map(|d| d.lot.as_str()).collect();
-    if args.register.is_dir() {
-        for path in crate::record::query::trend_files(&args.register)? {
-            let product = path
-                .file_stem()
-                .map(|s| s.to_string_lossy().to_string())
-                .unwrap_or_default();
-            if by_product.contains_key(product.as_str()) {
-                continue;
-            }
-            trend_file::scan(&path, &["lot"], |_, c| {
-                if ours.contains(c[0]) {
-                    elsewhere.insert(c[0].to_string(), product.clone());
-                }
-            })?;
-        }
-    }
-    for (i, d) in decisions.iter().enumerate() {
-        if let Some(other) = elsewhere.get(&d.lot) {
-            return Err(Error::invalid(
-                format!(
-                    "{}:{}, lot '{}'",
-                    args.results.display(),
-                    lots[i].line,
-                    d.lot
-                ),
-                format!("this lot id is already recorded for product {other}"),
-                "Lot ids must be unique across products; check the lot id and the product code.",
-            )
-            .into());
-        }
-    }
-    // Plan: decide what each lot needs, refusing conflicts before writing anything.
-    let mut plan: Vec<Option<usize>> = Vec::with_capacity(decisions.len());
-    let mut out = vec![Recorded::NotWritten; decisions.len()];
-    for (i, d) in decisions.iter().enumerate() {
-        let locked = &locks[d.product.as_str()];
-        let t = &locked.trend;
-        match t.lot_rows(&d.lot).first() {
-            None => plan.push(None),
-            Some(row) => {
-                let seq: usize = t.cell(row, "seq").parse().unwrap_or(0);
-                let same = t.cell(row, "manufactured") == d.manufactured.to_string()
-                    && d.properties.iter().all(|p| {
-                        let spec_p = specs
-                            .for_date(&d.product, d.manufactured)
-                            .ok()
-                            .and_then(|s| s.property(&p.property).cloned());
-                        let entered_col = if p.property == "hydroxyl_value" {
-                            "hydroxyl_value_entered"
-                        } else {
-                            p.property.as_str()
-                        };
-                        spec_p.is_none_or(|sp| sp.derived)
-                            || same_number(
-                                t.cell(row, entered_col),
-                                p.entered.as_deref().unwrap_or(""),
-                            )
-                    });
-                if same {
-                    out[i] = Recorded::Unchanged(seq);
-                    plan.push(Some(usize::MAX));
-                } else if args.retest {
-                    plan.push(Some(seq));
-                } else {
-                    return Err(Error::invalid(
-                        format!("{}:{}, lot '{}'", args.results.display(), lots[i].line, d.lot),
-                        format!(
-                            "the lot is already recorded in {} (row {seq}) with different results",
-                            t.path.display()
-                        ),
-                        "If this is a retest, run again with --retest --reason \"...\"; the old row stays as history.",
-                    )
-                    .into());
-                }
-            }
-        }
-    }
-    before_write(&plan)?;
-    for (i, d) in decisions.iter().enumerate() {
-        if plan[i] == Some(usize::MAX) {
-            continue;
-        }
-        let locked = locks.get_mut(d.product.as_str()).expect("locked above");
-        let mut cells: Vec<(&str, String)> = vec![
-            ("recorded_at", now.to_string()),
-            ("lot", d.lot.clone()),
-            ("product", d.product.clone()),
-            ("manufactured", d.manufactured.to_string()),
-            ("spec_revision", d.spec_revision.clone()),
-            ("status", d.status.as_str().to_string()),
-            ("approver", approver.to_string()),
-            ("notes", d.notes.join("; ")),
-        ];
-        let mut verdict_names: Vec<String> = Vec::new();
-        for p in &d.properties {
-            verdict_names.push(format!("{}_verdict", p.property));
-        }
-        for (p, vname) in d.properties.iter().zip(&verdict_names) {
-            let value = p
-                .exact
-                .clone()
-                .or_else(|| p.value.map(|v| v.to_string()))
-                .unwrap_or_default();
-            cells.push((p.property.as_str(), value));
-            cells.push((
-                vname.as_str(),
-                p.verdict
-                    .map(|v| v.as_str().to_string())
-                    .unwrap_or_default(),
-            ));
-            if p.property == "hydroxyl_value" {
-                cells.push((
-                    "hydroxyl_value_entered",
-                    p.entered.clone().unwrap_or_default(),
-                ));
-            }
-            if p.property == "mn" {
-                cells.push((
-                    "mn_uncertainty",
-                    p.uncertainty.map(|u| u.to_string()).unwrap_or_default(),
-                ));
-            }
-        }
-        if let Some(old) = plan[i] {
-            cells.push(("supersedes", old.to_string()));
-            cells.push(("reason", args.reason.clone().unwrap_or_default()));
-        }
-        let seq = locked.append(&cells)?;
-        out[i] = match plan[i] {
-            Some(old) => Recorded::Retest {
-                seq,
-                supersedes: old,
-            },
-            None => Recorded::New(seq),
-        };
-    }
-    for locked in locks.values_mut() {
-        locked.sync()?;
-    }
-    Ok(out)
+    let mut locks = append::lock_products(&args.register, specs, decisions, wait)?;
+    let elsewhere = append::lots_elsewhere(&args.register, decisions, &|p| locks.contains_key(p))?;
+    let lines: Vec<u64> = lots.iter().map(|l| l.line).collect();
+    let batch = append::Batch {
+        results: &args.results,
+        lines: &lines,
+        decisions,
+        retest: args
+            .retest
+            .then(|| args.reason.as_deref().unwrap_or_default()),
+    };
+    let trends = locks.iter().map(|(&p, l)| (p, &l.trend)).collect();
+    let plans = append::plan(&batch, &trends, specs, &elsewhere)?;
+    before_write(&plans)?;
+    Ok(append::commit(
+        &mut locks, decisions, &plans, approver, now,
+    )?)
 }
 
 fn short(v: Option<crate::spec::decision::Verdict>) -> &'static str {
@@ -592,15 +489,4 @@ fn render(
         }
     ));
     out
-}
-
-/// True when two recorded values are the same number ("0.98" and "0.980" are), or both empty.
-fn same_number(a: &str, b: &str) -> bool {
-    match (
-        a.parse::<rust_decimal::Decimal>(),
-        b.parse::<rust_decimal::Decimal>(),
-    ) {
-        (Ok(x), Ok(y)) => x == y,
-        _ => a == b,
-    }
 }

@@ -209,6 +209,47 @@ fn mean_reading(
 
 /// Evaluates one lot; `file` names the results file in messages.
 pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotDecision> {
+    check_entered_keys(spec, lot, file)?;
+    let mut notes = Vec::new();
+    let means = measured_means(spec, lot, file, &mut notes)?;
+    let mut results = measured_results(spec, &means.values);
+    let derived_missing = derived_results(spec, lot, file, &means.values, &mut results)?;
+    for r in &results {
+        if let Some(v) = r.verdict {
+            if v != Verdict::Pass {
+                let label = &spec.property(&r.property).unwrap().label;
+                notes.push(format!(
+                    "{label} {} {}: {}",
+                    r.reported.as_deref().unwrap_or(""),
+                    r.unit,
+                    v.words()
+                ));
+            }
+        }
+    }
+    let worst = results.iter().filter_map(|r| r.verdict).max();
+    let status = if worst == Some(Verdict::Fail) {
+        Status::Rejected
+    } else if means.any_missing || derived_missing {
+        Status::Incomplete
+    } else if worst.is_some_and(|w| w != Verdict::Pass) || means.repeat_fail {
+        Status::OnHold
+    } else {
+        Status::Released
+    };
+    Ok(LotDecision {
+        lot: lot.lot.clone(),
+        product: spec.code.clone(),
+        spec_revision: spec.revision.clone(),
+        manufactured: lot.manufactured,
+        status,
+        properties: results,
+        notes,
+    })
+}
+
+/// Refuses an entered property the spec does not have, or one resinlot computes.
+fn check_entered_keys(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<()> {
     for key in lot.readings.keys() {
         match spec.property(key) {
             None => {
@@ -237,23 +278,43 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
             _ => {}
         }
     }
-    let guarded = spec.decision_rule == DecisionRule::Guarded;
-    let mut notes = Vec::new();
-    let mut results = Vec::new();
-    let mut means: Vec<(String, Decimal)> = Vec::new();
-    let mut any_missing = false;
-    let mut repeat_fail = false;
+    Ok(())
+}
+
+/// The means of the measured properties of one lot.
+struct Means {
+    /// Mean of the replicates, by property key, in spec order.
+    values: Vec<(String, Decimal)>,
+    /// A measured property has no reading.
+    any_missing: bool,
+    /// A replicate range exceeds the property's repeatability limit.
+    repeat_fail: bool,
+}
+
+/// Averages the replicates of every measured property, noting missing properties, replicate
+/// counts and ranges beyond the repeatability limit.
+fn measured_means(
+    spec: &ProductSpec,
+    lot: &LotResults,
+    file: &str,
+    notes: &mut Vec<String>,
+) -> Result<Means> {
+    let mut means = Means {
+        values: Vec::new(),
+        any_missing: false,
+        repeat_fail: false,
+    };
     for p in spec.measured() {
         let Some(readings) = lot.readings.get(&p.key) else {
-            any_missing = true;
+            means.any_missing = true;
             notes.push(format!("{} was not measured", p.label));
             continue;
         };
-        let m = mean_reading(lot, p, readings, &mut notes, file)?;
+        let m = mean_reading(lot, p, readings, notes, file)?;
         if m.n > 1 {
             match p.repeatability {
                 Some(r) if m.range > r => {
-                    repeat_fail = true;
+                    means.repeat_fail = true;
                     notes.push(format!(
                         "{}: range of {} replicates {} exceeds the repeatability limit {}",
                         p.label, m.n, m.range, r
@@ -265,12 +326,19 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
                 )),
             }
         }
-        means.push((p.key.clone(), m.value));
+        means.values.push((p.key.clone(), m.value));
     }
+    Ok(means)
+}
+
+/// The result of every measured property, in spec order, from the replicate means.
+fn measured_results(spec: &ProductSpec, means: &[(String, Decimal)]) -> Vec<PropertyResult> {
+    let guarded = spec.decision_rule == DecisionRule::Guarded;
     let av_mean = means
         .iter()
         .find(|(k, _)| k == "acid_value")
         .map(|(_, v)| *v);
+    let mut results = Vec::new();
     for p in spec.measured() {
         let Some(entered) = means.iter().find(|(k, _)| *k == p.key).map(|(_, v)| *v) else {
             results.push(missing(p));
@@ -297,6 +365,19 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
         r.entered = Some(entered.to_string());
         results.push(r);
     }
+    results
+}
+
+/// Appends the result of every derived property (Mn, Xn, ...) to `results`; true when one
+/// could not be computed for want of a measured value.
+fn derived_results(
+    spec: &ProductSpec,
+    lot: &LotResults,
+    file: &str,
+    means: &[(String, Decimal)],
+    results: &mut Vec<PropertyResult>,
+) -> Result<bool> {
+    let guarded = spec.decision_rule == DecisionRule::Guarded;
     let mean_of = |k: &str| {
         means
             .iter()
@@ -309,6 +390,7 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
     let hv_corr = spec
         .property("hydroxyl_value")
         .is_some_and(|p| p.acidity_correction);
+    let mut any_missing = false;
     for p in spec.properties.iter().filter(|p| p.derived) {
         let computed = derived_value(
             spec,
@@ -344,38 +426,7 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
             }
         }
     }
-    for r in &results {
-        if let Some(v) = r.verdict {
-            if v != Verdict::Pass {
-                let label = &spec.property(&r.property).unwrap().label;
-                notes.push(format!(
-                    "{label} {} {}: {}",
-                    r.reported.as_deref().unwrap_or(""),
-                    r.unit,
-                    v.words()
-                ));
-            }
-        }
-    }
-    let worst = results.iter().filter_map(|r| r.verdict).max();
-    let status = if worst == Some(Verdict::Fail) {
-        Status::Rejected
-    } else if any_missing {
-        Status::Incomplete
-    } else if worst.is_some_and(|w| w != Verdict::Pass) || repeat_fail {
-        Status::OnHold
-    } else {
-        Status::Released
-    };
-    Ok(LotDecision {
-        lot: lot.lot.clone(),
-        product: spec.code.clone(),
-        spec_revision: spec.revision.clone(),
-        manufactured: lot.manufactured,
-        status,
-        properties: results,
-        notes,
-    })
+    Ok(any_missing)
 }
 
 /// Expanded uncertainty of a measured property's decided value: the spec's U, combined with

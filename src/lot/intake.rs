@@ -452,6 +452,99 @@ impl Ctx<'_> {
         Ok(lots)
     }
 
+    /// The property key of a long-format row, lower-cased; refuses anything but a key.
+    fn property_key(&self, v: &str, line: u64) -> Result<String> {
+        let key = v.to_ascii_lowercase();
+        let ok = key.chars().next().is_some_and(|c| c.is_ascii_lowercase())
+            && key
+                .chars()
+                .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
+        if !ok {
+            return Err(Error::invalid(
+                format!("{}:{line}, column 'property'", self.name),
+                format!("'{key}' is not a property key"),
+                "Use the spec's property keys, e.g. acid_value.",
+            ));
+        }
+        Ok(key)
+    }
+
+    /// The value of a long-format row; refuses an empty one.
+    fn long_value(&self, raw: &str, line: u64) -> Result<Decimal> {
+        if raw.is_empty() {
+            return Err(Error::invalid(
+                format!("{}:{line}, column 'value'", self.name),
+                "the value is empty",
+                "Enter the result, or leave the row out if the test was not done.",
+            ));
+        }
+        self.number(raw, line, "value")
+    }
+
+    /// True when `row` (lot, key, replicate, value, line) repeats a numbered replicate already
+    /// seen with the same value (the row is then skipped); refuses one with another value.
+    /// Otherwise remembers it and returns false.
+    fn repeated_replicate(
+        &self,
+        seen: &mut Vec<(String, String, String, Decimal, u64)>,
+        row: (String, String, String, Decimal, u64),
+    ) -> Result<bool> {
+        let (lot, key, r, value, line) = &row;
+        if let Some(prev) = seen
+            .iter()
+            .find(|(l, k, rr, _, _)| l == lot && k == key && rr == r && !r.is_empty())
+        {
+            if prev.3 != *value {
+                return Err(Error::invalid(
+                    format!("{}:{line}, lot '{lot}'", self.name),
+                    format!(
+                        "replicate {r} of {key} already appears on line {} with value {}",
+                        prev.4, prev.3
+                    ),
+                    "Remove the conflicting row or number the replicates distinctly.",
+                ));
+            }
+            return Ok(true);
+        }
+        seen.push(row);
+        Ok(false)
+    }
+
+    /// Index of `lot` in `lots`, adding it (with an unknown date in `dates`) on its first row;
+    /// refuses a lot given under two products.
+    fn lot_slot(
+        &self,
+        lots: &mut Vec<LotResults>,
+        dates: &mut Vec<Option<NaiveDate>>,
+        lot: &str,
+        product: String,
+        line: u64,
+    ) -> Result<usize> {
+        if let Some(p) = lots.iter().position(|l| l.lot == lot) {
+            if lots[p].product != product {
+                return Err(Error::invalid(
+                    format!("{}:{line}, lot '{lot}'", self.name),
+                    format!(
+                        "product '{product}' differs from '{}' on line {}",
+                        lots[p].product, lots[p].line
+                    ),
+                    "A lot belongs to one product; correct the product code.",
+                ));
+            }
+            return Ok(p);
+        }
+        lots.push(LotResults {
+            lot: lot.to_string(),
+            product,
+            manufactured: NaiveDate::MIN,
+            readings: IndexMap::new(),
+            analysts: vec![],
+            line,
+        });
+        dates.push(None);
+        Ok(lots.len() - 1)
+    }
+
     fn long(&self, reader: &mut csv::Reader<&[u8]>) -> Result<Vec<LotResults>> {
         let idx = self.require(&["lot", "product", "property", "value"], "long")?;
         let unit = self.col("unit");
@@ -467,27 +560,8 @@ impl Ctx<'_> {
             let line = rec.position().map_or(0, |p| p.line());
             let lot = self.lot_id(self.cell(&rec, idx[0], line)?, line)?;
             let product = self.product(self.cell(&rec, idx[1], line)?, line)?;
-            let key = self.cell(&rec, idx[2], line)?.to_ascii_lowercase();
-            let ok = key.chars().next().is_some_and(|c| c.is_ascii_lowercase())
-                && key
-                    .chars()
-                    .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
-            if !ok {
-                return Err(Error::invalid(
-                    format!("{}:{line}, column 'property'", self.name),
-                    format!("'{key}' is not a property key"),
-                    "Use the spec's property keys, e.g. acid_value.",
-                ));
-            }
-            let raw = self.cell(&rec, idx[3], line)?;
-            if raw.is_empty() {
-                return Err(Error::invalid(
-                    format!("{}:{line}, column 'value'", self.name),
-                    "the value is empty",
-                    "Enter the result, or leave the row out if the test was not done.",
-                ));
-            }
-            let value = self.number(raw, line, "value")?;
+            let key = self.property_key(self.cell(&rec, idx[2], line)?, line)?;
+            let value = self.long_value(self.cell(&rec, idx[3], line)?, line)?;
             let unit_v = match unit {
                 Some(i) => Some(self.cell(&rec, i, line)?.to_string()).filter(|u| !u.is_empty()),
                 None => None,
@@ -509,51 +583,12 @@ impl Ctx<'_> {
             };
             if let Some(i) = replicate {
                 let r = self.cell(&rec, i, line)?.to_string();
-                if let Some(prev) = seen_replicates
-                    .iter()
-                    .find(|(l, k, rr, _, _)| *l == lot && *k == key && *rr == r && !r.is_empty())
-                {
-                    if prev.3 != value {
-                        return Err(Error::invalid(
-                            format!("{}:{line}, lot '{lot}'", self.name),
-                            format!(
-                                "replicate {r} of {key} already appears on line {} with value {}",
-                                prev.4, prev.3
-                            ),
-                            "Remove the conflicting row or number the replicates distinctly.",
-                        ));
-                    }
+                let row = (lot.clone(), key.clone(), r, value, line);
+                if self.repeated_replicate(&mut seen_replicates, row)? {
                     continue;
                 }
-                seen_replicates.push((lot.clone(), key.clone(), r, value, line));
             }
-            let pos = match lots.iter().position(|l| l.lot == lot) {
-                Some(p) => {
-                    if lots[p].product != product {
-                        return Err(Error::invalid(
-                            format!("{}:{line}, lot '{lot}'", self.name),
-                            format!(
-                                "product '{product}' differs from '{}' on line {}",
-                                lots[p].product, lots[p].line
-                            ),
-                            "A lot belongs to one product; correct the product code.",
-                        ));
-                    }
-                    p
-                }
-                None => {
-                    lots.push(LotResults {
-                        lot: lot.clone(),
-                        product,
-                        manufactured: NaiveDate::MIN,
-                        readings: IndexMap::new(),
-                        analysts: vec![],
-                        line,
-                    });
-                    dates.push(None);
-                    lots.len() - 1
-                }
-            };
+            let pos = self.lot_slot(&mut lots, &mut dates, &lot, product, line)?;
             if let Some(d) = date {
                 match dates[pos] {
                     Some(old) if old != d => {

@@ -2,8 +2,10 @@
 //! quarantine, read-only queries, and workspace folders. The only layer that appends to the
 //! record. May use `lot`, `spec`, `chem`, `support` and `error`.
 
+pub mod append;
 pub mod certlog;
 pub mod integrity;
+pub mod lines;
 pub mod query;
 pub mod trend_file;
 pub mod workspace;

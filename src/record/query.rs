@@ -5,6 +5,7 @@ use std::path::{Path, PathBuf};
 use chrono::NaiveDate;
 
 use crate::error::{Error, Result};
+use crate::record::lines;
 use crate::record::trend_file::{self, Row, Trend};
 
 /// Every product trend file in a register folder, sorted.
@@ -25,39 +26,20 @@ pub fn trend_files(register: &Path) -> Result<Vec<PathBuf>> {
 /// the file is read in 8 MiB chunks and only lines containing `,lot,` are split, so memory
 /// stays small and a million-lot file is searched at memory speed.
 pub fn lot_rows_in(path: &Path, lot: &str) -> Result<Option<Trend>> {
-    lot_rows_chunked(path, lot, 8 << 20)
+    lot_rows_chunked(path, lot, lines::CHUNK)
 }
 
 fn lot_rows_chunked(path: &Path, lot: &str, chunk: usize) -> Result<Option<Trend>> {
-    use std::io::Read;
-    let mut file = std::fs::File::open(path).map_err(|e| Error::io(path, "reading", e))?;
     let needle = format!(",{lot},");
     let finder = memchr::memmem::Finder::new(needle.as_bytes());
-    let mut buf: Vec<u8> = Vec::with_capacity(chunk + 4096);
     let mut columns: Option<Vec<String>> = None;
     let mut rows = Vec::new();
-    let mut line_base = 1usize; // line number of buf's first line
-    let mut eof = false;
-    while !eof {
-        let start = buf.len();
-        buf.resize(start + chunk, 0);
-        let n = file
-            .read(&mut buf[start..])
-            .map_err(|e| Error::io(path, "reading", e))?;
-        buf.truncate(start + n);
-        eof = n == 0;
-        // Work on complete lines only; keep the partial last line for the next round.
-        let end = if eof {
-            buf.len()
-        } else {
-            memchr::memrchr(b'\n', &buf).map_or(0, |i| i + 1)
-        };
-        if end == 0 && !eof {
-            continue;
-        }
+    let mut line_base = 1usize; // line number of the block's first line
+    lines::for_each_block(path, chunk, |buf| {
+        let end = buf.len();
         let mut body_from = 0;
         if columns.is_none() {
-            let header_end = memchr::memchr(b'\n', &buf[..end]).unwrap_or(end);
+            let header_end = memchr::memchr(b'\n', buf).unwrap_or(end);
             let cols = trend_file::split_line(&String::from_utf8_lossy(&buf[..header_end]));
             trend_file::check_trend_header(path, &cols)?;
             columns = Some(cols);
@@ -67,14 +49,11 @@ fn lot_rows_chunked(path: &Path, lot: &str, chunk: usize) -> Result<Option<Trend
         let cols = columns.as_ref().expect("set above");
         let mut counted_to = body_from;
         let mut line_at = line_base;
-        for pos in finder
-            .find_iter(&buf[body_from..end])
-            .map(|p| p + body_from)
-        {
+        for pos in finder.find_iter(&buf[body_from..]).map(|p| p + body_from) {
             let ls = memchr::memrchr(b'\n', &buf[..pos])
                 .map_or(0, |i| i + 1)
                 .max(body_from);
-            let le = memchr::memchr(b'\n', &buf[pos..end]).map_or(end, |i| pos + i);
+            let le = memchr::memchr(b'\n', &buf[pos..]).map_or(end, |i| pos + i);
             line_at += memchr::memchr_iter(b'\n', &buf[counted_to..ls]).count();
             counted_to = ls;
             let cells = trend_file::split_line(&String::from_utf8_lossy(&buf[ls..le]));
@@ -88,9 +67,9 @@ fn lot_rows_chunked(path: &Path, lot: &str, chunk: usize) -> Result<Option<Trend
                 });
             }
         }
-        line_base += memchr::memchr_iter(b'\n', &buf[body_from..end]).count();
-        buf.drain(..end);
-    }
+        line_base += memchr::memchr_iter(b'\n', &buf[body_from..]).count();
+        Ok(())
+    })?;
     if rows.is_empty() {
         return Ok(None);
     }
@@ -330,7 +309,8 @@ fn split_spans(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
 }
 
 /// Streams a trend file and keeps the latest row of every lot, with the values of `keys` (and
-/// the expanded uncertainty of Mn when asked). Returns the property keys the file has, and the lots in order of their latest row.
+/// the expanded uncertainty of Mn when asked). Returns the property keys the file has, and the
+/// lots in order of their latest row.
 ///
 /// Reads in 8 MiB chunks and splits only the columns it needs, so a million-lot file takes a
 /// fraction of a second and memory grows only with the lots kept.
@@ -340,106 +320,125 @@ pub fn current_lots(
     with_mn_uncertainty: bool,
 ) -> Result<(Vec<String>, Vec<LotRow>)> {
     use std::hash::BuildHasher;
-    use std::io::Read;
     let header = read_header(path)?;
     let file_keys = trend_file::property_keys(&header);
-    let col = |name: &str| header.iter().position(|c| c == name);
-    let fixed = [
-        "lot",
-        "manufactured",
-        "status",
-        "spec_revision",
-        "mn_uncertainty",
-    ];
-    let mut want: Vec<usize> = Vec::new();
-    for f in fixed {
-        want.push(col(f).expect("trend header checked"));
-    }
-    for k in keys {
-        want.push(col(k).ok_or_else(|| {
-            Error::invalid(
-                path.display().to_string(),
-                format!("no column '{k}'"),
-                "Check the property key.",
-            )
-        })?);
-    }
-    let upto = *want.iter().max().expect("non-empty");
+    let mut reader = RowReader::new(path, &header, keys, with_mn_uncertainty)?;
     let hasher = std::collections::hash_map::RandomState::new();
     // About 250 bytes a row: reserve once instead of growing through a million pushes.
     let estimate = std::fs::metadata(path).map_or(0, |m| m.len() as usize / 250);
     let mut keys_seen: Vec<(u64, u32)> = Vec::with_capacity(estimate);
     let mut rows: Vec<LotRow> = Vec::with_capacity(estimate);
-    let (mut statuses, mut revisions) = (Vec::new(), Vec::new());
-    let num = |s: &[u8]| -> Option<f64> {
-        if s.is_empty() {
-            None
-        } else {
-            std::str::from_utf8(s)
-                .ok()
-                .and_then(|t| t.parse::<f64>().ok())
+    lines::for_each_line(path, lines::CHUNK, |line_no, line| {
+        if line_no == 1 || line.is_empty() {
+            return Ok(());
         }
-    };
-    let mut file = std::fs::File::open(path).map_err(|e| Error::io(path, "reading", e))?;
-    let mut buf: Vec<u8> = Vec::with_capacity((8 << 20) + 4096);
-    let mut spans = Vec::with_capacity(upto + 2);
-    let mut line_no = 0usize;
-    let mut eof = false;
-    while !eof {
-        let start = buf.len();
-        buf.resize(start + (8 << 20), 0);
-        let n = file
-            .read(&mut buf[start..])
-            .map_err(|e| Error::io(path, "reading", e))?;
-        buf.truncate(start + n);
-        eof = n == 0;
-        let end = if eof {
-            buf.len()
-        } else {
-            memchr::memrchr(b'\n', &buf).map_or(0, |i| i + 1)
-        };
-        let mut pos = 0;
-        while pos < end {
-            let le = memchr::memchr(b'\n', &buf[pos..end]).map_or(end, |k| pos + k);
-            let line = &buf[pos..le];
-            pos = le + 1;
-            line_no += 1;
-            if line_no == 1 || line.is_empty() {
-                continue;
-            }
-            split_spans(line, upto, &mut spans);
-            if spans.len() <= upto {
-                return Err(Error::invalid(
-                    format!("{}:{line_no}", path.display()),
-                    "the row has fewer fields than the header",
-                    "Check the trend file with `resinlot verify`.",
-                ));
-            }
-            let field = |i: usize| {
-                let (a, b) = spans[want[i]];
-                &line[a..b.min(line.len())]
-            };
-            let lot = std::str::from_utf8(field(0)).unwrap_or("?");
-            let row = LotRow {
-                line: line_no,
-                lot: Box::from(lot),
-                manufactured: Day::from_bytes(field(1)),
-                status: intern(&mut statuses, field(2)),
-                revision: intern(&mut revisions, field(3)),
-                mn_uncertainty: if with_mn_uncertainty {
-                    num(field(4))
-                } else {
-                    None
-                },
-                values: (5..want.len()).map(|i| num(field(i))).collect(),
-            };
-            keys_seen.push((hasher.hash_one(lot), rows.len() as u32));
-            rows.push(row);
+        let row = reader.read(line_no, line)?;
+        keys_seen.push((hasher.hash_one(&*row.lot), rows.len() as u32));
+        rows.push(row);
+        Ok(())
+    })?;
+    keep_latest(&mut rows, keys_seen);
+    Ok((file_keys, rows))
+}
+
+/// Turns trend-file lines into [`LotRow`]s, splitting only up to the last column needed.
+struct RowReader<'a> {
+    path: &'a Path,
+    /// Column of lot, manufactured, status, spec_revision, mn_uncertainty, then the keys.
+    want: Vec<usize>,
+    /// The last column needed.
+    upto: usize,
+    with_mn_uncertainty: bool,
+    spans: Vec<(usize, usize)>,
+    statuses: Vec<&'static str>,
+    revisions: Vec<&'static str>,
+}
+
+impl<'a> RowReader<'a> {
+    /// A reader for a file with these (checked) `header` columns; refuses a key it lacks.
+    fn new(
+        path: &'a Path,
+        header: &[String],
+        keys: &[String],
+        with_mn_uncertainty: bool,
+    ) -> Result<RowReader<'a>> {
+        let col = |name: &str| header.iter().position(|c| c == name);
+        let fixed = [
+            "lot",
+            "manufactured",
+            "status",
+            "spec_revision",
+            "mn_uncertainty",
+        ];
+        let mut want: Vec<usize> = Vec::new();
+        for f in fixed {
+            want.push(col(f).expect("trend header checked"));
         }
-        buf.drain(..end);
+        for k in keys {
+            want.push(col(k).ok_or_else(|| {
+                Error::invalid(
+                    path.display().to_string(),
+                    format!("no column '{k}'"),
+                    "Check the property key.",
+                )
+            })?);
+        }
+        let upto = *want.iter().max().expect("non-empty");
+        Ok(RowReader {
+            path,
+            want,
+            upto,
+            with_mn_uncertainty,
+            spans: Vec::with_capacity(upto + 2),
+            statuses: Vec::new(),
+            revisions: Vec::new(),
+        })
     }
-    // Keep each lot's last row: sort (hash, row) pairs, and within a run of equal hashes keep,
-    // for every distinct lot id, the highest row (a retest supersedes what came before).
+
+    /// The row on line `line_no`; refuses a line with fewer fields than needed.
+    fn read(&mut self, line_no: usize, line: &[u8]) -> Result<LotRow> {
+        split_spans(line, self.upto, &mut self.spans);
+        if self.spans.len() <= self.upto {
+            return Err(Error::invalid(
+                format!("{}:{line_no}", self.path.display()),
+                "the row has fewer fields than the header",
+                "Check the trend file with `resinlot verify`.",
+            ));
+        }
+        let (spans, want) = (&self.spans, &self.want);
+        let field = |i: usize| {
+            let (a, b) = spans[want[i]];
+            &line[a..b.min(line.len())]
+        };
+        let num = |s: &[u8]| -> Option<f64> {
+            if s.is_empty() {
+                None
+            } else {
+                std::str::from_utf8(s)
+                    .ok()
+                    .and_then(|t| t.parse::<f64>().ok())
+            }
+        };
+        Ok(LotRow {
+            line: line_no,
+            lot: Box::from(std::str::from_utf8(field(0)).unwrap_or("?")),
+            manufactured: Day::from_bytes(field(1)),
+            status: intern(&mut self.statuses, field(2)),
+            revision: intern(&mut self.revisions, field(3)),
+            mn_uncertainty: if self.with_mn_uncertainty {
+                num(field(4))
+            } else {
+                None
+            },
+            values: (5..want.len()).map(|i| num(field(i))).collect(),
+        })
+    }
+}
+
+/// Keeps each lot's last row: sorts the (lot hash, row) pairs, and within a run of equal
+/// hashes keeps, for every distinct lot id, the highest row (a retest supersedes what came
+/// before). Rows stay in file order.
+fn keep_latest(rows: &mut Vec<LotRow>, mut keys_seen: Vec<(u64, u32)>) {
     keys_seen.sort_unstable();
     let mut keep = vec![true; rows.len()];
     let mut i = 0;
@@ -464,7 +463,6 @@ pub fn current_lots(
         k += 1;
         keep[k - 1]
     });
-    Ok((file_keys, rows))
 }
 
 /// The checked header columns of a trend file (its first line only).

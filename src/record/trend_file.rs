@@ -273,54 +273,51 @@ pub fn parse_chained(
             continue;
         }
         let cells = split_line(line);
-        let lot = cells.get(2).cloned();
-        if cells.len() != trend.columns.len() {
-            let d = damage(
-                format!(
-                    "{} fields where the header has {}",
-                    cells.len(),
-                    trend.columns.len()
-                ),
-                lot,
-            );
+        if let Some(problem) = row_problem(&trend, &cells) {
+            let d = damage(problem, cells.get(2).cloned());
             return (trend, Some(d));
         }
-        if cells[0] != (trend.rows.len() + 1).to_string() {
-            let d = damage(
-                format!(
-                    "sequence number '{}' where {} was expected (row deleted or moved)",
-                    cells[0],
-                    trend.rows.len() + 1
-                ),
-                lot,
-            );
-            return (trend, Some(d));
-        }
-        if !verify {
-            trend.head = cells[cells.len() - 1].clone();
-            trend.rows.push(Row {
-                line: line_no,
-                cells,
-            });
-            continue;
-        }
-        let body = &line[..line.rfind(',').unwrap_or(0)];
-        let expect = chain_hash(&prev, body);
-        if cells[cells.len() - 1] != expect {
-            let d = damage(
+        if verify {
+            let body = &line[..line.rfind(',').unwrap_or(0)];
+            let expect = chain_hash(&prev, body);
+            if cells[cells.len() - 1] != expect {
+                let d = damage(
                     "the chain value does not match the row's content: the row, or one before it, was changed".into(),
-                    lot,
+                    cells.get(2).cloned(),
                 );
-            return (trend, Some(d));
+                return (trend, Some(d));
+            }
+            prev = expect;
+            trend.head = prev.clone();
+        } else {
+            trend.head = cells[cells.len() - 1].clone();
         }
-        prev = expect;
-        trend.head = prev.clone();
         trend.rows.push(Row {
             line: line_no,
             cells,
         });
     }
     (trend, None)
+}
+
+/// What is wrong with the structure of the next row of `trend` (its field count or its
+/// sequence number), if anything.
+fn row_problem(trend: &Trend, cells: &[String]) -> Option<String> {
+    if cells.len() != trend.columns.len() {
+        return Some(format!(
+            "{} fields where the header has {}",
+            cells.len(),
+            trend.columns.len()
+        ));
+    }
+    if cells[0] != (trend.rows.len() + 1).to_string() {
+        return Some(format!(
+            "sequence number '{}' where {} was expected (row deleted or moved)",
+            cells[0],
+            trend.rows.len() + 1
+        ));
+    }
+    None
 }
 
 /// Reads and checks a trend file; damage is an error naming file, line and lot.

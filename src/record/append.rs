@@ -1,0 +1,521 @@
+//! Appending evaluated lots to the trend files, as plan-then-commit: lock every product's
+//! trend file, decide per lot what to write ([`plan`], pure), then append under the locks
+//! ([`commit`]). Every check runs before the first byte is written, so a refusal leaves every
+//! file as it was.
+
+use std::collections::{BTreeMap, HashMap, HashSet};
+use std::path::Path;
+
+use serde::Serialize;
+
+use crate::error::{Error, Result};
+use crate::lot::evaluate::LotDecision;
+use crate::record::trend_file::{self, Locked, Trend, Wait};
+use crate::spec::SpecSet;
+
+/// What happened to one lot in the trend file.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Recorded {
+    /// Appended as row `seq`.
+    New(usize),
+    /// Appended as row `seq`, superseding row `old`.
+    Retest {
+        /// New row.
+        seq: usize,
+        /// Superseded row.
+        supersedes: usize,
+    },
+    /// Already recorded with identical results as row `seq`; nothing written.
+    Unchanged(usize),
+    /// Not written (dry run).
+    NotWritten,
+}
+
+/// What the trend file needs for one lot, decided before anything is written.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Plan {
+    /// The lot is not in its trend file yet: append its first row.
+    New,
+    /// The lot is recorded with other results and a retest was asked for: append a row that
+    /// supersedes row `supersedes` (which stays as history), giving `reason`.
+    Retest {
+        /// Sequence number of the lot's current row.
+        supersedes: usize,
+        /// Why the lot is retested, recorded on the new row.
+        reason: String,
+    },
+    /// The lot is recorded with identical results as row `seq`: write nothing.
+    Unchanged {
+        /// Sequence number of the lot's current row.
+        seq: usize,
+    },
+}
+
+impl Plan {
+    /// True when the lot gets a new row (and so a new internal certificate).
+    pub fn writes(&self) -> bool {
+        !matches!(self, Plan::Unchanged { .. })
+    }
+}
+
+/// One release run, as the planning step needs it.
+#[derive(Debug, Clone, Copy)]
+pub struct Batch<'a> {
+    /// The results file, named in refusals.
+    pub results: &'a Path,
+    /// Line of each lot in the results file (parallel to `decisions`).
+    pub lines: &'a [u64],
+    /// The evaluated lots.
+    pub decisions: &'a [LotDecision],
+    /// `Some(reason)` when lots already recorded with other results may be retested.
+    pub retest: Option<&'a str>,
+}
+
+impl Batch<'_> {
+    /// "file:line, lot 'id'" for lot `i`, the place named in a refusal.
+    fn place(&self, i: usize) -> String {
+        format!(
+            "{}:{}, lot '{}'",
+            self.results.display(),
+            self.lines[i],
+            self.decisions[i].lot
+        )
+    }
+}
+
+/// Locks the trend file of every product in `decisions` (in product order), creating missing
+/// files with the columns of every revision of the product's spec; an existing file must hold
+/// a column for every property evaluated.
+pub fn lock_products<'a>(
+    register: &Path,
+    specs: &SpecSet,
+    decisions: &'a [LotDecision],
+    wait: Wait,
+) -> Result<BTreeMap<&'a str, Locked>> {
+    let mut needed_by: BTreeMap<&str, Vec<String>> = BTreeMap::new();
+    for d in decisions {
+        let needed = needed_by.entry(&d.product).or_default();
+        for p in &d.properties {
+            if !needed.contains(&p.property) {
+                needed.push(p.property.clone());
+            }
+        }
+    }
+    let mut locks = BTreeMap::new();
+    for (product, needed) in needed_by {
+        let keys = specs.all_keys(product);
+        let path = trend_file::path_for(register, product);
+        locks.insert(product, trend_file::lock(&path, &keys, &needed, wait)?);
+    }
+    Ok(locks)
+}
+
+/// The lots of `decisions` already recorded in the trend file of a product not in `skip`:
+/// lot id -> that product. Reads nothing when the register folder does not exist yet.
+pub fn lots_elsewhere(
+    register: &Path,
+    decisions: &[LotDecision],
+    skip: &dyn Fn(&str) -> bool,
+) -> Result<HashMap<String, String>> {
+    let mut elsewhere: HashMap<String, String> = HashMap::new();
+    if !register.is_dir() {
+        return Ok(elsewhere);
+    }
+    let ours: HashSet<&str> = decisions.iter().map(|d| d.lot.as_str()).collect();
+    for path in crate::record::query::trend_files(register)? {
+        let product = path
+            .file_stem()
+            .map(|s| s.to_string_lossy().to_string())
+            .unwrap_or_default();
+        if skip(&product) {
+            continue;
+        }
+        trend_file::scan(&path, &["lot"], |_, c| {
+            if ours.contains(c[0]) {
+                elsewhere.insert(c[0].to_string(), product.clone());
+            }
+        })?;
+    }
+    Ok(elsewhere)
+}
+
+/// Decides, for every lot of `batch`, what its trend file needs. Pure: reads only the trends
+/// as read under their locks (`trends`, by product), the specs and `elsewhere` (lot id ->
+/// product it is already recorded under, from [`lots_elsewhere`]).
+///
+/// Refuses, before anything is written, a lot id already recorded under another product (a lot
+/// id names one lot plant-wide), and a lot already recorded with different results unless
+/// `batch.retest` allows a retest. Results are the same when the manufacture date and every
+/// entered value of a measured property are the same number ("0.98" = "0.980"); derived
+/// properties (Mn, Xn, ...) follow from those and are not compared.
+pub fn plan(
+    batch: &Batch<'_>,
+    trends: &BTreeMap<&str, &Trend>,
+    specs: &SpecSet,
+    elsewhere: &HashMap<String, String>,
+) -> Result<Vec<Plan>> {
+    for (i, d) in batch.decisions.iter().enumerate() {
+        if let Some(other) = elsewhere.get(&d.lot) {
+            return Err(Error::invalid(
+                batch.place(i),
+                format!("this lot id is already recorded for product {other}"),
+                "Lot ids must be unique across products; check the lot id and the product code.",
+            ));
+        }
+    }
+    let mut plans = Vec::with_capacity(batch.decisions.len());
+    for (i, d) in batch.decisions.iter().enumerate() {
+        let t = trends.get(d.product.as_str()).ok_or_else(|| {
+            Error::invalid(
+                batch.place(i),
+                format!("no trend file is open for product {}", d.product),
+                "Report this as a bug: every product's trend file is locked before planning.",
+            )
+        })?;
+        plans.push(plan_lot(batch, i, t, specs)?);
+    }
+    Ok(plans)
+}
+
+/// The plan for lot `i` of `batch` against its product's trend `t` (see [`plan`]).
+fn plan_lot(batch: &Batch<'_>, i: usize, t: &Trend, specs: &SpecSet) -> Result<Plan> {
+    let d = &batch.decisions[i];
+    let Some(row) = t.lot_rows(&d.lot).first().copied() else {
+        return Ok(Plan::New);
+    };
+    let seq: usize = t.cell(row, "seq").parse().unwrap_or(0);
+    if same_results(t, row, d, specs) {
+        return Ok(Plan::Unchanged { seq });
+    }
+    match batch.retest {
+        Some(reason) => Ok(Plan::Retest {
+            supersedes: seq,
+            reason: reason.to_string(),
+        }),
+        None => Err(Error::invalid(
+            batch.place(i),
+            format!(
+                "the lot is already recorded in {} (row {seq}) with different results",
+                t.path.display()
+            ),
+            "If this is a retest, run again with --retest --reason \"...\"; the old row stays as history.",
+        )),
+    }
+}
+
+/// True when `row` records the same manufacture date and entered values as `d` (see [`plan`]).
+fn same_results(t: &Trend, row: &trend_file::Row, d: &LotDecision, specs: &SpecSet) -> bool {
+    t.cell(row, "manufactured") == d.manufactured.to_string()
+        && d.properties.iter().all(|p| {
+            let spec_p = specs
+                .for_date(&d.product, d.manufactured)
+                .ok()
+                .and_then(|s| s.property(&p.property).cloned());
+            let entered_col = if p.property == "hydroxyl_value" {
+                "hydroxyl_value_entered"
+            } else {
+                p.property.as_str()
+            };
+            spec_p.is_none_or(|sp| sp.derived)
+                || same_number(t.cell(row, entered_col), p.entered.as_deref().unwrap_or(""))
+        })
+}
+
+/// The cells of the trend-file row recording `d`, by column name (`seq` and `chain` are the
+/// writer's).
+pub fn row_cells(d: &LotDecision, plan: &Plan, approver: &str, now: &str) -> Vec<(String, String)> {
+    let mut cells: Vec<(&str, String)> = vec![
+        ("recorded_at", now.to_string()),
+        ("lot", d.lot.clone()),
+        ("product", d.product.clone()),
+        ("manufactured", d.manufactured.to_string()),
+        ("spec_revision", d.spec_revision.clone()),
+        ("status", d.status.as_str().to_string()),
+        ("approver", approver.to_string()),
+        ("notes", d.notes.join("; ")),
+    ];
+    let verdicts: Vec<String> = d
+        .properties
+        .iter()
+        .map(|p| format!("{}_verdict", p.property))
+        .collect();
+    for (p, verdict) in d.properties.iter().zip(&verdicts) {
+        let value = p
+            .exact
+            .clone()
+            .or_else(|| p.value.map(|v| v.to_string()))
+            .unwrap_or_default();
+        cells.push((p.property.as_str(), value));
+        cells.push((
+            verdict.as_str(),
+            p.verdict
+                .map(|v| v.as_str().to_string())
+                .unwrap_or_default(),
+        ));
+        if p.property == "hydroxyl_value" {
+            cells.push((
+                "hydroxyl_value_entered",
+                p.entered.clone().unwrap_or_default(),
+            ));
+        }
+        if p.property == "mn" {
+            cells.push((
+                "mn_uncertainty",
+                p.uncertainty.map(|u| u.to_string()).unwrap_or_default(),
+            ));
+        }
+    }
+    if let Plan::Retest { supersedes, reason } = plan {
+        cells.push(("supersedes", supersedes.to_string()));
+        cells.push(("reason", reason.clone()));
+    }
+    cells.into_iter().map(|(k, v)| (k.to_string(), v)).collect()
+}
+
+/// Appends the row of every lot whose plan writes, under the locks taken by
+/// [`lock_products`], then syncs every file. Returns what happened to each lot.
+pub fn commit(
+    locks: &mut BTreeMap<&str, Locked>,
+    decisions: &[LotDecision],
+    plans: &[Plan],
+    approver: &str,
+    now: &str,
+) -> Result<Vec<Recorded>> {
+    let mut out = Vec::with_capacity(decisions.len());
+    for (d, plan) in decisions.iter().zip(plans) {
+        let recorded = match plan {
+            Plan::Unchanged { seq } => Recorded::Unchanged(*seq),
+            Plan::New | Plan::Retest { .. } => {
+                let locked = locks.get_mut(d.product.as_str()).ok_or_else(|| {
+                    Error::invalid(
+                        d.product.clone(),
+                        "the trend file is not locked",
+                        "Report this as a bug: lock_products locks every product first.",
+                    )
+                })?;
+                let owned = row_cells(d, plan, approver, now);
+                let cells: Vec<(&str, String)> =
+                    owned.iter().map(|(k, v)| (k.as_str(), v.clone())).collect();
+                let seq = locked.append(&cells)?;
+                match plan {
+                    Plan::Retest { supersedes, .. } => Recorded::Retest {
+                        seq,
+                        supersedes: *supersedes,
+                    },
+                    _ => Recorded::New(seq),
+                }
+            }
+        };
+        out.push(recorded);
+    }
+    for locked in locks.values_mut() {
+        locked.sync()?;
+    }
+    Ok(out)
+}
+
+/// True when two recorded values are the same number ("0.98" and "0.980" are), or both empty.
+fn same_number(a: &str, b: &str) -> bool {
+    match (
+        a.parse::<rust_decimal::Decimal>(),
+        b.parse::<rust_decimal::Decimal>(),
+    ) {
+        (Ok(x), Ok(y)) => x == y,
+        _ => a == b,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::lot::evaluate::evaluate;
+    use crate::lot::intake::{parse, Options};
+    use crate::spec::product::ProductSpec;
+    use std::time::Duration;
+
+    // Test fixture: an invented spec, not a real product.
+    const SPEC: &str = r#"
+code = "PD-2000"
+name = "Linear polyester diol"
+revision = "C"
+effective = 2026-01-01
+functionality = 2.0
+decision_rule = "guarded"
+retest_months = 12
+[properties.acid_value]
+label = "Acid value"
+unit = "mg KOH/g"
+max = 1.0
+decimals = 2
+uncertainty = 0.05
+[properties.hydroxyl_value]
+label = "Hydroxyl value"
+unit = "mg KOH/g"
+acidity_correction = true
+min = 53.0
+max = 59.0
+decimals = 1
+uncertainty = 0.8
+[properties.mn]
+min = 1900
+max = 2100
+decimals = 0
+"#;
+
+    fn specs() -> SpecSet {
+        let spec = ProductSpec::parse(Path::new("s.toml"), SPEC).unwrap();
+        let mut set = SpecSet::default();
+        set.products.insert(spec.code.clone(), vec![spec]);
+        set
+    }
+
+    fn decide(specs: &SpecSet, lot: &str, av: &str, ohv: &str) -> LotDecision {
+        let csv = format!(
+            "lot,product,manufactured,acid_value,hydroxyl_value\n{lot},PD-2000,2026-10-01,{av},{ohv}\n"
+        );
+        let lots = parse("r.csv", csv.as_bytes(), Options::default()).unwrap();
+        let spec = specs.for_date("PD-2000", lots[0].manufactured).unwrap();
+        evaluate(spec, &lots[0], "r.csv").unwrap()
+    }
+
+    fn wait() -> Wait {
+        Wait {
+            timeout: Duration::from_secs(5),
+        }
+    }
+
+    /// Plans `decisions` against the register as it is, with `retest` and `elsewhere`.
+    fn plan_in(
+        register: &Path,
+        specs: &SpecSet,
+        decisions: &[LotDecision],
+        retest: Option<&str>,
+        elsewhere: &HashMap<String, String>,
+    ) -> Result<Vec<Plan>> {
+        let locks = lock_products(register, specs, decisions, wait()).unwrap();
+        let trends = locks.iter().map(|(&p, l)| (p, &l.trend)).collect();
+        let lines = vec![2; decisions.len()];
+        let batch = Batch {
+            results: Path::new("r.csv"),
+            lines: &lines,
+            decisions,
+            retest,
+        };
+        plan(&batch, &trends, specs, elsewhere)
+    }
+
+    /// Records `decisions` as new lots.
+    fn record(register: &Path, specs: &SpecSet, decisions: &[LotDecision]) -> Vec<Recorded> {
+        let plans = plan_in(register, specs, decisions, None, &HashMap::new()).unwrap();
+        let mut locks = lock_products(register, specs, decisions, wait()).unwrap();
+        commit(
+            &mut locks,
+            decisions,
+            &plans,
+            "A. Tester, QC",
+            "2026-10-02T08:00:00Z",
+        )
+        .unwrap()
+    }
+
+    #[test]
+    fn a_lot_not_yet_recorded_is_new() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        let d = vec![decide(&specs, "L1", "0.50", "55.6")];
+        let plans = plan_in(dir.path(), &specs, &d, None, &HashMap::new()).unwrap();
+        assert_eq!(plans, [Plan::New]);
+        assert!(plans[0].writes());
+    }
+
+    #[test]
+    fn an_identical_rerun_is_unchanged() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        let first = vec![decide(&specs, "L1", "0.50", "55.6")];
+        assert_eq!(record(dir.path(), &specs, &first), [Recorded::New(1)]);
+        // "0.5" is the same number as "0.50": the same results.
+        let again = vec![decide(&specs, "L1", "0.5", "55.60")];
+        let plans = plan_in(dir.path(), &specs, &again, None, &HashMap::new()).unwrap();
+        assert_eq!(plans, [Plan::Unchanged { seq: 1 }]);
+        assert!(!plans[0].writes());
+    }
+
+    #[test]
+    fn other_results_need_a_retest_which_supersedes_the_row() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        let first = vec![
+            decide(&specs, "L1", "0.50", "55.6"),
+            decide(&specs, "L2", "0.40", "56.0"),
+        ];
+        record(dir.path(), &specs, &first);
+        let changed = vec![decide(&specs, "L2", "0.45", "56.0")];
+        let err = plan_in(dir.path(), &specs, &changed, None, &HashMap::new()).unwrap_err();
+        let text = err.to_string();
+        assert!(text.contains("r.csv:2, lot 'L2'"), "{text}");
+        assert!(text.contains("(row 2) with different results"), "{text}");
+        let plans = plan_in(
+            dir.path(),
+            &specs,
+            &changed,
+            Some("re-titrated"),
+            &HashMap::new(),
+        )
+        .unwrap();
+        let retest = Plan::Retest {
+            supersedes: 2,
+            reason: "re-titrated".into(),
+        };
+        assert_eq!(plans, std::slice::from_ref(&retest));
+        let cells = row_cells(&changed[0], &retest, "A. Tester, QC", "now");
+        assert!(cells.contains(&("supersedes".into(), "2".into())));
+        assert!(cells.contains(&("reason".into(), "re-titrated".into())));
+        let mut locks = lock_products(dir.path(), &specs, &changed, wait()).unwrap();
+        let done = commit(&mut locks, &changed, &plans, "A. Tester, QC", "now").unwrap();
+        assert_eq!(
+            done,
+            [Recorded::Retest {
+                seq: 3,
+                supersedes: 2
+            }]
+        );
+    }
+
+    #[test]
+    fn a_lot_recorded_under_another_product_is_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        let d = vec![decide(&specs, "L1", "0.50", "55.6")];
+        let elsewhere = HashMap::from([("L1".to_string(), "PE-3000".to_string())]);
+        let err = plan_in(dir.path(), &specs, &d, Some("retest"), &elsewhere).unwrap_err();
+        assert!(err
+            .to_string()
+            .contains("this lot id is already recorded for product PE-3000"));
+    }
+
+    #[test]
+    fn lots_elsewhere_skips_the_products_being_released() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        let d = vec![decide(&specs, "L1", "0.50", "55.6")];
+        record(dir.path(), &specs, &d);
+        let found = lots_elsewhere(dir.path(), &d, &|_| false).unwrap();
+        assert_eq!(found.get("L1").map(String::as_str), Some("PD-2000"));
+        assert!(lots_elsewhere(dir.path(), &d, &|p| p == "PD-2000")
+            .unwrap()
+            .is_empty());
+        assert!(lots_elsewhere(&dir.path().join("none"), &d, &|_| false)
+            .unwrap()
+            .is_empty());
+    }
+
+    #[test]
+    fn same_number_compares_decimals() {
+        assert!(same_number("0.98", "0.980"));
+        assert!(same_number("", ""));
+        assert!(!same_number("0.98", "0.97"));
+        assert!(!same_number("", "0.97"));
+    }
+}
