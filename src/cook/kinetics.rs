@@ -50,7 +50,7 @@ pub fn externally_studentized(r_internal: f64, n: usize) -> f64 {
 
 /// The linearised quantity of the order-n rate law: y = (1-p)^(1-n).
 ///
-/// Integrating -d[COOH]/dt = k·[COOH]^n at equal group concentrations C0 gives
+/// Integrating -d\[COOH\]/dt = k·\[COOH\]^n at equal group concentrations C0 gives
 /// (1-p)^(1-n) = 1 + (n-1)·k·C0^(n-1)·t. For n = 2 this is 1/(1-p) = 1 + k·C0·t (external acid
 /// catalysis) and for n = 3 it is 1/(1-p)² = 1 + 2·k·C0²·t (self-catalysis).
 /// Source: Odian, Principles of Polymerization, 4th ed., §2-2a (eqs. 2-12, 2-18, 2-20);
@@ -70,7 +70,7 @@ pub struct Groups {
     /// Acid groups at the start, C0 (mol/kg).
     pub c0: f64,
     /// Hydroxyl minus acid groups, Δ (mol/kg): 0 for an equal charge, negative with acid in
-    /// excess. [OH] = [COOH] + Δ throughout the cook.
+    /// excess. \[OH\] = \[COOH\] + Δ throughout the cook.
     pub excess: f64,
 }
 
@@ -110,7 +110,7 @@ pub fn rate_integral(c: f64, c0: f64, order: f64, excess: f64) -> f64 {
 
 /// The linearised quantity of the order-n law with unequal groups.
 ///
-/// With -d[COOH]/dt = k·[COOH]^(n-1)·[OH], [COOH] = c = C0(1-p) and [OH] = c + Δ (one hydroxyl
+/// With -d\[COOH\]/dt = k·\[COOH\]^(n-1)·\[OH\], \[COOH\] = c = C0(1-p) and \[OH\] = c + Δ (one hydroxyl
 /// and n-2 acid groups per elementary step as catalyst: n = 2 external catalysis, n = 3
 /// self-catalysis), separating variables gives Y = 1 + (n-1)·C0^(n-1)·∫_c^C0 du/(u^(n-1)(u+Δ))
 /// = 1 + (n-1)·k·C0^(n-1)·t, so the slope and k have the same meaning as in [`linearised`], to

@@ -71,8 +71,8 @@ pub fn load(path: &Path) -> Result<Samples> {
 
 /// Parses samples CSV text; `file` names it in messages.
 ///
-/// The steps: the header is checked ([`columns`]), each row is read ([`read_row`]) and checked
-/// against the previous one ([`check_order`]), and an empty file is refused.
+/// The steps: the header is checked (`columns`), each row is read (`read_row`) and checked
+/// against the previous one (`check_order`), and an empty file is refused.
 pub fn parse(file: &str, text: &str) -> Result<Samples> {
     let mut rdr = csv::ReaderBuilder::new()
         .comment(Some(b'#'))
