@@ -3,8 +3,11 @@
 
 use serde::Serialize;
 
+use rust_decimal::Decimal;
+
 use crate::error::{Error, Result};
 use crate::record::query::LotRow;
+use crate::spec::{ProductSpec, Property, SpecSet};
 use crate::stats::{self, Capability, Limits, Normality, RuleSet, SpecWindow};
 
 /// Where the control limits come from.
@@ -214,6 +217,116 @@ pub fn property_trend(
     })
 }
 
+/// The baseline of the first `n` lots; a moving range needs at least 2 lots.
+pub fn baseline_first(n: usize) -> Result<Baseline> {
+    if n < 2 {
+        return Err(Error::invalid(
+            "--baseline",
+            format!("{n} lot(s) cannot give a moving range"),
+            "Give at least 2 lots (more than 20 is common practice).",
+        ));
+    }
+    Ok(Baseline::First(n))
+}
+
+/// The trend-file columns to load: every key, or for one property only its own column (and
+/// both Mn and viscosity for their joint check when it is either), in header order.
+pub fn columns_for(keys: &[String], property: Option<&str>) -> Vec<String> {
+    match property {
+        Some(p) => keys
+            .iter()
+            .filter(|k| {
+                *k == p
+                    || (matches!(p, "mn" | "viscosity") && matches!(k.as_str(), "mn" | "viscosity"))
+            })
+            .cloned()
+            .collect(),
+        None => keys.to_vec(),
+    }
+}
+
+/// The spec revision in effect for the latest selected lot (lots in manufacture order), or the
+/// product's latest revision when none is dated for it.
+pub fn spec_for<'a>(specs: &'a SpecSet, product: &str, lots: &[LotRow]) -> Option<&'a ProductSpec> {
+    let latest_date = lots
+        .last()
+        .and_then(|l| chrono::NaiveDate::parse_from_str(&l.manufactured, "%Y-%m-%d").ok());
+    latest_date
+        .and_then(|d| specs.for_date(product, d).ok())
+        .or_else(|| specs.latest(product))
+}
+
+/// The spec's window on a property as numbers for capability (open without a spec).
+pub fn spec_window(p: Option<&Property>) -> SpecWindow {
+    let num = |d: Option<Decimal>| d.and_then(|d| d.to_string().parse().ok());
+    SpecWindow {
+        min: num(p.and_then(|p| p.min)),
+        max: num(p.and_then(|p| p.max)),
+    }
+}
+
+/// What to trend: the product, the lots (loaded with `columns`), the spec, and how.
+#[derive(Debug, Clone, Copy)]
+pub struct TrendRequest<'a> {
+    /// Product code.
+    pub product: &'a str,
+    /// Columns the lots were loaded with, in order.
+    pub columns: &'a [String],
+    /// Selected lots, in manufacture order.
+    pub lots: &'a [LotRow],
+    /// Spec revision giving labels, units and windows (None: keys, no window).
+    pub spec: Option<&'a ProductSpec>,
+    /// One property, or None for every column.
+    pub property: Option<&'a str>,
+    /// Where the control limits come from.
+    pub baseline: &'a Baseline,
+    /// Nelson rules applied.
+    pub rules: RuleSet,
+}
+
+/// The trend of the one property asked for, or of every column; in the overview a property
+/// with too few values is skipped, not fatal. Errors when no trend remains.
+pub fn property_trends(req: &TrendRequest) -> Result<Vec<PropertyTrend>> {
+    let mut trends = Vec::new();
+    for (col, key) in req.columns.iter().enumerate() {
+        if req.property.is_some_and(|p| p != key) {
+            continue;
+        }
+        let p = req.spec.and_then(|s| s.property(key));
+        let label = p.map_or(key.as_str(), |p| p.label.as_str());
+        let unit = p.map_or("", |p| if p.unit == "1" { "" } else { p.unit.as_str() });
+        match property_trend(
+            req.product,
+            key,
+            col,
+            label,
+            unit,
+            req.lots,
+            spec_window(p),
+            req.spec.map(|s| s.revision.clone()),
+            req.baseline,
+            req.rules,
+        ) {
+            Ok(t) => trends.push(t),
+            Err(_) if req.property.is_none() => {}
+            Err(e) => return Err(e),
+        }
+    }
+    if trends.is_empty() {
+        return Err(Error::invalid(
+            format!("product '{}'", req.product),
+            "no property has at least 2 lots in the selection and the baseline",
+            "Widen --from/--to, or move --baseline-until past the first lots.",
+        ));
+    }
+    Ok(trends)
+}
+
+/// True when any trend has a run-rule signal or any lot is off the viscosity–Mn line.
+pub fn any_signal(trends: &[PropertyTrend], visc: Option<&ViscosityCheck>) -> bool {
+    trends.iter().any(|t| !t.signals.is_empty()) || visc.is_some_and(|v| !v.off_line.is_empty())
+}
+
 /// A lot whose viscosity is off the log-log line for its Mn.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct OffLine {
@@ -233,6 +346,12 @@ pub struct ViscosityCheck {
     pub fit: stats::LogLogFit,
     /// Lots off the line by more than 3 robust standard deviations.
     pub off_line: Vec<OffLine>,
+}
+
+/// The viscosity–Mn check when both columns were loaded ([`viscosity_check`]).
+pub fn viscosity_check_of(lots: &[LotRow], columns: &[String]) -> Option<ViscosityCheck> {
+    let at = |k: &str| columns.iter().position(|c| c == k);
+    viscosity_check(lots, at("mn")?, at("viscosity")?)
 }
 
 /// Fits log viscosity against log Mn and lists the lots off the line, or None when fewer than
