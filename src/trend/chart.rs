@@ -209,7 +209,10 @@ pub fn fmt_value(x: f64) -> String {
     format!("{x:.decimals$}")
 }
 
-type DrawResult = std::result::Result<(), Box<dyn std::error::Error>>;
+type DrawResult<T = ()> = std::result::Result<T, Box<dyn std::error::Error>>;
+
+/// A label in the right margin: its height on the value axis, its text and colour.
+type RightLabel = (f64, String, RGBColor);
 
 /// Sizes both panels share, from the input.
 struct Frame {
@@ -286,7 +289,7 @@ fn draw_individuals<'a, DB: DrawingBackend>(
     upper: &'a DrawingArea<DB, Shift>,
     input: &ChartInput,
     frame: &Frame,
-) -> std::result::Result<Chart<'a, DB>, Box<dyn std::error::Error>>
+) -> DrawResult<Chart<'a, DB>>
 where
     DB::ErrorType: 'static,
 {
@@ -356,12 +359,12 @@ fn draw_limit_lines<DB: DrawingBackend>(
     top: &mut Chart<'_, DB>,
     input: &ChartInput,
     frame: &Frame,
-) -> std::result::Result<Vec<(f64, String, RGBColor)>, Box<dyn std::error::Error>>
+) -> DrawResult<Vec<RightLabel>>
 where
     DB::ErrorType: 'static,
 {
     let l = input.limits;
-    let mut right_labels: Vec<(f64, String, RGBColor)> = Vec::new();
+    let mut right_labels: Vec<RightLabel> = Vec::new();
     top.draw_series(LineSeries::new(frame.hline(l.mean), CENTRE.stroke_width(1)))?;
     right_labels.push((l.mean, format!("CL {}", fmt_value(l.mean)), CENTRE));
     for (y, name) in [(l.ucl, "UCL"), (l.lcl, "LCL")] {
@@ -389,7 +392,7 @@ fn draw_moving_ranges<'a, DB: DrawingBackend>(
     lower: &'a DrawingArea<DB, Shift>,
     input: &ChartInput,
     frame: &Frame,
-) -> std::result::Result<Chart<'a, DB>, Box<dyn std::error::Error>>
+) -> DrawResult<Chart<'a, DB>>
 where
     DB::ErrorType: 'static,
 {
