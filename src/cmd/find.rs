@@ -68,16 +68,20 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .iter()
         .map(|w| parse_window(w))
         .collect::<Result<_, _>>()?;
-    let status = match &args.status {
-        Some(s) => Some(Status::parse(s).ok_or_else(|| {
-            Error::invalid(
-                format!("--status '{s}'"),
-                "not a lot status",
-                "Use released, on_hold, rejected or incomplete.",
-            )
-        })?),
-        None => args.customer.as_ref().map(|_| Status::Released),
-    };
+    let asked = args
+        .status
+        .as_deref()
+        .map(|s| {
+            Status::parse(s).ok_or_else(|| {
+                Error::invalid(
+                    format!("--status '{s}'"),
+                    "not a lot status",
+                    "Use released, on_hold, rejected or incomplete.",
+                )
+            })
+        })
+        .transpose()?;
+    let status = find::status_or_default(asked, args.customer.is_some());
     let from = args
         .from
         .as_deref()

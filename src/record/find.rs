@@ -39,6 +39,12 @@ pub struct LotFilter<'a> {
     pub customer: Option<CustomerCheck<'a>>,
 }
 
+/// The status asked for, or by default: any status, but only released lots for a customer
+/// (only a released lot can be certified).
+pub fn status_or_default(asked: Option<Status>, for_customer: bool) -> Option<Status> {
+    asked.or(for_customer.then_some(Status::Released))
+}
+
 /// Checks that every window names a property of the trend file (`keys`, from its header).
 pub fn check_window_keys(product: &str, keys: &[String], windows: &[Window]) -> Result<()> {
     for w in windows {
@@ -152,6 +158,12 @@ mod tests {
         );
         assert_eq!(keys_to_load(&keys, &w, true), keys);
         assert!(check_window_keys("PD-2000", &keys, &w).is_ok());
+        assert_eq!(status_or_default(None, true), Some(Status::Released));
+        assert_eq!(status_or_default(None, false), None);
+        assert_eq!(
+            status_or_default(Some(Status::OnHold), true),
+            Some(Status::OnHold)
+        );
         let e = check_window_keys("PD-2000", &keys, &[window("tg", None, None)])
             .unwrap_err()
             .to_string();
