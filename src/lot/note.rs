@@ -125,12 +125,29 @@ impl LotNote {
         LotNote::new(kind, text.to_string())
     }
 
+    /// The trend file's `notes` cell: the notes' words joined by "; " (read back by
+    /// [`LotNote::parse_cell`]).
+    pub fn cell(notes: &[LotNote]) -> String {
+        notes
+            .iter()
+            .map(|n| n.text.as_str())
+            .collect::<Vec<_>>()
+            .join("; ")
+    }
+
     /// Types every note of a recorded `notes` cell (notes joined by "; ").
     pub fn parse_cell(cell: &str) -> Vec<LotNote> {
         cell.split("; ")
             .filter(|n| !n.is_empty())
             .map(LotNote::parse)
             .collect()
+    }
+}
+
+/// A note serialises as its words, as notes were written before they were typed.
+impl serde::Serialize for LotNote {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
+        s.serialize_str(&self.text)
     }
 }
 
@@ -196,5 +213,10 @@ mod tests {
         assert_eq!(on.len(), 1);
         assert!(on[0].text.starts_with("Viscosity: measured at 75 °C"));
         assert!(LotNote::parse_cell("").is_empty());
+        assert_eq!(LotNote::cell(&LotNote::parse_cell(cell)), cell);
+        assert_eq!(
+            serde_json::to_string(&LotNote::not_measured("Colour")).unwrap(),
+            "\"Colour was not measured\""
+        );
     }
 }
