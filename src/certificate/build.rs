@@ -12,11 +12,12 @@ use crate::certificate::model::{
     Supersedes,
 };
 use crate::error::{Error, Result};
-use crate::lot::evaluate::{recorded_uncertainty, unit_factor, LotDecision, Status};
+use crate::lot::evaluate::{unit_factor, LotDecision, Status};
+use crate::lot::note::LotNote;
 use crate::record::trend_file::{Row, Trend};
-use crate::spec::customer::{combined, customer_verdict, Customer, CustomerProduct};
+use crate::spec::customer::{combined, customer_fit, Customer, CustomerProduct, Fit};
 use crate::spec::decision::{decimal_from_f64, round, DecisionRule, Verdict};
-use crate::spec::{end_groups_words, limits_text, ProductSpec};
+use crate::spec::{end_groups_words, limits_text, ProductSpec, Property};
 
 /// What the record holds about a lot, as needed for a certificate.
 #[derive(Debug, Clone, PartialEq)]
@@ -41,8 +42,8 @@ pub struct LotRecord {
     pub approver: String,
     /// When it was decided (RFC 3339).
     pub decided_at: String,
-    /// Notes recorded with the decision (corrections, replicates, conditional results).
-    pub notes: Vec<String>,
+    /// Notes recorded with the decision (corrections, replicates, conditional results), typed.
+    pub notes: Vec<LotNote>,
 }
 
 impl LotRecord {
@@ -74,11 +75,7 @@ impl LotRecord {
             mn_uncertainty: c("mn_uncertainty").parse().ok(),
             approver: c("approver"),
             decided_at: c("recorded_at"),
-            notes: c("notes")
-                .split("; ")
-                .filter(|n| !n.is_empty())
-                .map(str::to_string)
-                .collect(),
+            notes: LotNote::parse_cell(&c("notes")),
         })
     }
 
@@ -115,7 +112,7 @@ impl LotRecord {
             mn_uncertainty: mn_u,
             approver: approver.to_string(),
             decided_at: now.to_string(),
-            notes: d.notes.clone(),
+            notes: d.notes.iter().map(|n| LotNote::parse(n)).collect(),
         }
     }
 
@@ -169,8 +166,8 @@ fn decimals_after(decimals: u32, factor: Decimal) -> u32 {
     d.max(0) as u32
 }
 
-/// Checks that a released lot meets a customer's windows under the product's decision rule;
-/// the error names every property that falls short, with both windows.
+/// Checks that a released lot meets a customer's windows under the product's decision rule
+/// ([`customer_fit`]); the error names every property that falls short, with both windows.
 pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> Result<()> {
     let mut failures = Vec::new();
     for p in &spec.properties {
@@ -178,22 +175,25 @@ pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> R
         if window.is_none() {
             continue;
         }
-        let Some(value) = rec.value(&p.key) else {
-            return Err(Error::Shortfall(format!(
-                "lot {} has no {} result, which {} requires",
-                rec.lot, p.label, ship.customer.name
-            )));
-        };
-        let u = recorded_uncertainty(spec, p, rec.mn_uncertainty);
-        let v = customer_verdict(spec, &p.key, value, u, window);
-        if v.is_some_and(|v| v != Verdict::Pass) {
-            let w = combined(p.min, p.max, window);
-            failures.push(format!(
+        let fit = customer_fit(spec, p, rec.value(&p.key), rec.mn_uncertainty, window);
+        match fit {
+            Fit::Missing => {
+                return Err(Error::Shortfall(format!(
+                    "lot {} has no {} result, which {} requires",
+                    rec.lot, p.label, ship.customer.name
+                )))
+            }
+            Fit::Decided {
+                verdict,
+                reported,
+                window: w,
+                uncertainty: u,
+            } if verdict != Verdict::Pass => failures.push(format!(
                 "{} {} {} is {} against the customer's window {} (product spec {} revision {}: {}){}",
                 p.label,
-                round(value, p.decimals, spec.rounding),
+                reported,
                 p.unit,
-                v.map_or("", |v| v.words()),
+                verdict.words(),
                 limits_text(w.min, w.max, p.decimals),
                 spec.code,
                 spec.revision,
@@ -206,7 +206,8 @@ pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> R
                 } else {
                     String::new()
                 }
-            ));
+            )),
+            _ => {}
         }
     }
     if failures.is_empty() {
@@ -231,7 +232,66 @@ pub fn build(
     issue_date: NaiveDate,
     supersedes: Option<Supersedes>,
 ) -> Result<Certificate> {
-    let keys: Vec<String> = match ship.and_then(|s| s.product.report.clone()) {
+    let keys = reported_keys(spec, ship);
+    let rows = keys
+        .iter()
+        .filter_map(|key| spec.property(key))
+        .map(|p| result_row(spec, p, rec, ship))
+        .collect();
+    let (name, role) = approver(rec);
+    let decided = rec
+        .decided_at
+        .get(..10)
+        .and_then(|d| NaiveDate::parse_from_str(d, "%Y-%m-%d").ok())
+        .unwrap_or(issue_date);
+    Ok(Certificate {
+        title: if ship.is_some() {
+            "Certificate of Analysis".into()
+        } else {
+            "Certificate of Analysis (internal record)".into()
+        },
+        issuer: site.clone(),
+        number: number.to_string(),
+        issue_date,
+        product: cert::Product {
+            code: spec.code.clone(),
+            name: spec.name.clone(),
+        },
+        spec: cert::SpecRef {
+            code: spec.code.clone(),
+            revision: spec.revision.clone(),
+        },
+        lot: cert::Lot {
+            id: rec.lot.clone(),
+            manufactured: rec.manufactured,
+            retest: cert::retest_date(rec.manufactured, spec.retest_months)
+                .unwrap_or(rec.manufactured),
+        },
+        customer: ship.map(|s| cert::Customer {
+            name: s.customer.name.clone(),
+            part_number: s.product.part_number.clone(),
+            purchase_order: s.purchase_order.map(str::to_string),
+            quantity: s.quantity.map(str::to_string),
+        }),
+        rows,
+        calculated: calculated_notes(spec, rec, &keys),
+        conformity: conformity(spec, rec, ship),
+        scope_statement: cert::SCOPE_STATEMENT.to_string(),
+        statements: statements(rec, ship),
+        authorisation: Authorisation {
+            name,
+            role,
+            date: decided,
+        },
+        released: rec.status == Status::Released,
+        supersedes,
+    })
+}
+
+/// The properties reported, in order: the customer's list, or the spec's measured properties,
+/// the limited derived ones and Xn.
+fn reported_keys(spec: &ProductSpec, ship: Option<&Shipment>) -> Vec<String> {
+    match ship.and_then(|s| s.product.report.clone()) {
         Some(r) => r,
         None => spec
             .properties
@@ -239,61 +299,73 @@ pub fn build(
             .filter(|p| !p.derived || p.has_limit() || p.key == "xn")
             .map(|p| p.key.clone())
             .collect(),
-    };
-    let mut rows = Vec::new();
-    for key in &keys {
-        let Some(p) = spec.property(key) else {
-            continue;
-        };
-        let factor = ship
-            .and_then(|s| s.product.units.get(key))
-            .and_then(|u| unit_factor(&p.unit, u).map(|f| (u.clone(), f)));
-        let (unit, f) = factor.unwrap_or((p.unit.clone(), Decimal::ONE));
-        let dec = decimals_after(p.decimals, f);
-        let window = match ship {
-            Some(s) => combined(p.min, p.max, s.product.limits.get(key)),
-            None => combined(p.min, p.max, None),
-        };
-        let conv = |d: Option<Decimal>| d.map(|d| d * f);
-        let result = match rec.value(key) {
-            Some(v) => {
-                let mut r = round(v, p.decimals, spec.rounding) * f;
-                r.rescale(dec);
-                r.to_string()
-            }
-            None => "not measured".to_string(),
-        };
-        let verdict = match ship {
-            Some(s) => {
-                let u = recorded_uncertainty(spec, p, rec.mn_uncertainty);
-                rec.value(key)
-                    .and_then(|v| customer_verdict(spec, key, v, u, s.product.limits.get(key)))
-                    .map_or("—".to_string(), |v| verdict_words(v.as_str()))
-            }
-            None => verdict_words(rec.verdicts.get(key).map_or("", String::as_str)),
-        };
-        let label = match p.temperature_c {
-            Some(t) => format!("{} at {t} °C", p.label),
-            None => p.label.clone(),
-        };
-        rows.push(ResultRow {
-            key: key.clone(),
-            label,
-            method: match (&p.method, p.derived) {
-                (Some(m), _) => m.clone(),
-                (None, true) => "calculated".into(),
-                (None, false) => "—".into(),
-            },
-            unit: if unit == "1" { String::new() } else { unit },
-            limits: if window.min.is_some() || window.max.is_some() {
-                limits_text(conv(window.min), conv(window.max), dec)
-            } else {
-                "report".into()
-            },
-            result,
-            verdict,
-        });
     }
+}
+
+/// One row of the results table: in the customer's unit and window with a shipment, with the
+/// recorded verdict otherwise.
+fn result_row(
+    spec: &ProductSpec,
+    p: &Property,
+    rec: &LotRecord,
+    ship: Option<&Shipment>,
+) -> ResultRow {
+    let key = &p.key;
+    let factor = ship
+        .and_then(|s| s.product.units.get(key))
+        .and_then(|u| unit_factor(&p.unit, u).map(|f| (u.clone(), f)));
+    let (unit, f) = factor.unwrap_or((p.unit.clone(), Decimal::ONE));
+    let dec = decimals_after(p.decimals, f);
+    let window = match ship {
+        Some(s) => combined(p.min, p.max, s.product.limits.get(key)),
+        None => combined(p.min, p.max, None),
+    };
+    let conv = |d: Option<Decimal>| d.map(|d| d * f);
+    let result = match rec.value(key) {
+        Some(v) => {
+            let mut r = round(v, p.decimals, spec.rounding) * f;
+            r.rescale(dec);
+            r.to_string()
+        }
+        None => "not measured".to_string(),
+    };
+    let verdict = match ship {
+        Some(s) => customer_fit(
+            spec,
+            p,
+            rec.value(key),
+            rec.mn_uncertainty,
+            s.product.limits.get(key),
+        )
+        .verdict()
+        .map_or("—".to_string(), |v| verdict_words(v.as_str())),
+        None => verdict_words(rec.verdicts.get(key).map_or("", String::as_str)),
+    };
+    let label = match p.temperature_c {
+        Some(t) => format!("{} at {t} °C", p.label),
+        None => p.label.clone(),
+    };
+    ResultRow {
+        key: key.clone(),
+        label,
+        method: match (&p.method, p.derived) {
+            (Some(m), _) => m.clone(),
+            (None, true) => "calculated".into(),
+            (None, false) => "—".into(),
+        },
+        unit: if unit == "1" { String::new() } else { unit },
+        limits: if window.min.is_some() || window.max.is_some() {
+            limits_text(conv(window.min), conv(window.max), dec)
+        } else {
+            "report".into()
+        },
+        result,
+        verdict,
+    }
+}
+
+/// How the calculated values (Mn, Xn) were obtained, for those reported.
+fn calculated_notes(spec: &ProductSpec, rec: &LotRecord, keys: &[String]) -> Vec<CalculatedNote> {
     let mut calculated = Vec::new();
     if let (Some(mn), Some(p), true) = (
         rec.value("mn"),
@@ -331,8 +403,12 @@ pub fn build(
             basis: "calculated from the batch recipe by the Carothers equation, with the extent of reaction from the acid value and the water of condensation".into(),
         });
     }
-    let released = rec.status == Status::Released;
-    let statement = if released {
+    calculated
+}
+
+/// The decision rule, guard band and statement of conformity (none for a lot not released).
+fn conformity(spec: &ProductSpec, rec: &LotRecord, ship: Option<&Shipment>) -> Conformity {
+    let statement = if rec.status == Status::Released {
         format!(
             "The lot conforms to specification {} revision {}{} under the decision rule stated.",
             spec.code,
@@ -346,7 +422,22 @@ pub fn build(
             rec.status.as_str().replace('_', " ")
         )
     };
-    let (name, role) = match rec.approver.split_once(',') {
+    Conformity {
+        decision_rule: spec.decision_rule.statement().to_string(),
+        guard_band: match spec.decision_rule {
+            DecisionRule::Guarded => {
+                "w = U, the expanded uncertainty (k = 2) of each result".into()
+            }
+            DecisionRule::Simple => "w = 0".into(),
+        },
+        statement,
+    }
+}
+
+/// Name and role of whoever decided: "name, role" as recorded, or the name with a role from
+/// the status.
+fn approver(rec: &LotRecord) -> (String, String) {
+    match rec.approver.split_once(',') {
         Some((n, r)) => (n.trim().to_string(), r.trim().to_string()),
         None => (
             rec.approver.clone(),
@@ -357,76 +448,23 @@ pub fn build(
             }
             .to_string(),
         ),
-    };
-    let decided = rec
-        .decided_at
-        .get(..10)
-        .and_then(|d| NaiveDate::parse_from_str(d, "%Y-%m-%d").ok())
-        .unwrap_or(issue_date);
-    Ok(Certificate {
-        title: if ship.is_some() {
-            "Certificate of Analysis".into()
-        } else {
-            "Certificate of Analysis (internal record)".into()
-        },
-        issuer: site.clone(),
-        number: number.to_string(),
-        issue_date,
-        product: cert::Product {
-            code: spec.code.clone(),
-            name: spec.name.clone(),
-        },
-        spec: cert::SpecRef {
-            code: spec.code.clone(),
-            revision: spec.revision.clone(),
-        },
-        lot: cert::Lot {
-            id: rec.lot.clone(),
-            manufactured: rec.manufactured,
-            retest: cert::retest_date(rec.manufactured, spec.retest_months)
-                .unwrap_or(rec.manufactured),
-        },
-        customer: ship.map(|s| cert::Customer {
-            name: s.customer.name.clone(),
-            part_number: s.product.part_number.clone(),
-            purchase_order: s.purchase_order.map(str::to_string),
-            quantity: s.quantity.map(str::to_string),
-        }),
-        rows,
-        calculated,
-        conformity: Conformity {
-            decision_rule: spec.decision_rule.statement().to_string(),
-            guard_band: match spec.decision_rule {
-                DecisionRule::Guarded => {
-                    "w = U, the expanded uncertainty (k = 2) of each result".into()
-                }
-                DecisionRule::Simple => "w = 0".into(),
-            },
-            statement,
-        },
-        scope_statement: cert::SCOPE_STATEMENT.to_string(),
-        statements: {
-            // A result corrected to the spec temperature says so on the certificate.
-            let mut st: Vec<String> = rec
-                .notes
-                .iter()
-                .filter(|n| n.contains("Andrade"))
-                .cloned()
-                .collect();
-            st.extend(
-                ship.map(|s| s.product.statements.clone())
-                    .unwrap_or_default(),
-            );
-            st
-        },
-        authorisation: Authorisation {
-            name,
-            role,
-            date: decided,
-        },
-        released,
-        supersedes,
-    })
+    }
+}
+
+/// The certificate's extra statements: the decision's notes a certificate repeats (a result
+/// corrected to the spec temperature says so), then the customer's statements.
+fn statements(rec: &LotRecord, ship: Option<&Shipment>) -> Vec<String> {
+    let mut st: Vec<String> = rec
+        .notes
+        .iter()
+        .filter(|n| n.kind.on_certificate())
+        .map(|n| n.text.clone())
+        .collect();
+    st.extend(
+        ship.map(|s| s.product.statements.clone())
+            .unwrap_or_default(),
+    );
+    st
 }
 
 #[cfg(test)]

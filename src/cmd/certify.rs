@@ -9,7 +9,7 @@ use crate::certificate::model::Supersedes;
 use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::lot::evaluate::Status;
-use crate::record::certlog::Log;
+use crate::record::certlog::{Entry, Log};
 use crate::record::trend_file::Wait;
 use crate::spec::customer::Customer;
 use crate::spec::SpecSet;
@@ -109,18 +109,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     }
     let specs = SpecSet::load(&args.specs)?;
     let customer = Customer::load(&args.specs.join("customers"), &args.customer, &specs)?;
-    let Some(trend) = crate::record::query::find_lot(&args.register, &args.lot)? else {
-        return Err(Error::Shortfall(format!(
-            "lot '{}' is not in the record at {}",
-            args.lot,
-            args.register.display()
-        ))
-        .into());
-    };
-    // A certificate is issued only from an intact record: check the whole trend file's chain.
-    crate::record::trend_file::read(&trend.path)?;
-    let row = trend.rows.last().expect("found rows");
-    let rec = LotRecord::from_row(&trend, row)?;
+    let rec = recorded_lot(args)?;
     let spec = specs.revision(&rec.product, &rec.revision).ok_or_else(|| {
         Error::invalid(
             format!("lot {}", rec.lot),
@@ -159,18 +148,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .into_iter()
         .rev()
         .find(|e| e.lot == rec.lot && e.customer == customer.id);
-    let supersedes = match (&previous, &args.reason) {
-        (Some(p), Some(r)) => Some(Supersedes { number: p.number.clone(), reason: r.clone() }),
-        (Some(p), None) => {
-            return Err(Error::invalid(
-                format!("lot {} for {}", rec.lot, customer.name),
-                format!("certificate {} was already issued on {}", p.number, p.issued_at),
-                "To issue a new revision that supersedes it, add --reason \"...\"; the old certificate stays on record.",
-            )
-            .into())
-        }
-        (None, _) => None,
-    };
+    let supersedes = supersedes(previous.as_ref(), args, &rec, &customer)?;
     let now = crate::support::clock::now()?;
     let number = log.next_number(&issuer.site.certificate_prefix);
     let certificate = build::build(
@@ -215,4 +193,40 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
+}
+
+/// The lot's latest record, from an intact trend file.
+fn recorded_lot(args: &Args) -> anyhow::Result<LotRecord> {
+    let Some(trend) = crate::record::query::find_lot(&args.register, &args.lot)? else {
+        return Err(Error::Shortfall(format!(
+            "lot '{}' is not in the record at {}",
+            args.lot,
+            args.register.display()
+        ))
+        .into());
+    };
+    // A certificate is issued only from an intact record: check the whole trend file's chain.
+    crate::record::trend_file::read(&trend.path)?;
+    let row = trend.rows.last().expect("found rows");
+    Ok(LotRecord::from_row(&trend, row)?)
+}
+
+/// What a reissue supersedes; a second certificate for the same lot and customer needs
+/// --reason.
+fn supersedes(
+    previous: Option<&Entry>,
+    args: &Args,
+    rec: &LotRecord,
+    customer: &Customer,
+) -> anyhow::Result<Option<Supersedes>> {
+    match (previous, &args.reason) {
+        (Some(p), Some(r)) => Ok(Some(Supersedes { number: p.number.clone(), reason: r.clone() })),
+        (Some(p), None) => Err(Error::invalid(
+            format!("lot {} for {}", rec.lot, customer.name),
+            format!("certificate {} was already issued on {}", p.number, p.issued_at),
+            "To issue a new revision that supersedes it, add --reason \"...\"; the old certificate stays on record.",
+        )
+        .into()),
+        (None, _) => Ok(None),
+    }
 }

@@ -6,10 +6,10 @@ use serde_json::{json, Map, Value};
 
 use crate::cmd::Outcome;
 use crate::error::Error;
-use crate::lot::evaluate::{recorded_uncertainty, Status};
-use crate::record::query::{parse_date, parse_window, Window};
-use crate::spec::customer::{customer_verdict, Customer};
-use crate::spec::decision::{decimal_from_f64, Verdict};
+use crate::lot::evaluate::Status;
+use crate::record::find::{self, CustomerCheck, LotFilter};
+use crate::record::query::{parse_date, parse_window, LotRow, Window};
+use crate::spec::customer::Customer;
 use crate::spec::SpecSet;
 
 /// Arguments of `resinlot find`.
@@ -68,25 +68,29 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .iter()
         .map(|w| parse_window(w))
         .collect::<Result<_, _>>()?;
-    let status = match &args.status {
-        Some(s) => Some(Status::parse(s).ok_or_else(|| {
-            Error::invalid(
-                format!("--status '{s}'"),
-                "not a lot status",
-                "Use released, on_hold, rejected or incomplete.",
-            )
-        })?),
-        None => args.customer.as_ref().map(|_| Status::Released),
-    };
-    let from: Option<String> = args
+    let asked = args
+        .status
+        .as_deref()
+        .map(|s| {
+            Status::parse(s).ok_or_else(|| {
+                Error::invalid(
+                    format!("--status '{s}'"),
+                    "not a lot status",
+                    "Use released, on_hold, rejected or incomplete.",
+                )
+            })
+        })
+        .transpose()?;
+    let status = find::status_or_default(asked, args.customer.is_some());
+    let from = args
         .from
         .as_deref()
-        .map(|d| parse_date("--from", d).map(|d| d.to_string()))
+        .map(|d| parse_date("--from", d))
         .transpose()?;
-    let to: Option<String> = args
+    let to = args
         .to
         .as_deref()
-        .map(|d| parse_date("--to", d).map(|d| d.to_string()))
+        .map(|d| parse_date("--to", d))
         .transpose()?;
     let path = crate::record::trend_file::path_for(&args.register, &args.product);
     if !path.is_file() {
@@ -98,16 +102,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .into());
     }
     let keys = crate::record::query::trend_keys(&path)?;
-    for w in &windows {
-        if !keys.contains(&w.key) {
-            return Err(Error::invalid(
-                format!("--where '{}=...'", w.key),
-                format!("{} has no property '{}'", args.product, w.key),
-                format!("Use one of: {}.", keys.join(", ")),
-            )
-            .into());
-        }
-    }
+    find::check_window_keys(&args.product, &keys, &windows)?;
     let (specs, customer) = match &args.customer {
         Some(c) => {
             let specs = SpecSet::load(&args.specs)?;
@@ -117,144 +112,125 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         }
         None => (None, None),
     };
+    let customer_check = match (&specs, &customer) {
+        (Some(specs), Some(cu)) => Some(CustomerCheck {
+            specs,
+            requirements: cu.product(&args.product)?,
+        }),
+        _ => None,
+    };
     // The table needs only the windows and a few headline values; JSON, CSV and a customer's
     // check need every property.
-    let loaded: Vec<String> = if args.json || args.csv || customer.is_some() {
-        keys.clone()
-    } else {
-        keys.iter()
-            .filter(|k| {
-                windows.iter().any(|w| w.key == **k)
-                    || ["mn", "acid_value", "hydroxyl_value"].contains(&k.as_str())
-            })
-            .cloned()
-            .collect()
-    };
+    let every = args.json || args.csv || customer.is_some();
+    let loaded = find::keys_to_load(&keys, &windows, every);
     let (_, lots) = crate::record::query::current_lots(&path, &loaded, customer.is_some())?;
-    let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
-    let win_idx: Vec<usize> = windows.iter().map(|w| at(&w.key)).collect();
-    let mut hits: Vec<&crate::record::query::LotRow> = Vec::new();
-    for row in &lots {
-        if status.is_some_and(|s| s.as_str() != row.status) {
-            continue;
-        }
-        // Dates are YYYY-MM-DD, so text order is date order: no parsing per row.
-        let made: &str = &row.manufactured;
-        if from.as_deref().is_some_and(|f| made < f) || to.as_deref().is_some_and(|t| made > t) {
-            continue;
-        }
-        let fits = windows
-            .iter()
-            .zip(&win_idx)
-            .all(|(w, &i)| row.values[i].is_some_and(|v| w.contains(v)));
-        if !fits {
-            continue;
-        }
-        if let (Some(specs), Some(cu)) = (&specs, &customer) {
-            let Some(spec) = specs.revision(&args.product, row.revision) else {
-                continue;
-            };
-            let cp = cu.product(&args.product)?;
-            let ok = spec.properties.iter().all(|p| {
-                let Some(value) = loaded
-                    .iter()
-                    .position(|k| *k == p.key)
-                    .and_then(|i| row.values[i])
-                    .and_then(decimal_from_f64)
-                else {
-                    return !p.has_limit() && !cp.limits.contains_key(&p.key);
-                };
-                let u = recorded_uncertainty(spec, p, row.mn_uncertainty);
-                customer_verdict(spec, &p.key, value, u, cp.limits.get(&p.key))
-                    .is_none_or(|v| v == Verdict::Pass)
-            });
-            if !ok {
-                continue;
-            }
-        }
-        hits.push(row);
-    }
-    hits.sort_by(|a, b| {
-        b.manufactured
-            .cmp(&a.manufactured)
-            .then(b.line.cmp(&a.line))
-    });
-    let fmt = |v: Option<f64>| v.map(|x| x.to_string()).unwrap_or_default();
+    let filter = LotFilter {
+        product: &args.product,
+        windows: &windows,
+        status,
+        from,
+        to,
+        customer: customer_check,
+    };
+    let hits = find::matching_lots(&lots, &loaded, &filter);
     let text = if args.json {
-        let lots: Vec<Value> = hits
-            .iter()
-            .map(|r| {
-                let mut m = Map::new();
-                m.insert("lot".into(), json!(r.lot));
-                m.insert("product".into(), json!(args.product));
-                m.insert("manufactured".into(), json!(r.manufactured));
-                m.insert("status".into(), json!(r.status));
-                for (k, v) in keys.iter().zip(&r.values) {
-                    m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
-                }
-                Value::Object(m)
-            })
-            .collect();
-        serde_json::to_string_pretty(&json!({ "lots": lots }))? + "\n"
+        json_text(&args.product, &keys, &hits)?
     } else if args.csv {
-        let mut w = csv::Writer::from_writer(Vec::new());
-        let mut header = vec!["lot", "product", "manufactured", "status"];
-        header.extend(keys.iter().map(String::as_str));
-        w.write_record(&header)?;
-        for r in &hits {
-            let mut rec = vec![
-                r.lot.to_string(),
-                args.product.clone(),
-                r.manufactured.to_string(),
-                r.status.to_string(),
-            ];
-            rec.extend(r.values.iter().map(|v| fmt(*v)));
-            w.write_record(&rec)?;
-        }
-        String::from_utf8(w.into_inner()?)?
+        csv_text(&args.product, &keys, &hits)?
     } else if hits.is_empty() {
         "No lots match.\n".to_string()
     } else {
-        let mut show: Vec<String> = windows.iter().map(|w| w.key.clone()).collect();
-        for k in ["mn", "acid_value", "hydroxyl_value"] {
-            if keys.iter().any(|x| x == k) && !show.iter().any(|s| s == k) {
-                show.push(k.to_string());
-            }
-        }
-        let mut rows = vec![{
-            let mut h = vec!["lot".to_string(), "manufactured".into(), "status".into()];
-            h.extend(show.iter().cloned());
-            h
-        }];
-        for r in &hits {
-            let mut line = vec![
-                r.lot.to_string(),
-                r.manufactured.to_string(),
-                r.status.to_string(),
-            ];
-            for k in &show {
-                line.push(short_number(&fmt(r.values[at(k)])));
-            }
-            rows.push(line);
-        }
-        let mut t = crate::support::table::render(&rows);
-        t.push_str(&format!(
-            "{} lot{} of {} match{}.\n",
-            hits.len(),
-            if hits.len() == 1 { "" } else { "s" },
-            args.product,
-            customer
-                .as_ref()
-                .map(|c| format!(
-                    " {}'s requirements (tighter windows, product decision rule)",
-                    c.name
-                ))
-                .unwrap_or_default()
-        ));
-        t
+        table_text(args, &keys, &loaded, &windows, &hits, customer.as_ref())
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
+}
+
+fn fmt(v: Option<f64>) -> String {
+    v.map(|x| x.to_string()).unwrap_or_default()
+}
+
+fn json_text(product: &str, keys: &[String], hits: &[&LotRow]) -> anyhow::Result<String> {
+    let lots: Vec<Value> = hits
+        .iter()
+        .map(|r| {
+            let mut m = Map::new();
+            m.insert("lot".into(), json!(r.lot));
+            m.insert("product".into(), json!(product));
+            m.insert("manufactured".into(), json!(r.manufactured));
+            m.insert("status".into(), json!(r.status));
+            for (k, v) in keys.iter().zip(&r.values) {
+                m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
+            }
+            Value::Object(m)
+        })
+        .collect();
+    Ok(serde_json::to_string_pretty(&json!({ "lots": lots }))? + "\n")
+}
+
+fn csv_text(product: &str, keys: &[String], hits: &[&LotRow]) -> anyhow::Result<String> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut header = vec!["lot", "product", "manufactured", "status"];
+    header.extend(keys.iter().map(String::as_str));
+    w.write_record(&header)?;
+    for r in hits {
+        let mut rec = vec![
+            r.lot.to_string(),
+            product.to_string(),
+            r.manufactured.to_string(),
+            r.status.to_string(),
+        ];
+        rec.extend(r.values.iter().map(|v| fmt(*v)));
+        w.write_record(&rec)?;
+    }
+    Ok(String::from_utf8(w.into_inner()?)?)
+}
+
+fn table_text(
+    args: &Args,
+    keys: &[String],
+    loaded: &[String],
+    windows: &[Window],
+    hits: &[&LotRow],
+    customer: Option<&Customer>,
+) -> String {
+    let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
+    let mut show: Vec<String> = windows.iter().map(|w| w.key.clone()).collect();
+    for k in find::HEADLINE_KEYS {
+        if keys.iter().any(|x| x == k) && !show.iter().any(|s| s == k) {
+            show.push(k.to_string());
+        }
+    }
+    let mut rows = vec![{
+        let mut h = vec!["lot".to_string(), "manufactured".into(), "status".into()];
+        h.extend(show.iter().cloned());
+        h
+    }];
+    for r in hits {
+        let mut line = vec![
+            r.lot.to_string(),
+            r.manufactured.to_string(),
+            r.status.to_string(),
+        ];
+        for k in &show {
+            line.push(short_number(&fmt(r.values[at(k)])));
+        }
+        rows.push(line);
+    }
+    let mut t = crate::support::table::render(&rows);
+    t.push_str(&format!(
+        "{} lot{} of {} match{}.\n",
+        hits.len(),
+        if hits.len() == 1 { "" } else { "s" },
+        args.product,
+        customer
+            .map(|c| format!(
+                " {}'s requirements (tighter windows, product decision rule)",
+                c.name
+            ))
+            .unwrap_or_default()
+    ));
+    t
 }
 
 /// Shortens a full-precision number for the table (four significant decimals at most).

@@ -3,3 +3,4 @@
 
 pub mod evaluate;
 pub mod intake;
+pub mod note;

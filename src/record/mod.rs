@@ -4,6 +4,7 @@
 
 pub mod append;
 pub mod certlog;
+pub mod find;
 pub mod integrity;
 pub mod lines;
 pub mod query;

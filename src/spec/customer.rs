@@ -3,12 +3,14 @@
 use std::path::{Path, PathBuf};
 
 use indexmap::IndexMap;
+use rust_decimal::prelude::ToPrimitive;
 use rust_decimal::Decimal;
 use serde::Deserialize;
 
 use crate::error::{Error, Result};
-use crate::spec::decision::decimal_from_f64;
-use crate::spec::{ProductSpec, SpecSet};
+
+use crate::spec::decision::{decimal_from_f64, round, verdict, DecisionRule, Verdict};
+use crate::spec::{ProductSpec, Property, SpecSet};
 
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -315,30 +317,121 @@ pub fn combined(
     }
 }
 
-/// Verdict of a recorded value against a customer's window, under the product's decision rule.
+/// Expanded uncertainty of a measured property's decided value: the spec's U, combined with
+/// U(AV) for an acidity-corrected hydroxyl value (GUM, JCGM 100:2008 §5.1.2, uncorrelated:
+/// U = √(U_OHV² + U_AV²)).
+pub fn guard_uncertainty(spec: &ProductSpec, p: &Property) -> Option<Decimal> {
+    if p.key == "hydroxyl_value" && p.acidity_correction {
+        let u_av = spec.property("acid_value").and_then(|a| a.uncertainty);
+        match (p.uncertainty, u_av) {
+            (Some(uo), Some(ua)) => {
+                decimal_from_f64((to_f64(uo).powi(2) + to_f64(ua).powi(2)).sqrt())
+            }
+            (uo, _) => uo,
+        }
+    } else {
+        p.uncertainty
+    }
+}
+
+fn to_f64(d: Decimal) -> f64 {
+    d.to_f64().unwrap_or(f64::NAN)
+}
+
+/// Guard band of a recorded value for a later check (a customer's window): the recorded
+/// expanded uncertainty of Mn, the spec's U for measured properties, and none for the other
+/// derived properties (their propagated U is not kept in the trend file, so w = 0 there).
+pub fn recorded_uncertainty(
+    spec: &ProductSpec,
+    p: &Property,
+    mn_uncertainty: Option<f64>,
+) -> Option<Decimal> {
+    if p.key == "mn" {
+        mn_uncertainty.and_then(decimal_from_f64)
+    } else if p.derived {
+        None
+    } else {
+        guard_uncertainty(spec, p)
+    }
+}
+
+/// How one property of a recorded lot stands against a customer's requirements.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Fit {
+    /// Neither the spec nor the customer limits the property: nothing to decide.
+    Open,
+    /// A limit applies (the spec's, or a customer window is given) but no value is recorded.
+    Missing,
+    /// The recorded value, decided against the tighter window.
+    Decided {
+        /// Verdict under the product's decision rule.
+        verdict: Verdict,
+        /// The value rounded as the spec says (ASTM E29).
+        reported: Decimal,
+        /// The tighter of the spec's and the customer's limits.
+        window: Window,
+        /// Recorded expanded uncertainty, the guard band under the guarded rule.
+        uncertainty: Option<Decimal>,
+    },
+}
+
+impl Fit {
+    /// True when the property does not stand in the way: open, or decided as a pass.
+    pub fn passes(&self) -> bool {
+        match self {
+            Fit::Open => true,
+            Fit::Missing => false,
+            Fit::Decided { verdict, .. } => *verdict == Verdict::Pass,
+        }
+    }
+
+    /// The verdict, when one was reached.
+    pub fn verdict(&self) -> Option<Verdict> {
+        match self {
+            Fit::Decided { verdict, .. } => Some(*verdict),
+            _ => None,
+        }
+    }
+}
+
+/// Does a lot's recorded value of `p` fit the customer's window? The one customer-fit rule,
+/// used by `find --customer`, the certificate check and the certificate's verdict column.
 ///
 /// The value is rounded as the spec says (ASTM E29) and compared with the tighter of the spec
-/// and customer limits, with guard band w = U under the guarded rule (ILAC-G8:09/2019 §4.2.3).
-pub fn customer_verdict(
+/// and customer limits, with guard band w = U (the recorded uncertainty, see
+/// [`recorded_uncertainty`]) under the guarded rule and w = 0 under the simple rule
+/// (ILAC-G8:09/2019 §4.2.3). `value` is the recorded full-precision value; `mn_uncertainty`
+/// the recorded expanded uncertainty of Mn.
+pub fn customer_fit(
     spec: &ProductSpec,
-    key: &str,
-    value: Decimal,
-    u: Option<Decimal>,
+    p: &Property,
+    value: Option<Decimal>,
+    mn_uncertainty: Option<f64>,
     window: Option<&Window>,
-) -> Option<crate::spec::decision::Verdict> {
-    let p = spec.property(key)?;
+) -> Fit {
+    let Some(value) = value else {
+        return if p.has_limit() || window.is_some() {
+            Fit::Missing
+        } else {
+            Fit::Open
+        };
+    };
     let lim = combined(p.min, p.max, window);
     if lim.min.is_none() && lim.max.is_none() {
-        return None;
+        return Fit::Open;
     }
-    let reported = crate::spec::decision::round(value, p.decimals, spec.rounding);
+    let reported = round(value, p.decimals, spec.rounding);
+    let u = recorded_uncertainty(spec, p, mn_uncertainty);
     let w = match spec.decision_rule {
-        crate::spec::decision::DecisionRule::Guarded => u.unwrap_or_default(),
-        crate::spec::decision::DecisionRule::Simple => Decimal::ZERO,
+        DecisionRule::Guarded => u.unwrap_or_default(),
+        DecisionRule::Simple => Decimal::ZERO,
     };
-    Some(crate::spec::decision::verdict(
-        reported, lim.min, lim.max, w,
-    ))
+    Fit::Decided {
+        verdict: verdict(reported, lim.min, lim.max, w),
+        reported,
+        window: lim,
+        uncertainty: u,
+    }
 }
 
 #[cfg(test)]
@@ -409,6 +502,108 @@ mod tests {
         assert_eq!(
             (c.min, c.max),
             (Some(Decimal::from(1950)), Some(Decimal::from(2100)))
+        );
+    }
+
+    fn guarded(dir: &Path) -> SpecSet {
+        // Fixture numbers, invented for the test.
+        std::fs::write(
+            dir.join("pg.toml"),
+            "code='PG-1'\nname='g'\nrevision='A'\neffective=2026-01-01\nfunctionality=2.0\n\
+             decision_rule='guarded'\nretest_months=12\n\
+             [properties.hydroxyl_value]\nlabel='OHV'\nunit='mg KOH/g'\nmin=53\nmax=59\ndecimals=1\nuncertainty=0.8\n\
+             [properties.acid_value]\nlabel='AV'\nunit='mg KOH/g'\nmax=1.0\ndecimals=2\nuncertainty=0.05\n[properties.colour]\nlabel='Colour'\nunit='Gardner'\ndecimals=0\n[properties.mn]\nmin=1900\nmax=2100\ndecimals=0\n",
+        )
+        .unwrap();
+        SpecSet::load(dir).unwrap()
+    }
+
+    fn dec(s: &str) -> Decimal {
+        s.parse().unwrap()
+    }
+
+    fn win(lo: &str, hi: &str) -> Window {
+        Window {
+            min: Some(dec(lo)),
+            max: Some(dec(hi)),
+        }
+    }
+
+    // Expected verdicts from the ILAC-G8:09/2019 §4.2.3 zones (see spec::decision::verdict),
+    // counted by hand: lower limit TL, guard band w; x ≥ TL + w pass, TL ≤ x < TL + w
+    // conditional pass, TL − w ≤ x < TL conditional fail, below that fail.
+    #[test]
+    fn customer_fit_simple_rule_rounds_then_compares_with_the_tighter_window() {
+        let d = tempfile::tempdir().unwrap();
+        let set = specs(d.path());
+        let spec = set.latest("PD-2000").unwrap();
+        let p = spec.property("hydroxyl_value").unwrap();
+        let w = win("54", "58");
+        let fit = customer_fit(spec, p, Some(dec("56.04")), None, Some(&w));
+        assert_eq!(
+            fit,
+            Fit::Decided {
+                verdict: Verdict::Pass,
+                reported: dec("56.0"),
+                window: w,
+                uncertainty: None,
+            }
+        );
+        // 53.96 rounds to 54.0, on the customer's limit: pass (w = 0 under the simple rule).
+        assert!(customer_fit(spec, p, Some(dec("53.96")), None, Some(&w)).passes());
+        let low = customer_fit(spec, p, Some(dec("53.5")), None, Some(&w));
+        assert_eq!(low.verdict(), Some(Verdict::Fail));
+        assert!(!low.passes());
+        // Without the customer, 53.5 is inside the spec's 53..59.
+        assert!(customer_fit(spec, p, Some(dec("53.5")), None, None).passes());
+        assert_eq!(customer_fit(spec, p, None, None, Some(&w)), Fit::Missing);
+        assert!(!Fit::Missing.passes());
+    }
+
+    #[test]
+    fn customer_fit_guarded_rule_uses_the_recorded_uncertainty() {
+        let d = tempfile::tempdir().unwrap();
+        let set = guarded(d.path());
+        let spec = set.latest("PG-1").unwrap();
+        let p = spec.property("hydroxyl_value").unwrap();
+        let w = win("54", "58");
+        let v = |x: &str| customer_fit(spec, p, Some(dec(x)), None, Some(&w)).verdict();
+        assert_eq!(v("55.0"), Some(Verdict::Pass)); // 55.0 ≥ 54 + 0.8
+        assert_eq!(v("54.5"), Some(Verdict::ConditionalPass)); // 54 ≤ 54.5 < 54.8
+        assert_eq!(v("53.5"), Some(Verdict::ConditionalFail)); // 53.2 ≤ 53.5 < 54
+        assert_eq!(v("53.1"), Some(Verdict::Fail)); // below 54 − 0.8
+        assert_eq!(recorded_uncertainty(spec, p, None), Some(dec("0.8")));
+        // Mn's guard band is its recorded expanded uncertainty: 1930 < 1900 + 40.
+        let mn = spec.property("mn").unwrap();
+        assert_eq!(
+            customer_fit(spec, mn, Some(dec("1930")), Some(40.0), None).verdict(),
+            Some(Verdict::ConditionalPass)
+        );
+        assert_eq!(
+            customer_fit(spec, mn, Some(dec("1930")), None, None).verdict(),
+            Some(Verdict::Pass)
+        );
+    }
+
+    #[test]
+    fn customer_fit_without_limits_is_open_unless_the_customer_names_it() {
+        let d = tempfile::tempdir().unwrap();
+        let set = guarded(d.path());
+        let spec = set.latest("PG-1").unwrap();
+        let p = spec.property("colour").unwrap();
+        assert_eq!(customer_fit(spec, p, None, None, None), Fit::Open);
+        assert_eq!(customer_fit(spec, p, Some(dec("3")), None, None), Fit::Open);
+        let empty = Window {
+            min: None,
+            max: None,
+        };
+        assert_eq!(
+            customer_fit(spec, p, None, None, Some(&empty)),
+            Fit::Missing
+        );
+        assert_eq!(
+            customer_fit(spec, p, Some(dec("3")), None, Some(&empty)),
+            Fit::Open
         );
     }
 }

@@ -209,7 +209,48 @@ pub fn fmt_value(x: f64) -> String {
     format!("{x:.decimals$}")
 }
 
-type DrawResult = std::result::Result<(), Box<dyn std::error::Error>>;
+type DrawResult<T = ()> = std::result::Result<T, Box<dyn std::error::Error>>;
+
+/// A label in the right margin: its height on the value axis, its text and colour.
+type RightLabel = (f64, String, RGBColor);
+
+/// Sizes both panels share, from the input.
+struct Frame {
+    /// Number of lots.
+    n: usize,
+    /// Right end of the x axis (lots sit at 0..n-1).
+    x_end: f64,
+    /// Buckets a polyline is decimated to (two per pixel of plot width).
+    buckets: usize,
+    /// Most lot labels that fit under the chart.
+    max_labels: usize,
+    /// Height of the lot-label area under the moving-range panel.
+    x_label_area: u32,
+}
+
+impl Frame {
+    fn of(input: &ChartInput) -> Frame {
+        let n = input.values.len();
+        let plot_width = WIDTH as f64 - Y_LABEL_AREA as f64 - RIGHT_MARGIN as f64 - 10.0;
+        let longest = input
+            .lot_ids
+            .iter()
+            .map(|s| s.chars().count())
+            .max()
+            .unwrap_or(1);
+        Frame {
+            n,
+            x_end: n as f64 - 0.5,
+            buckets: 2 * plot_width as usize,
+            max_labels: ((plot_width / LABEL_PITCH) as usize).max(2),
+            x_label_area: (longest as u32 * 7 + 14).clamp(30, 110),
+        }
+    }
+
+    fn hline(&self, y: f64) -> Vec<(f64, f64)> {
+        vec![(-0.5, y), (self.x_end, y)]
+    }
+}
 
 fn draw<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, input: &ChartInput) -> DrawResult
 where
@@ -219,31 +260,52 @@ where
     // `root` covers the whole backend, so backend (pixel) coordinates can be drawn on it as is.
     let titled = root.titled(&title(input), ("sans-serif", 20).into_font().color(&TEXT))?;
     let (upper, lower) = titled.split_vertically((HEIGHT as f64 * 0.58) as u32);
-    let n = input.values.len();
-    let plot_width = WIDTH as f64 - Y_LABEL_AREA as f64 - RIGHT_MARGIN as f64 - 10.0;
-    let max_labels = ((plot_width / LABEL_PITCH) as usize).max(2);
-    let longest = input
-        .lot_ids
-        .iter()
-        .map(|s| s.chars().count())
-        .max()
-        .unwrap_or(1);
-    let x_label_area = (longest as u32 * 7 + 14).clamp(30, 110);
-    let x_range = -0.5..(n as f64 - 0.5);
-    let l = input.limits;
+    let frame = Frame::of(input);
+    let top = draw_individuals(root, &titled, &upper, input, &frame)?;
+    let bottom = draw_moving_ranges(root, &lower, input, &frame)?;
+    draw_lot_axis(
+        root,
+        &top,
+        &bottom,
+        input.lot_ids,
+        label_step(frame.n, frame.max_labels),
+    )?;
+    root.draw(&Text::new(
+        "ring and number: Nelson rule signalled at that lot; filled dot: moving range above its limit",
+        (WIDTH as i32 - 12, HEIGHT as i32 - 6),
+        ("sans-serif", 12)
+            .into_font()
+            .color(&TEXT)
+            .pos(Pos::new(HPos::Right, VPos::Bottom)),
+    ))?;
+    Ok(())
+}
 
-    // Individuals panel.
+/// The individuals panel: axes, centre line, control and spec limits, the frozen-limits
+/// marker, the values and their signals.
+fn draw_individuals<'a, DB: DrawingBackend>(
+    root: &DrawingArea<DB, Shift>,
+    titled: &DrawingArea<DB, Shift>,
+    upper: &'a DrawingArea<DB, Shift>,
+    input: &ChartInput,
+    frame: &Frame,
+) -> DrawResult<Chart<'a, DB>>
+where
+    DB::ErrorType: 'static,
+{
+    let n = frame.n;
+    let l = input.limits;
     let mut ys: Vec<f64> = vec![l.ucl, l.lcl, l.mean];
     ys.extend(input.spec_min);
     ys.extend(input.spec_max);
     let (y_lo, y_hi) = padded_range(input.values.iter().copied().chain(ys));
-    let mut top = ChartBuilder::on(&upper)
+    let mut top = ChartBuilder::on(upper)
         .margin_top(8)
         .margin_right(RIGHT_MARGIN)
         .margin_left(10)
         .x_label_area_size(10)
         .y_label_area_size(Y_LABEL_AREA)
-        .build_cartesian_2d(x_range.clone(), y_lo..y_hi)?;
+        .build_cartesian_2d(-0.5..frame.x_end, y_lo..y_hi)?;
     top.configure_mesh()
         .disable_x_mesh()
         .light_line_style(WHITE.mix(0.0))
@@ -254,26 +316,7 @@ where
         .y_desc(input.property)
         .label_style(("sans-serif", 13).into_font().color(&TEXT))
         .draw()?;
-    let x_end = n as f64 - 0.5;
-    let mut right_labels: Vec<(f64, String, RGBColor)> = Vec::new();
-    let hline = |y: f64| vec![(-0.5, y), (x_end, y)];
-    top.draw_series(LineSeries::new(hline(l.mean), CENTRE.stroke_width(1)))?;
-    right_labels.push((l.mean, format!("CL {}", fmt_value(l.mean)), CENTRE));
-    for (y, name) in [(l.ucl, "UCL"), (l.lcl, "LCL")] {
-        top.draw_series(DashedLineSeries::new(
-            hline(y),
-            8,
-            5,
-            CONTROL.stroke_width(2),
-        ))?;
-        right_labels.push((y, format!("{name} {}", fmt_value(y)), CONTROL));
-    }
-    for (y, name) in [(input.spec_max, "USL"), (input.spec_min, "LSL")] {
-        if let Some(y) = y {
-            top.draw_series(LineSeries::new(hline(y), SPEC.stroke_width(3)))?;
-            right_labels.push((y, format!("{name} {}", fmt_value(y)), SPEC));
-        }
-    }
+    let right_labels = draw_limit_lines(&mut top, input, frame)?;
     if let Some(b) = input.baseline_len.filter(|&b| b > 0 && b < n) {
         let x = b as f64 - 0.5;
         top.draw_series(DashedLineSeries::new(
@@ -292,9 +335,8 @@ where
             .into_dyn(),
         )?;
     }
-    let buckets = 2 * plot_width as usize;
     top.draw_series(LineSeries::new(
-        decimate(input.values.iter().copied().enumerate(), n, buckets),
+        decimate(input.values.iter().copied().enumerate(), n, frame.buckets),
         POINT.stroke_width(1),
     ))?;
     if n <= MAX_MARKERS {
@@ -307,19 +349,64 @@ where
         )?;
     }
     draw_signals(root, &top, input)?;
-    draw_right_labels(root, &top, x_end, &right_labels)?;
+    draw_right_labels(root, &top, frame.x_end, &right_labels)?;
+    Ok(top)
+}
 
-    // Moving-range panel.
+/// Centre line, control limits (dashed) and spec limits of the individuals panel; returns
+/// their labels for the right margin.
+fn draw_limit_lines<DB: DrawingBackend>(
+    top: &mut Chart<'_, DB>,
+    input: &ChartInput,
+    frame: &Frame,
+) -> DrawResult<Vec<RightLabel>>
+where
+    DB::ErrorType: 'static,
+{
+    let l = input.limits;
+    let mut right_labels: Vec<RightLabel> = Vec::new();
+    top.draw_series(LineSeries::new(frame.hline(l.mean), CENTRE.stroke_width(1)))?;
+    right_labels.push((l.mean, format!("CL {}", fmt_value(l.mean)), CENTRE));
+    for (y, name) in [(l.ucl, "UCL"), (l.lcl, "LCL")] {
+        top.draw_series(DashedLineSeries::new(
+            frame.hline(y),
+            8,
+            5,
+            CONTROL.stroke_width(2),
+        ))?;
+        right_labels.push((y, format!("{name} {}", fmt_value(y)), CONTROL));
+    }
+    for (y, name) in [(input.spec_max, "USL"), (input.spec_min, "LSL")] {
+        if let Some(y) = y {
+            top.draw_series(LineSeries::new(frame.hline(y), SPEC.stroke_width(3)))?;
+            right_labels.push((y, format!("{name} {}", fmt_value(y)), SPEC));
+        }
+    }
+    Ok(right_labels)
+}
+
+/// The moving-range panel: axes, MR̄ and its upper limit, the ranges, and the ranges beyond
+/// the limit as filled dots.
+fn draw_moving_ranges<'a, DB: DrawingBackend>(
+    root: &DrawingArea<DB, Shift>,
+    lower: &'a DrawingArea<DB, Shift>,
+    input: &ChartInput,
+    frame: &Frame,
+) -> DrawResult<Chart<'a, DB>>
+where
+    DB::ErrorType: 'static,
+{
+    let (n, l) = (frame.n, input.limits);
     let (_, mr_hi) =
         padded_range(crate::stats::moving_ranges(input.values).chain([l.mr_ucl, l.mr_bar]));
-    let mut bottom = ChartBuilder::on(&lower)
+    let mut bottom = ChartBuilder::on(lower)
         .margin_top(6)
         .margin_bottom(22)
         .margin_right(RIGHT_MARGIN)
         .margin_left(10)
-        .x_label_area_size(x_label_area)
+        .x_label_area_size(frame.x_label_area)
         .y_label_area_size(Y_LABEL_AREA)
-        .build_cartesian_2d(x_range, 0.0..mr_hi)?;
+        .build_cartesian_2d(-0.5..frame.x_end, 0.0..mr_hi)?;
     bottom
         .configure_mesh()
         .disable_x_mesh()
@@ -331,9 +418,12 @@ where
         .y_label_formatter(&|y| fmt_tick(*y, mr_hi))
         .y_desc("moving range")
         .draw()?;
-    bottom.draw_series(LineSeries::new(hline(l.mr_bar), CENTRE.stroke_width(1)))?;
+    bottom.draw_series(LineSeries::new(
+        frame.hline(l.mr_bar),
+        CENTRE.stroke_width(1),
+    ))?;
     bottom.draw_series(DashedLineSeries::new(
-        hline(l.mr_ucl),
+        frame.hline(l.mr_ucl),
         8,
         5,
         CONTROL.stroke_width(2),
@@ -352,7 +442,7 @@ where
             .enumerate()
             .map(|(i, r)| (i + 1, r)),
         n - 1,
-        buckets,
+        frame.buckets,
     );
     bottom.draw_series(LineSeries::new(mr_line, POINT.stroke_width(1)))?;
     if n <= MAX_MARKERS {
@@ -365,23 +455,8 @@ where
             .filter(|&(_, r)| r > l.mr_ucl)
             .map(|p| Circle::new(p, dot, SIGNAL.filled())),
     )?;
-    draw_right_labels(root, &bottom, x_end, &mr_labels)?;
-    draw_lot_axis(
-        root,
-        &top,
-        &bottom,
-        input.lot_ids,
-        label_step(n, max_labels),
-    )?;
-    root.draw(&Text::new(
-        "ring and number: Nelson rule signalled at that lot; filled dot: moving range above its limit",
-        (WIDTH as i32 - 12, HEIGHT as i32 - 6),
-        ("sans-serif", 12)
-            .into_font()
-            .color(&TEXT)
-            .pos(Pos::new(HPos::Right, VPos::Bottom)),
-    ))?;
-    Ok(())
+    draw_right_labels(root, &bottom, frame.x_end, &mr_labels)?;
+    Ok(bottom)
 }
 
 /// The polyline of `points` (index, value), thinned for long series: when there are more than

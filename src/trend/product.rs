@@ -3,8 +3,11 @@
 
 use serde::Serialize;
 
+use rust_decimal::Decimal;
+
 use crate::error::{Error, Result};
 use crate::record::query::LotRow;
+use crate::spec::{ProductSpec, Property, SpecSet};
 use crate::stats::{self, Capability, Limits, Normality, RuleSet, SpecWindow};
 
 /// Where the control limits come from.
@@ -214,6 +217,116 @@ pub fn property_trend(
     })
 }
 
+/// The baseline of the first `n` lots; a moving range needs at least 2 lots.
+pub fn baseline_first(n: usize) -> Result<Baseline> {
+    if n < 2 {
+        return Err(Error::invalid(
+            "--baseline",
+            format!("{n} lot(s) cannot give a moving range"),
+            "Give at least 2 lots (more than 20 is common practice).",
+        ));
+    }
+    Ok(Baseline::First(n))
+}
+
+/// The trend-file columns to load: every key, or for one property only its own column (and
+/// both Mn and viscosity for their joint check when it is either), in header order.
+pub fn columns_for(keys: &[String], property: Option<&str>) -> Vec<String> {
+    match property {
+        Some(p) => keys
+            .iter()
+            .filter(|k| {
+                *k == p
+                    || (matches!(p, "mn" | "viscosity") && matches!(k.as_str(), "mn" | "viscosity"))
+            })
+            .cloned()
+            .collect(),
+        None => keys.to_vec(),
+    }
+}
+
+/// The spec revision in effect for the latest selected lot (lots in manufacture order), or the
+/// product's latest revision when none is dated for it.
+pub fn spec_for<'a>(specs: &'a SpecSet, product: &str, lots: &[LotRow]) -> Option<&'a ProductSpec> {
+    let latest_date = lots
+        .last()
+        .and_then(|l| chrono::NaiveDate::parse_from_str(&l.manufactured, "%Y-%m-%d").ok());
+    latest_date
+        .and_then(|d| specs.for_date(product, d).ok())
+        .or_else(|| specs.latest(product))
+}
+
+/// The spec's window on a property as numbers for capability (open without a spec).
+pub fn spec_window(p: Option<&Property>) -> SpecWindow {
+    let num = |d: Option<Decimal>| d.and_then(|d| d.to_string().parse().ok());
+    SpecWindow {
+        min: num(p.and_then(|p| p.min)),
+        max: num(p.and_then(|p| p.max)),
+    }
+}
+
+/// What to trend: the product, the lots (loaded with `columns`), the spec, and how.
+#[derive(Debug, Clone, Copy)]
+pub struct TrendRequest<'a> {
+    /// Product code.
+    pub product: &'a str,
+    /// Columns the lots were loaded with, in order.
+    pub columns: &'a [String],
+    /// Selected lots, in manufacture order.
+    pub lots: &'a [LotRow],
+    /// Spec revision giving labels, units and windows (None: keys, no window).
+    pub spec: Option<&'a ProductSpec>,
+    /// One property, or None for every column.
+    pub property: Option<&'a str>,
+    /// Where the control limits come from.
+    pub baseline: &'a Baseline,
+    /// Nelson rules applied.
+    pub rules: RuleSet,
+}
+
+/// The trend of the one property asked for, or of every column; in the overview a property
+/// with too few values is skipped, not fatal. Errors when no trend remains.
+pub fn property_trends(req: &TrendRequest) -> Result<Vec<PropertyTrend>> {
+    let mut trends = Vec::new();
+    for (col, key) in req.columns.iter().enumerate() {
+        if req.property.is_some_and(|p| p != key) {
+            continue;
+        }
+        let p = req.spec.and_then(|s| s.property(key));
+        let label = p.map_or(key.as_str(), |p| p.label.as_str());
+        let unit = p.map_or("", |p| if p.unit == "1" { "" } else { p.unit.as_str() });
+        match property_trend(
+            req.product,
+            key,
+            col,
+            label,
+            unit,
+            req.lots,
+            spec_window(p),
+            req.spec.map(|s| s.revision.clone()),
+            req.baseline,
+            req.rules,
+        ) {
+            Ok(t) => trends.push(t),
+            Err(_) if req.property.is_none() => {}
+            Err(e) => return Err(e),
+        }
+    }
+    if trends.is_empty() {
+        return Err(Error::invalid(
+            format!("product '{}'", req.product),
+            "no property has at least 2 lots in the selection and the baseline",
+            "Widen --from/--to, or move --baseline-until past the first lots.",
+        ));
+    }
+    Ok(trends)
+}
+
+/// True when any trend has a run-rule signal or any lot is off the viscosity–Mn line.
+pub fn any_signal(trends: &[PropertyTrend], visc: Option<&ViscosityCheck>) -> bool {
+    trends.iter().any(|t| !t.signals.is_empty()) || visc.is_some_and(|v| !v.off_line.is_empty())
+}
+
 /// A lot whose viscosity is off the log-log line for its Mn.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct OffLine {
@@ -233,6 +346,12 @@ pub struct ViscosityCheck {
     pub fit: stats::LogLogFit,
     /// Lots off the line by more than 3 robust standard deviations.
     pub off_line: Vec<OffLine>,
+}
+
+/// The viscosity–Mn check when both columns were loaded ([`viscosity_check`]).
+pub fn viscosity_check_of(lots: &[LotRow], columns: &[String]) -> Option<ViscosityCheck> {
+    let at = |k: &str| columns.iter().position(|c| c == k);
+    viscosity_check(lots, at("mn")?, at("viscosity")?)
 }
 
 /// Fits log viscosity against log Mn and lists the lots off the line, or None when fewer than
@@ -262,4 +381,186 @@ pub fn viscosity_check(lots: &[LotRow], mn: usize, visc: usize) -> Option<Viscos
         })
         .collect();
     Some(ViscosityCheck { fit, off_line })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Fixture lots with invented values; every expected number below is counted by hand.
+    fn lot(
+        line: usize,
+        id: &str,
+        made: &str,
+        status: &'static str,
+        values: &[Option<f64>],
+    ) -> LotRow {
+        LotRow {
+            line,
+            lot: id.into(),
+            manufactured: made.into(),
+            status,
+            revision: "A",
+            mn_uncertainty: None,
+            values: values.to_vec(),
+        }
+    }
+
+    /// Values 10, 12, 11, 13, 12 (then more) on consecutive days, all released.
+    fn series(values: &[f64]) -> Vec<LotRow> {
+        values
+            .iter()
+            .enumerate()
+            .map(|(i, &v)| {
+                lot(
+                    i + 2,
+                    &format!("L{i}"),
+                    &format!("2026-03-{:02}", i + 1),
+                    "released",
+                    &[Some(v)],
+                )
+            })
+            .collect()
+    }
+
+    fn date(s: &str) -> chrono::NaiveDate {
+        s.parse().unwrap()
+    }
+
+    fn trend(lots: &[LotRow], baseline: &Baseline) -> Result<PropertyTrend> {
+        property_trend(
+            "PD-2000",
+            "acid_value",
+            0,
+            "Acid value",
+            "mg KOH/g",
+            lots,
+            SpecWindow {
+                min: None,
+                max: None,
+            },
+            None,
+            baseline,
+            RuleSet::parse("all", "--rules").unwrap(),
+        )
+    }
+
+    #[test]
+    fn select_keeps_the_window_and_status_in_manufacture_order() {
+        let lots = vec![
+            lot(2, "C", "2026-03-03", "released", &[]),
+            lot(3, "A", "2026-03-01", "on_hold", &[]),
+            lot(4, "B", "2026-03-02", "released", &[]),
+            lot(5, "B2", "2026-03-02", "rejected", &[]),
+            lot(6, "D", "2026-03-04", "released", &[]),
+        ];
+        let ids = |v: Vec<LotRow>| v.iter().map(|l| l.lot.to_string()).collect::<Vec<_>>();
+        // Same day: record order (line) decides.
+        assert_eq!(
+            ids(select(lots.clone(), &Selection::default())),
+            ["A", "B", "B2", "C", "D"]
+        );
+        let sel = Selection {
+            from: Some(date("2026-03-02")),
+            to: Some(date("2026-03-03")),
+            released_only: false,
+        };
+        assert_eq!(ids(select(lots.clone(), &sel)), ["B", "B2", "C"]);
+        let released = Selection {
+            released_only: true,
+            ..sel
+        };
+        assert_eq!(ids(select(lots, &released)), ["B", "C"]);
+    }
+
+    #[test]
+    fn columns_for_one_property_keep_mn_and_viscosity_together() {
+        let keys: Vec<String> = ["acid_value", "viscosity", "mn", "xn"]
+            .map(String::from)
+            .to_vec();
+        assert_eq!(columns_for(&keys, None), keys);
+        assert_eq!(columns_for(&keys, Some("acid_value")), ["acid_value"]);
+        assert_eq!(columns_for(&keys, Some("mn")), ["viscosity", "mn"]);
+        assert_eq!(columns_for(&keys, Some("viscosity")), ["viscosity", "mn"]);
+    }
+
+    #[test]
+    fn a_baseline_needs_two_lots() {
+        assert!(baseline_first(1).is_err());
+        assert!(baseline_first(0).is_err());
+        assert_eq!(baseline_first(2).unwrap(), Baseline::First(2));
+    }
+
+    // I-MR: x̄ = Σx/n, MR̄ = mean |xᵢ − xᵢ₋₁|, limits x̄ ± 2.66·MR̄ (2.66 = 3/d2, d2 = 1.128),
+    // MR UCL = 3.267·MR̄: NIST/SEMATECH e-Handbook of Statistical Methods §6.3.2.2.
+    #[test]
+    fn limits_from_all_lots() {
+        let t = trend(&series(&[10.0, 12.0, 11.0, 13.0, 12.0]), &Baseline::All).unwrap();
+        // x̄ = 58/5 = 11.6; ranges 2, 1, 2, 1, MR̄ = 1.5.
+        assert_eq!((t.n, t.baseline_n), (5, 5));
+        assert!((t.limits.mean - 11.6).abs() < 1e-12);
+        assert!((t.limits.mr_bar - 1.5).abs() < 1e-12);
+        assert!((t.limits.ucl - (11.6 + 2.66 * 1.5)).abs() < 5e-3);
+        assert!((t.limits.lcl - (11.6 - 2.66 * 1.5)).abs() < 5e-3);
+        assert!((t.limits.mr_ucl - 3.267 * 1.5).abs() < 1e-9);
+        assert_eq!(
+            (t.date_from.as_str(), t.date_to.as_str()),
+            ("2026-03-01", "2026-03-05")
+        );
+        assert!(t.signals.is_empty());
+        assert!(t.capability.is_none());
+        assert!(!any_signal(std::slice::from_ref(&t), None));
+    }
+
+    #[test]
+    fn frozen_baseline_flags_a_later_lot() {
+        let lots = series(&[10.0, 12.0, 11.0, 13.0, 12.0, 20.0]);
+        let t = trend(&lots, &Baseline::First(5)).unwrap();
+        // Limits from the first five only: UCL = 11.6 + 2.66 · 1.5 ≈ 15.59 < 20 (rule 1).
+        assert_eq!((t.n, t.baseline_n), (6, 5));
+        assert!((t.limits.mean - 11.6).abs() < 1e-12);
+        assert!(t.signals.iter().any(|s| s.rule == 1
+            && s.lot == "L5"
+            && s.index == 5
+            && s.manufactured == "2026-03-06"));
+        assert!(t
+            .warnings
+            .iter()
+            .any(|w| w == "limits frozen from the first 5 lots and applied to the later 1"));
+        assert!(any_signal(std::slice::from_ref(&t), None));
+        // A baseline longer than the lots is all of them.
+        assert_eq!(trend(&lots, &Baseline::First(50)).unwrap().baseline_n, 6);
+    }
+
+    #[test]
+    fn baseline_until_a_date_counts_lots_with_a_value() {
+        let mut lots = series(&[10.0, 12.0, 11.0, 13.0, 12.0]);
+        lots[1].values = vec![None];
+        // Up to 2026-03-03: lots L0 and L2 have values (L1 has none), so 2 baseline lots.
+        let t = trend(&lots, &Baseline::Until(date("2026-03-03"))).unwrap();
+        assert_eq!((t.n, t.baseline_n), (4, 2));
+        assert_eq!(t.lots, ["L0", "L2", "L3", "L4"]);
+        // x̄ of 10 and 11 = 10.5, one range of 1.
+        assert!((t.limits.mean - 10.5).abs() < 1e-12);
+        assert!((t.limits.mr_bar - 1.0).abs() < 1e-12);
+        let e = trend(&lots, &Baseline::Until(date("2026-03-01")))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("the baseline holds 1 lot(s)"), "{e}");
+    }
+
+    #[test]
+    fn fewer_than_two_values_is_refused() {
+        let e = trend(&series(&[10.0]), &Baseline::All)
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("1 lot(s) with a value"), "{e}");
+    }
+
+    #[test]
+    fn viscosity_check_needs_both_columns() {
+        let lots = series(&[10.0, 12.0, 11.0]);
+        let cols = vec!["mn".to_string()];
+        assert!(viscosity_check_of(&lots, &cols).is_none());
+    }
 }

@@ -753,8 +753,12 @@ fn viscosity_page(page: &mut Canvas, input: &ReportInput, v: &ViscosityCheck) {
         "A viscosity off the line for its Mn points to branching, contamination or a wrong solids content, which neither property's own chart shows.".to_string(),
     ];
     page.bullets(left, right, y + 4.0, BODY_BOTTOM, &notes, ACCENT);
+    off_line_table(page, v);
+}
 
-    // Flagged lots in the right half.
+/// The lots off the viscosity–Mn line, in the right half of the page (as many as fit, then a
+/// count of the rest).
+fn off_line_table(page: &mut Canvas, v: &ViscosityCheck) {
     let x = MARGIN + 140.0;
     let r = COL_R;
     page.heading(

@@ -1,0 +1,172 @@
+//! Finding lots in a product's trend file: status, manufacture dates, windows on recorded
+//! values and a customer's requirements (read-only; the rules come from `spec`).
+
+use chrono::NaiveDate;
+
+use crate::error::{Error, Result};
+use crate::lot::evaluate::Status;
+use crate::record::query::{LotRow, Window};
+use crate::spec::customer::{customer_fit, CustomerProduct};
+use crate::spec::decision::decimal_from_f64;
+use crate::spec::SpecSet;
+
+/// Properties the table of found lots shows after the windows' own keys.
+pub const HEADLINE_KEYS: [&str; 3] = ["mn", "acid_value", "hydroxyl_value"];
+
+/// A customer's requirements for the product searched, with the specs they tighten.
+#[derive(Debug, Clone, Copy)]
+pub struct CustomerCheck<'a> {
+    /// Every spec revision (a lot is judged under the revision it was released under).
+    pub specs: &'a SpecSet,
+    /// The customer's requirements for the product.
+    pub requirements: &'a CustomerProduct,
+}
+
+/// What a lot must meet to be found.
+#[derive(Debug, Clone)]
+pub struct LotFilter<'a> {
+    /// Product code.
+    pub product: &'a str,
+    /// Windows on recorded full-precision values (inclusive bounds).
+    pub windows: &'a [Window],
+    /// Only lots with this status.
+    pub status: Option<Status>,
+    /// Only lots manufactured on or after this date.
+    pub from: Option<NaiveDate>,
+    /// Only lots manufactured on or before this date.
+    pub to: Option<NaiveDate>,
+    /// Only lots that can be certified for this customer.
+    pub customer: Option<CustomerCheck<'a>>,
+}
+
+/// The status asked for, or by default: any status, but only released lots for a customer
+/// (only a released lot can be certified).
+pub fn status_or_default(asked: Option<Status>, for_customer: bool) -> Option<Status> {
+    asked.or(for_customer.then_some(Status::Released))
+}
+
+/// Checks that every window names a property of the trend file (`keys`, from its header).
+pub fn check_window_keys(product: &str, keys: &[String], windows: &[Window]) -> Result<()> {
+    for w in windows {
+        if !keys.contains(&w.key) {
+            return Err(Error::invalid(
+                format!("--where '{}=...'", w.key),
+                format!("{product} has no property '{}'", w.key),
+                format!("Use one of: {}.", keys.join(", ")),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// The columns to load: every key when `every` (JSON, CSV, a customer's check), otherwise only
+/// the windows' keys and the [`HEADLINE_KEYS`], in header order.
+pub fn keys_to_load(keys: &[String], windows: &[Window], every: bool) -> Vec<String> {
+    if every {
+        return keys.to_vec();
+    }
+    keys.iter()
+        .filter(|k| windows.iter().any(|w| w.key == **k) || HEADLINE_KEYS.contains(&k.as_str()))
+        .cloned()
+        .collect()
+}
+
+/// The lots (`lots`, loaded with the columns `loaded`) that meet `filter`, newest first (then
+/// latest record line first).
+pub fn matching_lots<'r>(
+    lots: &'r [LotRow],
+    loaded: &[String],
+    filter: &LotFilter,
+) -> Vec<&'r LotRow> {
+    // Dates are YYYY-MM-DD, so text order is date order: no parsing per row.
+    let from = filter.from.map(|d| d.to_string());
+    let to = filter.to.map(|d| d.to_string());
+    let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
+    let win_idx: Vec<usize> = filter.windows.iter().map(|w| at(&w.key)).collect();
+    let mut hits: Vec<&LotRow> = lots
+        .iter()
+        .filter(|row| filter.status.is_none_or(|s| s.as_str() == row.status))
+        .filter(|row| {
+            let made: &str = &row.manufactured;
+            from.as_deref().is_none_or(|f| made >= f) && to.as_deref().is_none_or(|t| made <= t)
+        })
+        .filter(|row| {
+            filter
+                .windows
+                .iter()
+                .zip(&win_idx)
+                .all(|(w, &i)| row.values[i].is_some_and(|v| w.contains(v)))
+        })
+        .filter(|row| {
+            filter
+                .customer
+                .is_none_or(|c| fits_customer(filter.product, row, loaded, c))
+        })
+        .collect();
+    hits.sort_by(|a, b| {
+        b.manufactured
+            .cmp(&a.manufactured)
+            .then(b.line.cmp(&a.line))
+    });
+    hits
+}
+
+/// True when every property of the lot's spec revision fits the customer's requirements
+/// ([`customer_fit`]); a lot whose revision is not in the specs does not fit.
+pub fn fits_customer(product: &str, row: &LotRow, loaded: &[String], c: CustomerCheck) -> bool {
+    let Some(spec) = c.specs.revision(product, row.revision) else {
+        return false;
+    };
+    spec.properties.iter().all(|p| {
+        let value = loaded
+            .iter()
+            .position(|k| *k == p.key)
+            .and_then(|i| row.values[i])
+            .and_then(decimal_from_f64);
+        customer_fit(
+            spec,
+            p,
+            value,
+            row.mn_uncertainty,
+            c.requirements.limits.get(&p.key),
+        )
+        .passes()
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn window(key: &str, lo: Option<f64>, hi: Option<f64>) -> Window {
+        Window {
+            key: key.into(),
+            lo,
+            hi,
+        }
+    }
+
+    #[test]
+    fn table_loads_only_windows_and_headline_keys() {
+        let keys: Vec<String> = ["acid_value", "hydroxyl_value", "viscosity", "mn", "colour"]
+            .map(String::from)
+            .to_vec();
+        let w = [window("colour", None, Some(2.0))];
+        assert_eq!(
+            keys_to_load(&keys, &w, false),
+            ["acid_value", "hydroxyl_value", "mn", "colour"]
+        );
+        assert_eq!(keys_to_load(&keys, &w, true), keys);
+        assert!(check_window_keys("PD-2000", &keys, &w).is_ok());
+        assert_eq!(status_or_default(None, true), Some(Status::Released));
+        assert_eq!(status_or_default(None, false), None);
+        assert_eq!(
+            status_or_default(Some(Status::OnHold), true),
+            Some(Status::OnHold)
+        );
+        let e = check_window_keys("PD-2000", &keys, &[window("tg", None, None)])
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("PD-2000 has no property 'tg'"), "{e}");
+    }
+}
