@@ -12,11 +12,12 @@ use crate::certificate::model::{
     Supersedes,
 };
 use crate::error::{Error, Result};
-use crate::lot::evaluate::{unit_factor, LotDecision, Status};
+use crate::lot::evaluate::{LotDecision, Status};
 use crate::lot::note::LotNote;
 use crate::record::trend_file::{Row, Trend};
 use crate::spec::customer::{combined, customer_fit, Customer, CustomerProduct, Fit};
 use crate::spec::decision::{decimal_from_f64, round, DecisionRule, Verdict};
+use crate::spec::units::unit_factor;
 use crate::spec::{end_groups_words, limits_text, ProductSpec, Property};
 
 /// What the record holds about a lot, as needed for a certificate.
@@ -112,7 +113,7 @@ impl LotRecord {
             mn_uncertainty: mn_u,
             approver: approver.to_string(),
             decided_at: now.to_string(),
-            notes: d.notes.iter().map(|n| LotNote::parse(n)).collect(),
+            notes: d.notes.clone(),
         }
     }
 

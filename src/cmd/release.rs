@@ -456,7 +456,7 @@ fn render(
                     "  {} {}: {}\n",
                     d.lot,
                     d.status.as_str(),
-                    d.notes.join("; ")
+                    crate::lot::note::LotNote::cell(&d.notes)
                 ));
             }
         }

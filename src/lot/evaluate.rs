@@ -10,8 +10,14 @@ use serde::Serialize;
 use crate::chem::analysis::{analyse, Titration};
 use crate::error::{Error, Result};
 use crate::lot::intake::{LotResults, Reading};
+use crate::lot::note::LotNote;
 use crate::spec::decision::{decimal_from_f64, round, verdict, DecisionRule, Verdict};
+use crate::spec::units::unit_factor;
 use crate::spec::{ProductSpec, Property};
+
+/// The guard bands live with the customer-fit rule in the spec layer; re-exported for callers
+/// of the lot layer.
+pub use crate::spec::customer::{guard_uncertainty, recorded_uncertainty};
 
 /// Release status of a lot.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, serde::Deserialize)]
@@ -90,36 +96,13 @@ pub struct LotDecision {
     /// Every property of the spec, in its order.
     pub properties: Vec<PropertyResult>,
     /// Reasons and notes (conditional results, corrections, missing values).
-    pub notes: Vec<String>,
+    pub notes: Vec<LotNote>,
 }
 
 impl LotDecision {
     /// The result for `key`.
     pub fn get(&self, key: &str) -> Option<&PropertyResult> {
         self.properties.iter().find(|p| p.property == key)
-    }
-}
-
-/// Factor converting a value in unit `from` to unit `to`; None when not a known conversion.
-pub fn unit_factor(from: &str, to: &str) -> Option<Decimal> {
-    let norm = |u: &str| {
-        u.trim()
-            .to_ascii_lowercase()
-            .replace(['·', '.', ' ', '*'], "")
-    };
-    let (f, t) = (norm(from), norm(to));
-    if f == t {
-        return Some(Decimal::ONE);
-    }
-    // Viscosity: 1 cP = 1 mPa·s; 1 Pa·s = 1000 mPa·s (SI; ISO 80000-4).
-    let mpas = |u: &str| match u {
-        "mpas" | "cp" | "cps" => Some(Decimal::ONE),
-        "pas" => Some(Decimal::from(1000)),
-        _ => None,
-    };
-    match (mpas(&f), mpas(&t)) {
-        (Some(a), Some(b)) => Some(a / b),
-        _ => None,
     }
 }
 
@@ -150,7 +133,7 @@ fn mean_reading(
     lot: &LotResults,
     p: &Property,
     readings: &[Reading],
-    notes: &mut Vec<String>,
+    notes: &mut Vec<LotNote>,
     file: &str,
 ) -> Result<Mean> {
     let mut values = Vec::with_capacity(readings.len());
@@ -184,10 +167,7 @@ fn mean_reading(
                 })?;
                 let corrected = andrade_correct(to_f64(v), t, ts, b);
                 v = decimal_from_f64(corrected).unwrap_or(v);
-                notes.push(format!(
-                    "{}: measured at {t} °C, corrected to {ts} °C by Andrade's equation (B = {b} K)",
-                    p.label
-                ));
+                notes.push(LotNote::temperature_corrected(&p.label, t, ts, b));
             }
         }
         values.push(v);
@@ -218,11 +198,11 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
         if let Some(v) = r.verdict {
             if v != Verdict::Pass {
                 let label = &spec.property(&r.property).unwrap().label;
-                notes.push(format!(
-                    "{label} {} {}: {}",
+                notes.push(LotNote::not_passed(
+                    label,
                     r.reported.as_deref().unwrap_or(""),
-                    r.unit,
-                    v.words()
+                    &r.unit,
+                    v.words(),
                 ));
             }
         }
@@ -297,7 +277,7 @@ fn measured_means(
     spec: &ProductSpec,
     lot: &LotResults,
     file: &str,
-    notes: &mut Vec<String>,
+    notes: &mut Vec<LotNote>,
 ) -> Result<Means> {
     let mut means = Means {
         values: Vec::new(),
@@ -307,7 +287,7 @@ fn measured_means(
     for p in spec.measured() {
         let Some(readings) = lot.readings.get(&p.key) else {
             means.any_missing = true;
-            notes.push(format!("{} was not measured", p.label));
+            notes.push(LotNote::not_measured(&p.label));
             continue;
         };
         let m = mean_reading(lot, p, readings, notes, file)?;
@@ -315,15 +295,9 @@ fn measured_means(
             match p.repeatability {
                 Some(r) if m.range > r => {
                     means.repeat_fail = true;
-                    notes.push(format!(
-                        "{}: range of {} replicates {} exceeds the repeatability limit {}",
-                        p.label, m.n, m.range, r
-                    ));
+                    notes.push(LotNote::repeatability_exceeded(&p.label, m.n, m.range, r));
                 }
-                _ => notes.push(format!(
-                    "{}: mean of {} replicates (range {})",
-                    p.label, m.n, m.range
-                )),
+                _ => notes.push(LotNote::replicates(&p.label, m.n, m.range)),
             }
         }
         means.values.push((p.key.clone(), m.value));
@@ -427,39 +401,6 @@ fn derived_results(
         }
     }
     Ok(any_missing)
-}
-
-/// Expanded uncertainty of a measured property's decided value: the spec's U, combined with
-/// U(AV) for an acidity-corrected hydroxyl value (GUM, JCGM 100:2008 §5.1.2, uncorrelated).
-pub fn guard_uncertainty(spec: &ProductSpec, p: &Property) -> Option<Decimal> {
-    if p.key == "hydroxyl_value" && p.acidity_correction {
-        let u_av = spec.property("acid_value").and_then(|a| a.uncertainty);
-        match (p.uncertainty, u_av) {
-            (Some(uo), Some(ua)) => {
-                decimal_from_f64((to_f64(uo).powi(2) + to_f64(ua).powi(2)).sqrt())
-            }
-            (uo, _) => uo,
-        }
-    } else {
-        p.uncertainty
-    }
-}
-
-/// Guard band of a recorded value for a later check (a customer's window): the recorded
-/// expanded uncertainty of Mn, the spec's U for measured properties, and none for the other
-/// derived properties (their propagated U is not kept in the trend file, so w = 0 there).
-pub fn recorded_uncertainty(
-    spec: &ProductSpec,
-    p: &Property,
-    mn_uncertainty: Option<f64>,
-) -> Option<Decimal> {
-    if p.key == "mn" {
-        mn_uncertainty.and_then(decimal_from_f64)
-    } else if p.derived {
-        None
-    } else {
-        guard_uncertainty(spec, p)
-    }
 }
 
 fn missing(p: &Property) -> PropertyResult {
@@ -582,6 +523,7 @@ pub fn parse_decimal(text: &str) -> Option<Decimal> {
 mod tests {
     use super::*;
     use crate::lot::intake::{parse, Options};
+    use crate::lot::note::NoteKind;
     use std::path::Path;
 
     const SPEC: &str = r#"
@@ -687,7 +629,10 @@ decimals = 0
             expected,
             max_relative = 1e-9
         );
-        assert!(d.notes.iter().any(|n| n.contains("Andrade")));
+        assert!(d
+            .notes
+            .iter()
+            .any(|n| n.kind == NoteKind::TemperatureCorrected && n.text.contains("Andrade")));
     }
 
     #[test]
@@ -709,7 +654,12 @@ decimals = 0
                      L1,PD-2000,hydroxyl_value,56.5,2,\n\
                      L1,PD-2000,viscosity,520,1,\n");
         assert_eq!(d.status, Status::OnHold);
-        assert!(d.notes.iter().any(|n| n.contains("repeatability")));
+        assert!(
+            d.notes
+                .iter()
+                .any(|n| n.kind == NoteKind::RepeatabilityExceeded
+                    && n.text.contains("repeatability"))
+        );
     }
 
     #[test]

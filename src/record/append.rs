@@ -10,6 +10,7 @@ use serde::Serialize;
 
 use crate::error::{Error, Result};
 use crate::lot::evaluate::LotDecision;
+use crate::lot::note::LotNote;
 use crate::record::trend_file::{self, Locked, Trend, Wait};
 use crate::spec::SpecSet;
 
@@ -233,7 +234,7 @@ pub fn row_cells(d: &LotDecision, plan: &Plan, approver: &str, now: &str) -> Vec
         ("spec_revision", d.spec_revision.clone()),
         ("status", d.status.as_str().to_string()),
         ("approver", approver.to_string()),
-        ("notes", d.notes.join("; ")),
+        ("notes", LotNote::cell(&d.notes)),
     ];
     let verdicts: Vec<String> = d
         .properties

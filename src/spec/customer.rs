@@ -218,7 +218,7 @@ fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result
         for (k, unit) in &p.units {
             known(k, &format!(".units.{k}"))?;
             let sp = spec.property(k).expect("checked");
-            if crate::lot::evaluate::unit_factor(&sp.unit, unit).is_none() {
+            if crate::spec::units::unit_factor(&sp.unit, unit).is_none() {
                 return Err(Error::invalid(
                     place(&format!(".units.{k}")),
                     format!("'{unit}' cannot be converted from the spec's '{}'", sp.unit),

@@ -6,5 +6,6 @@ pub mod customer;
 pub mod decision;
 pub mod keys;
 pub mod product;
+pub mod units;
 
 pub use product::*;
