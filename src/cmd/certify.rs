@@ -1,11 +1,11 @@
 //! `resinlot certify`: a customer's certificate of analysis for one released lot.
 
-use std::path::PathBuf;
 use std::time::Duration;
 
 use crate::certificate::build::{self, LotRecord, Shipment};
 use crate::certificate::issue::{Issuer, Pending};
 use crate::certificate::model::Supersedes;
+use crate::cmd::args::{CertificatesFolder, Locking, RegisterFolder, SpecsFolder, TemplatesFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::lot::evaluate::Status;
@@ -32,52 +32,27 @@ pub struct Args {
     /// reissue, which supersedes the previous certificate (the old file stays).
     #[arg(long, value_name = "TEXT")]
     pub reason: Option<String>,
-    /// Folder holding the product specs and customers/. Default: specs.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "specs",
-        value_name = "DIR"
-    )]
-    pub specs: PathBuf,
-    /// Folder holding the trend files and the certificate log. Default: register.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "register",
-        value_name = "DIR"
-    )]
-    pub register: PathBuf,
-    /// Folder holding certificate.html.tera, certificate.css and site.toml. Default: templates.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "templates",
-        value_name = "DIR"
-    )]
-    pub templates: PathBuf,
-    /// Folder the certificate PDF is written to. Default: certificates.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "certificates",
-        value_name = "DIR"
-    )]
-    pub out: PathBuf,
+    /// The specs folder (`--specs`).
+    #[command(flatten)]
+    pub specs: SpecsFolder,
+    /// The register folder (`--register`).
+    #[command(flatten)]
+    pub register: RegisterFolder,
+    /// The templates folder (`--templates`).
+    #[command(flatten)]
+    pub templates: TemplatesFolder,
+    /// The certificates folder (`--certificates`).
+    #[command(flatten)]
+    pub certificates: CertificatesFolder,
     /// Also write the certificate's HTML beside the PDF (for e-mail bodies).
     #[arg(long)]
     pub html: bool,
     /// Print {"certificate_number","path","sha256"} as JSON.
     #[arg(long)]
     pub json: bool,
-    /// Seconds to wait for another process writing the certificate log. Default: 30.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value_t = 30,
-        value_name = "SECONDS"
-    )]
-    pub lock_timeout: u64,
+    /// How long to wait for a lock (`--lock-timeout`).
+    #[command(flatten)]
+    pub locking: Locking,
 }
 
 fn text_arg(flag: &str, v: &Option<String>) -> anyhow::Result<()> {
@@ -138,9 +113,9 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         quantity: args.quantity.as_deref(),
     };
     build::check_customer(spec, &rec, &ship)?;
-    let issuer = Issuer::new(&args.templates, &args.out)?;
+    let issuer = Issuer::new(&args.templates, &args.certificates)?;
     let wait = Wait {
-        timeout: Duration::from_secs(args.lock_timeout),
+        timeout: Duration::from_secs(args.locking.lock_timeout),
     };
     let mut log = Log::lock(&args.register, wait)?;
     let previous = log

@@ -46,8 +46,8 @@ pub struct Args {
     pub target_mn: Option<f64>,
     /// Force the reaction order: 2 (external acid catalyst), 2.5 (apparent), or 3
     /// (self-catalysed). Default: all three are fitted and the best R² is chosen.
-    #[arg(long, value_name = "N", value_parser = ["2", "2.5", "3"])]
-    pub order: Option<String>,
+    #[arg(long, value_name = "N", value_parser = crate::cmd::args::reaction_order)]
+    pub order: Option<f64>,
     /// Leave out of the fit the early samples whose extent of reaction p is below this value
     /// (they react faster than the equal-reactivity law). Default: 0.8.
     #[arg(hide_default_value = true, long, value_name = "P", default_value_t = kinetics::DEFAULT_EXCLUDE_BELOW)]
@@ -86,11 +86,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         )
         .into());
     }
-    let order = args
-        .order
-        .as_deref()
-        .map(|s| s.parse::<f64>())
-        .transpose()?;
+    let order = args.order;
     if args.arrhenius {
         let rep = arrhenius::arrhenius(&args.samples, &recipe, order, args.exclude_below)?;
         let text = if args.json {

@@ -1,23 +1,23 @@
 //! `resinlot find`: which lots of a product fit given windows, or a customer's requirements.
 
-use std::path::PathBuf;
-
+use chrono::NaiveDate;
 use serde_json::{json, Map, Value};
 
+use crate::cmd::args::{self, ProductArg, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::lot::evaluate::Status;
 use crate::record::find::{self, CustomerCheck, LotFilter};
-use crate::record::query::{parse_date, parse_window, LotRow, Window};
+use crate::record::query::{parse_window, LotRow, Window};
 use crate::spec::customer::Customer;
 use crate::spec::SpecSet;
 
 /// Arguments of `resinlot find`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Product code, e.g. PD-2000.
-    #[arg(long, value_name = "CODE")]
-    pub product: String,
+    /// The product, as the first argument or `--product`.
+    #[command(flatten)]
+    pub product: ProductArg,
     /// A window a lot must meet, as key=lo..hi with either end open (mn=1900..2100,
     /// acid_value=..0.5); bounds are inclusive, on the recorded full-precision value. Repeat
     /// for several properties.
@@ -25,34 +25,24 @@ pub struct Args {
     pub windows: Vec<String>,
     /// Only lots with this status: released, on_hold, rejected or incomplete. Default: any
     /// status (released only with --customer).
-    #[arg(long, value_name = "STATUS")]
-    pub status: Option<String>,
+    #[arg(long, value_name = "STATUS", value_parser = args::status)]
+    pub status: Option<Status>,
     /// Only lots manufactured on or after this date (YYYY-MM-DD).
-    #[arg(long, value_name = "DATE")]
-    pub from: Option<String>,
+    #[arg(long, value_name = "DATE", value_parser = args::date)]
+    pub from: Option<NaiveDate>,
     /// Only lots manufactured on or before this date (YYYY-MM-DD).
-    #[arg(long, value_name = "DATE")]
-    pub to: Option<String>,
+    #[arg(long, value_name = "DATE", value_parser = args::date)]
+    pub to: Option<NaiveDate>,
     /// Apply this customer's windows (file stem in SPECS/customers) under the product's
     /// decision rule, as `certify` would: lists the lots that can be certified for them.
     #[arg(long, value_name = "NAME")]
     pub customer: Option<String>,
-    /// Folder holding the trend files. Default: register.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "register",
-        value_name = "DIR"
-    )]
-    pub register: PathBuf,
-    /// Folder holding the product specs and customers/. Default: specs.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "specs",
-        value_name = "DIR"
-    )]
-    pub specs: PathBuf,
+    /// The register folder (`--register`).
+    #[command(flatten)]
+    pub register: RegisterFolder,
+    /// The specs folder (`--specs`).
+    #[command(flatten)]
+    pub specs: SpecsFolder,
     /// Print JSON instead of the table.
     #[arg(long, conflicts_with = "csv")]
     pub json: bool,
@@ -68,46 +58,24 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .iter()
         .map(|w| parse_window(w))
         .collect::<Result<_, _>>()?;
-    let asked = args
-        .status
-        .as_deref()
-        .map(|s| {
-            Status::parse(s).ok_or_else(|| {
-                Error::invalid(
-                    format!("--status '{s}'"),
-                    "not a lot status",
-                    "Use released, on_hold, rejected or incomplete.",
-                )
-            })
-        })
-        .transpose()?;
-    let status = find::status_or_default(asked, args.customer.is_some());
-    let from = args
-        .from
-        .as_deref()
-        .map(|d| parse_date("--from", d))
-        .transpose()?;
-    let to = args
-        .to
-        .as_deref()
-        .map(|d| parse_date("--to", d))
-        .transpose()?;
-    let path = crate::record::trend_file::path_for(&args.register, &args.product);
+    let status = find::status_or_default(args.status, args.customer.is_some());
+    let (from, to) = (args.from, args.to);
+    let path = crate::record::trend_file::path_for(&args.register, args.product.code());
     if !path.is_file() {
         return Err(Error::invalid(
-            format!("--product '{}'", args.product),
+            format!("--product '{}'", args.product.code()),
             format!("no trend file {} exists", path.display()),
             "Check the product code; lots appear once `resinlot release` has recorded them.",
         )
         .into());
     }
     let keys = crate::record::query::trend_keys(&path)?;
-    find::check_window_keys(&args.product, &keys, &windows)?;
+    find::check_window_keys(args.product.code(), &keys, &windows)?;
     let (specs, customer) = match &args.customer {
         Some(c) => {
             let specs = SpecSet::load(&args.specs)?;
             let cu = Customer::load(&args.specs.join("customers"), c, &specs)?;
-            cu.product(&args.product)?;
+            cu.product(args.product.code())?;
             (Some(specs), Some(cu))
         }
         None => (None, None),
@@ -115,7 +83,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let customer_check = match (&specs, &customer) {
         (Some(specs), Some(cu)) => Some(CustomerCheck {
             specs,
-            requirements: cu.product(&args.product)?,
+            requirements: cu.product(args.product.code())?,
         }),
         _ => None,
     };
@@ -125,7 +93,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let loaded = find::keys_to_load(&keys, &windows, every);
     let (_, lots) = crate::record::query::current_lots(&path, &loaded, customer.is_some())?;
     let filter = LotFilter {
-        product: &args.product,
+        product: args.product.code(),
         windows: &windows,
         status,
         from,
@@ -134,9 +102,9 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     };
     let hits = find::matching_lots(&lots, &loaded, &filter);
     let text = if args.json {
-        json_text(&args.product, &keys, &hits)?
+        json_text(args.product.code(), &keys, &hits)?
     } else if args.csv {
-        csv_text(&args.product, &keys, &hits)?
+        csv_text(args.product.code(), &keys, &hits)?
     } else if hits.is_empty() {
         "No lots match.\n".to_string()
     } else {
@@ -222,7 +190,7 @@ fn table_text(
         "{} lot{} of {} match{}.\n",
         hits.len(),
         if hits.len() == 1 { "" } else { "s" },
-        args.product,
+        args.product.code(),
         customer
             .map(|c| format!(
                 " {}'s requirements (tighter windows, product decision rule)",

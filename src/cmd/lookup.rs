@@ -1,9 +1,8 @@
 //! `resinlot lookup`: everything the record holds about one lot, in plain words.
 
-use std::path::PathBuf;
-
 use serde_json::{json, Map, Value};
 
+use crate::cmd::args::{RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::record::trend_file::{Row, Trend};
@@ -14,22 +13,12 @@ use crate::spec::{end_groups_words, limits_text, ProductSpec, SpecSet};
 pub struct Args {
     /// The lot id, as on the drum label or certificate.
     pub lot: String,
-    /// Folder holding the trend files and the certificate log. Default: register.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "register",
-        value_name = "DIR"
-    )]
-    pub register: PathBuf,
-    /// Folder holding the product specs, for labels, units and rounding. Default: specs.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "specs",
-        value_name = "DIR"
-    )]
-    pub specs: PathBuf,
+    /// The register folder (`--register`).
+    #[command(flatten)]
+    pub register: RegisterFolder,
+    /// The specs folder (`--specs`).
+    #[command(flatten)]
+    pub specs: SpecsFolder,
     /// Print JSON (values at full precision) instead of the text answer.
     #[arg(long)]
     pub json: bool,

@@ -1,6 +1,7 @@
 //! One module per subcommand, each with a `run` entry point; `dispatch` picks one.
 
 pub mod adjust;
+pub mod args;
 pub mod certify;
 pub mod cli;
 pub mod cook;

@@ -10,6 +10,7 @@ use serde::Serialize;
 use crate::certificate::build::{self, LotRecord};
 use crate::certificate::issue::{Issued, Issuer, Pending};
 use crate::certificate::model::Supersedes;
+use crate::cmd::args::{CertificatesFolder, Locking, RegisterFolder, SpecsFolder, TemplatesFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::lot::evaluate::{evaluate, LotDecision, Status};
@@ -25,23 +26,12 @@ pub struct Args {
     /// Lab results CSV: wide (one row per lot) or long (one row per test result), comma or
     /// semicolon separated, UTF-8 with or without BOM.
     pub results: PathBuf,
-    /// Folder holding the product spec files. Default: specs.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "specs",
-        value_name = "DIR"
-    )]
-    pub specs: PathBuf,
-    /// Folder holding the trend files, one CSV per product (created when missing).
-    /// Default: register.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "register",
-        value_name = "DIR"
-    )]
-    pub register: PathBuf,
+    /// The specs folder (`--specs`).
+    #[command(flatten)]
+    pub specs: SpecsFolder,
+    /// The register folder (`--register`).
+    #[command(flatten)]
+    pub register: RegisterFolder,
     /// Name and role of the person releasing, recorded on every row and certificate.
     /// Default: the RESINLOT_APPROVER environment variable, else the login name.
     #[arg(long, value_name = "NAME")]
@@ -63,34 +53,19 @@ pub struct Args {
     /// Print JSON instead of the table.
     #[arg(long)]
     pub json: bool,
-    /// Seconds to wait for another process writing the same trend file. Default: 30.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value_t = 30,
-        value_name = "SECONDS"
-    )]
-    pub lock_timeout: u64,
+    /// How long to wait for a lock (`--lock-timeout`).
+    #[command(flatten)]
+    pub locking: Locking,
     /// Do not write the internal certificate of each newly decided lot (for importing
     /// history). Default: certificates are written.
     #[arg(long)]
     pub no_certificates: bool,
-    /// Folder the internal certificates are written to. Default: certificates.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "certificates",
-        value_name = "DIR"
-    )]
-    pub out: PathBuf,
-    /// Folder holding certificate.html.tera, certificate.css and site.toml. Default: templates.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "templates",
-        value_name = "DIR"
-    )]
-    pub templates: PathBuf,
+    /// The certificates folder (`--certificates`).
+    #[command(flatten)]
+    pub certificates: CertificatesFolder,
+    /// The templates folder (`--templates`).
+    #[command(flatten)]
+    pub templates: TemplatesFolder,
     /// Largest results file accepted, in bytes. Default: 67108864 (64 MiB).
     #[arg(hide_default_value = true, long, default_value_t = 64 << 20, value_name = "BYTES")]
     pub max_bytes: u64,
@@ -143,7 +118,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let now_text = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
     let with_certs = !args.dry_run && !args.no_certificates;
     let issuer = if with_certs {
-        Some(Issuer::new(&args.templates, &args.out)?)
+        Some(Issuer::new(&args.templates, &args.certificates)?)
     } else {
         None
     };
@@ -169,7 +144,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                 let log = log.insert(Log::lock(
                     &args.register,
                     Wait {
-                        timeout: Duration::from_secs(args.lock_timeout),
+                        timeout: Duration::from_secs(args.locking.lock_timeout),
                     },
                 )?);
                 let ctx = CertContext {
@@ -329,7 +304,7 @@ fn report_text(
             "{} internal certificate{} written to {} ({} to {}).\n",
             issued.len(),
             if issued.len() == 1 { "" } else { "s" },
-            args.out.display(),
+            args.certificates.display(),
             issued[0].certificate_number,
             issued[issued.len() - 1].certificate_number
         ));
@@ -363,7 +338,7 @@ fn record(
     before_write: &mut dyn FnMut(&[Plan]) -> anyhow::Result<()>,
 ) -> anyhow::Result<Vec<Recorded>> {
     let wait = Wait {
-        timeout: Duration::from_secs(args.lock_timeout),
+        timeout: Duration::from_secs(args.locking.lock_timeout),
     };
     let mut locks = append::lock_products(&args.register, specs, decisions, wait)?;
     let elsewhere = append::lots_elsewhere(&args.register, decisions, &|p| locks.contains_key(p))?;

@@ -1,15 +1,17 @@
 //! `resinlot trend`: I-MR charts, Nelson run rules, capability and the viscosity–Mn check
 //! over a product's lots.
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
+use chrono::NaiveDate;
 use serde_json::json;
 
+use crate::cmd::args::{self, ProductArg, RegisterFolder, SpecsFolder, TemplatesFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
-use crate::record::query::parse_date;
 use crate::spec::SpecSet;
 use crate::stats::RuleSet;
+use crate::support::output::{self, OutputKind};
 use crate::trend::product::{
     self, Baseline, PropertyTrend, Selection, TrendRequest, ViscosityCheck,
 };
@@ -18,25 +20,26 @@ use crate::trend::text;
 /// Arguments of `resinlot trend`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Product code, e.g. PD-2000.
-    pub product: String,
+    /// The product, as the first argument or `--product`.
+    #[command(flatten)]
+    pub product: ProductArg,
     /// One property key (e.g. hydroxyl_value) for the full detail; without it, one summary
     /// line per numeric property.
     #[arg(long, value_name = "KEY")]
     pub property: Option<String>,
     /// Only lots manufactured on or after this date (YYYY-MM-DD).
-    #[arg(long, value_name = "DATE")]
-    pub from: Option<String>,
+    #[arg(long, value_name = "DATE", value_parser = args::date)]
+    pub from: Option<NaiveDate>,
     /// Only lots manufactured on or before this date (YYYY-MM-DD).
-    #[arg(long, value_name = "DATE")]
-    pub to: Option<String>,
+    #[arg(long, value_name = "DATE", value_parser = args::date)]
+    pub to: Option<NaiveDate>,
     /// Freeze the control limits from the first N selected lots and apply them to the later
     /// ones (phase I / phase II). Default: limits from all selected lots.
     #[arg(long, value_name = "N", conflicts_with = "baseline_until")]
     pub baseline: Option<usize>,
     /// Freeze the control limits from the lots manufactured up to this date (YYYY-MM-DD).
-    #[arg(long, value_name = "DATE")]
-    pub baseline_until: Option<String>,
+    #[arg(long, value_name = "DATE", value_parser = args::date)]
+    pub baseline_until: Option<NaiveDate>,
     /// Nelson rules to apply: a list such as 1,2,3,5, or "all", or "we" (the Western Electric
     /// tests, which are Nelson rules 1, 2, 5 and 6). Default: all.
     #[arg(
@@ -50,22 +53,12 @@ pub struct Args {
     /// the process and are included).
     #[arg(long)]
     pub released_only: bool,
-    /// Folder holding the trend files. Default: register.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "register",
-        value_name = "DIR"
-    )]
-    pub register: PathBuf,
-    /// Folder holding the product specs (labels, units, spec windows). Default: specs.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "specs",
-        value_name = "DIR"
-    )]
-    pub specs: PathBuf,
+    /// The register folder (`--register`).
+    #[command(flatten)]
+    pub register: RegisterFolder,
+    /// The specs folder (`--specs`).
+    #[command(flatten)]
+    pub specs: SpecsFolder,
     /// Print JSON instead of text.
     #[arg(long)]
     pub json: bool,
@@ -79,53 +72,44 @@ pub struct Args {
     /// viscosity–Mn check.
     #[arg(long, value_name = "FILE")]
     pub report: Option<PathBuf>,
-    /// Folder holding site.toml, whose site name heads the report. Default: templates.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "templates",
-        value_name = "DIR"
-    )]
-    pub templates: PathBuf,
+    /// The templates folder (`--templates`).
+    #[command(flatten)]
+    pub templates: TemplatesFolder,
 }
 
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let rules = RuleSet::parse(&args.rules, "--rules")?;
     let sel = Selection {
-        from: args
-            .from
-            .as_deref()
-            .map(|d| parse_date("--from", d))
-            .transpose()?,
-        to: args
-            .to
-            .as_deref()
-            .map(|d| parse_date("--to", d))
-            .transpose()?,
+        from: args.from,
+        to: args.to,
         released_only: args.released_only,
     };
     let baseline = match (args.baseline, &args.baseline_until) {
         (Some(n), _) => product::baseline_first(n)?,
-        (None, Some(d)) => Baseline::Until(parse_date("--baseline-until", d)?),
+        (None, Some(d)) => Baseline::Until(*d),
         _ => Baseline::All,
     };
     let specs = SpecSet::load(&args.specs)?;
-    let path = crate::record::trend_file::path_for(&args.register, &args.product);
+    let path = crate::record::trend_file::path_for(&args.register, args.product.code());
     if !path.is_file() {
         return Err(Error::invalid(
-            format!("product '{}'", args.product),
+            format!("product '{}'", args.product.code()),
             format!("no trend file {} exists", path.display()),
             "Check the product code; lots appear once `resinlot release` has recorded them.",
         )
         .into());
+    }
+    let record = args::record_folders(&args.specs, &args.register, Path::new("certificates"));
+    for (file, kind) in outputs(args) {
+        output::check_destination(&file, kind, &record)?;
     }
     let keys = crate::record::query::trend_keys(&path)?;
     if let Some(p) = &args.property {
         if !keys.contains(p) {
             return Err(Error::invalid(
                 format!("--property '{p}'"),
-                format!("{} has no property '{p}'", args.product),
+                format!("{} has no property '{p}'", args.product.code()),
                 format!("Use one of: {}.", keys.join(", ")),
             )
             .into());
@@ -136,15 +120,15 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let lots = product::select(lots, &sel);
     if lots.is_empty() {
         return Err(Error::invalid(
-            format!("product '{}'", args.product),
+            format!("product '{}'", args.product.code()),
             "no lots in the selection",
             "Widen --from/--to, or drop --released-only.",
         )
         .into());
     }
-    let spec = product::spec_for(&specs, &args.product, &lots);
+    let spec = product::spec_for(&specs, args.product.code(), &lots);
     let trends = product::property_trends(&TrendRequest {
-        product: &args.product,
+        product: args.product.code(),
         columns: &columns,
         lots: &lots,
         spec,
@@ -154,7 +138,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     })?;
     let visc = product::viscosity_check_of(&lots, &columns);
     if let (Some(path), Some(t)) = (&args.chart, trends.first()) {
-        write_chart(path, t, args.png)?;
+        write_chart(path, t, args.png, &record)?;
     }
     if let Some(path) = &args.report {
         let bytes = render_report(
@@ -163,14 +147,14 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             &trends,
             visc.as_ref(),
         )?;
-        crate::support::output::write_atomic(path, &bytes, true)?;
+        output::write_output(path, bytes, OutputKind::Pdf, &record)?;
     }
     let text = if args.json {
         let v = if args.property.is_some() {
             text::trend_json(&trends[0])
         } else {
             json!({
-                "product": args.product,
+                "product": args.product.code(),
                 "properties": trends.iter().map(text::trend_json).collect::<Vec<_>>(),
                 "viscosity_vs_mn": visc.as_ref().map(text::visc_json),
             })
@@ -179,7 +163,12 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     } else if args.property.is_some() {
         text::detail(&trends[0], visc.as_ref(), &args.rules)
     } else {
-        text::summary(&args.product, &trends, visc.as_ref(), args.released_only)
+        text::summary(
+            args.product.code(),
+            &trends,
+            visc.as_ref(),
+            args.released_only,
+        )
     };
     crate::support::output::print(&text)?;
     Ok(if product::any_signal(&trends, visc.as_ref()) {
@@ -189,23 +178,48 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     })
 }
 
-/// Writes the I-MR chart: SVG, or PNG for a .png name; with `png`, a PNG beside the SVG too.
-fn write_chart(path: &std::path::Path, t: &PropertyTrend, png: bool) -> anyhow::Result<()> {
-    let input = chart_input(t);
-    let svg = crate::trend::chart::imr_svg(&input)?;
+/// The files this run will write, each with its kind, so that every destination is checked
+/// before anything is written (issue #13 item 1).
+fn outputs(args: &Args) -> Vec<(PathBuf, OutputKind)> {
+    let mut files = Vec::new();
+    if let Some(chart) = &args.chart {
+        files.push((chart.clone(), chart_kind(chart)));
+        if args.png {
+            files.push((chart.with_extension("png"), OutputKind::Png));
+        }
+    }
+    if let Some(report) = &args.report {
+        files.push((report.clone(), OutputKind::Pdf));
+    }
+    files
+}
+
+/// A chart named .png is written as PNG, any other name as SVG.
+fn chart_kind(path: &Path) -> OutputKind {
     if path
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("png"))
     {
+        OutputKind::Png
+    } else {
+        OutputKind::Svg
+    }
+}
+
+/// Writes the I-MR chart: SVG, or PNG for a .png name; with `png`, a PNG beside the SVG too.
+fn write_chart(path: &Path, t: &PropertyTrend, png: bool, record: &[&Path]) -> anyhow::Result<()> {
+    let input = chart_input(t);
+    let svg = crate::trend::chart::imr_svg(&input)?;
+    if chart_kind(path) == OutputKind::Png {
         // A .png name gets a PNG, not SVG text under the wrong name.
         let png = crate::trend::chart::svg_to_png(&svg, crate::trend::chart::PNG_SCALE)?;
-        crate::support::output::write_atomic(path, &png, true)?;
+        output::write_output(path, png, OutputKind::Png, record)?;
     } else {
-        crate::support::output::write_atomic(path, &svg, true)?;
+        output::write_output(path, svg.clone(), OutputKind::Svg, record)?;
     }
     if png {
         let png = crate::trend::chart::svg_to_png(&svg, crate::trend::chart::PNG_SCALE)?;
-        crate::support::output::write_atomic(&path.with_extension("png"), &png, true)?;
+        output::write_output(&path.with_extension("png"), png, OutputKind::Png, record)?;
     }
     Ok(())
 }
@@ -240,7 +254,7 @@ fn render_report(
         String::new()
     };
     let input = crate::trend::report::ReportInput {
-        product_code: &args.product,
+        product_code: args.product.code(),
         product_name: name,
         generated_on: crate::support::clock::now()?.date_naive(),
         site: &site,

@@ -2,6 +2,7 @@
 
 use std::path::PathBuf;
 
+use crate::cmd::args::{CertificatesFolder, RegisterFolder};
 use crate::cmd::Outcome;
 use crate::record::integrity::{self, CertVerdict};
 
@@ -10,24 +11,14 @@ use crate::record::integrity::{self, CertVerdict};
 pub struct Args {
     /// Certificate PDFs to identify against the issue log (genuine, altered or unknown).
     /// Without any, the whole record is checked instead.
+    #[arg(id = "pdf", value_name = "CERTIFICATES")]
     pub certificates: Vec<PathBuf>,
-    /// Folder holding the trend files and the certificate log. Default: register.
-    #[arg(
-        hide_default_value = true,
-        long,
-        default_value = "register",
-        value_name = "DIR"
-    )]
-    pub register: PathBuf,
-    /// Folder where certificates are issued, to check each logged PDF is present and
-    /// unchanged. Default: certificates.
-    #[arg(
-        hide_default_value = true,
-        long = "certificates-dir",
-        default_value = "certificates",
-        value_name = "DIR"
-    )]
-    pub certificates_dir: PathBuf,
+    /// The register folder (`--register`).
+    #[command(flatten)]
+    pub register: RegisterFolder,
+    /// The certificates folder (`--certificates`).
+    #[command(flatten)]
+    pub certificates_folder: CertificatesFolder,
     /// Move a torn last line (left by an interrupted write) to a side file beside the trend
     /// file, never deleting it, and log the move in quarantine.log.
     #[arg(long)]
@@ -42,7 +33,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     if !args.certificates.is_empty() {
         return certificates(args);
     }
-    let mut checks = integrity::check_register(&args.register, &args.certificates_dir)?;
+    let mut checks = integrity::check_register(&args.register, &args.certificates_folder)?;
     let mut out = String::new();
     if args.quarantine {
         let now = crate::support::clock::now()?.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
@@ -54,7 +45,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                 side.display()
             ));
         }
-        checks = integrity::check_register(&args.register, &args.certificates_dir)?;
+        checks = integrity::check_register(&args.register, &args.certificates_folder)?;
     }
     let ok = checks.iter().all(integrity::FileCheck::ok);
     if args.json {

@@ -20,3 +20,80 @@ fn clock_outside_1970_to_9999_is_refused_issue_13() {
         assert_eq!(before, w.snapshot(), "nothing may change");
     }
 }
+
+/// A workspace with a few released lots of TP-2000 and their internal certificates.
+fn released() -> Workspace {
+    let w = Workspace::new();
+    w.write("good.csv", GOOD);
+    w.release("good.csv").assert().code(0);
+    w
+}
+
+/// Issue #13 item 1: `trend --chart`/`--report` aimed at the register, the specs or a
+/// certificate is refused with exit 2 and the target is unchanged; nothing else is written.
+#[test]
+fn trend_outputs_never_replace_the_record_issue_13() {
+    let w = released();
+    let cert = std::fs::read_dir(w.path("certificates"))
+        .unwrap()
+        .next()
+        .unwrap()
+        .unwrap()
+        .path();
+    let cert_rel = format!("certificates/{}", cert.file_name().unwrap().to_string_lossy());
+    let before = w.snapshot();
+    for (flag, target) in [
+        ("--chart", "register/TP-2000.csv"),
+        ("--report", "register/certificates.csv"),
+        ("--chart", cert_rel.as_str()),
+        ("--report", "specs/tp-2000-b.toml"),
+    ] {
+        let mut args = vec!["trend", "TP-2000", flag, target];
+        if flag == "--chart" {
+            args.extend(["--property", "acid_value"]);
+        }
+        w.cmd()
+            .args(&args)
+            .assert()
+            .code(2)
+            .stderr(predicates::str::contains("into the record folder"));
+        assert_eq!(before, w.snapshot(), "{flag} {target}: nothing may change");
+    }
+    // A chart and a report elsewhere are written, and written again over their own output;
+    // a file of someone else's is not replaced.
+    for _ in 0..2 {
+        w.cmd()
+            .args(["trend", "--product", "TP-2000", "--property", "acid_value"])
+            .args(["--chart", "out/av.svg", "--report", "out/tp.pdf"])
+            .assert()
+            .code(predicates::ord::lt(2));
+    }
+    w.write("mine.svg", "<svg>my drawing</svg>");
+    w.cmd()
+        .args(["trend", "TP-2000", "--property", "acid_value", "--chart", "mine.svg"])
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("not an SVG chart written by resinlot"));
+    assert_eq!(
+        std::fs::read_to_string(w.path("mine.svg")).unwrap(),
+        "<svg>my drawing</svg>"
+    );
+}
+
+/// Issue #13 item 16: path-like or reserved product codes are refused by `trend` and `find`.
+#[test]
+fn path_like_and_reserved_product_codes_are_refused_issue_13() {
+    let w = released();
+    for args in [
+        vec!["trend", "../register/TP-2000"],
+        vec!["trend", "certificates"],
+        vec!["find", "--product", "/etc/passwd"],
+        vec!["find", "heads"],
+    ] {
+        w.cmd()
+            .args(&args)
+            .assert()
+            .code(2)
+            .stderr(predicates::str::contains("not a usable product code"));
+    }
+}

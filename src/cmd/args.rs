@@ -1,0 +1,207 @@
+//! Flags shared by several commands (the workspace folders, the lock wait, the product) and the
+//! typed value parsers for dates, lot statuses and reaction orders, so that every command
+//! names and checks them the same way.
+
+use std::path::{Path, PathBuf};
+
+use chrono::NaiveDate;
+
+use crate::error::{Error, Result};
+use crate::lot::evaluate::Status;
+
+/// Help heading under which the workspace folders are listed.
+const WORKSPACE: &str = "Workspace folders";
+
+/// `--specs DIR`: the product specs with their recipes/ and customers/.
+#[derive(Debug, Clone, clap::Args)]
+pub struct SpecsFolder {
+    /// Folder holding the product specs, with recipes/ and customers/ below it. Default: specs.
+    #[arg(
+        long = "specs",
+        help_heading = WORKSPACE,
+        hide_default_value = true,
+        default_value = "specs",
+        value_name = "DIR"
+    )]
+    pub specs: PathBuf,
+}
+
+/// `--register DIR`: the trend files and the certificate log.
+#[derive(Debug, Clone, clap::Args)]
+pub struct RegisterFolder {
+    /// Folder holding the trend files (one CSV per product) and the certificate log.
+    /// Default: register.
+    #[arg(
+        long = "register",
+        help_heading = WORKSPACE,
+        hide_default_value = true,
+        default_value = "register",
+        value_name = "DIR"
+    )]
+    pub register: PathBuf,
+}
+
+/// `--templates DIR`: the certificate template, its style sheet and the site file.
+#[derive(Debug, Clone, clap::Args)]
+pub struct TemplatesFolder {
+    /// Folder holding certificate.html.tera, certificate.css and site.toml. Default: templates.
+    #[arg(
+        long = "templates",
+        help_heading = WORKSPACE,
+        hide_default_value = true,
+        default_value = "templates",
+        value_name = "DIR"
+    )]
+    pub templates: PathBuf,
+}
+
+/// `--certificates DIR`: where certificates are issued (the one name in every command; the
+/// older spellings `--out` and `--certificates-dir` still work).
+#[derive(Debug, Clone, clap::Args)]
+pub struct CertificatesFolder {
+    /// Folder the certificate PDFs are issued to and checked in. Default: certificates.
+    #[arg(
+        long = "certificates",
+        help_heading = WORKSPACE,
+        visible_alias = "out",
+        alias = "certificates-dir",
+        hide_default_value = true,
+        default_value = "certificates",
+        value_name = "DIR"
+    )]
+    pub certificates: PathBuf,
+}
+
+/// `--lock-timeout SECONDS`: how long to wait for another process writing the same record.
+#[derive(Debug, Clone, clap::Args)]
+pub struct Locking {
+    /// Seconds to wait for another resinlot process writing the same trend file or
+    /// certificate log. Default: 30.
+    #[arg(
+        long = "lock-timeout",
+        help_heading = WORKSPACE,
+        hide_default_value = true,
+        default_value_t = 30,
+        value_name = "SECONDS"
+    )]
+    pub lock_timeout: u64,
+}
+
+macro_rules! folder_deref {
+    ($t:ty, $field:ident) => {
+        impl std::ops::Deref for $t {
+            type Target = Path;
+            fn deref(&self) -> &Path {
+                &self.$field
+            }
+        }
+    };
+}
+folder_deref!(SpecsFolder, specs);
+folder_deref!(RegisterFolder, register);
+folder_deref!(TemplatesFolder, templates);
+folder_deref!(CertificatesFolder, certificates);
+
+/// The product, given either way: `trend PD-2000` or `trend --product PD-2000`.
+#[derive(Debug, Clone, clap::Args)]
+pub struct ProductArg {
+    /// Product code, e.g. PD-2000 (or give it with --product).
+    #[arg(value_name = "PRODUCT", value_parser = product_code)]
+    pub product_given: Option<String>,
+    /// Product code, e.g. PD-2000 (or give it as the first argument).
+    #[arg(
+        long = "product",
+        value_name = "CODE",
+        value_parser = product_code,
+        conflicts_with = "product_given",
+        required_unless_present = "product_given"
+    )]
+    pub product_flag: Option<String>,
+}
+
+impl ProductArg {
+    /// The product code, whichever way it was given (clap requires one of the two).
+    pub fn code(&self) -> &str {
+        self.product_given
+            .as_deref()
+            .or(self.product_flag.as_deref())
+            .unwrap_or_default()
+    }
+}
+
+/// The record folders an output must never land in (see
+/// [`crate::support::output::check_destination`]).
+pub fn record_folders<'a>(
+    specs: &'a Path,
+    register: &'a Path,
+    certificates: &'a Path,
+) -> [&'a Path; 3] {
+    [specs, register, certificates]
+}
+
+/// clap value parser: a product code (a safe id that is not one of the register's own names).
+pub fn product_code(text: &str) -> Result<String> {
+    if crate::support::ids::is_product_code(text) {
+        Ok(text.to_string())
+    } else {
+        Err(Error::invalid(
+            format!("'{text}'"),
+            "not a usable product code",
+            "Give the code as in the spec file (letters, digits, '-', '_', '.'), e.g. PD-2000.",
+        ))
+    }
+}
+
+/// clap value parser: a calendar date written YYYY-MM-DD.
+pub fn date(text: &str) -> Result<NaiveDate> {
+    NaiveDate::parse_from_str(text, "%Y-%m-%d").map_err(|_| {
+        Error::invalid(
+            format!("'{text}'"),
+            "not a date",
+            "Write dates as YYYY-MM-DD.",
+        )
+    })
+}
+
+/// clap value parser: a lot status (released, on_hold, rejected, incomplete).
+pub fn status(text: &str) -> Result<Status> {
+    Status::parse(text).ok_or_else(|| {
+        Error::invalid(
+            format!("'{text}'"),
+            "not a lot status",
+            "Use released, on_hold, rejected or incomplete.",
+        )
+    })
+}
+
+/// clap value parser: a reaction order for the cook fit, 2, 2.5 or 3.
+pub fn reaction_order(text: &str) -> Result<f64> {
+    match text.trim() {
+        "2" | "2.0" => Ok(2.0),
+        "2.5" => Ok(2.5),
+        "3" | "3.0" => Ok(3.0),
+        _ => Err(Error::invalid(
+            format!("'{text}'"),
+            "not a reaction order resinlot fits",
+            "Use 2 (external acid catalyst), 2.5 (apparent) or 3 (self-catalysed).",
+        )),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn typed_values() {
+        assert_eq!(date("2026-11-30").unwrap().to_string(), "2026-11-30");
+        assert!(date("30/11/2026").is_err());
+        assert_eq!(status("on_hold").unwrap(), Status::OnHold);
+        assert!(status("held").is_err());
+        assert_eq!(reaction_order("2.5").unwrap(), 2.5);
+        assert!(reaction_order("4").is_err());
+        assert!(product_code("PD-2000").is_ok());
+        assert!(product_code("../register/PD-2000").is_err());
+        assert!(product_code("certificates").is_err());
+    }
+}
