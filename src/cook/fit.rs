@@ -158,10 +158,7 @@ pub fn extents(data: &Samples, ch: &Charge) -> Result<Vec<Progress>> {
         .iter()
         .map(|s| {
             let place = format!("{}:{}, field acid_value", data.file, s.line);
-            let pr = stepgrowth::progress_at(ch, s.acid_value).map_err(|e| match e {
-                Error::Invalid { problem, fix, .. } => Error::invalid(&place, problem, fix),
-                other => other,
-            })?;
+            let pr = stepgrowth::progress_at(ch, s.acid_value).map_err(|e| e.at(|_| place.clone()))?;
             if pr.p_acid >= 1.0 - 1e-12 {
                 return Err(Error::invalid(
                     place,
@@ -265,10 +262,8 @@ pub fn analyse(
         .map_err(|e| relocate(e, &data.file))?;
     let fit = &fits[best];
     let target_av = target_acid_value(&ch, target)?;
-    let at_target = stepgrowth::progress_at(&ch, target_av).map_err(|e| match e {
-        Error::Invalid { problem, fix, .. } => Error::invalid("--target-av", problem, fix),
-        other => other,
-    })?;
+    let at_target =
+        stepgrowth::progress_at(&ch, target_av).map_err(|e| e.at(|_| "--target-av".into()))?;
     let end = kinetics::predict_end_point(fit, at_target.p_acid);
     let warnings = fit_warnings(data, fit, &end, target_av)?;
     let last = data.samples.last().expect("samples are never empty");
@@ -408,14 +403,13 @@ fn sample_rows(
 
 /// Moves an error placed at "samples" by the kinetics to the samples file.
 pub fn relocate(e: Error, file: &str) -> Error {
-    match e {
-        Error::Invalid {
-            place,
-            problem,
-            fix,
-        } if place == "samples" => Error::invalid(file, problem, fix),
-        other => other,
-    }
+    e.at(|place| {
+        if place == "samples" {
+            file.to_string()
+        } else {
+            place.to_string()
+        }
+    })
 }
 
 fn candidate(f: &ModelFit) -> Candidate {

@@ -81,7 +81,7 @@ pub fn parse(file: &str, text: &str) -> Result<Samples> {
         .from_reader(text.as_bytes());
     let headers = rdr
         .headers()
-        .map_err(|e| csv_error(file, &e))?
+        .map_err(|e| crate::support::csv_input::error(file, &e))?
         .iter()
         .map(str::to_string)
         .collect::<Vec<_>>();
@@ -89,7 +89,7 @@ pub fn parse(file: &str, text: &str) -> Result<Samples> {
     let mut samples: Vec<Sample> = Vec::new();
     let mut warnings = Vec::new();
     for rec in rdr.records() {
-        let rec = rec.map_err(|e| csv_error(file, &e))?;
+        let rec = rec.map_err(|e| crate::support::csv_input::error(file, &e))?;
         let sample = read_row(file, &rec, &cols)?;
         if let Some(prev) = samples.last() {
             check_order(file, prev, &sample, &mut warnings)?;
@@ -296,15 +296,6 @@ fn parse_time(s: &str) -> Option<chrono::NaiveDateTime> {
     ]
     .iter()
     .find_map(|f| chrono::NaiveDateTime::parse_from_str(s, f).ok())
-}
-
-fn csv_error(file: &str, e: &csv::Error) -> Error {
-    let line = e.position().map_or(0, csv::Position::line);
-    Error::invalid(
-        format!("{file}:{line}"),
-        format!("the CSV cannot be read ({e})"),
-        "Save the file as comma-separated UTF-8 text with the same number of fields on every line.",
-    )
 }
 
 #[cfg(test)]

@@ -40,7 +40,10 @@ fn trend_outputs_never_replace_the_record_issue_13() {
         .unwrap()
         .unwrap()
         .path();
-    let cert_rel = format!("certificates/{}", cert.file_name().unwrap().to_string_lossy());
+    let cert_rel = format!(
+        "certificates/{}",
+        cert.file_name().unwrap().to_string_lossy()
+    );
     let before = w.snapshot();
     for (flag, target) in [
         ("--chart", "register/TP-2000.csv"),
@@ -70,10 +73,19 @@ fn trend_outputs_never_replace_the_record_issue_13() {
     }
     w.write("mine.svg", "<svg>my drawing</svg>");
     w.cmd()
-        .args(["trend", "TP-2000", "--property", "acid_value", "--chart", "mine.svg"])
+        .args([
+            "trend",
+            "TP-2000",
+            "--property",
+            "acid_value",
+            "--chart",
+            "mine.svg",
+        ])
         .assert()
         .code(2)
-        .stderr(predicates::str::contains("not an SVG chart written by resinlot"));
+        .stderr(predicates::str::contains(
+            "not an SVG chart written by resinlot",
+        ));
     assert_eq!(
         std::fs::read_to_string(w.path("mine.svg")).unwrap(),
         "<svg>my drawing</svg>"
