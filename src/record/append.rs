@@ -131,13 +131,51 @@ pub fn lots_elsewhere(
         if skip(&product) {
             continue;
         }
-        trend_file::scan(&path, &["lot"], |_, c| {
-            if ours.contains(c[0]) {
-                elsewhere.insert(c[0].to_string(), product.clone());
-            }
-        })?;
+        for lot in recorded_lots(&path, &ours)? {
+            elsewhere.insert(lot, product.clone());
+        }
     }
     Ok(elsewhere)
+}
+
+/// The lot ids of `ours` recorded in another product's trend file, read as bytes and tolerant
+/// of that file's own faults: a torn or unreadable tail of one product must not block releases
+/// of every other product (issue #13, item 13); the broken product is refused when it is
+/// itself released. A last line without its line feed counts only when it has every field.
+fn recorded_lots(path: &Path, ours: &HashSet<&str>) -> Result<Vec<String>> {
+    let mut columns = 0usize;
+    let mut lots = Vec::new();
+    crate::record::lines::for_each_block(path, crate::record::lines::CHUNK, |block| {
+        for (i, line) in block.split_inclusive(|&b| b == b'\n').enumerate() {
+            let complete = line.ends_with(b"\n");
+            let line = line.strip_suffix(b"\n").unwrap_or(line);
+            if columns == 0 && i == 0 {
+                if !complete {
+                    return Ok(()); // a torn header: nothing is recorded yet
+                }
+                let cols = trend_file::split_line(&String::from_utf8_lossy(line));
+                trend_file::check_trend_header(path, &cols)?;
+                columns = cols.len();
+                continue;
+            }
+            if complete {
+                // seq and recorded_at never hold a comma: the lot is the third field.
+                let lot = line.split(|&b| b == b',').nth(2);
+                if let Some(lot) = lot.and_then(|l| std::str::from_utf8(l).ok()) {
+                    if ours.contains(lot) {
+                        lots.push(lot.to_string());
+                    }
+                }
+            } else {
+                let cells = trend_file::split_line(&String::from_utf8_lossy(line));
+                if cells.len() == columns && ours.contains(cells[2].as_str()) {
+                    lots.push(cells[2].clone());
+                }
+            }
+        }
+        Ok(())
+    })?;
+    Ok(lots)
 }
 
 /// Decides, for every lot of `batch`, what its trend file needs. Pure: reads only the trends
@@ -509,6 +547,27 @@ decimals = 0
         assert!(lots_elsewhere(&dir.path().join("none"), &d, &|_| false)
             .unwrap()
             .is_empty());
+    }
+
+    /// Issue #13 item 13: another product's torn tail neither blocks the search nor counts.
+    #[test]
+    fn recorded_lots_tolerates_a_torn_tail_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        let d = vec![
+            decide(&specs, "L1", "0.50", "55.6"),
+            decide(&specs, "L2", "0.40", "56.0"),
+        ];
+        record(dir.path(), &specs, &d);
+        let p = trend_file::path_for(dir.path(), "PD-2000");
+        let whole = std::fs::read(&p).unwrap();
+        let ours = HashSet::from(["L1", "L2", "L3"]);
+        let torn = [whole.as_slice(), b"3,2026-10-02T08:00:00Z,L3,PD-\xC3"].concat();
+        std::fs::write(&p, &torn).unwrap();
+        assert_eq!(recorded_lots(&p, &ours).unwrap(), ["L1", "L2"]);
+        // A complete last row without its line feed is recorded all the same.
+        std::fs::write(&p, &whole[..whole.len() - 1]).unwrap();
+        assert_eq!(recorded_lots(&p, &ours).unwrap(), ["L1", "L2"]);
     }
 
     #[test]
