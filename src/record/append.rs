@@ -111,6 +111,51 @@ pub fn lock_products<'a>(
     Ok(locks)
 }
 
+/// Refuses to append rows stamped `now` to a trend file whose last row was recorded later:
+/// the clock went backwards (a wrong system clock or `SOURCE_DATE_EPOCH`), and the file's
+/// rows must stay in time order (issue #13, item 15). Only the products that get a new row
+/// (`plans[i].writes()` for a lot of that product) are checked; times are RFC 3339 and an
+/// unreadable recorded time is left to `verify`. Pure.
+pub fn check_time_order(
+    trends: &BTreeMap<&str, &Trend>,
+    decisions: &[LotDecision],
+    plans: &[Plan],
+    now: &str,
+) -> Result<()> {
+    let Ok(now_t) = chrono::DateTime::parse_from_rfc3339(now) else {
+        return Err(Error::invalid(
+            "clock",
+            format!("'{now}' is not an RFC 3339 time"),
+            "Report this as a bug: the clock's time is always RFC 3339.",
+        ));
+    };
+    let mut checked: HashSet<&str> = HashSet::new();
+    for (d, _) in decisions.iter().zip(plans).filter(|(_, p)| p.writes()) {
+        if !checked.insert(d.product.as_str()) {
+            continue;
+        }
+        let Some(t) = trends.get(d.product.as_str()) else {
+            continue;
+        };
+        let Some(last) = t.rows.last() else {
+            continue;
+        };
+        let at = t.cell(last, "recorded_at");
+        if let Ok(last_t) = chrono::DateTime::parse_from_rfc3339(at) {
+            if now_t < last_t {
+                return Err(Error::invalid(
+                    format!("{}:{}", t.path.display(), last.line),
+                    format!(
+                        "the clock says {now}, earlier than {at}, when the file's last row was recorded"
+                    ),
+                    "Check the system clock and SOURCE_DATE_EPOCH; rows are appended in time order, so nothing was written.",
+                ));
+            }
+        }
+    }
+    Ok(())
+}
+
 /// The lots of `decisions` already recorded in the trend file of a product not in `skip`:
 /// lot id -> that product. Reads nothing when the register folder does not exist yet.
 pub fn lots_elsewhere(
@@ -223,6 +268,22 @@ fn plan_lot(batch: &Batch<'_>, i: usize, t: &Trend, specs: &SpecSet) -> Result<P
         return Ok(Plan::New);
     };
     let seq: usize = t.cell(row, "seq").parse().unwrap_or(0);
+    let recorded_date = t.cell(row, "manufactured");
+    if recorded_date != d.manufactured.to_string() {
+        // A retest re-measures the same lot; it cannot move the lot's manufacture date, which
+        // decides the spec revision and the retest period (issue #13, item 22).
+        return Err(Error::invalid(
+            batch.place(i),
+            format!(
+                "manufacture date {} differs from {recorded_date}, recorded for this lot in {} (row {seq})",
+                d.manufactured,
+                t.path.display()
+            ),
+            format!(
+                "A lot keeps its manufacture date, also when retested: enter {recorded_date} in the results file. If the recorded date itself is wrong, follow the site's procedure for correcting the record; resinlot never rewrites a row."
+            ),
+        ));
+    }
     if same_results(t, row, d, specs) {
         return Ok(Plan::Unchanged { seq });
     }
@@ -568,6 +629,49 @@ decimals = 0
         // A complete last row without its line feed is recorded all the same.
         std::fs::write(&p, &whole[..whole.len() - 1]).unwrap();
         assert_eq!(recorded_lots(&p, &ours).unwrap(), ["L1", "L2"]);
+    }
+
+    /// Issue #13 item 22: a retest may not move the lot's manufacture date.
+    #[test]
+    fn a_retest_keeps_the_manufacture_date_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        record(dir.path(), &specs, &[decide(&specs, "L1", "0.50", "55.6")]);
+        let mut moved = decide(&specs, "L1", "0.45", "55.6");
+        moved.manufactured = chrono::NaiveDate::from_ymd_opt(2026, 9, 30).unwrap();
+        let err = plan_in(dir.path(), &specs, &[moved], Some("r"), &HashMap::new()).unwrap_err();
+        let text = err.to_string();
+        assert!(
+            text.contains("manufacture date 2026-09-30 differs from 2026-10-01"),
+            "{text}"
+        );
+        assert!(
+            text.contains("enter 2026-10-01 in the results file"),
+            "{text}"
+        );
+    }
+
+    /// Issue #13 item 15: rows are appended in time order; an unchanged lot writes nothing and
+    /// is not checked.
+    #[test]
+    fn a_clock_behind_the_last_row_is_refused_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        let first = vec![decide(&specs, "L1", "0.50", "55.6")];
+        record(dir.path(), &specs, &first); // recorded 2026-10-02T08:00:00Z
+        let next = vec![decide(&specs, "L2", "0.40", "56.0")];
+        let locks = lock_products(dir.path(), &specs, &next, wait()).unwrap();
+        let trends: BTreeMap<&str, &Trend> = locks.iter().map(|(&p, l)| (p, &l.trend)).collect();
+        let new = [Plan::New];
+        let e = check_time_order(&trends, &next, &new, "2026-10-01T23:59:59Z").unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("earlier than 2026-10-02T08:00:00Z, when the file's last row"),
+            "{e}"
+        );
+        assert!(check_time_order(&trends, &next, &new, "2026-10-02T08:00:00Z").is_ok());
+        let unchanged = [Plan::Unchanged { seq: 1 }];
+        assert!(check_time_order(&trends, &next, &unchanged, "2020-01-01T00:00:00Z").is_ok());
     }
 
     #[test]

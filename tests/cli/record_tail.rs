@@ -253,3 +253,192 @@ fn a_file_that_is_not_utf8_is_broken_and_the_rest_are_checked_issue_13() {
         .stdout(predicate::str::contains("BROKEN").count(1));
     assert_eq!(before, w.snapshot());
 }
+
+/// Issue #13 item 12: `--max-bytes` holds for files with no size up front: `/dev/zero` and a
+/// FIFO are read only up to the limit, then refused.
+#[test]
+fn max_bytes_is_counted_while_reading_issue_13() {
+    let w = released();
+    let before = w.snapshot();
+    w.release("/dev/zero")
+        .args(["--max-bytes", "1000"])
+        .timeout(std::time::Duration::from_secs(60))
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "/dev/zero: the file is more than 1000 bytes, over the limit of 1000 bytes",
+        ))
+        .stderr(predicate::str::contains("--max-bytes"));
+    // A FIFO outside the workspace (a snapshot would block reading it), fed without end.
+    let fifo_dir = tempfile::tempdir().unwrap();
+    let fifo = fifo_dir.path().join("results.csv");
+    let c_path = std::ffi::CString::new(fifo.to_str().unwrap()).unwrap();
+    assert_eq!(unsafe { libc::mkfifo(c_path.as_ptr(), 0o600) }, 0);
+    let feed = fifo.clone();
+    std::thread::spawn(move || {
+        // Blocks until the reader opens the FIFO; ends when the reader closes it (EPIPE).
+        let mut f = std::fs::OpenOptions::new().write(true).open(feed).unwrap();
+        let mut text =
+            String::from("lot,product,manufactured,acid_value,hydroxyl_value,viscosity\n");
+        for i in 0..200 {
+            text.push_str(&format!("F{i:04},TP-2000,2026-05-02,0.52,55.4,540\n"));
+        }
+        while std::io::Write::write_all(&mut f, text.as_bytes()).is_ok() {}
+    });
+    w.release(fifo.to_str().unwrap())
+        .args(["--max-bytes", "4096"])
+        .timeout(std::time::Duration::from_secs(60))
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "the file is more than 4096 bytes, over the limit of 4096 bytes",
+        ));
+    assert_eq!(before, w.snapshot(), "nothing was written");
+    verify(&w).code(0);
+}
+
+/// Issue #13 item 10: only plain decimals are numbers; "0.5_0", "5_30", "0_5" (which was read
+/// as 5) and "1E2" are refused before anything is written.
+#[test]
+fn numbers_are_plain_decimals_only_issue_13() {
+    let w = released();
+    let before = w.snapshot();
+    for (av, ohv, visc, bad, column) in [
+        ("0.5_0", "55.4", "540", "0.5_0", "acid_value"),
+        ("0.52", "55.4", "5_30", "5_30", "viscosity"),
+        ("0_5", "55.4", "540", "0_5", "acid_value"),
+        ("0.52", "1E2", "540", "1E2", "hydroxyl_value"),
+    ] {
+        let file = format!(
+            "lot,product,manufactured,acid_value,hydroxyl_value,viscosity\n\
+             T26-110,TP-2000,2026-06-01,{av},{ohv},{visc}\n"
+        );
+        w.write("odd.csv", &file);
+        let snap = w.snapshot();
+        w.release("odd.csv")
+            .assert()
+            .code(2)
+            .stderr(predicate::str::contains(format!(
+                "odd.csv:2, column '{column}': '{bad}' is not a number"
+            )))
+            .stderr(predicate::str::contains("plain decimal number"));
+        assert_eq!(snap, w.snapshot(), "{bad}: nothing may change");
+    }
+    // With --decimal-comma, "0,52" still reads and "0,5_2" does not.
+    w.write(
+        "comma.csv",
+        "lot;product;manufactured;acid_value;hydroxyl_value;viscosity\n\
+         T26-111;TP-2000;2026-06-01;0,5_2;55,4;540\n",
+    );
+    w.release("comma.csv")
+        .arg("--decimal-comma")
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("'0,5_2' is not a number"));
+    std::fs::remove_file(w.path("odd.csv")).unwrap();
+    std::fs::remove_file(w.path("comma.csv")).unwrap();
+    assert_eq!(before, w.snapshot());
+    verify(&w)
+        .code(0)
+        .stdout(predicate::str::contains("TP-2000.csv: 3 rows, intact"));
+}
+
+/// Issue #13 item 15: a time earlier than the last recorded row of the trend file being
+/// appended to is refused before anything is written.
+#[test]
+fn a_clock_behind_the_last_row_is_refused_issue_13() {
+    let w = released(); // rows recorded at 2026-12-10T00:00:00Z
+    w.write("more.csv", MORE);
+    let before = w.snapshot();
+    w.release("more.csv")
+        .env("SOURCE_DATE_EPOCH", "1790000000") // 2026-09-21T14:13:20Z
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "register/TP-2000.csv:4: the clock says 2026-09-21T14:13:20Z, earlier than 2026-12-10T00:00:00Z, when the file's last row was recorded",
+        ))
+        .stderr(predicate::str::contains("SOURCE_DATE_EPOCH"));
+    assert_eq!(before, w.snapshot(), "nothing may change");
+    // A rerun that writes nothing is not refused.
+    w.release("good.csv")
+        .env("SOURCE_DATE_EPOCH", "1790000000")
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains("3 already recorded, unchanged"));
+    assert_eq!(before, w.snapshot());
+    verify(&w).code(0);
+}
+
+/// Issue #13 item 22: a retest that changes the manufacture date, --reason without --retest,
+/// duplicate wide rows differing only in temperature or analyst, and UTF-16 without a BOM are
+/// each refused with what to do, and nothing is written.
+#[test]
+fn silent_changes_and_encodings_are_refused_issue_13() {
+    let w = released();
+    // T26-101 retested with new results and a manufacture date moved by a day.
+    w.write(
+        "moved.csv",
+        "lot,product,manufactured,acid_value,hydroxyl_value,viscosity\n\
+         T26-101,TP-2000,2026-05-03,0.49,55.4,540\n",
+    );
+    w.write(
+        "dup.csv",
+        "lot,product,manufactured,viscosity,viscosity_temperature_c,analyst\n\
+         T26-120,TP-2000,2026-06-01,540,60,AB\n\
+         T26-120,TP-2000,2026-06-01,540,25,AB\n\
+         T26-121,TP-2000,2026-06-01,540,60,AB\n\
+         T26-121,TP-2000,2026-06-01,540,60,CD\n",
+    );
+    let dup_analyst = std::fs::read_to_string(w.path("dup.csv"))
+        .unwrap()
+        .replace("T26-120,TP-2000,2026-06-01,540,25,AB\n", "");
+    w.write("dup-analyst.csv", &dup_analyst);
+    let utf16: Vec<u8> = GOOD
+        .replace("T26-", "U26-")
+        .encode_utf16()
+        .flat_map(u16::to_le_bytes)
+        .collect();
+    std::fs::write(w.path("utf16.csv"), utf16).unwrap();
+    let before = w.snapshot();
+    w.release("moved.csv")
+        .args(["--retest", "--reason", "re-titrated"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "moved.csv:2, lot 'T26-101': manufacture date 2026-05-03 differs from 2026-05-02, recorded for this lot in register/TP-2000.csv (row 1)",
+        ))
+        .stderr(predicate::str::contains("enter 2026-05-02 in the results file"));
+    w.release("moved.csv")
+        .args(["--reason", "re-titrated"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "--reason: --reason was given without --retest, so it would be recorded nowhere",
+        ))
+        .stderr(predicate::str::contains("Add --retest"));
+    w.release("dup.csv")
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "dup.csv:3, lot 'T26-120': the lot already appears on line 2 with a different measurement temperature",
+        ))
+        .stderr(predicate::str::contains("Keep one row per lot"));
+    w.release("dup-analyst.csv")
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "dup-analyst.csv:4, lot 'T26-121': the lot already appears on line 3 with a different analyst ('AB' there, 'CD' here)",
+        ));
+    w.release("utf16.csv")
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "utf16.csv:1: the file is not valid UTF-8 text: it looks like UTF-16",
+        ))
+        .stderr(predicate::str::contains("CSV UTF-8"))
+        .stderr(predicate::str::contains("lacks column").not());
+    assert_eq!(before, w.snapshot(), "nothing may change");
+    verify(&w)
+        .code(0)
+        .stdout(predicate::str::contains("TP-2000.csv: 3 rows, intact"));
+}
