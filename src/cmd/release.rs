@@ -44,7 +44,7 @@ pub struct Args {
     /// supersedes the old one (the old row stays). Needs --reason.
     #[arg(long, requires = "reason")]
     pub retest: bool,
-    /// Why the lot is retested; recorded on the new row.
+    /// Why the lot is retested; recorded on the new row. Only with --retest.
     #[arg(long, value_name = "TEXT")]
     pub reason: Option<String>,
     /// Decide and print, but write nothing.
@@ -103,7 +103,7 @@ pub fn approver(flag: Option<&str>) -> anyhow::Result<String> {
 /// internal certificates), print.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let approver = approver(args.approver.as_deref())?;
-    check_reason(args.reason.as_deref())?;
+    check_reason(args.reason.as_deref(), args.retest)?;
     let specs = SpecSet::load(&args.specs).context("cannot load the product specs")?;
     let opts = intake::Options {
         decimal_comma: args.decimal_comma,
@@ -175,8 +175,17 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     })
 }
 
-/// Refuses an unusable --reason.
-fn check_reason(reason: Option<&str>) -> anyhow::Result<()> {
+/// Refuses an unusable --reason, and a --reason without --retest (it would be recorded
+/// nowhere; issue #13, item 22).
+fn check_reason(reason: Option<&str>, retest: bool) -> anyhow::Result<()> {
+    if reason.is_some() && !retest {
+        return Err(Error::invalid(
+            "--reason",
+            "--reason was given without --retest, so it would be recorded nowhere",
+            "Add --retest to record lots already in the trend file as a retest with this reason, or leave out --reason.",
+        )
+        .into());
+    }
     if let Some(r) = reason {
         if r.trim().is_empty() || r.chars().any(char::is_control) || r.chars().count() > 300 {
             return Err(Error::invalid(
@@ -353,6 +362,7 @@ fn record(
     };
     let trends = locks.iter().map(|(&p, l)| (p, &l.trend)).collect();
     let plans = append::plan(&batch, &trends, specs, &elsewhere)?;
+    append::check_time_order(&trends, decisions, &plans, now)?;
     before_write(&plans)?;
     Ok(append::commit(
         &mut locks, decisions, &plans, approver, now,

@@ -4,7 +4,7 @@ use std::path::PathBuf;
 
 use crate::cmd::args::{CertificatesFolder, RegisterFolder};
 use crate::cmd::Outcome;
-use crate::record::integrity::{self, CertVerdict};
+use crate::record::integrity::{self, CertVerdict, Repair};
 
 /// Arguments of `resinlot verify`.
 #[derive(Debug, clap::Args)]
@@ -20,7 +20,8 @@ pub struct Args {
     #[command(flatten)]
     pub certificates_folder: CertificatesFolder,
     /// Move a torn last line (left by an interrupted write) to a side file beside the trend
-    /// file, never deleting it, and log the move in quarantine.log.
+    /// file, never deleting it, or restore the line end of a complete last row that lacks
+    /// one; each repair is logged in quarantine.log. Safe to run again after an interruption.
     #[arg(long)]
     pub quarantine: bool,
     /// Print JSON instead of text.
@@ -37,13 +38,18 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let mut out = String::new();
     if args.quarantine {
         let now = crate::support::clock::now()?.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
-        for c in checks.iter_mut().filter(|c| c.torn_tail) {
-            let side = integrity::quarantine(&c.path, c.offset.unwrap_or(0), &now)?;
-            out.push_str(&format!(
-                "{}: moved the torn last line to {} (logged in quarantine.log)\n",
-                c.path.display(),
-                side.display()
-            ));
+        for c in checks.iter().filter(|c| c.repairable()) {
+            match integrity::quarantine(&c.path, c.offset.unwrap_or(0), &now)? {
+                Repair::Quarantined(side) => out.push_str(&format!(
+                    "{}: moved the torn last line to {} (logged in quarantine.log)\n",
+                    c.path.display(),
+                    side.display()
+                )),
+                Repair::NewlineRestored => out.push_str(&format!(
+                    "{}: the last row was complete; restored its missing line end (logged in quarantine.log)\n",
+                    c.path.display()
+                )),
+            }
         }
         checks = integrity::check_register(&args.register, &args.certificates_folder)?;
     }
@@ -66,6 +72,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                         .unwrap_or_default(),
                     if c.torn_tail {
                         " (run with --quarantine to move it aside)"
+                    } else if c.newline_missing {
+                        " (run with --quarantine to restore the line end)"
                     } else {
                         ""
                     }

@@ -85,12 +85,37 @@ pub fn read_file(path: &Path, opts: Options) -> Result<Vec<LotResults>> {
             "Split the file, or raise the limit with --max-bytes if it is genuine.",
         ));
     }
-    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "reading", e))?;
+    // Counted while reading: /dev/zero, a FIFO or a growing file has no size up front, so at
+    // most one byte over the limit is read (issue #13, item 12).
+    let file = std::fs::File::open(path).map_err(|e| Error::io(path, "reading", e))?;
+    let mut bytes = Vec::new();
+    std::io::Read::read_to_end(
+        &mut std::io::Read::take(file, opts.limits.max_bytes.saturating_add(1)),
+        &mut bytes,
+    )
+    .map_err(|e| Error::io(path, "reading", e))?;
+    if bytes.len() as u64 > opts.limits.max_bytes {
+        return Err(Error::invalid(
+            &name,
+            format!(
+                "the file is more than {} bytes, over the limit of {} bytes",
+                opts.limits.max_bytes, opts.limits.max_bytes
+            ),
+            "Split the file, or raise the limit with --max-bytes if it is genuine.",
+        ));
+    }
     parse(&name, &bytes, opts)
 }
 
 /// Parses results from bytes.
 pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>> {
+    if let Some(why) = utf16_sign(bytes) {
+        return Err(Error::invalid(
+            format!("{name}:1"),
+            format!("the file is not valid UTF-8 text: it looks like UTF-16 ({why})"),
+            "Save the results as UTF-8 CSV (in a spreadsheet: Save As, \"CSV UTF-8\"), then run again.",
+        ));
+    }
     let bytes = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
     let text = std::str::from_utf8(bytes).map_err(|e| {
         let (line, _) = crate::support::tomlfile::line_column(
@@ -177,6 +202,33 @@ pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>>
         ));
     }
     Ok(lots)
+}
+
+/// Why `bytes` look like UTF-16 rather than UTF-8 text, if they do: a UTF-16 byte-order mark
+/// (FF FE or FE FF, Unicode Standard §23.8), or a NUL byte among the first 1024, which UTF-16
+/// gives every ASCII character and no CSV export in UTF-8 contains (issue #13, item 22).
+fn utf16_sign(bytes: &[u8]) -> Option<&'static str> {
+    if bytes.starts_with(b"\xFF\xFE") || bytes.starts_with(b"\xFE\xFF") {
+        Some("it starts with a UTF-16 byte-order mark")
+    } else if bytes[..bytes.len().min(1024)].contains(&0) {
+        Some("it holds NUL bytes, as UTF-16 does between ASCII characters")
+    } else {
+        None
+    }
+}
+
+/// True when `text` is a plain decimal number: an optional minus sign, one or more ASCII
+/// digits, and optionally a point followed by one or more digits ("0.52", "1530", "-1.5").
+/// Underscores ("0_5", which `rust_decimal` reads as 5), exponents ("1E2"), signs other than a
+/// leading minus, spaces and lone points are not (common practice for lab data entry; issue
+/// #13, item 10). A decimal comma is turned into a point before this check.
+fn is_plain_decimal(text: &str) -> bool {
+    let digits = |s: &str| !s.is_empty() && s.bytes().all(|b| b.is_ascii_digit());
+    let unsigned = text.strip_prefix('-').unwrap_or(text);
+    match unsigned.split_once('.') {
+        Some((int, frac)) => digits(int) && digits(frac),
+        None => digits(unsigned),
+    }
 }
 
 /// The line where a quote opens that is never closed, if any ("" inside quotes is an escape).
@@ -314,13 +366,17 @@ impl Ctx<'_> {
                 "Use a decimal point, or pass --decimal-comma for ';'-separated files.",
             ));
         }
-        let d = Decimal::from_str(&text).map_err(|_| {
+        let not_a_number = || {
             Error::invalid(
                 place(),
                 format!("'{v}' is not a number"),
-                "Enter the result as a plain decimal number, e.g. 55.2 (no units, no formulas).",
+                "Enter the result as a plain decimal number, e.g. 55.2 (digits and one decimal separator; no units, formulas, exponents or underscores).",
             )
-        })?;
+        };
+        if !is_plain_decimal(&text) {
+            return Err(not_a_number());
+        }
+        let d = Decimal::from_str(&text).map_err(|_| not_a_number())?;
         if d.is_sign_negative() {
             return Err(Error::invalid(
                 place(),
@@ -435,16 +491,13 @@ impl Ctx<'_> {
                 line,
             };
             if let Some(old) = lots.iter().find(|l| l.lot == new.lot) {
-                if same_results(old, &new) {
+                let Some(what) = duplicate_difference(old, &new) else {
                     continue;
-                }
+                };
                 return Err(Error::invalid(
                     format!("{}:{line}, lot '{}'", self.name, new.lot),
-                    format!(
-                        "the lot already appears on line {} with different results",
-                        old.line
-                    ),
-                    "Keep one row per lot; enter a retest as a separate release with --retest.",
+                    format!("the lot already appears on line {} with {what}", old.line),
+                    "Keep one row per lot: delete the duplicate or make both rows agree; enter a retest as a separate release with --retest.",
                 ));
             }
             lots.push(new);
@@ -627,6 +680,34 @@ impl Ctx<'_> {
     }
 }
 
+/// How a second wide row of a lot differs from the first, or `None` when it repeats it
+/// exactly (and may be skipped): its results, a measurement temperature, or its analyst
+/// (issue #13, item 22: only an exact repeat is merged).
+fn duplicate_difference(a: &LotResults, b: &LotResults) -> Option<String> {
+    if !same_results(a, b) {
+        return Some("different results".into());
+    }
+    let temperatures = |l: &LotResults| -> Vec<Option<f64>> {
+        l.readings
+            .values()
+            .flatten()
+            .map(|r| r.temperature_c)
+            .collect()
+    };
+    if temperatures(a) != temperatures(b) {
+        return Some("a different measurement temperature".into());
+    }
+    if a.analysts != b.analysts {
+        let name = |l: &LotResults| l.analysts.first().cloned().unwrap_or_default();
+        return Some(format!(
+            "a different analyst ('{}' there, '{}' here)",
+            name(a),
+            name(b)
+        ));
+    }
+    None
+}
+
 fn same_results(a: &LotResults, b: &LotResults) -> bool {
     a.product == b.product
         && a.manufactured == b.manufactured
@@ -706,6 +787,82 @@ mod tests {
             .unwrap_err()
             .to_string()
             .contains("lacks column"));
+    }
+
+    /// Issue #13 item 10: plain decimals only.
+    #[test]
+    fn only_plain_decimals_are_numbers_issue_13() {
+        for ok in ["0.52", "1530", "0", "-1.5", "55.20"] {
+            assert!(is_plain_decimal(ok), "{ok}");
+        }
+        for bad in [
+            "0.5_0", "5_30", "0_5", "1E2", "1e2", "+1", ".5", "5.", "1.2.3", "", "-", " 1", "١",
+        ] {
+            assert!(!is_plain_decimal(bad), "{bad}");
+        }
+        let e = p("lot,product,manufactured,acid_value\nL1,P,2026-10-01,0_5\n").unwrap_err();
+        assert!(e.to_string().contains("'0_5' is not a number"), "{e}");
+        let comma = Options {
+            decimal_comma: true,
+            ..Options::default()
+        };
+        let lots = parse(
+            "r.csv",
+            b"lot;product;manufactured;acid_value\nL1;P;2026-10-01;0,52\n",
+            comma,
+        )
+        .unwrap();
+        assert_eq!(lots[0].readings["acid_value"][0].value.to_string(), "0.52");
+        assert!(parse(
+            "r.csv",
+            b"lot;product;manufactured;acid_value\nL1;P;2026-10-01;0,5_2\n",
+            comma
+        )
+        .is_err());
+    }
+
+    /// Issue #13 item 22: UTF-16, with or without a byte-order mark, is named as such.
+    #[test]
+    fn utf16_is_recognised_issue_13() {
+        let utf16: Vec<u8> = "lot,product\n"
+            .encode_utf16()
+            .flat_map(u16::to_le_bytes)
+            .collect();
+        assert!(utf16_sign(&utf16).unwrap().contains("NUL"));
+        assert!(utf16_sign(b"\xFF\xFEl\0")
+            .unwrap()
+            .contains("byte-order mark"));
+        assert_eq!(utf16_sign("lot,product\nL1,Süd\n".as_bytes()), None);
+        let e = parse("r.csv", &utf16, Options::default()).unwrap_err();
+        assert!(e.to_string().contains("looks like UTF-16"), "{e}");
+    }
+
+    /// Issue #13 item 22: duplicate wide rows merge only when they repeat exactly.
+    #[test]
+    fn duplicates_differing_in_temperature_or_analyst_are_refused_issue_13() {
+        let head = "lot,product,manufactured,viscosity,viscosity_temperature_c,analyst\n";
+        let e = p(&format!(
+            "{head}L1,P,2026-10-01,540,60,AB\nL1,P,2026-10-01,540,25,AB\n"
+        ))
+        .unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("line 2 with a different measurement temperature"),
+            "{e}"
+        );
+        let e = p(&format!(
+            "{head}L1,P,2026-10-01,540,60,AB\nL1,P,2026-10-01,540,60,CD\n"
+        ))
+        .unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("a different analyst ('AB' there, 'CD' here)"),
+            "{e}"
+        );
+        let same = p(&format!(
+            "{head}L1,P,2026-10-01,540,60,AB\nL1,P,2026-10-01,540,60,AB\n"
+        ));
+        assert_eq!(same.unwrap().len(), 1);
     }
 
     proptest::proptest! {

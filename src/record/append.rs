@@ -112,6 +112,51 @@ pub fn lock_products<'a>(
     Ok(locks)
 }
 
+/// Refuses to append rows stamped `now` to a trend file whose last row was recorded later:
+/// the clock went backwards (a wrong system clock or `SOURCE_DATE_EPOCH`), and the file's
+/// rows must stay in time order (issue #13, item 15). Only the products that get a new row
+/// (`plans[i].writes()` for a lot of that product) are checked; times are RFC 3339 and an
+/// unreadable recorded time is left to `verify`. Pure.
+pub fn check_time_order(
+    trends: &BTreeMap<&str, &Trend>,
+    decisions: &[LotDecision],
+    plans: &[Plan],
+    now: &str,
+) -> Result<()> {
+    let Ok(now_t) = chrono::DateTime::parse_from_rfc3339(now) else {
+        return Err(Error::invalid(
+            "clock",
+            format!("'{now}' is not an RFC 3339 time"),
+            "Report this as a bug: the clock's time is always RFC 3339.",
+        ));
+    };
+    let mut checked: HashSet<&str> = HashSet::new();
+    for (d, _) in decisions.iter().zip(plans).filter(|(_, p)| p.writes()) {
+        if !checked.insert(d.product.as_str()) {
+            continue;
+        }
+        let Some(t) = trends.get(d.product.as_str()) else {
+            continue;
+        };
+        let Some(last) = t.rows.last() else {
+            continue;
+        };
+        let at = t.cell(last, "recorded_at");
+        if let Ok(last_t) = chrono::DateTime::parse_from_rfc3339(at) {
+            if now_t < last_t {
+                return Err(Error::invalid(
+                    format!("{}:{}", t.path.display(), last.line),
+                    format!(
+                        "the clock says {now}, earlier than {at}, when the file's last row was recorded"
+                    ),
+                    "Check the system clock and SOURCE_DATE_EPOCH; rows are appended in time order, so nothing was written.",
+                ));
+            }
+        }
+    }
+    Ok(())
+}
+
 /// The lots of `decisions` already recorded in the trend file of a product not in `skip`:
 /// lot id -> that product. Reads nothing when the register folder does not exist yet.
 pub fn lots_elsewhere(
@@ -132,13 +177,51 @@ pub fn lots_elsewhere(
         if skip(&product) {
             continue;
         }
-        trend_file::scan(&path, &["lot"], |_, c| {
-            if ours.contains(c[0]) {
-                elsewhere.insert(c[0].to_string(), product.clone());
-            }
-        })?;
+        for lot in recorded_lots(&path, &ours)? {
+            elsewhere.insert(lot, product.clone());
+        }
     }
     Ok(elsewhere)
+}
+
+/// The lot ids of `ours` recorded in another product's trend file, read as bytes and tolerant
+/// of that file's own faults: a torn or unreadable tail of one product must not block releases
+/// of every other product (issue #13, item 13); the broken product is refused when it is
+/// itself released. A last line without its line feed counts only when it has every field.
+fn recorded_lots(path: &Path, ours: &HashSet<&str>) -> Result<Vec<String>> {
+    let mut columns = 0usize;
+    let mut lots = Vec::new();
+    crate::record::lines::for_each_block(path, crate::record::lines::CHUNK, |block| {
+        for (i, line) in block.split_inclusive(|&b| b == b'\n').enumerate() {
+            let complete = line.ends_with(b"\n");
+            let line = line.strip_suffix(b"\n").unwrap_or(line);
+            if columns == 0 && i == 0 {
+                if !complete {
+                    return Ok(()); // a torn header: nothing is recorded yet
+                }
+                let cols = trend_file::split_line(&String::from_utf8_lossy(line));
+                trend_file::check_trend_header(path, &cols)?;
+                columns = cols.len();
+                continue;
+            }
+            if complete {
+                // seq and recorded_at never hold a comma: the lot is the third field.
+                let lot = line.split(|&b| b == b',').nth(2);
+                if let Some(lot) = lot.and_then(|l| std::str::from_utf8(l).ok()) {
+                    if ours.contains(lot) {
+                        lots.push(lot.to_string());
+                    }
+                }
+            } else {
+                let cells = trend_file::split_line(&String::from_utf8_lossy(line));
+                if cells.len() == columns && ours.contains(cells[2].as_str()) {
+                    lots.push(cells[2].clone());
+                }
+            }
+        }
+        Ok(())
+    })?;
+    Ok(lots)
 }
 
 /// Decides, for every lot of `batch`, what its trend file needs. Pure: reads only the trends
@@ -186,6 +269,22 @@ fn plan_lot(batch: &Batch<'_>, i: usize, t: &Trend, specs: &SpecSet) -> Result<P
         return Ok(Plan::New);
     };
     let seq: usize = t.cell(row, "seq").parse().unwrap_or(0);
+    let recorded_date = t.cell(row, "manufactured");
+    if recorded_date != d.manufactured.to_string() {
+        // A retest re-measures the same lot; it cannot move the lot's manufacture date, which
+        // decides the spec revision and the retest period (issue #13, item 22).
+        return Err(Error::invalid(
+            batch.place(i),
+            format!(
+                "manufacture date {} differs from {recorded_date}, recorded for this lot in {} (row {seq})",
+                d.manufactured,
+                t.path.display()
+            ),
+            format!(
+                "A lot keeps its manufacture date, also when retested: enter {recorded_date} in the results file. If the recorded date itself is wrong, follow the site's procedure for correcting the record; resinlot never rewrites a row."
+            ),
+        ));
+    }
     if same_results(t, row, d, specs) {
         return Ok(Plan::Unchanged { seq });
     }
@@ -510,6 +609,70 @@ decimals = 0
         assert!(lots_elsewhere(&dir.path().join("none"), &d, &|_| false)
             .unwrap()
             .is_empty());
+    }
+
+    /// Issue #13 item 13: another product's torn tail neither blocks the search nor counts.
+    #[test]
+    fn recorded_lots_tolerates_a_torn_tail_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        let d = vec![
+            decide(&specs, "L1", "0.50", "55.6"),
+            decide(&specs, "L2", "0.40", "56.0"),
+        ];
+        record(dir.path(), &specs, &d);
+        let p = trend_file::path_for(dir.path(), "PD-2000");
+        let whole = std::fs::read(&p).unwrap();
+        let ours = HashSet::from(["L1", "L2", "L3"]);
+        let torn = [whole.as_slice(), b"3,2026-10-02T08:00:00Z,L3,PD-\xC3"].concat();
+        std::fs::write(&p, &torn).unwrap();
+        assert_eq!(recorded_lots(&p, &ours).unwrap(), ["L1", "L2"]);
+        // A complete last row without its line feed is recorded all the same.
+        std::fs::write(&p, &whole[..whole.len() - 1]).unwrap();
+        assert_eq!(recorded_lots(&p, &ours).unwrap(), ["L1", "L2"]);
+    }
+
+    /// Issue #13 item 22: a retest may not move the lot's manufacture date.
+    #[test]
+    fn a_retest_keeps_the_manufacture_date_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        record(dir.path(), &specs, &[decide(&specs, "L1", "0.50", "55.6")]);
+        let mut moved = decide(&specs, "L1", "0.45", "55.6");
+        moved.manufactured = chrono::NaiveDate::from_ymd_opt(2026, 9, 30).unwrap();
+        let err = plan_in(dir.path(), &specs, &[moved], Some("r"), &HashMap::new()).unwrap_err();
+        let text = err.to_string();
+        assert!(
+            text.contains("manufacture date 2026-09-30 differs from 2026-10-01"),
+            "{text}"
+        );
+        assert!(
+            text.contains("enter 2026-10-01 in the results file"),
+            "{text}"
+        );
+    }
+
+    /// Issue #13 item 15: rows are appended in time order; an unchanged lot writes nothing and
+    /// is not checked.
+    #[test]
+    fn a_clock_behind_the_last_row_is_refused_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        let first = vec![decide(&specs, "L1", "0.50", "55.6")];
+        record(dir.path(), &specs, &first); // recorded 2026-10-02T08:00:00Z
+        let next = vec![decide(&specs, "L2", "0.40", "56.0")];
+        let locks = lock_products(dir.path(), &specs, &next, wait()).unwrap();
+        let trends: BTreeMap<&str, &Trend> = locks.iter().map(|(&p, l)| (p, &l.trend)).collect();
+        let new = [Plan::New];
+        let e = check_time_order(&trends, &next, &new, "2026-10-01T23:59:59Z").unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("earlier than 2026-10-02T08:00:00Z, when the file's last row"),
+            "{e}"
+        );
+        assert!(check_time_order(&trends, &next, &new, "2026-10-02T08:00:00Z").is_ok());
+        let unchanged = [Plan::Unchanged { seq: 1 }];
+        assert!(check_time_order(&trends, &next, &unchanged, "2020-01-01T00:00:00Z").is_ok());
     }
 
     #[test]

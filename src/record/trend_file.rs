@@ -156,6 +156,8 @@ pub struct Damage {
     pub problem: String,
     /// True for a partial last line left by an interrupted write.
     pub torn_tail: bool,
+    /// True for a complete, chain-valid last row that only lacks its line feed.
+    pub newline_missing: bool,
 }
 
 /// Splits a CSV line into unquoted cells (the writer never puts line breaks inside cells).
@@ -215,7 +217,7 @@ pub fn property_keys(columns: &[String]) -> Vec<String> {
 /// Parses trend-file text, checking structure and the hash chain. Returns the trend with the
 /// rows read up to the first damage, and the damage if any.
 pub fn parse(path: &Path, text: &str) -> (Trend, Option<Damage>) {
-    parse_chained(path, text, true, &is_trend_header)
+    parse_bytes(path, text.as_bytes(), true, &is_trend_header)
 }
 
 /// Parses any hash-chained resinlot CSV (trend file or certificate log). With `verify` false
@@ -226,45 +228,78 @@ pub fn parse_chained(
     verify: bool,
     header_ok: &dyn Fn(&[String]) -> bool,
 ) -> (Trend, Option<Damage>) {
+    parse_bytes(path, text.as_bytes(), verify, header_ok)
+}
+
+/// Parses a hash-chained resinlot CSV from its bytes, as [`parse_chained`] does, so that a
+/// write torn inside a multi-byte character is still found and located (issue #13, item 5).
+///
+/// The last line, when it lacks its line feed, is judged as a row: if it parses and chains it
+/// is a complete row that only lacks its line end (`newline_missing`, repaired by adding the
+/// line feed); otherwise it is a torn tail (`torn_tail`, moved aside by quarantine). A line
+/// that is not UTF-8 anywhere else is damage like any other (issue #13, items 3, 5 and 18).
+pub fn parse_bytes(
+    path: &Path,
+    bytes: &[u8],
+    verify: bool,
+    header_ok: &dyn Fn(&[String]) -> bool,
+) -> (Trend, Option<Damage>) {
     let mut trend = Trend {
         path: path.to_path_buf(),
         columns: Vec::new(),
         rows: Vec::new(),
         head: String::new(),
     };
-    let torn = !text.is_empty() && !text.ends_with('\n');
     let mut offset = 0u64;
     let mut prev = String::new();
-    for (i, raw) in text.split_inclusive('\n').enumerate() {
+    for (i, raw) in bytes.split_inclusive(|&b| b == b'\n').enumerate() {
         let line_no = i + 1;
-        let line = raw.strip_suffix('\n').unwrap_or(raw);
         let here = offset;
         offset += raw.len() as u64;
-        let is_last_torn = torn && offset == text.len() as u64;
-        let damage = |problem: String, lot: Option<String>| Damage {
+        let unterminated = !raw.ends_with(b"\n");
+        let body = raw.strip_suffix(b"\n").unwrap_or(raw);
+        let damage = |problem: String, lot: Option<String>, torn_tail: bool| Damage {
             line: line_no,
             offset: here,
             lot,
             problem,
-            torn_tail: is_last_torn,
+            torn_tail,
+            newline_missing: false,
         };
-        if is_last_torn {
-            let cells = split_line(line);
-            let d = damage(
+        let torn = |lot: Option<String>| {
+            damage(
                 format!(
                     "the last line is incomplete ({} bytes, no line end): an interrupted write",
                     raw.len()
                 ),
-                cells.get(2).cloned(),
-            );
-            return (trend, Some(d));
-        }
+                lot,
+                true,
+            )
+        };
+        let line = match std::str::from_utf8(body) {
+            Ok(line) => line,
+            Err(e) => {
+                let lot = split_line(&String::from_utf8_lossy(body)).get(2).cloned();
+                if unterminated {
+                    return (trend, Some(torn(lot)));
+                }
+                let problem = format!(
+                    "the line is not valid UTF-8 (byte {}): the file was edited or damaged",
+                    here + e.valid_up_to() as u64
+                );
+                return (trend, Some(damage(problem, lot, false)));
+            }
+        };
         if i == 0 {
+            if unterminated {
+                return (trend, Some(torn(None)));
+            }
             trend.columns = split_line(line);
             if !header_ok(&trend.columns) {
                 let d = damage(
                     "the header is not the expected resinlot header".into(),
                     None,
+                    false,
                 );
                 return (trend, Some(d));
             }
@@ -274,17 +309,26 @@ pub fn parse_chained(
         }
         let cells = split_line(line);
         if let Some(problem) = row_problem(&trend, &cells) {
-            let d = damage(problem, cells.get(2).cloned());
+            let d = if unterminated {
+                torn(cells.get(2).cloned())
+            } else {
+                damage(problem, cells.get(2).cloned(), false)
+            };
             return (trend, Some(d));
         }
         if verify {
             let body = &line[..line.rfind(',').unwrap_or(0)];
             let expect = chain_hash(&prev, body);
             if cells[cells.len() - 1] != expect {
-                let d = damage(
-                    "the chain value does not match the row's content: the row, or one before it, was changed".into(),
-                    cells.get(2).cloned(),
-                );
+                let d = if unterminated {
+                    torn(cells.get(2).cloned())
+                } else {
+                    damage(
+                        "the chain value does not match the row's content: the row, or one before it, was changed".into(),
+                        cells.get(2).cloned(),
+                        false,
+                    )
+                };
                 return (trend, Some(d));
             }
             prev = expect;
@@ -292,10 +336,22 @@ pub fn parse_chained(
         } else {
             trend.head = cells[cells.len() - 1].clone();
         }
+        let lot = cells.get(2).cloned();
         trend.rows.push(Row {
             line: line_no,
             cells,
         });
+        if unterminated {
+            let d = Damage {
+                newline_missing: true,
+                ..damage(
+                    "the last row is complete but lacks its line end".into(),
+                    lot,
+                    false,
+                )
+            };
+            return (trend, Some(d));
+        }
     }
     (trend, None)
 }
@@ -322,8 +378,8 @@ fn row_problem(trend: &Trend, cells: &[String]) -> Option<String> {
 
 /// Reads and checks a trend file; damage is an error naming file, line and lot.
 pub fn read(path: &Path) -> Result<Trend> {
-    let text = crate::spec::read_text(path)?;
-    let (trend, damage) = parse(path, &text);
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "reading", e))?;
+    let (trend, damage) = parse_bytes(path, &bytes, true, &is_trend_header);
     match damage {
         None => Ok(trend),
         Some(d) => Err(damage_error(path, &d)),
@@ -333,8 +389,8 @@ pub fn read(path: &Path) -> Result<Trend> {
 /// Reads a trend file for a query: structure is checked, the chain is not recomputed
 /// (`resinlot verify` does that).
 pub fn read_fast(path: &Path) -> Result<Trend> {
-    let text = crate::spec::read_text(path)?;
-    let (trend, damage) = parse_chained(path, &text, false, &is_trend_header);
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "reading", e))?;
+    let (trend, damage) = parse_bytes(path, &bytes, false, &is_trend_header);
     match damage {
         None => Ok(trend),
         Some(d) => Err(damage_error(path, &d)),
@@ -355,12 +411,29 @@ pub fn damage_error(path: &Path, d: &Damage) -> Error {
                 .unwrap_or_default()
         ),
         d.problem.clone(),
-        if d.torn_tail {
-            "Run `resinlot verify --register DIR --quarantine` to move the fragment aside, then re-release the lot."
-        } else {
-            "The record was altered: restore the file from backup; `resinlot verify` names the first broken row."
-        },
+        repair_hint(path, d),
     )
+}
+
+/// What to do about damage `d` to `path`: a torn tail or a missing final line feed is repaired
+/// by `resinlot verify --quarantine` (naming the register folder that holds the file); anything
+/// else means the record was altered.
+pub fn repair_hint(path: &Path, d: &Damage) -> String {
+    let register = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    };
+    let run = format!(
+        "Run `resinlot verify --quarantine --register {}`",
+        register.display()
+    );
+    if d.torn_tail {
+        format!("{run} to move the fragment aside (it is kept), then re-release the lot.")
+    } else if d.newline_missing {
+        format!("{run} to restore the line end; the row itself is intact.")
+    } else {
+        "The record was altered: restore the file from backup; `resinlot verify` names the first broken row.".to_string()
+    }
 }
 
 /// An exclusively locked trend file, open for appending.
@@ -436,13 +509,13 @@ pub fn lock_with(
         }
         std::thread::sleep(Duration::from_millis(20));
     }
-    let mut text = String::new();
+    let mut bytes = Vec::new();
     file.seek(SeekFrom::Start(0))
         .map_err(|e| Error::io(path, "reading", e))?;
-    file.read_to_string(&mut text)
+    file.read_to_end(&mut bytes)
         .map_err(|e| Error::io(path, "reading", e))?;
     let header = header.to_string();
-    let fresh = text.is_empty();
+    let fresh = bytes.is_empty();
     let trend = if fresh {
         Trend {
             path: path.to_path_buf(),
@@ -451,7 +524,7 @@ pub fn lock_with(
             head: seed(&header),
         }
     } else {
-        let (trend, damage) = parse_chained(path, &text, true, header_ok);
+        let (trend, damage) = parse_bytes(path, &bytes, true, header_ok);
         if let Some(d) = damage {
             return Err(damage_error(path, &d));
         }
@@ -672,6 +745,69 @@ mod tests {
         let d = parse(&p, &std::fs::read_to_string(&p).unwrap()).1.unwrap();
         assert!(d.torn_tail);
         assert!(lock(&p, &keys(), &keys(), wait()).is_err());
+    }
+
+    /// Issue #13 item 3: a complete, chain-valid last row without its line feed is not torn.
+    #[test]
+    fn a_complete_last_row_without_line_end_is_not_torn_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        write_two(&p);
+        let bytes = std::fs::read(&p).unwrap();
+        let cut = &bytes[..bytes.len() - 1];
+        let (t, d) = parse_bytes(&p, cut, true, &is_trend_header);
+        let d = d.unwrap();
+        assert!(d.newline_missing && !d.torn_tail, "{d:?}");
+        assert_eq!((d.line, d.lot.as_deref()), (3, Some("L2")));
+        assert_eq!(t.rows.len(), 2);
+        // One byte fewer and the row no longer chains: that is a torn tail.
+        let d = parse_bytes(&p, &bytes[..bytes.len() - 2], true, &is_trend_header).1;
+        assert!(d.unwrap().torn_tail);
+    }
+
+    /// Issue #13 items 5 and 18: a tail cut inside a UTF-8 character is a torn tail; a line
+    /// that is not UTF-8 elsewhere is named with its line and byte.
+    #[test]
+    fn bytes_that_are_not_utf8_are_located_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        write_two(&p);
+        let mut bytes = std::fs::read(&p).unwrap();
+        let complete = bytes.len() as u64;
+        bytes.extend_from_slice("3,2026-10-02T08:00:00Z,L3,,,,,,,,,,,,Mü".as_bytes());
+        bytes.pop(); // half of the "ü"
+        let d = parse_bytes(&p, &bytes, true, &is_trend_header).1.unwrap();
+        assert!(d.torn_tail, "{d:?}");
+        assert_eq!((d.offset, d.lot.as_deref()), (complete, Some("L3")));
+        let mut bad = std::fs::read(&p).unwrap();
+        let at = bad.iter().position(|&b| b == b'L').unwrap();
+        bad[at] = 0xFC; // a Latin-1 "ü" in row 1
+        let d = parse_bytes(&p, &bad, true, &is_trend_header).1.unwrap();
+        assert!(!d.torn_tail && d.line == 2, "{d:?}");
+        assert!(d.problem.contains("not valid UTF-8"), "{}", d.problem);
+    }
+
+    /// Issue #13 item 13: the repair hint names `resinlot verify --quarantine` and the folder.
+    #[test]
+    fn the_repair_hint_names_verify_quarantine_issue_13() {
+        let d = Damage {
+            line: 3,
+            offset: 10,
+            lot: None,
+            problem: "x".into(),
+            torn_tail: true,
+            newline_missing: false,
+        };
+        let hint = repair_hint(Path::new("reg/P.csv"), &d);
+        assert!(
+            hint.contains("`resinlot verify --quarantine --register reg`"),
+            "{hint}"
+        );
+        let altered = Damage {
+            torn_tail: false,
+            ..d
+        };
+        assert!(repair_hint(Path::new("P.csv"), &altered).contains("restore the file"));
     }
 
     #[test]

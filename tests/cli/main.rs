@@ -15,5 +15,6 @@ mod old_registers;
 mod parsers_never_panic;
 mod record;
 mod record_faults;
+mod record_tail;
 mod release;
 mod trend;
