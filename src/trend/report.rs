@@ -41,7 +41,7 @@ pub struct ReportInput<'a> {
     pub viscosity: Option<&'a ViscosityCheck>,
 }
 
-use crate::support::fonts::{DEJAVU_SANS, DEJAVU_SANS_BOLD};
+use crate::support::fonts::{advance_width, DEJAVU_SANS, DEJAVU_SANS_BOLD};
 
 /// A4 landscape, mm (ISO 216).
 const PAGE_W: f32 = 297.0;
@@ -240,16 +240,9 @@ impl<'a> Face<'a> {
         Face { id, face }
     }
 
-    /// Advance width of `text` at `size` points, in mm (hmtx advances, no kerning).
+    /// Advance width of `text` at `size` points, in mm ([`advance_width`]).
     fn width_mm(&self, text: &str, size: f32) -> f32 {
-        let units: u32 = text
-            .chars()
-            .map(|c| {
-                let gid = self.face.lookup_glyph_index(c as u32).unwrap_or(0);
-                u32::from(self.face.get_horizontal_advance(gid))
-            })
-            .sum();
-        units as f32 / f32::from(self.face.font_metrics.units_per_em) * size / PT_PER_MM
+        advance_width(self.face, text, size) / PT_PER_MM
     }
 
     /// `text` cut to at most `width` mm, ending in "…" when cut.

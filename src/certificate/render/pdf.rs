@@ -14,7 +14,7 @@ use printpdf::{
 use crate::certificate::model::Certificate;
 use crate::error::{Error, Result};
 
-use crate::support::fonts::{DEJAVU_SANS, DEJAVU_SANS_BOLD};
+use crate::support::fonts::{advance_width, DEJAVU_SANS, DEJAVU_SANS_BOLD};
 
 /// A4 in millimetres (ISO 216).
 const PAGE_W_MM: f32 = 210.0;
@@ -93,16 +93,9 @@ impl<'a> StampFont<'a> {
         StampFont { id, face }
     }
 
-    /// Advance width of `text` at `size` points (hmtx advances, no kerning).
+    /// Advance width of `text` at `size` points ([`advance_width`]).
     fn width(&self, text: &str, size: f32) -> f32 {
-        let units: u32 = text
-            .chars()
-            .map(|c| {
-                let gid = self.face.lookup_glyph_index(c as u32).unwrap_or(0);
-                u32::from(self.face.get_horizontal_advance(gid))
-            })
-            .sum();
-        units as f32 / f32::from(self.face.font_metrics.units_per_em) * size
+        advance_width(self.face, text, size)
     }
 
     /// Cap height at `size` points (OS/2 sCapHeight; 0.73 em when the font omits it).
