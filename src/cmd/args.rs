@@ -152,6 +152,21 @@ pub fn product_code(text: &str) -> Result<String> {
     }
 }
 
+/// Checks a lot id given on the command line (`certify`, `lookup`): a safe id, so it can name
+/// files and trend-file rows. Not a clap value parser, so the refusal reads like the other
+/// refusals of the command (`lot '...'`).
+pub fn check_lot_id(lot: &str) -> Result<()> {
+    if crate::support::ids::is_safe_id(lot) {
+        Ok(())
+    } else {
+        Err(Error::invalid(
+            format!("lot '{lot}'"),
+            "not a usable lot id",
+            "Lot ids are letters, digits, '-', '_' or '.'.",
+        ))
+    }
+}
+
 /// clap value parser: a calendar date written YYYY-MM-DD.
 pub fn date(text: &str) -> Result<NaiveDate> {
     NaiveDate::parse_from_str(text, "%Y-%m-%d").map_err(|_| {
@@ -203,5 +218,11 @@ mod tests {
         assert!(product_code("PD-2000").is_ok());
         assert!(product_code("../register/PD-2000").is_err());
         assert!(product_code("certificates").is_err());
+        assert!(check_lot_id("PD2-26-0412").is_ok());
+        let e = check_lot_id("../x").unwrap_err().to_string();
+        assert!(
+            e.contains("lot '../x'") && e.contains("not a usable lot id"),
+            "{e}"
+        );
     }
 }
