@@ -623,6 +623,17 @@ fn property_page(
     signals_table(page, t, top, CHART_X, CHART_X + CHART_W);
 }
 
+/// How many of `count` table rows fit between the first row's baseline `y` (mm) and the foot
+/// of the page body, one row every `step` mm, keeping one line for "and n more" when not all fit.
+fn rows_shown(y: f32, step: f32, count: usize) -> usize {
+    let room = ((BODY_BOTTOM - y) / step).floor().max(1.0) as usize + 1;
+    if count <= room {
+        count
+    } else {
+        room - 1
+    }
+}
+
 /// The list of run-rule signals, as many as fit above the footer.
 fn signals_table(page: &mut Canvas, t: &PropertyTrend, top: f32, left: f32, right: f32) {
     const SIZE: f32 = 8.0;
@@ -663,12 +674,7 @@ fn signals_table(page: &mut Canvas, t: &PropertyTrend, top: f32, left: f32, righ
     }
     page.fill(left, y + 1.2, right - left, 0.2, MUTED);
     y += STEP + 0.5;
-    let room = ((BODY_BOTTOM - y) / STEP).floor().max(1.0) as usize + 1;
-    let shown = if t.signals.len() <= room {
-        t.signals.len()
-    } else {
-        room - 1
-    };
+    let shown = rows_shown(y, STEP, t.signals.len());
     for (i, s) in t.signals.iter().take(shown).enumerate() {
         if i % 2 == 1 {
             page.fill(left, y - 3.0, right - left, STEP, ROW_SHADE);
@@ -780,12 +786,7 @@ fn off_line_table(page: &mut Canvas, v: &ViscosityCheck) {
     page.text_right(Weight::Bold, SIZE, r, y, MUTED, "Robust z");
     page.fill(x, y + 1.2, r - x, 0.2, MUTED);
     y += STEP + 0.5;
-    let room = ((BODY_BOTTOM - y) / STEP).floor().max(1.0) as usize + 1;
-    let shown = if v.off_line.len() <= room {
-        v.off_line.len()
-    } else {
-        room - 1
-    };
+    let shown = rows_shown(y, STEP, v.off_line.len());
     for (i, o) in v.off_line.iter().take(shown).enumerate() {
         if i % 2 == 1 {
             page.fill(x, y - 3.2, r - x, STEP, ROW_SHADE);
@@ -821,6 +822,23 @@ mod tests {
     use crate::stats::{RuleSet, SpecWindow};
     use crate::trend::product::{property_trend, viscosity_check, Baseline};
     use printpdf::PdfParseOptions;
+
+    #[test]
+    fn rows_shown_keeps_a_line_for_and_n_more() {
+        // First principles: from y = BODY_BOTTOM - 10 at 4 mm a row, floor(10/4) + 1 = 3 rows fit.
+        let y = BODY_BOTTOM - 10.0;
+        assert_eq!(rows_shown(y, 4.0, 3), 3);
+        assert_eq!(
+            rows_shown(y, 4.0, 4),
+            2,
+            "two rows and the \"and n more\" line"
+        );
+        assert_eq!(
+            rows_shown(BODY_BOTTOM, 4.0, 5),
+            1,
+            "at least two lines of room"
+        );
+    }
 
     /// INVENTED test lots "TST-001"…: column 0 is Mn (g/mol), column 1 acid value (mg KOH/g),
     /// column 2 viscosity (mPa·s). Mn scatters around 2000 for 14 lots (the frozen baseline), then
