@@ -9,6 +9,8 @@ pub mod imr;
 pub mod normality;
 pub mod regression;
 pub mod rules;
+#[cfg(test)]
+mod testdata;
 
 pub use capability::{capability, capability_from_moments, Capability, Side, SpecWindow};
 pub use imr::{imr_limits, mean_and_sd, moving_ranges, Limits};
