@@ -533,19 +533,22 @@ mod tests {
         }
     }
 
+    /// The refusal of [`extents`] for the samples file `csv` (named s.csv) of the PD recipe.
+    fn extents_error(csv: &str) -> String {
+        let recipe = Recipe::parse("pd", PD).unwrap();
+        let data = samples::parse("s.csv", csv).unwrap();
+        extents(&data, &recipe.charge()).unwrap_err().to_string()
+    }
+
     #[test]
     fn av_above_av0_names_the_line() {
-        let recipe = Recipe::parse("pd", PD).unwrap();
-        let data = samples::parse("s.csv", "elapsed_min,acid_value\n0,900\n").unwrap();
-        let err = extents(&data, &recipe.charge()).unwrap_err().to_string();
+        let err = extents_error("elapsed_min,acid_value\n0,900\n");
         assert!(err.starts_with("s.csv:2, field acid_value"), "{err}");
     }
 
     #[test]
     fn zero_acid_value_is_refused() {
-        let recipe = Recipe::parse("pd", PD).unwrap();
-        let data = samples::parse("s.csv", "elapsed_min,acid_value\n0,20\n60,0\n").unwrap();
-        let err = extents(&data, &recipe.charge()).unwrap_err().to_string();
+        let err = extents_error("elapsed_min,acid_value\n0,20\n60,0\n");
         assert!(err.starts_with("s.csv:3, field acid_value"), "{err}");
     }
 
