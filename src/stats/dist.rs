@@ -301,19 +301,14 @@ pub fn student_t_quantile(prob: f64, dof: f64) -> f64 {
     while student_t_cdf(hi, dof) < prob && hi < 1e12 {
         hi *= 2.0;
     }
-    let mut lo = 0.0;
-    for _ in 0..200 {
-        let mid = 0.5 * (lo + hi);
-        if student_t_cdf(mid, dof) < prob {
-            lo = mid;
-        } else {
-            hi = mid;
-        }
-        if hi - lo < 1e-12 * hi {
-            break;
-        }
-    }
-    0.5 * (lo + hi)
+    let found: Result<f64, std::convert::Infallible> = crate::stats::solve::bisect(
+        0.0,
+        hi,
+        |t| Ok(student_t_cdf(t, dof) < prob),
+        |lo, hi| hi - lo < 1e-12 * hi,
+    );
+    let Ok(t) = found;
+    t
 }
 
 #[cfg(test)]
