@@ -178,28 +178,13 @@ pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Ve
     Ok(bytes)
 }
 
-/// Replaces the random file identifier printpdf writes into the trailer (`/ID[(..)(..)]`,
-/// ISO 32000-1 §14.4) with one derived from the certificate's content, so the same
-/// certificate always gives the same bytes (and the same SHA-256). Both strings keep their
-/// length of 32 characters, so no byte offset in the file moves.
+/// Sets the PDF's file identifier from the certificate's content
+/// ([`crate::support::pdf_id::set_document_id`]), so the same certificate always gives the same
+/// bytes (and the same SHA-256).
 fn set_document_id(bytes: &mut [u8], cert: &Certificate) {
     use sha2::{Digest, Sha256};
-    const MARK: &[u8] = b"/ID[(";
-    const LEN: usize = 32;
-    let Some(start) = bytes.windows(MARK.len()).rposition(|w| w == MARK) else {
-        return;
-    };
-    let first = start + MARK.len();
-    let second = first + LEN + 2; // skip ")("
-    if bytes.len() < second + LEN || &bytes[first + LEN..second] != b")(" {
-        return;
-    }
     let json = serde_json::to_vec(cert).unwrap_or_default();
-    let digest = Sha256::digest(&json);
-    let hex: String = digest.iter().map(|b| format!("{b:02X}")).collect();
-    // Permanent and instance identifier are equal for a file that is never updated.
-    bytes[first..first + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
-    bytes[second..second + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
+    crate::support::pdf_id::set_document_id(bytes, &Sha256::digest(&json).into());
 }
 
 fn layout_error(cert: &Certificate, problem: &str) -> Error {
