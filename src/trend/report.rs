@@ -195,33 +195,17 @@ fn chart_image(trend: &PropertyTrend) -> Result<RawImage> {
     })
 }
 
-/// Replaces the random trailer identifier (`/ID[(..)(..)]`, ISO 32000-1 §14.4) with one derived
-/// from the report's content, keeping its 32-character length so no byte offset moves.
+/// Sets the PDF's file identifier from the report's content
+/// ([`crate::support::pdf_id::set_document_id`]), so the same report always gives the same bytes.
 fn set_document_id(bytes: &mut [u8], input: &ReportInput) {
     use sha2::{Digest, Sha256};
-    const MARK: &[u8] = b"/ID[(";
-    const LEN: usize = 32;
-    let Some(start) = bytes.windows(MARK.len()).rposition(|w| w == MARK) else {
-        return;
-    };
-    let first = start + MARK.len();
-    let second = first + LEN + 2; // skip ")("
-    if bytes.len() < second + LEN || &bytes[first + LEN..second] != b")(" {
-        return;
-    }
     let mut hasher = Sha256::new();
     hasher.update(serde_json::to_vec(input).unwrap_or_default());
     for t in input.trends {
         // Fields the serialised trend leaves out.
         hasher.update(serde_json::to_vec(&(&t.lots, &t.values, &t.capability)).unwrap_or_default());
     }
-    let hex: String = hasher
-        .finalize()
-        .iter()
-        .map(|b| format!("{b:02X}"))
-        .collect();
-    bytes[first..first + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
-    bytes[second..second + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
+    crate::support::pdf_id::set_document_id(bytes, &hasher.finalize().into());
 }
 
 /// A bundled face registered in the document under a fixed id.
@@ -634,6 +618,21 @@ fn rows_shown(y: f32, step: f32, count: usize) -> usize {
     }
 }
 
+/// The last line of a table cut short by [`rows_shown`]: "… and n more" and `tail`, set at
+/// `size` points from `x`, `y` (mm); nothing when no row was left out (`more` = 0).
+fn and_more(page: &mut Canvas, (size, x, y): (f32, f32, f32), more: usize, tail: &str) {
+    if more > 0 {
+        page.text(
+            Weight::Regular,
+            size,
+            x,
+            y,
+            MUTED,
+            &format!("… and {more} more{tail}"),
+        );
+    }
+}
+
 /// The list of run-rule signals, as many as fit above the footer.
 fn signals_table(page: &mut Canvas, t: &PropertyTrend, top: f32, left: f32, right: f32) {
     const SIZE: f32 = 8.0;
@@ -694,17 +693,12 @@ fn signals_table(page: &mut Canvas, t: &PropertyTrend, top: f32, left: f32, righ
         page.text(Weight::Regular, SIZE, x_desc, y, INK, &desc);
         y += STEP;
     }
-    if shown < t.signals.len() {
-        let more = t.signals.len() - shown;
-        page.text(
-            Weight::Regular,
-            SIZE,
-            left,
-            y,
-            MUTED,
-            &format!("… and {more} more (the chart marks every signalled lot)"),
-        );
-    }
+    and_more(
+        page,
+        (SIZE, left, y),
+        t.signals.len() - shown,
+        " (the chart marks every signalled lot)",
+    );
 }
 
 /// The viscosity–Mn page: the fit and the lots off the line.
@@ -802,17 +796,7 @@ fn off_line_table(page: &mut Canvas, v: &ViscosityCheck) {
         page.text_right(Weight::Regular, SIZE, r, y, INK, &z);
         y += STEP;
     }
-    if shown < v.off_line.len() {
-        let more = v.off_line.len() - shown;
-        page.text(
-            Weight::Regular,
-            SIZE,
-            x,
-            y,
-            MUTED,
-            &format!("… and {more} more"),
-        );
-    }
+    and_more(page, (SIZE, x, y), v.off_line.len() - shown, "");
 }
 
 #[cfg(test)]
