@@ -1,13 +1,13 @@
 //! Support layer: the injected clock, printing and atomic file writes, TOML reading with
 //! file:line:column errors, aligned tables, safe identifiers, the bundled fonts and the PDF file
-//! identifier. Uses only `error` and outside crates; every other layer may use it.
+//! identity (identifier, producer, dates). Uses only `error` and outside crates; every other layer may use it.
 
 pub mod clock;
 pub mod csv_input;
 pub mod fonts;
 pub mod ids;
 pub mod output;
-pub mod pdf_id;
+pub mod pdf_meta;
 pub mod table;
 pub mod text;
 pub mod tomlfile;

@@ -1,4 +1,22 @@
-//! The file identifier of a generated PDF, made reproducible (certificates and trend reports).
+//! The identity of a generated PDF (creator, producer, dates, file identifier), made
+//! reproducible, for the certificates and the trend reports.
+
+/// Names resinlot as creator and producer of `doc` and dates it (creation, modification and
+/// metadata date) `day` at 00:00 UTC, so the file is reproducible; a day printpdf cannot
+/// represent leaves the dates as they are.
+pub fn set_creator_and_day(doc: &mut printpdf::PdfDocument, day: chrono::NaiveDate) {
+    doc.metadata.info.creator = "resinlot".to_string();
+    doc.metadata.info.producer = "resinlot (printpdf)".to_string();
+    let date = day
+        .and_hms_opt(0, 0, 0)
+        .map(|t| t.and_utc().timestamp())
+        .and_then(|ts| printpdf::OffsetDateTime::from_unix_timestamp(ts).ok());
+    if let Some(date) = date {
+        doc.metadata.info.creation_date = date;
+        doc.metadata.info.modification_date = date;
+        doc.metadata.info.metadata_date = date;
+    }
+}
 
 /// Length of each of the two identifier strings printpdf writes, in characters.
 const LEN: usize = 32;
@@ -27,6 +45,26 @@ pub fn set_document_id(bytes: &mut [u8], sha256: &[u8; 32]) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn creator_and_day_at_midnight_utc() {
+        let mut doc = printpdf::PdfDocument::new("t");
+        set_creator_and_day(
+            &mut doc,
+            chrono::NaiveDate::from_ymd_opt(2026, 4, 2).unwrap(),
+        );
+        let info = &doc.metadata.info;
+        assert_eq!(info.creator, "resinlot");
+        assert_eq!(info.producer, "resinlot (printpdf)");
+        // First principles: 2026-04-02 00:00 UTC is 1 775 088 000 s after the Unix epoch.
+        for date in [
+            info.creation_date,
+            info.modification_date,
+            info.metadata_date,
+        ] {
+            assert_eq!(date.unix_timestamp(), 1_775_088_000);
+        }
+    }
 
     #[test]
     fn both_identifier_strings_take_the_digest() {

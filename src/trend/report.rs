@@ -120,19 +120,8 @@ pub fn render_report(input: &ReportInput) -> Result<Vec<u8>> {
     doc.metadata.info.document_title =
         format!("Trend report {} {}", input.product_code, input.product_name);
     doc.metadata.info.subject = format!("Lot-to-lot trends of {}", input.product_code);
-    doc.metadata.info.creator = "resinlot".to_string();
-    doc.metadata.info.producer = "resinlot (printpdf)".to_string();
     doc.metadata.info.identifier = format!("trend-{}-{}", input.product_code, input.generated_on);
-    let date = input
-        .generated_on
-        .and_hms_opt(0, 0, 0)
-        .map(|t| t.and_utc().timestamp())
-        .and_then(|ts| printpdf::OffsetDateTime::from_unix_timestamp(ts).ok());
-    if let Some(date) = date {
-        doc.metadata.info.creation_date = date;
-        doc.metadata.info.modification_date = date;
-        doc.metadata.info.metadata_date = date;
-    }
+    crate::support::pdf_meta::set_creator_and_day(&mut doc, input.generated_on);
     let mut warnings = Vec::new();
     let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);
     set_document_id(&mut bytes, input);
@@ -196,7 +185,7 @@ fn chart_image(trend: &PropertyTrend) -> Result<RawImage> {
 }
 
 /// Sets the PDF's file identifier from the report's content
-/// ([`crate::support::pdf_id::set_document_id`]), so the same report always gives the same bytes.
+/// ([`crate::support::pdf_meta::set_document_id`]), so the same report always gives the same bytes.
 fn set_document_id(bytes: &mut [u8], input: &ReportInput) {
     use sha2::{Digest, Sha256};
     let mut hasher = Sha256::new();
@@ -205,7 +194,7 @@ fn set_document_id(bytes: &mut [u8], input: &ReportInput) {
         // Fields the serialised trend leaves out.
         hasher.update(serde_json::to_vec(&(&t.lots, &t.values, &t.capability)).unwrap_or_default());
     }
-    crate::support::pdf_id::set_document_id(bytes, &hasher.finalize().into());
+    crate::support::pdf_meta::set_document_id(bytes, &hasher.finalize().into());
 }
 
 /// A bundled face registered in the document under a fixed id.

@@ -150,20 +150,9 @@ pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Ve
     }
     doc.metadata.info.document_title = format!("{} {}", cert.title, cert.number);
     doc.metadata.info.subject = format!("Lot {} of {}", cert.lot.id, cert.product.code);
-    doc.metadata.info.creator = "resinlot".to_string();
-    doc.metadata.info.producer = "resinlot (printpdf)".to_string();
     doc.metadata.info.identifier = cert.number.clone();
     // Document dates: the issue date at 00:00 UTC, so the file is reproducible.
-    let issued = cert
-        .issue_date
-        .and_hms_opt(0, 0, 0)
-        .map(|t| t.and_utc().timestamp())
-        .and_then(|ts| printpdf::OffsetDateTime::from_unix_timestamp(ts).ok());
-    if let Some(date) = issued {
-        doc.metadata.info.creation_date = date;
-        doc.metadata.info.modification_date = date;
-        doc.metadata.info.metadata_date = date;
-    }
+    crate::support::pdf_meta::set_creator_and_day(&mut doc, cert.issue_date);
     let regular = StampFont::register(&mut doc, &fonts.regular);
     let bold = StampFont::register(&mut doc, &fonts.bold);
     let pages = doc.pages.len();
@@ -179,12 +168,12 @@ pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Ve
 }
 
 /// Sets the PDF's file identifier from the certificate's content
-/// ([`crate::support::pdf_id::set_document_id`]), so the same certificate always gives the same
+/// ([`crate::support::pdf_meta::set_document_id`]), so the same certificate always gives the same
 /// bytes (and the same SHA-256).
 fn set_document_id(bytes: &mut [u8], cert: &Certificate) {
     use sha2::{Digest, Sha256};
     let json = serde_json::to_vec(cert).unwrap_or_default();
-    crate::support::pdf_id::set_document_id(bytes, &Sha256::digest(&json).into());
+    crate::support::pdf_meta::set_document_id(bytes, &Sha256::digest(&json).into());
 }
 
 fn layout_error(cert: &Certificate, problem: &str) -> Error {
