@@ -17,6 +17,7 @@ use crate::lot::note::LotNote;
 use crate::record::trend_file::{Row, Trend};
 use crate::spec::customer::{combined, customer_fit, Customer, CustomerProduct, Fit};
 use crate::spec::decision::{decimal_from_f64, round, DecisionRule, Verdict};
+use crate::spec::keys::{MN, XN};
 use crate::spec::units::unit_factor;
 use crate::spec::{end_groups_words, limits_text, ProductSpec, Property};
 
@@ -365,16 +366,26 @@ fn result_row(
     }
 }
 
+/// The recorded value of the calculated property `key` and its spec entry, when the lot has
+/// the value, its spec revision defines the property and `keys` reports it.
+fn reported_value<'s>(
+    spec: &'s ProductSpec,
+    rec: &LotRecord,
+    keys: &[String],
+    key: &str,
+) -> Option<(Decimal, &'s Property)> {
+    if !keys.iter().any(|k| k == key) {
+        return None;
+    }
+    Some((rec.value(key)?, spec.property(key)?))
+}
+
 /// How the calculated values (Mn, Xn) were obtained, for those reported.
 fn calculated_notes(spec: &ProductSpec, rec: &LotRecord, keys: &[String]) -> Vec<CalculatedNote> {
     let mut calculated = Vec::new();
-    if let (Some(mn), Some(p), true) = (
-        rec.value("mn"),
-        spec.property("mn"),
-        keys.iter().any(|k| k == "mn"),
-    ) {
+    if let Some((mn, p)) = reported_value(spec, rec, keys, MN) {
         calculated.push(CalculatedNote {
-            key: "mn".into(),
+            key: MN.into(),
             label: "Number-average molar mass Mn".into(),
             value: round(mn, p.decimals, spec.rounding).to_string(),
             unit: "g/mol".into(),
@@ -389,13 +400,9 @@ fn calculated_notes(spec: &ProductSpec, rec: &LotRecord, keys: &[String]) -> Vec
             ),
         });
     }
-    if let (Some(xn), Some(p), true) = (
-        rec.value("xn"),
-        spec.property("xn"),
-        keys.iter().any(|k| k == "xn"),
-    ) {
+    if let Some((xn, p)) = reported_value(spec, rec, keys, XN) {
         calculated.push(CalculatedNote {
-            key: "xn".into(),
+            key: XN.into(),
             label: "Degree of polymerisation Xn".into(),
             value: round(xn, p.decimals, spec.rounding).to_string(),
             unit: String::new(),

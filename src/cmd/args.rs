@@ -127,6 +127,20 @@ impl ProductArg {
             .or(self.product_flag.as_deref())
             .unwrap_or_default()
     }
+
+    /// The product's trend file in `register`, refused (naming the product as `place`, e.g.
+    /// `--product`) when the register holds none.
+    pub fn trend_file(&self, register: &Path, place: &str) -> Result<PathBuf> {
+        let path = crate::record::trend_file::path_for(register, self.code());
+        if !path.is_file() {
+            return Err(Error::invalid(
+                format!("{place} '{}'", self.code()),
+                format!("no trend file {} exists", path.display()),
+                "Check the product code; lots appear once `resinlot release` has recorded them.",
+            ));
+        }
+        Ok(path)
+    }
 }
 
 /// The record folders an output must never land in (see
@@ -148,6 +162,21 @@ pub fn product_code(text: &str) -> Result<String> {
             format!("'{text}'"),
             "not a usable product code",
             "Give the code as in the spec file (letters, digits, '-', '_', '.'), e.g. PD-2000.",
+        ))
+    }
+}
+
+/// Checks a lot id given on the command line (`certify`, `lookup`): a safe id, so it can name
+/// files and trend-file rows. Not a clap value parser, so the refusal reads like the other
+/// refusals of the command (`lot '...'`).
+pub fn check_lot_id(lot: &str) -> Result<()> {
+    if crate::support::ids::is_safe_id(lot) {
+        Ok(())
+    } else {
+        Err(Error::invalid(
+            format!("lot '{lot}'"),
+            "not a usable lot id",
+            "Lot ids are letters, digits, '-', '_' or '.'.",
         ))
     }
 }
@@ -203,5 +232,26 @@ mod tests {
         assert!(product_code("PD-2000").is_ok());
         assert!(product_code("../register/PD-2000").is_err());
         assert!(product_code("certificates").is_err());
+        assert!(check_lot_id("PD2-26-0412").is_ok());
+        let dir = tempfile::tempdir().unwrap();
+        let product = ProductArg {
+            product_given: None,
+            product_flag: Some("PD-2000".into()),
+        };
+        let e = product
+            .trend_file(dir.path(), "--product")
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("--product 'PD-2000'") && e.contains("no trend file"),
+            "{e}"
+        );
+        std::fs::write(dir.path().join("PD-2000.csv"), "").unwrap();
+        assert!(product.trend_file(dir.path(), "--product").is_ok());
+        let e = check_lot_id("../x").unwrap_err().to_string();
+        assert!(
+            e.contains("lot '../x'") && e.contains("not a usable lot id"),
+            "{e}"
+        );
     }
 }

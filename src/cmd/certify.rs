@@ -5,7 +5,9 @@ use std::time::Duration;
 use crate::certificate::build::{self, LotRecord, Shipment};
 use crate::certificate::issue::{Issuer, Pending};
 use crate::certificate::model::Supersedes;
-use crate::cmd::args::{CertificatesFolder, Locking, RegisterFolder, SpecsFolder, TemplatesFolder};
+use crate::cmd::args::{
+    check_lot_id, CertificatesFolder, Locking, RegisterFolder, SpecsFolder, TemplatesFolder,
+};
 use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::lot::evaluate::Status;
@@ -74,14 +76,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     text_arg("--po", &args.po)?;
     text_arg("--quantity", &args.quantity)?;
     text_arg("--reason", &args.reason)?;
-    if !crate::support::ids::is_safe_id(&args.lot) {
-        return Err(Error::invalid(
-            format!("lot '{}'", args.lot),
-            "not a usable lot id",
-            "Lot ids are letters, digits, '-', '_' or '.'.",
-        )
-        .into());
-    }
+    check_lot_id(&args.lot)?;
     let specs = SpecSet::load(&args.specs)?;
     let customer = Customer::load(&args.specs.join("customers"), &args.customer, &specs)?;
     let rec = recorded_lot(args)?;

@@ -5,7 +5,6 @@ use serde_json::{json, Map, Value};
 
 use crate::cmd::args::{self, ProductArg, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
-use crate::error::Error;
 use crate::lot::evaluate::Status;
 use crate::record::find::{self, CustomerCheck, LotFilter};
 use crate::record::query::{parse_window, LotRow, Window};
@@ -60,15 +59,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .collect::<Result<_, _>>()?;
     let status = find::status_or_default(args.status, args.customer.is_some());
     let (from, to) = (args.from, args.to);
-    let path = crate::record::trend_file::path_for(&args.register, args.product.code());
-    if !path.is_file() {
-        return Err(Error::invalid(
-            format!("--product '{}'", args.product.code()),
-            format!("no trend file {} exists", path.display()),
-            "Check the product code; lots appear once `resinlot release` has recorded them.",
-        )
-        .into());
-    }
+    let path = args.product.trend_file(&args.register, "--product")?;
     let keys = crate::record::query::trend_keys(&path)?;
     find::check_window_keys(args.product.code(), &keys, &windows)?;
     let (specs, customer) = match &args.customer {

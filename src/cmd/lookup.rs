@@ -2,7 +2,7 @@
 
 use serde_json::{json, Map, Value};
 
-use crate::cmd::args::{RegisterFolder, SpecsFolder};
+use crate::cmd::args::{check_lot_id, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::record::trend_file::{Row, Trend};
@@ -26,14 +26,7 @@ pub struct Args {
 
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
-    if !crate::support::ids::is_safe_id(&args.lot) {
-        return Err(Error::invalid(
-            format!("lot '{}'", args.lot),
-            "not a usable lot id",
-            "Lot ids are letters, digits, '-', '_' or '.'.",
-        )
-        .into());
-    }
+    check_lot_id(&args.lot)?;
     let Some(trend) = crate::record::query::find_lot(&args.register, &args.lot)? else {
         let near = crate::record::query::suggestions(&args.register, &args.lot, 3)?;
         let hint = if near.is_empty() {

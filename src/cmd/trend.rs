@@ -91,15 +91,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         _ => Baseline::All,
     };
     let specs = SpecSet::load(&args.specs)?;
-    let path = crate::record::trend_file::path_for(&args.register, args.product.code());
-    if !path.is_file() {
-        return Err(Error::invalid(
-            format!("product '{}'", args.product.code()),
-            format!("no trend file {} exists", path.display()),
-            "Check the product code; lots appear once `resinlot release` has recorded them.",
-        )
-        .into());
-    }
+    let path = args.product.trend_file(&args.register, "product")?;
     let record = args::record_folders(&args.specs, &args.register, Path::new("certificates"));
     for (file, kind) in outputs(args) {
         output::check_destination(&file, kind, &record)?;

@@ -8,6 +8,7 @@ use serde::Serialize;
 use crate::chem::recipe::{Charge, Component};
 use crate::chem::stepgrowth::{self, KOH_MG_PER_MOL};
 use crate::error::{Error, Result};
+use crate::stats::solve::bisect;
 
 /// The cautions shown with every correction and end-point result (quoted in the README).
 pub const SAFETY_CAUTION: &str = "\
@@ -262,7 +263,7 @@ fn lower_hydroxyl(
         Ok(stepgrowth::progress_at(&pseudo(x), batch.acid_value)?.predicted_hydroxyl_value)
     };
     // Upper bracket: the acid that would consume every hydroxyl group.
-    let mut hi = oh_before / now.comp_acid;
+    let hi = oh_before / now.comp_acid;
     if ohv_after(hi)? > target_ohv {
         return Err(Error::invalid(
             "--target-ohv",
@@ -273,19 +274,12 @@ fn lower_hydroxyl(
             "Choose a higher target.",
         ));
     }
-    let mut lo = 0.0;
-    for _ in 0..200 {
-        let mid = 0.5 * (lo + hi);
-        if ohv_after(mid)? > target_ohv {
-            lo = mid;
-        } else {
-            hi = mid;
-        }
-        if hi - lo <= 1e-13 * hi {
-            break;
-        }
-    }
-    let x = 0.5 * (lo + hi);
+    let x = bisect(
+        0.0,
+        hi,
+        |x| Ok(ohv_after(x)? > target_ohv),
+        |lo, hi| hi - lo <= 1e-13 * hi,
+    )?;
     let ch = pseudo(x);
     let pr = stepgrowth::progress_at(&ch, batch.acid_value)?;
     let added_acid = now.comp_acid * x;

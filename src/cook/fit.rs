@@ -13,6 +13,7 @@ use crate::cook::kinetics::{
 };
 use crate::cook::samples::{Samples, Warning};
 use crate::error::{Error, Result};
+use crate::stats::solve::bisect;
 
 /// One cook fitted: everything the report and JSON show.
 #[derive(Debug, Clone, Serialize)]
@@ -185,7 +186,6 @@ pub fn acid_value_for_mn(ch: &Charge, mn: f64) -> Result<f64> {
     let mn_at = |av: f64| -> Result<f64> {
         Ok(stepgrowth::mn_recipe(&stepgrowth::progress_at(ch, av)?).unwrap_or(f64::INFINITY))
     };
-    let (mut lo, mut hi) = (0.0, av0);
     if mn <= mn_at(av0)? || mn >= mn_at(0.0)? {
         return Err(Error::invalid(
             "--target-mn",
@@ -197,15 +197,7 @@ pub fn acid_value_for_mn(ch: &Charge, mn: f64) -> Result<f64> {
             "Choose a target Mn inside that range, or give --target-av.",
         ));
     }
-    for _ in 0..200 {
-        let mid = 0.5 * (lo + hi);
-        if mn_at(mid)? > mn {
-            lo = mid;
-        } else {
-            hi = mid;
-        }
-    }
-    Ok(0.5 * (lo + hi))
+    bisect(0.0, av0, |av| Ok(mn_at(av)? > mn), |_, _| false)
 }
 
 /// Extent-of-reaction points of the samples, in file order.
@@ -533,19 +525,22 @@ mod tests {
         }
     }
 
+    /// The refusal of [`extents`] for the samples file `csv` (named s.csv) of the PD recipe.
+    fn extents_error(csv: &str) -> String {
+        let recipe = Recipe::parse("pd", PD).unwrap();
+        let data = samples::parse("s.csv", csv).unwrap();
+        extents(&data, &recipe.charge()).unwrap_err().to_string()
+    }
+
     #[test]
     fn av_above_av0_names_the_line() {
-        let recipe = Recipe::parse("pd", PD).unwrap();
-        let data = samples::parse("s.csv", "elapsed_min,acid_value\n0,900\n").unwrap();
-        let err = extents(&data, &recipe.charge()).unwrap_err().to_string();
+        let err = extents_error("elapsed_min,acid_value\n0,900\n");
         assert!(err.starts_with("s.csv:2, field acid_value"), "{err}");
     }
 
     #[test]
     fn zero_acid_value_is_refused() {
-        let recipe = Recipe::parse("pd", PD).unwrap();
-        let data = samples::parse("s.csv", "elapsed_min,acid_value\n0,20\n60,0\n").unwrap();
-        let err = extents(&data, &recipe.charge()).unwrap_err().to_string();
+        let err = extents_error("elapsed_min,acid_value\n0,20\n60,0\n");
         assert!(err.starts_with("s.csv:3, field acid_value"), "{err}");
     }
 

@@ -485,27 +485,34 @@ pub fn trend_keys(path: &Path) -> Result<Vec<String>> {
 mod tests {
     use super::*;
 
+    /// Writes a trend file at `p` with the columns `keys` holding `rows`, through the lock and
+    /// append of `record::trend_file` (test fixture: invented lots and values).
+    fn trend_with(p: &Path, keys: &[String], rows: &[Vec<(&str, String)>]) {
+        let mut l = trend_file::lock(
+            p,
+            keys,
+            keys,
+            trend_file::Wait {
+                timeout: std::time::Duration::from_secs(5),
+            },
+        )
+        .unwrap();
+        for row in rows {
+            l.append(row).unwrap();
+        }
+        l.sync().unwrap();
+    }
+
     #[test]
     fn chunked_search_finds_rows_across_chunk_boundaries() {
         let dir = tempfile::tempdir().unwrap();
         let p = dir.path().join("P.csv");
         let keys = vec!["acid_value".to_string()];
-        {
-            let mut l = trend_file::lock(
-                &p,
-                &keys,
-                &keys,
-                trend_file::Wait {
-                    timeout: std::time::Duration::from_secs(5),
-                },
-            )
-            .unwrap();
-            for lot in ["A1", "B22", "A1", "C333", "A11"] {
-                l.append(&[("lot", lot.to_string()), ("acid_value", "0.5".into())])
-                    .unwrap();
-            }
-            l.sync().unwrap();
-        }
+        let rows: Vec<_> = ["A1", "B22", "A1", "C333", "A11"]
+            .into_iter()
+            .map(|lot| vec![("lot", lot.to_string()), ("acid_value", "0.5".into())])
+            .collect();
+        trend_with(&p, &keys, &rows);
         let full = trend_file::read(&p).unwrap();
         for chunk in [1, 7, 64, 1 << 20] {
             let t = lot_rows_chunked(&p, "A1", chunk).unwrap().unwrap();
@@ -524,26 +531,17 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let p = dir.path().join("P.csv");
         let keys = vec!["acid_value".to_string()];
-        {
-            let mut l = trend_file::lock(
-                &p,
-                &keys,
-                &keys,
-                trend_file::Wait {
-                    timeout: std::time::Duration::from_secs(5),
-                },
-            )
-            .unwrap();
-            for (lot, av) in [("A1", "0.5"), ("B2", "0.6"), ("A1", "0.4"), ("C3", "")] {
-                l.append(&[
+        let rows: Vec<_> = [("A1", "0.5"), ("B2", "0.6"), ("A1", "0.4"), ("C3", "")]
+            .into_iter()
+            .map(|(lot, av)| {
+                vec![
                     ("lot", lot.to_string()),
                     ("acid_value", av.into()),
                     ("manufactured", "2026-01-01".into()),
-                ])
-                .unwrap();
-            }
-            l.sync().unwrap();
-        }
+                ]
+            })
+            .collect();
+        trend_with(&p, &keys, &rows);
         let (_, rows) = current_lots(&p, &keys, false).unwrap();
         let got: Vec<(&str, Option<f64>)> = rows.iter().map(|r| (&*r.lot, r.values[0])).collect();
         assert_eq!(got, [("B2", Some(0.6)), ("A1", Some(0.4)), ("C3", None)]);

@@ -82,16 +82,7 @@ fn ln_gamma_pq_with(a: f64, x: f64, ln_gamma_a: f64) -> (f64, f64) {
         for i in 1..MAX_ITER {
             let an = -(i as f64) * (i as f64 - a);
             b += 2.0;
-            d = an * d + b;
-            if d.abs() < TINY {
-                d = TINY;
-            }
-            c = b + an / c;
-            if c.abs() < TINY {
-                c = TINY;
-            }
-            d = 1.0 / d;
-            let delta = d * c;
+            let delta = lentz_step(an, b, &mut c, &mut d);
             h *= delta;
             if (delta - 1.0).abs() < EPS {
                 break;
@@ -245,45 +236,43 @@ pub fn incomplete_beta(x: f64, a: f64, b: f64) -> f64 {
     if x > (a + 1.0) / (a + b + 2.0) {
         return 1.0 - incomplete_beta(1.0 - x, b, a);
     }
-    const TINY: f64 = 1e-300;
     let mut c = 1.0;
-    let mut d = 1.0 - (a + b) * x / (a + 1.0);
-    if d.abs() < TINY {
-        d = TINY;
-    }
-    d = 1.0 / d;
+    let mut d = 1.0 / lentz_floor(1.0 - (a + b) * x / (a + 1.0));
     let mut h = d;
     for m in 1..500 {
         let m = f64::from(m);
         let m2 = 2.0 * m;
         let aa = m * (b - m) * x / ((a + m2 - 1.0) * (a + m2));
-        d = 1.0 + aa * d;
-        if d.abs() < TINY {
-            d = TINY;
-        }
-        c = 1.0 + aa / c;
-        if c.abs() < TINY {
-            c = TINY;
-        }
-        d = 1.0 / d;
-        h *= d * c;
+        h *= lentz_step(aa, 1.0, &mut c, &mut d);
         let aa = -(a + m) * (a + b + m) * x / ((a + m2) * (a + m2 + 1.0));
-        d = 1.0 + aa * d;
-        if d.abs() < TINY {
-            d = TINY;
-        }
-        c = 1.0 + aa / c;
-        if c.abs() < TINY {
-            c = TINY;
-        }
-        d = 1.0 / d;
-        let del = d * c;
+        let del = lentz_step(aa, 1.0, &mut c, &mut d);
         h *= del;
         if (del - 1.0).abs() < 1e-15 {
             break;
         }
     }
     ln_front.exp() * h / a
+}
+
+/// `v`, or [`TINY`] when |v| is below it, so no step of the modified Lentz method divides by
+/// zero (Numerical Recipes' FPMIN; W. H. Press et al., Numerical Recipes, 3rd ed., §5.2).
+fn lentz_floor(v: f64) -> f64 {
+    if v.abs() < TINY {
+        TINY
+    } else {
+        v
+    }
+}
+
+/// One term a/b of a continued fraction by the modified Lentz method: D ← 1/(b + a·D),
+/// C ← b + a/C (each kept off zero by [`lentz_floor`]); returns the factor C·D by which the
+/// running value is multiplied.
+/// Source: W. H. Press et al., Numerical Recipes, 3rd ed., §5.2 (the steps after eq. 5.2.8).
+fn lentz_step(a: f64, b: f64, c: &mut f64, d: &mut f64) -> f64 {
+    *d = lentz_floor(b + a * *d);
+    *c = lentz_floor(b + a / *c);
+    *d = 1.0 / *d;
+    *d * *c
 }
 
 /// Cumulative distribution function of Student's t with `dof` degrees of freedom.
@@ -312,25 +301,33 @@ pub fn student_t_quantile(prob: f64, dof: f64) -> f64 {
     while student_t_cdf(hi, dof) < prob && hi < 1e12 {
         hi *= 2.0;
     }
-    let mut lo = 0.0;
-    for _ in 0..200 {
-        let mid = 0.5 * (lo + hi);
-        if student_t_cdf(mid, dof) < prob {
-            lo = mid;
-        } else {
-            hi = mid;
-        }
-        if hi - lo < 1e-12 * hi {
-            break;
-        }
-    }
-    0.5 * (lo + hi)
+    let found: Result<f64, std::convert::Infallible> = crate::stats::solve::bisect(
+        0.0,
+        hi,
+        |t| Ok(student_t_cdf(t, dof) < prob),
+        |lo, hi| hi - lo < 1e-12 * hi,
+    );
+    let Ok(t) = found;
+    t
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
     use approx::assert_relative_eq;
+
+    #[test]
+    fn lentz_steps_converge_to_the_golden_ratio() {
+        // First principles: 1 + 1/(1 + 1/(1 + …)) = φ = (1 + √5)/2; Lentz starts from
+        // f = b0 = 1, C = f, D = 0.
+        let (mut h, mut c, mut d) = (1.0, 1.0, 0.0);
+        for _ in 0..60 {
+            h *= lentz_step(1.0, 1.0, &mut c, &mut d);
+        }
+        assert_relative_eq!(h, (1.0 + 5f64.sqrt()) / 2.0, max_relative = 1e-12);
+        assert_eq!(lentz_floor(0.0), TINY);
+        assert_eq!(lentz_floor(-2.0), -2.0);
+    }
 
     #[test]
     fn ln_gamma_matches_exact_values() {

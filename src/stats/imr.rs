@@ -138,10 +138,7 @@ mod tests {
         // §16-6, Table 16-3, chemical process concentration: x̄ = 99.1, MR̄ = 2.59,
         // UCL = 105.99, LCL = 92.21. The book works from the rounded x̄ and MR̄, so its limits
         // differ from the unrounded ones by up to 0.01.
-        let data = [
-            102.0, 94.8, 98.3, 98.4, 102.0, 98.5, 99.0, 97.7, 100.0, 98.1, 101.3, 98.7, 101.1,
-            98.4, 97.0, 96.7, 100.3, 101.4, 97.2, 101.0,
-        ];
+        let data = crate::stats::testdata::CONCENTRATION;
         let l = imr_limits(&data).unwrap();
         assert_abs_diff_eq!(l.mean, 99.1, epsilon = 0.0051);
         assert_abs_diff_eq!(l.mr_bar, 2.59, epsilon = 0.005);

@@ -1,5 +1,5 @@
 //! Lot-to-lot statistics: I-MR control limits, Nelson run rules, capability, normality, log–log fit;
-//! the shared numerics: distributions (normal, chi-square, Student t) and straight-line fits.
+//! the shared numerics: distributions (normal, chi-square, Student t) and straight-line fits; bisection.
 //!
 //! Pure functions over `&[f64]` in manufacture order; no I/O. Results derive `Serialize`.
 
@@ -9,6 +9,9 @@ pub mod imr;
 pub mod normality;
 pub mod regression;
 pub mod rules;
+pub mod solve;
+#[cfg(test)]
+mod testdata;
 
 pub use capability::{capability, capability_from_moments, Capability, Side, SpecWindow};
 pub use imr::{imr_limits, mean_and_sd, moving_ranges, Limits};

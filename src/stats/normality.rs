@@ -110,10 +110,7 @@ mod tests {
     fn concentration_data() {
         // Data: Montgomery & Runger, Applied Statistics and Probability for Engineers (3rd ed.),
         // Table 16-3.
-        let data = [
-            102.0, 94.8, 98.3, 98.4, 102.0, 98.5, 99.0, 97.7, 100.0, 98.1, 101.3, 98.7, 101.1,
-            98.4, 97.0, 96.7, 100.3, 101.4, 97.2, 101.0,
-        ];
+        let data = crate::stats::testdata::CONCENTRATION;
         let r = anderson_darling(&data).unwrap();
         assert_abs_diff_eq!(r.a2, AD_CONC, epsilon = 1e-9);
         assert_abs_diff_eq!(r.p_value, P_CONC, epsilon = 1e-9);

@@ -1,12 +1,13 @@
 //! Support layer: the injected clock, printing and atomic file writes, TOML reading with
-//! file:line:column errors, aligned tables, safe identifiers and the bundled fonts. Uses only
-//! `error` and outside crates; every other layer may use it.
+//! file:line:column errors, aligned tables, safe identifiers, the bundled fonts and the PDF file
+//! identity (identifier, producer, dates). Uses only `error` and outside crates; every other layer may use it.
 
 pub mod clock;
 pub mod csv_input;
 pub mod fonts;
 pub mod ids;
 pub mod output;
+pub mod pdf_meta;
 pub mod table;
 pub mod text;
 pub mod tomlfile;

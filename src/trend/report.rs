@@ -41,7 +41,7 @@ pub struct ReportInput<'a> {
     pub viscosity: Option<&'a ViscosityCheck>,
 }
 
-use crate::support::fonts::{DEJAVU_SANS, DEJAVU_SANS_BOLD};
+use crate::support::fonts::{advance_width, DEJAVU_SANS, DEJAVU_SANS_BOLD};
 
 /// A4 landscape, mm (ISO 216).
 const PAGE_W: f32 = 297.0;
@@ -120,19 +120,8 @@ pub fn render_report(input: &ReportInput) -> Result<Vec<u8>> {
     doc.metadata.info.document_title =
         format!("Trend report {} {}", input.product_code, input.product_name);
     doc.metadata.info.subject = format!("Lot-to-lot trends of {}", input.product_code);
-    doc.metadata.info.creator = "resinlot".to_string();
-    doc.metadata.info.producer = "resinlot (printpdf)".to_string();
     doc.metadata.info.identifier = format!("trend-{}-{}", input.product_code, input.generated_on);
-    let date = input
-        .generated_on
-        .and_hms_opt(0, 0, 0)
-        .map(|t| t.and_utc().timestamp())
-        .and_then(|ts| printpdf::OffsetDateTime::from_unix_timestamp(ts).ok());
-    if let Some(date) = date {
-        doc.metadata.info.creation_date = date;
-        doc.metadata.info.modification_date = date;
-        doc.metadata.info.metadata_date = date;
-    }
+    crate::support::pdf_meta::set_creator_and_day(&mut doc, input.generated_on);
     let mut warnings = Vec::new();
     let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);
     set_document_id(&mut bytes, input);
@@ -195,33 +184,17 @@ fn chart_image(trend: &PropertyTrend) -> Result<RawImage> {
     })
 }
 
-/// Replaces the random trailer identifier (`/ID[(..)(..)]`, ISO 32000-1 §14.4) with one derived
-/// from the report's content, keeping its 32-character length so no byte offset moves.
+/// Sets the PDF's file identifier from the report's content
+/// ([`crate::support::pdf_meta::set_document_id`]), so the same report always gives the same bytes.
 fn set_document_id(bytes: &mut [u8], input: &ReportInput) {
     use sha2::{Digest, Sha256};
-    const MARK: &[u8] = b"/ID[(";
-    const LEN: usize = 32;
-    let Some(start) = bytes.windows(MARK.len()).rposition(|w| w == MARK) else {
-        return;
-    };
-    let first = start + MARK.len();
-    let second = first + LEN + 2; // skip ")("
-    if bytes.len() < second + LEN || &bytes[first + LEN..second] != b")(" {
-        return;
-    }
     let mut hasher = Sha256::new();
     hasher.update(serde_json::to_vec(input).unwrap_or_default());
     for t in input.trends {
         // Fields the serialised trend leaves out.
         hasher.update(serde_json::to_vec(&(&t.lots, &t.values, &t.capability)).unwrap_or_default());
     }
-    let hex: String = hasher
-        .finalize()
-        .iter()
-        .map(|b| format!("{b:02X}"))
-        .collect();
-    bytes[first..first + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
-    bytes[second..second + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
+    crate::support::pdf_meta::set_document_id(bytes, &hasher.finalize().into());
 }
 
 /// A bundled face registered in the document under a fixed id.
@@ -240,16 +213,9 @@ impl<'a> Face<'a> {
         Face { id, face }
     }
 
-    /// Advance width of `text` at `size` points, in mm (hmtx advances, no kerning).
+    /// Advance width of `text` at `size` points, in mm ([`advance_width`]).
     fn width_mm(&self, text: &str, size: f32) -> f32 {
-        let units: u32 = text
-            .chars()
-            .map(|c| {
-                let gid = self.face.lookup_glyph_index(c as u32).unwrap_or(0);
-                u32::from(self.face.get_horizontal_advance(gid))
-            })
-            .sum();
-        units as f32 / f32::from(self.face.font_metrics.units_per_em) * size / PT_PER_MM
+        advance_width(self.face, text, size) / PT_PER_MM
     }
 
     /// `text` cut to at most `width` mm, ending in "…" when cut.
@@ -630,6 +596,32 @@ fn property_page(
     signals_table(page, t, top, CHART_X, CHART_X + CHART_W);
 }
 
+/// How many of `count` table rows fit between the first row's baseline `y` (mm) and the foot
+/// of the page body, one row every `step` mm, keeping one line for "and n more" when not all fit.
+fn rows_shown(y: f32, step: f32, count: usize) -> usize {
+    let room = ((BODY_BOTTOM - y) / step).floor().max(1.0) as usize + 1;
+    if count <= room {
+        count
+    } else {
+        room - 1
+    }
+}
+
+/// The last line of a table cut short by [`rows_shown`]: "… and n more" and `tail`, set at
+/// `size` points from `x`, `y` (mm); nothing when no row was left out (`more` = 0).
+fn and_more(page: &mut Canvas, (size, x, y): (f32, f32, f32), more: usize, tail: &str) {
+    if more > 0 {
+        page.text(
+            Weight::Regular,
+            size,
+            x,
+            y,
+            MUTED,
+            &format!("… and {more} more{tail}"),
+        );
+    }
+}
+
 /// The list of run-rule signals, as many as fit above the footer.
 fn signals_table(page: &mut Canvas, t: &PropertyTrend, top: f32, left: f32, right: f32) {
     const SIZE: f32 = 8.0;
@@ -670,12 +662,7 @@ fn signals_table(page: &mut Canvas, t: &PropertyTrend, top: f32, left: f32, righ
     }
     page.fill(left, y + 1.2, right - left, 0.2, MUTED);
     y += STEP + 0.5;
-    let room = ((BODY_BOTTOM - y) / STEP).floor().max(1.0) as usize + 1;
-    let shown = if t.signals.len() <= room {
-        t.signals.len()
-    } else {
-        room - 1
-    };
+    let shown = rows_shown(y, STEP, t.signals.len());
     for (i, s) in t.signals.iter().take(shown).enumerate() {
         if i % 2 == 1 {
             page.fill(left, y - 3.0, right - left, STEP, ROW_SHADE);
@@ -695,17 +682,12 @@ fn signals_table(page: &mut Canvas, t: &PropertyTrend, top: f32, left: f32, righ
         page.text(Weight::Regular, SIZE, x_desc, y, INK, &desc);
         y += STEP;
     }
-    if shown < t.signals.len() {
-        let more = t.signals.len() - shown;
-        page.text(
-            Weight::Regular,
-            SIZE,
-            left,
-            y,
-            MUTED,
-            &format!("… and {more} more (the chart marks every signalled lot)"),
-        );
-    }
+    and_more(
+        page,
+        (SIZE, left, y),
+        t.signals.len() - shown,
+        " (the chart marks every signalled lot)",
+    );
 }
 
 /// The viscosity–Mn page: the fit and the lots off the line.
@@ -787,12 +769,7 @@ fn off_line_table(page: &mut Canvas, v: &ViscosityCheck) {
     page.text_right(Weight::Bold, SIZE, r, y, MUTED, "Robust z");
     page.fill(x, y + 1.2, r - x, 0.2, MUTED);
     y += STEP + 0.5;
-    let room = ((BODY_BOTTOM - y) / STEP).floor().max(1.0) as usize + 1;
-    let shown = if v.off_line.len() <= room {
-        v.off_line.len()
-    } else {
-        room - 1
-    };
+    let shown = rows_shown(y, STEP, v.off_line.len());
     for (i, o) in v.off_line.iter().take(shown).enumerate() {
         if i % 2 == 1 {
             page.fill(x, y - 3.2, r - x, STEP, ROW_SHADE);
@@ -808,17 +785,7 @@ fn off_line_table(page: &mut Canvas, v: &ViscosityCheck) {
         page.text_right(Weight::Regular, SIZE, r, y, INK, &z);
         y += STEP;
     }
-    if shown < v.off_line.len() {
-        let more = v.off_line.len() - shown;
-        page.text(
-            Weight::Regular,
-            SIZE,
-            x,
-            y,
-            MUTED,
-            &format!("… and {more} more"),
-        );
-    }
+    and_more(page, (SIZE, x, y), v.off_line.len() - shown, "");
 }
 
 #[cfg(test)]
@@ -828,6 +795,23 @@ mod tests {
     use crate::stats::{RuleSet, SpecWindow};
     use crate::trend::product::{property_trend, viscosity_check, Baseline};
     use printpdf::PdfParseOptions;
+
+    #[test]
+    fn rows_shown_keeps_a_line_for_and_n_more() {
+        // First principles: from y = BODY_BOTTOM - 10 at 4 mm a row, floor(10/4) + 1 = 3 rows fit.
+        let y = BODY_BOTTOM - 10.0;
+        assert_eq!(rows_shown(y, 4.0, 3), 3);
+        assert_eq!(
+            rows_shown(y, 4.0, 4),
+            2,
+            "two rows and the \"and n more\" line"
+        );
+        assert_eq!(
+            rows_shown(BODY_BOTTOM, 4.0, 5),
+            1,
+            "at least two lines of room"
+        );
+    }
 
     /// INVENTED test lots "TST-001"…: column 0 is Mn (g/mol), column 1 acid value (mg KOH/g),
     /// column 2 viscosity (mPa·s). Mn scatters around 2000 for 14 lots (the frozen baseline), then

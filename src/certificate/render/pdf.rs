@@ -14,7 +14,7 @@ use printpdf::{
 use crate::certificate::model::Certificate;
 use crate::error::{Error, Result};
 
-use crate::support::fonts::{DEJAVU_SANS, DEJAVU_SANS_BOLD};
+use crate::support::fonts::{advance_width, DEJAVU_SANS, DEJAVU_SANS_BOLD};
 
 /// A4 in millimetres (ISO 216).
 const PAGE_W_MM: f32 = 210.0;
@@ -93,16 +93,9 @@ impl<'a> StampFont<'a> {
         StampFont { id, face }
     }
 
-    /// Advance width of `text` at `size` points (hmtx advances, no kerning).
+    /// Advance width of `text` at `size` points ([`advance_width`]).
     fn width(&self, text: &str, size: f32) -> f32 {
-        let units: u32 = text
-            .chars()
-            .map(|c| {
-                let gid = self.face.lookup_glyph_index(c as u32).unwrap_or(0);
-                u32::from(self.face.get_horizontal_advance(gid))
-            })
-            .sum();
-        units as f32 / f32::from(self.face.font_metrics.units_per_em) * size
+        advance_width(self.face, text, size)
     }
 
     /// Cap height at `size` points (OS/2 sCapHeight; 0.73 em when the font omits it).
@@ -157,20 +150,9 @@ pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Ve
     }
     doc.metadata.info.document_title = format!("{} {}", cert.title, cert.number);
     doc.metadata.info.subject = format!("Lot {} of {}", cert.lot.id, cert.product.code);
-    doc.metadata.info.creator = "resinlot".to_string();
-    doc.metadata.info.producer = "resinlot (printpdf)".to_string();
     doc.metadata.info.identifier = cert.number.clone();
     // Document dates: the issue date at 00:00 UTC, so the file is reproducible.
-    let issued = cert
-        .issue_date
-        .and_hms_opt(0, 0, 0)
-        .map(|t| t.and_utc().timestamp())
-        .and_then(|ts| printpdf::OffsetDateTime::from_unix_timestamp(ts).ok());
-    if let Some(date) = issued {
-        doc.metadata.info.creation_date = date;
-        doc.metadata.info.modification_date = date;
-        doc.metadata.info.metadata_date = date;
-    }
+    crate::support::pdf_meta::set_creator_and_day(&mut doc, cert.issue_date);
     let regular = StampFont::register(&mut doc, &fonts.regular);
     let bold = StampFont::register(&mut doc, &fonts.bold);
     let pages = doc.pages.len();
@@ -185,28 +167,13 @@ pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Ve
     Ok(bytes)
 }
 
-/// Replaces the random file identifier printpdf writes into the trailer (`/ID[(..)(..)]`,
-/// ISO 32000-1 §14.4) with one derived from the certificate's content, so the same
-/// certificate always gives the same bytes (and the same SHA-256). Both strings keep their
-/// length of 32 characters, so no byte offset in the file moves.
+/// Sets the PDF's file identifier from the certificate's content
+/// ([`crate::support::pdf_meta::set_document_id`]), so the same certificate always gives the same
+/// bytes (and the same SHA-256).
 fn set_document_id(bytes: &mut [u8], cert: &Certificate) {
     use sha2::{Digest, Sha256};
-    const MARK: &[u8] = b"/ID[(";
-    const LEN: usize = 32;
-    let Some(start) = bytes.windows(MARK.len()).rposition(|w| w == MARK) else {
-        return;
-    };
-    let first = start + MARK.len();
-    let second = first + LEN + 2; // skip ")("
-    if bytes.len() < second + LEN || &bytes[first + LEN..second] != b")(" {
-        return;
-    }
     let json = serde_json::to_vec(cert).unwrap_or_default();
-    let digest = Sha256::digest(&json);
-    let hex: String = digest.iter().map(|b| format!("{b:02X}")).collect();
-    // Permanent and instance identifier are equal for a file that is never updated.
-    bytes[first..first + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
-    bytes[second..second + LEN].copy_from_slice(&hex.as_bytes()[..LEN]);
+    crate::support::pdf_meta::set_document_id(bytes, &Sha256::digest(&json).into());
 }
 
 fn layout_error(cert: &Certificate, problem: &str) -> Error {
