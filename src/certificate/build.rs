@@ -99,7 +99,7 @@ impl LotRecord {
                     .map(|v| v.as_str().to_string())
                     .unwrap_or_default(),
             );
-            if p.property == "mn" {
+            if p.property == MN {
                 mn_u = p.uncertainty;
             }
         }
@@ -298,7 +298,7 @@ fn reported_keys(spec: &ProductSpec, ship: Option<&Shipment>) -> Vec<String> {
         None => spec
             .properties
             .iter()
-            .filter(|p| !p.derived || p.has_limit() || p.key == "xn")
+            .filter(|p| !p.derived || p.has_limit() || p.key == XN)
             .map(|p| p.key.clone())
             .collect(),
     }

@@ -6,6 +6,7 @@ use crate::cmd::args::{check_lot_id, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::record::trend_file::{Row, Trend};
+use crate::spec::keys;
 use crate::spec::{end_groups_words, limits_text, ProductSpec, SpecSet};
 
 /// Arguments of `resinlot lookup`.
@@ -254,12 +255,12 @@ fn property_table<'a>(
 /// How Mn, Xn and the extent of reaction were obtained, when recorded.
 fn derived_text<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> String {
     let mut out = String::new();
-    if !c("mn").is_empty() {
+    if !c(keys::MN).is_empty() {
         let u = c("mn_uncertainty").parse::<f64>().ok();
         let f = spec.map_or(2.0, |s| s.functionality);
         out.push_str(&format!(
             "\nMn is {}{} g/mol: calculated from the acid value and hydroxyl value by end-group analysis, assuming {}.\n",
-            reported(spec, "mn", c("mn")),
+            reported(spec, keys::MN, c(keys::MN)),
             u.map(|u| format!(" ± {u:.0}")).unwrap_or_default(),
             end_groups_words(f)
         ));
@@ -267,11 +268,11 @@ fn derived_text<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> 
             out.push_str("The ± figure is the expanded uncertainty (k = 2, about 95 % coverage) from those of the two titrations.\n");
         }
     }
-    if !c("xn").is_empty() || !c("extent_of_reaction").is_empty() {
+    if !c(keys::XN).is_empty() || !c(keys::EXTENT_OF_REACTION).is_empty() {
         out.push_str(&format!(
             "Xn {} and extent of reaction {}: from the batch recipe by the Carothers relations, allowing for the water of condensation.\n",
-            if c("xn").is_empty() { "-".to_string() } else { reported(spec, "xn", c("xn")) },
-            if c("extent_of_reaction").is_empty() { "-".to_string() } else { reported(spec, "extent_of_reaction", c("extent_of_reaction")) },
+            if c(keys::XN).is_empty() { "-".to_string() } else { reported(spec, keys::XN, c(keys::XN)) },
+            if c(keys::EXTENT_OF_REACTION).is_empty() { "-".to_string() } else { reported(spec, keys::EXTENT_OF_REACTION, c(keys::EXTENT_OF_REACTION)) },
         ));
     }
     out

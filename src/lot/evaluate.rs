@@ -12,6 +12,7 @@ use crate::error::{Error, Result};
 use crate::lot::intake::{LotResults, Reading};
 use crate::lot::note::LotNote;
 use crate::spec::decision::{decimal_from_f64, round, verdict, DecisionRule, Verdict};
+use crate::spec::keys;
 use crate::spec::units::unit_factor;
 use crate::spec::{ProductSpec, Property};
 
@@ -310,7 +311,7 @@ fn measured_results(spec: &ProductSpec, means: &[(String, Decimal)]) -> Vec<Prop
     let guarded = spec.decision_rule == DecisionRule::Guarded;
     let av_mean = means
         .iter()
-        .find(|(k, _)| k == "acid_value")
+        .find(|(k, _)| k == keys::ACID_VALUE)
         .map(|(_, v)| *v);
     let mut results = Vec::new();
     for p in spec.measured() {
@@ -319,7 +320,7 @@ fn measured_results(spec: &ProductSpec, means: &[(String, Decimal)]) -> Vec<Prop
             continue;
         };
         // ISO 4629-2 acidity correction: the limits apply to the corrected hydroxyl value.
-        let corrected = p.key == "hydroxyl_value" && p.acidity_correction;
+        let corrected = p.key == keys::HYDROXYL_VALUE && p.acidity_correction;
         let u = guard_uncertainty(spec, p);
         let value = if corrected {
             let Some(av) = av_mean else {
@@ -358,11 +359,11 @@ fn derived_results(
             .find(|(key, _)| key == k)
             .map(|(_, v)| to_f64(*v))
     };
-    let av = mean_of("acid_value");
-    let ohv = mean_of("hydroxyl_value");
+    let av = mean_of(keys::ACID_VALUE);
+    let ohv = mean_of(keys::HYDROXYL_VALUE);
     let u = |k: &str| spec.property(k).and_then(|p| p.uncertainty).map(to_f64);
     let hv_corr = spec
-        .property("hydroxyl_value")
+        .property(keys::HYDROXYL_VALUE)
         .is_some_and(|p| p.acidity_correction);
     let mut any_missing = false;
     for p in spec.properties.iter().filter(|p| p.derived) {
@@ -371,8 +372,8 @@ fn derived_results(
             &p.key,
             av,
             ohv,
-            u("acid_value"),
-            u("hydroxyl_value"),
+            u(keys::ACID_VALUE),
+            u(keys::HYDROXYL_VALUE),
             hv_corr,
         )
         .map_err(|e| match e {
@@ -453,7 +454,7 @@ pub fn derived_value(
     let (Some(ohv), av) = (ohv, av) else {
         return Ok(None);
     };
-    let needs_av = key != "hydroxyl_equivalent_weight" || acidity_correction;
+    let needs_av = key != keys::HYDROXYL_EQUIVALENT_WEIGHT || acidity_correction;
     if needs_av && av.is_none() {
         return Ok(None);
     }
@@ -484,8 +485,8 @@ pub fn derived_value(
             .and_then(|a| a.recipe)
     };
     Ok(match key {
-        "mn" => a.mn.map(|mn| (mn, a.mn_uncertainty)),
-        "hydroxyl_equivalent_weight" => a.hydroxyl_equivalent_weight.map(|hew| {
+        keys::MN => a.mn.map(|mn| (mn, a.mn_uncertainty)),
+        keys::HYDROXYL_EQUIVALENT_WEIGHT => a.hydroxyl_equivalent_weight.map(|hew| {
             let u = match (u_av, u_ohv) {
                 (Some(ua), Some(uo)) => {
                     let uc = if acidity_correction {
@@ -499,12 +500,12 @@ pub fn derived_value(
             };
             (hew, u)
         }),
-        "xn" => a
+        keys::XN => a
             .recipe
             .as_ref()
             .and_then(|r| r.xn_carothers)
             .map(|x| (x, spread(&|v| recipe_at(v).and_then(|r| r.xn_carothers)))),
-        "extent_of_reaction" => a.recipe.as_ref().map(|r| {
+        keys::EXTENT_OF_REACTION => a.recipe.as_ref().map(|r| {
             (
                 r.extent_of_reaction,
                 spread(&|v| recipe_at(v).map(|r| r.extent_of_reaction)),

@@ -8,6 +8,7 @@ use indexmap::IndexMap;
 use rust_decimal::Decimal;
 
 use crate::error::{Error, Result};
+use crate::spec::keys;
 use crate::support::ids::is_safe_id;
 
 /// Limits that keep a hostile or mistaken file from exhausting the machine.
@@ -456,7 +457,7 @@ impl Ctx<'_> {
                 }
                 let key = self.headers[i].clone();
                 let value = self.number(v, line, &key)?;
-                let t = if key == "viscosity" {
+                let t = if key == keys::VISCOSITY {
                     temperature_c
                 } else {
                     None

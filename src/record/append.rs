@@ -12,6 +12,7 @@ use crate::error::{Error, Result};
 use crate::lot::evaluate::LotDecision;
 use crate::lot::note::LotNote;
 use crate::record::trend_file::{self, Locked, Trend, Wait};
+use crate::spec::keys;
 use crate::spec::SpecSet;
 
 /// What happened to one lot in the trend file.
@@ -312,8 +313,8 @@ fn same_results(t: &Trend, row: &trend_file::Row, d: &LotDecision, specs: &SpecS
                 .for_date(&d.product, d.manufactured)
                 .ok()
                 .and_then(|s| s.property(&p.property).cloned());
-            let entered_col = if p.property == "hydroxyl_value" {
-                "hydroxyl_value_entered"
+            let entered_col = if p.property == keys::HYDROXYL_VALUE {
+                keys::HYDROXYL_VALUE_ENTERED
             } else {
                 p.property.as_str()
             };
@@ -353,13 +354,13 @@ pub fn row_cells(d: &LotDecision, plan: &Plan, approver: &str, now: &str) -> Vec
                 .map(|v| v.as_str().to_string())
                 .unwrap_or_default(),
         ));
-        if p.property == "hydroxyl_value" {
+        if p.property == keys::HYDROXYL_VALUE {
             cells.push((
-                "hydroxyl_value_entered",
+                keys::HYDROXYL_VALUE_ENTERED,
                 p.entered.clone().unwrap_or_default(),
             ));
         }
-        if p.property == "mn" {
+        if p.property == keys::MN {
             cells.push((
                 "mn_uncertainty",
                 p.uncertainty.map(|u| u.to_string()).unwrap_or_default(),

@@ -8,10 +8,11 @@ use crate::lot::evaluate::Status;
 use crate::record::query::{LotRow, Window};
 use crate::spec::customer::{customer_fit, CustomerProduct};
 use crate::spec::decision::decimal_from_f64;
+use crate::spec::keys;
 use crate::spec::SpecSet;
 
 /// Properties the table of found lots shows after the windows' own keys.
-pub const HEADLINE_KEYS: [&str; 3] = ["mn", "acid_value", "hydroxyl_value"];
+pub const HEADLINE_KEYS: [&str; 3] = [keys::MN, keys::ACID_VALUE, keys::HYDROXYL_VALUE];
 
 /// A customer's requirements for the product searched, with the specs they tighten.
 #[derive(Debug, Clone, Copy)]

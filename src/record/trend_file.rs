@@ -13,6 +13,7 @@ use std::time::{Duration, Instant};
 use sha2::{Digest, Sha256};
 
 use crate::error::{Error, Result};
+use crate::spec::keys;
 
 /// Columns before the property columns.
 pub const PREFIX: [&str; 10] = [
@@ -29,7 +30,12 @@ pub const PREFIX: [&str; 10] = [
 ];
 
 /// Columns after the property columns.
-pub const SUFFIX: [&str; 4] = ["hydroxyl_value_entered", "mn_uncertainty", "notes", "chain"];
+pub const SUFFIX: [&str; 4] = [
+    keys::HYDROXYL_VALUE_ENTERED,
+    "mn_uncertainty",
+    "notes",
+    "chain",
+];
 
 /// The trend file path of a product.
 pub fn path_for(register: &Path, product: &str) -> PathBuf {

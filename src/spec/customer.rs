@@ -8,6 +8,7 @@ use rust_decimal::Decimal;
 use serde::Deserialize;
 
 use crate::error::{Error, Result};
+use crate::spec::keys;
 
 use crate::spec::decision::{decimal_from_f64, round, verdict, DecisionRule, Verdict};
 use crate::spec::{ProductSpec, Property, SpecSet};
@@ -321,8 +322,8 @@ pub fn combined(
 /// U(AV) for an acidity-corrected hydroxyl value (GUM, JCGM 100:2008 §5.1.2, uncorrelated:
 /// U = √(U_OHV² + U_AV²)).
 pub fn guard_uncertainty(spec: &ProductSpec, p: &Property) -> Option<Decimal> {
-    if p.key == "hydroxyl_value" && p.acidity_correction {
-        let u_av = spec.property("acid_value").and_then(|a| a.uncertainty);
+    if p.key == keys::HYDROXYL_VALUE && p.acidity_correction {
+        let u_av = spec.property(keys::ACID_VALUE).and_then(|a| a.uncertainty);
         match (p.uncertainty, u_av) {
             (Some(uo), Some(ua)) => {
                 decimal_from_f64((to_f64(uo).powi(2) + to_f64(ua).powi(2)).sqrt())
@@ -346,7 +347,7 @@ pub fn recorded_uncertainty(
     p: &Property,
     mn_uncertainty: Option<f64>,
 ) -> Option<Decimal> {
-    if p.key == "mn" {
+    if p.key == keys::MN {
         mn_uncertainty.and_then(decimal_from_f64)
     } else if p.derived {
         None

@@ -7,6 +7,7 @@ use rust_decimal::Decimal;
 
 use crate::error::{Error, Result};
 use crate::record::query::LotRow;
+use crate::spec::keys;
 use crate::spec::{ProductSpec, Property, SpecSet};
 use crate::stats::{self, Capability, Limits, Normality, RuleSet, SpecWindow};
 
@@ -237,7 +238,8 @@ pub fn columns_for(keys: &[String], property: Option<&str>) -> Vec<String> {
             .iter()
             .filter(|k| {
                 *k == p
-                    || (matches!(p, "mn" | "viscosity") && matches!(k.as_str(), "mn" | "viscosity"))
+                    || (matches!(p, keys::MN | keys::VISCOSITY)
+                        && matches!(k.as_str(), keys::MN | keys::VISCOSITY))
             })
             .cloned()
             .collect(),
@@ -351,7 +353,7 @@ pub struct ViscosityCheck {
 /// The viscosity–Mn check when both columns were loaded ([`viscosity_check`]).
 pub fn viscosity_check_of(lots: &[LotRow], columns: &[String]) -> Option<ViscosityCheck> {
     let at = |k: &str| columns.iter().position(|c| c == k);
-    viscosity_check(lots, at("mn")?, at("viscosity")?)
+    viscosity_check(lots, at(keys::MN)?, at(keys::VISCOSITY)?)
 }
 
 /// Fits log viscosity against log Mn and lists the lots off the line, or None when fewer than

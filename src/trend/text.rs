@@ -4,6 +4,7 @@
 
 use serde_json::{json, Value};
 
+use crate::spec::keys;
 use crate::trend::product::{PropertyTrend, ViscosityCheck};
 
 /// The JSON of one property's trend (the documented keys, and more).
@@ -188,7 +189,7 @@ pub fn detail(t: &PropertyTrend, visc: Option<&ViscosityCheck>, rules: &str) -> 
     for w in &t.warnings {
         out.push_str(&format!("Warning: {w}\n"));
     }
-    if matches!(t.property.as_str(), "viscosity" | "mn") {
+    if matches!(t.property.as_str(), keys::VISCOSITY | keys::MN) {
         out.push_str(&visc_text(visc));
     }
     out
