@@ -1,5 +1,6 @@
 //! Lab results intake: wide or long CSV, comma or semicolon, decimal point or comma, with BOM.
 
+use std::collections::HashMap;
 use std::path::Path;
 use std::str::FromStr;
 
@@ -380,6 +381,9 @@ impl Ctx<'_> {
             }
         }
         let mut lots: Vec<LotResults> = Vec::new();
+        // Lot id -> index in `lots`, so a repeated row is found in O(1), not by a scan
+        // (a scan per row made intake quadratic in the number of lots, issue #13 item 11).
+        let mut index: HashMap<String, usize> = HashMap::new();
         for rec in reader.records() {
             let rec = rec.map_err(|e| csv_error(self.name, e))?;
             let line = rec.position().map_or(0, |p| p.line());
@@ -434,7 +438,7 @@ impl Ctx<'_> {
                 analysts,
                 line,
             };
-            if let Some(old) = lots.iter().find(|l| l.lot == new.lot) {
+            if let Some(old) = index.get(&new.lot).map(|&i| &lots[i]) {
                 if same_results(old, &new) {
                     continue;
                 }
@@ -447,6 +451,7 @@ impl Ctx<'_> {
                     "Keep one row per lot; enter a retest as a separate release with --retest.",
                 ));
             }
+            index.insert(new.lot.clone(), lots.len());
             lots.push(new);
         }
         Ok(lots)
