@@ -10,6 +10,7 @@ mod cook;
 mod demo_command;
 mod demo_data;
 mod endgroup;
+mod intake_scale;
 mod lookup;
 mod old_registers;
 mod parsers_never_panic;
