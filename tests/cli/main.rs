@@ -9,6 +9,7 @@ mod certify;
 mod cook;
 mod demo_command;
 mod demo_data;
+mod demo_safety;
 mod endgroup;
 mod intake_scale;
 mod lookup;
