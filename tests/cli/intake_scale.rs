@@ -84,3 +84,57 @@ fn a_large_file_gives_the_same_decisions_as_small_ones_issue_13() {
         )))
         .stderr(predicates::str::contains("already appears on line 15"));
 }
+
+/// The rows of lot `i` in long format (one per property, replicate 1), same values as [`row`].
+fn long_rows(i: usize) -> String {
+    let wide = row(i);
+    let c: Vec<&str> = wide.split(',').collect();
+    ["acid_value", "hydroxyl_value", "viscosity"]
+        .iter()
+        .enumerate()
+        .map(|(k, key)| format!("{},{},{key},{},1,{}\n", c[0], c[1], c[3 + k], c[2]))
+        .collect()
+}
+
+#[test]
+fn a_large_long_file_decides_as_the_wide_one_issue_13() {
+    const N: usize = 3000;
+    let ws = Workspace::new();
+    let mut wide = HEADER.to_string();
+    let mut long = "lot,product,property,value,replicate,manufactured\n".to_string();
+    for i in 0..N {
+        wide.push_str(&row(i));
+        wide.push('\n');
+        long.push_str(&long_rows(i));
+    }
+    // An identical repeat of a numbered replicate far down the file is skipped as before.
+    long.push_str(&long_rows(3));
+    ws.write("wide.csv", &wide);
+    ws.write("long.csv", &long);
+    let wide = dry_run_json(&ws, "wide.csv");
+    let long = dry_run_json(&ws, "long.csv");
+    assert_eq!(long["lots"].as_array().unwrap().len(), N);
+    assert_eq!(wide["lots"], long["lots"]);
+
+    let read_long = || std::fs::read_to_string(ws.path("long.csv")).unwrap();
+    // A conflicting replicate and a lot under another product, far down, are still refused
+    // naming the earlier line (lot 5's acid value is on line 2 + 3 * 5).
+    let conflict = format!("{}S00005,TP-2000,acid_value,9.99,1,\n", read_long());
+    ws.write("conflict.csv", &conflict);
+    ws.release("conflict.csv")
+        .arg("--dry-run")
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains(
+            "replicate 1 of acid_value already appears on line 17",
+        ));
+    let other = format!("{}S00005,TP-9000,water,0.1,,\n", read_long());
+    ws.write("other.csv", &other);
+    ws.release("other.csv")
+        .arg("--dry-run")
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains(
+            "product 'TP-9000' differs from 'TP-2000' on line 17",
+        ));
+}
