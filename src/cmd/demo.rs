@@ -11,8 +11,9 @@ use crate::error::Error;
 /// Arguments of `resinlot demo`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Folder for the demo workspace. An earlier demo workspace there is rebuilt from scratch;
-    /// any other existing folder is refused. Default: ./resinlot-demo.
+    /// Folder for the demo workspace. An earlier demo workspace there is rebuilt from scratch
+    /// when it holds only the files the demo wrote, unchanged; one with files added or changed
+    /// since, and any other existing folder, is refused. Default: ./resinlot-demo.
     #[arg(hide_default_value = true, default_value = "resinlot-demo")]
     pub dir: PathBuf,
 }
@@ -250,6 +251,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         bar.set_message(s.what);
         let out_name = slug(i + 1, &s.args);
         let code = run_step(&exe, dir, &s.args, &outputs.join(&out_name))?;
+        // Record what the demo has written so far, so a later rebuild deletes only that.
+        crate::record::workspace::seal_demo(dir)?;
         let ok = s.expect.contains(&code);
         all_ok &= ok;
         report.push_str(&format!(

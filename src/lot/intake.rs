@@ -1,5 +1,6 @@
 //! Lab results intake: wide or long CSV, comma or semicolon, decimal point or comma, with BOM.
 
+use std::collections::HashMap;
 use std::path::Path;
 use std::str::FromStr;
 
@@ -265,6 +266,9 @@ fn csv_error(name: &str, e: csv::Error) -> Error {
     )
 }
 
+/// Numbered replicates seen in a long file: (lot, key, replicate) -> (value, line).
+type Replicates = HashMap<(String, String, String), (Decimal, u64)>;
+
 struct Ctx<'a> {
     name: &'a str,
     headers: &'a [String],
@@ -437,6 +441,9 @@ impl Ctx<'_> {
             }
         }
         let mut lots: Vec<LotResults> = Vec::new();
+        // Lot id -> index in `lots`, so a repeated row is found in O(1), not by a scan
+        // (a scan per row made intake quadratic in the number of lots, issue #13 item 11).
+        let mut index: HashMap<String, usize> = HashMap::new();
         for rec in reader.records() {
             let rec = rec.map_err(|e| csv_error(self.name, e))?;
             let line = rec.position().map_or(0, |p| p.line());
@@ -491,7 +498,7 @@ impl Ctx<'_> {
                 analysts,
                 line,
             };
-            if let Some(old) = lots.iter().find(|l| l.lot == new.lot) {
+            if let Some(old) = index.get(&new.lot).map(|&i| &lots[i]) {
                 let Some(what) = duplicate_difference(old, &new) else {
                     continue;
                 };
@@ -501,6 +508,7 @@ impl Ctx<'_> {
                     "Keep one row per lot: delete the duplicate or make both rows agree; enter a retest as a separate release with --retest.",
                 ));
             }
+            index.insert(new.lot.clone(), lots.len());
             lots.push(new);
         }
         Ok(lots)
@@ -538,43 +546,48 @@ impl Ctx<'_> {
     /// True when `row` (lot, key, replicate, value, line) repeats a numbered replicate already
     /// seen with the same value (the row is then skipped); refuses one with another value.
     /// Otherwise remembers it and returns false.
+    ///
+    /// `seen` maps (lot, key, replicate) to (value, line), found in O(1) rather than by a scan
+    /// of every earlier row (issue #13 item 11).
     fn repeated_replicate(
         &self,
-        seen: &mut Vec<(String, String, String, Decimal, u64)>,
+        seen: &mut Replicates,
         row: (String, String, String, Decimal, u64),
     ) -> Result<bool> {
         let (lot, key, r, value, line) = &row;
-        if let Some(prev) = seen
-            .iter()
-            .find(|(l, k, rr, _, _)| l == lot && k == key && rr == r && !r.is_empty())
-        {
-            if prev.3 != *value {
+        if r.is_empty() {
+            return Ok(false);
+        }
+        if let Some(&(prev_value, prev_line)) = seen.get(&(lot.clone(), key.clone(), r.clone())) {
+            if prev_value != *value {
                 return Err(Error::invalid(
                     format!("{}:{line}, lot '{lot}'", self.name),
                     format!(
-                        "replicate {r} of {key} already appears on line {} with value {}",
-                        prev.4, prev.3
+                        "replicate {r} of {key} already appears on line {prev_line} with value {prev_value}"
                     ),
                     "Remove the conflicting row or number the replicates distinctly.",
                 ));
             }
             return Ok(true);
         }
-        seen.push(row);
+        let (lot, key, r, value, line) = row;
+        seen.insert((lot, key, r), (value, line));
         Ok(false)
     }
 
     /// Index of `lot` in `lots`, adding it (with an unknown date in `dates`) on its first row;
-    /// refuses a lot given under two products.
+    /// refuses a lot given under two products. `index` maps lot id to that index, so a lot is
+    /// found in O(1) rather than by a scan (issue #13 item 11).
     fn lot_slot(
         &self,
         lots: &mut Vec<LotResults>,
         dates: &mut Vec<Option<NaiveDate>>,
+        index: &mut HashMap<String, usize>,
         lot: &str,
         product: String,
         line: u64,
     ) -> Result<usize> {
-        if let Some(p) = lots.iter().position(|l| l.lot == lot) {
+        if let Some(&p) = index.get(lot) {
             if lots[p].product != product {
                 return Err(Error::invalid(
                     format!("{}:{line}, lot '{lot}'", self.name),
@@ -596,6 +609,7 @@ impl Ctx<'_> {
             line,
         });
         dates.push(None);
+        index.insert(lot.to_string(), lots.len() - 1);
         Ok(lots.len() - 1)
     }
 
@@ -608,7 +622,8 @@ impl Ctx<'_> {
         let replicate = self.col("replicate");
         let mut lots: Vec<LotResults> = Vec::new();
         let mut dates: Vec<Option<NaiveDate>> = Vec::new();
-        let mut seen_replicates: Vec<(String, String, String, Decimal, u64)> = Vec::new();
+        let mut seen_replicates = Replicates::new();
+        let mut index: HashMap<String, usize> = HashMap::new();
         for rec in reader.records() {
             let rec = rec.map_err(|e| csv_error(self.name, e))?;
             let line = rec.position().map_or(0, |p| p.line());
@@ -642,7 +657,7 @@ impl Ctx<'_> {
                     continue;
                 }
             }
-            let pos = self.lot_slot(&mut lots, &mut dates, &lot, product, line)?;
+            let pos = self.lot_slot(&mut lots, &mut dates, &mut index, &lot, product, line)?;
             if let Some(d) = date {
                 match dates[pos] {
                     Some(old) if old != d => {

@@ -31,8 +31,16 @@ pub fn extract(dir: &Dir<'_>, target: &Path) -> Result<()> {
     Ok(())
 }
 
+/// First lines of the demo marker; the manifest of what the demo wrote follows.
+const MARKER_HEAD: &str =
+    "This folder was made by `resinlot demo`. Running the demo again rebuilds it from\n\
+scratch, but only while every file in it is one the demo wrote, as listed below\n\
+(SHA-256 and path); otherwise the demo refuses and deletes nothing.\n";
+
 /// Prepares `dir` for the demo: creates it, or clears it when it is a demo workspace made
-/// earlier (it carries [`DEMO_MARKER`]); any other existing, non-empty folder is refused.
+/// earlier (it carries [`DEMO_MARKER`]) holding only files the demo wrote, unchanged; a demo
+/// workspace with a file added or changed since (a later real release, its certificate, a
+/// user's file) is refused, naming the files, and so is any other existing, non-empty folder.
 pub fn prepare_demo(dir: &Path) -> Result<()> {
     if dir.exists() {
         let empty = std::fs::read_dir(dir)
@@ -40,6 +48,7 @@ pub fn prepare_demo(dir: &Path) -> Result<()> {
             .next()
             .is_none();
         if dir.join(DEMO_MARKER).is_file() {
+            check_demo_unchanged(dir)?;
             std::fs::remove_dir_all(dir).map_err(|e| Error::io(dir, "removing the old demo", e))?;
         } else if !empty {
             return Err(Error::invalid(
@@ -50,15 +59,126 @@ pub fn prepare_demo(dir: &Path) -> Result<()> {
         }
     }
     std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, "creating folder", e))?;
-    std::fs::write(
-        dir.join(DEMO_MARKER),
-        "This folder was made by `resinlot demo` and is rebuilt from scratch by running it again.\n",
-    )
-    .map_err(|e| Error::io(dir, "writing", e))?;
+    std::fs::write(dir.join(DEMO_MARKER), MARKER_HEAD).map_err(|e| Error::io(dir, "writing", e))?;
     extract(&SPECS, &dir.join("specs"))?;
     extract(&TEMPLATES, &dir.join("templates"))?;
     extract(&DEMO_LOTS, &dir.join("demo-lots"))?;
-    Ok(())
+    seal_demo(dir)
+}
+
+/// Records in the demo marker every file now in the demo workspace `dir`, with its SHA-256,
+/// as written by the demo; the demo calls it after every step, so a rebuild can tell the
+/// demo's own files from anything added or changed later.
+pub fn seal_demo(dir: &Path) -> Result<()> {
+    let mut text = MARKER_HEAD.to_string();
+    for (path, digest) in workspace_files(dir)? {
+        text.push_str(&format!("{digest}  {path}\n"));
+    }
+    crate::support::output::write_atomic(&dir.join(DEMO_MARKER), text.as_bytes(), true)
+}
+
+/// Every file below `dir` but the marker, as (path relative to `dir` with '/', digest): the
+/// SHA-256 hex of a file's bytes, `symlink:<target>` for a link (not followed), `other` for
+/// anything else that is not a folder. Sorted by path.
+fn workspace_files(dir: &Path) -> Result<Vec<(String, String)>> {
+    fn walk(root: &Path, p: &Path, out: &mut Vec<(String, String)>) -> Result<()> {
+        for e in std::fs::read_dir(p).map_err(|e| Error::io(p, "reading folder", e))? {
+            let e = e.map_err(|e| Error::io(p, "reading folder", e))?;
+            let path = e.path();
+            let meta =
+                std::fs::symlink_metadata(&path).map_err(|e| Error::io(&path, "reading", e))?;
+            let rel = path
+                .strip_prefix(root)
+                .unwrap_or(&path)
+                .components()
+                .map(|c| c.as_os_str().to_string_lossy())
+                .collect::<Vec<_>>()
+                .join("/");
+            if meta.is_dir() {
+                walk(root, &path, out)?;
+            } else if rel == DEMO_MARKER {
+                continue;
+            } else if meta.file_type().is_symlink() {
+                let target =
+                    std::fs::read_link(&path).map_err(|e| Error::io(&path, "reading", e))?;
+                out.push((rel, format!("symlink:{}", target.display())));
+            } else if meta.is_file() {
+                use sha2::Digest;
+                let bytes = std::fs::read(&path).map_err(|e| Error::io(&path, "reading", e))?;
+                out.push((
+                    rel,
+                    crate::record::trend_file::hex(&sha2::Sha256::digest(bytes)),
+                ));
+            } else {
+                out.push((rel, "other".to_string()));
+            }
+        }
+        Ok(())
+    }
+    let mut out = Vec::new();
+    walk(dir, dir, &mut out)?;
+    out.sort();
+    Ok(out)
+}
+
+/// The manifest in a demo marker's text: path -> digest.
+fn manifest(marker: &str) -> std::collections::HashMap<&str, &str> {
+    marker
+        .lines()
+        .filter_map(|l| l.split_once("  "))
+        .filter(|(digest, _)| {
+            digest.starts_with("symlink:")
+                || *digest == "other"
+                || (digest.len() == 64 && digest.bytes().all(|b| b.is_ascii_hexdigit()))
+        })
+        .map(|(digest, path)| (path, digest))
+        .collect()
+}
+
+/// Files of the demo workspace `dir` that differ from what the demo recorded in its marker:
+/// "path (added)" for a file the demo did not write, "path (changed)" for one that changed
+/// since. A file the demo wrote and that is gone is not a difference: rebuilding loses nothing.
+pub fn demo_differences(dir: &Path) -> Result<Vec<String>> {
+    let marker_path = dir.join(DEMO_MARKER);
+    let marker = std::fs::read(&marker_path).map_err(|e| Error::io(&marker_path, "reading", e))?;
+    let marker = String::from_utf8_lossy(&marker);
+    let recorded = manifest(&marker);
+    Ok(workspace_files(dir)?
+        .into_iter()
+        .filter_map(|(path, digest)| match recorded.get(path.as_str()) {
+            None => Some(format!("{path} (added)")),
+            Some(d) if *d != digest => Some(format!("{path} (changed)")),
+            Some(_) => None,
+        })
+        .collect())
+}
+
+/// Refuses to rebuild the demo workspace `dir` when it holds a file added or changed since
+/// the demo wrote it (see [`demo_differences`]), naming the files.
+fn check_demo_unchanged(dir: &Path) -> Result<()> {
+    let diffs = demo_differences(dir)?;
+    if diffs.is_empty() {
+        return Ok(());
+    }
+    const SHOWN: usize = 12;
+    let mut list = diffs
+        .iter()
+        .take(SHOWN)
+        .cloned()
+        .collect::<Vec<_>>()
+        .join(", ");
+    if diffs.len() > SHOWN {
+        list.push_str(&format!(" and {} more", diffs.len() - SHOWN));
+    }
+    Err(Error::invalid(
+        dir.display().to_string(),
+        format!(
+            "the demo workspace holds {} file{} the demo did not write as it is now: {list}",
+            diffs.len(),
+            if diffs.len() == 1 { "" } else { "s" }
+        ),
+        "The demo will not delete them: move what you want to keep out of the folder (and delete the rest yourself), or give the demo another folder (resinlot demo DIR).",
+    ))
 }
 
 /// A commented example product spec for `resinlot init`.
@@ -198,9 +318,66 @@ mod tests {
         assert!(foreign.join("notes.txt").exists());
         let demo = d.path().join("demo");
         prepare_demo(&demo).unwrap();
+        // An output of the earlier demo run, recorded as the demo does after each step.
         std::fs::write(demo.join("stale.txt"), "old output").unwrap();
+        seal_demo(&demo).unwrap();
         prepare_demo(&demo).unwrap();
         assert!(!demo.join("stale.txt").exists());
         assert!(demo.join("specs/pd-2000.toml").exists());
+    }
+
+    /// Issue #13 item 21: a file added to or changed in a demo workspace after the demo wrote
+    /// it stops the rebuild, which names it and deletes nothing; a removed one does not.
+    #[test]
+    fn demo_refuses_to_delete_files_it_did_not_write_issue_13() {
+        let d = tempfile::tempdir().unwrap();
+        let demo = d.path().join("demo");
+        prepare_demo(&demo).unwrap();
+        assert!(demo_differences(&demo).unwrap().is_empty());
+        std::fs::write(demo.join("notes.txt"), "mine").unwrap();
+        let spec = demo.join("specs/pd-2000.toml");
+        let mut text = std::fs::read_to_string(&spec).unwrap();
+        text.push_str("# edited by hand\n");
+        std::fs::write(&spec, &text).unwrap();
+        std::fs::remove_file(demo.join("templates/site.toml")).unwrap();
+        assert_eq!(
+            demo_differences(&demo).unwrap(),
+            vec!["notes.txt (added)", "specs/pd-2000.toml (changed)"]
+        );
+        let e = prepare_demo(&demo).unwrap_err();
+        assert_eq!(e.exit_code(), 2);
+        let msg = e.to_string();
+        assert!(msg.contains("notes.txt (added)"), "{msg}");
+        assert!(msg.contains("specs/pd-2000.toml (changed)"), "{msg}");
+        assert_eq!(
+            std::fs::read_to_string(demo.join("notes.txt")).unwrap(),
+            "mine"
+        );
+        assert_eq!(std::fs::read_to_string(&spec).unwrap(), text);
+        std::fs::remove_file(demo.join("notes.txt")).unwrap();
+        seal_demo(&demo).unwrap();
+        prepare_demo(&demo).unwrap();
+        assert!(demo.join("templates/site.toml").is_file());
+    }
+
+    /// A marker written before the manifest existed lists no files: nothing is deleted.
+    #[test]
+    fn demo_marker_without_manifest_is_refused_issue_13() {
+        let d = tempfile::tempdir().unwrap();
+        let demo = d.path().join("demo");
+        std::fs::create_dir(&demo).unwrap();
+        std::fs::write(
+            demo.join(DEMO_MARKER),
+            "This folder was made by `resinlot demo` and is rebuilt from scratch by running it again.\n",
+        )
+        .unwrap();
+        std::fs::create_dir(demo.join("register")).unwrap();
+        std::fs::write(demo.join("register/PD-2000.csv"), "rows").unwrap();
+        let e = prepare_demo(&demo).unwrap_err();
+        assert!(
+            e.to_string().contains("register/PD-2000.csv (added)"),
+            "{e}"
+        );
+        assert!(demo.join("register/PD-2000.csv").is_file());
     }
 }
