@@ -28,27 +28,27 @@ pub struct Titration {
 impl Titration {
     /// Checks every number before any work is done.
     pub fn validate(&self) -> Result<()> {
-        crate::chem::ranges::group_value("acid value (--av)", self.av)?;
-        crate::chem::ranges::group_value("hydroxyl value (--ohv)", self.ohv)?;
-        positive("functionality (--functionality)", self.functionality)?;
+        crate::chem::ranges::group_value("acid value", self.av)?;
+        crate::chem::ranges::group_value("hydroxyl value", self.ohv)?;
+        positive("functionality", self.functionality)?;
         if let Some(u) = self.u_av {
-            non_negative("acid value uncertainty (--av-u)", u)?;
+            non_negative("acid value uncertainty", u)?;
         }
         if let Some(u) = self.u_ohv {
-            non_negative("hydroxyl value uncertainty (--ohv-u)", u)?;
+            non_negative("hydroxyl value uncertainty", u)?;
         }
         if self.u_av.is_some() != self.u_ohv.is_some() {
             return Err(Error::invalid(
-                "--av-u and --ohv-u",
+                "acid and hydroxyl value uncertainties",
                 "only one of the two uncertainties is given",
                 "Give both expanded uncertainties (k = 2) for the uncertainty of Mn, or neither.",
             ));
         }
         if let Some(s) = self.solids_fraction {
-            positive("solids fraction (--solids)", s)?;
+            positive("solids fraction", s)?;
             if s > 1.0 {
                 return Err(Error::invalid(
-                    "solids fraction (--solids)",
+                    "solids fraction",
                     format!("{s} is above 1"),
                     "Give the non-volatile content as a fraction, e.g. 0.65 for 65 %.",
                 ));

@@ -41,6 +41,15 @@ pub struct Args {
     pub json: bool,
 }
 
+/// The flag behind each field the correction names in its errors.
+const FLAGS: &[(&str, &str)] = &[
+    ("batch mass", "--batch-kg"),
+    ("acid value", "--av"),
+    ("hydroxyl value", "--ohv"),
+    ("acid value and hydroxyl value", "--av and --ohv"),
+    ("target hydroxyl value", "--target-ohv"),
+];
+
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let recipe = Recipe::load(&args.recipe).context("cannot use the recipe")?;
@@ -87,7 +96,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         acid_value: args.av,
         hydroxyl_value: args.ohv,
     };
-    let c = correction::correct(&batch, component, args.target_ohv)?;
+    let c = correction::correct(&batch, component, args.target_ohv)
+        .map_err(|e| crate::cmd::args::name_flags(e, FLAGS))?;
     let text = if args.json {
         let mut v = serde_json::to_value(&c)?;
         v["caution"] = serde_json::Value::String(correction::SAFETY_CAUTION.into());

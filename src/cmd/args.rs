@@ -153,6 +153,18 @@ pub fn record_folders<'a>(
     [specs, register, certificates]
 }
 
+/// Names the flag behind each domain field in an error's place: the domain says "acid value",
+/// the command line reads "acid value (--av)". `flags` pairs field names with flags; other
+/// places and other errors pass through unchanged.
+pub fn name_flags(e: Error, flags: &[(&str, &str)]) -> Error {
+    e.at(
+        |place| match flags.iter().find(|(field, _)| *field == place) {
+            Some((field, flag)) => format!("{field} ({flag})"),
+            None => place.to_string(),
+        },
+    )
+}
+
 /// clap value parser: a product code (a safe id that is not one of the register's own names).
 pub fn product_code(text: &str) -> Result<String> {
     if crate::support::ids::is_product_code(text) {

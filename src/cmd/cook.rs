@@ -74,6 +74,12 @@ pub struct Args {
     pub json: bool,
 }
 
+/// The flag behind each field the cook fit names in its errors.
+const FLAGS: &[(&str, &str)] = &[
+    ("target acid value", "--target-av"),
+    ("target Mn", "--target-mn"),
+];
+
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let recipe = Recipe::load(&args.recipe).context("cannot use the recipe")?;
@@ -88,7 +94,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     }
     let order = args.order;
     if args.arrhenius {
-        let rep = arrhenius::arrhenius(&args.samples, &recipe, order, args.exclude_below)?;
+        let rep = arrhenius::arrhenius(&args.samples, &recipe, order, args.exclude_below)
+            .map_err(|e| crate::cmd::args::name_flags(e, FLAGS))?;
         let text = if args.json {
             serde_json::to_string_pretty(&rep)? + "\n"
         } else {
@@ -111,7 +118,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         (None, Some(mn)) => Target::Mn(mn),
         (None, None) => unreachable!("clap requires a target"),
     };
-    let rep = fit::analyse(&data, &recipe, target, order, args.exclude_below)?;
+    let rep = fit::analyse(&data, &recipe, target, order, args.exclude_below)
+        .map_err(|e| crate::cmd::args::name_flags(e, FLAGS))?;
     let chart = match &args.chart {
         Some(path) => Some((path, chart_bytes(&rep, &recipe)?)),
         None => None,

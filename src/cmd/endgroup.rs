@@ -51,6 +51,20 @@ pub struct Args {
     pub json: bool,
 }
 
+/// The flag behind each field the end-group analysis names in its errors.
+const FLAGS: &[(&str, &str)] = &[
+    ("acid value", "--av"),
+    ("hydroxyl value", "--ohv"),
+    ("functionality", "--functionality"),
+    ("acid value uncertainty", "--av-u"),
+    ("hydroxyl value uncertainty", "--ohv-u"),
+    (
+        "acid and hydroxyl value uncertainties",
+        "--av-u and --ohv-u",
+    ),
+    ("solids fraction", "--solids"),
+];
+
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let recipe = match &args.recipe {
@@ -66,7 +80,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         u_ohv: args.ohv_u,
         solids_fraction: args.solids,
     };
-    let a = analyse(&t, recipe.as_ref())?;
+    let a = analyse(&t, recipe.as_ref()).map_err(|e| crate::cmd::args::name_flags(e, FLAGS))?;
     let text = if args.json {
         serde_json::to_string_pretty(&a)? + "\n"
     } else {

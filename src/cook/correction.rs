@@ -105,14 +105,14 @@ anhydride ring opening), which is removed; no glycol distils overhead.";
 /// ed., §2-1); the end-group conservation under transesterification is common practice in
 /// polyester manufacture.
 pub fn correct(batch: &BatchNow, component: &Component, target_ohv: f64) -> Result<Correction> {
-    crate::chem::ranges::batch_mass("batch mass (--batch-kg)", batch.mass_kg)?;
-    crate::chem::ranges::group_value("acid value (--av)", batch.acid_value)?;
-    crate::chem::ranges::group_value("hydroxyl value (--ohv)", batch.hydroxyl_value)?;
-    crate::error::positive("target hydroxyl value (--target-ohv)", target_ohv)?;
-    crate::chem::ranges::group_value("target hydroxyl value (--target-ohv)", target_ohv)?;
+    crate::chem::ranges::batch_mass("batch mass", batch.mass_kg)?;
+    crate::chem::ranges::group_value("acid value", batch.acid_value)?;
+    crate::chem::ranges::group_value("hydroxyl value", batch.hydroxyl_value)?;
+    crate::error::positive("target hydroxyl value", target_ohv)?;
+    crate::chem::ranges::group_value("target hydroxyl value", target_ohv)?;
     if batch.acid_value + batch.hydroxyl_value <= 0.0 {
         return Err(Error::invalid(
-            "--av and --ohv",
+            "acid value and hydroxyl value",
             "both are zero, so there are no end groups to balance",
             "Enter the titrated values of the batch.",
         ));
@@ -120,7 +120,7 @@ pub fn correct(batch: &BatchNow, component: &Component, target_ohv: f64) -> Resu
     let now = Balance::of(batch, component);
     if (target_ohv - batch.hydroxyl_value).abs() < 1e-12 {
         return Err(Error::invalid(
-            "--target-ohv",
+            "target hydroxyl value",
             "the target equals the present hydroxyl value",
             "No correction is needed.",
         ));
@@ -189,7 +189,7 @@ fn raise_hydroxyl(
     }
     if ohv_c <= target_ohv {
         return Err(Error::invalid(
-            "--target-ohv",
+            "target hydroxyl value",
             format!(
                 "{target_ohv} mg KOH/g is not below the hydroxyl value of pure {} ({ohv_c:.1})",
                 component.name
@@ -266,7 +266,7 @@ fn lower_hydroxyl(
     let hi = oh_before / now.comp_acid;
     if ohv_after(hi)? > target_ohv {
         return Err(Error::invalid(
-            "--target-ohv",
+            "target hydroxyl value",
             format!(
                 "{target_ohv} mg KOH/g cannot be reached with {}",
                 component.name

@@ -188,7 +188,7 @@ pub fn acid_value_for_mn(ch: &Charge, mn: f64) -> Result<f64> {
     };
     if mn <= mn_at(av0)? || mn >= mn_at(0.0)? {
         return Err(Error::invalid(
-            "--target-mn",
+            "target Mn",
             format!(
                 "{mn} g/mol is outside what this recipe can reach ({:.0} to {:.0} g/mol)",
                 mn_at(av0)?,
@@ -221,11 +221,11 @@ pub fn orders_to_try(order: Option<f64>) -> Vec<f64> {
 pub fn target_acid_value(ch: &Charge, target: Target) -> Result<f64> {
     Ok(match target {
         Target::AcidValue(av) => {
-            crate::error::positive("--target-av", av)?;
-            crate::chem::ranges::group_value("--target-av", av)?
+            crate::error::positive("target acid value", av)?;
+            crate::chem::ranges::group_value("target acid value", av)?
         }
         Target::Mn(mn) => {
-            crate::error::positive("--target-mn", mn)?;
+            crate::error::positive("target Mn", mn)?;
             acid_value_for_mn(ch, mn)?
         }
     })
@@ -254,8 +254,8 @@ pub fn analyse(
         .map_err(|e| relocate(e, &data.file))?;
     let fit = &fits[best];
     let target_av = target_acid_value(&ch, target)?;
-    let at_target =
-        stepgrowth::progress_at(&ch, target_av).map_err(|e| e.at(|_| "--target-av".into()))?;
+    let at_target = stepgrowth::progress_at(&ch, target_av)
+        .map_err(|e| e.at(|_| "target acid value".into()))?;
     let end = kinetics::predict_end_point(fit, at_target.p_acid);
     let warnings = fit_warnings(data, fit, &end, target_av)?;
     let last = data.samples.last().expect("samples are never empty");
