@@ -106,15 +106,18 @@ folder_deref!(CertificatesFolder, certificates);
 #[derive(Debug, Clone, clap::Args)]
 pub struct ProductArg {
     /// Product code, e.g. PD-2000 (or give it with --product).
-    #[arg(value_name = "PRODUCT", value_parser = product_code)]
+    #[arg(
+        value_name = "PRODUCT",
+        value_parser = product_code,
+        required_unless_present = "product_flag"
+    )]
     pub product_given: Option<String>,
     /// Product code, e.g. PD-2000 (or give it as the first argument).
     #[arg(
         long = "product",
         value_name = "CODE",
         value_parser = product_code,
-        conflicts_with = "product_given",
-        required_unless_present = "product_given"
+        conflicts_with = "product_given"
     )]
     pub product_flag: Option<String>,
 }
@@ -165,16 +168,19 @@ pub fn name_flags(e: Error, flags: &[(&str, &str)]) -> Error {
     )
 }
 
+// The value parsers below answer clap, which prints "invalid value 'X' for '--flag'" and
+// then their message: what is wrong with the value and what to give instead.
+
 /// clap value parser: a product code (a safe id that is not one of the register's own names).
-pub fn product_code(text: &str) -> Result<String> {
+pub fn product_code(text: &str) -> Result<String, String> {
     if crate::support::ids::is_product_code(text) {
         Ok(text.to_string())
     } else {
-        Err(Error::invalid(
-            format!("'{text}'"),
-            "not a usable product code",
-            "Give the code as in the spec file (letters, digits, '-', '_', '.'), e.g. PD-2000.",
-        ))
+        Err(
+            "not a usable product code. Give the code as in the spec file (letters, digits, \
+             '-', '_', '.'), e.g. PD-2000"
+                .into(),
+        )
     }
 }
 
@@ -194,38 +200,28 @@ pub fn check_lot_id(lot: &str) -> Result<()> {
 }
 
 /// clap value parser: a calendar date written YYYY-MM-DD.
-pub fn date(text: &str) -> Result<NaiveDate> {
-    NaiveDate::parse_from_str(text, "%Y-%m-%d").map_err(|_| {
-        Error::invalid(
-            format!("'{text}'"),
-            "not a date",
-            "Write dates as YYYY-MM-DD.",
-        )
-    })
+pub fn date(text: &str) -> Result<NaiveDate, String> {
+    NaiveDate::parse_from_str(text, "%Y-%m-%d")
+        .map_err(|_| "not a date. Write dates as YYYY-MM-DD".into())
 }
 
 /// clap value parser: a lot status (released, on_hold, rejected, incomplete).
-pub fn status(text: &str) -> Result<Status> {
-    Status::parse(text).ok_or_else(|| {
-        Error::invalid(
-            format!("'{text}'"),
-            "not a lot status",
-            "Use released, on_hold, rejected or incomplete.",
-        )
-    })
+pub fn status(text: &str) -> Result<Status, String> {
+    Status::parse(text)
+        .ok_or_else(|| "not a lot status. Use released, on_hold, rejected or incomplete".into())
 }
 
 /// clap value parser: a reaction order for the cook fit, 2, 2.5 or 3.
-pub fn reaction_order(text: &str) -> Result<f64> {
+pub fn reaction_order(text: &str) -> Result<f64, String> {
     match text.trim() {
         "2" | "2.0" => Ok(2.0),
         "2.5" => Ok(2.5),
         "3" | "3.0" => Ok(3.0),
-        _ => Err(Error::invalid(
-            format!("'{text}'"),
-            "not a reaction order resinlot fits",
-            "Use 2 (external acid catalyst), 2.5 (apparent) or 3 (self-catalysed).",
-        )),
+        _ => Err(
+            "not a reaction order resinlot fits. Use 2 (external acid catalyst), 2.5 \
+                  (apparent) or 3 (self-catalysed)"
+                .into(),
+        ),
     }
 }
 
