@@ -11,6 +11,7 @@ mod demo_command;
 mod demo_data;
 mod demo_safety;
 mod endgroup;
+mod flags;
 mod intake_scale;
 mod lookup;
 mod old_registers;
