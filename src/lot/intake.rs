@@ -318,23 +318,29 @@ impl Ctx<'_> {
         Ok(v)
     }
 
+    /// The lot id of a row: a safe id, as it names files and trend-file rows.
     fn lot_id(&self, v: &str, line: u64) -> Result<String> {
-        if !is_safe_id(v) {
-            return Err(Error::invalid(
-                format!("{}:{line}, column 'lot'", self.name),
-                format!("'{v}' is not a usable lot id"),
-                "Lot ids are 1 to 40 letters, digits, '-', '_' or '.', starting with a letter or digit.",
-            ));
-        }
-        Ok(v.to_string())
+        self.safe_id(v, line, "lot", "lot id", "Lot ids are 1 to 40 letters, digits, '-', '_' or '.', starting with a letter or digit.")
     }
 
+    /// The product code of a row: a safe id, as it names the product's trend file.
     fn product(&self, v: &str, line: u64) -> Result<String> {
+        self.safe_id(
+            v,
+            line,
+            "product",
+            "product code",
+            "Enter the product code as in the spec file, e.g. PD-2000.",
+        )
+    }
+
+    /// `v` when it is a safe id ([`is_safe_id`]); else a refusal naming the line and `column`.
+    fn safe_id(&self, v: &str, line: u64, column: &str, what: &str, fix: &str) -> Result<String> {
         if !is_safe_id(v) {
             return Err(Error::invalid(
-                format!("{}:{line}, column 'product'", self.name),
-                format!("'{v}' is not a usable product code"),
-                "Enter the product code as in the spec file, e.g. PD-2000.",
+                format!("{}:{line}, column '{column}'", self.name),
+                format!("'{v}' is not a usable {what}"),
+                fix,
             ));
         }
         Ok(v.to_string())
