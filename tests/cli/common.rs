@@ -44,6 +44,19 @@ impl Workspace {
         p
     }
 
+    /// A workspace with GOOD released: three TP-2000 lots, with their internal certificates
+    /// when `certificates` is true.
+    pub fn with_good_released(certificates: bool) -> Workspace {
+        let w = Workspace::new();
+        w.write("good.csv", GOOD);
+        let mut c = w.release("good.csv");
+        if !certificates {
+            c.arg("--no-certificates");
+        }
+        c.assert().code(0);
+        w
+    }
+
     /// The binary, run inside the workspace with a fixed clock.
     pub fn cmd(&self) -> Command {
         let mut c = Command::cargo_bin("resinlot").unwrap();

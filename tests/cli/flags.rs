@@ -2,20 +2,10 @@
 
 use crate::common::{Workspace, GOOD};
 
-fn released() -> Workspace {
-    let w = Workspace::new();
-    w.write("good.csv", GOOD);
-    w.release("good.csv")
-        .arg("--no-certificates")
-        .assert()
-        .code(0);
-    w
-}
-
 /// Issue #12: bad dates, statuses and orders are refused by the flag's parser, exit 2.
 #[test]
 fn typed_values_are_refused_with_what_to_give_issue_12() {
-    let w = released();
+    let w = Workspace::with_good_released(false);
     for (args, needle) in [
         (
             vec!["find", "TP-2000", "--status", "held"],
@@ -55,7 +45,7 @@ fn typed_values_are_refused_with_what_to_give_issue_12() {
 /// or with --product, and a missing one asks for it.
 #[test]
 fn product_given_either_way_issue_12() {
-    let w = released();
+    let w = Workspace::with_good_released(false);
     for cmd in ["trend", "find"] {
         let a = w.cmd().args([cmd, "TP-2000", "--json"]).output().unwrap();
         let b = w

@@ -21,19 +21,11 @@ fn clock_outside_1970_to_9999_is_refused_issue_13() {
     }
 }
 
-/// A workspace with a few released lots of TP-2000 and their internal certificates.
-fn released() -> Workspace {
-    let w = Workspace::new();
-    w.write("good.csv", GOOD);
-    w.release("good.csv").assert().code(0);
-    w
-}
-
 /// Issue #13 item 1: `trend --chart`/`--report` aimed at the register, the specs or a
 /// certificate is refused with exit 2 and the target is unchanged; nothing else is written.
 #[test]
 fn trend_outputs_never_replace_the_record_issue_13() {
-    let w = released();
+    let w = Workspace::with_good_released(true);
     let cert = std::fs::read_dir(w.path("certificates"))
         .unwrap()
         .next()
@@ -95,7 +87,7 @@ fn trend_outputs_never_replace_the_record_issue_13() {
 /// Issue #13 item 16: path-like or reserved product codes are refused by `trend` and `find`.
 #[test]
 fn path_like_and_reserved_product_codes_are_refused_issue_13() {
-    let w = released();
+    let w = Workspace::with_good_released(true);
     for args in [
         vec!["trend", "../register/TP-2000"],
         vec!["trend", "certificates"],

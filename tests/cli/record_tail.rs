@@ -7,17 +7,6 @@ use std::path::PathBuf;
 use crate::common::{Workspace, GOOD};
 use predicates::prelude::*;
 
-/// A workspace with GOOD released (three TP-2000 lots, no certificates).
-fn released() -> Workspace {
-    let w = Workspace::new();
-    w.write("good.csv", GOOD);
-    w.release("good.csv")
-        .arg("--no-certificates")
-        .assert()
-        .code(0);
-    w
-}
-
 /// Two more TP-2000 lots (invented values).
 const MORE: &str = "lot,product,manufactured,acid_value,hydroxyl_value,viscosity\n\
 T26-104,TP-2000,2026-05-23,0.50,55.6,536\n\
@@ -49,7 +38,7 @@ fn side_files(w: &Workspace) -> Vec<PathBuf> {
 /// nothing.
 #[test]
 fn a_complete_last_row_without_line_end_gets_it_back_issue_13() {
-    let w = released();
+    let w = Workspace::with_good_released(false);
     let p = w.path("register/TP-2000.csv");
     let whole = std::fs::read(&p).unwrap();
     std::fs::write(&p, &whole[..whole.len() - 1]).unwrap();
@@ -97,7 +86,7 @@ fn a_complete_last_row_without_line_end_gets_it_back_issue_13() {
 /// is a torn tail like any other: verify names it, release names the repair, quarantine works.
 #[test]
 fn a_tail_cut_inside_a_utf8_character_is_quarantined_issue_13() {
-    let w = released();
+    let w = Workspace::with_good_released(false);
     let p = w.path("register/TP-2000.csv");
     let whole = std::fs::read(&p).unwrap();
     let mut fragment = "4,2026-12-10T00:00:00Z,T26-104,TP-2000,2026-05-23,C,released,Jürg"
@@ -204,7 +193,7 @@ fn a_torn_tail_refuses_only_its_own_product_issue_13() {
 /// state is built by hand, exactly as the interrupted run leaves it).
 #[test]
 fn an_interrupted_quarantine_finishes_when_run_again_issue_13() {
-    let w = released();
+    let w = Workspace::with_good_released(false);
     let p = w.path("register/TP-2000.csv");
     let whole = std::fs::read(&p).unwrap();
     let fragment = b"4,2026-12-10T00:00:00Z,T26-104,TP-";
@@ -234,7 +223,7 @@ fn an_interrupted_quarantine_finishes_when_run_again_issue_13() {
 /// the other files are still checked.
 #[test]
 fn a_file_that_is_not_utf8_is_broken_and_the_rest_are_checked_issue_13() {
-    let w = released();
+    let w = Workspace::with_good_released(false);
     let good = std::fs::read(w.path("register/TP-2000.csv")).unwrap();
     // A copy of the trend file under another product, one lot id retyped in Latin-1.
     let text = String::from_utf8(good.clone()).unwrap();
@@ -258,7 +247,7 @@ fn a_file_that_is_not_utf8_is_broken_and_the_rest_are_checked_issue_13() {
 /// FIFO are read only up to the limit, then refused.
 #[test]
 fn max_bytes_is_counted_while_reading_issue_13() {
-    let w = released();
+    let w = Workspace::with_good_released(false);
     let before = w.snapshot();
     w.release("/dev/zero")
         .args(["--max-bytes", "1000"])
@@ -301,7 +290,7 @@ fn max_bytes_is_counted_while_reading_issue_13() {
 /// as 5) and "1E2" are refused before anything is written.
 #[test]
 fn numbers_are_plain_decimals_only_issue_13() {
-    let w = released();
+    let w = Workspace::with_good_released(false);
     let before = w.snapshot();
     for (av, ohv, visc, bad, column) in [
         ("0.5_0", "55.4", "540", "0.5_0", "acid_value"),
@@ -347,7 +336,7 @@ fn numbers_are_plain_decimals_only_issue_13() {
 /// appended to is refused before anything is written.
 #[test]
 fn a_clock_behind_the_last_row_is_refused_issue_13() {
-    let w = released(); // rows recorded at 2026-12-10T00:00:00Z
+    let w = Workspace::with_good_released(false); // rows recorded at 2026-12-10T00:00:00Z
     w.write("more.csv", MORE);
     let before = w.snapshot();
     w.release("more.csv")
@@ -374,7 +363,7 @@ fn a_clock_behind_the_last_row_is_refused_issue_13() {
 /// each refused with what to do, and nothing is written.
 #[test]
 fn silent_changes_and_encodings_are_refused_issue_13() {
-    let w = released();
+    let w = Workspace::with_good_released(false);
     // T26-101 retested with new results and a manufacture date moved by a day.
     w.write(
         "moved.csv",
