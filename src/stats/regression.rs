@@ -169,8 +169,10 @@ pub struct LogLogFit {
 /// is flagged when it is off the line by more than 1e-9 in log10 units.
 ///
 /// Errors when the slices differ in length, fewer than 3 pairs are given, a value is not a
-/// positive finite number, or all Mn values are equal. O(n): two passes plus a linear-time
-/// median selection; allocates the residuals and one scratch copy of them.
+/// positive finite number, or all Mn values are equal. The line is [`fit_line`] on the logs,
+/// the one straight-line fit of the crate (the cook's viscosity predictor uses it too). O(n):
+/// a few passes plus a linear-time median selection; allocates the logs, the residuals and
+/// one scratch copy of them.
 pub fn log_log_fit(mn: &[f64], viscosity: &[f64]) -> Result<LogLogFit> {
     if mn.len() != viscosity.len() {
         return Err(Error::invalid(
@@ -196,37 +198,19 @@ pub fn log_log_fit(mn: &[f64], viscosity: &[f64]) -> Result<LogLogFit> {
             ));
         }
     }
-    let nf = n as f64;
-    // One pass of Welford-type updates of the means and (co)moments (Welford, Technometrics
-    // 4(3), 1962), numerically stable without a separate pass for the means.
-    let (mut mx, mut my, mut sxx, mut sxy, mut syy) = (0.0, 0.0, 0.0, 0.0, 0.0);
-    for (k, (&m, &v)) in mn.iter().zip(viscosity).enumerate() {
-        let (x, y) = (m.log10(), v.log10());
-        let w = 1.0 / (k + 1) as f64;
-        let (dx, dy) = (x - mx, y - my);
-        mx += dx * w;
-        my += dy * w;
-        sxx += dx * (x - mx);
-        sxy += dx * (y - my);
-        syy += dy * (y - my);
-    }
-    if sxx.is_nan() || sxx <= 0.0 {
-        return Err(Error::invalid(
+    // The one straight-line fit of the crate ([`fit_line`]), on log10 of both.
+    let x: Vec<f64> = mn.iter().map(|m| m.log10()).collect();
+    let y: Vec<f64> = viscosity.iter().map(|v| v.log10()).collect();
+    let line = fit_line(&x, &y).ok_or_else(|| {
+        Error::invalid(
             "viscosity fit",
             "all lots have the same Mn, so no slope can be fitted",
             "Select lots that span a range of Mn.",
-        ));
-    }
-    let exponent = sxy / sxx;
-    let intercept = my - exponent * mx;
-    let residuals: Vec<f64> = mn
-        .iter()
-        .zip(viscosity)
-        .map(|(&m, &v)| v.log10() - (intercept + exponent * m.log10()))
-        .collect();
-    let sse: f64 = residuals.iter().map(|r| r * r).sum();
-    let exponent_se = (sse / (nf - 2.0) / sxx).sqrt();
-    let r_squared = if syy > 0.0 { 1.0 - sse / syy } else { 1.0 };
+        )
+    })?;
+    let (exponent, intercept) = (line.slope, line.intercept);
+    let residuals: Vec<f64> = x.iter().zip(&y).map(|(&x, &y)| y - line.at(x)).collect();
+    let (exponent_se, r_squared) = (line.slope_se, line.r_squared);
     let mut scratch = residuals.clone();
     let residual_median = median_in_place(&mut scratch);
     for d in scratch.iter_mut() {
