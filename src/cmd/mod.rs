@@ -1,4 +1,6 @@
-//! One module per subcommand, each with a `run` entry point; `dispatch` picks one.
+//! Command layer: one module per subcommand, each with clap `Args` and a `run` entry point that
+//! only orchestrates (parse and validate flags, call the domain, print); `dispatch` picks one.
+//! May use every layer below; nothing below uses it.
 
 pub mod adjust;
 pub mod args;

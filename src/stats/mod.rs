@@ -2,6 +2,7 @@
 //! the shared numerics: distributions (normal, chi-square, Student t) and straight-line fits; bisection.
 //!
 //! Pure functions over `&[f64]` in manufacture order; no I/O. Results derive `Serialize`.
+//! May use `error` only; every other layer may use it.
 
 pub mod capability;
 pub mod dist;
