@@ -8,6 +8,7 @@ use std::path::{Path, PathBuf};
 use anyhow::Context;
 
 use crate::chem::recipe::Recipe;
+use crate::cmd::args::{CertificatesFolder, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::cook::arrhenius::{self, ArrheniusReport};
 use crate::cook::chart;
@@ -64,10 +65,20 @@ pub struct Args {
     /// n-2 degrees of freedom). No target and no chart are used in this mode.
     #[arg(long, conflicts_with_all = ["chart", "target_av", "target_mn"])]
     pub arrhenius: bool,
-    /// Write an SVG chart of the linearised quantity against time to this file (replaced if it
-    /// exists). Default: no chart.
+    /// Write an SVG chart of the linearised quantity against time to this file; an existing
+    /// file there is replaced only if it is a resinlot chart, and the chart never goes into the
+    /// workspace folders. Default: no chart.
     #[arg(long, value_name = "FILE")]
     pub chart: Option<PathBuf>,
+    /// The specs folder (`--specs`), which the chart never enters.
+    #[command(flatten)]
+    pub specs: SpecsFolder,
+    /// The register folder (`--register`), which the chart never enters.
+    #[command(flatten)]
+    pub register: RegisterFolder,
+    /// The certificates folder (`--certificates`), which the chart never enters.
+    #[command(flatten)]
+    pub certificates: CertificatesFolder,
     /// Print one JSON object instead of the text report. "excluded" lists the left-out samples
     /// as 0-based indices in file order; "excluded_detail" adds their file lines and reasons.
     #[arg(long)]
@@ -130,8 +141,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         render(&rep)
     };
     if let Some((path, bytes)) = chart {
-        // The cook has no workspace flags: the record folders are the default ones here.
-        let record = ["specs", "register", "certificates"].map(std::path::Path::new);
+        let record =
+            crate::cmd::args::record_folders(&args.specs, &args.register, &args.certificates);
         crate::support::output::write_output(path, bytes, OutputKind::Svg, &record)?;
     }
     crate::support::output::print(&text)?;

@@ -6,7 +6,9 @@ use std::path::{Path, PathBuf};
 use chrono::NaiveDate;
 use serde_json::json;
 
-use crate::cmd::args::{self, ProductArg, RegisterFolder, SpecsFolder, TemplatesFolder};
+use crate::cmd::args::{
+    self, CertificatesFolder, ProductArg, RegisterFolder, SpecsFolder, TemplatesFolder,
+};
 use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::spec::SpecSet;
@@ -75,6 +77,9 @@ pub struct Args {
     /// The templates folder (`--templates`).
     #[command(flatten)]
     pub templates: TemplatesFolder,
+    /// The certificates folder (`--certificates`), which charts and reports never enter.
+    #[command(flatten)]
+    pub certificates: CertificatesFolder,
 }
 
 /// Runs the command.
@@ -92,7 +97,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     };
     let specs = SpecSet::load(&args.specs)?;
     let path = args.product.trend_file(&args.register, "product")?;
-    let record = args::record_folders(&args.specs, &args.register, Path::new("certificates"));
+    let record = args::record_folders(&args.specs, &args.register, &args.certificates);
     for (file, kind) in outputs(args) {
         output::check_destination(&file, kind, &record)?;
     }

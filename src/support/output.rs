@@ -68,7 +68,8 @@ pub enum OutputKind {
     Svg,
     /// A PNG chart: a `tEXt` chunk `Software = resinlot` (PNG specification §11.3.4.3).
     Png,
-    /// A PDF report: the document information's Creator is "resinlot".
+    /// A PDF report: the document information's Creator is "resinlot" and its identifier
+    /// starts with [`REPORT_ID_PREFIX`].
     Pdf,
 }
 
@@ -89,6 +90,11 @@ const SVG_STAMP: &[u8] = b"<!-- written by resinlot -->\n";
 const PNG_STAMP: &[u8] = b"Software\0resinlot";
 /// "resinlot" as the UTF-16BE hex string printpdf writes for the Creator entry.
 const PDF_STAMP: &[u8] = b"/Creator<FEFF0072006500730069006E006C006F0074>";
+/// How a trend report's document identifier starts; a certificate's is its number, so a
+/// certificate is never taken for a report that may be replaced.
+pub const REPORT_ID_PREFIX: &str = "trend-";
+/// The identifier entry as printpdf writes it for a report.
+const PDF_REPORT_ID: &[u8] = b"/Identifier(trend-";
 
 /// Adds resinlot's mark to an output file's bytes (SVG comment, PNG `tEXt` chunk; a PDF report
 /// carries its Creator already).
@@ -127,7 +133,7 @@ pub fn is_ours(kind: OutputKind, bytes: &[u8]) -> bool {
     match kind {
         OutputKind::Svg => bytes.starts_with(b"<svg") && bytes.ends_with(SVG_STAMP),
         OutputKind::Png => bytes.starts_with(b"\x89PNG\r\n\x1a\n") && has(PNG_STAMP),
-        OutputKind::Pdf => bytes.starts_with(b"%PDF-") && has(PDF_STAMP),
+        OutputKind::Pdf => bytes.starts_with(b"%PDF-") && has(PDF_STAMP) && has(PDF_REPORT_ID),
     }
 }
 
@@ -273,6 +279,21 @@ mod tests {
         assert_eq!(crc, crc32fast::hash(&chunk[4..chunk.len() - 4]));
         assert!(png.ends_with(&tiny_png()[8..]), "IEND stays last");
         assert!(!is_ours(OutputKind::Pdf, b"%PDF-1.7 /Creator(someone)"));
+        // A certificate (resinlot's, but not a report) is never taken for a report.
+        let cert = [
+            b"%PDF-1.7 ".as_slice(),
+            PDF_STAMP,
+            b"/Identifier(FW-000001)",
+        ]
+        .concat();
+        assert!(!is_ours(OutputKind::Pdf, &cert));
+        let report = [
+            b"%PDF-1.7 ".as_slice(),
+            PDF_STAMP,
+            b"/Identifier(trend-PD-2000-2026-12-01)",
+        ]
+        .concat();
+        assert!(is_ours(OutputKind::Pdf, &report));
         assert!(!is_ours(OutputKind::Svg, b"lot,product\n"));
     }
 

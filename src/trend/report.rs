@@ -120,7 +120,12 @@ pub fn render_report(input: &ReportInput) -> Result<Vec<u8>> {
     doc.metadata.info.document_title =
         format!("Trend report {} {}", input.product_code, input.product_name);
     doc.metadata.info.subject = format!("Lot-to-lot trends of {}", input.product_code);
-    doc.metadata.info.identifier = format!("trend-{}-{}", input.product_code, input.generated_on);
+    doc.metadata.info.identifier = format!(
+        "{}{}-{}",
+        crate::support::output::REPORT_ID_PREFIX,
+        input.product_code,
+        input.generated_on
+    );
     crate::support::pdf_meta::set_creator_and_day(&mut doc, input.generated_on);
     let mut warnings = Vec::new();
     let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);

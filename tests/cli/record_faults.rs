@@ -101,3 +101,38 @@ fn path_like_and_reserved_product_codes_are_refused_issue_13() {
             .stderr(predicates::str::contains("not a usable product code"));
     }
 }
+
+/// Issue #13 item 1 (review): a certificate issued into another folder is neither inside a
+/// default record folder nor a report, so `trend --report` onto it is refused either way.
+#[test]
+fn a_certificate_elsewhere_is_never_taken_for_a_report_issue_13() {
+    let w = Workspace::new();
+    w.write("good.csv", GOOD);
+    w.release("good.csv")
+        .args(["--certificates", "out/certs"])
+        .assert()
+        .code(0);
+    let cert = std::fs::read_dir(w.path("out/certs"))
+        .unwrap()
+        .find_map(|e| {
+            let p = e.unwrap().path();
+            (p.extension()? == "pdf").then_some(p)
+        })
+        .unwrap();
+    let before = std::fs::read(&cert).unwrap();
+    // Not named as the certificates folder: the stamp check refuses it.
+    w.cmd()
+        .args(["trend", "TP-2000", "--report"])
+        .arg(&cert)
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("not a PDF report written by resinlot"));
+    // Named as the certificates folder: the folder check refuses it.
+    w.cmd()
+        .args(["trend", "TP-2000", "--certificates", "out/certs", "--report"])
+        .arg(&cert)
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("into the record folder"));
+    assert_eq!(before, std::fs::read(&cert).unwrap());
+}
