@@ -376,14 +376,7 @@ fn derived_results(
             u(keys::HYDROXYL_VALUE),
             hv_corr,
         )
-        .map_err(|e| match e {
-            Error::Invalid { problem, fix, .. } => Error::invalid(
-                format!("{file}:{}, lot '{}'", lot.line, lot.lot),
-                problem,
-                fix,
-            ),
-            other => other,
-        })?;
+        .map_err(|e| e.at(|field| format!("{file}:{}, lot '{}', {field}", lot.line, lot.lot)))?;
         match computed {
             Some((value, unc)) => {
                 let d = decimal_from_f64(value).unwrap_or_default();

@@ -173,7 +173,7 @@ pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>>
         .from_reader(text.as_bytes());
     let headers: Vec<String> = reader
         .headers()
-        .map_err(|e| csv_error(name, e))?
+        .map_err(|e| crate::support::csv_input::error(name, &e))?
         .iter()
         .map(|h| h.trim().to_ascii_lowercase())
         .collect();
@@ -249,21 +249,6 @@ fn unterminated_quote(text: &str) -> Option<usize> {
         }
     }
     open.then_some(opened_at)
-}
-
-fn csv_error(name: &str, e: csv::Error) -> Error {
-    let line = e.position().map_or(0, |p| p.line());
-    let problem = match e.kind() {
-        csv::ErrorKind::UnequalLengths {
-            expected_len, len, ..
-        } => format!("the row has {len} fields where the header has {expected_len}"),
-        _ => e.to_string(),
-    };
-    Error::invalid(
-        format!("{name}:{line}"),
-        problem,
-        "Check the row for a missing or extra separator.",
-    )
 }
 
 /// Numbered replicates seen in a long file: (lot, key, replicate) -> (value, line).
@@ -451,7 +436,7 @@ impl Ctx<'_> {
         // (a scan per row made intake quadratic in the number of lots, issue #13 item 11).
         let mut index: HashMap<String, usize> = HashMap::new();
         for rec in reader.records() {
-            let rec = rec.map_err(|e| csv_error(self.name, e))?;
+            let rec = rec.map_err(|e| crate::support::csv_input::error(self.name, &e))?;
             let line = rec.position().map_or(0, |p| p.line());
             let lot = self.lot_id(self.cell(&rec, idx[0], line)?, line)?;
             let product = self.product(self.cell(&rec, idx[1], line)?, line)?;
@@ -631,7 +616,7 @@ impl Ctx<'_> {
         let mut seen_replicates = Replicates::new();
         let mut index: HashMap<String, usize> = HashMap::new();
         for rec in reader.records() {
-            let rec = rec.map_err(|e| csv_error(self.name, e))?;
+            let rec = rec.map_err(|e| crate::support::csv_input::error(self.name, &e))?;
             let line = rec.position().map_or(0, |p| p.line());
             let lot = self.lot_id(self.cell(&rec, idx[0], line)?, line)?;
             let product = self.product(self.cell(&rec, idx[1], line)?, line)?;

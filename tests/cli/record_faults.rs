@@ -126,10 +126,18 @@ fn a_certificate_elsewhere_is_never_taken_for_a_report_issue_13() {
         .arg(&cert)
         .assert()
         .code(2)
-        .stderr(predicates::str::contains("not a PDF report written by resinlot"));
+        .stderr(predicates::str::contains(
+            "not a PDF report written by resinlot",
+        ));
     // Named as the certificates folder: the folder check refuses it.
     w.cmd()
-        .args(["trend", "TP-2000", "--certificates", "out/certs", "--report"])
+        .args([
+            "trend",
+            "TP-2000",
+            "--certificates",
+            "out/certs",
+            "--report",
+        ])
         .arg(&cert)
         .assert()
         .code(2)
