@@ -2,7 +2,6 @@
 //! for a shipment, the customer's overlay (tighter windows, report order, units).
 
 use std::collections::HashMap;
-use std::str::FromStr;
 
 use chrono::NaiveDate;
 use rust_decimal::Decimal;
@@ -119,10 +118,7 @@ impl LotRecord {
     }
 
     fn value(&self, key: &str) -> Option<Decimal> {
-        let text = self.values.get(key)?;
-        Decimal::from_str(text)
-            .ok()
-            .or_else(|| text.parse::<f64>().ok().and_then(decimal_from_f64))
+        crate::spec::decision::recorded_decimal(self.values.get(key)?)
     }
 }
 
@@ -266,7 +262,7 @@ pub fn build(
         lot: cert::Lot {
             id: rec.lot.clone(),
             manufactured: rec.manufactured,
-            retest: cert::retest_date(rec.manufactured, spec.retest_months)
+            retest: crate::spec::retest_date(rec.manufactured, spec.retest_months)
                 .unwrap_or(rec.manufactured),
         },
         customer: ship.map(|s| cert::Customer {

@@ -8,7 +8,7 @@
 
 use std::path::Path;
 
-use chrono::{Months, NaiveDate};
+use chrono::NaiveDate;
 use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
@@ -254,13 +254,6 @@ pub fn limits_text(min: Option<f64>, max: Option<f64>, decimals: u32) -> String 
     }
 }
 
-/// Retest date: the manufacture date plus `months` calendar months; a day past the end of the
-/// target month falls back to its last day (31 January + 1 month = 28 or 29 February).
-/// `None` only when the date would leave chrono's range.
-pub fn retest_date(manufactured: NaiveDate, months: u32) -> Option<NaiveDate> {
-    manufactured.checked_add_months(Months::new(months))
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -271,15 +264,6 @@ mod tests {
         assert_eq!(limits_text(None, Some(1.0), 2), "≤ 1.00");
         assert_eq!(limits_text(Some(450.0), None, 0), "≥ 450");
         assert_eq!(limits_text(None, None, 2), "report");
-    }
-
-    #[test]
-    fn retest_date_adds_calendar_months() {
-        let d = |y, m, d| NaiveDate::from_ymd_opt(y, m, d).unwrap();
-        assert_eq!(retest_date(d(2026, 9, 14), 12), Some(d(2027, 9, 14)));
-        // End of month clamps: 2028 is a leap year (Gregorian rule).
-        assert_eq!(retest_date(d(2028, 1, 31), 1), Some(d(2028, 2, 29)));
-        assert_eq!(retest_date(d(2027, 1, 31), 1), Some(d(2027, 2, 28)));
     }
 
     #[test]

@@ -128,30 +128,15 @@ pub fn as_json(t: &Trend, rows: &[&Row], certs: &[crate::record::certlog::Entry]
     v
 }
 
+/// A recorded cell as reported: rounded to the property's decimals under the spec's rounding,
+/// or as it stands when the spec does not know the key or the cell is no number.
 fn reported(spec: Option<&ProductSpec>, key: &str, cell: &str) -> String {
-    let Some(p) = spec.and_then(|s| s.property(key)) else {
+    let (Some(s), Some(d)) = (spec, crate::spec::decision::recorded_decimal(cell)) else {
         return cell.to_string();
     };
-    match cell.parse::<rust_decimal::Decimal>() {
-        Ok(d) => crate::spec::decision::round(
-            d,
-            p.decimals,
-            spec.map(|s| s.rounding).unwrap_or_default(),
-        )
-        .to_string(),
-        Err(_) => match cell
-            .parse::<f64>()
-            .ok()
-            .and_then(crate::spec::decision::decimal_from_f64)
-        {
-            Some(d) => crate::spec::decision::round(
-                d,
-                p.decimals,
-                spec.map(|s| s.rounding).unwrap_or_default(),
-            )
-            .to_string(),
-            None => cell.to_string(),
-        },
+    match s.property(key) {
+        Some(p) => crate::spec::decision::round(d, p.decimals, s.rounding).to_string(),
+        None => cell.to_string(),
     }
 }
 
@@ -185,7 +170,7 @@ fn facts_text<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> St
     let retest = spec.and_then(|s| {
         chrono::NaiveDate::parse_from_str(c("manufactured"), "%Y-%m-%d")
             .ok()
-            .and_then(|d| d.checked_add_months(chrono::Months::new(s.retest_months)))
+            .and_then(|d| crate::spec::retest_date(d, s.retest_months))
     });
     let mut facts = vec![
         (

@@ -143,9 +143,25 @@ pub fn decimal_from_f64(x: f64) -> Option<Decimal> {
     Decimal::from_scientific(&text).ok().map(|d| d.normalize())
 }
 
+/// A decimal as recorded in a trend-file cell: its exact text, or, for a cell written in
+/// floating-point form (an exponent), the nearest decimal. `None` for anything else.
+pub fn recorded_decimal(cell: &str) -> Option<Decimal> {
+    cell.parse::<Decimal>()
+        .ok()
+        .or_else(|| cell.parse::<f64>().ok().and_then(decimal_from_f64))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn recorded_cells_read_back_exactly() {
+        assert_eq!(recorded_decimal("0.50").unwrap().to_string(), "0.50");
+        assert_eq!(recorded_decimal("1e-2").unwrap().to_string(), "0.01");
+        assert_eq!(recorded_decimal(""), None);
+        assert_eq!(recorded_decimal("n/a"), None);
+    }
     use std::str::FromStr;
 
     fn d(s: &str) -> Decimal {

@@ -469,6 +469,13 @@ fn check_property_fields(
     Ok(())
 }
 
+/// Retest date: the manufacture date plus `months` calendar months; a day past the end of the
+/// target month falls back to its last day (31 January + 1 month = 28 or 29 February).
+/// `None` only when the date would leave chrono's range.
+pub fn retest_date(manufactured: NaiveDate, months: u32) -> Option<NaiveDate> {
+    manufactured.checked_add_months(chrono::Months::new(months))
+}
+
 /// Every product spec in a folder (top level only), grouped by code and sorted by date.
 #[derive(Debug, Clone, Default)]
 pub struct SpecSet {
@@ -634,6 +641,15 @@ pub fn end_groups_words(f: f64) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn retest_date_adds_calendar_months() {
+        let d = |y, m, d| NaiveDate::from_ymd_opt(y, m, d).unwrap();
+        assert_eq!(retest_date(d(2026, 9, 14), 12), Some(d(2027, 9, 14)));
+        // End of month clamps: 2028 is a leap year (Gregorian rule).
+        assert_eq!(retest_date(d(2028, 1, 31), 1), Some(d(2028, 2, 29)));
+        assert_eq!(retest_date(d(2027, 1, 31), 1), Some(d(2027, 2, 28)));
+    }
 
     pub(crate) const SPEC: &str = r#"
 code = "PD-2000"
