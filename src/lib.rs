@@ -5,7 +5,7 @@
 //! | layer | holds |
 //! |---|---|
 //! | [`error`] | the typed errors and exit-code mapping of the library |
-//! | [`support`] | clock, atomic writes, TOML reading, tables, ids, fonts |
+//! | [`support`] | clock, atomic writes and the output guard, TOML and CSV input, printable text, tables, ids, fonts, PDF identity |
 //! | [`stats`] | I-MR, run rules, capability, distributions, regression: the numerics |
 //! | [`chem`] | end-group analysis, recipes, water balance, Carothers and Flory–Stockmayer |
 //! | [`spec`] | product specs, revisions, customers, the decision rule |
