@@ -102,7 +102,7 @@ pub struct Lot {
     pub id: String,
     /// Date of manufacture.
     pub manufactured: NaiveDate,
-    /// Retest date: manufacture date plus the spec's `retest_months` (see [`retest_date`]).
+    /// Retest date: manufacture date plus the spec's `retest_months` (see [`crate::spec::retest_date`]).
     pub retest: NaiveDate,
 }
 

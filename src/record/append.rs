@@ -21,7 +21,7 @@ use crate::spec::SpecSet;
 pub enum Recorded {
     /// Appended as row `seq`.
     New(usize),
-    /// Appended as row `seq`, superseding row `old`.
+    /// Appended as row `seq`, superseding row `supersedes`.
     Retest {
         /// New row.
         seq: usize,
