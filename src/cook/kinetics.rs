@@ -447,7 +447,7 @@ pub struct ViscosityFit {
     pub viscosity_at_target_pi95: (f64, f64),
 }
 
-/// Fits ln η against ln Mn and predicts the viscosity at `mn_target`, the second end-point
+/// Fits log η against log Mn and predicts the viscosity at `mn_target`, the second end-point
 /// signal: the batch is near its end when the viscometer reads this value.
 ///
 /// Melt viscosity of unentangled polyesters follows η ∝ Mn^a with a near 1 (and rises faster
@@ -456,21 +456,22 @@ pub struct ViscosityFit {
 /// 62, 1057 (1940) (melt viscosity of linear polyesters against chain length). The prediction
 /// interval is ŷ ± t·s·√(1 + h), NIST/SEMATECH e-Handbook §4.1.4.1 (prediction intervals).
 pub fn viscosity_fit(mn: &[f64], viscosity: &[f64], mn_target: f64) -> Option<ViscosityFit> {
-    let x: Vec<f64> = mn.iter().map(|v| v.ln()).collect();
-    let y: Vec<f64> = viscosity.iter().map(|v| v.ln()).collect();
-    let line = fit_line(&x, &y)?;
-    let x0 = mn_target.ln();
+    // The one log-log fit of the crate (stats::log_log_fit, in log10); ln K = ln 10 · log10 K.
+    let fit = crate::stats::log_log_fit(mn, viscosity).ok()?;
+    let line = fit.line;
+    let x0 = mn_target.log10();
     let t = student_t_quantile(0.975, line.n as f64 - 2.0);
     let half = t * line.residual_sd * (1.0 + line.leverage(x0)).sqrt();
     let y0 = line.at(x0);
+    let pow10 = |y: f64| 10f64.powf(y);
     Some(ViscosityFit {
-        exponent: line.slope,
-        exponent_se: line.slope_se,
-        ln_coefficient: line.intercept,
-        r_squared: line.r_squared,
-        n: line.n,
-        viscosity_at_target: y0.exp(),
-        viscosity_at_target_pi95: ((y0 - half).exp(), (y0 + half).exp()),
+        exponent: fit.exponent,
+        exponent_se: fit.exponent_se,
+        ln_coefficient: fit.intercept * std::f64::consts::LN_10,
+        r_squared: fit.r_squared,
+        n: fit.n,
+        viscosity_at_target: pow10(y0),
+        viscosity_at_target_pi95: (pow10(y0 - half), pow10(y0 + half)),
     })
 }
 

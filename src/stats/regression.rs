@@ -159,6 +159,9 @@ pub struct LogLogFit {
     pub robust_sd: f64,
     /// Indices (from 0) of the points whose |residual − median| exceeds 3 robust SDs.
     pub flagged: Vec<usize>,
+    /// The fitted line itself (log10 units), for predictions and their intervals.
+    #[serde(skip)]
+    pub line: LineFit,
 }
 
 /// Ordinary least squares of y = log10 η on x = log10 Mn, and robust outlier flags.
@@ -238,6 +241,7 @@ pub fn log_log_fit(mn: &[f64], viscosity: &[f64]) -> Result<LogLogFit> {
         residual_median,
         robust_sd,
         flagged,
+        line,
     })
 }
 
