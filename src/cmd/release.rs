@@ -363,6 +363,7 @@ fn record(
     let trends = locks.iter().map(|(&p, l)| (p, &l.trend)).collect();
     let plans = append::plan(&batch, &trends, specs, &elsewhere)?;
     append::check_time_order(&trends, decisions, &plans, now)?;
+    append::check_rows_read_back(&trends, decisions, &plans, approver, now)?;
     before_write(&plans)?;
     Ok(append::commit(
         &mut locks, decisions, &plans, approver, now,
