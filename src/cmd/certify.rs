@@ -123,7 +123,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .find(|e| e.lot == rec.lot && e.customer == customer.id);
     let supersedes = supersedes(previous.as_ref(), args, &rec, &customer)?;
     let now = crate::support::clock::now()?;
-    let number = log.next_number(&issuer.site.certificate_prefix);
+    let number = issuer.numbering(&log)?.nth(0);
     let certificate = build::build(
         &issuer.site,
         spec,

@@ -650,6 +650,12 @@ impl Locked {
         Ok(seq)
     }
 
+    /// True when the file did not exist (or was empty) when it was locked and nothing has
+    /// been appended since.
+    pub fn is_fresh(&self) -> bool {
+        self.fresh
+    }
+
     /// Flushes appended rows to stable storage.
     pub fn sync(&mut self) -> Result<()> {
         self.file

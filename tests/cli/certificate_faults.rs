@@ -152,3 +152,186 @@ fn direction_overrides_in_customers_and_results_are_refused_issue_13() {
     let v = verify(&w, &[], 0);
     assert!(v.contains("The record is intact."), "{v}");
 }
+
+/// One more lot of TP-2000 (invented values), as a results file.
+fn lot(id: &str, day: u32) -> String {
+    format!(
+        "lot,product,manufactured,acid_value,hydroxyl_value,viscosity\n\
+         {id},TP-2000,2026-05-{day:02},0.50,55.5,540\n"
+    )
+}
+
+/// The bytes of a certificate that was never logged (an issued PDF with a marker, so that its
+/// SHA-256 is its own).
+fn other_pdf(w: &Workspace) -> Vec<u8> {
+    let bytes = std::fs::read(w.path("certificates/T26-101_FW-000001.pdf")).unwrap();
+    [bytes.as_slice(), b"%not logged\n"].concat()
+}
+
+/// Issue #13 item 7: a trend row whose internal certificate was interrupted is named by
+/// `verify` and completed by running the release again; stray parts are removed by
+/// `verify --quarantine`; a dangling symbolic link at the certificate's path refuses the
+/// release before anything is written.
+///
+/// The states are built by hand, as an interruption leaves them: the row appended (here with
+/// `--no-certificates`) and its certificate still in its `.part` file, not logged (a kill
+/// before the rename), or linked to its final name but not logged (a kill or a full disk
+/// before the log row).
+#[test]
+fn a_row_without_its_internal_certificate_is_named_and_completed_issue_13() {
+    let w = released();
+    w.write("lot4.csv", &lot("T26-104", 20));
+    w.write("lot5.csv", &lot("T26-105", 21));
+    for f in ["lot4.csv", "lot5.csv"] {
+        w.release(f).arg("--no-certificates").assert().code(0);
+    }
+    let pdf = other_pdf(&w);
+    let part4 = w.write_bytes("certificates/T26-104_FW-000004.pdf.TP-2000-4.part", &pdf);
+    let final5 = w.path("certificates/T26-105_FW-000005.pdf");
+    let part5 = w.write_bytes("certificates/T26-105_FW-000005.pdf.TP-2000-5.part", &pdf);
+    std::fs::hard_link(&part5, &final5).unwrap();
+    let v = verify(&w, &[], 1);
+    for row in [
+        "row 4 of register/TP-2000.csv (lot 'T26-104') has no internal certificate: T26-104_FW-000004.pdf is pending",
+        "row 5 of register/TP-2000.csv (lot 'T26-105') has no internal certificate: T26-105_FW-000005.pdf is pending",
+    ] {
+        assert!(v.contains(row), "{v}");
+    }
+    assert_eq!(v.matches("BROKEN").count(), 2, "{v}");
+    // Quarantine does not touch a pending certificate whose row was written.
+    verify(&w, &["--quarantine"], 1);
+    assert!(part4.exists() && part5.exists());
+    // Running the release again completes every pending certificate of the product.
+    let again = w.release("lot4.csv").assert().code(0);
+    let out = String::from_utf8(again.get_output().stdout.clone()).unwrap();
+    assert!(out.contains("already recorded, unchanged"), "{out}");
+    for (lot, number) in [("T26-104", "FW-000004"), ("T26-105", "FW-000005")] {
+        assert!(
+            out.contains(&format!(
+                "Completed internal certificate {number} of lot {lot}, left pending by an interrupted release"
+            )),
+            "{out}"
+        );
+    }
+    assert!(!part4.exists() && !part5.exists());
+    assert_eq!(
+        std::fs::read(w.path("certificates/T26-104_FW-000004.pdf")).unwrap(),
+        pdf
+    );
+    assert_eq!(std::fs::read(&final5).unwrap(), pdf);
+    let v = verify(&w, &[], 0);
+    assert!(v.contains("certificates.csv: 5 rows, intact"), "{v}");
+
+    // Killed after staging, before the row: the part is stray, as is a temporary file.
+    w.write("certificates/T26-106_FW-000006.pdf.TP-2000-6.part", "%PDF");
+    w.write("certificates/.resinlot-Ab12Cd.part", "%PDF");
+    let v = verify(&w, &[], 1);
+    assert!(
+        v.contains("stray pending certificate: row 6 of TP-2000's trend file was never written"),
+        "{v}"
+    );
+    assert!(
+        v.contains(".resinlot-Ab12Cd.part: BROKEN: stray temporary file"),
+        "{v}"
+    );
+    assert_eq!(v.matches("BROKEN").count(), 2, "{v}");
+    let q = verify(&w, &["--quarantine"], 0);
+    assert!(q.contains("The record is intact."), "{q}");
+    assert!(!w
+        .path("certificates/T26-106_FW-000006.pdf.TP-2000-6.part")
+        .exists());
+    assert!(!w.path("certificates/.resinlot-Ab12Cd.part").exists());
+
+    // A dangling symbolic link where the next certificate would go: its number is not issued
+    // (the certificate goes to the next one, never through the link) and `verify` names it.
+    let link = w.path("certificates/T26-106_FW-000006.pdf");
+    std::os::unix::fs::symlink("nowhere.pdf", &link).unwrap();
+    w.write("lot6.csv", &lot("T26-106", 22));
+    w.release("lot6.csv")
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains("(FW-000007 to FW-000007)"));
+    assert!(
+        std::fs::read_link(&link).is_ok(),
+        "the link is left as it was"
+    );
+    let v = verify(&w, &[], 1);
+    assert!(
+        v.contains("T26-106_FW-000006.pdf: BROKEN: a link or folder with a certificate's name"),
+        "{v}"
+    );
+    assert_eq!(v.matches("BROKEN").count(), 1, "{v}");
+    std::fs::remove_file(&link).unwrap();
+    verify(&w, &[], 0);
+}
+
+/// Issue #13 item 8: a certificate file left unlogged by a `certify` killed after the rename
+/// keeps its number: the next certificate takes the one after, `verify` names the file, and
+/// `verify --quarantine` logs it as void (then `verify FILE` says VOID).
+#[test]
+fn an_unlogged_certificate_keeps_its_number_and_is_voided_issue_13() {
+    let w = released();
+    let stray = w.write_bytes("certificates/T26-102_FW-000004.pdf", &other_pdf(&w));
+    let v = verify(&w, &[], 1);
+    assert!(
+        v.contains("T26-102_FW-000004.pdf: BROKEN: certificate file not in the certificate log"),
+        "{v}"
+    );
+    assert_eq!(v.matches("BROKEN").count(), 1, "{v}");
+    certify(&w, "T26-101")
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains(
+            "Certificate FW-000005 for lot T26-101",
+        ));
+    let q = verify(&w, &["--quarantine"], 0);
+    assert!(
+        q.contains("logged certificates/T26-102_FW-000004.pdf as void: certificate number FW-000004 stays used"),
+        "{q}"
+    );
+    assert!(q.contains("The record is intact."), "{q}");
+    w.cmd()
+        .args(["verify", "certificates/T26-102_FW-000004.pdf"])
+        .assert()
+        .code(1)
+        .stdout(predicate::str::contains(
+            "VOID: number FW-000004 was logged as void",
+        ));
+    assert!(stray.exists(), "the file is kept");
+    certify(&w, "T26-103")
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains(
+            "Certificate FW-000006 for lot T26-103",
+        ));
+    verify(&w, &[], 0);
+}
+
+/// Issue #13 item 9: with the certificate log gone and certificates present, nothing is
+/// issued (exit 2, nothing written) and `verify` names the missing log.
+#[test]
+fn a_missing_certificate_log_stops_numbering_issue_13() {
+    let w = released();
+    std::fs::remove_file(w.path("register/certificates.csv")).unwrap();
+    w.write("lot4.csv", &lot("T26-104", 20));
+    let before = w.snapshot();
+    let missing = "the certificate log is missing, but 3 certificate file(s) are in certificates";
+    certify(&w, "T26-101")
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(missing))
+        .stderr(predicate::str::contains(
+            "Restore the certificate log from backup",
+        ));
+    w.release("lot4.csv")
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(missing));
+    assert_eq!(before, w.snapshot(), "nothing may change");
+    let v = verify(&w, &[], 1);
+    assert!(
+        v.contains("register/certificates.csv: BROKEN: the certificate log is missing, but 3 certificate file(s)"),
+        "{v}"
+    );
+    assert_eq!(v.matches("BROKEN").count(), 1, "{v}");
+}
