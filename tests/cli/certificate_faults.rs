@@ -265,6 +265,63 @@ fn a_row_without_its_internal_certificate_is_named_and_completed_issue_13() {
     verify(&w, &[], 0);
 }
 
+/// Issue #13 item 7, a real fault: the disk fills while the certificate is written. The
+/// process runs with a file-size limit (RLIMIT_FSIZE, 20 000 bytes: the trend file and log
+/// stay below it, a certificate of about 40 kB does not), so writing the certificate fails as
+/// on a full disk. The release is refused before its row is appended: no row without its
+/// certificate, no part left behind, and `verify` passes.
+#[test]
+fn a_full_disk_while_writing_the_certificate_appends_no_row_issue_13() {
+    use std::os::unix::process::CommandExt;
+    let w = released();
+    w.write("lot4.csv", &lot("T26-104", 20));
+    let record = |w: &Workspace| {
+        (
+            std::fs::read(w.path("register/TP-2000.csv")).unwrap(),
+            std::fs::read(w.path("register/certificates.csv")).unwrap(),
+            std::fs::read_dir(w.path("certificates")).unwrap().count(),
+        )
+    };
+    let before = record(&w);
+    let mut c = std::process::Command::new(assert_cmd::cargo::cargo_bin("resinlot"));
+    c.current_dir(w.dir.path())
+        .env("SOURCE_DATE_EPOCH", "1796860800")
+        .args([
+            "release",
+            "lot4.csv",
+            "--approver",
+            "QC Laboratory Supervisor",
+        ]);
+    // SAFETY: only async-signal-safe calls (signal, setrlimit) between fork and exec.
+    unsafe {
+        c.pre_exec(|| {
+            libc::signal(libc::SIGXFSZ, libc::SIG_IGN);
+            let limit = libc::rlimit {
+                rlim_cur: 20_000,
+                rlim_max: 20_000,
+            };
+            if libc::setrlimit(libc::RLIMIT_FSIZE, &limit) != 0 {
+                return Err(std::io::Error::last_os_error());
+            }
+            Ok(())
+        });
+    }
+    let out = c.output().unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(
+        stderr.contains("T26-104_FW-000004.pdf.TP-2000-4.part") && stderr.contains("writing"),
+        "{stderr}"
+    );
+    assert_eq!(before, record(&w), "no row, no log entry, no file left");
+    verify(&w, &[], 0);
+    w.release("lot4.csv")
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains("(FW-000004 to FW-000004)"));
+    verify(&w, &[], 0);
+}
+
 /// Issue #13 item 8: a certificate file left unlogged by a `certify` killed after the rename
 /// keeps its number: the next certificate takes the one after, `verify` names the file, and
 /// `verify --quarantine` logs it as void (then `verify FILE` says VOID).
