@@ -354,6 +354,11 @@ fn an_unlogged_certificate_keeps_its_number_and_is_voided_issue_13() {
         .stdout(predicate::str::contains(
             "VOID: number FW-000004 was logged as void",
         ));
+    w.cmd()
+        .args(["lookup", "T26-102"])
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains("FW-000004  VOID"));
     assert!(stray.exists(), "the file is kept");
     certify(&w, "T26-103")
         .assert()
