@@ -8,6 +8,7 @@ use sha2::{Digest, Sha256};
 use crate::certificate::model::{Certificate, Site, SITE_FILE};
 use crate::certificate::render::{FontPool, Templates};
 use crate::error::{Error, Result};
+use crate::record::certfiles::{self, Listing};
 use crate::record::certlog::{Entry, Log};
 
 /// Everything needed to render and file certificates.
@@ -29,6 +30,20 @@ pub struct Issued {
     pub path: PathBuf,
     /// SHA-256 of the PDF.
     pub sha256: String,
+}
+
+/// Certificate numbers for one run, following every number already used (issue #13, item 8).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Numbering {
+    prefix: String,
+    next: u64,
+}
+
+impl Numbering {
+    /// The number `k` places after the next free one: `prefix` and six or more digits.
+    pub fn nth(&self, k: usize) -> String {
+        format!("{}{:06}", self.prefix, self.next + k as u64)
+    }
 }
 
 /// A certificate to issue and who it is for.
@@ -58,6 +73,34 @@ impl Issuer {
         format!("{}_{}.pdf", cert.lot.id, cert.number)
     }
 
+    /// The numbering of the next certificates, under the log's lock: after the highest number
+    /// the log has used and the highest any certificate file (issued or pending) in the output
+    /// folder holds, so that a number is never issued twice, not even after an interrupted
+    /// issue left a file unlogged (issue #13, item 8). Refuses (exit 2) when the log is missing
+    /// while certificate files exist: numbering would start again at 000001 (item 9).
+    pub fn numbering(&self, log: &Log) -> Result<Numbering> {
+        let prefix = &self.site.certificate_prefix;
+        let listing = Listing::read(&self.out)?;
+        if log.is_new() && listing.certificate_count() > 0 {
+            return Err(Error::invalid(
+                log.path().display().to_string(),
+                format!(
+                    "the certificate log is missing, but {} certificate file(s) are in {}: numbering would start again at 000001 and repeat issued numbers",
+                    listing.certificate_count(),
+                    self.out.display()
+                ),
+                "Restore the certificate log from backup (`resinlot verify` then checks it against the files); nothing was written.",
+            ));
+        }
+        Ok(Numbering {
+            prefix: prefix.clone(),
+            next: log
+                .highest_number(prefix)
+                .max(listing.highest_number(prefix))
+                + 1,
+        })
+    }
+
     /// Renders every certificate (in parallel) and returns the bytes, in order.
     pub fn render(&self, pending: &[Pending]) -> Result<Vec<crate::certificate::render::Rendered>> {
         use rayon::prelude::*;
@@ -81,7 +124,8 @@ impl Issuer {
             .map_err(|e| Error::io(&self.out, "writing a file in", e))?;
         for p in pending {
             let path = self.out.join(Self::file_name(&p.certificate));
-            if path.exists() {
+            // symlink_metadata: a dangling symbolic link is in the way too (issue #13, item 7).
+            if std::fs::symlink_metadata(&path).is_ok() {
                 return Err(Error::invalid(
                     path.display().to_string(),
                     "a file of this name already exists and is never overwritten",
@@ -90,6 +134,72 @@ impl Issuer {
             }
         }
         Ok(())
+    }
+
+    /// Writes each rendered internal certificate to its pending part (fsync'd, never
+    /// replacing a file) before its trend row is appended: `rows[i]` is the product and row
+    /// sequence number certificate `i` certifies (issue #13, item 7). On an error the parts
+    /// written so far are removed again, and nothing else was written. Returns the parts' names.
+    pub fn stage(
+        &self,
+        pending: &[Pending],
+        rendered: &[crate::certificate::render::Rendered],
+        rows: &[(String, usize)],
+    ) -> Result<Vec<String>> {
+        let mut parts: Vec<String> = Vec::new();
+        if pending.is_empty() {
+            return Ok(parts);
+        }
+        let result = (|| -> Result<()> {
+            for ((p, r), (product, seq)) in pending.iter().zip(rendered).zip(rows) {
+                let name = certfiles::part_name(&Self::file_name(&p.certificate), product, *seq);
+                let path = self.out.join(&name);
+                let mut f = std::fs::OpenOptions::new()
+                    .write(true)
+                    .create_new(true)
+                    .open(&path)
+                    .map_err(|e| Error::io(&path, "creating", e))?;
+                parts.push(name);
+                std::io::Write::write_all(&mut f, &r.pdf)
+                    .and_then(|()| f.sync_all())
+                    .map_err(|e| Error::io(&path, "writing", e))?;
+            }
+            std::fs::File::open(&self.out)
+                .and_then(|d| d.sync_all())
+                .map_err(|e| Error::io(&self.out, "syncing folder", e))
+        })();
+        if let Err(e) = result {
+            for name in &parts {
+                let _ = std::fs::remove_file(self.out.join(name));
+            }
+            return Err(e);
+        }
+        Ok(parts)
+    }
+
+    /// Files the parts written by [`Issuer::stage`] once their rows are appended: each is
+    /// linked to its final name and logged, then the part is removed
+    /// ([`certfiles::finish`]). The caller holds the log's lock and the trend files' locks.
+    pub fn file_staged(
+        &self,
+        log: &mut Log,
+        pending: &[Pending],
+        rendered: &[crate::certificate::render::Rendered],
+        parts: &[String],
+        issued_at: &str,
+    ) -> Result<Vec<Issued>> {
+        let mut out = Vec::new();
+        for ((p, r), part) in pending.iter().zip(rendered).zip(parts) {
+            let name = Self::file_name(&p.certificate);
+            let sha = crate::record::trend_file::hex(&Sha256::digest(&r.pdf));
+            certfiles::finish(log, &self.out, part, &entry(p, &name, &sha, issued_at))?;
+            out.push(Issued {
+                certificate_number: p.certificate.number.clone(),
+                path: self.out.join(&name),
+                sha256: sha,
+            });
+        }
+        Ok(out)
     }
 
     /// Writes rendered certificates and records them in the log (which must be locked by the
@@ -115,28 +225,7 @@ impl Issuer {
                 )?;
             }
             let sha = crate::record::trend_file::hex(&Sha256::digest(&r.pdf));
-            log.append(&Entry {
-                number: p.certificate.number.clone(),
-                issued_at: issued_at.to_string(),
-                lot: p.certificate.lot.id.clone(),
-                product: p.certificate.product.code.clone(),
-                customer: p.customer.clone(),
-                customer_name: p
-                    .certificate
-                    .customer
-                    .as_ref()
-                    .map(|c| c.name.clone())
-                    .unwrap_or_default(),
-                file: name,
-                sha256: sha.clone(),
-                supersedes: p
-                    .certificate
-                    .supersedes
-                    .as_ref()
-                    .map(|s| s.number.clone())
-                    .unwrap_or_default(),
-                reason: p.reason.clone(),
-            })?;
+            log.append(&entry(p, &name, &sha, issued_at))?;
             out.push(Issued {
                 certificate_number: p.certificate.number.clone(),
                 path,
@@ -144,5 +233,31 @@ impl Issuer {
             });
         }
         Ok(out)
+    }
+}
+
+/// The log entry of pending certificate `p`, filed as `file` with SHA-256 `sha`.
+fn entry(p: &Pending, file: &str, sha: &str, issued_at: &str) -> Entry {
+    Entry {
+        number: p.certificate.number.clone(),
+        issued_at: issued_at.to_string(),
+        lot: p.certificate.lot.id.clone(),
+        product: p.certificate.product.code.clone(),
+        customer: p.customer.clone(),
+        customer_name: p
+            .certificate
+            .customer
+            .as_ref()
+            .map(|c| c.name.clone())
+            .unwrap_or_default(),
+        file: file.to_string(),
+        sha256: sha.to_string(),
+        supersedes: p
+            .certificate
+            .supersedes
+            .as_ref()
+            .map(|s| s.number.clone())
+            .unwrap_or_default(),
+        reason: p.reason.clone(),
     }
 }

@@ -12,7 +12,7 @@ use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::lot::evaluate::Status;
 use crate::record::certlog::{Entry, Log};
-use crate::record::trend_file::Wait;
+use crate::record::trend_file::{Locked, Wait};
 use crate::spec::customer::Customer;
 use crate::spec::SpecSet;
 
@@ -79,7 +79,13 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     check_lot_id(&args.lot)?;
     let specs = SpecSet::load(&args.specs)?;
     let customer = Customer::load(&args.specs.join("customers"), &args.customer, &specs)?;
-    let rec = recorded_lot(args)?;
+    let wait = Wait {
+        timeout: Duration::from_secs(args.locking.lock_timeout),
+    };
+    // The lot's status is read and decided under the trend file's lock, the one `release`
+    // holds while appending, and the lock is kept until the certificate is logged: a retest
+    // that rejects the lot either lands before (and is seen) or waits (issue #13, item 2).
+    let (_trend_lock, rec) = recorded_lot(args, wait)?;
     let spec = specs.revision(&rec.product, &rec.revision).ok_or_else(|| {
         Error::invalid(
             format!("lot {}", rec.lot),
@@ -109,9 +115,6 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     };
     build::check_customer(spec, &rec, &ship)?;
     let issuer = Issuer::new(&args.templates, &args.certificates)?;
-    let wait = Wait {
-        timeout: Duration::from_secs(args.locking.lock_timeout),
-    };
     let mut log = Log::lock(&args.register, wait)?;
     let previous = log
         .entries()
@@ -120,7 +123,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .find(|e| e.lot == rec.lot && e.customer == customer.id);
     let supersedes = supersedes(previous.as_ref(), args, &rec, &customer)?;
     let now = crate::support::clock::now()?;
-    let number = log.next_number(&issuer.site.certificate_prefix);
+    let number = issuer.numbering(&log)?.nth(0);
     let certificate = build::build(
         &issuer.site,
         spec,
@@ -165,20 +168,26 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     Ok(Outcome::AllGood)
 }
 
-/// The lot's latest record, from an intact trend file.
-fn recorded_lot(args: &Args) -> anyhow::Result<LotRecord> {
-    let Some(trend) = crate::record::query::find_lot(&args.register, &args.lot)? else {
-        return Err(Error::Shortfall(format!(
+/// The lot's latest record, read from its intact trend file under that file's lock (taken
+/// and returned here, so the caller holds it until the certificate is filed).
+fn recorded_lot(args: &Args, wait: Wait) -> anyhow::Result<(Locked, LotRecord)> {
+    let not_recorded = || {
+        Error::Shortfall(format!(
             "lot '{}' is not in the record at {}",
             args.lot,
             args.register.display()
         ))
-        .into());
     };
-    // A certificate is issued only from an intact record: check the whole trend file's chain.
-    crate::record::trend_file::read(&trend.path)?;
-    let row = trend.rows.last().expect("found rows");
-    Ok(LotRecord::from_row(&trend, row)?)
+    let Some(found) = crate::record::query::find_lot(&args.register, &args.lot)? else {
+        return Err(not_recorded().into());
+    };
+    // Locking reads the whole file and checks its chain: a certificate is issued only from an
+    // intact record, and from the row that is latest while the lock is held.
+    let locked = crate::record::trend_file::lock(&found.path, &[], &[], wait)?;
+    let trend = &locked.trend;
+    let row = *trend.lot_rows(&args.lot).first().ok_or_else(not_recorded)?;
+    let rec = LotRecord::from_row(trend, row)?;
+    Ok((locked, rec))
 }
 
 /// What a reissue supersedes; a second certificate for the same lot and customer needs

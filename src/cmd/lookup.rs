@@ -274,7 +274,9 @@ fn certificates_text(certs: &[crate::record::certlog::Entry]) -> String {
         out.push_str(&format!(
             "  {}  {}  {}{}\n",
             e.number,
-            if e.customer_name.is_empty() {
+            if crate::record::certfiles::is_void(e) {
+                "VOID (a file found without its log entry; not a certificate)"
+            } else if e.customer_name.is_empty() {
                 "internal (QC record)"
             } else {
                 e.customer_name.as_str()

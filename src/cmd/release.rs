@@ -1,5 +1,6 @@
 //! `resinlot release`: decide every lot of a results file and append it to the trend files.
 
+use std::collections::BTreeMap;
 use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::time::Duration;
@@ -8,7 +9,7 @@ use anyhow::Context;
 use serde::Serialize;
 
 use crate::certificate::build::{self, LotRecord};
-use crate::certificate::issue::{Issued, Issuer, Pending};
+use crate::certificate::issue::{Issued, Issuer, Numbering, Pending};
 use crate::certificate::model::Supersedes;
 use crate::cmd::args::{CertificatesFolder, Locking, RegisterFolder, SpecsFolder, TemplatesFolder};
 use crate::cmd::Outcome;
@@ -16,8 +17,9 @@ use crate::error::Error;
 use crate::lot::evaluate::{evaluate, LotDecision, Status};
 use crate::lot::intake::{self, LotResults};
 use crate::record::append::{self, Plan};
+use crate::record::certfiles::{self, Completed};
 use crate::record::certlog::Log;
-use crate::record::trend_file::Wait;
+use crate::record::trend_file::{Locked, Trend, Wait};
 use crate::spec::SpecSet;
 
 /// Arguments of `resinlot release`.
@@ -125,17 +127,19 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let mut log: Option<Log> = None;
     let mut pending: Vec<Pending> = Vec::new();
     let mut rendered = Vec::new();
-    let recorded = if args.dry_run {
-        vec![Recorded::NotWritten; decisions.len()]
+    let mut parts: Vec<String> = Vec::new();
+    let mut completed: Vec<Completed> = Vec::new();
+    let (recorded, issued) = if args.dry_run {
+        (vec![Recorded::NotWritten; decisions.len()], Vec::new())
     } else {
-        record(
+        let (recorded, locks) = record(
             args,
             &specs,
             &lots,
             &decisions,
             &approver,
             &now_text,
-            &mut |plans| {
+            &mut |plans, trends| {
                 let Some(issuer) = &issuer else {
                     return Ok(());
                 };
@@ -155,18 +159,43 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                     now: &now,
                     now_text: &now_text,
                 };
-                pending = prepare_certificates(&ctx, log, &decisions, plans)?;
+                let numbering = issuer.numbering(log)?;
+                pending = prepare_certificates(&ctx, log, &numbering, &decisions, plans)?;
                 rendered = issuer.render(&pending)?;
                 issuer.check_targets(&pending)?;
+                // Each certificate goes to a pending part before its row is appended, so an
+                // interruption leaves a state `verify` names and a re-run completes (issue
+                // #13, item 7).
+                parts = issuer.stage(
+                    &pending,
+                    &rendered,
+                    &certified_rows(&decisions, plans, trends),
+                )?;
                 Ok(())
             },
-        )?
+        )?;
+        // Still under the trend files' locks: file and log the staged certificates, then
+        // complete any left pending by an interrupted release of these products.
+        let issued = match (&issuer, &mut log) {
+            (Some(issuer), Some(log)) => {
+                let issued = issuer.file_staged(log, &pending, &rendered, &parts, &now_text)?;
+                for (product, l) in &locks {
+                    completed.extend(certfiles::complete_pending(
+                        log,
+                        &issuer.out,
+                        &l.trend,
+                        product,
+                        &now_text,
+                    )?);
+                }
+                issued
+            }
+            _ => Vec::new(),
+        };
+        drop(locks);
+        (recorded, issued)
     };
-    let issued = match (&issuer, &mut log) {
-        (Some(issuer), Some(log)) => issuer.file(log, &pending, &rendered, false, &now_text)?,
-        _ => Vec::new(),
-    };
-    let text = report_text(args, &specs, &decisions, &recorded, &issued)?;
+    let text = report_text(args, &specs, &decisions, &recorded, &issued, &completed)?;
     crate::support::output::print(&text)?;
     Ok(if decisions.iter().all(|d| d.status == Status::Released) {
         Outcome::AllGood
@@ -245,11 +274,31 @@ struct CertContext<'a> {
     now_text: &'a str,
 }
 
-/// Builds the internal certificate of every lot that gets a new row, numbered after the
-/// log's last; a retested lot's certificate supersedes its latest internal one.
+/// The product and trend-row sequence number of every lot that gets a new row, in order: the
+/// rows [`append::commit`] will append after each product's last.
+fn certified_rows(
+    decisions: &[LotDecision],
+    plans: &[Plan],
+    trends: &BTreeMap<&str, &Trend>,
+) -> Vec<(String, usize)> {
+    let mut next: BTreeMap<&str, usize> = BTreeMap::new();
+    let mut rows = Vec::new();
+    for (d, _) in decisions.iter().zip(plans).filter(|(_, p)| p.writes()) {
+        let seq = next
+            .entry(d.product.as_str())
+            .or_insert_with(|| trends.get(d.product.as_str()).map_or(0, |t| t.rows.len()));
+        *seq += 1;
+        rows.push((d.product.clone(), *seq));
+    }
+    rows
+}
+
+/// Builds the internal certificate of every lot that gets a new row, numbered by `numbering`;
+/// a retested lot's certificate supersedes its latest internal one.
 fn prepare_certificates(
     ctx: &CertContext<'_>,
     log: &Log,
+    numbering: &Numbering,
     decisions: &[LotDecision],
     plans: &[Plan],
 ) -> anyhow::Result<Vec<Pending>> {
@@ -265,12 +314,12 @@ fn prepare_certificates(
         let supersedes = entries
             .iter()
             .rev()
-            .find(|e| e.lot == d.lot && e.customer.is_empty())
+            .find(|e| e.lot == d.lot && e.customer.is_empty() && !certfiles::is_void(e))
             .map(|e| Supersedes {
                 number: e.number.clone(),
                 reason: args.reason.clone().unwrap_or_else(|| "retest".into()),
             });
-        let number = log.number_after(&ctx.issuer.site.certificate_prefix, pending.len());
+        let number = numbering.nth(pending.len());
         let certificate = build::build(
             &ctx.issuer.site,
             spec,
@@ -296,6 +345,7 @@ fn report_text(
     decisions: &[LotDecision],
     recorded: &[Recorded],
     issued: &[Issued],
+    completed: &[Completed],
 ) -> anyhow::Result<String> {
     if args.json {
         let lots: Vec<JsonLot> = decisions
@@ -304,7 +354,7 @@ fn report_text(
             .map(|(decision, recorded)| JsonLot { decision, recorded })
             .collect();
         return Ok(serde_json::to_string_pretty(
-            &serde_json::json!({ "lots": lots, "certificates": issued }),
+            &serde_json::json!({ "lots": lots, "certificates": issued, "completed": completed }),
         )? + "\n");
     }
     let mut t = render(specs, decisions, recorded, &args.register, args.dry_run);
@@ -316,6 +366,14 @@ fn report_text(
             args.certificates.display(),
             issued[0].certificate_number,
             issued[issued.len() - 1].certificate_number
+        ));
+    }
+    for c in completed {
+        t.push_str(&format!(
+            "Completed internal certificate {} of lot {}, left pending by an interrupted release: {}\n",
+            c.certificate_number,
+            c.lot,
+            c.path.display()
         ));
     }
     Ok(t)
@@ -334,18 +392,23 @@ fn progress(n: usize) -> indicatif::ProgressBar {
     }
 }
 
+/// What `release` does once every check has passed and before the first row is written:
+/// given the plans and the trends as locked, prepare and stage the certificates.
+type BeforeWrite<'a> = dyn FnMut(&[Plan], &BTreeMap<&str, &Trend>) -> anyhow::Result<()> + 'a;
+
 /// Appends every decision, under one exclusive lock per trend file: lock, plan (every check
 /// runs before the first byte is written, so an error leaves every file as it was), let
-/// `before_write` prepare the certificates, commit.
-fn record(
+/// `before_write` prepare the certificates (given the plans and the trends as locked), commit.
+/// Returns what was recorded and the locks, still held, for filing the certificates.
+fn record<'d>(
     args: &Args,
     specs: &SpecSet,
     lots: &[LotResults],
-    decisions: &[LotDecision],
+    decisions: &'d [LotDecision],
     approver: &str,
     now: &str,
-    before_write: &mut dyn FnMut(&[Plan]) -> anyhow::Result<()>,
-) -> anyhow::Result<Vec<Recorded>> {
+    before_write: &mut BeforeWrite<'_>,
+) -> anyhow::Result<(Vec<Recorded>, BTreeMap<&'d str, Locked>)> {
     let wait = Wait {
         timeout: Duration::from_secs(args.locking.lock_timeout),
     };
@@ -363,10 +426,10 @@ fn record(
     let trends = locks.iter().map(|(&p, l)| (p, &l.trend)).collect();
     let plans = append::plan(&batch, &trends, specs, &elsewhere)?;
     append::check_time_order(&trends, decisions, &plans, now)?;
-    before_write(&plans)?;
-    Ok(append::commit(
-        &mut locks, decisions, &plans, approver, now,
-    )?)
+    append::check_rows_read_back(&trends, decisions, &plans, approver, now)?;
+    before_write(&plans, &trends)?;
+    let recorded = append::commit(&mut locks, decisions, &plans, approver, now)?;
+    Ok((recorded, locks))
 }
 
 fn short(v: Option<crate::spec::decision::Verdict>) -> &'static str {

@@ -1,10 +1,13 @@
 //! `resinlot verify`: check the record (trend files, certificate log) or identify certificates.
 
 use std::path::PathBuf;
+use std::time::Duration;
 
-use crate::cmd::args::{CertificatesFolder, RegisterFolder};
+use crate::cmd::args::{CertificatesFolder, Locking, RegisterFolder};
 use crate::cmd::Outcome;
+use crate::record::certfiles;
 use crate::record::integrity::{self, CertVerdict, Repair};
+use crate::record::trend_file::Wait;
 
 /// Arguments of `resinlot verify`.
 #[derive(Debug, clap::Args)]
@@ -21,12 +24,17 @@ pub struct Args {
     pub certificates_folder: CertificatesFolder,
     /// Move a torn last line (left by an interrupted write) to a side file beside the trend
     /// file, never deleting it, or restore the line end of a complete last row that lacks
-    /// one; each repair is logged in quarantine.log. Safe to run again after an interruption.
+    /// one; in the certificates folder, remove stray temporary `.part` files and log a
+    /// certificate file found without its log entry as void. Each repair is logged in
+    /// quarantine.log. Safe to run again after an interruption.
     #[arg(long)]
     pub quarantine: bool,
     /// Print JSON instead of text.
     #[arg(long)]
     pub json: bool,
+    /// How long to wait for a lock (`--lock-timeout`), when repairing.
+    #[command(flatten)]
+    pub locking: Locking,
 }
 
 /// Runs the command.
@@ -52,11 +60,21 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             }
         }
         checks = integrity::check_register(&args.register, &args.certificates_folder)?;
+        let wait = Wait {
+            timeout: Duration::from_secs(args.locking.lock_timeout),
+        };
+        for line in certfiles::repair_folder(&args.register, &args.certificates_folder, &now, wait)?
+        {
+            out.push_str(&format!("{line} (logged in quarantine.log)\n"));
+        }
     }
-    let ok = checks.iter().all(integrity::FileCheck::ok);
+    // The certificates folder against the log and the trend files (issue #13, items 7-9).
+    let findings = certfiles::check_folder(&args.register, &args.certificates_folder)?;
+    let ok = checks.iter().all(integrity::FileCheck::ok) && findings.is_empty();
     if args.json {
-        out = serde_json::to_string_pretty(&serde_json::json!({ "intact": ok, "files": checks }))?
-            + "\n";
+        out = serde_json::to_string_pretty(
+            &serde_json::json!({ "intact": ok, "files": checks, "certificates_folder": findings }),
+        )? + "\n";
     } else {
         for c in &checks {
             match &c.problem {
@@ -80,6 +98,14 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                 )),
             }
         }
+        for f in &findings {
+            out.push_str(&format!(
+                "{}: BROKEN: {}. {}\n",
+                f.path.display(),
+                f.problem,
+                f.fix
+            ));
+        }
         out.push_str(if ok {
             "The record is intact.\n"
         } else {
@@ -101,6 +127,15 @@ fn certificates(args: &Args) -> anyhow::Result<Outcome> {
     for pdf in &args.certificates {
         let v = integrity::verify_certificate(pdf, &args.register)?;
         match &v {
+            CertVerdict::Genuine { entry } if certfiles::is_void(entry) => {
+                all_genuine = false;
+                out.push_str(&format!(
+                    "{}: VOID: number {} was logged as void on {} (a file found without its log entry); it is not a valid certificate\n",
+                    pdf.display(),
+                    entry.number,
+                    entry.issued_at
+                ));
+            }
             CertVerdict::Genuine { entry } => out.push_str(&format!(
                 "{}: genuine: certificate {} for lot {}{}, issued {}\n",
                 pdf.display(),

@@ -293,11 +293,13 @@ impl Ctx<'_> {
                 "Shorten it; results cells hold numbers, ids and short names.",
             ));
         }
-        if v.chars().any(|c| c.is_control()) {
+        // The one check for free text (issue #13, item 6): control characters and
+        // bidirectional overrides such as U+202E are refused.
+        if let Some(problem) = crate::support::text::unprintable(v) {
             return Err(Error::invalid(
                 format!("{}:{line}, column '{}'", self.name, self.headers[i]),
-                "the cell contains a control character",
-                "Remove tabs, line breaks and other control characters from the cell.",
+                format!("the cell cannot be used: {problem}"),
+                "Remove tabs, line breaks, direction overrides and other control characters from the cell.",
             ));
         }
         Ok(v)

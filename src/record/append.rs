@@ -374,6 +374,28 @@ pub fn row_cells(d: &LotDecision, plan: &Plan, approver: &str, now: &str) -> Vec
     cells.into_iter().map(|(k, v)| (k.to_string(), v)).collect()
 }
 
+/// Parses back, before anything is written, the row of every lot whose plan writes
+/// ([`trend_file::encode_row`]): a row that would not read back refuses the whole release
+/// with exit 2 and leaves every file as it was (issue #13, item 6). Pure.
+pub fn check_rows_read_back(
+    trends: &BTreeMap<&str, &Trend>,
+    decisions: &[LotDecision],
+    plans: &[Plan],
+    approver: &str,
+    now: &str,
+) -> Result<()> {
+    for (d, plan) in decisions.iter().zip(plans).filter(|(_, p)| p.writes()) {
+        if let Some(t) = trends.get(d.product.as_str()) {
+            let owned = row_cells(d, plan, approver, now);
+            let cells: Vec<(&str, String)> =
+                owned.iter().map(|(k, v)| (k.as_str(), v.clone())).collect();
+            trend_file::encode_row(t, &cells)
+                .map_err(|e| e.at(|old| format!("{old}, lot '{}'", d.lot)))?;
+        }
+    }
+    Ok(())
+}
+
 /// Appends the row of every lot whose plan writes, under the locks taken by
 /// [`lock_products`], then syncs every file. Returns what happened to each lot.
 pub fn commit(
@@ -674,6 +696,35 @@ decimals = 0
         assert!(check_time_order(&trends, &next, &new, "2026-10-02T08:00:00Z").is_ok());
         let unchanged = [Plan::Unchanged { seq: 1 }];
         assert!(check_time_order(&trends, &next, &unchanged, "2020-01-01T00:00:00Z").is_ok());
+    }
+
+    /// Issue #13 item 6: every row is parsed back before the first is written; a reason with
+    /// a line break refuses the whole batch.
+    #[test]
+    fn rows_that_would_not_read_back_refuse_the_batch_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        let d = vec![
+            decide(&specs, "L1", "0.50", "55.6"),
+            decide(&specs, "L2", "0.40", "56.0"),
+        ];
+        let locks = lock_products(dir.path(), &specs, &d, wait()).unwrap();
+        let trends: BTreeMap<&str, &Trend> = locks.iter().map(|(&p, l)| (p, &l.trend)).collect();
+        let fine = [Plan::New, Plan::New];
+        assert!(check_rows_read_back(&trends, &d, &fine, "A. Tester", "now").is_ok());
+        let broken = [
+            Plan::New,
+            Plan::Retest {
+                supersedes: 1,
+                reason: "line\nbreak".into(),
+            },
+        ];
+        let e = check_rows_read_back(&trends, &d, &broken, "A. Tester", "now").unwrap_err();
+        let text = e.to_string();
+        assert!(
+            text.contains("column 'reason'") && text.contains("lot 'L2'"),
+            "{text}"
+        );
     }
 
     #[test]

@@ -143,6 +143,39 @@ impl Log {
     }
 }
 
+impl Log {
+    /// The log's path.
+    pub fn path(&self) -> &Path {
+        &self.locked.trend.path
+    }
+
+    /// True when the log did not exist (or was empty) when it was locked and nothing has been
+    /// logged since: numbering from it alone would start again at 000001 (issue #13, item 9).
+    pub fn is_new(&self) -> bool {
+        self.locked.is_fresh()
+    }
+
+    /// The highest certificate sequence number the log has used: its row count, or a larger
+    /// number written with `prefix` in its `number` column (issue #13, item 8).
+    pub fn highest_number(&self, prefix: &str) -> u64 {
+        let t = &self.locked.trend;
+        t.rows
+            .iter()
+            .filter_map(|r| number_seq(t.cell(r, "number"), prefix))
+            .fold(t.rows.len() as u64, u64::max)
+    }
+}
+
+/// The sequence number of certificate number `number` written with `prefix` ("FW-000012" with
+/// "FW-" is 12); `None` for another prefix or a number without digits after the prefix.
+pub fn number_seq(number: &str, prefix: &str) -> Option<u64> {
+    let digits = number.strip_prefix(prefix)?;
+    if digits.is_empty() || !digits.bytes().all(|b| b.is_ascii_digit()) {
+        return None;
+    }
+    digits.parse().ok()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -172,5 +205,39 @@ mod tests {
         assert_eq!(log.next_number("FW-"), "FW-000002");
         drop(log);
         assert_eq!(entries(dir.path()).unwrap(), vec![e]);
+    }
+
+    /// Issue #13 items 8 and 9: a new log is known as such, and the highest number counts a
+    /// number beyond the row count.
+    #[test]
+    fn highest_number_and_a_new_log_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let wait = Wait {
+            timeout: Duration::from_secs(5),
+        };
+        let mut log = Log::lock(dir.path(), wait).unwrap();
+        assert!(log.is_new());
+        assert_eq!(log.highest_number("FW-"), 0);
+        log.append(&Entry {
+            number: "FW-000007".into(),
+            issued_at: "2026-10-01T10:00:00Z".into(),
+            lot: "L1".into(),
+            product: "P".into(),
+            customer: String::new(),
+            customer_name: String::new(),
+            file: "L1_FW-000007.pdf".into(),
+            sha256: "ab".into(),
+            supersedes: String::new(),
+            reason: String::new(),
+        })
+        .unwrap();
+        assert!(!log.is_new());
+        assert_eq!(log.highest_number("FW-"), 7);
+        assert_eq!(log.highest_number("XY-"), 1);
+        drop(log);
+        assert!(!Log::lock(dir.path(), wait).unwrap().is_new());
+        assert_eq!(number_seq("FW-000012", "FW-"), Some(12));
+        assert_eq!(number_seq("FW-", "FW-"), None);
+        assert_eq!(number_seq("FW-12a", "FW-"), None);
     }
 }

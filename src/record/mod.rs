@@ -3,6 +3,7 @@
 //! record. May use `lot`, `spec`, `chem`, `support` and `error`.
 
 pub mod append;
+pub mod certfiles;
 pub mod certlog;
 pub mod find;
 pub mod integrity;

@@ -442,6 +442,52 @@ pub fn repair_hint(path: &Path, d: &Damage) -> String {
     }
 }
 
+/// The line (with its line feed) that appends `cells` (by column name, missing ones empty) to
+/// `trend` as its next row, and the row's cells as they read back; pure.
+///
+/// Every row is parsed back before it may be written (issue #13, item 6): a row that would
+/// not read back as one line with the header's field count and the same cells (a line
+/// break or carriage return in a cell, say) is refused, so the writer never produces a row
+/// that blocks the file.
+pub fn encode_row(trend: &Trend, cells: &[(&str, String)]) -> Result<(String, Vec<String>)> {
+    let seq = trend.rows.len() + 1;
+    let n = trend.columns.len();
+    let mut row = vec![String::new(); n];
+    row[0] = seq.to_string();
+    for (name, value) in cells {
+        if let Some(i) = trend.col(name) {
+            row[i] = value.clone();
+        }
+    }
+    let body: Vec<String> = row[..n - 1].iter().map(|c| text_cell(c)).collect();
+    let body = body.join(",");
+    let chain = chain_hash(&trend.head, &body);
+    let line = format!("{body},{chain}\n");
+    let back = split_line(&line[..line.len() - 1]);
+    let bad = if line[..line.len() - 1].contains(['\n', '\r']) {
+        row.iter().position(|c| c.contains(['\n', '\r']))
+    } else if back.len() != n {
+        Some(n - 1)
+    } else {
+        (0..n - 1).find(|&i| back[i] != row[i] && back[i] != format!("'{}", row[i]))
+    };
+    if let Some(i) = bad {
+        return Err(Error::invalid(
+            format!(
+                "{} (row {seq}, column '{}')",
+                trend.path.display(),
+                trend.columns.get(i).map_or("?", String::as_str)
+            ),
+            format!(
+                "the row would not read back as written (cell {:?}); nothing was written",
+                row[i]
+            ),
+            "Remove line breaks and other control characters from the text that fills this column (spec, customer, results file or flag), then run again.",
+        ));
+    }
+    Ok((line, back))
+}
+
 /// An exclusively locked trend file, open for appending.
 pub struct Locked {
     file: File,
@@ -590,31 +636,24 @@ impl Locked {
                 .map_err(|e| Error::io(&path, "writing", e))?;
             self.fresh = false;
         }
+        let (line, cells) = encode_row(&self.trend, cells)?;
         let seq = self.trend.rows.len() + 1;
-        let n = self.trend.columns.len();
-        let mut row = vec![String::new(); n];
-        row[0] = seq.to_string();
-        for (name, value) in cells {
-            if let Some(i) = self.trend.col(name) {
-                row[i] = value.clone();
-            }
-        }
-        let body: Vec<String> = row[..n - 1].iter().map(|c| text_cell(c)).collect();
-        let body = body.join(",");
-        let chain = chain_hash(&self.trend.head, &body);
-        let line = format!("{body},{chain}\n");
         self.file
             .write_all(line.as_bytes())
             .map_err(|e| Error::io(&path, "writing", e))?;
-        row[n - 1] = chain.clone();
-        self.trend.head = chain;
+        self.trend.head = cells[cells.len() - 1].clone();
         // Keep the stored cells as they read back from the file.
-        let cells = split_line(line.trim_end_matches('\n'));
         self.trend.rows.push(Row {
             line: seq + 1,
             cells,
         });
         Ok(seq)
+    }
+
+    /// True when the file did not exist (or was empty) when it was locked and nothing has
+    /// been appended since.
+    pub fn is_fresh(&self) -> bool {
+        self.fresh
     }
 
     /// Flushes appended rows to stable storage.
@@ -814,6 +853,32 @@ mod tests {
             ..d
         };
         assert!(repair_hint(Path::new("P.csv"), &altered).contains("restore the file"));
+    }
+
+    /// Issue #13 item 6: a row that would not read back (a line break in a cell) is refused
+    /// before a byte is written.
+    #[test]
+    fn a_row_that_would_not_read_back_is_refused_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        write_two(&p);
+        let before = std::fs::read(&p).unwrap();
+        let mut l = lock(&p, &keys(), &keys(), wait()).unwrap();
+        let e = l
+            .append(&[("lot", "L3".into()), ("spec_revision", "C\nD".into())])
+            .unwrap_err();
+        let text = e.to_string();
+        assert!(text.contains("column 'spec_revision'"), "{text}");
+        assert!(text.contains("would not read back"), "{text}");
+        let e = l.append(&[("lot", "L3".into()), ("notes", "a\rb".into())]);
+        assert!(e.is_err());
+        drop(l);
+        assert_eq!(std::fs::read(&p).unwrap(), before);
+        // Commas, quotes and formula-like text still read back.
+        let t = read(&p).unwrap();
+        let (_, cells) =
+            encode_row(&t, &[("lot", "L3".into()), ("notes", "=a, \"b\"".into())]).unwrap();
+        assert_eq!(t.cell(&Row { line: 4, cells }, "notes"), "'=a, \"b\"");
     }
 
     #[test]

@@ -147,16 +147,13 @@ pub fn load_all(dir: &Path, specs: &SpecSet) -> Result<Vec<Customer>> {
 
 fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result<Customer> {
     let file = path.display().to_string();
-    if raw.name.trim().is_empty() || raw.name.chars().any(char::is_control) {
-        return Err(Error::invalid(
-            format!("{file}: name"),
-            "the customer's name is empty or has control characters",
-            "Write the customer's legal name.",
-        ));
-    }
+    // Every text field ends up on a certificate: one line of printable text, no control or
+    // bidirectional-override characters (issue #13, item 6).
+    crate::support::text::check_line(&format!("{file}: name"), "customer name", &raw.name, 200)?;
     let mut products = IndexMap::new();
     for (code, p) in raw.products {
         let place = |f: &str| format!("{file}: products.{code}{f}");
+        check_texts(&place, &p)?;
         let spec = specs.latest(&code).ok_or_else(|| {
             Error::invalid(
                 place(""),
@@ -244,6 +241,27 @@ fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result
         products,
         path: path.to_path_buf(),
     })
+}
+
+/// Checks the free text of one product entry of a customer file (part number, statements,
+/// units) with [`crate::support::text::check_line`]: each is printed on the certificate.
+fn check_texts(place: &dyn Fn(&str) -> String, p: &ProductFile) -> Result<()> {
+    use crate::support::text::check_line;
+    if let Some(n) = &p.part_number {
+        check_line(&place(".part_number"), "part number", n, 80)?;
+    }
+    for (i, t) in p.statements.iter().enumerate() {
+        check_line(
+            &place(&format!(".statements[{}]", i + 1)),
+            "statement",
+            t,
+            400,
+        )?;
+    }
+    for (k, u) in &p.units {
+        check_line(&place(&format!(".units.{k}")), "unit", u, 40)?;
+    }
+    Ok(())
 }
 
 fn check_not_looser(spec: &ProductSpec, key: &str, w: &Window, place: &str) -> Result<()> {

@@ -57,6 +57,14 @@ impl Workspace {
         w
     }
 
+    /// Writes bytes to a file of the workspace, creating its folder.
+    pub fn write_bytes(&self, rel: &str, bytes: &[u8]) -> PathBuf {
+        let p = self.path(rel);
+        std::fs::create_dir_all(p.parent().unwrap()).unwrap();
+        std::fs::write(&p, bytes).unwrap();
+        p
+    }
+
     /// The binary, run inside the workspace with a fixed clock.
     pub fn cmd(&self) -> Command {
         let mut c = Command::cargo_bin("resinlot").unwrap();
