@@ -11,6 +11,7 @@ use serde::Serialize;
 use crate::error::{Error, Result};
 use crate::lot::evaluate::LotDecision;
 use crate::lot::note::LotNote;
+use crate::record::heads::HeadsLog;
 use crate::record::trend_file::{self, Locked, Trend, Wait};
 use crate::spec::keys;
 use crate::spec::SpecSet;
@@ -375,7 +376,10 @@ pub fn row_cells(d: &LotDecision, plan: &Plan, approver: &str, now: &str) -> Vec
 }
 
 /// Appends the row of every lot whose plan writes, under the locks taken by
-/// [`lock_products`], then syncs every file. Returns what happened to each lot.
+/// [`lock_products`], then syncs every file and records the new head of each file written in
+/// the heads file (under its lock, while the trend files are still locked; issue #13,
+/// item 4). A trend file that disagrees with its recorded head is refused before anything is
+/// written. Returns what happened to each lot.
 pub fn commit(
     locks: &mut BTreeMap<&str, Locked>,
     decisions: &[LotDecision],
@@ -383,6 +387,17 @@ pub fn commit(
     approver: &str,
     now: &str,
 ) -> Result<Vec<Recorded>> {
+    let register = locks
+        .values()
+        .next()
+        .and_then(|l| l.trend.path.parent())
+        .map(Path::to_path_buf);
+    let mut heads = match register {
+        Some(r) if plans.iter().any(Plan::writes) => {
+            HeadsLog::open(&r, locks.values().map(|l| &l.trend))?
+        }
+        _ => None,
+    };
     let mut out = Vec::with_capacity(decisions.len());
     for (d, plan) in decisions.iter().zip(plans) {
         let recorded = match plan {
@@ -412,6 +427,19 @@ pub fn commit(
     }
     for locked in locks.values_mut() {
         locked.sync()?;
+    }
+    if let Some(heads) = &mut heads {
+        let written: HashSet<&str> = decisions
+            .iter()
+            .zip(plans)
+            .filter(|(_, p)| p.writes())
+            .map(|(d, _)| d.product.as_str())
+            .collect();
+        let trends = locks
+            .iter()
+            .filter(|(p, _)| written.contains(*p))
+            .map(|(_, l)| &l.trend);
+        heads.record(trends, now)?;
     }
     Ok(out)
 }

@@ -1,4 +1,12 @@
 //! The certificate issue log: every certificate issued, hash-chained like the trend files.
+//!
+//! Each row also records the trend-file row it certifies (`trend_row`, `trend_chain`: the
+//! lot's latest row when the certificate was issued), an anchor outside the trend file that
+//! `verify` checks (issue #13, item 4). A log written before those columns existed
+//! ([`COLUMNS_V1`]) is read and appended to as it is until `resinlot upgrade` writes the current
+//! layout beside it: the upgraded log starts with a *layout row* (empty `number`) naming the
+//! predecessor's file, SHA-256, row count (`trend_row`) and last chain value (`trend_chain`),
+//! followed by the predecessor's rows carried over unchanged (with empty anchors).
 
 use std::path::{Path, PathBuf};
 
@@ -6,7 +14,25 @@ use crate::error::Result;
 use crate::record::trend_file::{self, Locked, Trend, Wait};
 
 /// Columns of the issue log.
-pub const COLUMNS: [&str; 12] = [
+pub const COLUMNS: [&str; 14] = [
+    "seq",
+    "issued_at",
+    "number",
+    "lot",
+    "product",
+    "customer",
+    "customer_name",
+    "file",
+    "sha256",
+    "supersedes",
+    "reason",
+    "trend_row",
+    "trend_chain",
+    "chain",
+];
+
+/// Columns of the issue log as written before issue #13 (read and appended to as they are).
+pub const COLUMNS_V1: [&str; 12] = [
     "seq",
     "issued_at",
     "number",
@@ -26,8 +52,80 @@ pub fn path(register: &Path) -> PathBuf {
     register.join("certificates.csv")
 }
 
-fn header_ok(cols: &[String]) -> bool {
-    cols == COLUMNS
+/// True when `cols` is the log's header, in the current or the earlier layout.
+pub fn header_ok(cols: &[String]) -> bool {
+    cols == COLUMNS || cols == COLUMNS_V1
+}
+
+/// The layout of a certificate log.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Layout {
+    /// Written before issue #13: no trend anchors ([`COLUMNS_V1`]).
+    V1,
+    /// The current layout ([`COLUMNS`]); anything else is also reported here and left to
+    /// `verify`, which names a header it does not know.
+    Current,
+}
+
+/// The layout of the register's log, `None` when there is none (or it is still empty).
+pub fn layout(register: &Path) -> Result<Option<Layout>> {
+    let p = path(register);
+    let bytes = match std::fs::read(&p) {
+        Ok(b) => b,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
+        Err(e) => return Err(crate::error::Error::io(&p, "reading", e)),
+    };
+    let first = bytes.split(|&b| b == b'\n').next().unwrap_or_default();
+    if first.is_empty() {
+        return Ok(None);
+    }
+    let cols = trend_file::split_line(&String::from_utf8_lossy(first));
+    Ok(Some(if cols == COLUMNS_V1 {
+        Layout::V1
+    } else {
+        Layout::Current
+    }))
+}
+
+/// True for a layout row of an upgraded log (it names the predecessor, not a certificate).
+pub fn is_layout_row(t: &Trend, row: &trend_file::Row) -> bool {
+    t.cell(row, "number").is_empty()
+}
+
+/// A certificate's anchor in its trend file, as the log records it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Anchor {
+    /// Line of the log row.
+    pub line: usize,
+    /// Certificate number.
+    pub number: String,
+    /// Lot id.
+    pub lot: String,
+    /// Product code (the trend file is `<product>.csv`).
+    pub product: String,
+    /// Row number (`seq`) of the certified row in the trend file.
+    pub row: usize,
+    /// Chain value of that row.
+    pub chain: String,
+}
+
+/// The anchors of a parsed log: every certificate row that records one (rows from before
+/// issue #13 and layout rows record none).
+pub fn anchors(t: &Trend) -> Vec<Anchor> {
+    t.rows
+        .iter()
+        .filter(|r| !is_layout_row(t, r))
+        .filter_map(|r| {
+            Some(Anchor {
+                line: r.line,
+                number: t.cell(r, "number").to_string(),
+                lot: t.cell(r, "lot").to_string(),
+                product: t.cell(r, "product").to_string(),
+                row: t.cell(r, "trend_row").parse().ok()?,
+                chain: t.cell(r, "trend_chain").to_string(),
+            })
+        })
+        .collect()
 }
 
 /// One issued certificate.
@@ -82,7 +180,11 @@ pub fn entries(register: &Path) -> Result<Vec<Entry>> {
     if let Some(d) = damage {
         return Err(trend_file::damage_error(&p, &d));
     }
-    Ok(t.rows.iter().map(|r| entry(&t, r)).collect())
+    Ok(t.rows
+        .iter()
+        .filter(|r| !is_layout_row(&t, r))
+        .map(|r| entry(&t, r))
+        .collect())
 }
 
 /// Checks the log's structure and chain; returns the damage if any.
@@ -101,9 +203,10 @@ pub struct Log {
 }
 
 impl Log {
-    /// Locks the log (creating it when missing).
+    /// Locks the log (creating it when missing, in the earlier layout only in a register
+    /// written before issue #13 that has not been upgraded).
     pub fn lock(register: &Path, wait: Wait) -> Result<Log> {
-        let header = COLUMNS.join(",");
+        let header = new_header(register)?;
         Ok(Log {
             locked: trend_file::lock_with(&path(register), &header, &[], wait, &header_ok)?,
         })
@@ -112,7 +215,11 @@ impl Log {
     /// Entries as read under the lock.
     pub fn entries(&self) -> Vec<Entry> {
         let t = &self.locked.trend;
-        t.rows.iter().map(|r| entry(t, r)).collect()
+        t.rows
+            .iter()
+            .filter(|r| !is_layout_row(t, r))
+            .map(|r| entry(t, r))
+            .collect()
     }
 
     /// The next certificate number: `prefix` followed by the six-digit sequence.
@@ -122,12 +229,22 @@ impl Log {
 
     /// The number `k` places after the next one (for numbering a batch before appending it).
     pub fn number_after(&self, prefix: &str, k: usize) -> String {
-        format!("{prefix}{:06}", self.locked.trend.rows.len() + 1 + k)
+        format!("{prefix}{:06}", self.certificate_rows() + 1 + k)
     }
 
-    /// Appends an entry and syncs it to disk.
+    /// Rows of the log that are certificates (not layout rows).
+    fn certificate_rows(&self) -> usize {
+        let t = &self.locked.trend;
+        t.rows.iter().filter(|r| !is_layout_row(t, r)).count()
+    }
+
+    /// Appends an entry and syncs it to disk; the lot's latest row in its trend file is
+    /// recorded as the certificate's anchor (a log in the earlier layout has no column for it).
     pub fn append(&mut self, e: &Entry) -> Result<()> {
+        let (trend_row, trend_chain) = self.anchor(&e.product, &e.lot)?;
         self.locked.append(&[
+            ("trend_row", trend_row),
+            ("trend_chain", trend_chain),
             ("issued_at", e.issued_at.clone()),
             ("number", e.number.clone()),
             ("lot", e.lot.clone()),
@@ -141,6 +258,32 @@ impl Log {
         ])?;
         self.locked.sync()
     }
+
+    /// The row number and chain value of the latest row of `lot` in `product`'s trend file
+    /// beside the log (empty when it is not recorded there).
+    fn anchor(&self, product: &str, lot: &str) -> Result<(String, String)> {
+        if self.locked.trend.col("trend_row").is_none() {
+            return Ok((String::new(), String::new()));
+        }
+        let register = self.locked.trend.path.parent().unwrap_or(Path::new("."));
+        let trend = trend_file::path_for(register, product);
+        Ok(match crate::record::heads::latest_row_of(&trend, lot)? {
+            Some((row, chain)) => (row.to_string(), chain),
+            None => (String::new(), String::new()),
+        })
+    }
+}
+
+/// The header a new log gets: the current layout, or the earlier one in a register written
+/// before issue #13 that has not been upgraded (so that it stays in one layout).
+fn new_header(register: &Path) -> Result<String> {
+    Ok(
+        if crate::record::heads::state(register)? == crate::record::heads::State::Legacy {
+            COLUMNS_V1.join(",")
+        } else {
+            COLUMNS.join(",")
+        },
+    )
 }
 
 #[cfg(test)]
