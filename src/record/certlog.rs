@@ -200,6 +200,8 @@ pub fn check(register: &Path) -> Result<Option<trend_file::Damage>> {
 /// The locked log, open for appending.
 pub struct Log {
     locked: Locked,
+    /// Where each product's lots were found in its trend file (for the anchors).
+    anchors: std::collections::HashMap<String, crate::record::heads::ReverseIndex>,
 }
 
 impl Log {
@@ -209,6 +211,7 @@ impl Log {
         let header = new_header(register)?;
         Ok(Log {
             locked: trend_file::lock_with(&path(register), &header, &[], wait, &header_ok)?,
+            anchors: Default::default(),
         })
     }
 
@@ -261,13 +264,17 @@ impl Log {
 
     /// The row number and chain value of the latest row of `lot` in `product`'s trend file
     /// beside the log (empty when it is not recorded there).
-    fn anchor(&self, product: &str, lot: &str) -> Result<(String, String)> {
+    fn anchor(&mut self, product: &str, lot: &str) -> Result<(String, String)> {
         if self.locked.trend.col("trend_row").is_none() {
             return Ok((String::new(), String::new()));
         }
         let register = self.locked.trend.path.parent().unwrap_or(Path::new("."));
         let trend = trend_file::path_for(register, product);
-        Ok(match crate::record::heads::latest_row_of(&trend, lot)? {
+        let index = self
+            .anchors
+            .entry(product.to_string())
+            .or_insert_with(|| crate::record::heads::ReverseIndex::new(&trend));
+        Ok(match index.find(lot)? {
             Some((row, chain)) => (row.to_string(), chain),
             None => (String::new(), String::new()),
         })
@@ -315,5 +322,81 @@ mod tests {
         assert_eq!(log.next_number("FW-"), "FW-000002");
         drop(log);
         assert_eq!(entries(dir.path()).unwrap(), vec![e]);
+    }
+
+    fn entry(number: &str) -> Entry {
+        Entry {
+            number: number.into(),
+            issued_at: "2026-10-01T10:00:00Z".into(),
+            lot: "L1".into(),
+            product: "P".into(),
+            customer: String::new(),
+            customer_name: String::new(),
+            file: format!("L1_{number}.pdf"),
+            sha256: "ab".into(),
+            supersedes: String::new(),
+            reason: String::new(),
+        }
+    }
+
+    /// Issue #13: a log in the earlier layout is appended to as it is, without anchors.
+    #[test]
+    fn a_log_in_the_earlier_layout_stays_in_it_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let wait = Wait {
+            timeout: Duration::from_secs(5),
+        };
+        std::fs::write(path(dir.path()), format!("{}\n", COLUMNS_V1.join(","))).unwrap();
+        assert_eq!(layout(dir.path()).unwrap(), Some(Layout::V1));
+        let mut log = Log::lock(dir.path(), wait).unwrap();
+        log.append(&entry("FW-000001")).unwrap();
+        drop(log);
+        let text = std::fs::read_to_string(path(dir.path())).unwrap();
+        assert!(
+            text.starts_with(&format!("{}\n1,", COLUMNS_V1.join(","))),
+            "{text}"
+        );
+        assert_eq!(entries(dir.path()).unwrap(), vec![entry("FW-000001")]);
+    }
+
+    /// Issue #13: a layout row is not a certificate: not an entry, not counted in numbering;
+    /// a certificate row records the lot's latest trend row as its anchor.
+    #[test]
+    fn layout_rows_are_not_certificates_and_entries_are_anchored_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let wait = Wait {
+            timeout: Duration::from_secs(5),
+        };
+        let keys = vec!["acid_value".to_string()];
+        let trend = trend_file::path_for(dir.path(), "P");
+        let mut t = trend_file::lock(&trend, &keys, &keys, wait).unwrap();
+        t.append(&[("lot", "L1".into())]).unwrap();
+        t.sync().unwrap();
+        let chain = t.trend.head.clone();
+        drop(t);
+        // Trend rows and no heads file: a register from before issue #13, whose new log
+        // would take the earlier layout; with a heads file it takes the current one.
+        assert_eq!(new_header(dir.path()).unwrap(), COLUMNS_V1.join(","));
+        let heads = crate::record::heads::path(dir.path());
+        std::fs::write(
+            heads,
+            format!("{}\n", crate::record::heads::COLUMNS.join(",")),
+        )
+        .unwrap();
+        let mut log = Log::lock(dir.path(), wait).unwrap();
+        log.append(&entry("")).unwrap();
+        assert_eq!(log.next_number("FW-"), "FW-000001");
+        log.append(&entry("FW-000001")).unwrap();
+        assert_eq!(log.next_number("FW-"), "FW-000002");
+        assert_eq!(log.entries(), vec![entry("FW-000001")]);
+        drop(log);
+        let text = std::fs::read_to_string(path(dir.path())).unwrap();
+        let t = trend_file::parse_chained(&path(dir.path()), &text, true, &header_ok).0;
+        let a = anchors(&t);
+        assert_eq!(a.len(), 1);
+        assert_eq!(
+            (a[0].row, a[0].chain.as_str(), a[0].line),
+            (1, chain.as_str(), 3)
+        );
     }
 }

@@ -289,73 +289,121 @@ fn last_cell(cells: &[String]) -> String {
     cells.last().cloned().unwrap_or_default()
 }
 
-/// The row number (`seq`) and chain value of the latest row of `lot` in the trend file `path`,
-/// found by reading the file backwards in 1 MiB blocks, so that the rows just appended are
-/// found at once however long the file. Only complete lines count (a torn tail is skipped).
+/// The row number (`seq`) and chain value of the latest row of `lot` in the trend file `path`
+/// (see [`ReverseIndex`]).
 pub fn latest_row_of(path: &Path, lot: &str) -> Result<Option<(usize, String)>> {
-    const BLOCK: u64 = 1 << 20;
-    let mut f = match File::open(path) {
-        Ok(f) => f,
-        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
-        Err(e) => return Err(Error::io(path, "reading", e)),
-    };
-    let len = f
-        .metadata()
-        .map_err(|e| Error::io(path, "reading", e))?
-        .len();
-    let mut end = len;
-    let mut carry: Vec<u8> = Vec::new();
-    let mut first = true; // the file's last line may be incomplete
-    while end > 0 {
-        let start = end.saturating_sub(BLOCK);
-        let mut buf = vec![0u8; (end - start) as usize];
-        f.seek(SeekFrom::Start(start))
-            .and_then(|_| f.read_exact(&mut buf))
-            .map_err(|e| Error::io(path, "reading", e))?;
-        buf.extend_from_slice(&carry);
-        let body_from = if start == 0 {
-            0
-        } else {
-            match memchr::memchr(b'\n', &buf) {
-                Some(i) => i + 1,
-                None => {
-                    carry = buf;
-                    end = start;
-                    continue;
+    ReverseIndex::new(path).find(lot)
+}
+
+/// Finds the latest row of lots in a trend file by reading it backwards in 1 MiB blocks, so
+/// that rows just appended are found at once however long the file, and remembers every lot
+/// passed on the way, so that the lots of one release cost one pass over their rows. Only
+/// complete lines count (a torn tail is skipped). Rows appended after a block was read are not
+/// seen: the row found is then still a row of the lot with its chain value.
+pub struct ReverseIndex {
+    path: PathBuf,
+    file: Option<File>,
+    /// Bytes before this offset are still to be read.
+    end: u64,
+    /// The start of a line cut by the last block read (it continues after `end`).
+    carry: Vec<u8>,
+    /// True until the file's last line has been looked at.
+    last_line: bool,
+    seen: HashMap<String, (usize, String)>,
+}
+
+/// Lots a [`ReverseIndex`] remembers at most; beyond, it searches afresh for each.
+const REMEMBER: usize = 200_000;
+
+impl ReverseIndex {
+    /// An index of the trend file `path` (read lazily; a missing file finds nothing).
+    pub fn new(path: &Path) -> ReverseIndex {
+        ReverseIndex {
+            path: path.to_path_buf(),
+            file: None,
+            end: u64::MAX,
+            carry: Vec::new(),
+            last_line: true,
+            seen: HashMap::new(),
+        }
+    }
+
+    /// The row number (`seq`) and chain value of the latest row of `lot`, if any.
+    pub fn find(&mut self, lot: &str) -> Result<Option<(usize, String)>> {
+        if let Some(hit) = self.seen.get(lot) {
+            return Ok(Some(hit.clone()));
+        }
+        if self.seen.len() >= REMEMBER {
+            return ReverseIndex::new(&self.path).find(lot);
+        }
+        if self.end == u64::MAX {
+            match File::open(&self.path) {
+                Ok(f) => {
+                    self.end = f
+                        .metadata()
+                        .map_err(|e| Error::io(&self.path, "reading", e))?
+                        .len();
+                    self.file = Some(f);
                 }
-            }
-        };
-        let lines: Vec<&[u8]> = buf[body_from..].split_inclusive(|&b| b == b'\n').collect();
-        for (k, line) in lines.iter().enumerate().rev() {
-            let complete = line.ends_with(b"\n");
-            if first && !complete {
-                first = false;
-                continue;
-            }
-            first = false;
-            if start == 0 && k == 0 {
-                break; // the header
-            }
-            let line = line.strip_suffix(b"\n").unwrap_or(line);
-            // seq and recorded_at never hold a comma: the lot is the third field; the chain
-            // value (hex) is the last.
-            let mut fields = line.split(|&b| b == b',');
-            let seq = fields.next();
-            if fields.nth(1) != Some(lot.as_bytes()) {
-                continue;
-            }
-            let chain = line.rsplit(|&b| b == b',').next().unwrap_or_default();
-            let seq = seq
-                .and_then(|s| std::str::from_utf8(s).ok())
-                .and_then(|s| s.parse().ok());
-            if let (Some(seq), Ok(chain)) = (seq, std::str::from_utf8(chain)) {
-                return Ok(Some((seq, chain.to_string())));
+                Err(e) if e.kind() == std::io::ErrorKind::NotFound => self.end = 0,
+                Err(e) => return Err(Error::io(&self.path, "reading", e)),
             }
         }
-        carry = buf[..body_from].to_vec();
-        end = start;
+        const BLOCK: u64 = 1 << 20;
+        while self.end > 0 {
+            let Some(f) = self.file.as_mut() else { break };
+            let start = self.end.saturating_sub(BLOCK);
+            let mut buf = vec![0u8; (self.end - start) as usize];
+            f.seek(SeekFrom::Start(start))
+                .and_then(|_| f.read_exact(&mut buf))
+                .map_err(|e| Error::io(&self.path, "reading", e))?;
+            buf.extend_from_slice(&self.carry);
+            self.end = start;
+            let body_from = if start == 0 {
+                0
+            } else {
+                match memchr::memchr(b'\n', &buf) {
+                    Some(i) => i + 1,
+                    None => {
+                        self.carry = buf;
+                        continue;
+                    }
+                }
+            };
+            self.carry = buf[..body_from].to_vec();
+            let mut found = None;
+            let lines: Vec<&[u8]> = buf[body_from..].split_inclusive(|&b| b == b'\n').collect();
+            for (k, line) in lines.iter().enumerate().rev() {
+                let last_line = std::mem::replace(&mut self.last_line, false);
+                if (last_line && !line.ends_with(b"\n")) || (start == 0 && k == 0) {
+                    continue; // a torn tail, or the header
+                }
+                if let Some((row_lot, seq, chain)) = row_anchor(line) {
+                    if row_lot == lot && found.is_none() {
+                        found = Some((seq, chain.clone()));
+                    }
+                    if self.seen.len() < REMEMBER && !self.seen.contains_key(row_lot) {
+                        self.seen.insert(row_lot.to_string(), (seq, chain));
+                    }
+                }
+            }
+            if found.is_some() {
+                return Ok(found);
+            }
+        }
+        Ok(None)
     }
-    Ok(None)
+}
+
+/// The lot, row number and chain value of one trend-file line. `seq` and `recorded_at` never
+/// hold a comma: the lot is the third field; the chain value (hex) is the last.
+fn row_anchor(line: &[u8]) -> Option<(&str, usize, String)> {
+    let line = line.strip_suffix(b"\n").unwrap_or(line);
+    let mut fields = line.split(|&b| b == b',');
+    let seq = std::str::from_utf8(fields.next()?).ok()?.parse().ok()?;
+    let lot = std::str::from_utf8(fields.nth(1)?).ok()?;
+    let chain = std::str::from_utf8(line.rsplit(|&b| b == b',').next()?).ok()?;
+    Some((lot, seq, chain.to_string()))
 }
 
 #[cfg(test)]
@@ -415,6 +463,23 @@ mod tests {
             Ok(_) => panic!("a shortened file must be refused"),
         };
         assert!(h.contains("row 3 is missing"), "{h}");
+    }
+
+    #[test]
+    fn the_reverse_index_remembers_the_lots_it_passed() {
+        let dir = tempfile::tempdir().unwrap();
+        let t = rows(dir.path(), 5);
+        let chain = |k: usize| t.rows[k - 1].cells.last().unwrap().clone();
+        let mut idx = ReverseIndex::new(&t.path);
+        assert_eq!(idx.find("L2").unwrap(), Some((2, chain(2))));
+        assert_eq!(
+            idx.seen.len(),
+            5,
+            "every lot of the block read is remembered"
+        );
+        assert_eq!(idx.find("L4").unwrap(), Some((4, chain(4))));
+        assert_eq!(idx.find("L1").unwrap(), Some((1, chain(1))));
+        assert_eq!(idx.find("L9").unwrap(), None);
     }
 
     #[test]

@@ -122,7 +122,13 @@ pub fn check_register(register_dir: &Path, certificates: &Path) -> Result<Vec<Fi
                     };
                     if problem.is_some() {
                         check.problem = problem;
-                        check.line = Some(i + 2);
+                        // An upgraded log's layout row (line 2) is not an entry.
+                        let layout = usize::from(
+                            crate::record::certlog::layout(register_dir)?
+                                == Some(crate::record::certlog::Layout::Current)
+                                && crate::record::upgrade::is_upgraded(&log)?,
+                        );
+                        check.line = Some(i + 2 + layout);
                         check.lot = Some(e.lot.clone());
                         break;
                     }

@@ -112,6 +112,24 @@ pub fn upgrade(register: &Path, certificates: &Path, now: &str, wait: Wait) -> R
     Ok(done)
 }
 
+/// True when the log at `log_path` starts with a layout row (it was upgraded). Reads only the
+/// first two lines.
+pub fn is_upgraded(log_path: &Path) -> Result<bool> {
+    use std::io::BufRead;
+    let f = std::fs::File::open(log_path).map_err(|e| Error::io(log_path, "reading", e))?;
+    let mut lines = std::io::BufReader::new(f).split(b'\n');
+    let (Some(Ok(header)), Some(Ok(first))) = (lines.next(), lines.next()) else {
+        return Ok(false);
+    };
+    let cols = trend_file::split_line(&String::from_utf8_lossy(&header));
+    let cells = trend_file::split_line(&String::from_utf8_lossy(&first));
+    Ok(cols
+        .iter()
+        .position(|c| c == "number")
+        .and_then(|i| cells.get(i))
+        .is_some_and(|n| n.is_empty()))
+}
+
 /// Step 2 of [`upgrade`]: keeps the earlier log as [`PREDECESSOR`] and writes the current one.
 fn upgrade_log(register: &Path, now: &str, wait: Wait) -> Result<(PathBuf, String, usize)> {
     let log_path = certlog::path(register);
