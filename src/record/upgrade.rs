@@ -318,4 +318,60 @@ mod tests {
             chained_text(&heads::COLUMNS, &rows)
         );
     }
+
+    /// Issue #13: an upgraded log checks back to its predecessor, naming its SHA-256, and a
+    /// carried row that differs from the predecessor's is named with its line.
+    #[test]
+    fn an_upgraded_log_checks_back_to_its_predecessor_issue_13() {
+        use crate::record::certlog::{Entry, Log};
+        let dir = tempfile::tempdir().unwrap();
+        let wait = Wait {
+            timeout: Duration::from_secs(5),
+        };
+        let keys = vec!["acid_value".to_string()];
+        let trend = trend_file::path_for(dir.path(), "P");
+        let mut t = trend_file::lock(&trend, &keys, &keys, wait).unwrap();
+        t.append(&[("lot", "L1".into())]).unwrap();
+        t.sync().unwrap();
+        drop(t);
+        let mut log = Log::lock(dir.path(), wait).unwrap(); // earlier layout: no heads yet
+        for n in ["FW-000001", "FW-000002"] {
+            log.append(&Entry {
+                number: n.into(),
+                issued_at: "2026-10-01T10:00:00Z".into(),
+                lot: "L1".into(),
+                product: "P".into(),
+                customer: String::new(),
+                customer_name: "A, B & \"C\"".into(),
+                file: format!("L1_{n}.pdf"),
+                sha256: "ab".into(),
+                supersedes: String::new(),
+                reason: String::new(),
+            })
+            .unwrap();
+        }
+        drop(log);
+        let old = std::fs::read(certlog::path(dir.path())).unwrap();
+        let (_, sha, rows) = upgrade_log(dir.path(), "2026-10-02T08:00:00Z", wait).unwrap();
+        assert_eq!(rows, 2);
+        assert_eq!(std::fs::read(dir.path().join(PREDECESSOR)).unwrap(), old);
+        let p = certlog::path(dir.path());
+        assert!(is_upgraded(&p).unwrap());
+        let text = std::fs::read_to_string(&p).unwrap();
+        let (mut log, d) = trend_file::parse_chained(&p, &text, true, &certlog::header_ok);
+        assert!(d.is_none(), "{d:?}");
+        let (pred, problem) = check_predecessor(&p, &log).unwrap().unwrap();
+        assert_eq!(problem, None);
+        assert!(pred.note.unwrap().contains(&format!("SHA-256 {sha}")));
+        assert_eq!(certlog::entries(dir.path()).unwrap().len(), 2);
+        let col = log.col("customer_name").unwrap();
+        log.rows[2].cells[col] = "Someone else".into();
+        let (_, problem) = check_predecessor(&p, &log).unwrap().unwrap();
+        let (line, text) = problem.unwrap();
+        assert_eq!(line, 4);
+        assert!(
+            text.contains("should carry line 3 of the predecessor"),
+            "{text}"
+        );
+    }
 }
