@@ -63,6 +63,13 @@ pub enum Command {
     Specs(cmd::specs::Args),
     /// Check that the record is intact (trend files, hash chains, certificate log and PDFs),
     /// quarantine a torn last line, or identify certificate PDFs as genuine, altered or unknown.
+    ///
+    /// Every trend file is also checked against the anchors kept outside it: each row of
+    /// register/heads.csv (row count and last chain value after every append) and each
+    /// certificate's trend row and chain value in the certificate log, so that rows deleted
+    /// from the end are named. A register written before heads were kept passes with a note
+    /// that `resinlot upgrade` adds them; an upgraded certificate log is checked back to the
+    /// SHA-256 of the log it replaced.
     #[command(after_help = EXIT_STATUS)]
     Verify(cmd::verify::Args),
     /// Bring a register written by an earlier version of resinlot to the current layout: start
