@@ -63,8 +63,26 @@ pub enum Command {
     Specs(cmd::specs::Args),
     /// Check that the record is intact (trend files, hash chains, certificate log and PDFs),
     /// quarantine a torn last line, or identify certificate PDFs as genuine, altered or unknown.
+    ///
+    /// Every trend file is also checked against the anchors kept outside it: each row of
+    /// register/heads.csv (row count and last chain value after every append) and each
+    /// certificate's trend row and chain value in the certificate log, so that rows deleted
+    /// from the end are named. A register written before heads were kept passes with a note
+    /// that `resinlot upgrade` adds them; an upgraded certificate log is checked back to the
+    /// SHA-256 of the log it replaced.
     #[command(after_help = EXIT_STATUS)]
     Verify(cmd::verify::Args),
+    /// Bring a register written by an earlier version of resinlot to the current layout: start
+    /// the heads file, and write the certificate log in the current layout beside the old one.
+    ///
+    /// The record must verify first. No old row is rewritten: the old certificate log is kept
+    /// byte for byte as register/certificates.csv.v1, and the new log's first row records its
+    /// SHA-256, row count and last chain value, followed by its rows unchanged, so `verify`
+    /// checks the new log back to the old one. The heads file records every trend file's row
+    /// count and last chain value as they are now. Running it again completes an interrupted
+    /// upgrade, or says there is nothing to do.
+    #[command(after_help = EXIT_STATUS)]
+    Upgrade(cmd::upgrade::Args),
     /// Fit a cook's in-process acid values to step-growth kinetics (order 2, 2.5 or 3), predict
     /// when the target is reached with a 95 % prediction interval, and optionally chart it; with
     /// --arrhenius, fit the activation energy over several cooks.

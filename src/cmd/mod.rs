@@ -15,6 +15,7 @@ pub mod lookup;
 pub mod release;
 pub mod specs;
 pub mod trend;
+pub mod upgrade;
 pub mod verify;
 
 use cli::{Cli, Command};
@@ -51,6 +52,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Find(args) => find::run(&args),
         Command::Specs(args) => specs::run(&args),
         Command::Verify(args) => verify::run(&args),
+        Command::Upgrade(args) => upgrade::run(&args),
         Command::Cook(args) => cook::run(&args),
         Command::Adjust(args) => adjust::run(&args),
     }

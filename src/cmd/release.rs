@@ -427,8 +427,10 @@ fn record<'d>(
     let plans = append::plan(&batch, &trends, specs, &elsewhere)?;
     append::check_time_order(&trends, decisions, &plans, now)?;
     append::check_rows_read_back(&trends, decisions, &plans, approver, now)?;
+    // The heads are checked before anything is staged, so a refusal leaves no part behind.
+    let heads = append::open_heads(&locks, &plans)?;
     before_write(&plans, &trends)?;
-    let recorded = append::commit(&mut locks, decisions, &plans, approver, now)?;
+    let recorded = append::commit(&mut locks, heads, decisions, &plans, approver, now)?;
     Ok((recorded, locks))
 }
 

@@ -24,8 +24,10 @@ pub struct Args {
     pub certificates_folder: CertificatesFolder,
     /// Move a torn last line (left by an interrupted write) to a side file beside the trend
     /// file, never deleting it, or restore the line end of a complete last row that lacks
-    /// one; in the certificates folder, remove stray temporary `.part` files and log a
-    /// certificate file found without its log entry as void. Each repair is logged in
+    /// one, or record the head of a trend file whose last rows were appended without one (a
+    /// release interrupted before it recorded them in heads.csv); in the certificates folder,
+    /// remove stray temporary `.part` files and log a certificate file found without its log
+    /// entry as void. Each repair is logged in
     /// quarantine.log. Safe to run again after an interruption.
     #[arg(long)]
     pub quarantine: bool,
@@ -46,20 +48,24 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let mut out = String::new();
     if args.quarantine {
         let now = crate::support::clock::now()?.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
-        for c in checks.iter().filter(|c| c.repairable()) {
-            match integrity::quarantine(&c.path, c.offset.unwrap_or(0), &now)? {
-                Repair::Quarantined(side) => out.push_str(&format!(
-                    "{}: moved the torn last line to {} (logged in quarantine.log)\n",
-                    c.path.display(),
-                    side.display()
-                )),
-                Repair::NewlineRestored => out.push_str(&format!(
-                    "{}: the last row was complete; restored its missing line end (logged in quarantine.log)\n",
-                    c.path.display()
-                )),
+        // A repair can uncover the next (a torn tail hides rows that have no head yet), so
+        // repair and check again, a few rounds at most.
+        for _ in 0..3 {
+            let fixable: Vec<&integrity::FileCheck> =
+                checks.iter().filter(|c| c.repairable()).collect();
+            if fixable.is_empty() {
+                break;
             }
+            for c in fixable {
+                let repair = if c.heads_behind {
+                    integrity::record_head(&c.path, &now)?
+                } else {
+                    integrity::quarantine(&c.path, c.offset.unwrap_or(0), &now)?
+                };
+                out.push_str(&repair_text(&c.path, &repair));
+            }
+            checks = integrity::check_register(&args.register, &args.certificates_folder)?;
         }
-        checks = integrity::check_register(&args.register, &args.certificates_folder)?;
         let wait = Wait {
             timeout: Duration::from_secs(args.locking.lock_timeout),
         };
@@ -77,19 +83,25 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         )? + "\n";
     } else {
         for c in &checks {
-            match &c.problem {
-                None => out.push_str(&format!("{}: {} rows, intact\n", c.path.display(), c.rows)),
-                Some(p) => out.push_str(&format!(
-                    "{}:{} (byte {}{}): BROKEN: {p}{}\n",
+            match (&c.problem, &c.note) {
+                (None, Some(note)) => out.push_str(&format!("{}: {note}\n", c.path.display())),
+                (None, None) => {
+                    out.push_str(&format!("{}: {} rows, intact\n", c.path.display(), c.rows))
+                }
+                (Some(p), _) => out.push_str(&format!(
+                    "{}:{} ({}{}): BROKEN: {p}{}\n",
                     c.path.display(),
                     c.line.unwrap_or(0),
-                    c.offset.unwrap_or(0),
+                    c.offset
+                        .map_or("anchor check".to_string(), |o| format!("byte {o}")),
                     c.lot
                         .as_ref()
                         .map(|l| format!(", lot '{l}'"))
                         .unwrap_or_default(),
                     if c.torn_tail {
                         " (run with --quarantine to move it aside)"
+                    } else if c.heads_behind {
+                        " (run with --quarantine to record their head)"
                     } else if c.newline_missing {
                         " (run with --quarantine to restore the line end)"
                     } else {
@@ -118,6 +130,25 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     } else {
         Outcome::FellShort
     })
+}
+
+/// The line `verify --quarantine` prints for one repair of `path`.
+fn repair_text(path: &std::path::Path, repair: &Repair) -> String {
+    match repair {
+        Repair::Quarantined(side) => format!(
+            "{}: moved the torn last line to {} (logged in quarantine.log)\n",
+            path.display(),
+            side.display()
+        ),
+        Repair::NewlineRestored => format!(
+            "{}: the last row was complete; restored its missing line end (logged in quarantine.log)\n",
+            path.display()
+        ),
+        Repair::HeadRecorded { rows } => format!(
+            "{}: rows had been appended without their head; recorded its head at {rows} rows in heads.csv (logged in quarantine.log)\n",
+            path.display()
+        ),
+    }
 }
 
 fn certificates(args: &Args) -> anyhow::Result<Outcome> {

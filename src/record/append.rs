@@ -11,6 +11,7 @@ use serde::Serialize;
 use crate::error::{Error, Result};
 use crate::lot::evaluate::LotDecision;
 use crate::lot::note::LotNote;
+use crate::record::heads::HeadsLog;
 use crate::record::trend_file::{self, Locked, Trend, Wait};
 use crate::spec::keys;
 use crate::spec::SpecSet;
@@ -396,10 +397,31 @@ pub fn check_rows_read_back(
     Ok(())
 }
 
+/// Opens the heads file for a batch that writes (issue #13, item 4): a trend file that
+/// disagrees with its recorded head is refused here, before anything of the batch (rows or
+/// staged certificates) is written. `None` when nothing is written or for a register kept
+/// in the earlier layout.
+pub fn open_heads(locks: &BTreeMap<&str, Locked>, plans: &[Plan]) -> Result<Option<HeadsLog>> {
+    let register = locks
+        .values()
+        .next()
+        .and_then(|l| l.trend.path.parent())
+        .map(Path::to_path_buf);
+    match register {
+        Some(r) if plans.iter().any(Plan::writes) => {
+            HeadsLog::open(&r, locks.values().map(|l| &l.trend))
+        }
+        _ => Ok(None),
+    }
+}
+
 /// Appends the row of every lot whose plan writes, under the locks taken by
-/// [`lock_products`], then syncs every file. Returns what happened to each lot.
+/// [`lock_products`], then syncs every file and records the new head of each file written in
+/// `heads` (opened by [`open_heads`] under its lock, while the trend files are still locked).
+/// Returns what happened to each lot.
 pub fn commit(
     locks: &mut BTreeMap<&str, Locked>,
+    mut heads: Option<HeadsLog>,
     decisions: &[LotDecision],
     plans: &[Plan],
     approver: &str,
@@ -434,6 +456,19 @@ pub fn commit(
     }
     for locked in locks.values_mut() {
         locked.sync()?;
+    }
+    if let Some(heads) = &mut heads {
+        let written: HashSet<&str> = decisions
+            .iter()
+            .zip(plans)
+            .filter(|(_, p)| p.writes())
+            .map(|(d, _)| d.product.as_str())
+            .collect();
+        let trends = locks
+            .iter()
+            .filter(|(p, _)| written.contains(*p))
+            .map(|(_, l)| &l.trend);
+        heads.record(trends, now)?;
     }
     Ok(out)
 }
@@ -532,8 +567,10 @@ decimals = 0
     fn record(register: &Path, specs: &SpecSet, decisions: &[LotDecision]) -> Vec<Recorded> {
         let plans = plan_in(register, specs, decisions, None, &HashMap::new()).unwrap();
         let mut locks = lock_products(register, specs, decisions, wait()).unwrap();
+        let heads = open_heads(&locks, &plans).unwrap();
         commit(
             &mut locks,
+            heads,
             decisions,
             &plans,
             "A. Tester, QC",
@@ -596,7 +633,8 @@ decimals = 0
         assert!(cells.contains(&("supersedes".into(), "2".into())));
         assert!(cells.contains(&("reason".into(), "re-titrated".into())));
         let mut locks = lock_products(dir.path(), &specs, &changed, wait()).unwrap();
-        let done = commit(&mut locks, &changed, &plans, "A. Tester, QC", "now").unwrap();
+        let heads = open_heads(&locks, &plans).unwrap();
+        let done = commit(&mut locks, heads, &changed, &plans, "A. Tester, QC", "now").unwrap();
         assert_eq!(
             done,
             [Recorded::Retest {

@@ -1,4 +1,12 @@
 //! The certificate issue log: every certificate issued, hash-chained like the trend files.
+//!
+//! Each row also records the trend-file row it certifies (`trend_row`, `trend_chain`: the
+//! lot's latest row when the certificate was issued), an anchor outside the trend file that
+//! `verify` checks (issue #13, item 4). A log written before those columns existed
+//! ([`COLUMNS_V1`]) is read and appended to as it is until `resinlot upgrade` writes the current
+//! layout beside it: the upgraded log starts with a *layout row* (empty `number`) naming the
+//! predecessor's file, SHA-256, row count (`trend_row`) and last chain value (`trend_chain`),
+//! followed by the predecessor's rows carried over unchanged (with empty anchors).
 
 use std::path::{Path, PathBuf};
 
@@ -6,7 +14,25 @@ use crate::error::Result;
 use crate::record::trend_file::{self, Locked, Trend, Wait};
 
 /// Columns of the issue log.
-pub const COLUMNS: [&str; 12] = [
+pub const COLUMNS: [&str; 14] = [
+    "seq",
+    "issued_at",
+    "number",
+    "lot",
+    "product",
+    "customer",
+    "customer_name",
+    "file",
+    "sha256",
+    "supersedes",
+    "reason",
+    "trend_row",
+    "trend_chain",
+    "chain",
+];
+
+/// Columns of the issue log as written before issue #13 (read and appended to as they are).
+pub const COLUMNS_V1: [&str; 12] = [
     "seq",
     "issued_at",
     "number",
@@ -26,8 +52,80 @@ pub fn path(register: &Path) -> PathBuf {
     register.join("certificates.csv")
 }
 
-fn header_ok(cols: &[String]) -> bool {
-    cols == COLUMNS
+/// True when `cols` is the log's header, in the current or the earlier layout.
+pub fn header_ok(cols: &[String]) -> bool {
+    cols == COLUMNS || cols == COLUMNS_V1
+}
+
+/// The layout of a certificate log.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Layout {
+    /// Written before issue #13: no trend anchors ([`COLUMNS_V1`]).
+    V1,
+    /// The current layout ([`COLUMNS`]); anything else is also reported here and left to
+    /// `verify`, which names a header it does not know.
+    Current,
+}
+
+/// The layout of the register's log, `None` when there is none (or it is still empty).
+pub fn layout(register: &Path) -> Result<Option<Layout>> {
+    let p = path(register);
+    let bytes = match std::fs::read(&p) {
+        Ok(b) => b,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
+        Err(e) => return Err(crate::error::Error::io(&p, "reading", e)),
+    };
+    let first = bytes.split(|&b| b == b'\n').next().unwrap_or_default();
+    if first.is_empty() {
+        return Ok(None);
+    }
+    let cols = trend_file::split_line(&String::from_utf8_lossy(first));
+    Ok(Some(if cols == COLUMNS_V1 {
+        Layout::V1
+    } else {
+        Layout::Current
+    }))
+}
+
+/// True for a layout row of an upgraded log (it names the predecessor, not a certificate).
+pub fn is_layout_row(t: &Trend, row: &trend_file::Row) -> bool {
+    t.cell(row, "number").is_empty()
+}
+
+/// A certificate's anchor in its trend file, as the log records it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Anchor {
+    /// Line of the log row.
+    pub line: usize,
+    /// Certificate number.
+    pub number: String,
+    /// Lot id.
+    pub lot: String,
+    /// Product code (the trend file is `<product>.csv`).
+    pub product: String,
+    /// Row number (`seq`) of the certified row in the trend file.
+    pub row: usize,
+    /// Chain value of that row.
+    pub chain: String,
+}
+
+/// The anchors of a parsed log: every certificate row that records one (rows from before
+/// issue #13 and layout rows record none).
+pub fn anchors(t: &Trend) -> Vec<Anchor> {
+    t.rows
+        .iter()
+        .filter(|r| !is_layout_row(t, r))
+        .filter_map(|r| {
+            Some(Anchor {
+                line: r.line,
+                number: t.cell(r, "number").to_string(),
+                lot: t.cell(r, "lot").to_string(),
+                product: t.cell(r, "product").to_string(),
+                row: t.cell(r, "trend_row").parse().ok()?,
+                chain: t.cell(r, "trend_chain").to_string(),
+            })
+        })
+        .collect()
 }
 
 /// One issued certificate.
@@ -82,7 +180,11 @@ pub fn entries(register: &Path) -> Result<Vec<Entry>> {
     if let Some(d) = damage {
         return Err(trend_file::damage_error(&p, &d));
     }
-    Ok(t.rows.iter().map(|r| entry(&t, r)).collect())
+    Ok(t.rows
+        .iter()
+        .filter(|r| !is_layout_row(&t, r))
+        .map(|r| entry(&t, r))
+        .collect())
 }
 
 /// Checks the log's structure and chain; returns the damage if any.
@@ -98,21 +200,29 @@ pub fn check(register: &Path) -> Result<Option<trend_file::Damage>> {
 /// The locked log, open for appending.
 pub struct Log {
     locked: Locked,
+    /// Where each product's lots were found in its trend file (for the anchors).
+    anchors: std::collections::HashMap<String, crate::record::heads::ReverseIndex>,
 }
 
 impl Log {
-    /// Locks the log (creating it when missing).
+    /// Locks the log (creating it when missing, in the earlier layout only in a register
+    /// written before issue #13 that has not been upgraded).
     pub fn lock(register: &Path, wait: Wait) -> Result<Log> {
-        let header = COLUMNS.join(",");
+        let header = new_header(register)?;
         Ok(Log {
             locked: trend_file::lock_with(&path(register), &header, &[], wait, &header_ok)?,
+            anchors: Default::default(),
         })
     }
 
     /// Entries as read under the lock.
     pub fn entries(&self) -> Vec<Entry> {
         let t = &self.locked.trend;
-        t.rows.iter().map(|r| entry(t, r)).collect()
+        t.rows
+            .iter()
+            .filter(|r| !is_layout_row(t, r))
+            .map(|r| entry(t, r))
+            .collect()
     }
 
     /// The next certificate number: `prefix` followed by the six-digit sequence.
@@ -122,12 +232,22 @@ impl Log {
 
     /// The number `k` places after the next one (for numbering a batch before appending it).
     pub fn number_after(&self, prefix: &str, k: usize) -> String {
-        format!("{prefix}{:06}", self.locked.trend.rows.len() + 1 + k)
+        format!("{prefix}{:06}", self.certificate_rows() + 1 + k)
     }
 
-    /// Appends an entry and syncs it to disk.
+    /// Rows of the log that are certificates (not layout rows).
+    fn certificate_rows(&self) -> usize {
+        let t = &self.locked.trend;
+        t.rows.iter().filter(|r| !is_layout_row(t, r)).count()
+    }
+
+    /// Appends an entry and syncs it to disk; the lot's latest row in its trend file is
+    /// recorded as the certificate's anchor (a log in the earlier layout has no column for it).
     pub fn append(&mut self, e: &Entry) -> Result<()> {
+        let (trend_row, trend_chain) = self.anchor(&e.product, &e.lot)?;
         self.locked.append(&[
+            ("trend_row", trend_row),
+            ("trend_chain", trend_chain),
             ("issued_at", e.issued_at.clone()),
             ("number", e.number.clone()),
             ("lot", e.lot.clone()),
@@ -141,6 +261,36 @@ impl Log {
         ])?;
         self.locked.sync()
     }
+
+    /// The row number and chain value of the latest row of `lot` in `product`'s trend file
+    /// beside the log (empty when it is not recorded there).
+    fn anchor(&mut self, product: &str, lot: &str) -> Result<(String, String)> {
+        if self.locked.trend.col("trend_row").is_none() {
+            return Ok((String::new(), String::new()));
+        }
+        let register = self.locked.trend.path.parent().unwrap_or(Path::new("."));
+        let trend = trend_file::path_for(register, product);
+        let index = self
+            .anchors
+            .entry(product.to_string())
+            .or_insert_with(|| crate::record::heads::ReverseIndex::new(&trend));
+        Ok(match index.find(lot)? {
+            Some((row, chain)) => (row.to_string(), chain),
+            None => (String::new(), String::new()),
+        })
+    }
+}
+
+/// The header a new log gets: the current layout, or the earlier one in a register written
+/// before issue #13 that has not been upgraded (so that it stays in one layout).
+fn new_header(register: &Path) -> Result<String> {
+    Ok(
+        if crate::record::heads::state(register)? == crate::record::heads::State::Legacy {
+            COLUMNS_V1.join(",")
+        } else {
+            COLUMNS.join(",")
+        },
+    )
 }
 
 impl Log {
@@ -162,7 +312,7 @@ impl Log {
         t.rows
             .iter()
             .filter_map(|r| number_seq(t.cell(r, "number"), prefix))
-            .fold(t.rows.len() as u64, u64::max)
+            .fold(self.certificate_rows() as u64, u64::max)
     }
 }
 
@@ -218,19 +368,7 @@ mod tests {
         let mut log = Log::lock(dir.path(), wait).unwrap();
         assert!(log.is_new());
         assert_eq!(log.highest_number("FW-"), 0);
-        log.append(&Entry {
-            number: "FW-000007".into(),
-            issued_at: "2026-10-01T10:00:00Z".into(),
-            lot: "L1".into(),
-            product: "P".into(),
-            customer: String::new(),
-            customer_name: String::new(),
-            file: "L1_FW-000007.pdf".into(),
-            sha256: "ab".into(),
-            supersedes: String::new(),
-            reason: String::new(),
-        })
-        .unwrap();
+        log.append(&entry("FW-000007")).unwrap();
         assert!(!log.is_new());
         assert_eq!(log.highest_number("FW-"), 7);
         assert_eq!(log.highest_number("XY-"), 1);
@@ -239,5 +377,81 @@ mod tests {
         assert_eq!(number_seq("FW-000012", "FW-"), Some(12));
         assert_eq!(number_seq("FW-", "FW-"), None);
         assert_eq!(number_seq("FW-12a", "FW-"), None);
+    }
+
+    fn entry(number: &str) -> Entry {
+        Entry {
+            number: number.into(),
+            issued_at: "2026-10-01T10:00:00Z".into(),
+            lot: "L1".into(),
+            product: "P".into(),
+            customer: String::new(),
+            customer_name: String::new(),
+            file: format!("L1_{number}.pdf"),
+            sha256: "ab".into(),
+            supersedes: String::new(),
+            reason: String::new(),
+        }
+    }
+
+    /// Issue #13: a log in the earlier layout is appended to as it is, without anchors.
+    #[test]
+    fn a_log_in_the_earlier_layout_stays_in_it_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let wait = Wait {
+            timeout: Duration::from_secs(5),
+        };
+        std::fs::write(path(dir.path()), format!("{}\n", COLUMNS_V1.join(","))).unwrap();
+        assert_eq!(layout(dir.path()).unwrap(), Some(Layout::V1));
+        let mut log = Log::lock(dir.path(), wait).unwrap();
+        log.append(&entry("FW-000001")).unwrap();
+        drop(log);
+        let text = std::fs::read_to_string(path(dir.path())).unwrap();
+        assert!(
+            text.starts_with(&format!("{}\n1,", COLUMNS_V1.join(","))),
+            "{text}"
+        );
+        assert_eq!(entries(dir.path()).unwrap(), vec![entry("FW-000001")]);
+    }
+
+    /// Issue #13: a layout row is not a certificate: not an entry, not counted in numbering;
+    /// a certificate row records the lot's latest trend row as its anchor.
+    #[test]
+    fn layout_rows_are_not_certificates_and_entries_are_anchored_issue_13() {
+        let dir = tempfile::tempdir().unwrap();
+        let wait = Wait {
+            timeout: Duration::from_secs(5),
+        };
+        let keys = vec!["acid_value".to_string()];
+        let trend = trend_file::path_for(dir.path(), "P");
+        let mut t = trend_file::lock(&trend, &keys, &keys, wait).unwrap();
+        t.append(&[("lot", "L1".into())]).unwrap();
+        t.sync().unwrap();
+        let chain = t.trend.head.clone();
+        drop(t);
+        // Trend rows and no heads file: a register from before issue #13, whose new log
+        // would take the earlier layout; with a heads file it takes the current one.
+        assert_eq!(new_header(dir.path()).unwrap(), COLUMNS_V1.join(","));
+        let heads = crate::record::heads::path(dir.path());
+        std::fs::write(
+            heads,
+            format!("{}\n", crate::record::heads::COLUMNS.join(",")),
+        )
+        .unwrap();
+        let mut log = Log::lock(dir.path(), wait).unwrap();
+        log.append(&entry("")).unwrap();
+        assert_eq!(log.next_number("FW-"), "FW-000001");
+        log.append(&entry("FW-000001")).unwrap();
+        assert_eq!(log.next_number("FW-"), "FW-000002");
+        assert_eq!(log.entries(), vec![entry("FW-000001")]);
+        drop(log);
+        let text = std::fs::read_to_string(path(dir.path())).unwrap();
+        let t = trend_file::parse_chained(&path(dir.path()), &text, true, &header_ok).0;
+        let a = anchors(&t);
+        assert_eq!(a.len(), 1);
+        assert_eq!(
+            (a[0].row, a[0].chain.as_str(), a[0].line),
+            (1, chain.as_str(), 3)
+        );
     }
 }

@@ -28,10 +28,18 @@ pub struct FileCheck {
     pub torn_tail: bool,
     /// True when the last row is complete but lacks its line feed (quarantine restores it).
     pub newline_missing: bool,
+    /// What `verify` says of a file that is not simply "N rows, intact" (a register written
+    /// before heads were kept, the predecessor of an upgraded log).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub note: Option<String>,
+    /// True when the trend file only grew past its latest head (a release interrupted between
+    /// appending its rows and recording their head): quarantine records the head.
+    pub heads_behind: bool,
 }
 
 impl FileCheck {
-    fn from(path: &Path, rows: usize, d: Option<Damage>) -> FileCheck {
+    /// The check of `path` with `rows` verified rows and the damage found, if any.
+    pub(crate) fn from(path: &Path, rows: usize, d: Option<Damage>) -> FileCheck {
         FileCheck {
             path: path.to_path_buf(),
             rows,
@@ -41,13 +49,15 @@ impl FileCheck {
             lot: d.as_ref().and_then(|d| d.lot.clone()),
             torn_tail: d.as_ref().is_some_and(|d| d.torn_tail),
             newline_missing: d.as_ref().is_some_and(|d| d.newline_missing),
+            note: None,
+            heads_behind: false,
         }
     }
 
     /// True when `verify --quarantine` can repair the problem (a torn tail or a missing final
     /// line feed).
     pub fn repairable(&self) -> bool {
-        self.torn_tail || self.newline_missing
+        self.torn_tail || self.newline_missing || self.heads_behind
     }
 
     /// True when nothing is wrong.
@@ -64,18 +74,25 @@ pub fn file_sha256(path: &Path) -> Result<String> {
 
 /// True when `columns` is the certificate log's header.
 fn is_log_header(columns: &[String]) -> bool {
-    columns == crate::record::certlog::COLUMNS.as_slice()
+    crate::record::certlog::header_ok(columns)
 }
 
 /// Checks every trend file in `register`, the certificate log, and each logged certificate
 /// against the PDF in `certificates` (present, same SHA-256).
 pub fn check_register(register_dir: &Path, certificates: &Path) -> Result<Vec<FileCheck>> {
     let mut out = Vec::new();
+    let mut chains = Chains::new();
     for path in crate::record::query::trend_files(register_dir)? {
         // Bytes, not text: a file that is not UTF-8 is reported BROKEN at its line and the
         // other files are still checked (issue #13, item 18).
         let bytes = std::fs::read(&path).map_err(|e| Error::io(&path, "reading", e))?;
         let (t, d) = trend_file::parse_bytes(&path, &bytes, true, &trend_file::is_trend_header);
+        if d.is_none() {
+            chains.insert(
+                crate::record::heads::file_name(&path),
+                (out.len(), row_chains(&t)),
+            );
+        }
         out.push(FileCheck::from(&path, t.rows.len(), d));
     }
     let log = crate::record::certlog::path(register_dir);
@@ -105,7 +122,13 @@ pub fn check_register(register_dir: &Path, certificates: &Path) -> Result<Vec<Fi
                     };
                     if problem.is_some() {
                         check.problem = problem;
-                        check.line = Some(i + 2);
+                        // An upgraded log's layout row (line 2) is not an entry.
+                        let layout = usize::from(
+                            crate::record::certlog::layout(register_dir)?
+                                == Some(crate::record::certlog::Layout::Current)
+                                && crate::record::upgrade::is_upgraded(&log)?,
+                        );
+                        check.line = Some(i + 2 + layout);
                         check.lot = Some(e.lot.clone());
                         break;
                     }
@@ -114,12 +137,154 @@ pub fn check_register(register_dir: &Path, certificates: &Path) -> Result<Vec<Fi
             }
         }
     }
+    check_anchors(register_dir, &chains, &mut out)?;
     Ok(out)
+}
+
+/// The chain value of every row of each intact trend file, by file name, with the index of
+/// the file's check.
+type Chains = std::collections::HashMap<String, (usize, Vec<String>)>;
+
+fn row_chains(t: &trend_file::Trend) -> Vec<String> {
+    t.rows
+        .iter()
+        .map(|r| r.cells.last().cloned().unwrap_or_default())
+        .collect()
+}
+
+/// Records `problem` at `line` on check `c` unless it already has one.
+fn flag(c: &mut FileCheck, line: usize, lot: Option<String>, problem: String) {
+    if c.problem.is_none() {
+        c.problem = Some(problem);
+        c.line = Some(line);
+        c.offset = None;
+        c.lot = lot;
+    }
+}
+
+/// Cross-checks the trend files against the anchors kept outside them (issue #13, item 4):
+/// every row of the heads file must match the trend file it names (row count and last chain
+/// value), the latest head of each file must be its current end, and every certificate-log row
+/// with an anchor must find its row with that chain value. An upgraded log is checked back to
+/// its predecessor. A register written before heads were kept gets a note, not a fault.
+fn check_anchors(register: &Path, chains: &Chains, out: &mut Vec<FileCheck>) -> Result<()> {
+    use crate::record::heads::{self, State};
+    let heads_path = heads::path(register);
+    match heads::state(register)? {
+        State::Fresh => {}
+        State::Legacy => {
+            let mut c = FileCheck::from(&heads_path, 0, None);
+            c.note = Some(
+                "none: this register was written before heads were kept, and is checked without them; `resinlot upgrade` adds them".into(),
+            );
+            out.push(c);
+        }
+        State::Missing => {
+            let mut c = FileCheck::from(&heads_path, 0, None);
+            c.problem = Some(heads::lost(register).to_string());
+            out.push(c);
+        }
+        State::Kept => {
+            let bytes =
+                std::fs::read(&heads_path).map_err(|e| Error::io(&heads_path, "reading", e))?;
+            let (t, d) =
+                trend_file::parse_bytes(&heads_path, &bytes, true, &heads::is_heads_header);
+            let mut c = FileCheck::from(&heads_path, t.rows.len(), d);
+            if c.ok() {
+                let all = heads::heads_of(&t);
+                for h in &all {
+                    let Some((i, ch)) = chains.get(&h.file) else {
+                        if !register.join(&h.file).exists() {
+                            flag(&mut c, h.line, None, format!("it records the head of {}, which is missing from the register (restore it from backup)", h.file));
+                        }
+                        continue;
+                    };
+                    let chain_at = |k: usize| ch.get(k.wrapping_sub(1)).cloned();
+                    if let Some(p) = heads::disagreement(&heads_path, h, ch.len(), &chain_at) {
+                        flag(&mut out[*i], ch.len().min(h.rows) + 2, None, p);
+                    }
+                }
+                let last = heads::latest(&all);
+                for (file, (i, ch)) in chains {
+                    let p = match last.get(file.as_str()) {
+                        Some(h) if ch.len() > h.rows => format!(
+                            "rows {} to {} have no head in {}: they were added after its line {} (an interrupted release, or rows added by hand)",
+                            h.rows + 1,
+                            ch.len(),
+                            heads_path.display(),
+                            h.line
+                        ),
+                        None if !ch.is_empty() => format!(
+                            "the file has {} rows but {} records no head for it",
+                            ch.len(),
+                            heads_path.display()
+                        ),
+                        _ => continue,
+                    };
+                    let line = last.get(file.as_str()).map_or(2, |h| h.rows + 2);
+                    let c = &mut out[*i];
+                    if c.ok() {
+                        c.heads_behind = true;
+                    }
+                    flag(c, line, None, p);
+                }
+            }
+            out.push(c);
+        }
+    }
+    let log_path = crate::record::certlog::path(register);
+    let Some(log_i) = out.iter().position(|c| c.path == log_path && c.ok()) else {
+        return Ok(());
+    };
+    let bytes = std::fs::read(&log_path).map_err(|e| Error::io(&log_path, "reading", e))?;
+    let (log, _) =
+        trend_file::parse_bytes(&log_path, &bytes, true, &crate::record::certlog::header_ok);
+    for a in crate::record::certlog::anchors(&log) {
+        let file = format!("{}.csv", a.product);
+        let Some((i, ch)) = chains.get(&file) else {
+            if !register.join(&file).exists() {
+                let p = format!(
+                    "certificate {} certifies row {} of {file}, which is missing from the register",
+                    a.number, a.row
+                );
+                flag(&mut out[log_i], a.line, Some(a.lot.clone()), p);
+            }
+            continue;
+        };
+        let at = format!("{}:{}", log_path.display(), a.line);
+        let p = match ch.get(a.row.wrapping_sub(1)) {
+            None => format!(
+                "row {} (lot '{}') is missing: certificate {} certifies it ({at}); the file has {} rows",
+                a.row,
+                a.lot,
+                a.number,
+                ch.len()
+            ),
+            Some(c) if *c != a.chain => format!(
+                "row {} differs from the row certificate {} certifies ({at}): rows were replaced",
+                a.row, a.number
+            ),
+            Some(_) => continue,
+        };
+        flag(&mut out[*i], a.row + 1, Some(a.lot.clone()), p);
+    }
+    if let Some((pred, problem)) = crate::record::upgrade::check_predecessor(&log_path, &log)? {
+        if let Some((line, p)) = problem {
+            flag(&mut out[log_i], line, None, p);
+        }
+        out.insert(log_i, pred);
+    }
+    Ok(())
 }
 
 /// What `verify --quarantine` did to one file.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Repair {
+    /// The trend file had grown past its latest head; its head was recorded.
+    HeadRecorded {
+        /// The rows the trend file holds now.
+        rows: usize,
+    },
     /// The torn last line was moved to this side file and the file truncated before it.
     Quarantined(PathBuf),
     /// The complete last row lacked its line feed; the line feed was appended.
@@ -169,7 +334,11 @@ pub fn quarantine(path: &Path, offset: u64, now: &str) -> Result<Repair> {
         .map_err(|e| Error::io(path, "opening", e))?;
     file.lock().map_err(|e| Error::io(path, "locking", e))?;
     let bytes = std::fs::read(path).map_err(|e| Error::io(path, "reading", e))?;
-    let header_ok = |c: &[String]| trend_file::is_trend_header(c) || is_log_header(c);
+    let header_ok = |c: &[String]| {
+        trend_file::is_trend_header(c)
+            || is_log_header(c)
+            || crate::record::heads::is_heads_header(c)
+    };
     let (_, damage) = trend_file::parse_bytes(path, &bytes, true, &header_ok);
     let log_line;
     let repair = match damage {
@@ -220,6 +389,39 @@ pub fn quarantine(path: &Path, offset: u64, now: &str) -> Result<Repair> {
         .and_then(|()| f.sync_all())
         .map_err(|e| Error::io(&log, "writing", e))?;
     Ok(repair)
+}
+
+/// Records the head of the trend file `path` in the register's heads file when the file only
+/// grew past its latest head (or has rows and no head yet): a release interrupted after
+/// appending its rows and before recording their head (issue #13, item 4). Holds the trend
+/// file's and the heads file's locks, re-checks under them that every earlier head still
+/// matches, and logs the repair in `quarantine.log`.
+pub fn record_head(path: &Path, now: &str) -> Result<Repair> {
+    use crate::record::heads::{self, HeadsLog};
+    let register = path.parent().unwrap_or(Path::new("."));
+    let wait = trend_file::Wait {
+        timeout: std::time::Duration::from_secs(60),
+    };
+    let locked = trend_file::lock_with(path, "", &[], wait, &trend_file::is_trend_header)?;
+    let t = &locked.trend;
+    let mut heads = HeadsLog::open_behind(register, t)?;
+    heads.record(std::iter::once(t), now)?;
+    let log = register.join("quarantine.log");
+    let line = format!(
+        "{now}\trecorded the head of {} at {} rows in {}: rows were appended without one (an interrupted release)\n",
+        path.display(),
+        t.rows.len(),
+        heads::path(register).display()
+    );
+    let mut f = std::fs::OpenOptions::new()
+        .create(true)
+        .append(true)
+        .open(&log)
+        .map_err(|e| Error::io(&log, "opening", e))?;
+    f.write_all(line.as_bytes())
+        .and_then(|()| f.sync_all())
+        .map_err(|e| Error::io(&log, "writing", e))?;
+    Ok(Repair::HeadRecorded { rows: t.rows.len() })
 }
 
 /// What the issue log says about a certificate PDF.

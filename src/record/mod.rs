@@ -1,4 +1,4 @@
-//! Record layer: the hash-chained trend files, the certificate log, integrity checks and
+//! Record layer: the hash-chained trend files, the certificate log, the heads file, integrity checks and
 //! quarantine, read-only queries, and workspace folders. The only layer that appends to the
 //! record. May use `lot`, `spec`, `chem`, `support` and `error`.
 
@@ -6,8 +6,10 @@ pub mod append;
 pub mod certfiles;
 pub mod certlog;
 pub mod find;
+pub mod heads;
 pub mod integrity;
 pub mod lines;
 pub mod query;
 pub mod trend_file;
+pub mod upgrade;
 pub mod workspace;

@@ -8,14 +8,16 @@ use crate::error::{Error, Result};
 use crate::record::lines;
 use crate::record::trend_file::{self, Row, Trend};
 
-/// Every product trend file in a register folder, sorted.
+/// Every product trend file in a register folder, sorted: every `.csv` file but the
+/// certificate log and the heads file.
 pub fn trend_files(register: &Path) -> Result<Vec<PathBuf>> {
     let rd = std::fs::read_dir(register).map_err(|e| Error::io(register, "reading folder", e))?;
     let mut v: Vec<PathBuf> = rd
         .filter_map(|e| e.ok().map(|e| e.path()))
         .filter(|p| {
             p.extension().is_some_and(|x| x == "csv")
-                && p.file_name().is_some_and(|n| n != "certificates.csv")
+                && p.file_name()
+                    .is_some_and(|n| n != "certificates.csv" && n != crate::record::heads::FILE)
         })
         .collect();
     v.sort();

@@ -203,7 +203,7 @@ pub fn check_trend_header(path: &Path, columns: &[String]) -> Result<()> {
     Err(Error::invalid(
         format!("{}:1", path.display()),
         "this is not a resinlot trend file (unexpected header)",
-        "Keep only trend files and certificates.csv in the register folder.",
+        "Keep only trend files, certificates.csv and heads.csv in the register folder.",
     ))
 }
 

@@ -81,6 +81,11 @@ fn certify_decides_under_the_trend_lock_and_sees_a_concurrent_rejection_issue_13
         .collect();
     locked.append(&cells).unwrap();
     locked.sync().unwrap();
+    // And its head, as `release` records it while it still holds the trend file's lock.
+    resinlot::record::heads::HeadsLog::open_behind(&w.path("register"), &locked.trend)
+        .unwrap()
+        .record(std::iter::once(&locked.trend), "2026-12-09T00:00:00Z")
+        .unwrap();
     drop(locked);
     let out = child.wait_with_output().unwrap();
     let mut rest = String::new();

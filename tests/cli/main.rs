@@ -18,6 +18,7 @@ mod lookup;
 mod old_registers;
 mod parsers_never_panic;
 mod record;
+mod record_anchors;
 mod record_faults;
 mod record_tail;
 mod release;
