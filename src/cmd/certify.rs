@@ -59,14 +59,12 @@ pub struct Args {
 
 fn text_arg(flag: &str, v: &Option<String>) -> anyhow::Result<()> {
     if let Some(t) = v {
-        if t.trim().is_empty() || t.chars().count() > 120 || t.chars().any(char::is_control) {
-            return Err(Error::invalid(
-                flag,
-                "must be 1 to 120 printable characters",
-                "Shorten or correct it.",
-            )
-            .into());
-        }
+        crate::support::text::check_line(
+            flag,
+            &flag.trim_start_matches('-').replace('-', " "),
+            t,
+            120,
+        )?;
     }
     Ok(())
 }

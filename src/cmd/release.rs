@@ -90,14 +90,15 @@ pub fn approver(flag: Option<&str>) -> anyhow::Result<String> {
         .or_else(|| std::env::var("USER").ok())
         .unwrap_or_default();
     let name = name.trim().to_string();
-    if name.is_empty() || name.chars().count() > 80 || name.chars().any(char::is_control) {
+    if name.is_empty() {
         return Err(Error::invalid(
             "--approver",
-            "no usable approver name (1 to 80 printable characters)",
+            "no approver name was given",
             "Pass --approver \"Name, role\" or set RESINLOT_APPROVER.",
         )
         .into());
     }
+    crate::support::text::check_line("--approver", "approver name", &name, 80)?;
     Ok(name)
 }
 
@@ -152,7 +153,6 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                     },
                 )?);
                 let ctx = CertContext {
-                    args,
                     specs: &specs,
                     issuer,
                     approver: &approver,
@@ -216,14 +216,7 @@ fn check_reason(reason: Option<&str>, retest: bool) -> anyhow::Result<()> {
         .into());
     }
     if let Some(r) = reason {
-        if r.trim().is_empty() || r.chars().any(char::is_control) || r.chars().count() > 300 {
-            return Err(Error::invalid(
-                "--reason",
-                "the reason must be 1 to 300 printable characters",
-                "State briefly why the lot is retested.",
-            )
-            .into());
-        }
+        crate::support::text::check_line("--reason", "reason", r, 300)?;
     }
     Ok(())
 }
@@ -266,7 +259,6 @@ fn decide(args: &Args, specs: &SpecSet, lots: &[LotResults]) -> anyhow::Result<V
 
 /// What building the internal certificates of a release needs.
 struct CertContext<'a> {
-    args: &'a Args,
     specs: &'a SpecSet,
     issuer: &'a Issuer,
     approver: &'a str,
@@ -302,7 +294,6 @@ fn prepare_certificates(
     decisions: &[LotDecision],
     plans: &[Plan],
 ) -> anyhow::Result<Vec<Pending>> {
-    let args = ctx.args;
     let entries = log.entries();
     let mut pending: Vec<Pending> = Vec::new();
     for (d, plan) in decisions.iter().zip(plans) {
@@ -311,14 +302,26 @@ fn prepare_certificates(
         }
         let spec = ctx.specs.for_date(&d.product, d.manufactured)?;
         let rec = LotRecord::from_decision(d, ctx.approver, ctx.now_text);
-        let supersedes = entries
-            .iter()
-            .rev()
-            .find(|e| e.lot == d.lot && e.customer.is_empty() && !certfiles::is_void(e))
-            .map(|e| Supersedes {
-                number: e.number.clone(),
-                reason: args.reason.clone().unwrap_or_else(|| "retest".into()),
-            });
+        // Only a retest supersedes, and only its reason is logged: a new lot in the same
+        // batch carries neither.
+        let retest_reason = match plan {
+            Plan::Retest { reason, .. } => Some(if reason.is_empty() {
+                "retest".to_string()
+            } else {
+                reason.clone()
+            }),
+            _ => None,
+        };
+        let supersedes = retest_reason.as_ref().and_then(|reason| {
+            entries
+                .iter()
+                .rev()
+                .find(|e| e.lot == d.lot && e.customer.is_empty() && !certfiles::is_void(e))
+                .map(|e| Supersedes {
+                    number: e.number.clone(),
+                    reason: reason.clone(),
+                })
+        });
         let number = numbering.nth(pending.len());
         let certificate = build::build(
             &ctx.issuer.site,
@@ -332,7 +335,10 @@ fn prepare_certificates(
         pending.push(Pending {
             certificate,
             customer: String::new(),
-            reason: args.reason.clone().unwrap_or_default(),
+            reason: match plan {
+                Plan::Retest { reason, .. } => reason.clone(),
+                _ => String::new(),
+            },
         });
     }
     Ok(pending)

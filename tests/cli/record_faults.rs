@@ -144,3 +144,71 @@ fn a_certificate_elsewhere_is_never_taken_for_a_report_issue_13() {
         .stderr(predicates::str::contains("into the record folder"));
     assert_eq!(before, std::fs::read(&cert).unwrap());
 }
+
+/// Issue #13 item 6 (review): the approver, a retest reason, a purchase order and a quantity
+/// are one printable line without direction overrides, like every other text of the record.
+#[test]
+fn flag_texts_refuse_direction_overrides_issue_13() {
+    let w = Workspace::with_good_released(true);
+    w.write("more.csv", &GOOD.replace("T26-10", "T26-20"));
+    let before = w.snapshot();
+    w.cmd()
+        .args(["release", "more.csv", "--approver", "QC \u{202E}rosivrepuS"])
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains(
+            "--approver: the approver name cannot be used",
+        ));
+    for (flag, what) in [("--po", "po"), ("--quantity", "quantity")] {
+        w.cmd()
+            .args([
+                "certify",
+                "T26-101",
+                "--customer",
+                "northwind",
+                flag,
+                "12\u{202E}34",
+            ])
+            .assert()
+            .code(2)
+            .stderr(predicates::str::contains(format!(
+                "{flag}: the {what} cannot be used"
+            )));
+    }
+    assert_eq!(before, w.snapshot(), "nothing may change");
+}
+
+/// Review of issue #13: in a `--retest --reason` run that also records a new lot, only the
+/// retested lot's certificate carries the reason and supersedes anything.
+#[test]
+fn a_retest_reason_stays_with_the_retested_lot_issue_13() {
+    let w = Workspace::with_good_released(true);
+    let retest = GOOD.replace(
+        "T26-101,TP-2000,2026-05-02,0.52",
+        "T26-101,TP-2000,2026-05-02,0.61",
+    ) + "T26-104,TP-2000,2026-05-20,0.50,55.5,541\n";
+    w.write("retest.csv", &retest);
+    w.release("retest.csv")
+        .args(["--retest", "--reason", "re-titrated"])
+        .assert()
+        .code(0);
+    let log = std::fs::read_to_string(w.path("register/certificates.csv")).unwrap();
+    let mut rdr = csv::Reader::from_reader(log.as_bytes());
+    let headers = rdr.headers().unwrap().clone();
+    let col = |name: &str| headers.iter().position(|h| h == name).unwrap();
+    let rows: Vec<csv::StringRecord> = rdr.records().map(Result::unwrap).collect();
+    let row_of = |lot: &str| {
+        rows.iter()
+            .rev()
+            .find(|r| &r[col("lot")] == lot)
+            .unwrap()
+            .clone()
+    };
+    let retested = row_of("T26-101");
+    assert_eq!(&retested[col("reason")], "re-titrated");
+    assert_eq!(&retested[col("supersedes")], "FW-000001");
+    let new = row_of("T26-104");
+    assert_eq!(&new[col("reason")], "", "{log}");
+    assert_eq!(&new[col("supersedes")], "", "{log}");
+    w.cmd().arg("verify").assert().code(0);
+}
