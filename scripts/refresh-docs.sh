@@ -6,6 +6,7 @@ set -euo pipefail
 cd "$(dirname "$0")/.."
 export SOURCE_DATE_EPOCH=1796860800   # 2026-12-10T00:00:00Z, so the outputs are reproducible
 demo=target/readme-demo
+rm -rf "$demo"   # this script owns the folder; the demo itself refuses to delete what it did not write
 cargo build --release --quiet
 ./target/release/resinlot demo "$demo" > target/readme-demo.txt
 cp target/readme-demo.txt "$demo/outputs/00-demo.txt"
