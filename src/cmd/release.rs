@@ -131,6 +131,13 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let mut parts: Vec<String> = Vec::new();
     let mut completed: Vec<Completed> = Vec::new();
     let (recorded, issued) = if args.dry_run {
+        let lines: Vec<u64> = lots.iter().map(|l| l.line).collect();
+        append::plan_unlocked(
+            &args.register,
+            &batch(args, &lines, &decisions),
+            &specs,
+            &now_text,
+        )?;
         (vec![Recorded::NotWritten; decisions.len()], Vec::new())
     } else {
         let (recorded, locks) = record(
@@ -421,14 +428,7 @@ fn record<'d>(
     let mut locks = append::lock_products(&args.register, specs, decisions, wait)?;
     let elsewhere = append::lots_elsewhere(&args.register, decisions, &|p| locks.contains_key(p))?;
     let lines: Vec<u64> = lots.iter().map(|l| l.line).collect();
-    let batch = append::Batch {
-        results: &args.results,
-        lines: &lines,
-        decisions,
-        retest: args
-            .retest
-            .then(|| args.reason.as_deref().unwrap_or_default()),
-    };
+    let batch = batch(args, &lines, decisions);
     let trends = locks.iter().map(|(&p, l)| (p, &l.trend)).collect();
     let plans = append::plan(&batch, &trends, specs, &elsewhere)?;
     append::check_time_order(&trends, decisions, &plans, now)?;
@@ -438,6 +438,18 @@ fn record<'d>(
     before_write(&plans, &trends)?;
     let recorded = append::commit(&mut locks, heads, decisions, &plans, approver, now)?;
     Ok((recorded, locks))
+}
+
+/// The batch a release plans: the results file, its lines, the decisions and the retest reason.
+fn batch<'a>(args: &'a Args, lines: &'a [u64], decisions: &'a [LotDecision]) -> append::Batch<'a> {
+    append::Batch {
+        results: &args.results,
+        lines,
+        decisions,
+        retest: args
+            .retest
+            .then(|| args.reason.as_deref().unwrap_or_default()),
+    }
 }
 
 fn short(v: Option<crate::spec::decision::Verdict>) -> &'static str {

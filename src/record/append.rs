@@ -415,6 +415,41 @@ pub fn open_heads(locks: &BTreeMap<&str, Locked>, plans: &[Plan]) -> Result<Opti
     }
 }
 
+/// Plans a batch without locking or writing anything, for a dry run: every product's trend
+/// file is read as it stands (a product without one plans against an empty trend), and the
+/// same rules as a real release apply (lot ids unique across products, retests, manufacture
+/// dates, time order), so a dry run refuses what the release would refuse.
+pub fn plan_unlocked(
+    register: &Path,
+    batch: &Batch<'_>,
+    specs: &SpecSet,
+    now: &str,
+) -> Result<Vec<Plan>> {
+    let mut owned: BTreeMap<&str, Trend> = BTreeMap::new();
+    for d in batch.decisions {
+        if owned.contains_key(d.product.as_str()) {
+            continue;
+        }
+        let path = trend_file::path_for(register, &d.product);
+        let t = if path.is_file() {
+            trend_file::read(&path)?
+        } else {
+            Trend {
+                path,
+                columns: Vec::new(),
+                rows: Vec::new(),
+                head: String::new(),
+            }
+        };
+        owned.insert(d.product.as_str(), t);
+    }
+    let elsewhere = lots_elsewhere(register, batch.decisions, &|p| owned.contains_key(p))?;
+    let trends: BTreeMap<&str, &Trend> = owned.iter().map(|(p, t)| (*p, t)).collect();
+    let plans = plan(batch, &trends, specs, &elsewhere)?;
+    check_time_order(&trends, batch.decisions, &plans, now)?;
+    Ok(plans)
+}
+
 /// Appends the row of every lot whose plan writes, under the locks taken by
 /// [`lock_products`], then syncs every file and records the new head of each file written in
 /// `heads` (opened by [`open_heads`] under its lock, while the trend files are still locked).

@@ -212,3 +212,35 @@ fn a_retest_reason_stays_with_the_retested_lot_issue_13() {
     assert_eq!(&new[col("supersedes")], "", "{log}");
     w.cmd().arg("verify").assert().code(0);
 }
+
+/// Review of issue #13: `release --dry-run` applies the same planning rules as the release
+/// (here: changed results of a recorded lot without --retest) and writes nothing.
+#[test]
+fn a_dry_run_refuses_what_the_release_would_issue_13() {
+    let w = Workspace::with_good_released(false);
+    w.write(
+        "changed.csv",
+        &GOOD.replace(
+            "T26-101,TP-2000,2026-05-02,0.52",
+            "T26-101,TP-2000,2026-05-02,0.61",
+        ),
+    );
+    let before = w.snapshot();
+    for dry in [true, false] {
+        let mut c = w.release("changed.csv");
+        c.arg("--no-certificates");
+        if dry {
+            c.arg("--dry-run");
+        }
+        c.assert()
+            .code(2)
+            .stderr(predicates::str::contains("T26-101"))
+            .stderr(predicates::str::contains("--retest"));
+    }
+    assert_eq!(before, w.snapshot(), "nothing may change");
+    // On a fresh workspace a dry run creates no trend file.
+    let fresh = Workspace::new();
+    fresh.write("good.csv", GOOD);
+    fresh.release("good.csv").arg("--dry-run").assert().code(0);
+    assert!(!fresh.path("register/TP-2000.csv").exists());
+}
