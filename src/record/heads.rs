@@ -165,16 +165,7 @@ impl HeadsLog {
         if st == State::Missing {
             return Err(lost(register));
         }
-        let wait = Wait {
-            timeout: HEADS_WAIT,
-        };
-        let locked = trend_file::lock_with(
-            &path(register),
-            &COLUMNS.join(","),
-            &[],
-            wait,
-            &is_heads_header,
-        )?;
+        let locked = lock_heads(register)?;
         let heads = heads_of(&locked.trend);
         let last = latest(&heads);
         for t in trends {
@@ -221,16 +212,7 @@ impl HeadsLog {
                 "Run `resinlot verify` to see the register's state.",
             ));
         }
-        let wait = Wait {
-            timeout: HEADS_WAIT,
-        };
-        let locked = trend_file::lock_with(
-            &path(register),
-            &COLUMNS.join(","),
-            &[],
-            wait,
-            &is_heads_header,
-        )?;
+        let locked = lock_heads(register)?;
         let name = file_name(&t.path);
         let heads = heads_of(&locked.trend);
         let chain_at = |k: usize| t.rows.get(k - 1).map(|r| last_cell(&r.cells));
@@ -267,6 +249,21 @@ impl HeadsLog {
         }
         self.locked.sync()
     }
+}
+
+/// Locks the heads file of `register` (created with its header when missing), waiting at
+/// most `HEADS_WAIT` for another writer.
+fn lock_heads(register: &Path) -> Result<Locked> {
+    let wait = Wait {
+        timeout: HEADS_WAIT,
+    };
+    trend_file::lock_with(
+        &path(register),
+        &COLUMNS.join(","),
+        &[],
+        wait,
+        &is_heads_header,
+    )
 }
 
 /// The error for a lost heads file.
