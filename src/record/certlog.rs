@@ -424,11 +424,7 @@ mod tests {
         };
         let keys = vec!["acid_value".to_string()];
         let trend = trend_file::path_for(dir.path(), "P");
-        let mut t = trend_file::lock(&trend, &keys, &keys, wait).unwrap();
-        t.append(&[("lot", "L1".into())]).unwrap();
-        t.sync().unwrap();
-        let chain = t.trend.head.clone();
-        drop(t);
+        let chain = trend_file::write_for_test(&trend, &keys, &[vec![("lot", "L1".into())]]);
         // Trend rows and no heads file: a register from before issue #13, whose new log
         // would take the earlier layout; with a heads file it takes the current one.
         assert_eq!(new_header(dir.path()).unwrap(), COLUMNS_V1.join(","));

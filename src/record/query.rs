@@ -489,22 +489,6 @@ mod tests {
 
     /// Writes a trend file at `p` with the columns `keys` holding `rows`, through the lock and
     /// append of `record::trend_file` (test fixture: invented lots and values).
-    fn trend_with(p: &Path, keys: &[String], rows: &[Vec<(&str, String)>]) {
-        let mut l = trend_file::lock(
-            p,
-            keys,
-            keys,
-            trend_file::Wait {
-                timeout: std::time::Duration::from_secs(5),
-            },
-        )
-        .unwrap();
-        for row in rows {
-            l.append(row).unwrap();
-        }
-        l.sync().unwrap();
-    }
-
     #[test]
     fn chunked_search_finds_rows_across_chunk_boundaries() {
         let dir = tempfile::tempdir().unwrap();
@@ -514,7 +498,7 @@ mod tests {
             .into_iter()
             .map(|lot| vec![("lot", lot.to_string()), ("acid_value", "0.5".into())])
             .collect();
-        trend_with(&p, &keys, &rows);
+        trend_file::write_for_test(&p, &keys, &rows);
         let full = trend_file::read(&p).unwrap();
         for chunk in [1, 7, 64, 1 << 20] {
             let t = lot_rows_chunked(&p, "A1", chunk).unwrap().unwrap();
@@ -543,7 +527,7 @@ mod tests {
                 ]
             })
             .collect();
-        trend_with(&p, &keys, &rows);
+        trend_file::write_for_test(&p, &keys, &rows);
         let (_, rows) = current_lots(&p, &keys, false).unwrap();
         let got: Vec<(&str, Option<f64>)> = rows.iter().map(|r| (&*r.lot, r.values[0])).collect();
         assert_eq!(got, [("B2", Some(0.6)), ("A1", Some(0.4)), ("C3", None)]);

@@ -724,6 +724,21 @@ pub fn scan(
     Ok(columns)
 }
 
+/// Test helper: writes `rows` to a trend file at `path` with property columns `keys`, as
+/// `release` would (locked, chained, synced); returns the chain value of the last row.
+#[cfg(test)]
+pub(crate) fn write_for_test(path: &Path, keys: &[String], rows: &[Vec<(&str, String)>]) -> String {
+    let wait = Wait {
+        timeout: std::time::Duration::from_secs(5),
+    };
+    let mut l = lock(path, keys, keys, wait).unwrap();
+    for row in rows {
+        l.append(row).unwrap();
+    }
+    l.sync().unwrap();
+    l.trend.head.clone()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -330,10 +330,7 @@ mod tests {
         };
         let keys = vec!["acid_value".to_string()];
         let trend = trend_file::path_for(dir.path(), "P");
-        let mut t = trend_file::lock(&trend, &keys, &keys, wait).unwrap();
-        t.append(&[("lot", "L1".into())]).unwrap();
-        t.sync().unwrap();
-        drop(t);
+        trend_file::write_for_test(&trend, &keys, &[vec![("lot", "L1".into())]]);
         let mut log = Log::lock(dir.path(), wait).unwrap(); // earlier layout: no heads yet
         for n in ["FW-000001", "FW-000002"] {
             log.append(&Entry {
