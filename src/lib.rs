@@ -14,6 +14,7 @@
 //! | [`certificate`] | certificate model, building from the record, issue, HTML/PDF rendering |
 //! | [`trend`] | one product's trend, the I-MR chart, the PDF trend report |
 //! | [`cook`] | in-process kinetics, end point, Arrhenius, correction additions |
+//! | [`web`] | `serve`: read-only web pages over the record (axum, tera), no command-line knowledge |
 //! | [`cmd`] | the command line: one file per command, which only orchestrates |
 
 #![warn(missing_docs)]
@@ -29,5 +30,6 @@ pub mod spec;
 pub mod stats;
 pub mod support;
 pub mod trend;
+pub mod web;
 
 pub use error::{Error, Result};

@@ -50,6 +50,10 @@ pub enum Command {
     /// newest first.
     #[command(after_help = EXIT_STATUS)]
     Find(cmd::find::Args),
+    /// Serve read-only web pages over the record for customer service and QA: search, lot
+    /// pages, find with CSV download, product trends, certificates and certificate checks.
+    #[command(after_help = EXIT_STATUS)]
+    Serve(cmd::serve::Args),
     /// Build the demo plant's workspace (default ./resinlot-demo) and run the whole job there:
     /// releases, certificates, trends, customer questions, a cook fit and a correction.
     #[command(after_help = EXIT_STATUS)]

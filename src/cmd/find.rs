@@ -1,15 +1,11 @@
 //! `resinlot find`: which lots of a product fit given windows, or a customer's requirements.
 
-use chrono::NaiveDate;
-use serde_json::{json, Map, Value};
-
 use crate::cmd::args::{self, ProductArg, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::lot::evaluate::Status;
-use crate::record::find::{self, CustomerCheck, LotFilter};
-use crate::record::query::{parse_window, LotRow, Window};
-use crate::spec::customer::Customer;
-use crate::spec::SpecSet;
+use crate::record::find::{self, Found, Search};
+use crate::record::query::{parse_window, Window};
+use chrono::NaiveDate;
 
 /// Arguments of `resinlot find`.
 #[derive(Debug, clap::Args)]
@@ -57,154 +53,62 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .iter()
         .map(|w| parse_window(w))
         .collect::<Result<_, _>>()?;
-    let status = find::status_or_default(args.status, args.customer.is_some());
-    let (from, to) = (args.from, args.to);
     let path = args.product.trend_file(&args.register, "--product")?;
-    let keys = crate::record::query::trend_keys(&path)?;
-    find::check_window_keys(args.product.code(), &keys, &windows)?;
-    let (specs, customer) = match &args.customer {
-        Some(c) => {
-            let specs = SpecSet::load(&args.specs)?;
-            let cu = Customer::load(&args.specs.join("customers"), c, &specs)?;
-            cu.product(args.product.code())?;
-            (Some(specs), Some(cu))
-        }
-        None => (None, None),
-    };
-    let customer_check = match (&specs, &customer) {
-        (Some(specs), Some(cu)) => Some(CustomerCheck {
-            specs,
-            requirements: cu.product(args.product.code())?,
-        }),
-        _ => None,
-    };
-    // The table needs only the windows and a few headline values; JSON, CSV and a customer's
-    // check need every property.
-    let every = args.json || args.csv || customer.is_some();
-    let loaded = find::keys_to_load(&keys, &windows, every);
-    let (_, lots) = crate::record::query::current_lots(&path, &loaded, customer.is_some())?;
-    let filter = LotFilter {
-        product: args.product.code(),
+    let product = args.product.code();
+    // The table needs only the windows and a few headline values; JSON and CSV need every
+    // property.
+    let found = find::search(&Search {
+        product,
+        trend_file: &path,
         windows: &windows,
-        status,
-        from,
-        to,
-        customer: customer_check,
-    };
-    let hits = find::matching_lots(&lots, &loaded, &filter);
+        status: args.status,
+        from: args.from,
+        to: args.to,
+        customer: args.customer.as_deref(),
+        specs: &args.specs,
+        every: args.json || args.csv,
+    })?;
     let text = if args.json {
-        json_text(args.product.code(), &keys, &hits)?
+        serde_json::to_string_pretty(&find::json_value(product, &found))? + "\n"
     } else if args.csv {
-        csv_text(args.product.code(), &keys, &hits)?
-    } else if hits.is_empty() {
+        find::csv_text(product, &found)?
+    } else if found.hits.is_empty() {
         "No lots match.\n".to_string()
     } else {
-        table_text(args, &keys, &loaded, &windows, &hits, customer.as_ref())
+        table_text(product, &windows, &found)
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }
 
-fn fmt(v: Option<f64>) -> String {
-    v.map(|x| x.to_string()).unwrap_or_default()
-}
-
-fn json_text(product: &str, keys: &[String], hits: &[&LotRow]) -> anyhow::Result<String> {
-    let lots: Vec<Value> = hits
-        .iter()
-        .map(|r| {
-            let mut m = Map::new();
-            m.insert("lot".into(), json!(r.lot));
-            m.insert("product".into(), json!(product));
-            m.insert("manufactured".into(), json!(r.manufactured));
-            m.insert("status".into(), json!(r.status));
-            for (k, v) in keys.iter().zip(&r.values) {
-                m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
-            }
-            Value::Object(m)
-        })
-        .collect();
-    Ok(serde_json::to_string_pretty(&json!({ "lots": lots }))? + "\n")
-}
-
-fn csv_text(product: &str, keys: &[String], hits: &[&LotRow]) -> anyhow::Result<String> {
-    let mut w = csv::Writer::from_writer(Vec::new());
-    let mut header = vec!["lot", "product", "manufactured", "status"];
-    header.extend(keys.iter().map(String::as_str));
-    w.write_record(&header)?;
-    for r in hits {
-        let mut rec = vec![
-            r.lot.to_string(),
-            product.to_string(),
-            r.manufactured.to_string(),
-            r.status.to_string(),
-        ];
-        rec.extend(r.values.iter().map(|v| fmt(*v)));
-        w.write_record(&rec)?;
-    }
-    Ok(String::from_utf8(w.into_inner()?)?)
-}
-
-fn table_text(
-    args: &Args,
-    keys: &[String],
-    loaded: &[String],
-    windows: &[Window],
-    hits: &[&LotRow],
-    customer: Option<&Customer>,
-) -> String {
-    let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
-    let mut show: Vec<String> = windows.iter().map(|w| w.key.clone()).collect();
-    for k in find::HEADLINE_KEYS {
-        if keys.iter().any(|x| x == k) && !show.iter().any(|s| s == k) {
-            show.push(k.to_string());
-        }
-    }
+fn table_text(product: &str, windows: &[Window], found: &Found) -> String {
+    let show = find::shown_keys(&found.keys, windows);
     let mut rows = vec![{
         let mut h = vec!["lot".to_string(), "manufactured".into(), "status".into()];
         h.extend(show.iter().cloned());
         h
     }];
-    for r in hits {
+    for r in found.hit_rows() {
         let mut line = vec![
             r.lot.to_string(),
             r.manufactured.to_string(),
             r.status.to_string(),
         ];
         for k in &show {
-            line.push(short_number(&fmt(r.values[at(k)])));
+            line.push(find::table_cell(found, r, k));
         }
         rows.push(line);
     }
+    let n = found.hits.len();
     let mut t = crate::support::table::render(&rows);
     t.push_str(&format!(
-        "{} lot{} of {} match{}.\n",
-        hits.len(),
-        if hits.len() == 1 { "" } else { "s" },
-        args.product.code(),
-        customer
-            .map(|c| format!(
-                " {}'s requirements (tighter windows, product decision rule)",
-                c.name
-            ))
+        "{n} lot{} of {product} match{}.\n",
+        if n == 1 { "" } else { "s" },
+        found
+            .customer_name
+            .as_ref()
+            .map(|c| format!(" {c}'s requirements (tighter windows, product decision rule)"))
             .unwrap_or_default()
     ));
     t
-}
-
-/// Shortens a full-precision number for the table (four significant decimals at most).
-fn short_number(cell: &str) -> String {
-    match cell.parse::<f64>() {
-        Ok(v) if cell.len() > 8 => {
-            let digits = if v.abs() >= 100.0 {
-                0
-            } else if v.abs() >= 10.0 {
-                2
-            } else {
-                4
-            };
-            format!("{v:.digits$}")
-        }
-        _ => cell.to_string(),
-    }
 }

@@ -1,13 +1,10 @@
 //! `resinlot lookup`: everything the record holds about one lot, in plain words.
 
-use serde_json::{json, Map, Value};
-
 use crate::cmd::args::{check_lot_id, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
-use crate::record::trend_file::{Row, Trend};
-use crate::spec::keys;
-use crate::spec::{end_groups_words, limits_text, ProductSpec, SpecSet};
+use crate::record::answer;
+use crate::spec::SpecSet;
 
 /// Arguments of `resinlot lookup`.
 #[derive(Debug, clap::Args)]
@@ -28,17 +25,13 @@ pub struct Args {
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     check_lot_id(&args.lot)?;
-    let Some(trend) = crate::record::query::find_lot(&args.register, &args.lot)? else {
+    let Some(rec) = answer::load(&args.register, &args.lot)? else {
         let near = crate::record::query::suggestions(&args.register, &args.lot, 3)?;
-        let hint = if near.is_empty() {
-            "No similar lot ids are recorded either; check the id on the label.".to_string()
-        } else {
-            format!("Did you mean {}?", near.join(", "))
-        };
         return Err(Error::Shortfall(format!(
-            "lot '{}' is not in the record at {}. {hint}",
+            "lot '{}' is not in the record at {}. {}",
             args.lot,
-            args.register.display()
+            args.register.display(),
+            answer::not_found_hint(&near)
         ))
         .into());
     };
@@ -47,275 +40,11 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     } else {
         None
     };
-    let rows: Vec<&Row> = trend.rows.iter().rev().collect();
-    let current = rows[0];
-    let product = trend.cell(current, "product").to_string();
-    let spec = specs
-        .as_ref()
-        .and_then(|s| s.revision(&product, trend.cell(current, "spec_revision")));
-    let certs: Vec<crate::record::certlog::Entry> =
-        crate::record::certlog::entries(&args.register)?
-            .into_iter()
-            .filter(|e| e.lot == args.lot)
-            .collect();
     let text = if args.json {
-        serde_json::to_string_pretty(&as_json(&trend, &rows, &certs))? + "\n"
+        serde_json::to_string_pretty(&answer::as_json(&rec))? + "\n"
     } else {
-        render(&trend, &rows, spec, &certs)
+        answer::answer(&rec, rec.spec(specs.as_ref())).text()
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
-}
-
-fn values(t: &Trend, row: &Row) -> Map<String, Value> {
-    let mut m = Map::new();
-    for k in t.keys() {
-        let cell = t.cell(row, &k);
-        let v = cell.parse::<f64>().map_or(Value::Null, |x| json!(x));
-        m.insert(k, v);
-    }
-    m
-}
-
-fn row_json(t: &Trend, row: &Row) -> Value {
-    let verdicts: Map<String, Value> = t
-        .keys()
-        .into_iter()
-        .filter_map(|k| {
-            let v = t.cell(row, &format!("{k}_verdict"));
-            (!v.is_empty()).then(|| (k, json!(v)))
-        })
-        .collect();
-    json!({
-        "row": t.cell(row, "seq").parse::<u64>().ok(),
-        "recorded_at": t.cell(row, "recorded_at"),
-        "status": t.cell(row, "status"),
-        "spec_revision": t.cell(row, "spec_revision"),
-        "approver": t.cell(row, "approver"),
-        "supersedes": t.cell(row, "supersedes").parse::<u64>().ok(),
-        "reason": t.cell(row, "reason"),
-        "values": values(t, row),
-        "verdicts": verdicts,
-        "notes": t.cell(row, "notes"),
-    })
-}
-
-/// The JSON answer: the current row's fields at the top level, older rows under `history`.
-pub fn as_json(t: &Trend, rows: &[&Row], certs: &[crate::record::certlog::Entry]) -> Value {
-    let cur = rows[0];
-    let mut v = row_json(t, cur);
-    let obj = v.as_object_mut().expect("object");
-    obj.insert("lot".into(), json!(t.cell(cur, "lot")));
-    obj.insert("product".into(), json!(t.cell(cur, "product")));
-    obj.insert("manufactured".into(), json!(t.cell(cur, "manufactured")));
-    obj.insert(
-        "mn_uncertainty".into(),
-        t.cell(cur, "mn_uncertainty")
-            .parse::<f64>()
-            .map_or(Value::Null, |x| json!(x)),
-    );
-    obj.insert(
-        "certificates".into(),
-        json!(certs
-            .iter()
-            .map(|c| json!({"number": c.number, "customer": c.customer_name, "issued_at": c.issued_at, "file": c.file}))
-            .collect::<Vec<_>>()),
-    );
-    obj.insert(
-        "history".into(),
-        json!(rows[1..].iter().map(|r| row_json(t, r)).collect::<Vec<_>>()),
-    );
-    v
-}
-
-/// A recorded cell as reported: rounded to the property's decimals under the spec's rounding,
-/// or as it stands when the spec does not know the key or the cell is no number.
-fn reported(spec: Option<&ProductSpec>, key: &str, cell: &str) -> String {
-    let (Some(s), Some(d)) = (spec, crate::spec::decision::recorded_decimal(cell)) else {
-        return cell.to_string();
-    };
-    match s.property(key) {
-        Some(p) => crate::spec::decision::round(d, p.decimals, s.rounding).to_string(),
-        None => cell.to_string(),
-    }
-}
-
-fn render(
-    t: &Trend,
-    rows: &[&Row],
-    spec: Option<&ProductSpec>,
-    certs: &[crate::record::certlog::Entry],
-) -> String {
-    let cur = rows[0];
-    let c = |n: &str| t.cell(cur, n);
-    let mut out = format!(
-        "Lot {}: {}{}\n",
-        c("lot"),
-        c("product"),
-        spec.map(|s| format!(" {}", s.name)).unwrap_or_default()
-    );
-    out.push_str(&facts_text(spec, &c));
-    out.push_str(&property_table(t, spec, &c));
-    out.push_str(&derived_text(spec, &c));
-    if !c("notes").is_empty() {
-        out.push_str(&format!("Notes: {}\n", c("notes")));
-    }
-    out.push_str(&certificates_text(certs));
-    out.push_str(&history_text(t, rows, spec));
-    out
-}
-
-/// The lot's status, dates and retest date, as label-value pairs.
-fn facts_text<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> String {
-    let retest = spec.and_then(|s| {
-        chrono::NaiveDate::parse_from_str(c("manufactured"), "%Y-%m-%d")
-            .ok()
-            .and_then(|d| crate::spec::retest_date(d, s.retest_months))
-    });
-    let mut facts = vec![
-        (
-            "Status".to_string(),
-            format!(
-                "{} (spec revision {})",
-                c("status").replace('_', " "),
-                c("spec_revision")
-            ),
-        ),
-        ("Manufactured".to_string(), c("manufactured").to_string()),
-        (
-            "Decided".to_string(),
-            format!("{} by {}", c("recorded_at"), c("approver")),
-        ),
-    ];
-    if let Some(r) = retest {
-        facts.push(("Retest date".into(), r.to_string()));
-    }
-    let mut out = crate::support::table::pairs(&facts);
-    out.push('\n');
-    out
-}
-
-/// The table of every recorded property: result, unit, limits and verdict.
-fn property_table<'a>(
-    t: &Trend,
-    spec: Option<&ProductSpec>,
-    c: &dyn Fn(&str) -> &'a str,
-) -> String {
-    let mut table = vec![vec![
-        "Property".to_string(),
-        "Result".into(),
-        "Unit".into(),
-        "Limits".into(),
-        "Verdict".into(),
-    ]];
-    for k in t.keys() {
-        let cell = c(&k);
-        if cell.is_empty() {
-            continue;
-        }
-        let p = spec.and_then(|s| s.property(&k));
-        table.push(vec![
-            p.map_or(k.clone(), |p| p.label.clone()),
-            reported(spec, &k, cell),
-            p.map_or(String::new(), |p| {
-                if p.unit == "1" {
-                    String::new()
-                } else {
-                    p.unit.clone()
-                }
-            }),
-            p.map_or(String::new(), |p| {
-                if p.has_limit() {
-                    limits_text(p.min, p.max, p.decimals)
-                } else {
-                    String::new()
-                }
-            }),
-            c(&format!("{k}_verdict")).replace('_', " "),
-        ]);
-    }
-    crate::support::table::render(&table)
-}
-
-/// How Mn, Xn and the extent of reaction were obtained, when recorded.
-fn derived_text<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> String {
-    let mut out = String::new();
-    if !c(keys::MN).is_empty() {
-        let u = c("mn_uncertainty").parse::<f64>().ok();
-        let f = spec.map_or(2.0, |s| s.functionality);
-        out.push_str(&format!(
-            "\nMn is {}{} g/mol: calculated from the acid value and hydroxyl value by end-group analysis, assuming {}.\n",
-            reported(spec, keys::MN, c(keys::MN)),
-            u.map(|u| format!(" ± {u:.0}")).unwrap_or_default(),
-            end_groups_words(f)
-        ));
-        if u.is_some() {
-            out.push_str("The ± figure is the expanded uncertainty (k = 2, about 95 % coverage) from those of the two titrations.\n");
-        }
-    }
-    if !c(keys::XN).is_empty() || !c(keys::EXTENT_OF_REACTION).is_empty() {
-        out.push_str(&format!(
-            "Xn {} and extent of reaction {}: from the batch recipe by the Carothers relations, allowing for the water of condensation.\n",
-            if c(keys::XN).is_empty() { "-".to_string() } else { reported(spec, keys::XN, c(keys::XN)) },
-            if c(keys::EXTENT_OF_REACTION).is_empty() { "-".to_string() } else { reported(spec, keys::EXTENT_OF_REACTION, c(keys::EXTENT_OF_REACTION)) },
-        ));
-    }
-    out
-}
-
-/// The certificates issued for the lot.
-fn certificates_text(certs: &[crate::record::certlog::Entry]) -> String {
-    let mut out = String::new();
-    out.push_str("\nCertificates issued:\n");
-    if certs.is_empty() {
-        out.push_str("  none\n");
-    }
-    for e in certs {
-        out.push_str(&format!(
-            "  {}  {}  {}{}\n",
-            e.number,
-            if crate::record::certfiles::is_void(e) {
-                "VOID (a file found without its log entry; not a certificate)"
-            } else if e.customer_name.is_empty() {
-                "internal (QC record)"
-            } else {
-                e.customer_name.as_str()
-            },
-            e.issued_at,
-            if e.supersedes.is_empty() {
-                String::new()
-            } else {
-                format!("  (supersedes {}: {})", e.supersedes, e.reason)
-            }
-        ));
-    }
-    out
-}
-
-/// The lot's superseded rows, newest first, with the retest reason.
-fn history_text(t: &Trend, rows: &[&Row], spec: Option<&ProductSpec>) -> String {
-    let mut out = String::new();
-    if rows.len() > 1 {
-        out.push_str("\nHistory (superseded results, newest first):\n");
-        for r in &rows[1..] {
-            let vals: Vec<String> = t
-                .keys()
-                .into_iter()
-                .filter(|k| !spec.is_some_and(|s| s.property(k).is_some_and(|p| p.derived)))
-                .filter(|k| !t.cell(r, k).is_empty())
-                .map(|k| format!("{k} {}", t.cell(r, &k)))
-                .collect();
-            out.push_str(&format!(
-                "  row {}  {}  {}  {}\n",
-                t.cell(r, "seq"),
-                t.cell(r, "recorded_at"),
-                t.cell(r, "status").replace('_', " "),
-                vals.join(", ")
-            ));
-        }
-        if !t.cell(rows[0], "reason").is_empty() {
-            out.push_str(&format!("  Retest reason: {}\n", t.cell(rows[0], "reason")));
-        }
-    }
-    out
 }

@@ -450,14 +450,29 @@ pub enum CertVerdict {
 /// Identifies a certificate PDF against the issue log.
 pub fn verify_certificate(pdf: &Path, register_dir: &Path) -> Result<CertVerdict> {
     let sha = file_sha256(pdf)?;
-    let entries = crate::record::certlog::entries(register_dir)?;
-    if let Some(e) = entries.iter().find(|e| e.sha256 == sha) {
-        return Ok(CertVerdict::Genuine { entry: e.clone() });
-    }
     let name = pdf
         .file_name()
         .map(|n| n.to_string_lossy().to_string())
         .unwrap_or_default();
+    identify(sha, &name, register_dir)
+}
+
+/// Identifies certificate bytes held in memory (an upload to the web page, issue #21) against
+/// the issue log, under the file name they came with; nothing is written.
+pub fn verify_certificate_bytes(
+    bytes: &[u8],
+    name: &str,
+    register_dir: &Path,
+) -> Result<CertVerdict> {
+    identify(trend_file::hex(&Sha256::digest(bytes)), name, register_dir)
+}
+
+/// The verdict for a certificate of SHA-256 `sha` that came under the file name `name`.
+fn identify(sha: String, name: &str, register_dir: &Path) -> Result<CertVerdict> {
+    let entries = crate::record::certlog::entries(register_dir)?;
+    if let Some(e) = entries.iter().find(|e| e.sha256 == sha) {
+        return Ok(CertVerdict::Genuine { entry: e.clone() });
+    }
     if let Some(e) = entries.iter().find(|e| e.file == name) {
         return Ok(CertVerdict::Altered {
             entry: e.clone(),

@@ -2,6 +2,7 @@
 //! quarantine, read-only queries, and workspace folders. The only layer that appends to the
 //! record. May use `lot`, `spec`, `chem`, `support` and `error`.
 
+pub mod answer;
 pub mod append;
 pub mod certfiles;
 pub mod certlog;

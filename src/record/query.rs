@@ -251,13 +251,24 @@ pub struct LotRow {
 }
 
 /// Interns short labels (statuses, revisions): a handful of distinct values per file, kept for
-/// the life of the process.
+/// the life of the process. `table` is the scan's own cache; a miss there looks in one table
+/// for the whole process, so a long-running process (`resinlot serve`, issue #21) that scans
+/// the record on every request keeps one copy of each label, not one per scan.
 fn intern(table: &mut Vec<&'static str>, text: &[u8]) -> &'static str {
+    static INTERNED: std::sync::Mutex<Vec<&'static str>> = std::sync::Mutex::new(Vec::new());
     let t = std::str::from_utf8(text).unwrap_or("?");
     if let Some(s) = table.iter().find(|s| **s == t) {
         return s;
     }
-    let s: &'static str = Box::leak(t.to_string().into_boxed_str());
+    let mut all = INTERNED.lock().unwrap_or_else(|e| e.into_inner());
+    let s: &'static str = match all.iter().find(|s| **s == t) {
+        Some(s) => s,
+        None => {
+            let s: &'static str = Box::leak(t.to_string().into_boxed_str());
+            all.push(s);
+            s
+        }
+    };
     table.push(s);
     s
 }

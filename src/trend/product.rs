@@ -324,6 +324,24 @@ pub fn property_trends(req: &TrendRequest) -> Result<Vec<PropertyTrend>> {
     Ok(trends)
 }
 
+/// What the I-MR chart of one property's trend shows (`trend --chart` and the web product page).
+pub fn chart_input(t: &PropertyTrend) -> crate::trend::chart::ChartInput<'_> {
+    crate::trend::chart::ChartInput {
+        product: &t.product,
+        property: &t.label,
+        unit: &t.unit,
+        date_from: &t.date_from,
+        date_to: &t.date_to,
+        lot_ids: &t.lots,
+        values: &t.values,
+        limits: &t.limits,
+        spec_min: t.spec_min,
+        spec_max: t.spec_max,
+        signals: &t.raw_signals,
+        baseline_len: (t.baseline_n < t.n).then_some(t.baseline_n),
+    }
+}
+
 /// True when any trend has a run-rule signal or any lot is off the viscosity–Mn line.
 pub fn any_signal(trends: &[PropertyTrend], visc: Option<&ViscosityCheck>) -> bool {
     trends.iter().any(|t| !t.signals.is_empty()) || visc.is_some_and(|v| !v.off_line.is_empty())

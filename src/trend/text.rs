@@ -93,7 +93,8 @@ fn cap_text(t: &PropertyTrend) -> String {
     }
 }
 
-fn visc_text(v: Option<&ViscosityCheck>) -> String {
+/// The viscosity–Mn check in words (empty without one), as `trend` prints it.
+pub fn visc_text(v: Option<&ViscosityCheck>) -> String {
     let Some(v) = v else { return String::new() };
     let mut s = format!(
         "\nViscosity against Mn ({} lots): viscosity ∝ Mn^{:.2} ± {:.2} (standard error), R² {:.3}.\n",
@@ -196,7 +197,7 @@ pub fn detail(t: &PropertyTrend, visc: Option<&ViscosityCheck>, rules: &str) -> 
 }
 
 /// The detail's statistics as label–value pairs.
-fn detail_pairs(t: &PropertyTrend) -> Vec<(String, String)> {
+pub fn detail_pairs(t: &PropertyTrend) -> Vec<(String, String)> {
     let l = &t.limits;
     let base = if t.baseline_n < t.n {
         format!("the first {} lots (frozen)", t.baseline_n)
