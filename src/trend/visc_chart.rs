@@ -141,15 +141,19 @@ where
     }))?;
     for p in points.iter().filter(|p| p.off_line) {
         let at = (p.mn.log10(), p.viscosity.log10());
-        chart.draw_series(std::iter::once(Circle::new(at, 8, SIGNAL.stroke_width(2))))?;
-        chart.draw_series(std::iter::once(Text::new(
-            p.lot.clone(),
-            at,
-            ("sans-serif", 12)
-                .into_font()
-                .color(&TEXT)
-                .pos(Pos::new(HPos::Left, VPos::Bottom)),
-        )))?;
+        // A ring around the point and the lot id beside it, offset in pixels.
+        chart.draw_series(std::iter::once(
+            EmptyElement::at(at)
+                + Circle::new((0, 0), 8, SIGNAL.stroke_width(2))
+                + Text::new(
+                    p.lot.clone(),
+                    (11, -4),
+                    ("sans-serif", 12)
+                        .into_font()
+                        .color(&TEXT)
+                        .pos(Pos::new(HPos::Left, VPos::Center)),
+                ),
+        ))?;
     }
     Ok(())
 }
@@ -179,8 +183,11 @@ mod tests {
         let svg =
             String::from_utf8(viscosity_mn_svg("TP-1", &points, &fit, "Pa·s").unwrap()).unwrap();
         assert!(svg.starts_with("<svg"), "{}", &svg[..80]);
-        assert!(svg.contains(">L5<"), "the lot off the line is named");
-        assert!(!svg.contains(">L4<"), "lots on the line are not");
+        assert!(
+            svg.contains("\nL5\n</text>"),
+            "the lot off the line is named"
+        );
+        assert!(!svg.contains("\nL4\n</text>"), "lots on the line are not");
         assert!(svg.contains("viscosity, Pa·s (log scale)"));
         // 12 dots and one ring.
         assert_eq!(svg.matches("<circle").count(), 13);

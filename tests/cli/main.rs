@@ -23,4 +23,5 @@ mod record_faults;
 mod record_tail;
 mod release;
 mod serve;
+mod serve_browser;
 mod trend;
