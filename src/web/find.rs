@@ -79,6 +79,12 @@ pub fn windows_of(text: &str) -> crate::error::Result<Vec<Window>> {
         .collect()
 }
 
+/// Names the form's field where the library names the command's flag (`--where` is the
+/// Windows field here).
+fn on_the_form(e: crate::error::Error) -> crate::error::Error {
+    e.at(|place| place.replacen("--where", "Windows", 1))
+}
+
 fn optional(s: &str) -> Option<&str> {
     let s = s.trim();
     (!s.is_empty()).then_some(s)
@@ -132,7 +138,7 @@ fn answer(config: &crate::web::Config, form: FindForm) -> Result<Response, PageE
             page.products.join(", ")
         )));
     }
-    let windows = windows_of(&form.windows)?;
+    let windows = windows_of(&form.windows).map_err(on_the_form)?;
     let status = match optional(&form.status) {
         None => None,
         Some(s) => Some(Status::parse(s).ok_or_else(|| {
@@ -167,7 +173,8 @@ fn answer(config: &crate::web::Config, form: FindForm) -> Result<Response, PageE
         customer,
         specs: &config.specs,
         every: csv,
-    })?;
+    })
+    .map_err(on_the_form)?;
     if csv {
         let text = find::csv_text(product, &found)?;
         let disposition = format!("attachment; filename=\"{product}-lots.csv\"");
