@@ -523,6 +523,26 @@ mod tests {
         }
     }
 
+    /// Issue #21: a long-running server scans on every request; each label is kept once for
+    /// the process, not once per scan.
+    #[test]
+    fn labels_are_interned_once_across_scans_issue_21() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        let keys = vec!["acid_value".to_string()];
+        let rows = vec![vec![
+            ("lot", "A1".to_string()),
+            ("status", "quarantined_for_issue_21".into()),
+            ("spec_revision", "R21".into()),
+        ]];
+        trend_file::write_for_test(&p, &keys, &rows);
+        let (_, first) = current_lots(&p, &keys, false).unwrap();
+        let (_, second) = current_lots(&p, &keys, false).unwrap();
+        assert_eq!(first[0].status, "quarantined_for_issue_21");
+        assert!(std::ptr::eq(first[0].status, second[0].status));
+        assert!(std::ptr::eq(first[0].revision, second[0].revision));
+    }
+
     #[test]
     fn current_lots_keep_the_latest_row_of_each_lot() {
         let dir = tempfile::tempdir().unwrap();

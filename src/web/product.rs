@@ -124,12 +124,9 @@ fn build(config: &crate::web::Config, code: &str) -> Result<ProductPage, PageErr
         });
     }
     let visc = product::viscosity_check_of(&lots, &columns);
-    let viscosity_svg = match &visc {
-        Some(v) => {
-            let at = |k: &str| columns.iter().position(|c| c == k);
-            let (Some(mn), Some(vi)) = (at(keys::MN), at(keys::VISCOSITY)) else {
-                unreachable!("a viscosity check needs both columns")
-            };
+    let at = |k: &str| columns.iter().position(|c| c == k);
+    let viscosity_svg = match (&visc, at(keys::MN), at(keys::VISCOSITY)) {
+        (Some(v), Some(mn), Some(vi)) => {
             let points: Vec<ViscPoint> = lots
                 .iter()
                 .filter_map(|l| match (l.values[mn], l.values[vi]) {
@@ -148,7 +145,7 @@ fn build(config: &crate::web::Config, code: &str) -> Result<ProductPage, PageErr
             let svg = visc_chart::viscosity_mn_svg(code, &points, &v.fit, &unit)?;
             String::from_utf8_lossy(&svg).into_owned()
         }
-        None => String::new(),
+        _ => String::new(),
     };
     Ok(ProductPage {
         title: format!("Product {code}"),
