@@ -2,6 +2,7 @@
 
 use serde::Serialize;
 
+use crate::chem::gel::{self, GelMargin, GelPoints, GelState};
 use crate::chem::recipe::Recipe;
 use crate::chem::stepgrowth as chem;
 use crate::error::{non_negative, positive, Error, Result};
@@ -124,14 +125,31 @@ pub struct RecipeFigures {
     pub xn_carothers: Option<f64>,
     /// Carothers gel point (minority extent), when f_avg > 2.
     pub gel_point_carothers: Option<f64>,
-    /// Flory-Stockmayer gel point (minority extent), with branch units.
+    /// Statistical gel point (minority extent), Stockmayer's condition for any mix of
+    /// functionalities, monofunctional units included.
     pub gel_point_statistical: Option<f64>,
+    /// Both gel points in full: extents of both groups, f_w of both sides, the acid value at
+    /// the statistical gel point, or why there is none.
+    pub gel: GelPoints,
     /// Extent of the minority groups now.
     pub extent_of_reaction_minority: f64,
     /// Mn from batch mass / molecules (g/mol).
     pub mn_recipe: Option<f64>,
     /// (end-group Mn - recipe Mn) / recipe Mn, in percent.
     pub mn_disagreement_percent: Option<f64>,
+}
+
+impl RecipeFigures {
+    /// Where this titration stands against the statistical gel point, with the GEL WARNING
+    /// text when it is near or past it ([`gel::gel_state`], [`gel::gel_warning`]).
+    pub fn gel_guard(&self, acid_value: f64, margin: GelMargin) -> (GelState, Option<String>) {
+        let p = self.extent_of_reaction_minority;
+        let state = gel::gel_state(p, acid_value, &self.gel, margin);
+        (
+            state,
+            gel::gel_warning("the batch", p, state, &self.gel, margin),
+        )
+    }
 }
 
 /// Runs the whole analysis; validates first.
@@ -178,6 +196,7 @@ fn recipe_figures(r: &Recipe, av: f64, ohv: f64, mn: Option<f64>) -> Result<Reci
     let shortfall = chem::hydroxyl_shortfall_eq(&pr, ohv);
     let main = r.main_hydroxyl_component();
     let mn_recipe = chem::mn_recipe(&pr);
+    let gel = crate::chem::gel::gel_points(r);
     Ok(RecipeFigures {
         recipe_name: r.name.clone(),
         initial_acid_value: av0,
@@ -201,7 +220,8 @@ fn recipe_figures(r: &Recipe, av: f64, ohv: f64, mn: Option<f64>) -> Result<Reci
         average_functionality: f_avg,
         xn_carothers: chem::xn_carothers(p_min, f_avg),
         gel_point_carothers: chem::gel_point_carothers(f_avg),
-        gel_point_statistical: chem::branch_input(r).and_then(|b| chem::gel_point_statistical(&b)),
+        gel_point_statistical: gel.statistical.map(|g| g.p_minority),
+        gel,
         extent_of_reaction_minority: p_min,
         mn_recipe,
         mn_disagreement_percent: match (mn, mn_recipe) {

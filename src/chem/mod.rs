@@ -3,6 +3,7 @@
 //! text; may use `support` and `error` only.
 
 pub mod analysis;
+pub mod gel;
 pub mod ranges;
 pub mod recipe;
 pub mod stepgrowth;

@@ -158,6 +158,16 @@ pub fn progress_at(ch: &Charge, av: f64) -> Result<Progress> {
     })
 }
 
+/// Acid value of the batch after `esters` ester bonds: the inverse of [`progress_at`].
+///
+/// Water W = max(0, x − R) mol, mass m = m0 − 0.018015·W kg, AV = 56.1·(E_A − x)/m (mg KOH/g
+/// with groups in mol and m in kg). Source: the same first-principles mass balance as
+/// [`progress_at`] (Odian §2-1).
+pub fn acid_value_at_esters(ch: &Charge, esters: f64) -> f64 {
+    let water_kg = (esters - ch.anhydride_rings).max(0.0) * WATER_G_PER_MOL / 1000.0;
+    KOH_MG_PER_MOL * (ch.acid_eq - esters).max(0.0) / ((ch.mass_kg - water_kg) * 1000.0)
+}
+
 /// The naive estimate p = 1 - AV/AV0, which ignores the water lost (shown for comparison only).
 pub fn naive_extent(av: f64, av0: f64) -> f64 {
     1.0 - av / av0
@@ -205,7 +215,9 @@ pub struct BranchInput {
     pub branch_is_hydroxyl: bool,
 }
 
-/// Flory-Stockmayer statistical gel point, as the minority-group extent of reaction.
+/// Flory's closed-form statistical gel point for one branch type (A-A + B-B + A_f, no
+/// monofunctional units), as the minority-group extent of reaction. The tool uses the general
+/// [`crate::chem::gel::gel_point_stockmayer`]; this form is its check for the one-type case.
 ///
 /// Branching coefficient α = P·ρ / (1 - P·(1-ρ)) with P = p_A·p_B (product of the two groups'
 /// extents, equal to x²/(E_A·E_B)) and ρ the fraction of the branched group type on branch
@@ -227,49 +239,6 @@ pub fn gel_point_statistical(b: &BranchInput) -> Option<f64> {
     let x_c = (p_c * b.acid_eq * b.hydroxyl_eq).sqrt();
     let p_min = x_c / b.acid_eq.min(b.hydroxyl_eq);
     (p_min <= 1.0).then_some(p_min)
-}
-
-/// Extracts the branch-unit input from a recipe, or None when there are no branch units or
-/// both group types carry them (the single-branch-type formula does not apply).
-pub fn branch_input(recipe: &crate::chem::recipe::Recipe) -> Option<BranchInput> {
-    let ch = recipe.charge();
-    let mut oh_branch = (0.0, 0u32);
-    let mut acid_branch = (0.0, 0u32);
-    for c in &recipe.components {
-        if c.hydroxyl_groups > 2 {
-            if oh_branch.1 != 0 && oh_branch.1 != c.hydroxyl_groups {
-                return None;
-            }
-            oh_branch = (oh_branch.0 + c.hydroxyl_equivalents(), c.hydroxyl_groups);
-        }
-        if c.acid_groups > 2 {
-            if acid_branch.1 != 0 && acid_branch.1 != c.acid_groups {
-                return None;
-            }
-            acid_branch = (acid_branch.0 + c.acid_equivalents(), c.acid_groups);
-        }
-    }
-    let base = BranchInput {
-        acid_eq: ch.acid_eq,
-        hydroxyl_eq: ch.hydroxyl_eq,
-        branch_eq: 0.0,
-        branch_functionality: 0,
-        branch_is_hydroxyl: true,
-    };
-    match (oh_branch.1 > 0, acid_branch.1 > 0) {
-        (true, false) => Some(BranchInput {
-            branch_eq: oh_branch.0,
-            branch_functionality: oh_branch.1,
-            ..base
-        }),
-        (false, true) => Some(BranchInput {
-            branch_eq: acid_branch.0,
-            branch_functionality: acid_branch.1,
-            branch_is_hydroxyl: false,
-            ..base
-        }),
-        _ => None,
-    }
 }
 
 /// Mn from the recipe: batch mass / molecules left, in g/mol (no cyclisation, no gel).
@@ -406,6 +375,19 @@ mod tests {
         let early = progress_at(&ch, av_early).unwrap();
         assert_relative_eq!(early.esters, 0.5, max_relative = 1e-9);
         assert_eq!(early.water_kg, 0.0);
+    }
+
+    #[test]
+    fn acid_value_at_esters_inverts_the_balance() {
+        // Round trip through progress_at (first principles), before and after the rings open.
+        let ch = charge(&[
+            (0.14812, 148.12, 2, 0, true),
+            (0.091308, 76.09, 0, 2, false),
+        ]);
+        for x in [0.3, 1.0, 1.5, 1.99] {
+            let av = acid_value_at_esters(&ch, x);
+            assert_relative_eq!(progress_at(&ch, av).unwrap().esters, x, max_relative = 1e-9);
+        }
     }
 
     #[test]
