@@ -3,6 +3,7 @@
 use serde::Serialize;
 
 use crate::chem::gel::{self, GelMargin, GelPoints, GelState};
+use crate::chem::hydroxyl_method::AcidityCorrection;
 use crate::chem::recipe::Recipe;
 use crate::chem::stepgrowth as chem;
 use crate::error::{non_negative, positive, Error, Result};
@@ -12,10 +13,11 @@ use crate::error::{non_negative, positive, Error, Result};
 pub struct Titration {
     /// Acid value (mg KOH/g).
     pub av: f64,
-    /// Hydroxyl value as entered (mg KOH/g): raw acetylation value when `acidity_correction`.
+    /// Hydroxyl value as entered (mg KOH/g): a raw result when `acidity_correction` applies.
     pub ohv: f64,
-    /// True when `ohv` is a raw acetylation result that needs AV added.
-    pub acidity_correction: bool,
+    /// How AV enters the raw result: added (acetylation, OHV − AV measured), none, or
+    /// subtracted (ASTM E1899, OHV + AV measured); see [`crate::chem::hydroxyl_method`].
+    pub acidity_correction: AcidityCorrection,
     /// End groups per molecule (2 for linear chains).
     pub functionality: f64,
     /// Expanded uncertainty of AV (k = 2), mg KOH/g.
@@ -75,6 +77,8 @@ pub struct Analysis {
     pub acid_value: f64,
     /// Hydroxyl value after the acidity correction, same basis.
     pub hydroxyl_value_corrected: f64,
+    /// The acidity correction applied to the entered hydroxyl value: add, none or subtract.
+    pub acidity_correction: AcidityCorrection,
     /// End-group Mn (g/mol).
     pub mn: Option<f64>,
     /// Expanded uncertainty of Mn (k = 2), g/mol, when both input uncertainties are known.
@@ -178,6 +182,7 @@ pub fn analyse(t: &Titration, recipe: Option<&Recipe>) -> Result<Analysis> {
     Ok(Analysis {
         acid_value: av,
         hydroxyl_value_corrected: ohv,
+        acidity_correction: t.acidity_correction,
         mn,
         mn_uncertainty,
         hydroxyl_equivalent_weight: chem::hydroxyl_equivalent_weight(ohv),
@@ -240,7 +245,7 @@ mod tests {
         Titration {
             av,
             ohv,
-            acidity_correction: false,
+            acidity_correction: false.into(),
             functionality: 2.0,
             u_av: Some(0.05),
             u_ohv: Some(0.8),

@@ -4,6 +4,7 @@
 
 pub mod analysis;
 pub mod gel;
+pub mod hydroxyl_method;
 pub mod ranges;
 pub mod recipe;
 pub mod stepgrowth;

@@ -4,6 +4,7 @@
 
 use serde::Serialize;
 
+use crate::chem::hydroxyl_method::AcidityCorrection;
 use crate::chem::recipe::Charge;
 use crate::error::{Error, Result};
 
@@ -31,41 +32,39 @@ pub fn hydroxyl_equivalent_weight(ohv_corrected: f64) -> Option<f64> {
     (ohv_corrected > 0.0).then(|| KOH_MG_PER_MOL / ohv_corrected)
 }
 
-/// Acidity correction of an acetylation hydroxyl value: OHV = raw + AV.
+/// Acidity correction of a raw hydroxyl value: OHV = raw + c·AV, c = +1, 0 or −1.
 ///
-/// Acetylation methods (ISO 4629-1/-2, ASTM D4274 method A) back-titrate the acetic acid and so
-/// measure OHV - AV; the sample's own acidity must be added back. Isocyanate-reagent methods need
-/// no correction, which is why the caller states it explicitly.
-pub fn corrected_hydroxyl_value(entered: f64, av: f64, acidity_correction: bool) -> f64 {
-    if acidity_correction {
-        entered + av
-    } else {
-        entered
-    }
+/// Acetylation methods (ISO 4629-1/-2, DIN 53240, ASTM D4274) back-titrate the reagent acid
+/// and so measure OHV − AV: the sample's own acidity is added back (c = +1). ASTM E1899
+/// (isocyanate reagent) titrates the sample's acid with the carbamate, OHV + AV (c = −1). The
+/// per-method table with its sources is [`crate::chem::hydroxyl_method::METHODS`]; `true`
+/// and `false` mean add and none, as the historical flag did.
+pub fn corrected_hydroxyl_value(
+    entered: f64,
+    av: f64,
+    correction: impl Into<AcidityCorrection>,
+) -> f64 {
+    entered + correction.into().sign() * av
 }
 
 /// Expanded uncertainty of the end-group Mn from the expanded uncertainties of AV and OHV.
 ///
 /// Mn = 56100 f / S with S = AV + OHV. For uncorrelated inputs (GUM, JCGM 100:2008 §5.1.2),
-/// U(Mn) = Mn · U(S) / S. With the acidity correction S = 2·AV + OHV_raw, so
-/// U(S)² = (2·U_AV)² + U_OHV²; without it U(S)² = U_AV² + U_OHV². Expanded uncertainties of the
-/// same coverage factor (k = 2) propagate linearly in this first-order form.
+/// U(Mn) = Mn · U(S) / S. With OHV = raw + c·AV, S = (1 + c)·AV + OHV_raw, so
+/// U(S)² = ((1 + c)·U_AV)² + U_OHV²: (2·U_AV)² for an added correction, U_AV² without one, and
+/// no AV term at all for a subtracted one. Expanded uncertainties of the same coverage factor
+/// (k = 2) propagate linearly in this first-order form.
 pub fn mn_expanded_uncertainty(
     mn: f64,
     av: f64,
     u_av: f64,
     ohv_entered: f64,
     u_ohv: f64,
-    acidity_correction: bool,
+    correction: impl Into<AcidityCorrection>,
 ) -> f64 {
-    let (sum, u_sum) = if acidity_correction {
-        (
-            2.0 * av + ohv_entered,
-            ((2.0 * u_av).powi(2) + u_ohv.powi(2)).sqrt(),
-        )
-    } else {
-        (av + ohv_entered, (u_av.powi(2) + u_ohv.powi(2)).sqrt())
-    };
+    let k = 1.0 + correction.into().sign();
+    let sum = k * av + ohv_entered;
+    let u_sum = ((k * u_av).powi(2) + u_ohv.powi(2)).sqrt();
     mn * u_sum / sum
 }
 
@@ -470,6 +469,21 @@ mod tests {
         assert_relative_eq!(u, 1989.362 * 0.806226 / 56.4, max_relative = 1e-5);
         let u_plain = mn_expanded_uncertainty(mn, 0.6, 0.05, 55.8, 0.8, false);
         assert!(u_plain < u);
+    }
+
+    #[test]
+    fn subtracted_correction_leaves_av_out_of_the_sum() {
+        // ASTM E1899 measures OHV + AV (chem::hydroxyl_method): OHV = 56.4 − 0.6 = 55.8, and
+        // S = AV + OHV = raw = 56.4 carries no AV uncertainty (GUM first order, by hand).
+        let c = AcidityCorrection::Subtract;
+        assert_relative_eq!(
+            corrected_hydroxyl_value(56.4, 0.6, c),
+            55.8,
+            epsilon = 1e-12
+        );
+        let mn = mn_end_group(0.6, 55.8, 2.0).unwrap();
+        let u = mn_expanded_uncertainty(mn, 0.6, 0.05, 56.4, 0.8, c);
+        assert_relative_eq!(u, mn * 0.8 / 56.4, max_relative = 1e-12);
     }
 
     #[test]

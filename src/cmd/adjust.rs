@@ -26,11 +26,18 @@ pub struct Args {
     /// unless --raw-ohv is given.
     #[arg(long, value_name = "MG_KOH_G", allow_hyphen_values = true)]
     pub ohv: f64,
-    /// The --ohv given is the raw result of an acetylation method (ISO 4629-1/-2, ASTM D4274
-    /// method A), which measures OHV - AV: the acid value is added before any calculation, as
-    /// `endgroup --raw-ohv` does. The target is a corrected hydroxyl value. Default: off.
+    /// The --ohv given is a raw result, corrected for the sample's acidity before any
+    /// calculation as `endgroup --raw-ohv` does: an acetylation method (ISO 4629-1/-2,
+    /// ASTM D4274 method A) measures OHV - AV, so the acid value is added; name another method
+    /// with --ohv-method. The target is a corrected hydroxyl value. Default: off.
     #[arg(long)]
     pub raw_ohv: bool,
+    /// With --raw-ohv: the hydroxyl method the raw result comes from; its row of resinlot's
+    /// method table decides whether the acid value is added (acetylation: ISO 4629-1/-2,
+    /// DIN 53240-1/-2, ASTM D4274, ASTM E222) or subtracted (ASTM E1899, which measures
+    /// OHV + AV). Default: an acetylation method (added).
+    #[arg(long, value_name = "METHOD", requires = "raw_ohv")]
+    pub ohv_method: Option<String>,
     /// Hydroxyl value to reach, in mg KOH/g. Above --ohv a hydroxyl component is added;
     /// below it an acid is added and cooked back to the present acid value.
     #[arg(long, value_name = "MG_KOH_G", allow_hyphen_values = true)]
@@ -66,6 +73,7 @@ const FLAGS: &[(&str, &str)] = &[
     ("acid value and hydroxyl value", "--av and --ohv"),
     ("target hydroxyl value", "--target-ohv"),
     ("largest addition", "--max-addition-pct"),
+    ("hydroxyl method", "--ohv-method"),
 ];
 
 /// Runs the command.
@@ -77,7 +85,13 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     crate::error::within("--max-addition-pct", max_pct, 0.0, 100.0, "%")?;
     crate::chem::ranges::group_value("--av", args.av)?;
     crate::chem::ranges::group_value("--ohv", args.ohv)?;
-    let ohv = crate::chem::stepgrowth::corrected_hydroxyl_value(args.ohv, args.av, args.raw_ohv);
+    let acidity = if args.raw_ohv {
+        crate::chem::hydroxyl_method::raw_correction(args.ohv_method.as_deref())
+            .map_err(|e| crate::cmd::args::name_flags(e, FLAGS))?
+    } else {
+        crate::chem::hydroxyl_method::AcidityCorrection::None
+    };
+    let ohv = crate::chem::stepgrowth::corrected_hydroxyl_value(args.ohv, args.av, acidity);
     let raising = args.target_ohv > ohv;
     let (flag, asked) = match (&args.diol, &args.acid) {
         (Some(d), _) => ("--diol", Some(d)),

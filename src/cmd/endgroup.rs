@@ -6,6 +6,7 @@ use anyhow::Context;
 
 use crate::chem::analysis::{analyse, Analysis, Titration};
 use crate::chem::gel::{GelMargin, GelState};
+use crate::chem::hydroxyl_method::AcidityCorrection;
 use crate::chem::recipe::Recipe;
 use crate::cmd::Outcome;
 
@@ -27,11 +28,18 @@ pub struct Args {
         value_name = "F"
     )]
     pub functionality: f64,
-    /// The --ohv given is the raw result of an acetylation method (ISO 4629-1/-2, ASTM D4274
-    /// method A), which measures OHV - AV: the acid value is added before any calculation. Do
-    /// not use it for isocyanate-reagent methods. Default: off.
+    /// The --ohv given is a raw result, corrected for the sample's acidity before any
+    /// calculation as its method needs: an acetylation method (ISO 4629-1/-2, ASTM D4274
+    /// method A) measures OHV - AV, so the acid value is added; name another method with
+    /// --ohv-method. Default: off (the --ohv given is already corrected).
     #[arg(long)]
     pub raw_ohv: bool,
+    /// With --raw-ohv: the hydroxyl method the raw result comes from; its row of resinlot's
+    /// method table decides whether the acid value is added (acetylation: ISO 4629-1/-2,
+    /// DIN 53240-1/-2, ASTM D4274, ASTM E222) or subtracted (ASTM E1899, which measures
+    /// OHV + AV). Default: an acetylation method (added).
+    #[arg(long, value_name = "METHOD", requires = "raw_ohv")]
+    pub ohv_method: Option<String>,
     /// Expanded uncertainty (k = 2) of the acid value, in mg KOH/g. With --ohv-u it gives the
     /// expanded uncertainty of Mn. Default: none.
     #[arg(long, value_name = "MG_KOH_G")]
@@ -70,6 +78,7 @@ const FLAGS: &[(&str, &str)] = &[
         "--av-u and --ohv-u",
     ),
     ("solids fraction", "--solids"),
+    ("hydroxyl method", "--ohv-method"),
 ];
 
 /// Runs the command.
@@ -78,10 +87,16 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         Some(path) => Some(Recipe::load(path).context("cannot use the recipe")?),
         None => None,
     };
+    let acidity_correction = if args.raw_ohv {
+        crate::chem::hydroxyl_method::raw_correction(args.ohv_method.as_deref())
+            .map_err(|e| crate::cmd::args::name_flags(e, FLAGS))?
+    } else {
+        AcidityCorrection::None
+    };
     let t = Titration {
         av: args.av,
         ohv: args.ohv,
-        acidity_correction: args.raw_ohv,
+        acidity_correction,
         functionality: args.functionality,
         u_av: args.av_u,
         u_ohv: args.ohv_u,
@@ -153,7 +168,11 @@ pub fn render(a: &Analysis, solids: bool, corrected: bool) -> String {
         (
             format!(
                 "Hydroxyl value{}{basis}",
-                if corrected { ", acidity-corrected" } else { "" }
+                match (corrected, a.acidity_correction) {
+                    (false, _) | (_, AcidityCorrection::None) => "",
+                    (true, AcidityCorrection::Subtract) => ", acidity-corrected (AV subtracted)",
+                    (true, AcidityCorrection::Add) => ", acidity-corrected",
+                }
             ),
             format!("{:.2} mg KOH/g", a.hydroxyl_value_corrected),
         ),

@@ -264,3 +264,81 @@ fn gel_margin_without_recipe_is_refused() {
         .stderr(predicate::str::contains("--gel-margin"))
         .stderr(predicate::str::contains("--recipe"));
 }
+
+#[test]
+fn ohv_method_table_decides_the_correction_issue_18() {
+    // ASTM E1899 measures OHV + AV, so 56.4 raw at AV 0.6 is OHV 55.8; an acetylation method
+    // (ISO 4629-2, the default) measures OHV − AV: 56.4 + 0.6 = 57.0.
+    let ohv = |extra: &[&str]| {
+        let out = Workspace::new()
+            .cmd()
+            .args([
+                "endgroup",
+                "--av",
+                "0.6",
+                "--ohv",
+                "56.4",
+                "--raw-ohv",
+                "--json",
+            ])
+            .args(extra)
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(0));
+        let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        (
+            v["hydroxyl_value_corrected"].as_f64().unwrap(),
+            v["acidity_correction"].as_str().unwrap().to_string(),
+        )
+    };
+    let (e1899, how) = ohv(&["--ohv-method", "ASTM E1899-16"]);
+    assert!(
+        (e1899 - 55.8).abs() < 1e-12 && how == "subtract",
+        "{e1899} {how}"
+    );
+    let (iso, how) = ohv(&["--ohv-method", "ISO 4629-2"]);
+    assert!((iso - 57.0).abs() < 1e-12 && how == "add", "{iso} {how}");
+    let (default, _) = ohv(&[]);
+    assert!((default - 57.0).abs() < 1e-12);
+}
+
+#[test]
+fn unknown_ohv_method_is_refused() {
+    Workspace::new()
+        .cmd()
+        .args([
+            "endgroup",
+            "--av",
+            "0.6",
+            "--ohv",
+            "56.4",
+            "--raw-ohv",
+            "--ohv-method",
+            "ISO 9999",
+        ])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("--ohv-method"))
+        .stderr(predicate::str::contains(
+            "'ISO 9999' is not in resinlot's table",
+        ))
+        .stderr(predicate::str::contains("ASTM E1899"));
+}
+
+#[test]
+fn ohv_method_needs_raw_ohv() {
+    Workspace::new()
+        .cmd()
+        .args([
+            "endgroup",
+            "--av",
+            "0.6",
+            "--ohv",
+            "56.4",
+            "--ohv-method",
+            "ASTM E1899",
+        ])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("--raw-ohv"));
+}
