@@ -87,11 +87,34 @@ fn lot_rows_chunked(path: &Path, lot: &str, chunk: usize) -> Result<Option<Trend
     }))
 }
 
-/// Finds `lot` in any product's trend file.
+/// Finds `lot` in any product's trend file, written in any case: lot ids are unique without
+/// regard to case (issue #14), so an id typed in another case finds the recorded lot (the
+/// rows carry the id as recorded). The exact id is searched first, at memory speed; only a
+/// miss streams the lot column of every file.
 pub fn find_lot(register: &Path, lot: &str) -> Result<Option<Trend>> {
     for path in trend_files(register)? {
         if let Some(t) = lot_rows_in(&path, lot)? {
             return Ok(Some(t));
+        }
+    }
+    if let Some((path, id)) = recorded_id(register, lot)? {
+        return lot_rows_in(&path, &id);
+    }
+    Ok(None)
+}
+
+/// The trend file and recorded id of the lot whose id equals `lot` without regard to ASCII
+/// case, if any.
+pub fn recorded_id(register: &Path, lot: &str) -> Result<Option<(PathBuf, String)>> {
+    for path in trend_files(register)? {
+        let mut found: Option<String> = None;
+        trend_file::scan(&path, &["lot"], |_, cells| {
+            if found.is_none() && cells[0].eq_ignore_ascii_case(lot) {
+                found = Some(cells[0].to_string());
+            }
+        })?;
+        if let Some(id) = found {
+            return Ok(Some((path, id)));
         }
     }
     Ok(None)
