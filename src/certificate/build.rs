@@ -240,7 +240,11 @@ pub fn concession_deviations(
 
 /// Every property of `rec` that falls short of the customer's windows, in words naming both
 /// windows; a missing required result is a shortfall error of its own.
-fn customer_shortfalls(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> Result<Vec<String>> {
+fn customer_shortfalls(
+    spec: &ProductSpec,
+    rec: &LotRecord,
+    ship: &Shipment,
+) -> Result<Vec<String>> {
     let mut failures = Vec::new();
     for p in &spec.properties {
         let window = ship.product.limits.get(&p.key);

@@ -4,7 +4,6 @@
 
 use std::time::Duration;
 
-
 use crate::cmd::args::{check_lot_id, Locking, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
@@ -117,7 +116,12 @@ fn check_flags(args: &Args) -> anyhow::Result<()> {
         .into());
     }
     if args.approver.trim().is_empty() {
-        return Err(Error::invalid("--approver", "the approver is empty", "Pass --approver \"Name, role\".").into());
+        return Err(Error::invalid(
+            "--approver",
+            "the approver is empty",
+            "Pass --approver \"Name, role\".",
+        )
+        .into());
     }
     let concession = args.decision == Decision::Concession;
     for (flag, value) in [

@@ -6,8 +6,8 @@ use std::time::Duration;
 use crate::cmd::args::{CertificatesFolder, Locking, RegisterFolder};
 use crate::cmd::Outcome;
 use crate::record::certfiles;
-use crate::record::lifecycle;
 use crate::record::integrity::{self, CertVerdict, Repair};
+use crate::record::lifecycle;
 use crate::record::trend_file::Wait;
 
 /// Arguments of `resinlot verify`.

@@ -170,7 +170,10 @@ mod tests {
     fn only_held_or_incomplete_lots_are_released_by_disposition() {
         for decision in [Decision::Released, Decision::Concession] {
             assert_eq!(check(at(Status::OnHold), decision), Ok(Status::Released));
-            assert_eq!(check(at(Status::Incomplete), decision), Ok(Status::Released));
+            assert_eq!(
+                check(at(Status::Incomplete), decision),
+                Ok(Status::Released)
+            );
             let e = check(at(Status::Rejected), decision).unwrap_err();
             assert!(e.contains("the lot is rejected: only a lot on hold"), "{e}");
             assert!(check(at(Status::Released), decision).is_err());
@@ -233,13 +236,19 @@ mod tests {
         let made = d(2025, 11, 20);
         assert_eq!(retest_date(made, 12, None), Some(d(2026, 11, 20)));
         // A retest before the retest date does not move it.
-        assert_eq!(retest_date(made, 12, Some(d(2026, 6, 1))), Some(d(2026, 11, 20)));
+        assert_eq!(
+            retest_date(made, 12, Some(d(2026, 6, 1))),
+            Some(d(2026, 11, 20))
+        );
         // On the date, or after it, it starts a new period from the test date.
         assert_eq!(
             retest_date(made, 12, Some(d(2026, 11, 20))),
             Some(d(2027, 11, 20))
         );
-        assert_eq!(retest_date(made, 6, Some(d(2026, 12, 5))), Some(d(2027, 6, 5)));
+        assert_eq!(
+            retest_date(made, 6, Some(d(2026, 12, 5))),
+            Some(d(2027, 6, 5))
+        );
         assert!(!expired(d(2026, 11, 20), d(2026, 11, 20)));
         assert!(expired(d(2026, 11, 20), d(2026, 11, 21)));
     }

@@ -172,7 +172,10 @@ pub fn lots_elsewhere(
         return Ok(elsewhere);
     }
     // Compared without regard to case (issue #14).
-    let upper: Vec<String> = decisions.iter().map(|d| d.lot.to_ascii_uppercase()).collect();
+    let upper: Vec<String> = decisions
+        .iter()
+        .map(|d| d.lot.to_ascii_uppercase())
+        .collect();
     let ours: HashSet<&str> = upper.iter().map(String::as_str).collect();
     for path in crate::record::query::trend_files(register)? {
         let product = path
@@ -220,9 +223,7 @@ fn recorded_lots(path: &Path, ours: &HashSet<&str>) -> Result<Vec<String>> {
                 }
             } else {
                 let cells = trend_file::split_line(&String::from_utf8_lossy(line));
-                if cells.len() == columns
-                    && ours.contains(cells[2].to_ascii_uppercase().as_str())
-                {
+                if cells.len() == columns && ours.contains(cells[2].to_ascii_uppercase().as_str()) {
                     lots.push(cells[2].clone());
                 }
             }
@@ -642,9 +643,10 @@ pub fn record_disposition(
     d: &Disposition,
 ) -> Result<Dispositioned> {
     let t = &locked.trend;
-    let latest = *t.lot_rows(lot).first().ok_or_else(|| {
-        Error::Shortfall(format!("lot '{lot}' is not in {}", t.path.display()))
-    })?;
+    let latest = *t
+        .lot_rows(lot)
+        .first()
+        .ok_or_else(|| Error::Shortfall(format!("lot '{lot}' is not in {}", t.path.display())))?;
     let standing = crate::record::lifecycle::standing_of(t, latest).ok_or_else(|| {
         Error::invalid(
             format!("{}:{}", t.path.display(), latest.line),

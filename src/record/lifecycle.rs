@@ -141,7 +141,9 @@ pub fn owed_withdrawals(register: &Path, log: &Trend) -> Result<Vec<Owed>> {
         let mut rows = t.lot_rows(lot);
         rows.reverse();
         let withholding = rows.into_iter().find(|row| {
-            t.cell(row, "seq").parse::<usize>().is_ok_and(|s| s > anchor)
+            t.cell(row, "seq")
+                .parse::<usize>()
+                .is_ok_and(|s| s > anchor)
                 && Status::parse(t.cell(row, "status")).is_some_and(disposition::withdraws)
         });
         if let Some(row) = withholding {
