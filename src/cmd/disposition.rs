@@ -63,8 +63,7 @@ pub struct Args {
     pub locking: Locking,
 }
 
-/// The lines telling whom to notify of `withdrawn` certificates (customer ones; internal
-/// records are named as withdrawn too).
+/// The lines telling whom to notify of `withdrawn` certificates.
 pub fn notify_text(lot: &str, withdrawn: &[Withdrawn]) -> String {
     let mut out = String::new();
     let customers: Vec<&Withdrawn> = withdrawn
@@ -87,17 +86,6 @@ pub fn notify_text(lot: &str, withdrawn: &[Withdrawn]) -> String {
                 }
             ));
         }
-    }
-    let internal: Vec<&str> = withdrawn
-        .iter()
-        .filter(|w| w.customer.is_empty())
-        .map(|w| w.number.as_str())
-        .collect();
-    if !internal.is_empty() {
-        out.push_str(&format!(
-            "Internal certificates withdrawn: {}\n",
-            internal.join(", ")
-        ));
     }
     out
 }

@@ -447,6 +447,7 @@ pub fn check_withdrawable(register: &Path, lots: &[&str]) -> Result<()> {
     let standing = standings(&t);
     let certified = t.rows.iter().any(|r| {
         is_issue_row(&t, r)
+            && !t.cell(r, "customer").is_empty()
             && lots
                 .iter()
                 .any(|l| t.cell(r, "lot").eq_ignore_ascii_case(l))
@@ -544,9 +545,11 @@ impl Log {
         self.locked.sync()
     }
 
-    /// Withdraws every current certificate of `lot` but those in `except`, because of trend
-    /// row `cause` (the row that made the lot rejected or on hold): one `withdrawn` row each,
-    /// synced. Returns the certificates withdrawn (the customers among them must be told).
+    /// Withdraws every current customer certificate of `lot` but those in `except`, because
+    /// of trend row `cause` (the row that made the lot rejected or on hold): one `withdrawn`
+    /// row each, synced. Returns the certificates withdrawn (their customers must be told).
+    /// Internal certificates are QC records of the row they were issued for and stay as they
+    /// are (a retest's new internal certificate supersedes the old one).
     pub fn withdraw_lot(
         &mut self,
         lot: &str,
@@ -554,7 +557,8 @@ impl Log {
         except: &[String],
         at: &str,
     ) -> Result<Vec<Entry>> {
-        let gone = self.current_of_lot(lot, except);
+        let mut gone = self.current_of_lot(lot, except);
+        gone.retain(|e| !e.customer.is_empty());
         let events: Vec<Event> = gone
             .iter()
             .map(|e| Event::withdrawal(e, cause, at))
@@ -584,7 +588,18 @@ impl Log {
     /// Marks `old` superseded by certificate `new_number` (a reissue), when it is still
     /// current; nothing when it was already superseded or withdrawn.
     pub fn supersede(&mut self, old: &str, new_number: &str, reason: &str, at: &str) -> Result<()> {
-        if !matches!(self.standings().get(old), Some(Standing::Current)) {
+        let t = &self.locked.trend;
+        let has_event = t
+            .rows
+            .iter()
+            .any(|r| is_event_row(t, r) && t.cell(r, "number") == old);
+        // The reissue row itself already names `old`: that supersession is the one recorded.
+        let due = match self.standings().get(old) {
+            Some(Standing::Current) => true,
+            Some(Standing::Superseded { by, .. }) => by == new_number && !has_event,
+            _ => false,
+        };
+        if !due {
             return Ok(());
         }
         let Some(e) = self.entries().into_iter().find(|e| e.number == old) else {

@@ -4,7 +4,7 @@
 //!
 //! **Order of writing a withdrawal.** The trend row that rejects or holds the lot (a retest
 //! or a disposition) is appended and synced first, then one `withdrawn` row per current
-//! certificate of the lot goes to the certificate log, naming that trend row in `cause`,
+//! customer certificate of the lot goes to the certificate log, naming that trend row in `cause`,
 //! `trend_row` and `trend_chain`. A kill between the two leaves certificates issued before
 //! a withholding row still current: [`owed_withdrawals`] finds exactly those (`verify`
 //! reports them) and [`complete_withdrawals`] appends the missing rows (`verify
@@ -123,7 +123,8 @@ pub fn owed_withdrawals(register: &Path, log: &Trend) -> Result<Vec<Owed>> {
     let mut out = Vec::new();
     for r in log.rows.iter().filter(|r| certlog::is_issue_row(log, r)) {
         let number = log.cell(r, "number");
-        if standing.get(number) != Some(&Standing::Current) {
+        // Only customer certificates are withdrawn (see `Log::withdraw_lot`).
+        if log.cell(r, "customer").is_empty() || standing.get(number) != Some(&Standing::Current) {
             continue;
         }
         let Ok(anchor) = log.cell(r, "trend_row").parse::<usize>() else {
