@@ -44,6 +44,10 @@ pub struct Args {
     /// Print CSV (for a spreadsheet) instead of the table.
     #[arg(long)]
     pub csv: bool,
+    /// Also list lots past their retest date (manufacture date + the spec's retest_months,
+    /// extended by a retest on or after it). Default: they are left out and counted.
+    #[arg(long)]
+    pub include_expired: bool,
 }
 
 /// Runs the command.
@@ -67,15 +71,17 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         customer: args.customer.as_deref(),
         specs: &args.specs,
         every: args.json || args.csv,
+        include_expired: args.include_expired,
+        today: crate::support::clock::now()?.date_naive(),
     })?;
     let text = if args.json {
         serde_json::to_string_pretty(&find::json_value(product, &found))? + "\n"
     } else if args.csv {
         find::csv_text(product, &found)?
     } else if found.hits.is_empty() {
-        "No lots match.\n".to_string()
+        format!("No lots match.\n{}", found.expired_text())
     } else {
-        table_text(product, &windows, &found)
+        table_text(product, &windows, &found) + &found.expired_text()
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
@@ -88,11 +94,12 @@ fn table_text(product: &str, windows: &[Window], found: &Found) -> String {
         h.extend(show.iter().cloned());
         h
     }];
-    for r in found.hit_rows() {
+    for &i in &found.hits {
+        let r = &found.lots[i];
         let mut line = vec![
             r.lot.to_string(),
             r.manufactured.to_string(),
-            r.status.to_string(),
+            found.status_text(i),
         ];
         for k in &show {
             line.push(find::table_cell(found, r, k));

@@ -40,10 +40,12 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     } else {
         None
     };
+    let spec = rec.spec(specs.as_ref());
+    let today = crate::support::clock::now()?.date_naive();
     let text = if args.json {
-        serde_json::to_string_pretty(&answer::as_json(&rec))? + "\n"
+        serde_json::to_string_pretty(&answer::as_json(&rec, spec, today))? + "\n"
     } else {
-        answer::answer(&rec, rec.spec(specs.as_ref())).text()
+        answer::answer(&rec, spec, today).text()
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)

@@ -6,8 +6,10 @@ use std::path::Path;
 use serde::Serialize;
 use serde_json::{json, Map, Value};
 
+use chrono::NaiveDate;
+
 use crate::error::Result;
-use crate::record::certlog::Entry;
+use crate::record::certlog::{Entry, Standing};
 use crate::record::trend_file::{Row, Trend};
 use crate::spec::keys;
 use crate::spec::{end_groups_words, limits_text, ProductSpec, SpecSet};
@@ -17,8 +19,8 @@ use crate::spec::{end_groups_words, limits_text, ProductSpec, SpecSet};
 pub struct LotRecord {
     /// The lot's rows of its trend file (file order).
     pub trend: Trend,
-    /// The certificate log's entries for the lot (log order).
-    pub certificates: Vec<Entry>,
+    /// The certificate log's entries for the lot (log order), each with its standing now.
+    pub certificates: Vec<(Entry, Standing)>,
 }
 
 impl LotRecord {
@@ -33,6 +35,15 @@ impl LotRecord {
         let cur = t.rows.last()?;
         specs.and_then(|s| s.revision(t.cell(cur, "product"), t.cell(cur, "spec_revision")))
     }
+
+    /// The lot's retest date under `spec` (manufacture date plus the spec's retest period,
+    /// extended by a retest on or after it; `record::lifecycle::retest_date`).
+    pub fn retest_date(&self, spec: Option<&ProductSpec>) -> Option<NaiveDate> {
+        let rows = self.rows_newest_first();
+        spec.and_then(|s| {
+            crate::record::lifecycle::retest_date(&self.trend, &rows, rows[0], s.retest_months)
+        })
+    }
 }
 
 /// Reads one lot from the record (`record::query::find_lot` and the certificate log), or None
@@ -41,9 +52,27 @@ pub fn load(register: &Path, lot: &str) -> Result<Option<LotRecord>> {
     let Some(trend) = crate::record::query::find_lot(register, lot)? else {
         return Ok(None);
     };
+    // The id as recorded: any case finds the lot (issue #14).
+    let recorded = trend
+        .rows
+        .last()
+        .map(|r| trend.cell(r, "lot").to_string())
+        .unwrap_or_default();
+    let log = crate::record::certlog::read(register)?;
+    let standings = log
+        .as_ref()
+        .map(crate::record::certlog::standings)
+        .unwrap_or_default();
     let certificates = crate::record::certlog::entries(register)?
         .into_iter()
-        .filter(|e| e.lot == lot)
+        .filter(|e| e.lot == recorded)
+        .map(|e| {
+            let standing = standings
+                .get(&e.number)
+                .cloned()
+                .unwrap_or(Standing::Current);
+            (e, standing)
+        })
         .collect();
     Ok(Some(LotRecord {
         trend,
@@ -90,6 +119,9 @@ pub struct CertificateLine {
     pub supersedes: String,
     /// The reason for the reissue.
     pub reason: String,
+    /// Its standing in words ("WITHDRAWN <when>: <why>", "superseded by <number>"), empty
+    /// while current.
+    pub standing: String,
 }
 
 /// One superseded row of the lot.
@@ -127,6 +159,8 @@ pub struct LotAnswer {
     pub notes: String,
     /// Certificates issued for the lot.
     pub certificates: Vec<CertificateLine>,
+    /// QA's dispositions of the lot, oldest first, one line each (issue #14).
+    pub dispositions: Vec<String>,
     /// Superseded rows, newest first.
     pub history: Vec<HistoryLine>,
     /// The reason given for the current row's retest, empty when none.
@@ -145,8 +179,9 @@ pub fn reported(spec: Option<&ProductSpec>, key: &str, cell: &str) -> String {
     }
 }
 
-/// Builds the answer for a lot from its record and the spec revision it was decided under.
-pub fn answer(rec: &LotRecord, spec: Option<&ProductSpec>) -> LotAnswer {
+/// Builds the answer for a lot from its record and the spec revision it was decided under;
+/// `today` decides whether the lot is past its retest date.
+pub fn answer(rec: &LotRecord, spec: Option<&ProductSpec>, today: NaiveDate) -> LotAnswer {
     let t = &rec.trend;
     let rows = rec.rows_newest_first();
     let cur = rows[0];
@@ -156,13 +191,18 @@ pub fn answer(rec: &LotRecord, spec: Option<&ProductSpec>) -> LotAnswer {
         product: c("product").to_string(),
         product_name: spec.map(|s| s.name.clone()).unwrap_or_default(),
         status: c("status").replace('_', " "),
-        facts: facts(spec, &c),
+        facts: facts(&c, rec.retest_date(spec).map(|d| (d, today))),
         properties: property_lines(t, spec, &c),
         derived: derived(spec, &c),
         notes: c("notes").to_string(),
-        certificates: rec.certificates.iter().map(certificate_line).collect(),
+        certificates: rec
+            .certificates
+            .iter()
+            .map(|(e, st)| certificate_line(e, st))
+            .collect(),
+        dispositions: dispositions(t, &rows),
         history: history(t, &rows, spec),
-        retest_reason: if rows.len() > 1 {
+        retest_reason: if rows.len() > 1 && crate::record::lifecycle::is_retest_row(t, cur) {
             c("reason").to_string()
         } else {
             String::new()
@@ -170,18 +210,26 @@ pub fn answer(rec: &LotRecord, spec: Option<&ProductSpec>) -> LotAnswer {
     }
 }
 
-/// The lot's status, dates and retest date, as label-value pairs.
-fn facts<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> Vec<(String, String)> {
-    let retest = spec.and_then(|s| {
-        chrono::NaiveDate::parse_from_str(c("manufactured"), "%Y-%m-%d")
-            .ok()
-            .and_then(|d| crate::spec::retest_date(d, s.retest_months))
-    });
+/// The lot's status, dates and retest date (with `shelf` = (retest date, today): expired
+/// since the retest date once it has passed), as label-value pairs.
+fn facts<'a>(
+    c: &dyn Fn(&str) -> &'a str,
+    shelf: Option<(NaiveDate, NaiveDate)>,
+) -> Vec<(String, String)> {
+    let concession = if c("disposition") == "concession" {
+        format!(
+            ", under concession {} for customer '{}' only",
+            c("concession_ref"),
+            c("concession_customer")
+        )
+    } else {
+        String::new()
+    };
     let mut facts = vec![
         (
             "Status".to_string(),
             format!(
-                "{} (spec revision {})",
+                "{} (spec revision {}){concession}",
                 c("status").replace('_', " "),
                 c("spec_revision")
             ),
@@ -192,10 +240,43 @@ fn facts<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> Vec<(St
             format!("{} by {}", c("recorded_at"), c("approver")),
         ),
     ];
-    if let Some(r) = retest {
-        facts.push(("Retest date".into(), r.to_string()));
+    if let Some((r, today)) = shelf {
+        let text = if crate::lot::disposition::expired(r, today) {
+            format!("{r}: expired since {r}; retest before use (`release --retest`)")
+        } else {
+            r.to_string()
+        };
+        facts.push(("Retest date".into(), text));
     }
     facts
+}
+
+/// QA's dispositions of the lot, oldest first, in plain words (issue #14).
+fn dispositions(t: &Trend, rows: &[&Row]) -> Vec<String> {
+    let mut out = Vec::new();
+    for r in rows.iter().rev() {
+        let Some(d) = crate::record::lifecycle::disposition_of(t, r) else {
+            continue;
+        };
+        out.push(format!(
+            "row {}  {}  {} by {}{}: {}",
+            t.cell(r, "seq"),
+            t.cell(r, "recorded_at"),
+            d.words(),
+            t.cell(r, "approver"),
+            if d == crate::lot::disposition::Decision::Concession {
+                format!(
+                    " (concession {} for customer '{}')",
+                    t.cell(r, "concession_ref"),
+                    t.cell(r, "concession_customer")
+                )
+            } else {
+                String::new()
+            },
+            t.cell(r, "reason")
+        ));
+    }
+    out
 }
 
 /// Every recorded property: result, unit, limits and verdict.
@@ -267,8 +348,8 @@ fn derived<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> Vec<S
     out
 }
 
-/// One certificate of the log in words.
-fn certificate_line(e: &Entry) -> CertificateLine {
+/// One certificate of the log in words, with its standing.
+fn certificate_line(e: &Entry, st: &Standing) -> CertificateLine {
     let void = crate::record::certfiles::is_void(e);
     CertificateLine {
         number: e.number.clone(),
@@ -283,6 +364,11 @@ fn certificate_line(e: &Entry) -> CertificateLine {
         void,
         supersedes: e.supersedes.clone(),
         reason: e.reason.clone(),
+        standing: match st {
+            Standing::Withdrawn { at, reason, .. } if !void => format!("WITHDRAWN {at}: {reason}"),
+            Standing::Superseded { by, .. } => format!("superseded by {by}"),
+            _ => String::new(),
+        },
     }
 }
 
@@ -357,7 +443,7 @@ impl LotAnswer {
         }
         for e in &self.certificates {
             out.push_str(&format!(
-                "  {}  {}  {}{}\n",
+                "  {}  {}  {}{}{}\n",
                 e.number,
                 e.issued_to,
                 e.issued_at,
@@ -365,8 +451,19 @@ impl LotAnswer {
                     String::new()
                 } else {
                     format!("  (supersedes {}: {})", e.supersedes, e.reason)
+                },
+                if e.standing.is_empty() {
+                    String::new()
+                } else {
+                    format!("  {}", e.standing)
                 }
             ));
+        }
+        if !self.dispositions.is_empty() {
+            out.push_str("\nQA dispositions (oldest first):\n");
+            for d in &self.dispositions {
+                out.push_str(&format!("  {d}\n"));
+            }
         }
         if !self.history.is_empty() {
             out.push_str("\nHistory (superseded results, newest first):\n");
@@ -417,12 +514,24 @@ fn row_json(t: &Trend, row: &Row) -> Value {
         "values": values(t, row),
         "verdicts": verdicts,
         "notes": t.cell(row, "notes"),
+        "disposition": non_empty(t.cell(row, "disposition")),
+        "concession_ref": non_empty(t.cell(row, "concession_ref")),
+        "concession_customer": non_empty(t.cell(row, "concession_customer")),
     })
 }
 
+fn non_empty(s: &str) -> Value {
+    if s.is_empty() {
+        Value::Null
+    } else {
+        json!(s)
+    }
+}
+
 /// The JSON answer of `lookup --json`: the current row's fields at the top level (values at full
-/// precision), older rows under `history`.
-pub fn as_json(rec: &LotRecord) -> Value {
+/// precision), older rows under `history`, the retest date under `spec` and whether it has
+/// passed on `today`.
+pub fn as_json(rec: &LotRecord, spec: Option<&ProductSpec>, today: NaiveDate) -> Value {
     let t = &rec.trend;
     let rows = rec.rows_newest_first();
     let cur = rows[0];
@@ -442,12 +551,18 @@ pub fn as_json(rec: &LotRecord) -> Value {
         json!(rec
             .certificates
             .iter()
-            .map(|c| json!({"number": c.number, "customer": c.customer_name, "issued_at": c.issued_at, "file": c.file}))
+            .map(|(c, st)| json!({"number": c.number, "customer": c.customer_name, "issued_at": c.issued_at, "file": c.file, "standing": st}))
             .collect::<Vec<_>>()),
     );
     obj.insert(
         "history".into(),
         json!(rows[1..].iter().map(|r| row_json(t, r)).collect::<Vec<_>>()),
+    );
+    let shelf = rec.retest_date(spec);
+    obj.insert("retest_date".into(), json!(shelf.map(|d| d.to_string())));
+    obj.insert(
+        "expired".into(),
+        json!(shelf.map(|d| crate::lot::disposition::expired(d, today))),
     );
     v
 }
@@ -463,6 +578,10 @@ mod tests {
         let row = |status: &str, av: &str, mn: &str, reason: &str| {
             vec![
                 ("lot", "L1".to_string()),
+                (
+                    "supersedes",
+                    if reason.is_empty() { "" } else { "1" }.to_string(),
+                ),
                 ("product", "TP-1".into()),
                 ("status", status.into()),
                 ("acid_value", av.into()),
@@ -485,7 +604,7 @@ mod tests {
     fn the_answer_puts_the_current_row_first_and_keeps_the_history() {
         let dir = tempfile::tempdir().unwrap();
         let rec = retested(dir.path());
-        let a = answer(&rec, None);
+        let a = answer(&rec, None, NaiveDate::from_ymd_opt(2026, 12, 1).unwrap());
         assert_eq!(a.status, "released");
         assert_eq!(a.properties[0].result, "0.5");
         assert_eq!(a.history.len(), 1);

@@ -7,7 +7,7 @@ use chrono::NaiveDate;
 
 use crate::error::{Error, Result};
 use crate::lot::evaluate::Status;
-use crate::record::query::{LotRow, Window};
+use crate::record::query::{Life, LotRow, Window};
 use crate::spec::customer::{customer_fit, Customer, CustomerProduct};
 use crate::spec::decision::decimal_from_f64;
 use crate::spec::keys;
@@ -19,6 +19,8 @@ pub const HEADLINE_KEYS: [&str; 3] = [keys::MN, keys::ACID_VALUE, keys::HYDROXYL
 /// A customer's requirements for the product searched, with the specs they tighten.
 #[derive(Debug, Clone, Copy)]
 pub struct CustomerCheck<'a> {
+    /// The customer's file stem (a lot released under concession goes to that customer only).
+    pub customer: &'a str,
     /// Every spec revision (a lot is judged under the revision it was released under).
     pub specs: &'a SpecSet,
     /// The customer's requirements for the product.
@@ -40,6 +42,43 @@ pub struct LotFilter<'a> {
     pub to: Option<NaiveDate>,
     /// Only lots that can be certified for this customer.
     pub customer: Option<CustomerCheck<'a>>,
+    /// Each lot's life (parallel to the lots), for shelf life and concessions (issue #14).
+    pub life: Option<LifeCheck<'a>>,
+}
+
+/// Shelf life and concessions in a search (issue #14).
+#[derive(Debug, Clone, Copy)]
+pub struct LifeCheck<'a> {
+    /// Each lot's [`Life`], parallel to the lots searched.
+    pub lives: &'a [Life],
+    /// The specs (the retest period of the lot's revision); without them nothing expires.
+    pub specs: Option<&'a SpecSet>,
+    /// Today, against which the retest date is judged.
+    pub today: NaiveDate,
+    /// Keep lots past their retest date (they are counted, not listed, otherwise).
+    pub include_expired: bool,
+}
+
+/// True when the lot of `row` (with `life`) is past its retest date on `today` under its
+/// spec revision's `retest_months` ([`crate::lot::disposition::retest_date`]); a lot whose
+/// revision is not in `specs` is not judged.
+pub fn is_expired(
+    product: &str,
+    row: &LotRow,
+    life: &Life,
+    specs: &SpecSet,
+    today: NaiveDate,
+) -> bool {
+    let Some(spec) = specs.revision(product, row.revision) else {
+        return false;
+    };
+    let date = |d: &str| NaiveDate::parse_from_str(d, "%Y-%m-%d").ok();
+    let Some(made) = date(&row.manufactured) else {
+        return false;
+    };
+    let retested = life.retested.and_then(|d| date(&d));
+    crate::lot::disposition::retest_date(made, spec.retest_months, retested)
+        .is_some_and(|until| crate::lot::disposition::expired(until, today))
 }
 
 /// The status asked for, or by default: any status, but only released lots for a customer
@@ -81,14 +120,34 @@ pub fn matching_lots<'r>(
     loaded: &[String],
     filter: &LotFilter,
 ) -> Vec<&'r LotRow> {
-    matching_indices(lots, loaded, filter)
-        .into_iter()
-        .map(|i| &lots[i])
-        .collect()
+    matching_lots_counted(lots, loaded, filter).0
 }
 
-/// The indices in `lots` of the lots that meet `filter`, in the order of [`matching_lots`].
-pub fn matching_indices(lots: &[LotRow], loaded: &[String], filter: &LotFilter) -> Vec<usize> {
+/// [`matching_lots`], and how many lots that met every other condition were left out as past
+/// their retest date (issue #14).
+pub fn matching_lots_counted<'r>(
+    lots: &'r [LotRow],
+    loaded: &[String],
+    filter: &LotFilter,
+) -> (Vec<&'r LotRow>, usize) {
+    let (hits, expired) = matching_indices_counted(lots, loaded, filter);
+    (hits.into_iter().map(|i| &lots[i]).collect(), expired)
+}
+
+/// [`matching_lots_counted`] as indices into `lots` (issue #21: the web page keeps the lots
+/// and their matches together).
+pub fn matching_indices_counted(
+    lots: &[LotRow],
+    loaded: &[String],
+    filter: &LotFilter,
+) -> (Vec<usize>, usize) {
+    let life_of = |i: usize| -> Life {
+        filter
+            .life
+            .and_then(|l| l.lives.get(i).copied())
+            .unwrap_or_default()
+    };
+    let mut expired = 0usize;
     // Dates are YYYY-MM-DD, so text order is date order: no parsing per row.
     let from = filter.from.map(|d| d.to_string());
     let to = filter.to.map(|d| d.to_string());
@@ -109,10 +168,29 @@ pub fn matching_indices(lots: &[LotRow], loaded: &[String], filter: &LotFilter) 
                 .zip(&win_idx)
                 .all(|(w, &i)| row.values[i].is_some_and(|v| w.contains(v)))
         })
-        .filter(|(_, row)| {
-            filter
-                .customer
-                .is_none_or(|c| fits_customer(filter.product, row, loaded, c))
+        .filter(|&(i, row)| {
+            filter.customer.is_none_or(|c| {
+                let life = life_of(i);
+                if life.concession.is_empty() {
+                    fits_customer(filter.product, row, loaded, c)
+                } else {
+                    // Under concession: for its customer, as conceded; for no one else.
+                    life.concession == c.customer
+                }
+            })
+        })
+        .filter(|&(i, row)| {
+            let Some(l) = filter.life else {
+                return true;
+            };
+            let gone = l
+                .specs
+                .is_some_and(|s| is_expired(filter.product, row, &life_of(i), s, l.today));
+            if gone && !l.include_expired {
+                expired += 1;
+                return false;
+            }
+            true
         })
         .map(|(i, _)| i)
         .collect();
@@ -122,7 +200,7 @@ pub fn matching_indices(lots: &[LotRow], loaded: &[String], filter: &LotFilter) 
             .cmp(&a.manufactured)
             .then(b.line.cmp(&a.line))
     });
-    hits
+    (hits, expired)
 }
 
 /// A search of one product's lots, as `find` and the web find page take it.
@@ -146,6 +224,10 @@ pub struct Search<'a> {
     pub specs: &'a Path,
     /// Load every property (JSON, CSV), not only the windows' and the headline keys.
     pub every: bool,
+    /// List lots past their retest date too (otherwise they are counted, not listed).
+    pub include_expired: bool,
+    /// Today, against which retest dates are judged.
+    pub today: NaiveDate,
 }
 
 /// What a [`Search`] found.
@@ -157,8 +239,12 @@ pub struct Found {
     pub loaded: Vec<String>,
     /// Every lot's current row.
     pub lots: Vec<LotRow>,
+    /// Each lot's life (retest, concession), parallel to `lots`.
+    pub lives: Vec<Life>,
     /// Indices into `lots` of the matches, newest first.
     pub hits: Vec<usize>,
+    /// Lots that met every other condition but are past their retest date and were left out.
+    pub expired: usize,
     /// The customer's legal name, when a customer's windows applied.
     pub customer_name: Option<String>,
 }
@@ -167,6 +253,39 @@ impl Found {
     /// The matching lots, newest first.
     pub fn hit_rows(&self) -> Vec<&LotRow> {
         self.hits.iter().map(|&i| &self.lots[i]).collect()
+    }
+
+    /// The customer a lot (index into `lots`) was released to under concession, if any.
+    pub fn concession(&self, i: usize) -> Option<&'static str> {
+        self.lives
+            .get(i)
+            .map(|l| l.concession)
+            .filter(|c| !c.is_empty())
+    }
+
+    /// The status of a found lot as the table shows it: "released (concession for X)" for a
+    /// lot released under concession.
+    pub fn status_text(&self, i: usize) -> String {
+        let r = &self.lots[i];
+        match self.concession(i) {
+            Some(c) => format!("{} (concession for {c})", r.status),
+            None => r.status.to_string(),
+        }
+    }
+
+    /// The line saying how many lots were left out as past their retest date (issue #14),
+    /// empty when none.
+    pub fn expired_text(&self) -> String {
+        match self.expired {
+            0 => String::new(),
+            n => format!(
+                "{n} more lot{} matched but {} past {} retest date and left out (--include-expired lists {}).\n",
+                if n == 1 { "" } else { "s" },
+                if n == 1 { "is" } else { "are" },
+                if n == 1 { "its" } else { "their" },
+                if n == 1 { "it" } else { "them" },
+            ),
+        }
     }
 }
 
@@ -184,10 +303,14 @@ pub fn search(s: &Search) -> Result<Found> {
             cu.product(s.product)?;
             (Some(specs), Some(cu))
         }
+        // Shelf life needs the retest period of each lot's revision; without a specs folder
+        // nothing is judged expired.
+        None if s.specs.is_dir() => (Some(SpecSet::load(s.specs)?), None),
         None => (None, None),
     };
     let customer_check = match (&specs, &customer) {
         (Some(specs), Some(cu)) => Some(CustomerCheck {
+            customer: &cu.id,
             specs,
             requirements: cu.product(s.product)?,
         }),
@@ -195,7 +318,8 @@ pub fn search(s: &Search) -> Result<Found> {
     };
     // A customer's check needs every property.
     let loaded = keys_to_load(&keys, s.windows, s.every || customer.is_some());
-    let (_, lots) = crate::record::query::current_lots(s.trend_file, &loaded, customer.is_some())?;
+    let (_, lots, lives) =
+        crate::record::query::current_lots_with_life(s.trend_file, &loaded, customer.is_some())?;
     let filter = LotFilter {
         product: s.product,
         windows: s.windows,
@@ -203,13 +327,21 @@ pub fn search(s: &Search) -> Result<Found> {
         from: s.from,
         to: s.to,
         customer: customer_check,
+        life: Some(LifeCheck {
+            lives: &lives,
+            specs: specs.as_ref(),
+            today: s.today,
+            include_expired: s.include_expired,
+        }),
     };
-    let hits = matching_indices(&lots, &loaded, &filter);
+    let (hits, expired) = matching_indices_counted(&lots, &loaded, &filter);
     Ok(Found {
         keys,
         loaded,
         lots,
+        lives,
         hits,
+        expired,
         customer_name: customer.map(|c| c.name),
     })
 }
@@ -242,26 +374,30 @@ pub fn csv_text(product: &str, found: &Found) -> Result<String> {
     String::from_utf8(bytes).map_err(|e| bad(&e))
 }
 
-/// The found lots as JSON (`find --json`): `{"lots": [...]}` with every property at full
-/// precision (null when not recorded).
+/// The found lots as JSON (`find --json`): `{"lots": [...], "expired_left_out": n}` with
+/// every property at full precision (null when not recorded).
 pub fn json_value(product: &str, found: &Found) -> serde_json::Value {
     use serde_json::{json, Map, Value};
     let lots: Vec<Value> = found
-        .hit_rows()
+        .hits
         .iter()
-        .map(|r| {
+        .map(|&i| {
+            let r = &found.lots[i];
             let mut m = Map::new();
             m.insert("lot".into(), json!(r.lot));
             m.insert("product".into(), json!(product));
             m.insert("manufactured".into(), json!(r.manufactured));
             m.insert("status".into(), json!(r.status));
+            if let Some(c) = found.concession(i) {
+                m.insert("concession_customer".into(), json!(c));
+            }
             for (k, v) in found.loaded.iter().zip(&r.values) {
                 m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
             }
             Value::Object(m)
         })
         .collect();
-    json!({ "lots": lots })
+    json!({ "lots": lots, "expired_left_out": found.expired })
 }
 
 /// The columns the table of found lots shows: the windows' keys, then the

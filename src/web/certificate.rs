@@ -154,16 +154,27 @@ pub struct VerdictView {
     pub certificate_link: String,
 }
 
-/// The view of `verdict` for a file uploaded as `name`.
+/// The view of `verdict`, in the words of `resinlot verify`.
 pub fn verdict_view(verdict: &CertVerdict) -> VerdictView {
     let link = |e: &Entry| format!("/certificate/{}", e.number);
+    let to = |e: &Entry| {
+        if e.customer_name.is_empty() {
+            String::new()
+        } else {
+            format!(" to {}", e.customer_name)
+        }
+    };
     match verdict {
-        CertVerdict::Genuine { entry } if crate::record::certfiles::is_void(entry) => VerdictView {
+        CertVerdict::Withdrawn {
+            entry,
+            withdrawn_at,
+            ..
+        } if crate::record::certfiles::is_void(entry) => VerdictView {
             word: "VOID",
             tone: "bad",
             sentence: format!(
-                "Number {} was logged as void on {} (a file found without its log entry); it is not a valid certificate.",
-                entry.number, entry.issued_at
+                "Number {} was logged as void on {withdrawn_at} (a file found without its log entry); it is not a valid certificate.",
+                entry.number
             ),
             certificate_link: link(entry),
         },
@@ -171,14 +182,44 @@ pub fn verdict_view(verdict: &CertVerdict) -> VerdictView {
             word: "genuine",
             tone: "good",
             sentence: format!(
-                "Certificate {} for lot {}{}, issued {}: these are exactly the bytes issued.",
+                "Certificate {} for lot {}{}, issued {}: these are exactly the bytes issued, and the certificate is current.",
                 entry.number,
                 entry.lot,
-                if entry.customer_name.is_empty() {
-                    String::new()
-                } else {
-                    format!(" to {}", entry.customer_name)
-                },
+                to(entry),
+                entry.issued_at
+            ),
+            certificate_link: link(entry),
+        },
+        CertVerdict::Superseded {
+            entry,
+            superseded_by,
+            superseded_at,
+            reason,
+        } => VerdictView {
+            word: "SUPERSEDED",
+            tone: "bad",
+            sentence: format!(
+                "Certificate {} for lot {}{}, issued {}, was replaced by certificate {superseded_by} on {superseded_at} ({reason}); ask for {superseded_by}.",
+                entry.number,
+                entry.lot,
+                to(entry),
+                entry.issued_at
+            ),
+            certificate_link: format!("/certificate/{superseded_by}"),
+        },
+        CertVerdict::Withdrawn {
+            entry,
+            withdrawn_at,
+            reason,
+            ..
+        } => VerdictView {
+            word: "WITHDRAWN",
+            tone: "bad",
+            sentence: format!(
+                "Certificate {} for lot {}{}, issued {}, was withdrawn on {withdrawn_at}: {reason}; the lot must not be used on its strength.",
+                entry.number,
+                entry.lot,
+                to(entry),
                 entry.issued_at
             ),
             certificate_link: link(entry),
@@ -265,7 +306,9 @@ pub async fn verify_upload(
     pages::blocking(move || {
         let verdict = integrity::verify_certificate_bytes(&bytes, &name, &config.register)?;
         let sha256 = match &verdict {
-            CertVerdict::Genuine { entry } => entry.sha256.clone(),
+            CertVerdict::Genuine { entry }
+            | CertVerdict::Superseded { entry, .. }
+            | CertVerdict::Withdrawn { entry, .. } => entry.sha256.clone(),
             CertVerdict::Altered { sha256, .. } | CertVerdict::Unknown { sha256 } => sha256.clone(),
         };
         pages::page(

@@ -33,6 +33,8 @@ pub struct FindForm {
     pub to: String,
     /// `csv` for the download.
     pub format: String,
+    /// `on` (the checkbox) to list lots past their retest date too.
+    pub include_expired: String,
 }
 
 /// One lot of the results table.
@@ -56,6 +58,7 @@ struct FindPage {
     columns: Vec<String>,
     lots: Vec<FoundLot>,
     summary: String,
+    expired: String,
     csv_link: String,
 }
 
@@ -126,6 +129,7 @@ fn answer(config: &crate::web::Config, form: FindForm) -> Result<Response, PageE
         columns: Vec::new(),
         lots: Vec::new(),
         summary: String::new(),
+        expired: String::new(),
         csv_link: String::new(),
         form: form.clone(),
     };
@@ -173,6 +177,8 @@ fn answer(config: &crate::web::Config, form: FindForm) -> Result<Response, PageE
         customer,
         specs: &config.specs,
         every: csv,
+        include_expired: !form.include_expired.is_empty(),
+        today: crate::support::clock::now()?.date_naive(),
     })
     .map_err(on_the_form)?;
     if csv {
@@ -190,13 +196,14 @@ fn answer(config: &crate::web::Config, form: FindForm) -> Result<Response, PageE
     page.searched = true;
     page.columns = find::shown_keys(&found.keys, &windows);
     page.lots = found
-        .hit_rows()
+        .hits
         .iter()
-        .map(|r| FoundLot {
+        .map(|&i| (i, &found.lots[i]))
+        .map(|(i, r)| FoundLot {
             lot: r.lot.to_string(),
             href: format!("/lot/{}", r.lot),
             manufactured: r.manufactured.to_string(),
-            status: r.status.replace('_', " "),
+            status: found.status_text(i).replace('_', " "),
             values: page
                 .columns
                 .iter()
@@ -204,6 +211,10 @@ fn answer(config: &crate::web::Config, form: FindForm) -> Result<Response, PageE
                 .collect(),
         })
         .collect();
+    page.expired = found.expired_text().trim().replace(
+        "(--include-expired lists",
+        "(tick \"include expired\" to list",
+    );
     let n = found.hits.len();
     page.summary = format!(
         "{n} lot{} of {product} match{}.",
@@ -221,6 +232,7 @@ fn answer(config: &crate::web::Config, form: FindForm) -> Result<Response, PageE
         ("customer", &form.customer),
         ("from", &form.from),
         ("to", &form.to),
+        ("include_expired", &form.include_expired),
     ];
     page.csv_link = format!(
         "/find?{}&format=csv",

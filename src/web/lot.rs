@@ -58,7 +58,8 @@ pub fn lot_answer(config: &crate::web::Config, lot: &str) -> Result<LotAnswer, P
     } else {
         None
     };
-    Ok(answer::answer(&rec, rec.spec(specs.as_ref())))
+    let today = crate::support::clock::now()?.date_naive();
+    Ok(answer::answer(&rec, rec.spec(specs.as_ref()), today))
 }
 
 /// The 404 page for a lot the record does not hold, with links to the nearest ids.
