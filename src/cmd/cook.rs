@@ -149,10 +149,12 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     Ok(Outcome::AllGood)
 }
 
-/// The SVG chart of one cook, titled with the recipe and the samples file name.
+/// The SVG chart of one cook (acid value and kinetics panels), titled with the recipe and the
+/// samples file name.
 fn chart_bytes(rep: &CookReport, recipe: &Recipe) -> crate::error::Result<Vec<u8>> {
     let title = format!("{} — {}", recipe.name, file_name(&rep.file));
-    chart::render(&rep.chart_input(title))
+    let acid_values = chart::AcidValuePanel::of(rep, &recipe.charge())?;
+    chart::render(&rep.chart_input(title), &acid_values)
 }
 
 fn file_name(path: &str) -> String {

@@ -710,14 +710,14 @@ pub fn linear_ticks(lo: f64, hi: f64, target: usize) -> Vec<f64> {
     (first..=last).map(|k| k as f64 * step).collect()
 }
 
-/// Ticks of a log10 axis inside [lo, hi]: 1, 2 and 5 of each decade when at most two decades
-/// are shown, otherwise the decades; at least the two ends when no such tick falls inside.
+/// Ticks of a log10 axis inside [lo, hi]: 1, 2 and 5 of each decade when at most four decades
+/// are spanned, otherwise the decades; at least the two ends when no such tick falls inside.
 pub fn log_ticks(lo: f64, hi: f64) -> Vec<f64> {
     if !(lo > 0.0 && hi > lo && hi.is_finite()) {
         return vec![lo];
     }
     let (a, b) = (lo.log10().floor() as i32, hi.log10().ceil() as i32);
-    let mults: &[f64] = if b - a <= 2 { &[1.0, 2.0, 5.0] } else { &[1.0] };
+    let mults: &[f64] = if b - a <= 4 { &[1.0, 2.0, 5.0] } else { &[1.0] };
     let mut out = Vec::new();
     for e in a..=b {
         for m in mults {

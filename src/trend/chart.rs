@@ -70,7 +70,7 @@ const I_BOTTOM: f64 = 270.0;
 const MR_TOP: f64 = 306.0;
 const MR_BOTTOM: f64 = 382.0;
 /// Top of the rotated lot ids, and their longest extent, px.
-const LOTS_TOP: f64 = MR_BOTTOM + 8.0;
+const LOTS_TOP: f64 = MR_BOTTOM + 11.0;
 const LOTS_MAX: f64 = 88.0;
 /// Above this many lots the individual point markers are left out (the line remains).
 const MAX_MARKERS: usize = 400;
@@ -436,17 +436,23 @@ fn mr_panel(input: &ChartInput) -> Panel {
 
 /// Frames, grid lines, tick labels and the axis titles (with the unit) of both panels.
 fn axes(svg: &mut Svg, input: &ChartInput, ind: &Panel, mr: &Panel) {
-    for (panel, count, title) in [
-        (
-            ind,
-            6,
-            axis_title(input.property, input.unit, TEXT, I_BOTTOM - I_TOP - 10.0),
-        ),
-        (
-            mr,
-            3,
-            axis_title("Moving range", input.unit, TEXT, MR_BOTTOM - MR_TOP + 100.0),
-        ),
+    // The two vertical titles share the left margin: the individuals title is centred on its
+    // panel, the moving-range title hangs from just below it and may run past its panel.
+    let ind_mid = (I_TOP + I_BOTTOM) / 2.0;
+    let ind_title = axis_title(input.property, input.unit, TEXT, 232.0);
+    let ind_end = ind_mid + visual::text_width(&ind_title, TEXT, false) / 2.0;
+    let mr_top = (ind_end + 12.0).max(MR_TOP - 16.0);
+    // Down to the lot axis title's line, which starts far to the right of the margin.
+    let mr_room = LOTS_TOP + lot_extent(input) + 20.0 - mr_top;
+    let mr_full = axis_title("Moving range", input.unit, TEXT, f64::MAX);
+    let mr_title = if visual::text_width(&mr_full, TEXT, false) <= mr_room {
+        mr_full
+    } else {
+        axis_title("MR", input.unit, TEXT, mr_room)
+    };
+    for (panel, count, title, vertical_at) in [
+        (ind, 6, ind_title, (ind_mid, Anchor::Middle)),
+        (mr, 3, mr_title, (mr_top, Anchor::End)),
     ] {
         let (lo, hi) = (panel.y.d0, panel.y.d1);
         for t in linear_ticks(lo, hi, count) {
@@ -470,10 +476,9 @@ fn axes(svg: &mut Svg, input: &ChartInput, ind: &Panel, mr: &Panel) {
             None,
             "axis",
         );
-        let mid = (panel.top + panel.bottom) / 2.0;
         svg.text(
-            &Label::new(&title, 24.0, mid, TEXT)
-                .anchor(Anchor::Middle)
+            &Label::new(&title, 24.0, vertical_at.0, TEXT)
+                .anchor(vertical_at.1)
                 .vertical(),
         );
     }
@@ -830,11 +835,27 @@ pub fn label_step(n: usize, max_labels: usize) -> usize {
     }
 }
 
+/// Lot ids shown under the chart: one in every `step`.
+fn lot_step(input: &ChartInput) -> usize {
+    let max_labels = (((PLOT_R - PLOT_L) / LABEL_PITCH) as usize).max(2);
+    label_step(input.values.len(), max_labels)
+}
+
+/// How far the rotated lot ids reach below the moving-range panel, px.
+fn lot_extent(input: &ChartInput) -> f64 {
+    input
+        .lot_ids
+        .iter()
+        .step_by(lot_step(input))
+        .map(|id| visual::text_width(id, TEXT, false))
+        .fold(0.0, f64::max)
+        .min(LOTS_MAX)
+}
+
 /// Tick marks under both panels and the lot ids, read upwards, under the moving-range panel.
 fn lot_axis(svg: &mut Svg, input: &ChartInput) -> f64 {
     let n = input.values.len();
-    let max_labels = (((PLOT_R - PLOT_L) / LABEL_PITCH) as usize).max(2);
-    let step = label_step(n, max_labels);
+    let step = lot_step(input);
     for (i, id) in input.lot_ids.iter().enumerate().step_by(step) {
         let x = px(i as f64, n);
         svg.line(
@@ -859,17 +880,11 @@ fn lot_axis(svg: &mut Svg, input: &ChartInput) -> f64 {
                 .vertical(),
         );
     }
-    let extent = input
-        .lot_ids
-        .iter()
-        .step_by(step)
-        .map(|id| visual::text_width(id, TEXT, false))
-        .fold(0.0, f64::max)
-        .min(LOTS_MAX);
+    let extent = lot_extent(input);
     let every = if step == 1 {
         "Lot, in order of manufacture".to_string()
     } else {
-        format!("Lot, in order of manufacture (every {step}th named)")
+        format!("Lot, in order of manufacture (one in every {step} named)")
     };
     svg.text(
         &Label::new(
@@ -1259,5 +1274,198 @@ mod tests {
         assert_eq!(fmt_value(2034.56), "2035");
         assert_eq!(fmt_value(0.8531), "0.8531");
         assert_eq!(fmt_value(0.0), "0");
+    }
+
+    /// Every text at least 8 pt where the PDF report places the chart, no two text boxes
+    /// overlapping, and every vertical (axis) title carrying its unit in brackets.
+    fn assert_tidy(svg: &str, unit: &str) {
+        use crate::support::visual::check;
+        let texts = check::texts(svg);
+        let pt = visual::placed_pt_per_px(f64::from(WIDTH), PLACED_WIDTH_MM);
+        for t in &texts {
+            assert!(
+                t.size * pt >= visual::MIN_TEXT_PT,
+                "{t:?} is {} pt",
+                t.size * pt
+            );
+        }
+        let clash = check::overlapping(&texts);
+        assert!(clash.is_empty(), "{clash:?}");
+        let titles: Vec<&str> = texts
+            .iter()
+            .filter(|t| t.text.contains(&format!("({unit})")))
+            .filter(|t| t.bounds.y1 - t.bounds.y0 > 2.0 * (t.bounds.x1 - t.bounds.x0))
+            .map(|t| t.text.as_str())
+            .collect();
+        assert_eq!(titles.len(), 2, "y-axis titles with ({unit}): {titles:?}");
+        assert!(
+            !svg.contains(visual::OVERBAR),
+            "a combining macron left in the SVG"
+        );
+    }
+
+    #[test]
+    fn issue_19_tidy_text_units_and_standard_chart_names() {
+        let (svg, _, _) = render(Some(1900.0), Some(2100.0));
+        assert_tidy(&svg, "g/mol");
+        assert!(svg.contains(">Individuals chart<") && svg.contains(">Moving-range chart<"));
+        // MR̄ is drawn with a bar stroke, not a combining mark.
+        assert!(svg.contains(">MR 1") || svg.contains(">MR "), "{svg}");
+        assert!(crate::support::visual::check::count_class(&svg, "overbar") >= 1);
+    }
+
+    #[test]
+    fn issue_19_marked_lots_are_numbered_newest_first_and_out_of_spec_has_its_own_mark() {
+        let (ids, values) = fixture();
+        let limits = imr_limits(&values[..15]).unwrap();
+        let signals = nelson_signals(&values, &limits, RuleSet::ALL);
+        let marked = marked_lots(&values, &signals, Some(1900.0), Some(2100.0));
+        // Numbers run 1, 2, … from the newest marked lot back in time.
+        assert!(marked.windows(2).all(|w| w[0].index > w[1].index));
+        assert!(marked.iter().enumerate().all(|(k, m)| m.number == k + 1));
+        // Lot 25 (2110 g/mol) is above the USL 2100: marked outside, whatever its rules.
+        let out: Vec<_> = marked.iter().filter(|m| m.outside.is_some()).collect();
+        assert_eq!(out.len(), 1);
+        assert_eq!((out[0].index, out[0].outside), (24, Some(Outside::Above)));
+        let (svg, _, _) = render(Some(1900.0), Some(2100.0));
+        use crate::support::visual::check::count_class;
+        assert_eq!(count_class(&svg, "outside-spec"), 1);
+        assert_eq!(
+            count_class(&svg, "signal"),
+            marked.iter().filter(|m| !m.rules.is_empty()).count()
+        );
+        // Every tag's number is drawn once (the fixture has room for all).
+        assert_eq!(count_class(&svg, "tag"), marked.len());
+        let _ = ids;
+    }
+
+    /// INVENTED: 62 lots of a fictional polyol whose hydroxyl value drifts down over the last
+    /// 30, as in the demo, so that many lots signal and the tags must find room.
+    fn crowded() -> (Vec<String>, Vec<f64>) {
+        let ids = (1..=62)
+            .map(|i| format!("F26{:02}-D{:02}", 1 + i / 6, i % 6 + 1))
+            .collect();
+        let values = (0..62)
+            .map(|i| {
+                let noise = (((i * 37) % 11) as f64 - 5.0) * 0.12;
+                let drift = if i > 31 {
+                    -0.045 * (i - 31) as f64
+                } else {
+                    0.0
+                };
+                56.0 + noise + drift
+            })
+            .collect();
+        (ids, values)
+    }
+
+    #[test]
+    fn issue_19_a_crowded_chart_stays_tidy() {
+        let (ids, values) = crowded();
+        let limits = imr_limits(&values[..30]).unwrap();
+        let signals = nelson_signals(&values, &limits, RuleSet::ALL);
+        assert!(signals.len() > 15, "{}", signals.len());
+        let input = ChartInput {
+            product: "PX-200",
+            property: "Hydroxyl value",
+            unit: "mg KOH/g",
+            date_from: "2026-01-01",
+            date_to: "2026-11-28",
+            lot_ids: &ids,
+            values: &values,
+            limits: &limits,
+            spec_min: Some(53.0),
+            spec_max: Some(59.0),
+            signals: &signals,
+            baseline_len: Some(30),
+            lower_bound: Some(0.0),
+        };
+        let svg = String::from_utf8(imr_svg(&input).unwrap()).unwrap();
+        if let Ok(dir) = std::env::var("RESINLOT_CHART_DIR") {
+            std::fs::write(format!("{dir}/crowded.svg"), &svg).unwrap();
+            let png = svg_to_png(svg.as_bytes(), 1.0).unwrap();
+            std::fs::write(format!("{dir}/crowded.png"), png).unwrap();
+        }
+        assert_tidy(&svg, "mg KOH/g");
+        // The newest signalled lot carries tag 1.
+        let marked = marked_lots(&values, &signals, Some(53.0), Some(59.0));
+        assert_eq!(
+            marked[0].index,
+            *signals.iter().map(|s| &s.index).max().unwrap()
+        );
+    }
+
+    #[test]
+    fn issue_19_lcl_is_held_at_zero_for_water_with_a_note() {
+        // INVENTED water contents (% w/w): small values with one wet lot, so x̄ − 3σ < 0.
+        let values = [
+            0.020, 0.031, 0.018, 0.045, 0.012, 0.029, 0.060, 0.015, 0.024, 0.038, 0.011, 0.027,
+        ];
+        let ids: Vec<String> = (1..=12).map(|i| format!("W-{i:02}")).collect();
+        let limits = imr_limits(&values).unwrap();
+        assert!(limits.lcl < 0.0, "{}", limits.lcl);
+        let input = ChartInput {
+            product: "PX-300",
+            property: "Water",
+            unit: "%",
+            date_from: "2026-01-01",
+            date_to: "2026-02-01",
+            lot_ids: &ids,
+            values: &values,
+            limits: &limits,
+            spec_min: None,
+            spec_max: Some(0.05),
+            signals: &[],
+            baseline_len: None,
+            lower_bound: natural_lower_bound("water", "%"),
+        };
+        let svg = String::from_utf8(imr_svg(&input).unwrap()).unwrap();
+        assert_tidy(&svg, "%");
+        assert!(svg.contains(">LCL 0 (held)<"), "{svg}");
+        assert!(
+            svg.contains("LCL held at 0, the lowest value water can take"),
+            "{svg}"
+        );
+        assert!(svg.contains(&fmt_value(limits.lcl)));
+        // The lot above the USL 0.05 is marked outside the spec window.
+        assert_eq!(
+            crate::support::visual::check::count_class(&svg, "outside-spec"),
+            1
+        );
+    }
+
+    #[test]
+    fn natural_lower_bounds() {
+        assert_eq!(natural_lower_bound("water", "%"), Some(0.0));
+        assert_eq!(natural_lower_bound("colour", "APHA"), Some(0.0));
+        assert_eq!(natural_lower_bound("acid_value", "mg KOH/g"), Some(0.0));
+        assert_eq!(natural_lower_bound("solids", "% w/w"), Some(0.0));
+        // A glass transition temperature can be below zero: no bound.
+        assert_eq!(natural_lower_bound("tg", "°C"), None);
+    }
+
+    #[test]
+    fn issue_19_long_series_and_many_signals_stay_tidy() {
+        let ids: Vec<String> = (0..500).map(|i| format!("L{i:04}")).collect();
+        let values: Vec<f64> = (0..500).map(|i| ((i * 37) % 23) as f64).collect();
+        let limits = imr_limits(&values).unwrap();
+        let signals = nelson_signals(&values, &limits, RuleSet::ALL);
+        let input = ChartInput {
+            product: "PX-100",
+            property: "Acid value",
+            unit: "mg KOH/g",
+            date_from: "2025-01-01",
+            date_to: "2026-12-01",
+            lot_ids: &ids,
+            values: &values,
+            limits: &limits,
+            spec_min: None,
+            spec_max: Some(20.0),
+            signals: &signals,
+            baseline_len: None,
+            lower_bound: Some(0.0),
+        };
+        let svg = String::from_utf8(imr_svg(&input).unwrap()).unwrap();
+        assert_tidy(&svg, "mg KOH/g");
     }
 }

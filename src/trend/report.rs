@@ -150,8 +150,21 @@ pub fn render_report(input: &ReportInput) -> Result<Vec<u8>> {
         }
     }
     if let Some(v) = input.viscosity {
+        let unit = input
+            .trends
+            .iter()
+            .find(|t| t.property == crate::spec::keys::VISCOSITY)
+            .map_or("", |t| t.unit.as_str());
+        let svg = crate::trend::viscosity_chart::viscosity_svg(input.product_code, unit, v)?;
+        let image = svg_image(&svg)?;
+        let id = XObjectId("ViscosityChart".to_string());
+        let size = (image.width, image.height);
+        doc.resources
+            .xobjects
+            .map
+            .insert(id.clone(), printpdf::XObject::Image(image));
         let mut page = Canvas::new(&regular, &bold);
-        viscosity_page(&mut page, input, v);
+        viscosity_page(&mut page, input, v, &id, size);
         page.footer(input, count, count);
         pages.push(page.finish());
     }
@@ -185,18 +198,15 @@ fn fonts() -> &'static (ParsedFont, ParsedFont) {
     })
 }
 
-/// The chart of one trend as an opaque RGB image (composited over white).
+/// The chart of one trend as an opaque RGB image.
 fn chart_image(trend: &PropertyTrend) -> Result<RawImage> {
-    let input = ChartInput::of_trend(trend);
-    let svg = chart::imr_svg(&input)?;
-    let png = chart::svg_to_png(&svg, CHART_SCALE)?;
-    let pixmap = resvg::tiny_skia::Pixmap::decode_png(&png).map_err(|e| {
-        Error::invalid(
-            format!("trend report, {} chart", trend.property),
-            format!("the chart image could not be read back: {e}"),
-            "Report this as a bug.",
-        )
-    })?;
+    let svg = chart::imr_svg(&ChartInput::of_trend(trend))?;
+    svg_image(&svg)
+}
+
+/// An SVG chart rasterised at [`CHART_SCALE`] over white ([`chart::rasterize`]) as an RGB image.
+fn svg_image(svg: &[u8]) -> Result<RawImage> {
+    let pixmap = chart::rasterize(svg, CHART_SCALE)?;
     // tiny-skia pixels are premultiplied RGBA: over white, c' = c + (255 − a).
     let mut rgb = Vec::with_capacity(pixmap.data().len() / 4 * 3);
     for px in pixmap.data().chunks_exact(4) {
@@ -987,8 +997,14 @@ fn lots_in(lines: &[ListLine]) -> usize {
     numbers.len()
 }
 
-/// The viscosity–Mn page: the fit and the lots off the line.
-fn viscosity_page(page: &mut Canvas, input: &ReportInput, v: &ViscosityCheck) {
+/// The viscosity–Mn page: the log-log plot, the fit, the lots off the line and what they mean.
+fn viscosity_page(
+    page: &mut Canvas,
+    input: &ReportInput,
+    v: &ViscosityCheck,
+    chart: &XObjectId,
+    (px_w, px_h): (usize, usize),
+) {
     let title = format!(
         "{} {}  ·  Viscosity against Mn",
         input.product_code, input.product_name
@@ -998,9 +1014,19 @@ fn viscosity_page(page: &mut Canvas, input: &ReportInput, v: &ViscosityCheck) {
         v.fit.n, input.site
     );
     page.header(input, &title, &context);
+    let chart_h = CHART_W * px_h as f32 / px_w as f32;
+    page.ops.push(Op::UseXobject {
+        id: chart.clone(),
+        transform: XObjectTransform {
+            translate_x: Some(pt_x(CHART_X)),
+            translate_y: Some(pt_y(CHART_TOP + chart_h)),
+            dpi: Some(px_w as f32 / (CHART_W / 25.4)),
+            ..XObjectTransform::default()
+        },
+    });
     let f = &v.fit;
-    let left = MARGIN;
-    let right = MARGIN + 120.0;
+    let left = COL_X;
+    let right = COL_R;
     page.heading(left, CHART_TOP + 3.0, "Log-log fit");
     let rows = vec![
         (
@@ -1031,21 +1057,24 @@ fn viscosity_page(page: &mut Canvas, input: &ReportInput, v: &ViscosityCheck) {
         "Common practice: an exponent near 1 is expected for unentangled melts, about 3.4 above the entanglement molar mass.".to_string(),
         "A viscosity off the line for its Mn points to branching, contamination or a wrong solids content, which neither property's own chart shows.".to_string(),
     ];
-    page.bullets(left, right, y + 4.0, BODY_BOTTOM, &notes, ACCENT);
-    off_line_table(page, v);
+    page.bullets(
+        CHART_X,
+        CHART_X + CHART_W,
+        CHART_TOP + chart_h + 6.0,
+        BODY_BOTTOM,
+        &notes,
+        ACCENT,
+    );
+    off_line_table(page, v, y + 6.0);
 }
 
-/// The lots off the viscosity–Mn line, in the right half of the page (as many as fit, then a
+/// The lots off the viscosity–Mn line, in the right column from `top` (as many as fit, then a
 /// count of the rest).
-fn off_line_table(page: &mut Canvas, v: &ViscosityCheck) {
-    let x = MARGIN + 140.0;
+fn off_line_table(page: &mut Canvas, v: &ViscosityCheck, top: f32) {
+    let x = COL_X;
     let r = COL_R;
-    page.heading(
-        x,
-        CHART_TOP + 3.0,
-        &format!("Lots off the line ({})", v.off_line.len()),
-    );
-    let mut y = CHART_TOP + 10.0;
+    page.heading(x, top, &format!("Lots off the line ({})", v.off_line.len()));
+    let mut y = top + 7.0;
     const SIZE: f32 = 8.5;
     const STEP: f32 = 4.6;
     if v.off_line.is_empty() {
@@ -1059,7 +1088,7 @@ fn off_line_table(page: &mut Canvas, v: &ViscosityCheck) {
         );
         return;
     }
-    let x_date = x + 55.0;
+    let x_date = x + 42.0;
     for (cx, h) in [(x, "Lot"), (x_date, "Made")] {
         page.text(Weight::Bold, SIZE, cx, y, MUTED, h);
     }
@@ -1071,7 +1100,7 @@ fn off_line_table(page: &mut Canvas, v: &ViscosityCheck) {
         if i % 2 == 1 {
             page.fill(x, y - 3.2, r - x, STEP, ROW_SHADE);
         }
-        let lot = page.regular.fit(&o.lot, SIZE, 52.0);
+        let lot = page.regular.fit(&o.lot, SIZE, 40.0);
         page.text(Weight::Regular, SIZE, x, y, INK, &lot);
         page.text(Weight::Regular, SIZE, x_date, y, INK, &o.manufactured);
         let z = if o.robust_z.is_finite() {
