@@ -65,9 +65,11 @@ pub struct Args {
     /// n-2 degrees of freedom). No target and no chart are used in this mode.
     #[arg(long, conflicts_with_all = ["chart", "target_av", "target_mn"])]
     pub arrhenius: bool,
-    /// Write an SVG chart of the linearised quantity against time to this file; an existing
-    /// file there is replaced only if it is a resinlot chart, and the chart never goes into the
-    /// workspace folders. Default: no chart.
+    /// Write the cook chart to this file: the acid value against time with the fitted model,
+    /// the target and the predicted end point, over the linearised quantity against time, with
+    /// the safety caution at its foot. SVG, or PNG (twice the SVG's 960 px width) for a name
+    /// ending in .png; an existing file there is replaced only if it is a resinlot chart, and
+    /// the chart never goes into the workspace folders. Default: no chart.
     #[arg(long, value_name = "FILE")]
     pub chart: Option<PathBuf>,
     /// The specs folder (`--specs`), which the chart never enters.
@@ -143,7 +145,16 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     if let Some((path, bytes)) = chart {
         let record =
             crate::cmd::args::record_folders(&args.specs, &args.register, &args.certificates);
-        crate::support::output::write_output(path, bytes, OutputKind::Svg, &record)?;
+        // A .png name gets the chart rasterised, not SVG text under the wrong name.
+        let png = path
+            .extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("png"));
+        if png {
+            let bytes = crate::support::visual::svg_to_png(&bytes, 2.0)?;
+            crate::support::output::write_output(path, bytes, OutputKind::Png, &record)?;
+        } else {
+            crate::support::output::write_output(path, bytes, OutputKind::Svg, &record)?;
+        }
     }
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)

@@ -751,6 +751,58 @@ pub fn sig_digits(x: f64, sig: u32) -> String {
     s.replace('-', "−")
 }
 
+/// Rasterizes an SVG document to PNG bytes at `scale` with resvg, using the bundled fonts.
+pub fn svg_to_png(svg: &[u8], scale: f32) -> crate::error::Result<Vec<u8>> {
+    let pixmap = rasterize(svg, scale)?;
+    pixmap.encode_png().map_err(|e| {
+        crate::error::Error::invalid(
+            "--png",
+            format!("PNG encoding failed: {e}"),
+            "Report this as a bug.",
+        )
+    })
+}
+
+/// Rasterizes an SVG document with resvg at `scale` over white, using the bundled fonts.
+pub fn rasterize(svg: &[u8], scale: f32) -> crate::error::Result<resvg::tiny_skia::Pixmap> {
+    use resvg::{tiny_skia, usvg};
+    let mut options = usvg::Options::default();
+    let fonts = options.fontdb_mut();
+    // The bundled DejaVu faces (fonts/, with their licence), so the PNG looks the same on every
+    // machine and needs no system fonts.
+    fonts.load_font_data(crate::support::fonts::DEJAVU_SANS.to_vec());
+    fonts.load_font_data(crate::support::fonts::DEJAVU_SANS_BOLD.to_vec());
+    fonts.set_sans_serif_family("DejaVu Sans");
+    let tree = usvg::Tree::from_data(svg, &options).map_err(|e| {
+        crate::error::Error::invalid(
+            "--png",
+            format!("the chart could not be read back: {e}"),
+            "Report this as a bug.",
+        )
+    })?;
+    let size = tree.size().to_int_size().scale_by(scale).ok_or_else(|| {
+        crate::error::Error::invalid(
+            "--png",
+            "the image size is out of range",
+            "Report this as a bug.",
+        )
+    })?;
+    let mut pixmap = tiny_skia::Pixmap::new(size.width(), size.height()).ok_or_else(|| {
+        crate::error::Error::invalid(
+            "--png",
+            "the image size is out of range",
+            "Report this as a bug.",
+        )
+    })?;
+    pixmap.fill(tiny_skia::Color::WHITE);
+    resvg::render(
+        &tree,
+        tiny_skia::Transform::from_scale(scale, scale),
+        &mut pixmap.as_mut(),
+    );
+    Ok(pixmap)
+}
+
 /// Test helpers that read a chart back from its SVG text alone (roxmltree), as a user's viewer
 /// would: every text's box from its attributes and the bundled font's metrics.
 #[cfg(test)]

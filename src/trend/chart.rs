@@ -212,57 +212,7 @@ pub fn imr_png(input: &ChartInput) -> Result<Vec<u8>> {
     svg_to_png(&svg, PNG_SCALE)
 }
 
-/// Rasterizes an SVG document to PNG bytes at `scale` with resvg, using the bundled fonts.
-pub fn svg_to_png(svg: &[u8], scale: f32) -> Result<Vec<u8>> {
-    let pixmap = rasterize(svg, scale)?;
-    pixmap.encode_png().map_err(|e| {
-        Error::invalid(
-            "--png",
-            format!("PNG encoding failed: {e}"),
-            "Report this as a bug.",
-        )
-    })
-}
-
-/// Rasterizes an SVG document with resvg at `scale`, using the bundled fonts.
-pub fn rasterize(svg: &[u8], scale: f32) -> Result<resvg::tiny_skia::Pixmap> {
-    use resvg::{tiny_skia, usvg};
-    let mut options = usvg::Options::default();
-    let fonts = options.fontdb_mut();
-    // The bundled DejaVu faces (fonts/, with their licence), so the PNG looks the same on every
-    // machine and needs no system fonts.
-    fonts.load_font_data(crate::support::fonts::DEJAVU_SANS.to_vec());
-    fonts.load_font_data(crate::support::fonts::DEJAVU_SANS_BOLD.to_vec());
-    fonts.set_sans_serif_family("DejaVu Sans");
-    let tree = usvg::Tree::from_data(svg, &options).map_err(|e| {
-        Error::invalid(
-            "--png",
-            format!("the chart could not be read back: {e}"),
-            "Report this as a bug.",
-        )
-    })?;
-    let size = tree.size().to_int_size().scale_by(scale).ok_or_else(|| {
-        Error::invalid(
-            "--png",
-            "the image size is out of range",
-            "Report this as a bug.",
-        )
-    })?;
-    let mut pixmap = tiny_skia::Pixmap::new(size.width(), size.height()).ok_or_else(|| {
-        Error::invalid(
-            "--png",
-            "the image size is out of range",
-            "Report this as a bug.",
-        )
-    })?;
-    pixmap.fill(tiny_skia::Color::WHITE);
-    resvg::render(
-        &tree,
-        tiny_skia::Transform::from_scale(scale, scale),
-        &mut pixmap.as_mut(),
-    );
-    Ok(pixmap)
-}
+pub use crate::support::visual::{rasterize, svg_to_png};
 
 fn check(input: &ChartInput) -> Result<()> {
     let n = input.values.len();

@@ -127,7 +127,7 @@ pub fn render_report(input: &ReportInput) -> Result<Vec<u8>> {
         let own_page = pages.len() + 1;
         // After part k: the lots still to come and the page they start on.
         let rest = |k: usize| {
-            (k + 1 < parts.len()).then(|| (lots_in(&parts[k + 1..].concat()), own_page + k + 1))
+            (k + 1 < parts.len()).then(|| (entries_in(&parts[k + 1..].concat()), own_page + k + 1))
         };
         let mut page = Canvas::new(&regular, &bold);
         property_page(
@@ -983,18 +983,15 @@ fn paginate(lines: Vec<ListLine>, first_y: f32) -> Vec<Vec<ListLine>> {
     }
 }
 
-/// Lots (tag numbers) in list lines.
-fn lots_in(lines: &[ListLine]) -> usize {
-    let mut numbers: Vec<usize> = lines
+/// Lot entries in list lines (a lot signalled by two rules is listed under each).
+fn entries_in(lines: &[ListLine]) -> usize {
+    lines
         .iter()
-        .flat_map(|l| match l {
-            ListLine::Lots(items, _) => items.iter().map(|i| i.number).collect(),
-            ListLine::Head { .. } => Vec::new(),
+        .map(|l| match l {
+            ListLine::Lots(items, _) => items.len(),
+            ListLine::Head { .. } => 0,
         })
-        .collect();
-    numbers.sort_unstable();
-    numbers.dedup();
-    numbers.len()
+        .sum()
 }
 
 /// The viscosity–Mn page: the log-log plot, the fit, the lots off the line and what they mean.
@@ -1389,5 +1386,73 @@ mod tests {
     fn no_trend_is_an_error() {
         let err = render_report(&input(&[], None)).unwrap_err();
         assert!(err.to_string().contains("TP-100"), "{err}");
+    }
+
+    /// INVENTED: 80 lots rising steadily (as in `many_signals_end_in_and_n_more`).
+    fn rising() -> Vec<PropertyTrend> {
+        let lots: Vec<LotRow> = (0..80)
+            .map(|i| LotRow {
+                line: i + 2,
+                lot: format!("RISE-{:03}", i + 1).into(),
+                manufactured: format!("2026-{:02}-{:02}", 1 + i / 28, 1 + i % 28)
+                    .as_str()
+                    .into(),
+                status: "released",
+                revision: "A",
+                mn_uncertainty: None,
+                values: vec![Some(100.0 + i as f64 + 0.1 * ((i * 3) % 4) as f64)],
+            })
+            .collect();
+        vec![property_trend(
+            "TP-100",
+            "mn",
+            0,
+            "Mn",
+            "g/mol",
+            &lots,
+            SpecWindow {
+                min: None,
+                max: Some(175.0),
+            },
+            None,
+            &Baseline::All,
+            RuleSet::ALL,
+        )
+        .unwrap()]
+    }
+
+    #[test]
+    fn issue_19_every_signal_is_listed_newest_first_continuing_on_following_pages() {
+        let t = rising();
+        let pdf = render("trend_report_issue19", &input(&t, None));
+        let pages = page_texts(&pdf);
+        assert!(pages.len() > 1, "{} pages", pages.len());
+        // The newest signal's lot is on the property's own page, and the list says where it
+        // goes on.
+        let newest = &t[0].signals.last().unwrap().lot;
+        assert!(pages[0].contains(newest.as_str()), "{}", pages[0]);
+        assert!(pages[0].contains("continued on page 2"), "{}", pages[0]);
+        // Every signalled lot is listed somewhere, and every continuation page says so.
+        let all = pages.join(" ");
+        for s in &t[0].signals {
+            assert!(
+                all.contains(&format!("{} {}", s.lot, s.manufactured)),
+                "{}",
+                s.lot
+            );
+        }
+        for (i, page) in pages.iter().enumerate().skip(1) {
+            assert!(page.contains("signals continued"), "page {}: {page}", i + 1);
+            assert!(page.contains(&format!("Page {} of {}", i + 1, pages.len())));
+        }
+        // Lots above the USL 175 come first, as outside the spec window, before any rule.
+        let outside = pages[0]
+            .find("the lot's value lies outside the spec window")
+            .unwrap();
+        let rule = pages[0].find("rule 1").unwrap();
+        assert!(outside < rule, "{}", pages[0]);
+        // Bars are drawn, not left to a combining mark the PDF text path would drop.
+        assert!(!all.contains(visual::OVERBAR));
+        assert!(pages[0].contains("Mean moving range MR"), "{}", pages[0]);
     }
 }
