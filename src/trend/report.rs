@@ -827,7 +827,9 @@ fn signal_summary(t: &PropertyTrend, marked: &[MarkedLot]) -> String {
 fn signal_lines(face: &Face, t: &PropertyTrend, marked: &[MarkedLot], width: f32) -> Vec<ListLine> {
     const SIZE: f32 = 8.0;
     let made = |i: usize| t.dates.get(i).map(|d| d.to_string()).unwrap_or_default();
-    let mut groups: Vec<(String, (f32, f32, f32), String, Vec<ListItem>)> = Vec::new();
+    // Each group: what was found, its colour, what it means, and its lots.
+    type Group = (String, (f32, f32, f32), String, Vec<ListItem>);
+    let mut groups: Vec<Group> = Vec::new();
     let outside: Vec<ListItem> = marked
         .iter()
         .filter(|m| m.outside.is_some())
