@@ -609,6 +609,56 @@ mod tests {
         p
     }
 
+    /// Issue #14: a file with the issued bytes is genuine only while its certificate is
+    /// current; otherwise superseded or withdrawn, with the details.
+    #[test]
+    fn the_verdict_follows_the_certificates_standing_issue_14() {
+        use crate::record::certlog::{Entry, Standing};
+        let e = Entry {
+            number: "FW-000004".into(),
+            issued_at: "2026-10-01T10:00:00Z".into(),
+            lot: "L1".into(),
+            product: "P".into(),
+            customer: "acme".into(),
+            customer_name: "Acme Foams".into(),
+            file: "L1_FW-000004.pdf".into(),
+            sha256: "ab".into(),
+            supersedes: String::new(),
+            reason: String::new(),
+        };
+        assert!(verdict_for(&e, Some(&Standing::Current)).is_genuine());
+        assert!(verdict_for(&e, None).is_genuine());
+        let v = verdict_for(
+            &e,
+            Some(&Standing::Superseded {
+                by: "FW-000005".into(),
+                at: "2026-10-02T00:00:00Z".into(),
+                reason: "PO corrected".into(),
+            }),
+        );
+        assert_eq!(v.name(), "superseded");
+        let json = serde_json::to_value(&v).unwrap();
+        assert_eq!(json["verdict"], "superseded");
+        assert_eq!(json["superseded_by"], "FW-000005");
+        let v = verdict_for(
+            &e,
+            Some(&Standing::Withdrawn {
+                at: "2026-10-03T00:00:00Z".into(),
+                reason: "lot rejected".into(),
+                cause: "P.csv row 7".into(),
+            }),
+        );
+        assert!(!v.is_genuine());
+        assert_eq!(
+            serde_json::to_value(&v).unwrap()["withdrawn_at"],
+            "2026-10-03T00:00:00Z"
+        );
+        assert_eq!(
+            CertVerdict::Unknown { sha256: "x".into() }.name(),
+            "unknown"
+        );
+    }
+
     /// Issue #13 item 3: the missing line end of a complete row is restored, nothing moved.
     #[test]
     fn a_missing_line_end_is_restored_issue_13() {

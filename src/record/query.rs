@@ -670,6 +670,67 @@ mod tests {
         assert_eq!(&*rows[0].manufactured, "2026-01-01");
     }
 
+    /// Issue #14: each kept lot's life carries the latest retest date of any of its rows
+    /// (also when a disposition row came after it) and its concession customer; lot ids typed
+    /// in another case find the recorded lot. Invented rows.
+    #[test]
+    fn lives_follow_retests_and_concessions_issue_14() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        let keys = vec!["acid_value".to_string()];
+        let row = |lot: &str, at: &str, extra: &[(&'static str, &str)]| {
+            let mut r = vec![
+                ("lot", lot.to_string()),
+                ("acid_value", "0.5".to_string()),
+                ("manufactured", "2025-11-01".to_string()),
+                ("recorded_at", at.to_string()),
+            ];
+            r.extend(extra.iter().map(|(k, v)| (*k, v.to_string())));
+            r
+        };
+        trend_file::write_for_test(
+            &p,
+            &keys,
+            &[
+                row("A1", "2025-11-02T08:00:00Z", &[]),
+                row("B2", "2025-11-03T08:00:00Z", &[]),
+                row("A1", "2026-11-05T08:00:00Z", &[("supersedes", "1")]),
+                row(
+                    "A1",
+                    "2026-11-06T08:00:00Z",
+                    &[
+                        ("supersedes", "3"),
+                        ("disposition", "concession"),
+                        ("concession_customer", "acme"),
+                    ],
+                ),
+                row(
+                    "B2",
+                    "2026-11-07T08:00:00Z",
+                    &[("supersedes", "2"), ("tested_to", "2026-11-04")],
+                ),
+            ],
+        );
+        let (_, rows, lives) = current_lots_with_life(&p, &keys, false).unwrap();
+        let got: Vec<(&str, Option<String>, &str)> = rows
+            .iter()
+            .zip(&lives)
+            .map(|(r, l)| (&*r.lot, l.retested.map(|d| d.to_string()), l.concession))
+            .collect();
+        assert_eq!(
+            got,
+            [
+                ("A1", Some("2026-11-05".to_string()), "acme"),
+                // tested_to, when recorded, is the retest's test date.
+                ("B2", Some("2026-11-04".to_string()), ""),
+            ]
+        );
+        let found = find_lot(dir.path(), "a1").unwrap().unwrap();
+        assert_eq!(found.rows.len(), 3);
+        assert_eq!(found.cell(&found.rows[0], "lot"), "A1");
+        assert!(find_lot(dir.path(), "a2").unwrap().is_none());
+    }
+
     #[test]
     fn spans_honour_quotes() {
         let line = b"1,\"a, b\",\"say \"\"hi\"\"\",,x";
