@@ -106,9 +106,19 @@ pub fn check_register(register_dir: &Path, certificates: &Path) -> Result<Vec<Fi
         match trend_file::parse_bytes(&log, &bytes, true, &is_log_header).1 {
             Some(d) => out.push(FileCheck::from(&log, 0, Some(d))),
             None => {
-                let entries = crate::record::certlog::entries(register_dir)?;
-                let mut check = FileCheck::from(&log, entries.len(), None);
-                for (i, e) in entries.iter().enumerate() {
+                let t = crate::record::certlog::read(register_dir)?;
+                let issues: Vec<(usize, crate::record::certlog::Entry)> = t
+                    .iter()
+                    .flat_map(|t| {
+                        t.rows
+                            .iter()
+                            .filter(|r| crate::record::certlog::is_issue_row(t, r))
+                            .map(|r| (r.line, crate::record::certlog::entry_of(t, r)))
+                    })
+                    .collect();
+                let mut check = FileCheck::from(&log, issues.len(), None);
+                // Issue rows only: event rows (issue #14) and layout rows name no file.
+                for (line, e) in &issues {
                     let pdf = certificates.join(&e.file);
                     let problem = if !pdf.is_file() {
                         Some(format!(
@@ -127,13 +137,7 @@ pub fn check_register(register_dir: &Path, certificates: &Path) -> Result<Vec<Fi
                     };
                     if problem.is_some() {
                         check.problem = problem;
-                        // An upgraded log's layout row (line 2) is not an entry.
-                        let layout = usize::from(
-                            crate::record::certlog::layout(register_dir)?
-                                == Some(crate::record::certlog::Layout::Current)
-                                && crate::record::upgrade::is_upgraded(&log)?,
-                        );
-                        check.line = Some(i + 2 + layout);
+                        check.line = Some(*line);
                         check.lot = Some(e.lot.clone());
                         break;
                     }
