@@ -379,6 +379,10 @@ fn current_lots_with(
     let file_keys = trend_file::property_keys(&header);
     let mut reader = RowReader::new(path, &header, keys, with_mn_uncertainty)?;
     let mut life_reader = with_life.then(|| LifeReader::new(&header));
+    if let Some(l) = &life_reader {
+        // One split of each line serves both readers.
+        reader.upto = reader.upto.max(l.upto);
+    }
     let mut lives: Vec<Life> = Vec::new();
     let hasher = std::collections::hash_map::RandomState::new();
     // About 250 bytes a row: reserve once instead of growing through a million pushes.
@@ -393,7 +397,7 @@ fn current_lots_with(
         keys_seen.push((hasher.hash_one(&*row.lot), rows.len() as u32));
         rows.push(row);
         if let Some(l) = &mut life_reader {
-            lives.push(l.read(line));
+            lives.push(l.read(&reader.spans, line));
         }
         Ok(())
     })?;
@@ -551,7 +555,6 @@ fn keep_latest(
 struct LifeReader {
     cols: [Option<usize>; 5],
     upto: usize,
-    spans: Vec<(usize, usize)>,
     customers: Vec<&'static str>,
 }
 
@@ -568,15 +571,14 @@ impl LifeReader {
         LifeReader {
             upto: cols.iter().flatten().copied().max().unwrap_or(0),
             cols,
-            spans: Vec::new(),
             customers: Vec::new(),
         }
     }
 
-    fn read(&mut self, line: &[u8]) -> Life {
-        split_spans(line, self.upto, &mut self.spans);
+    /// The life of `line`, split into `spans` (at least up to `self.upto`) by the row reader.
+    fn read(&mut self, spans: &[(usize, usize)], line: &[u8]) -> Life {
         let cell = |i: usize| -> &[u8] {
-            match self.cols[i].and_then(|c| self.spans.get(c)) {
+            match self.cols[i].and_then(|c| spans.get(c)) {
                 Some(&(a, b)) => &line[a..b.min(line.len())],
                 None => b"",
             }
