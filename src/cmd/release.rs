@@ -400,7 +400,12 @@ fn prepare_certificates(
             continue;
         }
         let spec = ctx.specs.for_date(&d.product, d.manufactured)?;
-        let rec = LotRecord::from_decision(d, ctx.approver, ctx.now_text);
+        let mut rec = LotRecord::from_decision(d, ctx.approver, ctx.now_text);
+        if matches!(plan, Plan::Retest { .. }) {
+            // This retest is the lot's latest; tested today, it may extend the retest date
+            // printed on its certificate (issue #14).
+            rec.latest_retest = Some(ctx.now.date_naive());
+        }
         // Only a retest supersedes, and only its reason is logged: a new lot in the same
         // batch carries neither.
         let retest_reason = match plan {
