@@ -205,7 +205,7 @@ fn chart_kind(path: &Path) -> OutputKind {
 
 /// Writes the I-MR chart: SVG, or PNG for a .png name; with `png`, a PNG beside the SVG too.
 fn write_chart(path: &Path, t: &PropertyTrend, png: bool, record: &[&Path]) -> anyhow::Result<()> {
-    let input = product::chart_input(t);
+    let input = crate::trend::chart::ChartInput::of_trend(t);
     let svg = crate::trend::chart::imr_svg(&input)?;
     if chart_kind(path) == OutputKind::Png {
         // A .png name gets a PNG, not SVG text under the wrong name.

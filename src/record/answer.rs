@@ -259,7 +259,7 @@ fn dispositions(t: &Trend, rows: &[&Row]) -> Vec<String> {
             continue;
         };
         out.push(format!(
-            "row {}  {}  {} by {}{}: {}",
+            "row {}  {}  {} ({}){}: {}",
             t.cell(r, "seq"),
             t.cell(r, "recorded_at"),
             d.words(),

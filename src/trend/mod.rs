@@ -6,4 +6,4 @@ pub mod chart;
 pub mod product;
 pub mod report;
 pub mod text;
-pub mod visc_chart;
+pub mod viscosity_chart;

@@ -112,6 +112,9 @@ pub struct PropertyTrend {
     /// Values in order (for charts).
     #[serde(skip)]
     pub values: Vec<f64>,
+    /// Manufacture dates in order, one per value (for the report's signal list).
+    #[serde(skip)]
+    pub dates: Vec<crate::record::query::Day>,
     /// Raw signals (for charts).
     #[serde(skip)]
     pub raw_signals: Vec<stats::Signal>,
@@ -214,6 +217,7 @@ pub fn property_trend(
         warnings,
         lots: ids,
         values,
+        dates,
         raw_signals,
     })
 }
@@ -324,24 +328,6 @@ pub fn property_trends(req: &TrendRequest) -> Result<Vec<PropertyTrend>> {
     Ok(trends)
 }
 
-/// What the I-MR chart of one property's trend shows (`trend --chart` and the web product page).
-pub fn chart_input(t: &PropertyTrend) -> crate::trend::chart::ChartInput<'_> {
-    crate::trend::chart::ChartInput {
-        product: &t.product,
-        property: &t.label,
-        unit: &t.unit,
-        date_from: &t.date_from,
-        date_to: &t.date_to,
-        lot_ids: &t.lots,
-        values: &t.values,
-        limits: &t.limits,
-        spec_min: t.spec_min,
-        spec_max: t.spec_max,
-        signals: &t.raw_signals,
-        baseline_len: (t.baseline_n < t.n).then_some(t.baseline_n),
-    }
-}
-
 /// True when any trend has a run-rule signal or any lot is off the viscosity–Mn line.
 pub fn any_signal(trends: &[PropertyTrend], visc: Option<&ViscosityCheck>) -> bool {
     trends.iter().any(|t| !t.signals.is_empty()) || visc.is_some_and(|v| !v.off_line.is_empty())
@@ -366,6 +352,20 @@ pub struct ViscosityCheck {
     pub fit: stats::LogLogFit,
     /// Lots off the line by more than 3 robust standard deviations.
     pub off_line: Vec<OffLine>,
+    /// Every lot of the fit with its Mn and viscosity, in the fit's order (for the plot).
+    #[serde(skip)]
+    pub points: Vec<ViscosityPoint>,
+}
+
+/// One lot of the viscosity–Mn fit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ViscosityPoint {
+    /// Lot id.
+    pub lot: String,
+    /// Mn, g/mol.
+    pub mn: f64,
+    /// Viscosity, in the spec's unit.
+    pub viscosity: f64,
 }
 
 /// The viscosity–Mn check when both columns were loaded ([`viscosity_check`]).
@@ -400,7 +400,19 @@ pub fn viscosity_check(lots: &[LotRow], mn: usize, visc: usize) -> Option<Viscos
             },
         })
         .collect();
-    Some(ViscosityCheck { fit, off_line })
+    let points = pairs
+        .iter()
+        .map(|(l, m, v)| ViscosityPoint {
+            lot: l.lot.to_string(),
+            mn: *m,
+            viscosity: *v,
+        })
+        .collect();
+    Some(ViscosityCheck {
+        fit,
+        off_line,
+        points,
+    })
 }
 
 #[cfg(test)]

@@ -1,6 +1,6 @@
 //! `/product/<CODE>`: a product's trend as `resinlot trend` computes it over every lot: the
 //! I-MR chart of each property (inline SVG from the project's chart module), control limits
-//! and capability, the run-rule signals newest first, and the viscosity–Mn plot.
+//! and capability, the run-rule signals newest first, and the viscosity–Mn plot (`trend::viscosity_chart`).
 
 use axum::extract::{Path, State};
 use axum::response::Response;
@@ -10,7 +10,6 @@ use crate::spec::keys;
 use crate::spec::SpecSet;
 use crate::stats::RuleSet;
 use crate::trend::product::{self, Baseline, Selection, TrendRequest};
-use crate::trend::visc_chart::{self, ViscPoint};
 use crate::web::pages::{self, PageError};
 use crate::web::server::Shared;
 
@@ -90,7 +89,7 @@ fn build(config: &crate::web::Config, code: &str) -> Result<ProductPage, PageErr
     })?;
     let mut properties = Vec::new();
     for t in &trends {
-        let svg = crate::trend::chart::imr_svg(&product::chart_input(t))?;
+        let svg = crate::trend::chart::imr_svg(&crate::trend::chart::ChartInput::of_trend(t))?;
         let mut signals: Vec<SignalLine> = t
             .signals
             .iter()
@@ -124,28 +123,15 @@ fn build(config: &crate::web::Config, code: &str) -> Result<ProductPage, PageErr
         });
     }
     let visc = product::viscosity_check_of(&lots, &columns);
-    let at = |k: &str| columns.iter().position(|c| c == k);
-    let viscosity_svg = match (&visc, at(keys::MN), at(keys::VISCOSITY)) {
-        (Some(v), Some(mn), Some(vi)) => {
-            let points: Vec<ViscPoint> = lots
-                .iter()
-                .filter_map(|l| match (l.values[mn], l.values[vi]) {
-                    (Some(m), Some(x)) if m > 0.0 && x > 0.0 => Some(ViscPoint {
-                        lot: l.lot.to_string(),
-                        mn: m,
-                        viscosity: x,
-                        off_line: v.off_line.iter().any(|o| *o.lot == *l.lot),
-                    }),
-                    _ => None,
-                })
-                .collect();
+    let viscosity_svg = match &visc {
+        Some(v) => {
             let unit = spec
                 .and_then(|s| s.property(keys::VISCOSITY))
                 .map_or(String::new(), |p| p.unit.clone());
-            let svg = visc_chart::viscosity_mn_svg(code, &points, &v.fit, &unit)?;
+            let svg = crate::trend::viscosity_chart::viscosity_svg(code, &unit, v)?;
             String::from_utf8_lossy(&svg).into_owned()
         }
-        _ => String::new(),
+        None => String::new(),
     };
     Ok(ProductPage {
         title: format!("Product {code}"),
