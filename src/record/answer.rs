@@ -119,7 +119,7 @@ pub struct CertificateLine {
     pub supersedes: String,
     /// The reason for the reissue.
     pub reason: String,
-    /// Its standing in words ("WITHDRAWN <when>: <why>", "superseded by <number>"), empty
+    /// Its standing in words (`WITHDRAWN 2026-12-10T00:00:00Z: why`, `superseded by FW-000005`), empty
     /// while current.
     pub standing: String,
 }

@@ -434,6 +434,55 @@ fn verify_says_genuine_altered_or_unknown() {
     assert!(empty.text().contains("No file came with the form"));
 }
 
+/// The verdicts issue #14 added, on the web page as `verify` gives them: a reissued
+/// certificate is superseded, a certificate of a lot rejected on retest is withdrawn.
+#[test]
+fn verify_says_superseded_and_withdrawn_issue_14() {
+    let w = Workspace::with_good_released(true);
+    let certify = |lot: &str, extra: &[&str]| {
+        w.cmd()
+            .args(["certify", lot, "--customer", "northwind", "--po", "PO-7781"])
+            .args(extra)
+            .assert()
+            .code(0);
+    };
+    certify("T26-101", &[]); // FW-000004
+    certify("T26-101", &["--reason", "purchase order corrected"]); // FW-000005
+    w.write(
+        "retest.csv",
+        "lot,product,manufactured,acid_value,hydroxyl_value,viscosity\nT26-101,TP-2000,2026-05-02,1.40,55.4,540\n",
+    );
+    w.release("retest.csv")
+        .args(["--retest", "--reason", "retained sample re-titrated"])
+        .assert()
+        .code(1);
+    let pdf_of = |number: &str| {
+        common::pdfs(&w.path("certificates"))
+            .into_iter()
+            .find(|p| p.to_string_lossy().contains(number))
+            .unwrap()
+    };
+    let s = Server::start(w.dir.path(), &[]);
+    let check = |number: &str, word: &str, words: &str| {
+        let path = pdf_of(number);
+        let name = path.file_name().unwrap().to_string_lossy().to_string();
+        let page = upload(&s, &name, &std::fs::read(&path).unwrap());
+        assert_eq!(page.status, 200);
+        let html = page.text();
+        assert!(html.contains(&format!("{name}: {word}")), "{html}");
+        assert!(html.contains(words), "{html}");
+    };
+    check(
+        "FW-000004",
+        "SUPERSEDED",
+        "was replaced by certificate FW-000005",
+    );
+    check("FW-000005", "WITHDRAWN", "retained sample re-titrated");
+    // The lot page shows the standing too.
+    let lot = s.get("/lot/T26-101").text();
+    assert!(lot.contains("WITHDRAWN 2026-12-10T00:00:00Z"), "{lot}");
+}
+
 #[test]
 fn an_upload_over_20_mb_is_refused_with_a_page() {
     let s = Server::start(demo(), &[]);
