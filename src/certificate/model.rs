@@ -19,7 +19,11 @@ use crate::error::{Error, Result};
 /// name = "Harrowgate Resins Ltd, Fenmoor Works"
 /// address = ["Fenmoor Industrial Estate", "Harrowgate HG9 0ZZ", "United Kingdom"]
 /// contact = ["Quality Control Laboratory", "qc@example.invalid"]
+/// inspection_representative = { name = "A. Person", role = "Quality Manager" }
 /// ```
+///
+/// A text field starting with [`PLACEHOLDER`] (as `resinlot init` writes them) has not been
+/// filled in yet: no certificate is issued under such a site ([`Site::check_filled_in`]).
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct Site {
@@ -33,7 +37,24 @@ pub struct Site {
     /// Prefix of certificate numbers (letters, digits, '-', '_', '.'), e.g. "FW-".
     #[serde(default = "default_prefix")]
     pub certificate_prefix: String,
+    /// The manufacturer's authorised inspection representative, independent of the
+    /// manufacturing department, who validates EN 10204 type 3.1 certificates.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub inspection_representative: Option<Representative>,
 }
+
+/// A named person and their role, as printed.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Representative {
+    /// Name of the person.
+    pub name: String,
+    /// Role, e.g. `Quality Manager`.
+    pub role: String,
+}
+
+/// Start of a value in `site.toml` that still has to be filled in.
+pub const PLACEHOLDER: &str = "PLACEHOLDER";
 
 fn default_prefix() -> String {
     "CoA-".to_string()
@@ -72,6 +93,45 @@ impl Site {
         }
         Ok(site)
     }
+
+    /// The fields still holding a [`PLACEHOLDER`] value, by name (`name`, `address[1]`, ...).
+    pub fn placeholders(&self) -> Vec<String> {
+        let is = |t: &str| t.trim_start().starts_with(PLACEHOLDER);
+        let mut out = Vec::new();
+        if is(&self.name) {
+            out.push("name".to_string());
+        }
+        for (list, field) in [(&self.address, "address"), (&self.contact, "contact")] {
+            for (i, l) in list.iter().enumerate() {
+                if is(l) {
+                    out.push(format!("{field}[{}]", i + 1));
+                }
+            }
+        }
+        if let Some(r) = &self.inspection_representative {
+            if is(&r.name) || is(&r.role) {
+                out.push("inspection_representative".to_string());
+            }
+        }
+        out
+    }
+
+    /// Refuses (exit 2) a site file whose fields are still placeholders: certificates would
+    /// go out in no one's name. `path` is the site file, named in the message.
+    pub fn check_filled_in(&self, path: &Path) -> Result<()> {
+        let fields = self.placeholders();
+        if fields.is_empty() {
+            return Ok(());
+        }
+        Err(Error::invalid(
+            format!("{}: {}", path.display(), fields.join(", ")),
+            "the issuing site is still a placeholder, so no certificate can be issued in its name",
+            format!(
+                "Edit {} and replace every value starting with {PLACEHOLDER} with your site's own details.",
+                path.display()
+            ),
+        ))
+    }
 }
 
 /// Product identity as printed.
@@ -104,6 +164,23 @@ pub struct Lot {
     pub manufactured: NaiveDate,
     /// Retest date: manufacture date plus the spec's `retest_months` (see [`crate::spec::retest_date`]).
     pub retest: NaiveDate,
+    /// First day of testing, when the record holds it (rows recorded before issue #15 do not).
+    #[serde(default)]
+    pub tested_from: Option<NaiveDate>,
+    /// Last day of testing, when the record holds it.
+    #[serde(default)]
+    pub tested_to: Option<NaiveDate>,
+}
+
+impl Lot {
+    /// The test date(s) as printed: one day, `from – to`, or `not recorded`.
+    pub fn tested_text(&self) -> String {
+        match (self.tested_from, self.tested_to) {
+            (Some(a), Some(b)) if a != b => format!("{a} – {b}"),
+            (Some(a), _) | (None, Some(a)) => a.to_string(),
+            (None, None) => "not recorded".to_string(),
+        }
+    }
 }
 
 /// Shipment details when the certificate is issued for a customer.
@@ -112,6 +189,9 @@ pub struct Lot {
 pub struct Customer {
     /// Customer's legal name.
     pub name: String,
+    /// Customer's postal address, one entry per line.
+    #[serde(default)]
+    pub address: Vec<String>,
     /// Customer's own part number for the product.
     pub part_number: Option<String>,
     /// Customer's purchase order.
@@ -136,14 +216,29 @@ pub struct ResultRow {
     pub limits: String,
     /// Result rounded as the spec says, as a string.
     pub result: String,
+    /// The recorded value at full precision (in the spec's unit), empty when not measured.
+    #[serde(default)]
+    pub exact: String,
+    /// Expanded uncertainty U (k = 2) in the reporting unit, when known.
+    #[serde(default)]
+    pub uncertainty: Option<String>,
     /// Verdict text, e.g. `Pass` or `Conditional pass`.
     pub verdict: String,
+    /// True when the verdict is anything but a pass (printed in bold).
+    #[serde(default)]
+    pub flagged: bool,
+    /// Number of the footnote (a calculated value's note) this row refers to.
+    #[serde(default)]
+    pub note: Option<usize>,
 }
 
 /// A value calculated rather than measured (Mn, Xn), with its expanded uncertainty.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct CalculatedNote {
+    /// Footnote mark, as printed in the row and before the note (`¹`, `²`, ...).
+    #[serde(default)]
+    pub mark: String,
     /// Property key, e.g. `mn`.
     pub key: String,
     /// Printed symbol or name, e.g. `Mn`.
@@ -169,6 +264,17 @@ pub struct Conformity {
     /// The guard band as applied, e.g. `w = U (k = 2)`.
     pub guard_band: String,
     /// The full statement as printed.
+    pub statement: String,
+}
+
+/// The EN 10204:2004 inspection document this certificate is, as the customer ordered.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct InspectionDocument {
+    /// Type as written in the standard, `3.1` or `2.2`.
+    #[serde(rename = "type")]
+    pub kind: String,
+    /// The statement as printed.
     pub statement: String,
 }
 
@@ -214,6 +320,10 @@ pub struct Certificate {
     pub lot: Lot,
     /// Shipment details, for a customer certificate.
     pub customer: Option<Customer>,
+    /// Whether the results table has the U column (guarded decision rule, unless the
+    /// customer file says `show_uncertainty = false`).
+    #[serde(default)]
+    pub show_uncertainty: bool,
     /// Reported properties, in reporting order.
     pub rows: Vec<ResultRow>,
     /// Calculated values with their uncertainty (Mn, Xn).
@@ -224,6 +334,9 @@ pub struct Certificate {
     pub scope_statement: String,
     /// Extra statements (customer-specific), each printed as its own paragraph.
     pub statements: Vec<String>,
+    /// The EN 10204 document type and statement, when the customer orders to one.
+    #[serde(default)]
+    pub inspection_document: Option<InspectionDocument>,
     /// Release authorisation.
     pub authorisation: Authorisation,
     /// False for a held or rejected lot: every page carries a NOT RELEASED marking.

@@ -1,8 +1,9 @@
-//! HTML step: the certificate template rendered with tera 2, autoescaped.
+//! HTML step: the certificate template rendered with tera 2, autoescaped, once per page.
 
 use std::path::{Path, PathBuf};
 
 use crate::certificate::model::Certificate;
+use crate::certificate::render::layout::{whole, Page};
 use crate::error::{Error, Result};
 
 /// File name of the certificate template inside the templates folder.
@@ -10,43 +11,79 @@ pub const CERTIFICATE_TEMPLATE: &str = "certificate.html.tera";
 /// File name of the stylesheet the template includes.
 pub const STYLESHEET: &str = "certificate.css";
 
-/// The certificate templates, loaded from one templates folder only.
+/// The shipped certificate template, used when no templates folder exists.
+const BUILT_IN_TEMPLATE: &str = include_str!("../../../templates/certificate.html.tera");
+/// The shipped stylesheet, used when no templates folder exists.
+const BUILT_IN_STYLESHEET: &str = include_str!("../../../templates/certificate.css");
+
+/// The certificate templates, loaded from one templates folder only, or the built-in ones
+/// when that folder does not exist.
 #[derive(Debug)]
 pub struct Templates {
     tera: tera::Tera,
     dir: PathBuf,
+    built_in: bool,
 }
 
 impl Templates {
     /// Loads `certificate.html.tera` and `certificate.css` from `dir`. Nothing outside `dir`
-    /// is read: an `{% include %}` of any other name fails as an unknown template.
+    /// is read: an `{% include %}` of any other name fails as an unknown template. When `dir`
+    /// does not exist at all the built-in templates (the shipped ones) are used instead, and
+    /// [`Templates::notice`] says so; a folder that exists must hold both files.
     pub fn load(dir: &Path) -> Result<Templates> {
         let mut tera = tera::Tera::new();
         // Escape HTML in every value printed by the certificate template (its name does not
         // end in ".html", tera's default suffix list).
         tera.autoescape_on([".html.tera", ".html"]);
-        for name in [STYLESHEET, CERTIFICATE_TEMPLATE] {
-            let path = dir.join(name);
-            let text =
-                std::fs::read_to_string(&path).map_err(|e| Error::io(&path, "reading", e))?;
+        let built_in = !dir.exists();
+        for (name, shipped) in [
+            (STYLESHEET, BUILT_IN_STYLESHEET),
+            (CERTIFICATE_TEMPLATE, BUILT_IN_TEMPLATE),
+        ] {
+            let text = if built_in {
+                shipped.to_string()
+            } else {
+                let path = dir.join(name);
+                std::fs::read_to_string(&path).map_err(|e| Error::io(&path, "reading", e))?
+            };
             tera.add_raw_template(name, &text)
                 .map_err(|e| template_error(dir, &e))?;
         }
         Ok(Templates {
             tera,
             dir: dir.to_path_buf(),
+            built_in,
         })
     }
 
-    /// Renders the certificate template with every field of `cert` at top level.
+    /// A one-line notice when the built-in templates stand in for a missing folder.
+    pub fn notice(&self) -> Option<String> {
+        self.built_in.then(|| {
+            format!(
+                "note: {} does not exist; certificates use the built-in template and stylesheet (give --templates DIR for your own)",
+                self.dir.display()
+            )
+        })
+    }
+
+    /// Renders the whole certificate as one HTML document (every row, note and the closing
+    /// block under one head), as written beside the PDF with `--html`.
     pub fn render(&self, cert: &Certificate) -> Result<String> {
-        let context = tera::Context::from_serialize(cert).map_err(|e| {
+        self.render_page(cert, &whole(cert))
+    }
+
+    /// Renders one page: every field of `cert` at top level and `page` saying what the page
+    /// holds (see [`Page`]).
+    pub fn render_page(&self, cert: &Certificate, page: &Page) -> Result<String> {
+        let bug = |e: tera::Error| {
             Error::invalid(
                 "certificate data",
                 format!("cannot be passed to the template: {e}"),
                 "Report this as a bug in resinlot.",
             )
-        })?;
+        };
+        let mut context = tera::Context::from_serialize(cert).map_err(bug)?;
+        context.insert("page", page);
         self.tera
             .render(CERTIFICATE_TEMPLATE, &context)
             .map_err(|e| template_error(&self.dir, &e))

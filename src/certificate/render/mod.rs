@@ -7,6 +7,7 @@
 //! the NOT RELEASED marking onto every page with printpdf's own operations.
 
 mod html;
+pub mod layout;
 mod pdf;
 
 pub use html::{render_html, Templates, CERTIFICATE_TEMPLATE, STYLESHEET};
@@ -31,7 +32,7 @@ pub struct Rendered {
 /// Renders one certificate with already-loaded templates and fonts.
 pub fn render_one(templates: &Templates, fonts: &FontPool, cert: &Certificate) -> Result<Rendered> {
     let html = templates.render(cert)?;
-    let pdf = render_pdf(&html, cert, fonts)?;
+    let pdf = render_pdf(templates, cert, fonts)?;
     Ok(Rendered { html, pdf })
 }
 
