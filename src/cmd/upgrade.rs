@@ -50,6 +50,12 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             pred.display()
         ));
     }
+    for (path, rows) in &done.widened {
+        out.push_str(&format!(
+            "{}: widened to the current layout (new columns added, empty in its {rows} earlier rows; every chain value kept).\n",
+            path.display()
+        ));
+    }
     if !done.nothing_to_do() {
         out.push_str(
             "Check the result with `resinlot verify`; keep the predecessor with the record.\n",

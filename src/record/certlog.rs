@@ -13,8 +13,33 @@ use std::path::{Path, PathBuf};
 use crate::error::Result;
 use crate::record::trend_file::{self, Locked, Trend, Wait};
 
-/// Columns of the issue log.
-pub const COLUMNS: [&str; 14] = [
+/// Columns of the issue log (layout v3: [`COLUMNS_V2`] with [`crate::record::layout::LOG_EXTENSION`] before
+/// `chain`).
+pub const COLUMNS: [&str; 19] = [
+    "seq",
+    "issued_at",
+    "number",
+    "lot",
+    "product",
+    "customer",
+    "customer_name",
+    "file",
+    "sha256",
+    "supersedes",
+    "reason",
+    "trend_row",
+    "trend_chain",
+    "event",
+    "po",
+    "quantity",
+    "json_sha256",
+    "cause",
+    "chain",
+];
+
+/// Columns of the issue log as written between issues #13 and #14 (anchors, no extension);
+/// read as they are, and widened by `resinlot upgrade`.
+pub const COLUMNS_V2: [&str; 14] = [
     "seq",
     "issued_at",
     "number",
@@ -54,7 +79,7 @@ pub fn path(register: &Path) -> PathBuf {
 
 /// True when `cols` is the log's header, in the current or the earlier layout.
 pub fn header_ok(cols: &[String]) -> bool {
-    cols == COLUMNS || cols == COLUMNS_V1
+    cols == COLUMNS || cols == COLUMNS_V2 || cols == COLUMNS_V1
 }
 
 /// The layout of a certificate log.

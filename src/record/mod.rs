@@ -8,6 +8,7 @@ pub mod certlog;
 pub mod find;
 pub mod heads;
 pub mod integrity;
+pub mod layout;
 pub mod lines;
 pub mod query;
 pub mod trend_file;

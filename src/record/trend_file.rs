@@ -4,6 +4,8 @@
 //! reason,<key>,<key>_verdict,...,hydroxyl_value_entered,mn_uncertainty,notes,chain`. `chain` is the SHA-256 (hex) of
 //! the previous row's chain value (the header's hash for the first row), a line feed, and this
 //! row's text up to the comma before `chain`. Any later edit, deletion or reordering breaks it.
+//! Layout v3 adds [`layout::TREND_EXTENSION`] columns before `chain`; see [`layout`] for how
+//! rows written before them stay valid.
 
 use std::fs::{File, OpenOptions};
 use std::io::{Read, Seek, SeekFrom, Write};
@@ -13,6 +15,7 @@ use std::time::{Duration, Instant};
 use sha2::{Digest, Sha256};
 
 use crate::error::{Error, Result};
+use crate::record::layout;
 use crate::spec::keys;
 
 /// Columns before the property columns.
@@ -29,7 +32,8 @@ pub const PREFIX: [&str; 10] = [
     "reason",
 ];
 
-/// Columns after the property columns.
+/// Columns after the property columns in the earlier layout (layout v3 inserts
+/// [`layout::TREND_EXTENSION`] before `chain`).
 pub const SUFFIX: [&str; 4] = [
     keys::HYDROXYL_VALUE_ENTERED,
     "mn_uncertainty",
@@ -42,7 +46,8 @@ pub fn path_for(register: &Path, product: &str) -> PathBuf {
     register.join(format!("{product}.csv"))
 }
 
-/// The header line (without line feed) for a product with these property keys.
+/// The header line (without line feed) for a new trend file with these property keys, in the
+/// current layout (v3).
 pub fn header_line(keys: &[String]) -> String {
     let mut cols: Vec<String> = PREFIX.iter().map(|s| s.to_string()).collect();
     for k in keys {
@@ -50,7 +55,7 @@ pub fn header_line(keys: &[String]) -> String {
         cols.push(format!("{k}_verdict"));
     }
     cols.extend(SUFFIX.iter().map(|s| s.to_string()));
-    cols.join(",")
+    layout::widened(&cols, &layout::TREND_EXTENSION).join(",")
 }
 
 /// SHA-256 hex of `prev` + "\n" + `body`.
@@ -67,9 +72,15 @@ pub fn hex(bytes: &[u8]) -> String {
     bytes.iter().map(|b| format!("{b:02x}")).collect()
 }
 
-/// The chain seed: SHA-256 hex of the header line.
+/// SHA-256 hex of a header line.
 pub fn seed(header: &str) -> String {
     hex(&Sha256::digest(header.as_bytes()))
+}
+
+/// The chain seed of a file with these columns: SHA-256 hex of the header without its
+/// extension columns ([`layout::seed_header`]).
+pub fn chain_seed(columns: &[String]) -> String {
+    seed(&layout::seed_header(columns))
 }
 
 /// Makes a text cell safe for a CSV opened in a spreadsheet: quotes it when needed and
@@ -188,11 +199,36 @@ pub fn split_line(line: &str) -> Vec<String> {
     cells
 }
 
-/// True when `columns` is a trend-file header.
+/// Number of extension columns in a trend-file header (0 in the earlier layout).
+fn trend_extension(columns: &[String]) -> usize {
+    match layout::extension_len(columns) {
+        n if n == layout::TREND_EXTENSION.len() => n,
+        _ => 0,
+    }
+}
+
+/// The header without its extension columns.
+fn base_columns(columns: &[String]) -> Vec<&str> {
+    let n = trend_extension(columns);
+    let mut base: Vec<&str> = columns.iter().map(String::as_str).collect();
+    if n > 0 {
+        let chain = base.len() - 1;
+        base.drain(chain - n..chain);
+    }
+    base
+}
+
+/// True when `columns` is a trend-file header, in the current layout or the earlier one.
 pub fn is_trend_header(columns: &[String]) -> bool {
-    columns.len() >= PREFIX.len() + SUFFIX.len()
-        && columns[..PREFIX.len()] == PREFIX
-        && columns[columns.len() - SUFFIX.len()..] == SUFFIX
+    let base = base_columns(columns);
+    base.len() >= PREFIX.len() + SUFFIX.len()
+        && base[..PREFIX.len()] == PREFIX
+        && base[base.len() - SUFFIX.len()..] == SUFFIX
+}
+
+/// True when a trend-file header is in the current layout (has the v3 extension columns).
+pub fn is_current_trend_header(columns: &[String]) -> bool {
+    is_trend_header(columns) && trend_extension(columns) > 0
 }
 
 /// Refuses a file whose header is not a trend-file header (the error names file and line 1).
@@ -213,7 +249,8 @@ pub fn property_keys(columns: &[String]) -> Vec<String> {
     if !is_trend_header(columns) {
         return Vec::new();
     }
-    columns[PREFIX.len()..columns.len() - SUFFIX.len()]
+    let end = columns.len() - SUFFIX.len() - trend_extension(columns);
+    columns[PREFIX.len()..end]
         .iter()
         .filter(|c| !c.ends_with("_verdict"))
         .cloned()
@@ -309,7 +346,7 @@ pub fn parse_bytes(
                 );
                 return (trend, Some(d));
             }
-            prev = seed(line);
+            prev = chain_seed(&trend.columns);
             trend.head = prev.clone();
             continue;
         }
@@ -324,6 +361,7 @@ pub fn parse_bytes(
         }
         if verify {
             let body = &line[..line.rfind(',').unwrap_or(0)];
+            let body = layout::signed_body(body, layout::extension_len(&trend.columns));
             let expect = chain_hash(&prev, body);
             if cells[cells.len() - 1] != expect {
                 let d = if unterminated {
@@ -457,11 +495,14 @@ pub fn encode_row(trend: &Trend, cells: &[(&str, String)]) -> Result<(String, Ve
     for (name, value) in cells {
         if let Some(i) = trend.col(name) {
             row[i] = value.clone();
+        } else if !value.is_empty() && is_extension_column(name) {
+            return Err(needs_upgrade(&trend.path, name));
         }
     }
     let body: Vec<String> = row[..n - 1].iter().map(|c| text_cell(c)).collect();
     let body = body.join(",");
-    let chain = chain_hash(&trend.head, &body);
+    let signed = layout::signed_body(&body, layout::extension_len(&trend.columns));
+    let chain = chain_hash(&trend.head, signed);
     let line = format!("{body},{chain}\n");
     let back = split_line(&line[..line.len() - 1]);
     let bad = if line[..line.len() - 1].contains(['\n', '\r']) {
@@ -486,6 +527,30 @@ pub fn encode_row(trend: &Trend, cells: &[(&str, String)]) -> Result<(String, Ve
         ));
     }
     Ok((line, back))
+}
+
+/// True for a column that only files in the current layout have.
+fn is_extension_column(name: &str) -> bool {
+    layout::TREND_EXTENSION.contains(&name) || layout::LOG_EXTENSION.contains(&name)
+}
+
+/// The refusal to record a value in a file written before its column existed: nothing is
+/// dropped silently; `resinlot upgrade` widens the file first.
+pub fn needs_upgrade(path: &Path, column: &str) -> Error {
+    let register = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    };
+    Error::invalid(
+        path.display().to_string(),
+        format!(
+            "this file was written in an earlier layout without the column '{column}', so the row cannot be recorded in full; nothing was written"
+        ),
+        format!(
+            "Run `resinlot upgrade --register {}` once (it adds the new columns and keeps every row and chain value), then run the command again.",
+            register.display()
+        ),
+    )
 }
 
 /// An exclusively locked trend file, open for appending.
@@ -569,11 +634,12 @@ pub fn lock_with(
     let header = header.to_string();
     let fresh = bytes.is_empty();
     let trend = if fresh {
+        let columns = split_line(&header);
         Trend {
             path: path.to_path_buf(),
-            columns: split_line(&header),
+            head: chain_seed(&columns),
+            columns,
             rows: vec![],
-            head: seed(&header),
         }
     } else {
         let (trend, damage) = parse_bytes(path, &bytes, true, header_ok);
@@ -751,6 +817,76 @@ mod tests {
         Wait {
             timeout: Duration::from_secs(5),
         }
+    }
+
+    /// Layout v3 (issue #14): a file in the earlier layout reads as before, takes rows that
+    /// carry nothing new, and refuses (writing nothing) a row with a value for a column it
+    /// lacks, naming `resinlot upgrade`; its chain is the one the earlier build wrote.
+    #[test]
+    fn an_earlier_layout_file_refuses_values_it_has_no_column_for_issue_14() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        let narrow: Vec<String> = split_line(&header_line(&keys()))
+            .into_iter()
+            .filter(|c| !layout::TREND_EXTENSION.contains(&c.as_str()))
+            .collect();
+        std::fs::write(&p, format!("{}\n", narrow.join(","))).unwrap();
+        let mut l = lock(&p, &keys(), &keys(), wait()).unwrap();
+        assert!(!is_current_trend_header(&l.trend.columns));
+        assert_eq!(l.trend.head, seed(&narrow.join(",")));
+        l.append(&[("lot", "L1".into()), ("recorded_by", String::new())])
+            .unwrap();
+        let e = l
+            .append(&[("lot", "L2".into()), ("recorded_by", "qc1".into())])
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("without the column 'recorded_by'"), "{e}");
+        assert!(e.contains("resinlot upgrade"), "{e}");
+        l.sync().unwrap();
+        drop(l);
+        let t = read(&p).unwrap();
+        assert_eq!(t.rows.len(), 1);
+        // The row chains as the earlier build chained it: over the whole body.
+        let line = std::fs::read_to_string(&p)
+            .unwrap()
+            .lines()
+            .nth(1)
+            .unwrap()
+            .to_string();
+        let k = line.rfind(',').unwrap();
+        assert_eq!(
+            chain_hash(&seed(&narrow.join(",")), &line[..k]),
+            &line[k + 1..]
+        );
+    }
+
+    /// Layout v3: a new file has the extension columns, seeds its chain from the header
+    /// without them, and signs a row without its trailing empty extension cells.
+    #[test]
+    fn a_new_file_is_in_layout_v3_issue_14() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        write_for_test(
+            &p,
+            &keys(),
+            &[
+                vec![("lot", "L1".into())],
+                vec![("lot", "L2".into()), ("analysts", "AB;CD".into())],
+            ],
+        );
+        let text = std::fs::read_to_string(&p).unwrap();
+        let mut lines = text.lines();
+        let header = split_line(lines.next().unwrap());
+        assert!(is_current_trend_header(&header));
+        assert_eq!(property_keys(&header), keys());
+        let first = lines.next().unwrap();
+        let k = first.rfind(',').unwrap();
+        // The nine extension cells are empty and left out of what the chain signs.
+        assert_eq!(&first[k - 9..k], ",,,,,,,,,");
+        let signed = &first[..k - 9];
+        assert_eq!(chain_hash(&chain_seed(&header), signed), &first[k + 1..]);
+        let t = read(&p).unwrap();
+        assert_eq!(t.cell(&t.rows[1], "analysts"), "AB;CD");
     }
 
     fn write_two(path: &Path) {

@@ -12,6 +12,14 @@
 //!    predecessor's rows follow with their cells unchanged (and empty anchors: when they were
 //!    issued no anchor was kept).
 //!
+//! 3. every trend file and the certificate log written before layout v3 is *widened*: the
+//!    header gains the extension columns ([`crate::record::layout`]) and every row gains empty
+//!    cells before `chain`. The chain rule signs a row without trailing empty extension cells
+//!    and seeds from the header without them, so every chain value, row count, heads-file entry
+//!    and certificate anchor stays what it was; the widened file is parsed and checked to end
+//!    in the same chain value before it replaces the old one (atomically, under the file's
+//!    lock).
+//!
 //! `verify` checks an upgraded log back to its predecessor ([`check_predecessor`]).
 
 use std::path::{Path, PathBuf};
@@ -20,6 +28,7 @@ use crate::error::{Error, Result};
 use crate::record::certlog::{self, Layout};
 use crate::record::heads::{self, State};
 use crate::record::integrity::{self, FileCheck};
+use crate::record::layout;
 use crate::record::trend_file::{self, Trend, Wait};
 
 /// File name the earlier certificate log is kept under after an upgrade (not `.csv`, so it is
@@ -37,12 +46,14 @@ pub struct Upgraded {
     pub heads: Option<(PathBuf, usize)>,
     /// The certificate log's predecessor kept, with its SHA-256 and row count.
     pub log: Option<(PathBuf, String, usize)>,
+    /// Files widened to layout v3, with their row counts.
+    pub widened: Vec<(PathBuf, usize)>,
 }
 
 impl Upgraded {
     /// True when the register was already in the current layout.
     pub fn nothing_to_do(&self) -> bool {
-        self.heads.is_none() && self.log.is_none()
+        self.heads.is_none() && self.log.is_none() && self.widened.is_empty()
     }
 }
 
@@ -108,8 +119,67 @@ pub fn upgrade(register: &Path, certificates: &Path, now: &str, wait: Wait) -> R
     if certlog::layout(register)? == Some(Layout::V1) {
         done.log = Some(upgrade_log(register, now, wait)?);
     }
+    for l in &locks {
+        if let Some(rows) = widen(&l.trend.path, &l.trend, &layout::TREND_EXTENSION)? {
+            done.widened.push((l.trend.path.clone(), rows));
+        }
+    }
+    let log_path = certlog::path(register);
+    if log_path.is_file() {
+        let log = trend_file::lock_with(&log_path, "", &[], wait, &certlog::header_ok)?;
+        if !log.trend.columns.is_empty() {
+            if let Some(rows) = widen(&log_path, &log.trend, &layout::LOG_EXTENSION)? {
+                done.widened.push((log_path, rows));
+            }
+        }
+    }
     drop(locks);
     Ok(done)
+}
+
+/// Step 3 of [`upgrade`]: widens the file at `path` (read under its lock as `trend`) to layout
+/// v3 when it lacks `extension`. Returns its row count when it was widened.
+fn widen(path: &Path, trend: &Trend, extension: &[&str]) -> Result<Option<usize>> {
+    if trend.columns.is_empty() || layout::extension_len(&trend.columns) > 0 {
+        return Ok(None);
+    }
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "reading", e))?;
+    let wide = widened_bytes(&bytes, &trend.columns, extension);
+    let (back, damage) = trend_file::parse_bytes(path, &wide, true, &|c| {
+        layout::extension_len(c) == extension.len()
+    });
+    if damage.is_some() || back.rows.len() != trend.rows.len() || back.head != trend.head {
+        return Err(Error::invalid(
+            path.display().to_string(),
+            "widening the file to the current layout would not keep its chain; nothing was written",
+            "Run `resinlot verify` and report what it says; the file is left as it was.",
+        ));
+    }
+    crate::support::output::write_atomic(path, &wide, true)?;
+    Ok(Some(trend.rows.len()))
+}
+
+/// The bytes of a chained CSV widened to layout v3: the header with `extension` before
+/// `chain`, every row with as many empty cells before its chain value; pure.
+fn widened_bytes(bytes: &[u8], columns: &[String], extension: &[&str]) -> Vec<u8> {
+    let mut out = Vec::with_capacity(bytes.len() + bytes.len() / 8);
+    let pad = ",".repeat(extension.len());
+    for (i, line) in bytes.split_inclusive(|&b| b == b'\n').enumerate() {
+        if i == 0 {
+            out.extend_from_slice(layout::widened(columns, extension).join(",").as_bytes());
+            out.push(b'\n');
+            continue;
+        }
+        match line.iter().rposition(|&b| b == b',') {
+            Some(k) => {
+                out.extend_from_slice(&line[..k]);
+                out.extend_from_slice(pad.as_bytes());
+                out.extend_from_slice(&line[k..]);
+            }
+            None => out.extend_from_slice(line),
+        }
+    }
+    out
 }
 
 /// True when the log at `log_path` starts with a layout row (it was upgraded). Reads only the
@@ -185,7 +255,9 @@ fn carried_columns() -> impl Iterator<Item = &'static str> {
 /// ones empty), numbered from 1, exactly as appending them one by one would write it.
 fn chained_text(columns: &[&str], rows: &[Vec<(&str, String)>]) -> String {
     let header = columns.join(",");
-    let mut head = trend_file::seed(&header);
+    let names: Vec<String> = columns.iter().map(|c| c.to_string()).collect();
+    let extension = layout::extension_len(&names);
+    let mut head = trend_file::chain_seed(&names);
     let mut text = format!("{header}\n");
     for (k, cells) in rows.iter().enumerate() {
         let mut row = vec![String::new(); columns.len() - 1];
@@ -197,7 +269,7 @@ fn chained_text(columns: &[&str], rows: &[Vec<(&str, String)>]) -> String {
         }
         let body: Vec<String> = row.iter().map(|c| trend_file::text_cell(c)).collect();
         let body = body.join(",");
-        head = trend_file::chain_hash(&head, &body);
+        head = trend_file::chain_hash(&head, layout::signed_body(&body, extension));
         text.push_str(&format!("{body},{head}\n"));
     }
     text

@@ -148,11 +148,15 @@ fn upgrade_of_the_fixture_verifies_naming_the_old_hash_issue_13() {
         std::fs::read(w.path("register/certificates.csv.v1")).unwrap(),
         std::fs::read(fixture("register/certificates.csv")).unwrap()
     );
+    // Layout v3 (issues #14-#17) widens the trend files: with the empty extension cells
+    // taken out again, each is the fixture byte for byte (every row and chain value kept).
     for f in ["PB-4800.csv", "PD-2000.csv", "SPC-35.csv"] {
+        let wide = std::fs::read_to_string(w.path(&format!("register/{f}"))).unwrap();
         assert_eq!(
-            std::fs::read(w.path(&format!("register/{f}"))).unwrap(),
-            std::fs::read(fixture(&format!("register/{f}"))).unwrap()
+            narrowed(&wide),
+            std::fs::read_to_string(fixture(&format!("register/{f}"))).unwrap()
         );
+        assert!(wide.lines().next().unwrap().contains(",notes,disposition,"));
     }
     let (code, text) = verify(&w);
     assert_eq!(code, 0, "{text}");
@@ -287,5 +291,92 @@ fn rows_appended_without_their_head_are_recorded_by_quarantine_issue_13() {
         log.contains("recorded the head of register/TP-2000.csv at 4 rows"),
         "{log}"
     );
+    assert_eq!(verify(&w).0, 0);
+}
+
+/// A widened trend file with its nine (empty) extension cells removed from every line.
+fn narrowed(wide: &str) -> String {
+    let ext = ",disposition,concession_ref,concession_customer,analysts,tested_from,tested_to,decided_at,recorded_by,spec_sha256";
+    let mut out = String::new();
+    for (i, line) in wide.lines().enumerate() {
+        if i == 0 {
+            out.push_str(&line.replace(ext, ""));
+        } else {
+            let k = line.rfind(',').unwrap();
+            assert_eq!(
+                &line[k - 9..k],
+                ",,,,,,,,,",
+                "extension cells not empty: {line}"
+            );
+            out.push_str(&line[..k - 9]);
+            out.push_str(&line[k..]);
+        }
+        out.push('\n');
+    }
+    out
+}
+
+/// The register as the build before layout v3 wrote it (issues #14-#17).
+fn before_14() -> Workspace {
+    let dir = tempfile::tempdir().unwrap();
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    copy_dir(&root.join("tests/registers/before-14"), dir.path());
+    Workspace { dir }
+}
+
+/// Layout v3 (issues #14, #15, #16, #17): a register written before the extension columns
+/// verifies as it is, and `upgrade` widens its trend files and certificate log keeping every
+/// row, chain value, head and anchor, so `verify` (and its certificates) still pass; running
+/// the upgrade again does nothing.
+#[test]
+fn upgrade_widens_a_register_from_before_layout_v3_issue_14() {
+    let w = before_14();
+    let fixture14 = |rel: &str| {
+        std::fs::read_to_string(
+            Path::new(env!("CARGO_MANIFEST_DIR"))
+                .join("tests/registers/before-14")
+                .join(rel),
+        )
+        .unwrap()
+    };
+    assert_eq!(verify(&w).0, 0);
+    let heads = std::fs::read(w.path("register/heads.csv")).unwrap();
+    let out = w.cmd().arg("upgrade").assert().success();
+    let text = String::from_utf8_lossy(&out.get_output().stdout).into_owned();
+    for f in [
+        "PB-4800.csv",
+        "PD-2000.csv",
+        "SPC-35.csv",
+        "certificates.csv",
+    ] {
+        assert!(
+            text.contains(&format!("register/{f}: widened to the current layout")),
+            "{f}: {text}"
+        );
+    }
+    for f in ["PB-4800.csv", "PD-2000.csv", "SPC-35.csv"] {
+        let wide = std::fs::read_to_string(w.path(&format!("register/{f}"))).unwrap();
+        assert_eq!(narrowed(&wide), fixture14(&format!("register/{f}")));
+    }
+    let log = std::fs::read_to_string(w.path("register/certificates.csv")).unwrap();
+    assert!(log.starts_with(
+        "seq,issued_at,number,lot,product,customer,customer_name,file,sha256,supersedes,reason,trend_row,trend_chain,event,po,quantity,json_sha256,cause,chain\n"
+    ));
+    assert_eq!(std::fs::read(w.path("register/heads.csv")).unwrap(), heads);
+    let (code, text) = verify(&w);
+    assert_eq!(code, 0, "{text}");
+    assert!(
+        text.contains("register/PD-2000.csv: 62 rows, intact"),
+        "{text}"
+    );
+    for pdf in std::fs::read_dir(w.path("certificates")).unwrap() {
+        let pdf = pdf.unwrap().path();
+        w.cmd().arg("verify").arg(&pdf).assert().success();
+    }
+    let again = w.cmd().arg("upgrade").assert().success();
+    assert!(String::from_utf8_lossy(&again.get_output().stdout).contains("nothing to upgrade"));
+    // A release after the widening chains on from the kept heads.
+    w.write("lot.csv", PD_LOT);
+    w.release("lot.csv").assert().success();
     assert_eq!(verify(&w).0, 0);
 }
