@@ -82,7 +82,9 @@ impl LotRecord {
             approver: c("approver"),
             decided_at: c("recorded_at"),
             notes: LotNote::parse_cell(&c("notes")),
-            tested: (None, None),
+            // Empty in rows recorded before layout v3 (and in files without the columns):
+            // the certificate then says "not recorded".
+            tested: (date(&c("tested_from")), date(&c("tested_to"))),
         })
     }
 
@@ -127,6 +129,12 @@ impl LotRecord {
     fn value(&self, key: &str) -> Option<Decimal> {
         crate::spec::decision::recorded_decimal(self.values.get(key)?)
     }
+}
+
+/// A recorded date cell (`YYYY-MM-DD`, or the date part of an RFC 3339 time); None when
+/// empty or unreadable.
+fn date(cell: &str) -> Option<NaiveDate> {
+    NaiveDate::parse_from_str(cell.get(..10)?, "%Y-%m-%d").ok()
 }
 
 /// A shipment to a customer.

@@ -56,6 +56,21 @@ pub struct Representative {
 /// Start of a value in `site.toml` that still has to be filled in.
 pub const PLACEHOLDER: &str = "PLACEHOLDER";
 
+/// The site file `resinlot init` writes and the site assumed when no templates folder exists:
+/// every field a placeholder, so nothing is issued until the lab fills it in.
+pub const PLACEHOLDER_SITE: &str = "\
+# The issuing site printed on every certificate of analysis. Replace every value starting with
+# PLACEHOLDER: resinlot refuses to issue certificates until none is left.
+# Keys: name (text), address (list of lines), contact (list of lines), certificate_prefix
+# (start of every certificate number), and inspection_representative (needed for customers
+# who order EN 10204 type 3.1 certificates: a person independent of manufacturing).
+name = \"PLACEHOLDER: legal name of the issuing site\"
+address = [\"PLACEHOLDER: street\", \"PLACEHOLDER: town and postcode\", \"PLACEHOLDER: country\"]
+contact = [\"PLACEHOLDER: laboratory name\", \"PLACEHOLDER: e-mail or telephone\"]
+certificate_prefix = \"CoA-\"
+# inspection_representative = { name = \"PLACEHOLDER: name\", role = \"PLACEHOLDER: role\" }
+";
+
 fn default_prefix() -> String {
     "CoA-".to_string()
 }
@@ -116,12 +131,28 @@ impl Site {
         out
     }
 
-    /// Refuses (exit 2) a site file whose fields are still placeholders: certificates would
-    /// go out in no one's name. `path` is the site file, named in the message.
+    /// The site assumed when no templates folder exists: [`PLACEHOLDER_SITE`].
+    pub fn placeholder() -> Site {
+        toml::from_str(PLACEHOLDER_SITE).expect("the built-in site file is valid")
+    }
+
+    /// Refuses (exit 2) a site whose fields are still placeholders: certificates would go out
+    /// in no one's name. `path` is the site file, named in the message (it may not exist yet:
+    /// then the message says to create it).
     pub fn check_filled_in(&self, path: &Path) -> Result<()> {
         let fields = self.placeholders();
         if fields.is_empty() {
             return Ok(());
+        }
+        if !path.exists() {
+            return Err(Error::invalid(
+                path.display().to_string(),
+                "there is no site file, so no certificate can be issued: it would name no issuer",
+                format!(
+                    "Create {} with your site's name, address and contact lines (`resinlot init NEW-FOLDER` writes one to fill in), or give --templates DIR; `release --no-certificates` records decisions without certificates.",
+                    path.display()
+                ),
+            ));
         }
         Err(Error::invalid(
             format!("{}: {}", path.display(), fields.join(", ")),
@@ -131,6 +162,11 @@ impl Site {
                 path.display()
             ),
         ))
+    }
+
+    /// Writes [`PLACEHOLDER_SITE`] to `path` (for `resinlot init`), replacing what is there.
+    pub fn write_placeholder(path: &Path) -> Result<()> {
+        crate::support::output::write_atomic(path, PLACEHOLDER_SITE.as_bytes(), true)
     }
 }
 
@@ -417,6 +453,41 @@ mod tests {
         std::fs::write(&p, "name = \"X\"\naddress = []\n").unwrap();
         let msg = Site::load(&p).unwrap_err().to_string();
         assert!(msg.contains("address"), "{msg}");
+    }
+
+    #[test]
+    fn a_placeholder_site_is_refused_naming_the_file_issue_17() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("site.toml");
+        Site::write_placeholder(&p).unwrap();
+        let site = Site::load(&p).unwrap();
+        assert_eq!(site, Site::placeholder());
+        assert_eq!(
+            site.placeholders(),
+            [
+                "name",
+                "address[1]",
+                "address[2]",
+                "address[3]",
+                "contact[1]",
+                "contact[2]"
+            ]
+        );
+        let err = site.check_filled_in(&p).unwrap_err();
+        assert_eq!(err.exit_code(), 2);
+        let msg = err.to_string();
+        assert!(msg.contains("site.toml: name"), "{msg}");
+        assert!(msg.contains("Edit"), "{msg}");
+        // Without the file the message says to create it.
+        let missing = dir.path().join("none").join("site.toml");
+        let msg = site.check_filled_in(&missing).unwrap_err().to_string();
+        assert!(msg.contains("Create"), "{msg}");
+        // A filled-in site passes.
+        let mut real = site.clone();
+        real.name = "Example Works".into();
+        real.address = vec!["1 Road".into()];
+        real.contact = vec![];
+        assert!(real.check_filled_in(&p).is_ok());
     }
 
     #[test]

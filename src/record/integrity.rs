@@ -447,18 +447,27 @@ pub enum CertVerdict {
     },
 }
 
-/// Identifies a certificate PDF against the issue log.
+/// Identifies a certificate PDF, or its JSON data companion (issue #17), against the issue
+/// log: genuine when its SHA-256 is logged as either file's, altered when a certificate of
+/// that file name (`<lot>_<number>.pdf` or `.json`) was issued with other bytes.
 pub fn verify_certificate(pdf: &Path, register_dir: &Path) -> Result<CertVerdict> {
     let sha = file_sha256(pdf)?;
     let entries = crate::record::certlog::entries(register_dir)?;
-    if let Some(e) = entries.iter().find(|e| e.sha256 == sha) {
+    if let Some(e) = entries
+        .iter()
+        .find(|e| e.sha256 == sha || (!e.json_sha256.is_empty() && e.json_sha256 == sha))
+    {
         return Ok(CertVerdict::Genuine { entry: e.clone() });
     }
     let name = pdf
         .file_name()
         .map(|n| n.to_string_lossy().to_string())
         .unwrap_or_default();
-    if let Some(e) = entries.iter().find(|e| e.file == name) {
+    let as_pdf = name
+        .strip_suffix(".json")
+        .map(|stem| format!("{stem}.pdf"))
+        .unwrap_or_else(|| name.clone());
+    if let Some(e) = entries.iter().find(|e| e.file == as_pdf) {
         return Ok(CertVerdict::Altered {
             entry: e.clone(),
             sha256: sha,

@@ -2,7 +2,7 @@
 
 use std::path::{Path, PathBuf};
 
-use crate::certificate::model::Certificate;
+use crate::certificate::model::{Certificate, SITE_FILE};
 use crate::certificate::render::layout::{whole, Page};
 use crate::error::{Error, Result};
 
@@ -27,15 +27,18 @@ pub struct Templates {
 
 impl Templates {
     /// Loads `certificate.html.tera` and `certificate.css` from `dir`. Nothing outside `dir`
-    /// is read: an `{% include %}` of any other name fails as an unknown template. When `dir`
-    /// does not exist at all the built-in templates (the shipped ones) are used instead, and
-    /// [`Templates::notice`] says so; a folder that exists must hold both files.
+    /// is read: an `{% include %}` of any other name fails as an unknown template. The
+    /// built-in templates (the shipped ones) are used instead, and [`Templates::notice`] says
+    /// so, when `dir` does not exist or holds the site file but neither template file; any
+    /// other folder must hold both files.
     pub fn load(dir: &Path) -> Result<Templates> {
         let mut tera = tera::Tera::new();
         // Escape HTML in every value printed by the certificate template (its name does not
         // end in ".html", tera's default suffix list).
         tera.autoescape_on([".html.tera", ".html"]);
-        let built_in = !dir.exists();
+        let has = |name: &str| dir.join(name).exists();
+        let built_in =
+            !dir.exists() || (has(SITE_FILE) && !has(STYLESHEET) && !has(CERTIFICATE_TEMPLATE));
         for (name, shipped) in [
             (STYLESHEET, BUILT_IN_STYLESHEET),
             (CERTIFICATE_TEMPLATE, BUILT_IN_TEMPLATE),
@@ -60,7 +63,7 @@ impl Templates {
     pub fn notice(&self) -> Option<String> {
         self.built_in.then(|| {
             format!(
-                "note: {} does not exist; certificates use the built-in template and stylesheet (give --templates DIR for your own)",
+                "note: {} holds no certificate template; certificates use the built-in template and stylesheet (put certificate.html.tera and certificate.css there, or give --templates DIR, for your own)",
                 self.dir.display()
             )
         })
