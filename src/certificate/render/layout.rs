@@ -123,7 +123,7 @@ pub fn lines(face: &printpdf::ParsedFont, text: &str, size: f32, width: f32) -> 
 /// between the side margins.
 pub const COLUMNS_MM: [f32; 6] = [40.0, 36.0, 22.0, 26.0, 17.0, 37.0];
 /// With the U column.
-pub const COLUMNS_U_MM: [f32; 7] = [34.0, 28.0, 20.0, 26.0, 16.0, 20.0, 34.0];
+pub const COLUMNS_U_MM: [f32; 7] = [32.0, 26.0, 20.0, 26.0, 16.0, 20.0, 38.0];
 /// Horizontal padding of a table cell, pt (5 px each side).
 const CELL_PAD_X: f32 = 2.0 * 5.0 * PT_PER_PX;
 /// Width of the content box, pt (A4 less two 16 mm margins).
