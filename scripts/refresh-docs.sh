@@ -14,6 +14,11 @@ cp target/readme-demo.txt "$demo/outputs/00-demo.txt"
 cert=$(ls "$demo"/certificates/F2611-D05_*.pdf | tail -n 1)
 pdftoppm -png -r 80 -f 1 -l 1 -singlefile "$cert" docs/certificate
 cp "$demo/outputs/pd-2000-hydroxyl-value.png" docs/control-chart.png
+# Page 2 of a multi-page certificate: the 40-property test fixture (invented values), written by
+# its test when RESINLOT_SAMPLE_DIR is set.
+samples="$PWD/target/readme-samples"
+RESINLOT_SAMPLE_DIR="$samples" cargo test --quiet --test cli certificate_render::forty_properties > /dev/null
+pdftoppm -png -r 80 -f 2 -l 2 -singlefile "$samples/forty.pdf" docs/certificate-page-2
 pdftoppm -png -r 60 -f 2 -l 2 -singlefile "$demo/outputs/pd-2000-trend.pdf" docs/trend-report
 python3 - "$demo/outputs" <<'PY'
 import pathlib, re, sys

@@ -170,6 +170,38 @@ impl Site {
     }
 }
 
+/// Warnings about the site file at `path` for `specs check` (issue #17): missing, still
+/// holding placeholders, or naming no inspection representative while the customers in
+/// `needs_31` order EN 10204 type 3.1 certificates. Each warning is one line; none is empty
+/// text. A site file that cannot be read or parsed is an error, as everywhere else.
+pub fn site_warnings<'a>(path: &Path, needs_31: impl Iterator<Item = &'a str>) -> Result<String> {
+    if !path.is_file() {
+        return Ok(format!(
+            "warning: {}: no site file; certify and release refuse to issue certificates until it exists.\n",
+            path.display()
+        ));
+    }
+    let site = Site::load(path)?;
+    let mut out = String::new();
+    let fields = site.placeholders();
+    if !fields.is_empty() {
+        out.push_str(&format!(
+            "warning: {}: {} still {PLACEHOLDER}; certify and release refuse to issue certificates until filled in.\n",
+            path.display(),
+            fields.join(", ")
+        ));
+    }
+    let needs: Vec<&str> = needs_31.collect();
+    if !needs.is_empty() && site.inspection_representative.is_none() {
+        out.push_str(&format!(
+            "warning: {}: no inspection_representative, but {} order EN 10204 type 3.1 certificates, which certify refuses without one.\n",
+            path.display(),
+            needs.join(", ")
+        ));
+    }
+    Ok(out)
+}
+
 /// Product identity as printed.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -488,6 +520,20 @@ mod tests {
         real.address = vec!["1 Road".into()];
         real.contact = vec![];
         assert!(real.check_filled_in(&p).is_ok());
+    }
+
+    #[test]
+    fn specs_check_warns_about_the_site_issue_17() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("site.toml");
+        let none = site_warnings(&p, std::iter::empty()).unwrap();
+        assert!(none.contains("no site file"), "{none}");
+        Site::write_placeholder(&p).unwrap();
+        let w = site_warnings(&p, ["acme"].into_iter()).unwrap();
+        assert!(w.contains("name, address[1]"), "{w}");
+        assert!(w.contains("acme order EN 10204 type 3.1"), "{w}");
+        std::fs::write(&p, "name = \"X\"\naddress = [\"Y\"]\n").unwrap();
+        assert_eq!(site_warnings(&p, std::iter::empty()).unwrap(), "");
     }
 
     #[test]

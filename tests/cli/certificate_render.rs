@@ -526,3 +526,24 @@ fn the_rule_check_catches_a_rule_through_text_issue_17() {
         .iter()
         .any(|r| baselines.iter().any(|b| (r - b).abs() <= 1.0)));
 }
+
+#[test]
+fn a_template_without_page_rows_keeps_the_engines_page_breaks_issue_17() {
+    // A template edited before issue #17 prints every row itself: resinlot does not paginate
+    // it (each page would repeat the whole table) but leaves the breaks to the HTML engine.
+    let dir = edited_templates(|t| {
+        t.replace("{% if page.rows %}", "{% if rows %}")
+            .replace("{% for row in page.rows %}", "{% for row in rows %}")
+    });
+    let templates = Templates::load(dir.path()).unwrap();
+    assert!(!templates.paged());
+    assert!(Templates::load(&templates_dir()).unwrap().paged());
+    let cert = long_certificate(40);
+    let out = render::render_one(&templates, &FontPool::bundled(), &cert).unwrap();
+    let pages = page_texts(&out.pdf);
+    assert!(pages.len() >= 2, "{}", pages.len());
+    let all = pages.join(" ");
+    for i in 1..=40 {
+        assert_eq!(all.matches(&format!("Property {i} ")).count(), 1, "row {i}");
+    }
+}

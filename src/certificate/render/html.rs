@@ -23,6 +23,7 @@ pub struct Templates {
     tera: tera::Tera,
     dir: PathBuf,
     built_in: bool,
+    paged: bool,
 }
 
 impl Templates {
@@ -37,6 +38,7 @@ impl Templates {
         // end in ".html", tera's default suffix list).
         tera.autoescape_on([".html.tera", ".html"]);
         let has = |name: &str| dir.join(name).exists();
+        let mut paged = false;
         let built_in =
             !dir.exists() || (has(SITE_FILE) && !has(STYLESHEET) && !has(CERTIFICATE_TEMPLATE));
         for (name, shipped) in [
@@ -49,6 +51,9 @@ impl Templates {
                 let path = dir.join(name);
                 std::fs::read_to_string(&path).map_err(|e| Error::io(&path, "reading", e))?
             };
+            if name == CERTIFICATE_TEMPLATE {
+                paged = prints_page_rows(&text);
+            }
             tera.add_raw_template(name, &text)
                 .map_err(|e| template_error(dir, &e))?;
         }
@@ -56,7 +61,15 @@ impl Templates {
             tera,
             dir: dir.to_path_buf(),
             built_in,
+            paged,
         })
+    }
+
+    /// True when the certificate template prints `page.rows` (it lays out one page of a
+    /// paginated certificate); a template from before issue #17 prints every row, and its
+    /// long certificates are left to the HTML engine's own page breaks.
+    pub fn paged(&self) -> bool {
+        self.paged
     }
 
     /// A one-line notice when the built-in templates stand in for a missing folder.
@@ -91,6 +104,20 @@ impl Templates {
             .render(CERTIFICATE_TEMPLATE, &context)
             .map_err(|e| template_error(&self.dir, &e))
     }
+}
+
+/// True when `template` uses `page.rows` outside its `{# ... #}` comments.
+fn prints_page_rows(template: &str) -> bool {
+    let mut rest = template;
+    let mut code = String::new();
+    while let Some(at) = rest.find("{#") {
+        code.push_str(&rest[..at]);
+        rest = rest[at..]
+            .find("#}")
+            .map_or("", |end| &rest[at + end + 2..]);
+    }
+    code.push_str(rest);
+    code.contains("page.rows")
 }
 
 /// Renders `cert` with the templates in `templates_dir` (loads them on every call; use
@@ -130,5 +157,20 @@ fn template_error(dir: &Path, err: &tera::Error) -> Error {
             err.to_string().trim_end_matches('.').to_string(),
             "Fix the template: its variables are listed in the comment at its top.",
         ),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn page_rows_in_comments_do_not_count() {
+        assert!(prints_page_rows("{% for row in page.rows %}"));
+        assert!(!prints_page_rows("{# page.rows #}{% for row in rows %}"));
+        assert!(prints_page_rows(
+            "{# note #}{{ page.rows | length }}{# more #}"
+        ));
+        assert!(!prints_page_rows("{# unterminated page.rows"));
     }
 }

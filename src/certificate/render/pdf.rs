@@ -123,10 +123,15 @@ impl<'a> StampFont<'a> {
 /// rows and footnotes with the font's metrics; each page is then laid out on its own from the
 /// template (table header repeated) and checked to fit one page; a page that does not is
 /// planned again with one unit fewer.
-pub fn render_pdf(templates: &Templates, cert: &Certificate, fonts: &FontPool) -> Result<Vec<u8>> {
-    let whole_html = templates.render_page(cert, &layout::whole(cert))?;
-    let first = lay_out(&whole_html, cert, fonts)?;
-    let mut doc = if first.pages.len() == 1 {
+/// `whole_html` is the certificate rendered whole ([`Templates::render`]).
+pub fn render_pdf(
+    templates: &Templates,
+    whole_html: &str,
+    cert: &Certificate,
+    fonts: &FontPool,
+) -> Result<Vec<u8>> {
+    let first = lay_out(whole_html, cert, fonts)?;
+    let mut doc = if first.pages.len() == 1 || !templates.paged() {
         first
     } else {
         paginate(templates, cert, fonts)?
