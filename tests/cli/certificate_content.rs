@@ -71,8 +71,7 @@ fn certify(w: &Workspace, customer: &str) -> assert_cmd::Command {
 fn customer_pdf(w: &Workspace) -> PathBuf {
     pdfs(&w.path("certificates"))
         .into_iter()
-        .filter(|p| p.file_name().unwrap().to_string_lossy().starts_with(LOT))
-        .last()
+        .rfind(|p| p.file_name().unwrap().to_string_lossy().starts_with(LOT))
         .unwrap()
 }
 
