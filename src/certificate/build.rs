@@ -606,6 +606,15 @@ mod tests {
     }
 
     #[test]
+    fn test_dates_are_read_from_their_cells_issue_17() {
+        let day = NaiveDate::from_ymd_opt(2026, 11, 27);
+        assert_eq!(date("2026-11-27"), day);
+        assert_eq!(date("2026-11-27T08:00:00Z"), day);
+        assert_eq!(date(""), None, "a row recorded before layout v3");
+        assert_eq!(date("27/11/2026"), None);
+    }
+
+    #[test]
     fn footnote_marks_are_superscript_numbers() {
         assert_eq!(footnote_mark(1), "¹");
         assert_eq!(footnote_mark(2), "²");

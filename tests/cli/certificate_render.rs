@@ -547,3 +547,18 @@ fn a_template_without_page_rows_keeps_the_engines_page_breaks_issue_17() {
         assert_eq!(all.matches(&format!("Property {i} ")).count(), 1, "row {i}");
     }
 }
+
+#[test]
+fn test_dates_are_printed_issue_17() {
+    let mut cert = fixture("sample");
+    let day = |d: u32| chrono::NaiveDate::from_ymd_opt(2026, 9, d);
+    cert.lot.tested_from = day(14);
+    cert.lot.tested_to = day(15);
+    let text = page_texts(&render("tested", &cert).pdf).join(" ");
+    // A range is printed on two lines (the narrow column cannot hold it), never split inside
+    // a date.
+    assert!(text.contains("Tested 2026-09-14 – 2026-09-15"), "{text}");
+    cert.lot.tested_to = day(14);
+    let text = page_texts(&render("tested-one-day", &cert).pdf).join(" ");
+    assert!(text.contains("Tested 2026-09-14 Retest"), "{text}");
+}

@@ -119,7 +119,7 @@ pub fn lines(face: &printpdf::ParsedFont, text: &str, size: f32, width: f32) -> 
 }
 
 /// Column widths (mm) of the results table in the shipped stylesheet, without and with the U
-/// column: property, method, unit, limits, result, [U,] verdict. They add up to the 178 mm
+/// column: property, method, unit, limits, result, (U,) verdict. They add up to the 178 mm
 /// between the side margins.
 pub const COLUMNS_MM: [f32; 6] = [40.0, 36.0, 22.0, 26.0, 17.0, 37.0];
 /// With the U column.
