@@ -121,7 +121,11 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let now_text = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
     let with_certs = !args.dry_run && !args.no_certificates;
     let issuer = if with_certs {
-        Some(Issuer::new(&args.templates, &args.certificates)?)
+        let issuer = Issuer::new(&args.templates, &args.certificates)?;
+        if let Some(note) = issuer.notice() {
+            eprintln!("{note}");
+        }
+        Some(issuer)
     } else {
         None
     };
