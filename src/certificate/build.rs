@@ -14,8 +14,10 @@ use crate::error::{Error, Result};
 use crate::lot::evaluate::{LotDecision, Status};
 use crate::lot::note::LotNote;
 use crate::record::trend_file::{Row, Trend};
-use crate::spec::customer::{combined, customer_fit, Customer, CustomerProduct, Fit};
-use crate::spec::decision::{decimal_from_f64, round, DecisionRule, Verdict};
+use crate::spec::customer::{combined, customer_fit, special_fit, Customer, CustomerProduct, Fit};
+use crate::spec::decision::{
+    censored_text, decimal_from_f64, round, DecisionRule, RecordedResult, Verdict,
+};
 use crate::spec::keys::{MN, XN};
 use crate::spec::units::unit_factor;
 use crate::spec::{end_groups_words, limits_text, ProductSpec, Property};
@@ -45,6 +47,9 @@ pub struct LotRecord {
     pub decided_at: String,
     /// Notes recorded with the decision (corrections, replicates, conditional results), typed.
     pub notes: Vec<LotNote>,
+    /// SHA-256 of the spec revision file the lot was decided on (empty on rows written
+    /// before it was recorded).
+    pub spec_sha256: String,
 }
 
 impl LotRecord {
@@ -75,8 +80,13 @@ impl LotRecord {
             verdicts,
             mn_uncertainty: c("mn_uncertainty").parse().ok(),
             approver: c("approver"),
-            decided_at: c("recorded_at"),
+            // A history import records when the lot was decided; an empty cell means the row
+            // was decided when it was recorded.
+            decided_at: Some(c("decided_at"))
+                .filter(|d| !d.is_empty())
+                .unwrap_or_else(|| c("recorded_at")),
             notes: LotNote::parse_cell(&c("notes")),
+            spec_sha256: c("spec_sha256"),
         })
     }
 
@@ -114,11 +124,18 @@ impl LotRecord {
             approver: approver.to_string(),
             decided_at: now.to_string(),
             notes: d.notes.clone(),
+            spec_sha256: d.spec_sha256.clone(),
         }
     }
 
     fn value(&self, key: &str) -> Option<Decimal> {
         crate::spec::decision::recorded_decimal(self.values.get(key)?)
+    }
+
+    /// The recorded result of `key` when it is a word or a censored result (issue #15).
+    fn special(&self, key: &str) -> Option<RecordedResult> {
+        RecordedResult::parse(self.values.get(key)?)
+            .filter(|r| !matches!(r, RecordedResult::Number(_)))
     }
 }
 
@@ -170,6 +187,43 @@ pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> R
     let mut failures = Vec::new();
     for p in &spec.properties {
         let window = ship.product.limits.get(&p.key);
+        if window.is_none()
+            && !(p.is_text()
+                && ship
+                    .product
+                    .report
+                    .as_ref()
+                    .is_none_or(|r| r.contains(&p.key)))
+        {
+            continue;
+        }
+        if let Some(special) = rec.special(&p.key) {
+            let v = special_fit(spec, p, &special, window).unwrap_or(Verdict::Fail);
+            if v != Verdict::Pass {
+                failures.push(format!(
+                    "{} {} is {} against {}",
+                    p.label,
+                    special_text(&special, p, Decimal::ONE),
+                    v.words(),
+                    if p.is_text() {
+                        "the spec's conforming words".to_string()
+                    } else {
+                        format!(
+                            "the customer's window {} (product spec {} revision {}: {})",
+                            limits_text(
+                                window.and_then(|w| w.min).or(p.min),
+                                window.and_then(|w| w.max).or(p.max),
+                                p.decimals
+                            ),
+                            spec.code,
+                            spec.revision,
+                            limits_text(p.min, p.max, p.decimals)
+                        )
+                    }
+                ));
+            }
+            continue;
+        }
         if window.is_none() {
             continue;
         }
@@ -319,15 +373,21 @@ fn result_row(
         None => combined(p.min, p.max, None),
     };
     let conv = |d: Option<Decimal>| d.map(|d| d * f);
-    let result = match rec.value(key) {
-        Some(v) => {
+    let special = rec.special(key);
+    let result = match (&special, rec.value(key)) {
+        (Some(sp), _) => special_text(sp, p, f),
+        (None, Some(v)) => {
             let mut r = round(v, p.decimals, spec.rounding) * f;
             r.rescale(dec);
             r.to_string()
         }
-        None => "not measured".to_string(),
+        (None, None) => "not measured".to_string(),
     };
     let verdict = match ship {
+        Some(s) if special.is_some() => special
+            .as_ref()
+            .and_then(|sp| special_fit(spec, p, sp, s.product.limits.get(key)))
+            .map_or("—".to_string(), |v| verdict_words(v.as_str())),
         Some(s) => customer_fit(
             spec,
             p,
@@ -352,13 +412,25 @@ fn result_row(
             (None, false) => "—".into(),
         },
         unit: if unit == "1" { String::new() } else { unit },
-        limits: if window.min.is_some() || window.max.is_some() {
+        limits: if let Some(words) = crate::spec::conforming_text(p) {
+            words
+        } else if window.min.is_some() || window.max.is_some() {
             limits_text(conv(window.min), conv(window.max), dec)
         } else {
             "report".into()
         },
         result,
         verdict,
+    }
+}
+
+/// How a certificate prints a word (as written in the spec) or a censored result
+/// ("< 0.01", converted by `factor` to the reporting unit), issue #15.
+fn special_text(r: &RecordedResult, p: &Property, factor: Decimal) -> String {
+    match r {
+        RecordedResult::Word(w) => w.clone(),
+        RecordedResult::Below(l) => censored_text((*l * factor).normalize(), p.decimals),
+        RecordedResult::Number(n) => n.to_string(),
     }
 }
 

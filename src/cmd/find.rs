@@ -71,6 +71,10 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         }
         None => (None, None),
     };
+    if let Some(specs) = &specs {
+        // Issue #15: a customer's check works from the limits the lots were decided on.
+        crate::record::frozen::refuse_changed(&path, args.product.code(), specs, None)?;
+    }
     let customer_check = match (&specs, &customer) {
         (Some(specs), Some(cu)) => Some(CustomerCheck {
             specs,

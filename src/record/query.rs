@@ -343,6 +343,34 @@ pub fn current_lots(
     Ok((file_keys, rows))
 }
 
+/// How many of the rows on `lines` (1-based line numbers, as in [`LotRow::line`]) record a
+/// censored result (`<L`, below the limit of quantification) in each of `keys`: trend
+/// excludes those from its statistics and says how many (issue #15). Streams the file once.
+pub fn censored_counts(path: &Path, keys: &[String], lines: &[usize]) -> Result<Vec<usize>> {
+    let header = read_header(path)?;
+    let cols: Vec<Option<usize>> = keys
+        .iter()
+        .map(|k| header.iter().position(|c| c == k))
+        .collect();
+    let wanted: std::collections::HashSet<usize> = lines.iter().copied().collect();
+    let mut counts = vec![0; keys.len()];
+    lines::for_each_line(path, lines::CHUNK, |line_no, line| {
+        if line_no == 1 || !wanted.contains(&line_no) || !line.contains(&b'<') {
+            return Ok(());
+        }
+        let cells = trend_file::split_line(&String::from_utf8_lossy(line));
+        for (n, c) in counts.iter_mut().zip(&cols) {
+            if c.and_then(|i| cells.get(i))
+                .is_some_and(|v| v.starts_with('<'))
+            {
+                *n += 1;
+            }
+        }
+        Ok(())
+    })?;
+    Ok(counts)
+}
+
 /// Turns trend-file lines into [`LotRow`]s, splitting only up to the last column needed.
 struct RowReader<'a> {
     path: &'a Path,

@@ -453,6 +453,40 @@ pub fn customer_fit(
     }
 }
 
+/// The customer-fit rule for a result that is not a number (issue #15): a word passes when
+/// it is one of the spec's conforming words (a customer window holds numbers and does not
+/// apply to it); a censored result "< L" is decided by
+/// [`censored_verdict`](crate::spec::decision::censored_verdict) against the tighter of the
+/// spec's and the customer's windows, with the product's guard band, and a stated limit above
+/// the window's maximum fails. `None` for a number (use [`customer_fit`]).
+pub fn special_fit(
+    spec: &ProductSpec,
+    p: &Property,
+    recorded: &crate::spec::decision::RecordedResult,
+    window: Option<&Window>,
+) -> Option<Verdict> {
+    use crate::spec::decision::RecordedResult;
+    match recorded {
+        RecordedResult::Number(_) => None,
+        RecordedResult::Word(w) => Some(if p.conforms(w) {
+            Verdict::Pass
+        } else {
+            Verdict::Fail
+        }),
+        RecordedResult::Below(l) => {
+            let lim = combined(p.min, p.max, window);
+            let w = match spec.decision_rule {
+                DecisionRule::Guarded => recorded_uncertainty(spec, p, None).unwrap_or_default(),
+                DecisionRule::Simple => Decimal::ZERO,
+            };
+            Some(
+                crate::spec::decision::censored_verdict(*l, lim.min, lim.max, w)
+                    .unwrap_or(Verdict::Fail),
+            )
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

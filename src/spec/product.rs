@@ -884,6 +884,15 @@ pub fn limits_text(min: Option<Decimal>, max: Option<Decimal>, decimals: u32) ->
     }
 }
 
+/// The requirement of a text property as printed: its conforming words ("clear" or
+/// "clear, slightly hazy"); `None` for a numeric property (see [`limits_text`]).
+pub fn conforming_text(p: &Property) -> Option<String> {
+    match &p.kind {
+        Kind::Text { conforming, .. } => Some(conforming.join(", ")),
+        Kind::Number => None,
+    }
+}
+
 /// Plain words for the end groups assumed in Mn: "two end groups per chain", "2.7 ...".
 pub fn end_groups_words(f: f64) -> String {
     if (f - 2.0).abs() < 1e-9 {
