@@ -60,72 +60,91 @@ pub struct SpecUse {
     pub unrecorded: usize,
 }
 
-/// The first six cells of a row (seq … spec_revision) and its `spec_sha256` cell, which is
-/// the last but one (just before `chain`); `None` for a line too short.
-fn cells_of(line: &str) -> Option<(String, String, String)> {
-    let mut it = line.rsplitn(3, ',');
-    let (_chain, sha) = (it.next()?, it.next()?);
-    let head: Vec<&str> = line.splitn(7, ',').collect();
-    if head.len() < 7 || head[2].starts_with('"') || head[5].starts_with('"') {
-        // A quoted revision label (one holding a comma): the slow, exact split.
-        let cells = trend_file::split_line(line);
-        let n = cells.len();
-        return (n >= 8).then(|| (cells[2].clone(), cells[5].clone(), cells[n - 2].clone()));
-    }
-    Some((head[2].to_string(), head[5].to_string(), sha.to_string()))
+/// True for a SHA-256 in lower-case hex.
+fn is_sha256(s: &str) -> bool {
+    s.len() == 64
+        && s.bytes()
+            .all(|b| b.is_ascii_digit() || (b'a'..=b'f').contains(&b))
 }
 
-/// Compares the `spec_sha256` of every row of the trend file at `path` (product `product`)
-/// with today's spec files in `specs`; streams the file, keeping only the lots of changed
-/// revisions.
-pub fn spec_use(path: &Path, product: &str, specs: &SpecSet) -> Result<SpecUse> {
+/// The lot, product and spec revision of a row (cells 2, 3 and 5) and its `spec_sha256` cell,
+/// the last but one (just before `chain`). `None` for a line that does not end in a chain
+/// value or whose `spec_sha256` is neither empty nor a SHA-256 (damage, which the chain
+/// check reports).
+fn cells_of(line: &str) -> Option<(String, String, String, String)> {
+    let mut it = line.rsplitn(3, ',');
+    let (chain, sha) = (it.next()?, it.next()?);
+    if !is_sha256(chain) || !(sha.is_empty() || is_sha256(sha)) {
+        return None;
+    }
+    let head: Vec<&str> = line.splitn(7, ',').collect();
+    if head.len() < 7 || head[..6].iter().any(|c| c.starts_with('"')) {
+        // A quoted cell (a revision label holding a comma): the slow, exact split.
+        let cells = trend_file::split_line(line);
+        let n = cells.len();
+        return (n >= 8).then(|| {
+            (
+                cells[2].clone(),
+                cells[3].clone(),
+                cells[5].clone(),
+                cells[n - 2].clone(),
+            )
+        });
+    }
+    Some((
+        head[2].to_string(),
+        head[3].to_string(),
+        head[5].to_string(),
+        sha.to_string(),
+    ))
+}
+
+/// Compares the `spec_sha256` of every row of the trend file at `path` with today's spec
+/// files in `specs` (each row names its product and revision); streams the file, keeping only
+/// the lots of changed revisions. Damaged lines are skipped: the chain check reports them.
+pub fn spec_use(path: &Path, specs: &SpecSet) -> Result<SpecUse> {
     let mut out = SpecUse::default();
     let mut has_column = false;
-    // (revision, recorded sha) -> today's sha when it differs (Some(None): no such file).
-    let mut differs: HashMap<(String, String), Option<Option<String>>> = HashMap::new();
-    let mut lots: BTreeMap<(String, String), HashSet<String>> = BTreeMap::new();
+    // (product, revision, recorded sha) -> today's sha when it differs (Some(None): no file).
+    type Key = (String, String, String);
+    let mut differs: HashMap<Key, Option<Option<String>>> = HashMap::new();
+    let mut lots: BTreeMap<Key, HashSet<String>> = BTreeMap::new();
     lines::for_each_line(path, lines::CHUNK, |line_no, bytes| {
-        let line = std::str::from_utf8(bytes).map_err(|_| {
-            Error::invalid(
-                format!("{}:{line_no}", path.display()),
-                "the line is not UTF-8",
-                "Check the record with `resinlot verify`.",
-            )
-        })?;
+        let line = String::from_utf8_lossy(bytes);
         if line_no == 1 {
-            let cols = trend_file::split_line(line);
+            let cols = trend_file::split_line(&line);
             has_column = cols.len() >= 2 && cols[cols.len() - 2] == "spec_sha256";
             return Ok(());
         }
         if line.is_empty() {
             return Ok(());
         }
-        let Some((lot, revision, sha)) = cells_of(line).filter(|_| has_column) else {
+        if !has_column {
             out.unrecorded += 1;
+            return Ok(());
+        }
+        let Some((lot, product, revision, sha)) = cells_of(&line) else {
             return Ok(());
         };
         if sha.is_empty() {
             out.unrecorded += 1;
             return Ok(());
         }
-        let key = (revision, sha);
+        let key = (product, revision, sha);
         let verdict = differs.entry(key.clone()).or_insert_with(|| {
-            let now = specs.revision(product, &key.0).map(|s| s.sha256.clone());
-            (now.as_deref() != Some(key.1.as_str())).then_some(now)
+            let now = specs.revision(&key.0, &key.1).map(|s| s.sha256.clone());
+            (now.as_deref() != Some(key.2.as_str())).then_some(now)
         });
         if verdict.is_some() {
             lots.entry(key).or_default().insert(lot);
         }
         Ok(())
     })?;
-    for ((revision, recorded), set) in lots {
-        let now = differs
-            .get(&(revision.clone(), recorded.clone()))
-            .cloned()
-            .flatten()
-            .flatten();
+    for (key, set) in lots {
+        let now = differs.get(&key).cloned().flatten().flatten();
+        let (product, revision, recorded) = key;
         out.changed.push(ChangedSpec {
-            product: product.to_string(),
+            product,
             revision,
             recorded,
             now,
@@ -149,10 +168,7 @@ pub struct RegisterSpecs {
 pub fn check_register(register: &Path, specs: &SpecSet) -> Result<RegisterSpecs> {
     let mut out = RegisterSpecs::default();
     for path in crate::record::query::trend_files(register)? {
-        let Some(product) = path.file_stem().and_then(|s| s.to_str()) else {
-            continue;
-        };
-        let used = spec_use(&path, product, specs)?;
+        let used = spec_use(&path, specs)?;
         out.changed.extend(used.changed);
         out.unrecorded += used.unrecorded;
     }
@@ -168,11 +184,11 @@ pub fn refuse_changed(
     specs: &SpecSet,
     only: Option<&str>,
 ) -> Result<()> {
-    let used = spec_use(path, product, specs)?;
+    let used = spec_use(path, specs)?;
     let changed: Vec<String> = used
         .changed
         .iter()
-        .filter(|c| only.is_none_or(|r| r == c.revision))
+        .filter(|c| c.product == product && only.is_none_or(|r| r == c.revision))
         .map(ChangedSpec::message)
         .collect();
     if changed.is_empty() {
@@ -226,13 +242,13 @@ mod tests {
                 row("L3", "A", ""),
             ],
         );
-        let used = spec_use(&path, "PX-1", &set).unwrap();
+        let used = spec_use(&path, &set).unwrap();
         assert_eq!(used.changed, vec![]);
         assert_eq!(used.unrecorded, 1);
         assert!(refuse_changed(&path, "PX-1", &set, None).is_ok());
         // Edited in place: AV max 1.0 -> 0.5, same revision letter.
         let edited = specs(dir.path(), &SPEC.replace("max=1.0", "max=0.5"));
-        let used = spec_use(&path, "PX-1", &edited).unwrap();
+        let used = spec_use(&path, &edited).unwrap();
         assert_eq!(used.changed.len(), 1);
         let c = &used.changed[0];
         assert_eq!((c.revision.as_str(), c.lots), ("A", 2));
@@ -247,13 +263,22 @@ mod tests {
 
     #[test]
     fn row_cells_are_found_with_a_quoted_revision() {
+        let (a, b) = ("a".repeat(64), "b".repeat(64));
         assert_eq!(
-            cells_of("1,t,L1,P,2026-01-01,A,released,x,,,0.5,pass,abc,chainv"),
-            Some(("L1".into(), "A".into(), "abc".into()))
+            cells_of(&format!(
+                "1,t,L1,P,2026-01-01,A,released,x,,,0.5,pass,{a},{b}"
+            )),
+            Some(("L1".into(), "P".into(), "A".into(), a.clone()))
         );
         assert_eq!(
-            cells_of("1,t,L1,P,2026-01-01,\"A,1\",released,x,abc,chainv"),
-            Some(("L1".into(), "A,1".into(), "abc".into()))
+            cells_of(&format!("1,t,L1,P,2026-01-01,\"A,1\",released,x,{a},{b}")),
+            Some(("L1".into(), "P".into(), "A,1".into(), a.clone()))
         );
+        // A torn line (no whole chain value) or a damaged hash cell is skipped.
+        assert_eq!(
+            cells_of(&format!("1,t,L1,P,2026-01-01,A,x,{a},{}", &b[..20])),
+            None
+        );
+        assert_eq!(cells_of(&format!("1,t,L1,P,2026-01-01,A,x,zz,{b}")), None);
     }
 }
