@@ -8,6 +8,7 @@ use rust_decimal::Decimal;
 use serde::Serialize;
 
 use crate::chem::analysis::{analyse, Titration};
+use crate::chem::hydroxyl_method::AcidityCorrection;
 use crate::error::{Error, Result};
 use crate::lot::intake::{entered_text, Form, LotResults, Reading};
 use crate::lot::note::LotNote;
@@ -102,10 +103,12 @@ pub struct LotDecision {
     pub notes: Vec<LotNote>,
     /// Analysts of the lot's results, as named in the results file.
     pub analysts: Vec<String>,
-    /// Earliest `tested_at` of the results (the manufacture date when the file gives none).
-    pub tested_from: String,
-    /// Latest `tested_at` of the results (the manufacture date when the file gives none).
-    pub tested_to: String,
+    /// Earliest `tested_at` of the results, when the results file gives test times.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub tested_from: Option<String>,
+    /// Latest `tested_at` of the results, when the results file gives test times.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub tested_to: Option<String>,
     /// Approver named for the lot in the results file (history imports).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub approver: Option<String>,
@@ -244,14 +247,8 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
         properties: results,
         notes,
         analysts: lot.analysts.clone(),
-        tested_from: lot
-            .tested_from
-            .as_ref()
-            .map_or(lot.manufactured.to_string(), |t| t.text.clone()),
-        tested_to: lot
-            .tested_to
-            .as_ref()
-            .map_or(lot.manufactured.to_string(), |t| t.text.clone()),
+        tested_from: lot.tested_from.as_ref().map(|t| t.text.clone()),
+        tested_to: lot.tested_to.as_ref().map(|t| t.text.clone()),
         approver: lot.approver.clone(),
         decided_at: lot.decided_at.as_ref().map(|t| t.text.clone()),
         spec_sha256: spec.sha256.clone(),
@@ -508,7 +505,8 @@ fn measured_results(spec: &ProductSpec, means: &Means) -> Vec<PropertyResult> {
             results.push(missing(p));
             continue;
         };
-        // ISO 4629-2 acidity correction: the limits apply to the corrected hydroxyl value.
+        // Acidity correction of the method (chem::hydroxyl_method): the limits apply to the
+        // corrected hydroxyl value.
         let corrected = p.key == keys::HYDROXYL_VALUE && p.acidity_correction;
         let u = guard_uncertainty(spec, p);
         let value = if corrected {
@@ -516,7 +514,10 @@ fn measured_results(spec: &ProductSpec, means: &Means) -> Vec<PropertyResult> {
                 results.push(missing(p));
                 continue;
             };
-            entered + av
+            match p.acidity_correction_kind {
+                AcidityCorrection::Subtract => entered - av,
+                _ => entered + av,
+            }
         } else {
             entered
         };
@@ -553,7 +554,7 @@ fn derived_results(
     let u = |k: &str| spec.property(k).and_then(|p| p.uncertainty).map(to_f64);
     let hv_corr = spec
         .property(keys::HYDROXYL_VALUE)
-        .is_some_and(|p| p.acidity_correction);
+        .map_or(AcidityCorrection::None, |p| p.acidity_correction_kind);
     let mut any_missing = false;
     for p in spec.properties.iter().filter(|p| p.derived) {
         let computed = derived_value(
@@ -631,12 +632,12 @@ pub fn derived_value(
     ohv: Option<f64>,
     u_av: Option<f64>,
     u_ohv: Option<f64>,
-    acidity_correction: bool,
+    acidity_correction: AcidityCorrection,
 ) -> Result<Option<(f64, Option<f64>)>> {
     let (Some(ohv), av) = (ohv, av) else {
         return Ok(None);
     };
-    let needs_av = key != keys::HYDROXYL_EQUIVALENT_WEIGHT || acidity_correction;
+    let needs_av = key != keys::HYDROXYL_EQUIVALENT_WEIGHT || acidity_correction.applies();
     if needs_av && av.is_none() {
         return Ok(None);
     }
@@ -671,7 +672,7 @@ pub fn derived_value(
         keys::HYDROXYL_EQUIVALENT_WEIGHT => a.hydroxyl_equivalent_weight.map(|hew| {
             let u = match (u_av, u_ohv) {
                 (Some(ua), Some(uo)) => {
-                    let uc = if acidity_correction {
+                    let uc = if acidity_correction.applies() {
                         (ua * ua + uo * uo).sqrt()
                     } else {
                         uo
@@ -780,6 +781,25 @@ decimals = 0
         assert_eq!(ohv.entered.as_deref(), Some("53.5"));
         assert_eq!(ohv.verdict, Some(Verdict::Pass));
         approx::assert_relative_eq!(ohv.uncertainty.unwrap(), 0.801561, epsilon = 1e-6);
+    }
+
+    #[test]
+    fn isocyanate_method_subtracts_the_acid_value_issue_18() {
+        // ASTM E1899 measures OHV + AV (chem::hydroxyl_method): raw 56.1 − AV 0.5 = 55.6, and
+        // Mn = 56100·2/(0.5 + 55.6) = 2000.0 (definition of the OHV; S equals the raw result).
+        let text = SPEC.replace(
+            "acidity_correction = true",
+            "method = \"ASTM E1899\"\nacidity_correction = true",
+        );
+        let spec = ProductSpec::parse(Path::new("s.toml"), &text).unwrap();
+        let csv = "lot,product,manufactured,acid_value,hydroxyl_value,viscosity\nL1,PD-2000,2026-10-01,0.50,56.1,520\n";
+        let lots = parse("r.csv", csv.as_bytes(), Options::default()).unwrap();
+        let d = evaluate(&spec, &lots[0], "r.csv").unwrap();
+        let ohv = d.get("hydroxyl_value").unwrap();
+        assert_eq!(ohv.reported.as_deref(), Some("55.6"));
+        assert_eq!(ohv.entered.as_deref(), Some("56.1"));
+        let mn = d.get("mn").unwrap();
+        approx::assert_relative_eq!(mn.value.unwrap(), 112200.0 / 56.1, max_relative = 1e-12);
     }
 
     #[test]

@@ -87,11 +87,34 @@ fn lot_rows_chunked(path: &Path, lot: &str, chunk: usize) -> Result<Option<Trend
     }))
 }
 
-/// Finds `lot` in any product's trend file.
+/// Finds `lot` in any product's trend file, written in any case: lot ids are unique without
+/// regard to case (issue #14), so an id typed in another case finds the recorded lot (the
+/// rows carry the id as recorded). The exact id is searched first, at memory speed; only a
+/// miss streams the lot column of every file.
 pub fn find_lot(register: &Path, lot: &str) -> Result<Option<Trend>> {
     for path in trend_files(register)? {
         if let Some(t) = lot_rows_in(&path, lot)? {
             return Ok(Some(t));
+        }
+    }
+    if let Some((path, id)) = recorded_id(register, lot)? {
+        return lot_rows_in(&path, &id);
+    }
+    Ok(None)
+}
+
+/// The trend file and recorded id of the lot whose id equals `lot` without regard to ASCII
+/// case, if any.
+pub fn recorded_id(register: &Path, lot: &str) -> Result<Option<(PathBuf, String)>> {
+    for path in trend_files(register)? {
+        let mut found: Option<String> = None;
+        trend_file::scan(&path, &["lot"], |_, cells| {
+            if found.is_none() && cells[0].eq_ignore_ascii_case(lot) {
+                found = Some(cells[0].to_string());
+            }
+        })?;
+        if let Some(id) = found {
+            return Ok(Some((path, id)));
         }
     }
     Ok(None)
@@ -321,10 +344,42 @@ pub fn current_lots(
     keys: &[String],
     with_mn_uncertainty: bool,
 ) -> Result<(Vec<String>, Vec<LotRow>)> {
+    let (file_keys, rows, _) = current_lots_with(path, keys, with_mn_uncertainty, false)?;
+    Ok((file_keys, rows))
+}
+
+/// What `find` needs to know of a lot's life besides its latest row (issue #14): the test
+/// date of its latest retest (which may extend its retest date) and the customer its latest
+/// row releases it to under concession (`""` for none).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Life {
+    /// Test date of the lot's latest retest row (`tested_to`, else the day it was recorded).
+    pub retested: Option<Day>,
+    /// Customer (file stem) of a concession on the lot's latest row; empty for none.
+    pub concession: &'static str,
+}
+
+/// [`current_lots`] with each kept lot's [`Life`] (parallel to the lots).
+pub fn current_lots_with_life(
+    path: &Path,
+    keys: &[String],
+    with_mn_uncertainty: bool,
+) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
+    current_lots_with(path, keys, with_mn_uncertainty, true)
+}
+
+fn current_lots_with(
+    path: &Path,
+    keys: &[String],
+    with_mn_uncertainty: bool,
+    with_life: bool,
+) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
     use std::hash::BuildHasher;
     let header = read_header(path)?;
     let file_keys = trend_file::property_keys(&header);
     let mut reader = RowReader::new(path, &header, keys, with_mn_uncertainty)?;
+    let mut life_reader = with_life.then(|| LifeReader::new(&header));
+    let mut lives: Vec<Life> = Vec::new();
     let hasher = std::collections::hash_map::RandomState::new();
     // About 250 bytes a row: reserve once instead of growing through a million pushes.
     let estimate = std::fs::metadata(path).map_or(0, |m| m.len() as usize / 250);
@@ -337,10 +392,13 @@ pub fn current_lots(
         let row = reader.read(line_no, line)?;
         keys_seen.push((hasher.hash_one(&*row.lot), rows.len() as u32));
         rows.push(row);
+        if let Some(l) = &mut life_reader {
+            lives.push(l.read(line));
+        }
         Ok(())
     })?;
-    keep_latest(&mut rows, keys_seen);
-    Ok((file_keys, rows))
+    keep_latest(&mut rows, keys_seen, with_life.then_some(&mut lives));
+    Ok((file_keys, rows, lives))
 }
 
 /// How many of the rows on `lines` (1-based line numbers, as in [`LotRow::line`]) record a
@@ -369,6 +427,45 @@ pub fn censored_counts(path: &Path, keys: &[String], lines: &[usize]) -> Result<
         Ok(())
     })?;
     Ok(counts)
+}
+
+/// The recorded cells of `keys` on the rows at `lines` (line number to cells, in `keys`
+/// order) for the results [`LotRow::values`] cannot hold: words and censored results
+/// (issue #15). Streams the file once; rows whose cells among `keys` are all numbers or empty
+/// are left out.
+pub fn raw_cells(
+    path: &Path,
+    keys: &[String],
+    lines: &[usize],
+) -> Result<std::collections::HashMap<usize, Vec<String>>> {
+    let header = read_header(path)?;
+    let cols: Vec<Option<usize>> = keys
+        .iter()
+        .map(|k| header.iter().position(|c| c == k))
+        .collect();
+    let wanted: std::collections::HashSet<usize> = lines.iter().copied().collect();
+    let mut out = std::collections::HashMap::new();
+    if keys.is_empty() {
+        return Ok(out);
+    }
+    lines::for_each_line(path, lines::CHUNK, |line_no, line| {
+        if line_no == 1 || !wanted.contains(&line_no) {
+            return Ok(());
+        }
+        let cells = trend_file::split_line(&String::from_utf8_lossy(line));
+        let mine: Vec<String> = cols
+            .iter()
+            .map(|c| c.and_then(|i| cells.get(i)).cloned().unwrap_or_default())
+            .collect();
+        if mine
+            .iter()
+            .any(|v| !v.is_empty() && v.parse::<f64>().is_err())
+        {
+            out.insert(line_no, mine);
+        }
+        Ok(())
+    })?;
+    Ok(out)
 }
 
 /// Turns trend-file lines into [`LotRow`]s, splitting only up to the last column needed.
@@ -468,7 +565,14 @@ impl<'a> RowReader<'a> {
 /// Keeps each lot's last row: sorts the (lot hash, row) pairs, and within a run of equal
 /// hashes keeps, for every distinct lot id, the highest row (a retest supersedes what came
 /// before). Rows stay in file order.
-fn keep_latest(rows: &mut Vec<LotRow>, mut keys_seen: Vec<(u64, u32)>) {
+///
+/// With `lives` (parallel to `rows`), each kept lot's life gets the latest retest date of any
+/// of the lot's rows, and the lives are kept alongside.
+fn keep_latest(
+    rows: &mut Vec<LotRow>,
+    mut keys_seen: Vec<(u64, u32)>,
+    mut lives: Option<&mut Vec<Life>>,
+) {
     keys_seen.sort_unstable();
     let mut keep = vec![true; rows.len()];
     let mut i = 0;
@@ -484,15 +588,86 @@ fn keep_latest(rows: &mut Vec<LotRow>, mut keys_seen: Vec<(u64, u32)>) {
                 .any(|&(_, rb)| rows[rb as usize].lot == rows[ra].lot)
             {
                 keep[ra] = false;
+            } else if let Some(lives) = lives.as_deref_mut() {
+                let retested = keys_seen[i..j]
+                    .iter()
+                    .filter(|&&(_, rb)| rows[rb as usize].lot == rows[ra].lot)
+                    .filter_map(|&(_, rb)| lives[rb as usize].retested)
+                    .max();
+                lives[ra].retested = retested;
             }
         }
         i = j;
+    }
+    if let Some(lives) = lives {
+        let mut k = 0;
+        lives.retain(|_| {
+            k += 1;
+            keep[k - 1]
+        });
     }
     let mut k = 0;
     rows.retain(|_| {
         k += 1;
         keep[k - 1]
     });
+}
+
+/// Reads the [`Life`] cells of a row: `supersedes`, `disposition`, `concession_customer`,
+/// `recorded_at` and `tested_to` (the layout-v3 ones may be absent in an earlier file).
+struct LifeReader {
+    cols: [Option<usize>; 5],
+    upto: usize,
+    spans: Vec<(usize, usize)>,
+    customers: Vec<&'static str>,
+}
+
+impl LifeReader {
+    fn new(header: &[String]) -> LifeReader {
+        let col = |name: &str| header.iter().position(|c| c == name);
+        let cols = [
+            col("supersedes"),
+            col("disposition"),
+            col("concession_customer"),
+            col("recorded_at"),
+            col("tested_to"),
+        ];
+        LifeReader {
+            upto: cols.iter().flatten().copied().max().unwrap_or(0),
+            cols,
+            spans: Vec::new(),
+            customers: Vec::new(),
+        }
+    }
+
+    fn read(&mut self, line: &[u8]) -> Life {
+        split_spans(line, self.upto, &mut self.spans);
+        let cell = |i: usize| -> &[u8] {
+            match self.cols[i].and_then(|c| self.spans.get(c)) {
+                Some(&(a, b)) => &line[a..b.min(line.len())],
+                None => b"",
+            }
+        };
+        let retest = !cell(0).is_empty() && cell(1).is_empty();
+        let retested = retest.then(|| {
+            let tested = cell(4);
+            if tested.len() >= 10 {
+                Day::from_bytes(&tested[..10])
+            } else {
+                Day::from_bytes(&cell(3)[..cell(3).len().min(10)])
+            }
+        });
+        let concession = if cell(1) == b"concession" {
+            let c = cell(2);
+            intern(&mut self.customers, c)
+        } else {
+            ""
+        };
+        Life {
+            retested,
+            concession,
+        }
+    }
 }
 
 /// The checked header columns of a trend file (its first line only).

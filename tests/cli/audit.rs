@@ -361,6 +361,21 @@ fn text_and_below_loq_results_are_decided_printed_and_excluded_issue_15() {
         .unwrap();
     let page = page_texts(&std::fs::read(cust).unwrap()).join(" ");
     assert!(page.contains("< 0.01") && page.contains("clear"), "{page}");
+    // find --customer applies the same rule: released lots with a conforming word and water
+    // below the LOQ fit.
+    let text = stdout(
+        &w.cmd()
+            .args(["find", "--product", "TW-10", "--customer", "ashby"])
+            .assert()
+            .code(0),
+    );
+    for lot in ["W26-001", "W26-002", "W26-004", "W26-006"] {
+        assert!(text.contains(lot), "{lot}: {text}");
+    }
+    assert!(
+        !text.contains("W26-003") && !text.contains("W26-005"),
+        "{text}"
+    );
     // Lookup prints them as a certificate does.
     let text = stdout(&w.cmd().args(["lookup", "W26-001"]).assert().code(0));
     assert!(text.contains("< 0.01") && text.contains("clear"), "{text}");
