@@ -194,6 +194,15 @@ fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result
         let mut limits = IndexMap::new();
         for (k, w) in &p.limits {
             known(k, &format!(".limits.{k}"))?;
+            // A window holds numbers; a text property is decided by its conforming words
+            // (issue #15), so a window on one would be silently ignored.
+            if spec.property(k).is_some_and(|p| p.is_text()) {
+                return Err(Error::invalid(
+                    place(&format!(".limits.{k}")),
+                    format!("{k} is a text property: its results are words, which a window cannot limit"),
+                    "Remove this window; the spec's conforming words apply to every customer.",
+                ));
+            }
             let conv = |v: Option<f64>, f: &str| -> Result<Option<Decimal>> {
                 v.map(|x| {
                     decimal_from_f64(x).ok_or_else(|| {

@@ -488,6 +488,18 @@ fn a_spec_with_a_bad_text_or_loq_property_is_refused_issue_15() {
         assert!(err.contains("tw-10.toml"), "{err}");
         assert!(err.contains(want), "{want}: {err}");
     }
+    // A customer window on a text property would be ignored, so it is refused.
+    w.write("specs/tw-10.toml", TW_SPEC);
+    w.write(
+        "specs/customers/ashby.toml",
+        &format!("{TW_CUSTOMER}[products.TW-10.limits.appearance]\nmax = 1\n"),
+    );
+    let err = stderr(&w.cmd().args(["specs", "check", "specs"]).assert().code(2));
+    assert!(
+        err.contains("ashby.toml: products.TW-10.limits.appearance")
+            && err.contains("appearance is a text property"),
+        "{err}"
+    );
 }
 
 #[test]
