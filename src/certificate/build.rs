@@ -221,7 +221,7 @@ pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> R
 
 /// What a lot released under concession deviates in (issue #14): every property whose
 /// recorded verdict against the product spec is not a pass, then every property outside the
-/// customer's window ([`customer_shortfalls`]); one plain phrase each.
+/// customer's window (`customer_shortfalls`); one plain phrase each.
 pub fn concession_deviations(
     spec: &ProductSpec,
     rec: &LotRecord,
@@ -235,10 +235,11 @@ pub fn concession_deviations(
             if verdict.is_empty() || verdict == "pass" {
                 return None;
             }
-            let value = rec
-                .value(&p.key)
-                .map(|v| round(v, p.decimals, spec.rounding).to_string())
-                .unwrap_or_else(|| "missing".into());
+            let value = match (rec.special(&p.key), rec.value(&p.key)) {
+                (Some(sp), _) => special_text(&sp, p, Decimal::ONE),
+                (None, Some(v)) => round(v, p.decimals, spec.rounding).to_string(),
+                (None, None) => "missing".into(),
+            };
             Some(format!(
                 "{} {} {} is {} against the product spec {} revision {} ({})",
                 p.label,
@@ -288,11 +289,10 @@ fn customer_shortfalls(
                     } else {
                         format!(
                             "the customer's window {} (product spec {} revision {}: {})",
-                            limits_text(
-                                window.and_then(|w| w.min).or(p.min),
-                                window.and_then(|w| w.max).or(p.max),
-                                p.decimals
-                            ),
+                            {
+                                let lim = combined(p.min, p.max, window);
+                                limits_text(lim.min, lim.max, p.decimals)
+                            },
                             spec.code,
                             spec.revision,
                             limits_text(p.min, p.max, p.decimals)
