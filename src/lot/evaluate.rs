@@ -865,6 +865,74 @@ decimals = 0
         );
     }
 
+    // Test fixture (invented): text and below-LOQ properties (issue #15).
+    const TW: &str = r#"
+code = "TW-10"
+name = "Test"
+revision = "A"
+effective = 2026-01-01
+functionality = 2.0
+decision_rule = "guarded"
+retest_months = 12
+[properties.water]
+label = "Water"
+unit = "%"
+max = 0.05
+decimals = 2
+uncertainty = 0.01
+loq = 0.01
+[properties.appearance]
+label = "Appearance"
+kind = "text"
+allowed = ["clear", "hazy"]
+conforming = ["clear"]
+"#;
+
+    fn run_tw(csv: &str) -> Result<LotDecision> {
+        let spec = ProductSpec::parse(Path::new("s.toml"), TW).unwrap();
+        let opts = Options {
+            text_keys: ["appearance".to_string()].into_iter().collect(),
+            ..Options::default()
+        };
+        let lots = parse("r.csv", csv.as_bytes(), opts).unwrap();
+        evaluate(&spec, &lots[0], "r.csv")
+    }
+
+    #[test]
+    fn words_and_censored_results_are_decided_issue_15() {
+        let head = "lot,product,manufactured,water,appearance\n";
+        let d = run_tw(&format!("{head}L1,TW-10,2026-10-01,<0.01,CLEAR\n")).unwrap();
+        assert_eq!(d.status, Status::Released);
+        let w = d.get("water").unwrap();
+        // Stored as <L, reported "< 0.01", no number; U = 0.01: 0.01 <= 0.05 - 0.01 passes.
+        assert_eq!(
+            (w.exact.as_deref(), w.reported.as_deref(), w.value),
+            (Some("<0.01"), Some("< 0.01"), None)
+        );
+        assert_eq!(w.verdict, Some(Verdict::Pass));
+        let a = d.get("appearance").unwrap();
+        assert_eq!(a.exact.as_deref(), Some("clear"));
+        // 0.045 > 0.05 - 0.01: conditional pass, the lot is held; a non-conforming word fails.
+        let d = run_tw(&format!("{head}L1,TW-10,2026-10-01,<0.045,hazy\n")).unwrap();
+        assert_eq!(
+            d.get("water").unwrap().verdict,
+            Some(Verdict::ConditionalPass)
+        );
+        assert_eq!(d.get("appearance").unwrap().verdict, Some(Verdict::Fail));
+        assert_eq!(d.status, Status::Rejected);
+        // nd is censored at the LOQ.
+        let d = run_tw(&format!("{head}L1,TW-10,2026-10-01,ND,clear\n")).unwrap();
+        assert_eq!(d.get("water").unwrap().exact.as_deref(), Some("<0.01"));
+        for (cells, want) in [
+            ("<0.06,clear", "above the maximum"),
+            ("<0.001,clear", "below the limit of quantification"),
+            ("0.02,cloudy", "not one of the words"),
+        ] {
+            let e = run_tw(&format!("{head}L1,TW-10,2026-10-01,{cells}\n")).unwrap_err();
+            assert!(e.to_string().contains(want), "{want}: {e}");
+        }
+    }
+
     #[test]
     fn unknown_unit_is_refused() {
         let spec = ProductSpec::parse(Path::new("s.toml"), SPEC).unwrap();

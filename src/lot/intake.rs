@@ -1178,6 +1178,71 @@ mod tests {
         assert_eq!(same.unwrap().len(), 1);
     }
 
+    /// Issue #15: results below a limit, nd and words are read as such; times are normalised.
+    #[test]
+    fn censored_words_and_times_are_read_issue_15() {
+        let opts = Options {
+            text_keys: ["appearance".to_string()].into_iter().collect(),
+            ..Options::default()
+        };
+        let parsed = parse_report(
+            "r.csv",
+            b"lot,product,property,value,tested_at,analyst,manufactured,sample_id\n\
+              L1,P,water,<0.01,2026-10-02,AB;CD,2026-10-01,S1\n\
+              L1,P,colour,nd,2026-10-03T10:00:00+02:00,EF,,S1\n\
+              L1,P,appearance,Clear,2026-10-02 09:30,AB,,S1\n",
+            opts,
+        )
+        .unwrap();
+        assert_eq!(parsed.ignored, vec!["sample_id".to_string()]);
+        let l = &parsed.lots[0];
+        let water = &l.readings["water"][0];
+        assert_eq!(
+            (water.value.to_string(), &water.form),
+            ("0.01".into(), &Form::Below)
+        );
+        assert_eq!(l.readings["colour"][0].form, Form::NotDetected);
+        assert_eq!(
+            l.readings["appearance"][0].form,
+            Form::Word("Clear".to_string())
+        );
+        assert_eq!(l.analysts, vec!["AB", "CD", "EF"]);
+        assert_eq!(l.tested_from.as_ref().unwrap().text, "2026-10-02");
+        // 10:00 at UTC+02:00 is 08:00 UTC (RFC 3339 offsets).
+        assert_eq!(l.tested_to.as_ref().unwrap().text, "2026-10-03T08:00:00Z");
+        // A word in a numeric column is still refused where it is read.
+        let e = p("lot,product,manufactured,acid_value\nL1,P,2026-10-01,clear\n").unwrap_err();
+        assert!(e.to_string().contains("'clear' is not a number"), "{e}");
+        // An empty wide column is reported for the caller to judge.
+        let wide = parse_report(
+            "r.csv",
+            b"lot,product,manufactured,acid_value,remark\nL1,P,2026-10-01,0.5,\n",
+            Options::default(),
+        )
+        .unwrap();
+        assert_eq!(wide.empty, vec!["remark".to_string()]);
+    }
+
+    #[test]
+    fn lab_times_parse_in_the_documented_forms_issue_15() {
+        assert_eq!(LabTime::parse("2026-10-02").unwrap().text, "2026-10-02");
+        assert_eq!(
+            LabTime::parse("2026-10-02 09:30").unwrap().text,
+            "2026-10-02T09:30:00"
+        );
+        assert_eq!(
+            LabTime::parse("2026-10-02T09:30:00Z").unwrap().text,
+            "2026-10-02T09:30:00Z"
+        );
+        assert!(LabTime::parse("02/10/2026").is_none());
+        // A local time may stand for an instant up to 14 hours earlier in UTC (UTC+14:00).
+        let local = LabTime::parse("2026-10-02 14:00").unwrap();
+        assert_eq!(
+            local.earliest_utc(),
+            LabTime::parse("2026-10-02T00:00:00Z").unwrap().at
+        );
+    }
+
     proptest::proptest! {
         #[test]
         fn arbitrary_bytes_never_panic(bytes in proptest::collection::vec(proptest::num::u8::ANY, 0..400)) {
