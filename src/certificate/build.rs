@@ -221,7 +221,7 @@ pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> R
 
 /// What a lot released under concession deviates in (issue #14): every property whose
 /// recorded verdict against the product spec is not a pass, then every property outside the
-/// customer's window (`customer_shortfalls`); one plain phrase each.
+/// customer's window (as [`check_customer`] judges it); one plain phrase each.
 pub fn concession_deviations(
     spec: &ProductSpec,
     rec: &LotRecord,

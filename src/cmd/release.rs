@@ -204,9 +204,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             }
             _ => Vec::new(),
         };
-        // Still under the trend files' locks, after the rows (issue #14): a reissued internal
-        // certificate marks its predecessor superseded, and a retest that rejects or holds a
-        // lot withdraws the lot's other current certificates.
+        // Still under the trend files' locks, after the rows (issue #14): a retest that
+        // rejects or holds a lot withdraws its current customer certificates.
         withdrawn = withdraw_after_retests(
             args, &mut log, &locks, &decisions, &recorded, &pending, &issued, &now_text,
         )?;
@@ -270,11 +269,11 @@ fn check_lab_times(file: &str, lot: &LotResults, now: chrono::NaiveDateTime) -> 
     Ok(())
 }
 
-/// After a release's rows and certificates are filed, under the trend files' locks: marks
-/// every internal certificate a retest's new one replaces as superseded, and withdraws the
-/// other current certificates of every retested lot that is now rejected or on hold (trend
-/// row first, then the log rows; `verify` finds and completes a withdrawal cut short between
-/// the two). Returns (lot, certificate) for every certificate withdrawn.
+/// After a release's rows and certificates are filed, under the trend files' locks: withdraws
+/// the current customer certificates of every retested lot that is now rejected or on hold
+/// (trend row first, then the log rows; `verify` finds and completes a withdrawal cut short
+/// between the two). A retest's internal certificate supersedes the old one by its own row's
+/// `supersedes` cell. Returns (lot, certificate) for every certificate withdrawn.
 #[allow(clippy::too_many_arguments)]
 fn withdraw_after_retests(
     args: &Args,
@@ -306,11 +305,6 @@ fn withdraw_after_retests(
             },
         )?),
     };
-    for (p, i) in pending.iter().zip(issued) {
-        if let Some(old) = &p.certificate.supersedes {
-            log.supersede(&old.number, &i.certificate_number, &old.reason, now)?;
-        }
-    }
     let mut out = Vec::new();
     for (d, seq) in retests {
         if !crate::lot::disposition::withdraws(d.status) {
@@ -457,11 +451,22 @@ fn prepare_certificates(
             continue;
         }
         let spec = ctx.specs.for_date(&d.product, d.manufactured)?;
-        let rec = LotRecord::from_decision(
+        let mut rec = LotRecord::from_decision(
             d,
             d.approver.as_deref().unwrap_or(ctx.approver),
             d.decided_at.as_deref().unwrap_or(ctx.now_text),
         );
+        if matches!(plan, Plan::Retest { .. }) {
+            // This retest is the lot's latest; tested today (or when the results file says),
+            // it may extend the retest date printed on its certificate (issue #14).
+            rec.latest_retest = Some(
+                d.tested_to
+                    .as_deref()
+                    .and_then(|t| t.get(..10))
+                    .and_then(|t| chrono::NaiveDate::parse_from_str(t, "%Y-%m-%d").ok())
+                    .unwrap_or(ctx.now.date_naive()),
+            );
+        }
         // Only a retest supersedes, and only its reason is logged: a new lot in the same
         // batch carries neither.
         let retest_reason = match plan {

@@ -1,6 +1,6 @@
 //! Support layer: the injected clock, printing and atomic file writes, TOML reading with
-//! file:line:column errors, aligned tables, safe identifiers, the bundled fonts and the PDF file
-//! identity (identifier, producer, dates), and who runs the command (`audit`). Uses only `error` and outside crates; every other layer may use it.
+//! file:line:column errors, aligned tables, safe identifiers, the bundled fonts, the PDF file
+//! identity (identifier, producer, dates), the visual language of charts and pages, and who runs the command (`audit`). Uses only `error` and outside crates; every other layer may use it.
 
 pub mod audit;
 pub mod clock;
@@ -12,3 +12,4 @@ pub mod pdf_meta;
 pub mod table;
 pub mod text;
 pub mod tomlfile;
+pub mod visual;
