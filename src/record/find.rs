@@ -331,6 +331,7 @@ mod tests {
                 customer: who,
                 specs: &specs,
                 requirements: &requirements,
+                special: None,
             });
             let hits = matching_lots(&lots, &loaded, &filter);
             assert_eq!(
