@@ -124,7 +124,11 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let now_text = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
     let with_certs = !args.dry_run && !args.no_certificates;
     let issuer = if with_certs {
-        Some(Issuer::new(&args.templates, &args.certificates)?)
+        let issuer = Issuer::new(&args.templates, &args.certificates)?;
+        if let Some(note) = issuer.notice() {
+            eprintln!("{note}");
+        }
+        Some(issuer)
     } else {
         None
     };
@@ -466,6 +470,11 @@ fn prepare_certificates(
                     .and_then(|t| chrono::NaiveDate::parse_from_str(t, "%Y-%m-%d").ok())
                     .unwrap_or(ctx.now.date_naive()),
             );
+            if d.tested_to.is_none() {
+                // The row leaves them empty: the day the retest is recorded.
+                let today = Some(ctx.now.date_naive());
+                rec.tested = (today, today);
+            }
         }
         // Only a retest supersedes, and only its reason is logged: a new lot in the same
         // batch carries neither.

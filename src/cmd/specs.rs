@@ -2,6 +2,7 @@
 
 use std::path::PathBuf;
 
+use crate::cmd::args::TemplatesFolder;
 use crate::cmd::Outcome;
 use crate::spec::SpecSet;
 
@@ -31,12 +32,19 @@ pub enum Action {
             value_name = "DIR"
         )]
         register: PathBuf,
+        /// The templates folder whose site file is checked too (`--templates`).
+        #[command(flatten)]
+        templates: TemplatesFolder,
     },
 }
 
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
-    let Action::Check { dir, register } = &args.action;
+    let Action::Check {
+        dir,
+        register,
+        templates,
+    } = &args.action;
     let set = SpecSet::load(dir)?;
     let customers = crate::spec::customer::load_all(&dir.join("customers"), &set)?;
     let mut rows = vec![vec![
@@ -93,6 +101,16 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         set.products.len(),
         customers.len()
     ));
+    text.push_str(&crate::certificate::model::site_warnings(
+        &templates.join(crate::certificate::model::SITE_FILE),
+        customers
+            .iter()
+            .filter(|c| {
+                c.inspection_document
+                    == Some(crate::spec::customer::InspectionDocument::Certificate31)
+            })
+            .map(|c| c.id.as_str()),
+    )?);
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }

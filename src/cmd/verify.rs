@@ -13,9 +13,9 @@ use crate::record::trend_file::Wait;
 /// Arguments of `resinlot verify`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Certificate PDFs to identify against the issue log: genuine (current, exit 0),
-    /// superseded, withdrawn, altered or unknown (exit 1). Without any, the whole record is
-    /// checked instead.
+    /// Certificate PDFs, or their JSON data companions, to identify against the issue log:
+    /// genuine (current, exit 0), superseded, withdrawn, altered or unknown (exit 1). Without
+    /// any, the whole record is checked instead.
     #[arg(id = "pdf", value_name = "CERTIFICATES")]
     pub certificates: Vec<PathBuf>,
     /// The register folder (`--register`).

@@ -166,7 +166,7 @@ pub fn anchors(t: &Trend) -> Vec<Anchor> {
 }
 
 /// One issued certificate.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize)]
 pub struct Entry {
     /// Certificate number.
     pub number: String,
@@ -188,6 +188,9 @@ pub struct Entry {
     pub supersedes: String,
     /// Reason for a reissue.
     pub reason: String,
+    /// SHA-256 of the certificate's JSON data companion (layout v3; empty when none was
+    /// written, e.g. in a log in an earlier layout).
+    pub json_sha256: String,
 }
 
 /// The entry an issue row of a parsed log records.
@@ -208,6 +211,7 @@ fn entry(t: &Trend, row: &trend_file::Row) -> Entry {
         sha256: c("sha256"),
         supersedes: c("supersedes"),
         reason: c("reason"),
+        json_sha256: c("json_sha256"),
     }
 }
 
@@ -657,6 +661,7 @@ impl Log {
             ("sha256", e.sha256.clone()),
             ("supersedes", e.supersedes.clone()),
             ("reason", e.reason.clone()),
+            ("json_sha256", e.json_sha256.clone()),
         ])?;
         self.locked.sync()
     }
@@ -696,6 +701,12 @@ impl Log {
     /// The log's path.
     pub fn path(&self) -> &Path {
         &self.locked.trend.path
+    }
+
+    /// True when the log has the column `name` (the layout-v3 columns are missing from a log
+    /// in an earlier layout until `resinlot upgrade`).
+    pub fn has_column(&self, name: &str) -> bool {
+        self.locked.trend.col(name).is_some()
     }
 
     /// True when the log did not exist (or was empty) when it was locked and nothing has been
@@ -749,6 +760,7 @@ mod tests {
             sha256: "ab".into(),
             supersedes: String::new(),
             reason: String::new(),
+            json_sha256: String::new(),
         };
         log.append(&e).unwrap();
         assert_eq!(log.next_number("FW-"), "FW-000002");
@@ -790,6 +802,7 @@ mod tests {
             sha256: "ab".into(),
             supersedes: String::new(),
             reason: String::new(),
+            json_sha256: String::new(),
         }
     }
 

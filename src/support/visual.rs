@@ -899,7 +899,12 @@ mod tests {
             linear_ticks(0.0, 10.0, 5),
             vec![0.0, 2.0, 4.0, 6.0, 8.0, 10.0]
         );
-        assert_eq!(linear_ticks(0.13, 0.61, 5), vec![0.2, 0.3, 0.4, 0.5, 0.6]);
+        let ticks = linear_ticks(0.13, 0.61, 5);
+        let want = [0.2, 0.3, 0.4, 0.5, 0.6];
+        assert_eq!(ticks.len(), want.len(), "{ticks:?}");
+        for (t, w) in ticks.iter().zip(want) {
+            assert!((t - w).abs() < 1e-9, "{ticks:?}");
+        }
         assert_eq!(log_ticks(150.0, 3000.0), vec![200.0, 500.0, 1000.0, 2000.0]);
         assert_eq!(
             log_ticks(1.0, 1e5),

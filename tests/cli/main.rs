@@ -5,6 +5,7 @@ mod common;
 
 mod audit;
 mod bad_input;
+mod certificate_content;
 mod certificate_faults;
 mod certificate_render;
 mod certify;
