@@ -15,10 +15,12 @@ use crate::lot::evaluate::{LotDecision, Status};
 use crate::lot::note::LotNote;
 use crate::record::trend_file::{Row, Trend};
 use crate::spec::customer::{
-    combined, customer_fit, recorded_uncertainty, Customer, CustomerProduct, Fit,
+    combined, customer_fit, recorded_uncertainty, special_fit, Customer, CustomerProduct, Fit,
     InspectionDocument,
 };
-use crate::spec::decision::{decimal_from_f64, round, DecisionRule, Verdict};
+use crate::spec::decision::{
+    censored_text, decimal_from_f64, round, DecisionRule, RecordedResult, Verdict,
+};
 use crate::spec::keys::{MN, XN};
 use crate::spec::units::unit_factor;
 use crate::spec::{end_groups_words, limits_text, ProductSpec, Property};
@@ -48,6 +50,9 @@ pub struct LotRecord {
     pub decided_at: String,
     /// Notes recorded with the decision (corrections, replicates, conditional results), typed.
     pub notes: Vec<LotNote>,
+    /// SHA-256 of the spec revision file the lot was decided on (empty on rows written
+    /// before it was recorded).
+    pub spec_sha256: String,
     /// The concession the lot was released under, when QA released it for one customer
     /// (issue #14).
     pub concession: Option<Concession>,
@@ -95,8 +100,13 @@ impl LotRecord {
             verdicts,
             mn_uncertainty: c("mn_uncertainty").parse().ok(),
             approver: c("approver"),
-            decided_at: c("recorded_at"),
+            // A history import records when the lot was decided; an empty cell means the row
+            // was decided when it was recorded.
+            decided_at: Some(c("decided_at"))
+                .filter(|d| !d.is_empty())
+                .unwrap_or_else(|| c("recorded_at")),
             notes: LotNote::parse_cell(&c("notes")),
+            spec_sha256: c("spec_sha256"),
             concession: (c("disposition") == "concession").then(|| Concession {
                 reference: c("concession_ref"),
                 customer: c("concession_customer"),
@@ -142,14 +152,32 @@ impl LotRecord {
             approver: approver.to_string(),
             decided_at: now.to_string(),
             notes: d.notes.clone(),
+            spec_sha256: d.spec_sha256.clone(),
             concession: None,
             latest_retest: None,
-            tested: (None, None),
+            // As the row records them (issue #15): the results file's test times, else the
+            // manufacture date; `release` sets a retest's own.
+            tested: (
+                d.tested_from
+                    .as_deref()
+                    .and_then(date)
+                    .or(Some(d.manufactured)),
+                d.tested_to
+                    .as_deref()
+                    .and_then(date)
+                    .or(Some(d.manufactured)),
+            ),
         }
     }
 
     fn value(&self, key: &str) -> Option<Decimal> {
         crate::spec::decision::recorded_decimal(self.values.get(key)?)
+    }
+
+    /// The recorded result of `key` when it is a word or a censored result (issue #15).
+    fn special(&self, key: &str) -> Option<RecordedResult> {
+        RecordedResult::parse(self.values.get(key)?)
+            .filter(|r| !matches!(r, RecordedResult::Number(_)))
     }
 }
 
@@ -233,10 +261,11 @@ pub fn concession_deviations(
             if verdict.is_empty() || verdict == "pass" {
                 return None;
             }
-            let value = rec
-                .value(&p.key)
-                .map(|v| round(v, p.decimals, spec.rounding).to_string())
-                .unwrap_or_else(|| "missing".into());
+            let value = match (rec.special(&p.key), rec.value(&p.key)) {
+                (Some(sp), _) => special_text(&sp, p, Decimal::ONE),
+                (None, Some(v)) => round(v, p.decimals, spec.rounding).to_string(),
+                (None, None) => "missing".into(),
+            };
             Some(format!(
                 "{} {} {} is {} against the product spec {} revision {} ({})",
                 p.label,
@@ -263,6 +292,42 @@ fn customer_shortfalls(
     let mut failures = Vec::new();
     for p in &spec.properties {
         let window = ship.product.limits.get(&p.key);
+        if window.is_none()
+            && !(p.is_text()
+                && ship
+                    .product
+                    .report
+                    .as_ref()
+                    .is_none_or(|r| r.contains(&p.key)))
+        {
+            continue;
+        }
+        if let Some(special) = rec.special(&p.key) {
+            let v = special_fit(spec, p, &special, window).unwrap_or(Verdict::Fail);
+            if v != Verdict::Pass {
+                failures.push(format!(
+                    "{} {} is {} against {}",
+                    p.label,
+                    special_text(&special, p, Decimal::ONE),
+                    v.words(),
+                    if p.is_text() {
+                        "the spec's conforming words".to_string()
+                    } else {
+                        format!(
+                            "the customer's window {} (product spec {} revision {}: {})",
+                            {
+                                let lim = combined(p.min, p.max, window);
+                                limits_text(lim.min, lim.max, p.decimals)
+                            },
+                            spec.code,
+                            spec.revision,
+                            limits_text(p.min, p.max, p.decimals)
+                        )
+                    }
+                ));
+            }
+            continue;
+        }
         if window.is_none() {
             continue;
         }
@@ -425,15 +490,20 @@ fn result_row(
         None => combined(p.min, p.max, None),
     };
     let conv = |d: Option<Decimal>| d.map(|d| d * f);
-    let result = match rec.value(key) {
-        Some(v) => {
+    let special = rec.special(key);
+    let result = match (&special, rec.value(key)) {
+        (Some(sp), _) => special_text(sp, p, f),
+        (None, Some(v)) => {
             let mut r = round(v, p.decimals, spec.rounding) * f;
             r.rescale(dec);
             r.to_string()
         }
-        None => "not measured".to_string(),
+        (None, None) => "not measured".to_string(),
     };
     let decided = match ship {
+        Some(s) if special.is_some() => special
+            .as_ref()
+            .and_then(|sp| special_fit(spec, p, sp, s.product.limits.get(key))),
         Some(s) => customer_fit(
             spec,
             p,
@@ -468,7 +538,9 @@ fn result_row(
             (None, false) => "—".into(),
         },
         unit: if unit == "1" { String::new() } else { unit },
-        limits: if window.min.is_some() || window.max.is_some() {
+        limits: if let Some(words) = crate::spec::conforming_text(p) {
+            words
+        } else if window.min.is_some() || window.max.is_some() {
             limits_text(conv(window.min), conv(window.max), dec)
         } else {
             "report".into()
@@ -479,6 +551,16 @@ fn result_row(
         flagged: decided.is_some_and(|v| v != Verdict::Pass),
         verdict,
         note: None,
+    }
+}
+
+/// How a certificate prints a word (as written in the spec) or a censored result
+/// ("< 0.01", converted by `factor` to the reporting unit), issue #15.
+fn special_text(r: &RecordedResult, p: &Property, factor: Decimal) -> String {
+    match r {
+        RecordedResult::Word(w) => w.clone(),
+        RecordedResult::Below(l) => censored_text((*l * factor).normalize(), p.decimals),
+        RecordedResult::Number(n) => n.to_string(),
     }
 }
 

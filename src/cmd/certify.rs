@@ -84,7 +84,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     // The lot's status is read and decided under the trend file's lock, the one `release`
     // holds while appending, and the lock is kept until the certificate is logged: a retest
     // that rejects the lot either lands before (and is seen) or waits (issue #13, item 2).
-    let (_trend_lock, rec) = recorded_lot(args, wait)?;
+    let (trend_lock, rec) = recorded_lot(args, wait)?;
     let spec = specs.revision(&rec.product, &rec.revision).ok_or_else(|| {
         Error::invalid(
             format!("lot {}", rec.lot),
@@ -97,6 +97,21 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             "Keep every revision a lot was released under in the specs folder.",
         )
     })?;
+    // Limits frozen into the record (issue #15): never certify from a revision edited after
+    // the lot was decided on it.
+    if !rec.spec_sha256.is_empty() && rec.spec_sha256 != spec.sha256 {
+        crate::record::frozen::refuse_changed(
+            &trend_lock.trend.path,
+            &rec.product,
+            &specs,
+            Some(&rec.revision),
+        )?;
+        return Err(Error::Shortfall(format!(
+            "{} revision {} was changed after lot {} was decided on it: make a new revision instead, and restore this one from backup",
+            rec.product, rec.revision, rec.lot
+        ))
+        .into());
+    }
     let cp = customer.product(&rec.product)?;
     if rec.status != Status::Released {
         return Err(Error::Shortfall(format!(

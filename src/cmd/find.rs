@@ -80,20 +80,45 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         None if args.specs.is_dir() => (Some(SpecSet::load(&args.specs)?), None),
         None => (None, None),
     };
-    let customer_check = match (&specs, &customer) {
-        (Some(specs), Some(cu)) => Some(CustomerCheck {
-            customer: &cu.id,
-            specs,
-            requirements: cu.product(args.product.code())?,
-        }),
-        _ => None,
-    };
+    if let (Some(specs), Some(_)) = (&specs, &customer) {
+        // Issue #15: a customer's check works from the limits the lots were decided on.
+        crate::record::frozen::refuse_changed(&path, args.product.code(), specs, None)?;
+    }
     // The table needs only the windows and a few headline values; JSON, CSV and a customer's
     // check need every property.
     let every = args.json || args.csv || customer.is_some();
     let loaded = find::keys_to_load(&keys, &windows, every);
     let (_, lots, lives) =
         crate::record::query::current_lots_with_life(&path, &loaded, customer.is_some())?;
+    // Words and censored results for the customer's check (issue #15).
+    let special: Option<find::SpecialCells> = match (&specs, &customer) {
+        (Some(specs), Some(_)) => {
+            let revs = specs.products.get(args.product.code());
+            let special_keys: Vec<String> = keys
+                .iter()
+                .filter(|k| {
+                    revs.into_iter().flatten().any(|s| {
+                        s.property(k)
+                            .is_some_and(|p| p.is_text() || p.loq.is_some())
+                    })
+                })
+                .cloned()
+                .collect();
+            let lines: Vec<usize> = lots.iter().map(|l| l.line).collect();
+            let cells = crate::record::query::raw_cells(&path, &special_keys, &lines)?;
+            Some((special_keys, cells))
+        }
+        _ => None,
+    };
+    let customer_check = match (&specs, &customer) {
+        (Some(specs), Some(cu)) => Some(CustomerCheck {
+            customer: &cu.id,
+            specs,
+            requirements: cu.product(args.product.code())?,
+            special: special.as_ref(),
+        }),
+        _ => None,
+    };
     let filter = LotFilter {
         product: args.product.code(),
         windows: &windows,

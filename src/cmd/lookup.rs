@@ -100,7 +100,17 @@ fn values(t: &Trend, row: &Row) -> Map<String, Value> {
     let mut m = Map::new();
     for k in t.keys() {
         let cell = t.cell(row, &k);
-        let v = cell.parse::<f64>().map_or(Value::Null, |x| json!(x));
+        // Words and censored results ("<0.01") as recorded (issue #15).
+        let v = cell.parse::<f64>().map_or_else(
+            |_| {
+                if cell.is_empty() {
+                    Value::Null
+                } else {
+                    json!(cell)
+                }
+            },
+            |x| json!(x),
+        );
         m.insert(k, v);
     }
     m
@@ -126,6 +136,12 @@ fn row_json(t: &Trend, row: &Row) -> Value {
         "values": values(t, row),
         "verdicts": verdicts,
         "notes": t.cell(row, "notes"),
+        "analysts": t.cell(row, "analysts"),
+        "tested_from": t.cell(row, "tested_from"),
+        "tested_to": t.cell(row, "tested_to"),
+        "decided_at": t.cell(row, "decided_at"),
+        "recorded_by": t.cell(row, "recorded_by"),
+        "spec_sha256": t.cell(row, "spec_sha256"),
         "disposition": non_empty(t.cell(row, "disposition")),
         "concession_ref": non_empty(t.cell(row, "concession_ref")),
         "concession_customer": non_empty(t.cell(row, "concession_customer")),
@@ -171,6 +187,11 @@ fn as_json(t: &Trend, rows: &[&Row], certs: &[Cert]) -> Value {
 /// A recorded cell as reported: rounded to the property's decimals under the spec's rounding,
 /// or as it stands when the spec does not know the key or the cell is no number.
 fn reported(spec: Option<&ProductSpec>, key: &str, cell: &str) -> String {
+    use crate::spec::decision::RecordedResult;
+    if let Some(RecordedResult::Below(l)) = RecordedResult::parse(cell) {
+        let decimals = spec.and_then(|s| s.property(key)).map_or(0, |p| p.decimals);
+        return crate::spec::decision::censored_text(l, decimals);
+    }
     let (Some(s), Some(d)) = (spec, crate::spec::decision::recorded_decimal(cell)) else {
         return cell.to_string();
     };
@@ -197,6 +218,7 @@ fn render(
     );
     out.push_str(&facts_text(&c, shelf));
     out.push_str(&property_table(t, spec, &c));
+    out.push_str(&limits_source(spec, &c));
     out.push_str(&derived_text(spec, &c));
     if !c("notes").is_empty() {
         out.push_str(&format!("Notes: {}\n", c("notes")));
@@ -234,9 +256,16 @@ fn facts_text<'a>(
         ("Manufactured".to_string(), c("manufactured").to_string()),
         (
             "Decided".to_string(),
-            format!("{} by {}", c("recorded_at"), c("approver")),
+            format!(
+                "{} by {}",
+                Some(c("decided_at"))
+                    .filter(|d| !d.is_empty())
+                    .unwrap_or(c("recorded_at")),
+                c("approver")
+            ),
         ),
     ];
+    facts.extend(audit_facts(c));
     if let Some((r, today)) = shelf {
         let text = if crate::lot::disposition::expired(r, today) {
             format!("{r}: expired since {r}; retest before use (`release --retest`)")
@@ -248,6 +277,67 @@ fn facts_text<'a>(
     let mut out = crate::support::table::pairs(&facts);
     out.push('\n');
     out
+}
+
+/// Who tested and when, and who recorded the row when (issue #15); nothing for a row written
+/// before these were kept.
+fn audit_facts<'a>(c: &dyn Fn(&str) -> &'a str) -> Vec<(String, String)> {
+    let mut facts = Vec::new();
+    let (from, to) = (c("tested_from"), c("tested_to"));
+    if !from.is_empty() {
+        let dates = if from == to {
+            from.to_string()
+        } else {
+            format!("{from} to {to}")
+        };
+        let analysts = c("analysts").replace(';', ", ");
+        facts.push((
+            "Tested".to_string(),
+            if analysts.is_empty() {
+                format!("{dates} (analyst not named in the results file)")
+            } else {
+                format!("{dates} by {analysts}")
+            },
+        ));
+    }
+    if !c("recorded_by").is_empty() {
+        facts.push((
+            "Recorded".to_string(),
+            format!("{} by login {}", c("recorded_at"), c("recorded_by")),
+        ));
+    }
+    facts
+}
+
+/// Which limits the table shows (issue #15): the spec revision the lot was decided on, when
+/// today's file is that file (its SHA-256 matches the one recorded); otherwise a caution that
+/// the revision was edited after the decision, or that the row predates the record of it.
+fn limits_source<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> String {
+    let recorded = c("spec_sha256");
+    let short = |h: &str| h[..h.len().min(12)].to_string();
+    match spec {
+        None => format!(
+            "Limits: spec revision {} is not in the specs folder; limits not shown.\n",
+            c("spec_revision")
+        ),
+        Some(s) if recorded.is_empty() => format!(
+            "Limits: from today's {} revision {} file (this row was recorded before the spec's SHA-256 was kept, so it cannot be confirmed as the file used).\n",
+            s.code, s.revision
+        ),
+        Some(s) if s.sha256 == recorded => format!(
+            "Limits: {} revision {}, the file the lot was decided against (SHA-256 {}…).\n",
+            s.code,
+            s.revision,
+            short(recorded)
+        ),
+        Some(s) => format!(
+            "CAUTION: {} revision {} was changed after this lot was decided (recorded SHA-256 {}…, file now {}…): the limits above are today's file, NOT those the lot was decided against. Restore the revision from backup and make a new revision for the change.\n",
+            s.code,
+            s.revision,
+            short(recorded),
+            short(&s.sha256)
+        ),
+    }
 }
 
 /// QA's dispositions of the lot, oldest first, in plain words (issue #14).
@@ -311,7 +401,9 @@ fn property_table<'a>(
                 }
             }),
             p.map_or(String::new(), |p| {
-                if p.has_limit() {
+                if let Some(words) = crate::spec::conforming_text(p) {
+                    words
+                } else if p.has_limit() {
                     limits_text(p.min, p.max, p.decimals)
                 } else {
                     String::new()

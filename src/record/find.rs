@@ -23,7 +23,13 @@ pub struct CustomerCheck<'a> {
     pub specs: &'a SpecSet,
     /// The customer's requirements for the product.
     pub requirements: &'a CustomerProduct,
+    /// Words and censored results, which [`LotRow::values`] cannot hold (issue #15).
+    pub special: Option<&'a SpecialCells>,
 }
+
+/// Words and censored results of a product's lots: the keys, and each row's cells of those
+/// keys by line number ([`crate::record::query::raw_cells`]).
+pub type SpecialCells = (Vec<String>, std::collections::HashMap<usize, Vec<String>>);
 
 /// What a lot must meet to be found.
 #[derive(Debug, Clone)]
@@ -201,6 +207,18 @@ pub fn fits_customer(product: &str, row: &LotRow, loaded: &[String], c: Customer
             .position(|k| *k == p.key)
             .and_then(|i| row.values[i])
             .and_then(decimal_from_f64);
+        let special = match value {
+            None => special_cell(c, row, &p.key),
+            Some(_) => None,
+        };
+        if let Some(recorded) = special {
+            return crate::spec::customer::special_fit(
+                spec,
+                p,
+                &recorded,
+                c.requirements.limits.get(&p.key),
+            ) == Some(crate::spec::decision::Verdict::Pass);
+        }
         customer_fit(
             spec,
             p,
@@ -210,6 +228,18 @@ pub fn fits_customer(product: &str, row: &LotRow, loaded: &[String], c: Customer
         )
         .passes()
     })
+}
+
+/// The word or censored result recorded for `key` on `row`, when the check holds one.
+fn special_cell(
+    c: CustomerCheck,
+    row: &LotRow,
+    key: &str,
+) -> Option<crate::spec::decision::RecordedResult> {
+    let (keys, cells) = c.special?;
+    let i = keys.iter().position(|k| k == key)?;
+    crate::spec::decision::RecordedResult::parse(cells.get(&row.line)?.get(i)?)
+        .filter(|r| !matches!(r, crate::spec::decision::RecordedResult::Number(_)))
 }
 
 #[cfg(test)]
@@ -301,6 +331,7 @@ mod tests {
                 customer: who,
                 specs: &specs,
                 requirements: &requirements,
+                special: None,
             });
             let hits = matching_lots(&lots, &loaded, &filter);
             assert_eq!(

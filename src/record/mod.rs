@@ -6,6 +6,7 @@ pub mod append;
 pub mod certfiles;
 pub mod certlog;
 pub mod find;
+pub mod frozen;
 pub mod heads;
 pub mod integrity;
 pub mod layout;

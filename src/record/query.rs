@@ -405,6 +405,73 @@ fn current_lots_with(
     Ok((file_keys, rows, lives))
 }
 
+/// How many of the rows on `lines` (1-based line numbers, as in [`LotRow::line`]) record a
+/// censored result (`<L`, below the limit of quantification) in each of `keys`: trend
+/// excludes those from its statistics and says how many (issue #15). Streams the file once.
+pub fn censored_counts(path: &Path, keys: &[String], lines: &[usize]) -> Result<Vec<usize>> {
+    let header = read_header(path)?;
+    let cols: Vec<Option<usize>> = keys
+        .iter()
+        .map(|k| header.iter().position(|c| c == k))
+        .collect();
+    let wanted: std::collections::HashSet<usize> = lines.iter().copied().collect();
+    let mut counts = vec![0; keys.len()];
+    lines::for_each_line(path, lines::CHUNK, |line_no, line| {
+        if line_no == 1 || !wanted.contains(&line_no) || !line.contains(&b'<') {
+            return Ok(());
+        }
+        let cells = trend_file::split_line(&String::from_utf8_lossy(line));
+        for (n, c) in counts.iter_mut().zip(&cols) {
+            if c.and_then(|i| cells.get(i))
+                .is_some_and(|v| v.starts_with('<'))
+            {
+                *n += 1;
+            }
+        }
+        Ok(())
+    })?;
+    Ok(counts)
+}
+
+/// The recorded cells of `keys` on the rows at `lines` (line number to cells, in `keys`
+/// order) for the results [`LotRow::values`] cannot hold: words and censored results
+/// (issue #15). Streams the file once; rows whose cells among `keys` are all numbers or empty
+/// are left out.
+pub fn raw_cells(
+    path: &Path,
+    keys: &[String],
+    lines: &[usize],
+) -> Result<std::collections::HashMap<usize, Vec<String>>> {
+    let header = read_header(path)?;
+    let cols: Vec<Option<usize>> = keys
+        .iter()
+        .map(|k| header.iter().position(|c| c == k))
+        .collect();
+    let wanted: std::collections::HashSet<usize> = lines.iter().copied().collect();
+    let mut out = std::collections::HashMap::new();
+    if keys.is_empty() {
+        return Ok(out);
+    }
+    lines::for_each_line(path, lines::CHUNK, |line_no, line| {
+        if line_no == 1 || !wanted.contains(&line_no) {
+            return Ok(());
+        }
+        let cells = trend_file::split_line(&String::from_utf8_lossy(line));
+        let mine: Vec<String> = cols
+            .iter()
+            .map(|c| c.and_then(|i| cells.get(i)).cloned().unwrap_or_default())
+            .collect();
+        if mine
+            .iter()
+            .any(|v| !v.is_empty() && v.parse::<f64>().is_err())
+        {
+            out.insert(line_no, mine);
+        }
+        Ok(())
+    })?;
+    Ok(out)
+}
+
 /// Turns trend-file lines into [`LotRow`]s, splitting only up to the last column needed.
 struct RowReader<'a> {
     path: &'a Path,

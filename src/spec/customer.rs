@@ -257,6 +257,15 @@ fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result
         let mut limits = IndexMap::new();
         for (k, w) in &p.limits {
             known(k, &format!(".limits.{k}"))?;
+            // A window holds numbers; a text property is decided by its conforming words
+            // (issue #15), so a window on one would be silently ignored.
+            if spec.property(k).is_some_and(|p| p.is_text()) {
+                return Err(Error::invalid(
+                    place(&format!(".limits.{k}")),
+                    format!("{k} is a text property: its results are words, which a window cannot limit"),
+                    "Remove this window; the spec's conforming words apply to every customer.",
+                ));
+            }
             let conv = |v: Option<f64>, f: &str| -> Result<Option<Decimal>> {
                 v.map(|x| {
                     decimal_from_f64(x).ok_or_else(|| {
@@ -516,6 +525,40 @@ pub fn customer_fit(
         reported,
         window: lim,
         uncertainty: u,
+    }
+}
+
+/// The customer-fit rule for a result that is not a number (issue #15): a word passes when
+/// it is one of the spec's conforming words (a customer window holds numbers and does not
+/// apply to it); a censored result "< L" is decided by
+/// [`censored_verdict`](crate::spec::decision::censored_verdict) against the tighter of the
+/// spec's and the customer's windows, with the product's guard band, and a stated limit above
+/// the window's maximum fails. `None` for a number (use [`customer_fit`]).
+pub fn special_fit(
+    spec: &ProductSpec,
+    p: &Property,
+    recorded: &crate::spec::decision::RecordedResult,
+    window: Option<&Window>,
+) -> Option<Verdict> {
+    use crate::spec::decision::RecordedResult;
+    match recorded {
+        RecordedResult::Number(_) => None,
+        RecordedResult::Word(w) => Some(if p.conforms(w) {
+            Verdict::Pass
+        } else {
+            Verdict::Fail
+        }),
+        RecordedResult::Below(l) => {
+            let lim = combined(p.min, p.max, window);
+            let w = match spec.decision_rule {
+                DecisionRule::Guarded => recorded_uncertainty(spec, p, None).unwrap_or_default(),
+                DecisionRule::Simple => Decimal::ZERO,
+            };
+            Some(
+                crate::spec::decision::censored_verdict(*l, lim.min, lim.max, w)
+                    .unwrap_or(Verdict::Fail),
+            )
+        }
     }
 }
 

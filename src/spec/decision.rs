@@ -134,6 +134,84 @@ pub fn verdict(x: Decimal, min: Option<Decimal>, max: Option<Decimal>, w: Decima
     upper.max(lower)
 }
 
+/// Verdict of a censored result "< L" (below the stated limit L, e.g. below the limit of
+/// quantification) against optional limits with guard band `w`; `None` when L is above the
+/// maximum, which the caller refuses as bad input (such a result cannot show conformity).
+///
+/// The true value lies somewhere below L. Against a maximum TL it passes when L ≤ TL − w
+/// (the guarded acceptance limit of ILAC-G8:09/2019 §4.2.3; w = 0 under §4.2.1) and is a
+/// conditional pass when TL − w < L ≤ TL, since the value itself is unknown. Against a minimum
+/// it fails: nothing below L can be shown to reach the minimum. Treating a censored result as
+/// "below L", never as a number, is common practice for results under the LOQ.
+pub fn censored_verdict(
+    limit: Decimal,
+    min: Option<Decimal>,
+    max: Option<Decimal>,
+    w: Decimal,
+) -> Option<Verdict> {
+    let upper = match max {
+        Some(tl) if limit > tl => return None,
+        Some(tl) if limit > tl - w => Verdict::ConditionalPass,
+        _ => Verdict::Pass,
+    };
+    let lower = if min.is_some() {
+        Verdict::Fail
+    } else {
+        Verdict::Pass
+    };
+    Some(upper.max(lower))
+}
+
+/// How a censored result is reported: "< L", with L given at least to `decimals` places (a
+/// stated limit is never rounded, so it is never understated).
+pub fn censored_text(limit: Decimal, decimals: u32) -> String {
+    let mut l = limit;
+    if l.scale() < decimals {
+        l.rescale(decimals);
+    }
+    format!("< {l}")
+}
+
+/// A result as a trend-file cell records it: a number, a censored result `<L`, or a word of
+/// a text property.
+#[derive(Debug, Clone, PartialEq)]
+pub enum RecordedResult {
+    /// A number.
+    Number(Decimal),
+    /// Below the stated limit L (`<L` in the cell).
+    Below(Decimal),
+    /// A word of a text property, as written in the spec.
+    Word(String),
+}
+
+impl RecordedResult {
+    /// Reads a recorded cell; `None` for an empty cell.
+    pub fn parse(cell: &str) -> Option<RecordedResult> {
+        let cell = cell.trim();
+        if cell.is_empty() {
+            return None;
+        }
+        if let Some(l) = cell.strip_prefix('<') {
+            if let Some(d) = recorded_decimal(l.trim()) {
+                return Some(RecordedResult::Below(d));
+            }
+        }
+        Some(match recorded_decimal(cell) {
+            Some(d) => RecordedResult::Number(d),
+            None => RecordedResult::Word(cell.to_string()),
+        })
+    }
+
+    /// The cell text that records this result: the number, `<L` or the word.
+    pub fn cell(&self) -> String {
+        match self {
+            RecordedResult::Number(d) => d.to_string(),
+            RecordedResult::Below(l) => format!("<{l}"),
+            RecordedResult::Word(w) => w.clone(),
+        }
+    }
+}
+
 /// Converts a finite f64 to a Decimal (about 15 significant digits kept).
 pub fn decimal_from_f64(x: f64) -> Option<Decimal> {
     if !x.is_finite() {
@@ -224,6 +302,60 @@ mod tests {
         let z = Decimal::ZERO;
         assert_eq!(verdict(d("1.00"), None, Some(d("1.0")), z), Verdict::Pass);
         assert_eq!(verdict(d("1.01"), None, Some(d("1.0")), z), Verdict::Fail);
+    }
+
+    #[test]
+    fn censored_results_issue_15() {
+        // Rule stated at censored_verdict (ILAC-G8:09/2019 §4.2.3 acceptance limit TL − w).
+        let (max, w) = (Some(d("0.05")), d("0.01"));
+        assert_eq!(
+            censored_verdict(d("0.01"), None, max, w),
+            Some(Verdict::Pass)
+        );
+        assert_eq!(
+            censored_verdict(d("0.04"), None, max, w),
+            Some(Verdict::Pass)
+        ); // = TL − w
+        assert_eq!(
+            censored_verdict(d("0.045"), None, max, w),
+            Some(Verdict::ConditionalPass)
+        );
+        assert_eq!(
+            censored_verdict(d("0.05"), None, max, w),
+            Some(Verdict::ConditionalPass)
+        );
+        assert_eq!(censored_verdict(d("0.06"), None, max, w), None);
+        // Simple rule: w = 0, anything at or under the maximum passes.
+        assert_eq!(
+            censored_verdict(d("0.05"), None, max, Decimal::ZERO),
+            Some(Verdict::Pass)
+        );
+        // Against a minimum a censored result fails.
+        assert_eq!(
+            censored_verdict(d("0.01"), Some(d("0.5")), None, w),
+            Some(Verdict::Fail)
+        );
+        assert_eq!(censored_text(d("0.01"), 2), "< 0.01");
+        assert_eq!(censored_text(d("0.1"), 2), "< 0.10");
+        assert_eq!(censored_text(d("0.005"), 2), "< 0.005");
+    }
+
+    #[test]
+    fn recorded_results_read_back_issue_15() {
+        assert_eq!(
+            RecordedResult::parse("0.50"),
+            Some(RecordedResult::Number(d("0.50")))
+        );
+        assert_eq!(
+            RecordedResult::parse("<0.01"),
+            Some(RecordedResult::Below(d("0.01")))
+        );
+        assert_eq!(
+            RecordedResult::parse("clear"),
+            Some(RecordedResult::Word("clear".into()))
+        );
+        assert_eq!(RecordedResult::parse(""), None);
+        assert_eq!(RecordedResult::Below(d("0.01")).cell(), "<0.01");
     }
 
     #[test]

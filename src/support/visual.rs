@@ -699,15 +699,25 @@ pub fn linear_ticks(lo: f64, hi: f64, target: usize) -> Vec<f64> {
         return vec![lo];
     }
     let raw = (hi - lo) / target.max(1) as f64;
-    let mag = 10f64.powf(raw.log10().floor());
-    let step = [1.0, 2.0, 5.0, 10.0]
-        .iter()
-        .map(|m| m * mag)
-        .find(|s| *s >= raw)
-        .unwrap_or(10.0 * mag);
+    let e = raw.log10().floor() as i32;
+    let mag = 10f64.powi(e);
+    let m = [1.0, 2.0, 5.0, 10.0]
+        .into_iter()
+        .find(|m| m * mag >= raw)
+        .unwrap_or(10.0);
+    let step = m * mag;
     let first = (lo / step).ceil() as i64;
     let last = (hi / step).floor() as i64;
-    (first..=last).map(|k| k as f64 * step).collect()
+    // k·m is an exact integer; dividing it by a power of ten gives the decimal tick correctly
+    // rounded (0.3, not 3 × 0.1 = 0.30000000000000004).
+    let tick = |k: i64| {
+        if e < 0 {
+            k as f64 * m / 10f64.powi(-e)
+        } else {
+            k as f64 * m * mag
+        }
+    };
+    (first..=last).map(tick).collect()
 }
 
 /// Ticks of a log10 axis inside [lo, hi]: 1, 2 and 5 of each decade when at most four decades

@@ -3,6 +3,7 @@
 
 mod common;
 
+mod audit;
 mod bad_input;
 mod certificate_content;
 mod certificate_faults;
