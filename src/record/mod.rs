@@ -7,6 +7,7 @@ pub mod certfiles;
 pub mod certlog;
 pub mod find;
 pub mod heads;
+pub mod index;
 pub mod integrity;
 pub mod layout;
 pub mod lines;

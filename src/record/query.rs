@@ -25,10 +25,16 @@ pub fn trend_files(register: &Path) -> Result<Vec<PathBuf>> {
     Ok(v)
 }
 
-/// The rows of `lot` in one trend file (file order), found by a byte search before any parse:
-/// the file is read in 8 MiB chunks and only lines containing `,lot,` are split, so memory
-/// stays small and a million-lot file is searched at memory speed.
+/// The rows of `lot` in one trend file (file order), with their line numbers. Goes through the trend file's lot index ([`crate::record::index`]), checked against the
+/// file before use and rebuilt when stale, so a million-lot file answers in milliseconds.
 pub fn lot_rows_in(path: &Path, lot: &str) -> Result<Option<Trend>> {
+    crate::record::index::lot_rows(path, lot)
+}
+
+/// [`lot_rows_in`] without the index: a byte search before any parse (the file is read in
+/// 8 MiB chunks and only lines containing `,lot,` are split, so memory stays small). The
+/// reference the index is tested against.
+pub fn lot_rows_scanned(path: &Path, lot: &str) -> Result<Option<Trend>> {
     lot_rows_chunked(path, lot, lines::CHUNK)
 }
 
@@ -347,7 +353,7 @@ fn intern(table: &mut Vec<&'static str>, text: &[u8]) -> &'static str {
 /// Splits one CSV line into field spans (start, end) up to column `upto`, honouring quotes;
 /// a quoted field's span excludes its outer quotes (doubled quotes inside stay doubled, which
 /// never matters for the ids, dates and numbers read here).
-fn split_spans(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
+pub(crate) fn split_spans(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
     out.clear();
     let mut start = 0;
     let mut quoted_from: Option<usize> = None; // inside a quoted field opened here
@@ -667,6 +673,11 @@ fn read_header(path: &Path) -> Result<Vec<String>> {
     let columns = trend_file::split_line(first.trim_end());
     trend_file::check_trend_header(path, &columns)?;
     Ok(columns)
+}
+
+/// The checked header columns of the trend file at `path` (its first line only).
+pub fn header_columns(path: &Path) -> Result<Vec<String>> {
+    read_header(path)
 }
 
 /// The property keys of a trend file (from its header only).
