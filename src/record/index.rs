@@ -385,7 +385,7 @@ mod tests {
         assert!(is_index_name(".P.lot-index"));
         assert_eq!(
             crate::record::query::trend_files(dir.path()).unwrap(),
-            [p.clone()]
+            std::slice::from_ref(&p)
         );
     }
 
