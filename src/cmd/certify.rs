@@ -111,7 +111,24 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         purchase_order: args.po.as_deref(),
         quantity: args.quantity.as_deref(),
     };
-    build::check_customer(spec, &rec, &ship)?;
+    let today = crate::support::clock::now()?.date_naive();
+    check_shelf_life(&rec, spec.retest_months, today)?;
+    // A lot released under concession goes to its customer alone, deviations and all; for
+    // everyone else it is not released (issue #14).
+    let deviations = match &rec.concession {
+        Some(c) if c.customer != customer.id => {
+            return Err(Error::Shortfall(format!(
+                "lot {} is released under concession {} for customer '{}' only: it cannot be certified for {}",
+                rec.lot, c.reference, c.customer, customer.name
+            ))
+            .into())
+        }
+        Some(_) => build::concession_deviations(spec, &rec, &ship)?,
+        None => {
+            build::check_customer(spec, &rec, &ship)?;
+            Vec::new()
+        }
+    };
     let issuer = Issuer::new(&args.templates, &args.certificates)?;
     let mut log = Log::lock(&args.register, wait)?;
     let previous = log
@@ -120,6 +137,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .rev()
         .find(|e| e.lot == rec.lot && e.customer == customer.id);
     let supersedes = supersedes(previous.as_ref(), args, &rec, &customer)?;
+    let superseded = supersedes.clone();
     let now = crate::support::clock::now()?;
     let number = issuer.numbering(&log)?.nth(0);
     let certificate = build::build(
@@ -138,18 +156,25 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     }];
     let rendered = issuer.render(&pending)?;
     issuer.check_targets(&pending)?;
-    let issued = issuer.file(
-        &mut log,
-        &pending,
-        &rendered,
-        args.html,
-        &now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
-    )?;
+    let issued_at = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
+    let issued = issuer.file(&mut log, &pending, &rendered, args.html, &issued_at)?;
     let i = &issued[0];
+    if let Some(old) = &superseded {
+        // The reissue row names what it supersedes; the event row says so in the old
+        // certificate's own terms (issue #14). Either alone makes the old one superseded.
+        log.supersede(&old.number, &i.certificate_number, &old.reason, &issued_at)?;
+    }
     let text = if args.json {
-        serde_json::to_string_pretty(i)? + "\n"
+        let mut v = serde_json::to_value(i)?;
+        if let (Some(o), Some(c)) = (v.as_object_mut(), &rec.concession) {
+            o.insert(
+                "concession".into(),
+                serde_json::json!({"reference": c.reference, "deviations": deviations}),
+            );
+        }
+        serde_json::to_string_pretty(&v)? + "\n"
     } else {
-        format!(
+        let mut t = format!(
             "Certificate {} for lot {} ({}) issued to {}{}\n  {}\n  SHA-256 {}\n",
             i.certificate_number,
             rec.lot,
@@ -160,7 +185,20 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                 .unwrap_or_default(),
             i.path.display(),
             i.sha256
-        )
+        );
+        if let Some(c) = &rec.concession {
+            t.push_str(&format!(
+                "  Released under concession {} agreed with {}; outside the windows:\n",
+                c.reference, customer.name
+            ));
+            if deviations.is_empty() {
+                t.push_str("    none recorded\n");
+            }
+            for d in &deviations {
+                t.push_str(&format!("    {d}\n"));
+            }
+        }
+        t
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
@@ -183,9 +221,35 @@ fn recorded_lot(args: &Args, wait: Wait) -> anyhow::Result<(Locked, LotRecord)> 
     // intact record, and from the row that is latest while the lock is held.
     let locked = crate::record::trend_file::lock(&found.path, &[], &[], wait)?;
     let trend = &locked.trend;
-    let row = *trend.lot_rows(&args.lot).first().ok_or_else(not_recorded)?;
-    let rec = LotRecord::from_row(trend, row)?;
+    // The id as recorded: any case finds the lot (issue #14).
+    let lot = found.cell(&found.rows[0], "lot");
+    let rows = trend.lot_rows(lot);
+    let row = *rows.first().ok_or_else(not_recorded)?;
+    let mut rec = LotRecord::from_row(trend, row)?;
+    rec.latest_retest = crate::record::lifecycle::latest_retest(trend, &rows);
     Ok((locked, rec))
+}
+
+/// Refuses (exit 1) a lot whose retest date has passed, naming the date (issue #14); the
+/// retest date is extended by a retest on or after it ([`crate::lot::disposition`]).
+fn check_shelf_life(rec: &LotRecord, months: u32, today: chrono::NaiveDate) -> anyhow::Result<()> {
+    let Some(until) =
+        crate::lot::disposition::retest_date(rec.manufactured, months, rec.latest_retest)
+    else {
+        return Ok(());
+    };
+    if crate::lot::disposition::expired(until, today) {
+        return Err(Error::Shortfall(format!(
+            "lot {} passed its retest date {until} (manufactured {}, retest every {months} months{}): it cannot be certified until a retest extends it; record one with `release --retest --reason \"shelf-life retest\"`",
+            rec.lot,
+            rec.manufactured,
+            rec.latest_retest
+                .map(|d| format!(", last retest {d}"))
+                .unwrap_or_default()
+        ))
+        .into());
+    }
+    Ok(())
 }
 
 /// What a reissue supersedes; a second certificate for the same lot and customer needs

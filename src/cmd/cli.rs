@@ -38,6 +38,12 @@ pub enum Command {
     /// the customer's tighter windows, numbered and recorded in the certificate log.
     #[command(after_help = EXIT_STATUS)]
     Certify(cmd::certify::Args),
+    /// QA's decision on a lot after its first decision (ISO 9001 §8.7): release a held lot,
+    /// release it under one customer's concession, send it to rework or reject it. Appends a
+    /// chained row to the trend file; a lot rejected or held has its certificates withdrawn
+    /// in the certificate log, and the customers to notify are listed.
+    #[command(after_help = EXIT_STATUS)]
+    Disposition(cmd::disposition::Args),
     /// Trend a product's lots: I-MR control charts, Nelson run rules, capability (Cp, Cpk,
     /// Pp, Ppk) and the viscosity–Mn check; SVG/PNG charts and a PDF report.
     #[command(after_help = EXIT_STATUS)]

@@ -6,7 +6,9 @@ use serde_json::{json, Map, Value};
 use crate::cmd::args::{self, ProductArg, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::lot::evaluate::Status;
-use crate::record::find::{self, CustomerCheck, LotFilter};
+use std::collections::HashMap;
+
+use crate::record::find::{self, CustomerCheck, LifeCheck, LotFilter};
 use crate::record::query::{parse_window, LotRow, Window};
 use crate::spec::customer::Customer;
 use crate::spec::SpecSet;
@@ -48,6 +50,10 @@ pub struct Args {
     /// Print CSV (for a spreadsheet) instead of the table.
     #[arg(long)]
     pub csv: bool,
+    /// Also list lots past their retest date (manufacture date + the spec's retest_months,
+    /// extended by a retest on or after it). Default: they are left out and counted.
+    #[arg(long)]
+    pub include_expired: bool,
 }
 
 /// Runs the command.
@@ -69,10 +75,14 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             cu.product(args.product.code())?;
             (Some(specs), Some(cu))
         }
+        // Shelf life needs the retest period of each lot's revision; without a specs folder
+        // nothing is judged expired.
+        None if args.specs.is_dir() => (Some(SpecSet::load(&args.specs)?), None),
         None => (None, None),
     };
     let customer_check = match (&specs, &customer) {
         (Some(specs), Some(cu)) => Some(CustomerCheck {
+            customer: &cu.id,
             specs,
             requirements: cu.product(args.product.code())?,
         }),
@@ -82,7 +92,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     // check need every property.
     let every = args.json || args.csv || customer.is_some();
     let loaded = find::keys_to_load(&keys, &windows, every);
-    let (_, lots) = crate::record::query::current_lots(&path, &loaded, customer.is_some())?;
+    let (_, lots, lives) =
+        crate::record::query::current_lots_with_life(&path, &loaded, customer.is_some())?;
     let filter = LotFilter {
         product: args.product.code(),
         windows: &windows,
@@ -90,16 +101,36 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         from,
         to,
         customer: customer_check,
+        life: Some(LifeCheck {
+            lives: &lives,
+            specs: specs.as_ref(),
+            today: crate::support::clock::now()?.date_naive(),
+            include_expired: args.include_expired,
+        }),
     };
-    let hits = find::matching_lots(&lots, &loaded, &filter);
+    let (hits, expired) = find::matching_lots_counted(&lots, &loaded, &filter);
+    let concessions: HashMap<usize, &str> = lots
+        .iter()
+        .zip(&lives)
+        .filter(|(_, l)| !l.concession.is_empty())
+        .map(|(r, l)| (r.line, l.concession))
+        .collect();
     let text = if args.json {
-        json_text(args.product.code(), &keys, &hits)?
+        json_text(args.product.code(), &keys, &hits, expired, &concessions)?
     } else if args.csv {
         csv_text(args.product.code(), &keys, &hits)?
     } else if hits.is_empty() {
-        "No lots match.\n".to_string()
+        format!("No lots match.\n{}", expired_text(expired))
     } else {
-        table_text(args, &keys, &loaded, &windows, &hits, customer.as_ref())
+        table_text(
+            args,
+            &keys,
+            &loaded,
+            &windows,
+            &hits,
+            customer.as_ref(),
+            &concessions,
+        ) + &expired_text(expired)
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
@@ -109,7 +140,27 @@ fn fmt(v: Option<f64>) -> String {
     v.map(|x| x.to_string()).unwrap_or_default()
 }
 
-fn json_text(product: &str, keys: &[String], hits: &[&LotRow]) -> anyhow::Result<String> {
+/// The line saying how many lots were left out as past their retest date (issue #14).
+fn expired_text(expired: usize) -> String {
+    match expired {
+        0 => String::new(),
+        n => format!(
+            "{n} more lot{} matched but {} past {} retest date and left out (--include-expired lists {}).\n",
+            if n == 1 { "" } else { "s" },
+            if n == 1 { "is" } else { "are" },
+            if n == 1 { "its" } else { "their" },
+            if n == 1 { "it" } else { "them" },
+        ),
+    }
+}
+
+fn json_text(
+    product: &str,
+    keys: &[String],
+    hits: &[&LotRow],
+    expired: usize,
+    concessions: &HashMap<usize, &str>,
+) -> anyhow::Result<String> {
     let lots: Vec<Value> = hits
         .iter()
         .map(|r| {
@@ -118,13 +169,16 @@ fn json_text(product: &str, keys: &[String], hits: &[&LotRow]) -> anyhow::Result
             m.insert("product".into(), json!(product));
             m.insert("manufactured".into(), json!(r.manufactured));
             m.insert("status".into(), json!(r.status));
+            if let Some(c) = concessions.get(&r.line) {
+                m.insert("concession_customer".into(), json!(c));
+            }
             for (k, v) in keys.iter().zip(&r.values) {
                 m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
             }
             Value::Object(m)
         })
         .collect();
-    Ok(serde_json::to_string_pretty(&json!({ "lots": lots }))? + "\n")
+    Ok(serde_json::to_string_pretty(&json!({ "lots": lots, "expired_left_out": expired }))? + "\n")
 }
 
 fn csv_text(product: &str, keys: &[String], hits: &[&LotRow]) -> anyhow::Result<String> {
@@ -152,6 +206,7 @@ fn table_text(
     windows: &[Window],
     hits: &[&LotRow],
     customer: Option<&Customer>,
+    concessions: &HashMap<usize, &str>,
 ) -> String {
     let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
     let mut show: Vec<String> = windows.iter().map(|w| w.key.clone()).collect();
@@ -166,11 +221,11 @@ fn table_text(
         h
     }];
     for r in hits {
-        let mut line = vec![
-            r.lot.to_string(),
-            r.manufactured.to_string(),
-            r.status.to_string(),
-        ];
+        let status = match concessions.get(&r.line) {
+            Some(c) => format!("{} (concession for {c})", r.status),
+            None => r.status.to_string(),
+        };
+        let mut line = vec![r.lot.to_string(), r.manufactured.to_string(), status];
         for k in &show {
             line.push(short_number(&fmt(r.values[at(k)])));
         }

@@ -8,6 +8,7 @@
 //! predecessor's file, SHA-256, row count (`trend_row`) and last chain value (`trend_chain`),
 //! followed by the predecessor's rows carried over unchanged (with empty anchors).
 
+use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
 use crate::error::Result;
@@ -117,6 +118,17 @@ pub fn is_layout_row(t: &Trend, row: &trend_file::Row) -> bool {
     t.cell(row, "number").is_empty()
 }
 
+/// True for an event row (a withdrawal or supersession of a certificate already issued,
+/// issue #14): its `event` cell is set. An empty `event` is an issue.
+pub fn is_event_row(t: &Trend, row: &trend_file::Row) -> bool {
+    !t.cell(row, "event").is_empty()
+}
+
+/// True for a row that issues a certificate (neither a layout row nor an event row).
+pub fn is_issue_row(t: &Trend, row: &trend_file::Row) -> bool {
+    !is_layout_row(t, row) && !is_event_row(t, row)
+}
+
 /// A certificate's anchor in its trend file, as the log records it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Anchor {
@@ -178,6 +190,11 @@ pub struct Entry {
     pub reason: String,
 }
 
+/// The entry an issue row of a parsed log records.
+pub fn entry_of(t: &Trend, row: &trend_file::Row) -> Entry {
+    entry(t, row)
+}
+
 fn entry(t: &Trend, row: &trend_file::Row) -> Entry {
     let c = |n: &str| t.cell(row, n).to_string();
     Entry {
@@ -194,6 +211,193 @@ fn entry(t: &Trend, row: &trend_file::Row) -> Entry {
     }
 }
 
+/// What an event row records about a certificate already issued (issue #14).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum EventKind {
+    /// The lot became rejected or on hold after the certificate was issued.
+    Withdrawn,
+    /// A reissue replaced it.
+    Superseded,
+}
+
+impl EventKind {
+    /// The `event` cell.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            EventKind::Withdrawn => "withdrawn",
+            EventKind::Superseded => "superseded",
+        }
+    }
+
+    /// Reads an `event` cell.
+    pub fn parse(text: &str) -> Option<EventKind> {
+        [EventKind::Withdrawn, EventKind::Superseded]
+            .into_iter()
+            .find(|k| k.as_str() == text)
+    }
+}
+
+/// The trend row that causes a withdrawal: `<product>.csv` row `row` with its chain value,
+/// and the reason recorded on it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Cause {
+    /// Product code (the trend file is `<product>.csv`).
+    pub product: String,
+    /// Row number (`seq`).
+    pub row: usize,
+    /// The row's chain value.
+    pub chain: String,
+    /// Why (the row's reason, or a description of the decision).
+    pub reason: String,
+}
+
+impl Cause {
+    /// The `cause` cell: "`<product>.csv row N`".
+    pub fn cell(&self) -> String {
+        format!("{}.csv row {}", self.product, self.row)
+    }
+}
+
+/// One event row of the log.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Event {
+    /// Withdrawn or superseded.
+    pub kind: EventKind,
+    /// The certificate concerned.
+    pub number: String,
+    /// When (RFC 3339, UTC; the `issued_at` column).
+    pub at: String,
+    /// Lot id.
+    pub lot: String,
+    /// Product code.
+    pub product: String,
+    /// Customer file stem; empty for an internal certificate.
+    pub customer: String,
+    /// Customer's legal name.
+    pub customer_name: String,
+    /// Why.
+    pub reason: String,
+    /// What caused it: the trend row ("PD-2000.csv row 63") or the new certificate's number.
+    pub cause: String,
+    /// The causing trend row's `seq` (empty for a supersession).
+    pub trend_row: String,
+    /// The causing trend row's chain value (empty for a supersession).
+    pub trend_chain: String,
+}
+
+impl Event {
+    /// The withdrawal of certificate `e` because of `cause`, at `at`.
+    pub fn withdrawal(e: &Entry, cause: &Cause, at: &str) -> Event {
+        Event {
+            kind: EventKind::Withdrawn,
+            number: e.number.clone(),
+            at: at.to_string(),
+            lot: e.lot.clone(),
+            product: e.product.clone(),
+            customer: e.customer.clone(),
+            customer_name: e.customer_name.clone(),
+            reason: cause.reason.clone(),
+            cause: cause.cell(),
+            trend_row: cause.row.to_string(),
+            trend_chain: cause.chain.clone(),
+        }
+    }
+}
+
+/// A withdrawn certificate, as the customer-service desk needs it to notify the customer.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Withdrawn {
+    /// Certificate number.
+    pub number: String,
+    /// Customer file stem; empty for an internal certificate.
+    pub customer: String,
+    /// Customer's legal name.
+    pub customer_name: String,
+    /// Purchase order the certificate went with, when the log records one.
+    pub po: String,
+}
+
+/// Where a certificate stands now.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[serde(tag = "standing", rename_all = "snake_case")]
+pub enum Standing {
+    /// Neither superseded nor withdrawn.
+    Current,
+    /// Replaced by a reissue.
+    Superseded {
+        /// The certificate that replaces it.
+        by: String,
+        /// When.
+        at: String,
+        /// The reissue's reason.
+        reason: String,
+    },
+    /// Withdrawn (the lot was rejected or put on hold), or logged as void.
+    Withdrawn {
+        /// When.
+        at: String,
+        /// Why.
+        reason: String,
+        /// The trend row that caused it ("PD-2000.csv row 63"), empty for a void file.
+        cause: String,
+    },
+}
+
+/// The standing of every certificate number in a parsed log, in log order: a reissue row
+/// (its `supersedes` cell) or a `superseded` event supersedes, a `withdrawn` event or a VOID
+/// issue withdraws; the first such row decides (a withdrawn certificate later reissued stays
+/// withdrawn). Pure.
+pub fn standings(t: &Trend) -> HashMap<String, Standing> {
+    let mut out: HashMap<String, Standing> = HashMap::new();
+    for r in t.rows.iter().filter(|r| !is_layout_row(t, r)) {
+        let c = |n: &str| t.cell(r, n).to_string();
+        let number = c("number");
+        if is_event_row(t, r) {
+            let next = match EventKind::parse(&c("event")) {
+                Some(EventKind::Withdrawn) => Standing::Withdrawn {
+                    at: c("issued_at"),
+                    reason: c("reason"),
+                    cause: c("cause"),
+                },
+                Some(EventKind::Superseded) => Standing::Superseded {
+                    by: c("cause"),
+                    at: c("issued_at"),
+                    reason: c("reason"),
+                },
+                None => continue,
+            };
+            if out.get(&number) == Some(&Standing::Current) {
+                out.insert(number, next);
+            }
+            continue;
+        }
+        let reason = c("reason");
+        let own = if reason.starts_with(crate::record::certfiles::VOID_MARK) {
+            Standing::Withdrawn {
+                at: c("issued_at"),
+                reason,
+                cause: String::new(),
+            }
+        } else {
+            Standing::Current
+        };
+        let old = c("supersedes");
+        if !old.is_empty() && out.get(&old) == Some(&Standing::Current) {
+            out.insert(
+                old,
+                Standing::Superseded {
+                    by: number.clone(),
+                    at: c("issued_at"),
+                    reason: c("reason"),
+                },
+            );
+        }
+        out.entry(number).or_insert(own);
+    }
+    out
+}
+
 /// Every entry of the log (none when it does not exist yet); the chain is verified.
 pub fn entries(register: &Path) -> Result<Vec<Entry>> {
     let p = path(register);
@@ -207,9 +411,52 @@ pub fn entries(register: &Path) -> Result<Vec<Entry>> {
     }
     Ok(t.rows
         .iter()
-        .filter(|r| !is_layout_row(&t, r))
+        .filter(|r| is_issue_row(&t, r))
         .map(|r| entry(&t, r))
         .collect())
+}
+
+/// The log read and chain-checked (damage is an error), `None` when there is none yet.
+pub fn read(register: &Path) -> Result<Option<Trend>> {
+    let p = path(register);
+    if !p.exists() {
+        return Ok(None);
+    }
+    let text = crate::spec::read_text(&p)?;
+    let (t, damage) = trend_file::parse_chained(&p, &text, true, &header_ok);
+    if let Some(d) = damage {
+        return Err(trend_file::damage_error(&p, &d));
+    }
+    Ok(Some(t))
+}
+
+/// Refuses (exit 2, naming `resinlot upgrade`) to go on when any of `lots` has a current
+/// certificate that would have to be withdrawn but the log, in an earlier layout, has no
+/// `event` column to record it: called before anything is written, so no decision lands
+/// without its withdrawals.
+pub fn check_withdrawable(register: &Path, lots: &[&str]) -> Result<()> {
+    if lots.is_empty() {
+        return Ok(());
+    }
+    let Some(t) = read(register)? else {
+        return Ok(());
+    };
+    if t.col("event").is_some() {
+        return Ok(());
+    }
+    let standing = standings(&t);
+    let certified = t.rows.iter().any(|r| {
+        is_issue_row(&t, r)
+            && !t.cell(r, "customer").is_empty()
+            && lots
+                .iter()
+                .any(|l| t.cell(r, "lot").eq_ignore_ascii_case(l))
+            && standing.get(t.cell(r, "number")) == Some(&Standing::Current)
+    });
+    if certified {
+        return Err(trend_file::needs_upgrade(&t.path, "event"));
+    }
+    Ok(())
 }
 
 /// Checks the log's structure and chain; returns the damage if any.
@@ -240,14 +487,141 @@ impl Log {
         })
     }
 
-    /// Entries as read under the lock.
+    /// Entries as read under the lock (issues only, not events).
     pub fn entries(&self) -> Vec<Entry> {
         let t = &self.locked.trend;
         t.rows
             .iter()
-            .filter(|r| !is_layout_row(t, r))
+            .filter(|r| is_issue_row(t, r))
             .map(|r| entry(t, r))
             .collect()
+    }
+
+    /// The log as read under the lock (with what was appended since).
+    pub fn trend(&self) -> &Trend {
+        &self.locked.trend
+    }
+
+    /// The standing of every certificate, as the log says under the lock ([`standings`]).
+    pub fn standings(&self) -> HashMap<String, Standing> {
+        standings(&self.locked.trend)
+    }
+
+    /// The lot's certificates that are current (neither superseded nor withdrawn), oldest
+    /// first, leaving out the numbers in `except` (certificates of the run that withdraws).
+    pub fn current_of_lot(&self, lot: &str, except: &[String]) -> Vec<Entry> {
+        let standing = self.standings();
+        self.entries()
+            .into_iter()
+            .filter(|e| e.lot == lot && !except.contains(&e.number))
+            .filter(|e| matches!(standing.get(&e.number), Some(Standing::Current)))
+            .collect()
+    }
+
+    /// Appends event rows (withdrawals, supersessions) and syncs once. A log in an earlier
+    /// layout has no `event` column: refused, writing nothing, naming `resinlot upgrade`.
+    pub fn append_events(&mut self, events: &[Event]) -> Result<()> {
+        if events.is_empty() {
+            return Ok(());
+        }
+        if self.locked.trend.col("event").is_none() {
+            return Err(trend_file::needs_upgrade(&self.locked.trend.path, "event"));
+        }
+        for e in events {
+            self.locked.append(&[
+                ("issued_at", e.at.clone()),
+                ("number", e.number.clone()),
+                ("lot", e.lot.clone()),
+                ("product", e.product.clone()),
+                ("customer", e.customer.clone()),
+                ("customer_name", e.customer_name.clone()),
+                ("reason", e.reason.clone()),
+                ("trend_row", e.trend_row.clone()),
+                ("trend_chain", e.trend_chain.clone()),
+                ("event", e.kind.as_str().to_string()),
+                ("cause", e.cause.clone()),
+            ])?;
+        }
+        self.locked.sync()
+    }
+
+    /// Withdraws every current customer certificate of `lot` but those in `except`, because
+    /// of trend row `cause` (the row that made the lot rejected or on hold): one `withdrawn`
+    /// row each, synced. Returns the certificates withdrawn (their customers must be told).
+    /// Internal certificates are QC records of the row they were issued for and stay as they
+    /// are (a retest's new internal certificate supersedes the old one).
+    pub fn withdraw_lot(
+        &mut self,
+        lot: &str,
+        cause: &Cause,
+        except: &[String],
+        at: &str,
+    ) -> Result<Vec<Entry>> {
+        let mut gone = self.current_of_lot(lot, except);
+        gone.retain(|e| !e.customer.is_empty());
+        let events: Vec<Event> = gone
+            .iter()
+            .map(|e| Event::withdrawal(e, cause, at))
+            .collect();
+        self.append_events(&events)?;
+        Ok(gone)
+    }
+
+    /// What the customer-service desk needs about withdrawn certificate `e`: number,
+    /// customer and the purchase order it went with (the log's `po` cell, when it has one).
+    pub fn notice(&self, e: &Entry) -> Withdrawn {
+        let t = &self.locked.trend;
+        let po = t
+            .rows
+            .iter()
+            .find(|r| is_issue_row(t, r) && t.cell(r, "number") == e.number)
+            .map(|r| t.cell(r, "po").to_string())
+            .unwrap_or_default();
+        Withdrawn {
+            number: e.number.clone(),
+            customer: e.customer.clone(),
+            customer_name: e.customer_name.clone(),
+            po,
+        }
+    }
+
+    /// Marks `old` superseded by certificate `new_number` (a reissue), when it is still
+    /// current; nothing when it was already superseded or withdrawn.
+    pub fn supersede(&mut self, old: &str, new_number: &str, reason: &str, at: &str) -> Result<()> {
+        let t = &self.locked.trend;
+        let has_event = t
+            .rows
+            .iter()
+            .any(|r| is_event_row(t, r) && t.cell(r, "number") == old);
+        // The reissue row itself already names `old`: that supersession is the one recorded.
+        let due = match self.standings().get(old) {
+            Some(Standing::Current) => true,
+            Some(Standing::Superseded { by, .. }) => by == new_number && !has_event,
+            _ => false,
+        };
+        if !due {
+            return Ok(());
+        }
+        let Some(e) = self.entries().into_iter().find(|e| e.number == old) else {
+            return Ok(());
+        };
+        if self.locked.trend.col("event").is_none() {
+            // An earlier layout keeps the supersession in the new row's `supersedes` cell.
+            return Ok(());
+        }
+        self.append_events(&[Event {
+            kind: EventKind::Superseded,
+            number: e.number,
+            at: at.to_string(),
+            lot: e.lot,
+            product: e.product,
+            customer: e.customer,
+            customer_name: e.customer_name,
+            reason: reason.to_string(),
+            cause: new_number.to_string(),
+            trend_row: String::new(),
+            trend_chain: String::new(),
+        }])
     }
 
     /// The next certificate number: `prefix` followed by the six-digit sequence.
@@ -260,10 +634,10 @@ impl Log {
         format!("{prefix}{:06}", self.certificate_rows() + 1 + k)
     }
 
-    /// Rows of the log that are certificates (not layout rows).
+    /// Rows of the log that are certificates (not layout rows, not event rows).
     fn certificate_rows(&self) -> usize {
         let t = &self.locked.trend;
-        t.rows.iter().filter(|r| !is_layout_row(t, r)).count()
+        t.rows.iter().filter(|r| is_issue_row(t, r)).count()
     }
 
     /// Appends an entry and syncs it to disk; the lot's latest row in its trend file is

@@ -5,7 +5,7 @@ use chrono::NaiveDate;
 
 use crate::error::{Error, Result};
 use crate::lot::evaluate::Status;
-use crate::record::query::{LotRow, Window};
+use crate::record::query::{Life, LotRow, Window};
 use crate::spec::customer::{customer_fit, CustomerProduct};
 use crate::spec::decision::decimal_from_f64;
 use crate::spec::keys;
@@ -17,6 +17,8 @@ pub const HEADLINE_KEYS: [&str; 3] = [keys::MN, keys::ACID_VALUE, keys::HYDROXYL
 /// A customer's requirements for the product searched, with the specs they tighten.
 #[derive(Debug, Clone, Copy)]
 pub struct CustomerCheck<'a> {
+    /// The customer's file stem (a lot released under concession goes to that customer only).
+    pub customer: &'a str,
     /// Every spec revision (a lot is judged under the revision it was released under).
     pub specs: &'a SpecSet,
     /// The customer's requirements for the product.
@@ -38,6 +40,43 @@ pub struct LotFilter<'a> {
     pub to: Option<NaiveDate>,
     /// Only lots that can be certified for this customer.
     pub customer: Option<CustomerCheck<'a>>,
+    /// Each lot's life (parallel to the lots), for shelf life and concessions (issue #14).
+    pub life: Option<LifeCheck<'a>>,
+}
+
+/// Shelf life and concessions in a search (issue #14).
+#[derive(Debug, Clone, Copy)]
+pub struct LifeCheck<'a> {
+    /// Each lot's [`Life`], parallel to the lots searched.
+    pub lives: &'a [Life],
+    /// The specs (the retest period of the lot's revision); without them nothing expires.
+    pub specs: Option<&'a SpecSet>,
+    /// Today, against which the retest date is judged.
+    pub today: NaiveDate,
+    /// Keep lots past their retest date (they are counted, not listed, otherwise).
+    pub include_expired: bool,
+}
+
+/// True when the lot of `row` (with `life`) is past its retest date on `today` under its
+/// spec revision's `retest_months` ([`crate::lot::disposition::retest_date`]); a lot whose
+/// revision is not in `specs` is not judged.
+pub fn is_expired(
+    product: &str,
+    row: &LotRow,
+    life: &Life,
+    specs: &SpecSet,
+    today: NaiveDate,
+) -> bool {
+    let Some(spec) = specs.revision(product, row.revision) else {
+        return false;
+    };
+    let date = |d: &str| NaiveDate::parse_from_str(d, "%Y-%m-%d").ok();
+    let Some(made) = date(&row.manufactured) else {
+        return false;
+    };
+    let retested = life.retested.and_then(|d| date(&d));
+    crate::lot::disposition::retest_date(made, spec.retest_months, retested)
+        .is_some_and(|until| crate::lot::disposition::expired(until, today))
 }
 
 /// The status asked for, or by default: any status, but only released lots for a customer
@@ -79,6 +118,23 @@ pub fn matching_lots<'r>(
     loaded: &[String],
     filter: &LotFilter,
 ) -> Vec<&'r LotRow> {
+    matching_lots_counted(lots, loaded, filter).0
+}
+
+/// [`matching_lots`], and how many lots that met every other condition were left out as past
+/// their retest date (issue #14).
+pub fn matching_lots_counted<'r>(
+    lots: &'r [LotRow],
+    loaded: &[String],
+    filter: &LotFilter,
+) -> (Vec<&'r LotRow>, usize) {
+    let life_of = |i: usize| -> Life {
+        filter
+            .life
+            .and_then(|l| l.lives.get(i).copied())
+            .unwrap_or_default()
+    };
+    let mut expired = 0usize;
     // Dates are YYYY-MM-DD, so text order is date order: no parsing per row.
     let from = filter.from.map(|d| d.to_string());
     let to = filter.to.map(|d| d.to_string());
@@ -86,30 +142,51 @@ pub fn matching_lots<'r>(
     let win_idx: Vec<usize> = filter.windows.iter().map(|w| at(&w.key)).collect();
     let mut hits: Vec<&LotRow> = lots
         .iter()
-        .filter(|row| filter.status.is_none_or(|s| s.as_str() == row.status))
-        .filter(|row| {
+        .enumerate()
+        .filter(|(_, row)| filter.status.is_none_or(|s| s.as_str() == row.status))
+        .filter(|(_, row)| {
             let made: &str = &row.manufactured;
             from.as_deref().is_none_or(|f| made >= f) && to.as_deref().is_none_or(|t| made <= t)
         })
-        .filter(|row| {
+        .filter(|(_, row)| {
             filter
                 .windows
                 .iter()
                 .zip(&win_idx)
                 .all(|(w, &i)| row.values[i].is_some_and(|v| w.contains(v)))
         })
-        .filter(|row| {
-            filter
-                .customer
-                .is_none_or(|c| fits_customer(filter.product, row, loaded, c))
+        .filter(|&(i, row)| {
+            filter.customer.is_none_or(|c| {
+                let life = life_of(i);
+                if life.concession.is_empty() {
+                    fits_customer(filter.product, row, loaded, c)
+                } else {
+                    // Under concession: for its customer, as conceded; for no one else.
+                    life.concession == c.customer
+                }
+            })
         })
+        .filter(|&(i, row)| {
+            let Some(l) = filter.life else {
+                return true;
+            };
+            let gone = l
+                .specs
+                .is_some_and(|s| is_expired(filter.product, row, &life_of(i), s, l.today));
+            if gone && !l.include_expired {
+                expired += 1;
+                return false;
+            }
+            true
+        })
+        .map(|(_, row)| row)
         .collect();
     hits.sort_by(|a, b| {
         b.manufactured
             .cmp(&a.manufactured)
             .then(b.line.cmp(&a.line))
     });
-    hits
+    (hits, expired)
 }
 
 /// True when every property of the lot's spec revision fits the customer's requirements

@@ -35,6 +35,10 @@ pub struct FileCheck {
     /// True when the trend file only grew past its latest head (a release interrupted between
     /// appending its rows and recording their head): quarantine records the head.
     pub heads_behind: bool,
+    /// True when certificates are still current although a later trend row rejected or held
+    /// their lot (a withdrawal interrupted after its trend row, issue #14): quarantine
+    /// records the withdrawals.
+    pub withdrawals_owed: bool,
 }
 
 impl FileCheck {
@@ -51,13 +55,14 @@ impl FileCheck {
             newline_missing: d.as_ref().is_some_and(|d| d.newline_missing),
             note: None,
             heads_behind: false,
+            withdrawals_owed: false,
         }
     }
 
     /// True when `verify --quarantine` can repair the problem (a torn tail or a missing final
     /// line feed).
     pub fn repairable(&self) -> bool {
-        self.torn_tail || self.newline_missing || self.heads_behind
+        self.torn_tail || self.newline_missing || self.heads_behind || self.withdrawals_owed
     }
 
     /// True when nothing is wrong.
@@ -268,6 +273,26 @@ fn check_anchors(register: &Path, chains: &Chains, out: &mut Vec<FileCheck>) -> 
         };
         flag(&mut out[*i], a.row + 1, Some(a.lot.clone()), p);
     }
+    if out[log_i].ok() {
+        let owed = crate::record::lifecycle::owed_withdrawals(register, &log)?;
+        if let Some(o) = owed.first() {
+            let p = format!(
+                "certificate {} of lot {} is still current although {} came after it ({}){}: its withdrawal was never logged (an interrupted command)",
+                o.entry.number,
+                o.entry.lot,
+                o.cause.cell(),
+                o.cause.reason,
+                if owed.len() > 1 {
+                    format!(" ({} certificates in all)", owed.len())
+                } else {
+                    String::new()
+                }
+            );
+            let c = &mut out[log_i];
+            flag(c, o.line, Some(o.entry.lot.clone()), p);
+            c.withdrawals_owed = true;
+        }
+    }
     if let Some((pred, problem)) = crate::record::upgrade::check_predecessor(&log_path, &log)? {
         if let Some((line, p)) = problem {
             flag(&mut out[log_i], line, None, p);
@@ -391,6 +416,19 @@ pub fn quarantine(path: &Path, offset: u64, now: &str) -> Result<Repair> {
     Ok(repair)
 }
 
+/// Appends `text` (lines ending in a line feed) to the register's `quarantine.log`, synced.
+pub fn append_quarantine_log(register: &Path, text: &str) -> Result<()> {
+    let log = register.join("quarantine.log");
+    let mut f = std::fs::OpenOptions::new()
+        .create(true)
+        .append(true)
+        .open(&log)
+        .map_err(|e| Error::io(&log, "opening", e))?;
+    f.write_all(text.as_bytes())
+        .and_then(|()| f.sync_all())
+        .map_err(|e| Error::io(&log, "writing", e))
+}
+
 /// Records the head of the trend file `path` in the register's heads file when the file only
 /// grew past its latest head (or has rows and no head yet): a release interrupted after
 /// appending its rows and before recording their head (issue #13, item 4). Holds the trend
@@ -424,14 +462,39 @@ pub fn record_head(path: &Path, now: &str) -> Result<Repair> {
     Ok(Repair::HeadRecorded { rows: t.rows.len() })
 }
 
-/// What the issue log says about a certificate PDF.
+/// What the issue log says about a certificate PDF (issue #14): exactly one of five
+/// verdicts, whose snake_case names are the JSON key `verdict`. Only `genuine` means "a
+/// current certificate, exactly as issued".
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
 #[serde(tag = "verdict", rename_all = "snake_case")]
 pub enum CertVerdict {
-    /// The bytes are exactly those issued.
+    /// The bytes are exactly those issued, and the certificate is current.
     Genuine {
         /// The log entry.
         entry: crate::record::certlog::Entry,
+    },
+    /// The bytes are those issued, but a reissue replaced the certificate.
+    Superseded {
+        /// The log entry.
+        entry: crate::record::certlog::Entry,
+        /// The certificate that replaces it.
+        superseded_by: String,
+        /// When it was replaced.
+        superseded_at: String,
+        /// The reissue's reason.
+        reason: String,
+    },
+    /// The bytes are those issued, but the certificate was withdrawn (the lot was rejected
+    /// or put on hold afterwards) or logged as void.
+    Withdrawn {
+        /// The log entry.
+        entry: crate::record::certlog::Entry,
+        /// When it was withdrawn.
+        withdrawn_at: String,
+        /// Why.
+        reason: String,
+        /// The trend row that caused it ("PD-2000.csv row 63"); empty for a void file.
+        cause: String,
     },
     /// A certificate of this file name was issued, but these bytes differ.
     Altered {
@@ -447,12 +510,69 @@ pub enum CertVerdict {
     },
 }
 
-/// Identifies a certificate PDF against the issue log.
+impl CertVerdict {
+    /// The verdict's name: genuine, superseded, withdrawn, altered or unknown.
+    pub fn name(&self) -> &'static str {
+        match self {
+            CertVerdict::Genuine { .. } => "genuine",
+            CertVerdict::Superseded { .. } => "superseded",
+            CertVerdict::Withdrawn { .. } => "withdrawn",
+            CertVerdict::Altered { .. } => "altered",
+            CertVerdict::Unknown { .. } => "unknown",
+        }
+    }
+
+    /// True only for a current certificate exactly as issued.
+    pub fn is_genuine(&self) -> bool {
+        matches!(self, CertVerdict::Genuine { .. })
+    }
+}
+
+/// The verdict on a file whose SHA-256 `sha` matches issued certificate `entry`, given the
+/// certificate's `standing` in the log. Pure.
+pub fn verdict_for(
+    entry: &crate::record::certlog::Entry,
+    standing: Option<&crate::record::certlog::Standing>,
+) -> CertVerdict {
+    use crate::record::certlog::Standing;
+    let entry = entry.clone();
+    match standing {
+        Some(Standing::Superseded { by, at, reason }) => CertVerdict::Superseded {
+            entry,
+            superseded_by: by.clone(),
+            superseded_at: at.clone(),
+            reason: reason.clone(),
+        },
+        Some(Standing::Withdrawn { at, reason, cause }) => CertVerdict::Withdrawn {
+            entry,
+            withdrawn_at: at.clone(),
+            reason: reason.clone(),
+            cause: cause.clone(),
+        },
+        _ => CertVerdict::Genuine { entry },
+    }
+}
+
+/// Identifies a certificate PDF against the issue log: its bytes against every issued
+/// certificate's SHA-256, then its standing (superseded, withdrawn) in the log.
 pub fn verify_certificate(pdf: &Path, register_dir: &Path) -> Result<CertVerdict> {
     let sha = file_sha256(pdf)?;
-    let entries = crate::record::certlog::entries(register_dir)?;
+    let log = crate::record::certlog::read(register_dir)?;
+    let entries: Vec<crate::record::certlog::Entry> = match &log {
+        Some(t) => t
+            .rows
+            .iter()
+            .filter(|r| crate::record::certlog::is_issue_row(t, r))
+            .map(|r| crate::record::certlog::entry_of(t, r))
+            .collect(),
+        None => Vec::new(),
+    };
+    let standings = log
+        .as_ref()
+        .map(crate::record::certlog::standings)
+        .unwrap_or_default();
     if let Some(e) = entries.iter().find(|e| e.sha256 == sha) {
-        return Ok(CertVerdict::Genuine { entry: e.clone() });
+        return Ok(verdict_for(e, standings.get(&e.number)));
     }
     let name = pdf
         .file_name()

@@ -10,6 +10,7 @@ pub mod heads;
 pub mod index;
 pub mod integrity;
 pub mod layout;
+pub mod lifecycle;
 pub mod lines;
 pub mod query;
 pub mod scan;

@@ -94,11 +94,34 @@ fn lot_rows_chunked(path: &Path, lot: &str, chunk: usize) -> Result<Option<Trend
     }))
 }
 
-/// Finds `lot` in any product's trend file.
+/// Finds `lot` in any product's trend file, written in any case: lot ids are unique without
+/// regard to case (issue #14), so an id typed in another case finds the recorded lot (the
+/// rows carry the id as recorded). The exact id is searched first, at memory speed; only a
+/// miss streams the lot column of every file.
 pub fn find_lot(register: &Path, lot: &str) -> Result<Option<Trend>> {
     for path in trend_files(register)? {
         if let Some(t) = lot_rows_in(&path, lot)? {
             return Ok(Some(t));
+        }
+    }
+    if let Some((path, id)) = recorded_id(register, lot)? {
+        return lot_rows_in(&path, &id);
+    }
+    Ok(None)
+}
+
+/// The trend file and recorded id of the lot whose id equals `lot` without regard to ASCII
+/// case, if any.
+pub fn recorded_id(register: &Path, lot: &str) -> Result<Option<(PathBuf, String)>> {
+    for path in trend_files(register)? {
+        let mut found: Option<String> = None;
+        trend_file::scan(&path, &["lot"], |_, cells| {
+            if found.is_none() && cells[0].eq_ignore_ascii_case(lot) {
+                found = Some(cells[0].to_string());
+            }
+        })?;
+        if let Some(id) = found {
+            return Ok(Some((path, id)));
         }
     }
     Ok(None)
@@ -411,23 +434,52 @@ pub fn current_lots(
     keys: &[String],
     with_mn_uncertainty: bool,
 ) -> Result<(Vec<String>, Vec<LotRow>)> {
-    current_lots_in(path, keys, with_mn_uncertainty, None)
+    let (file_keys, rows, _) = current_lots_in(path, keys, with_mn_uncertainty, false, None)?;
+    Ok((file_keys, rows))
 }
 
-/// [`current_lots`] with the number of scan parts fixed (None: one per core for a large file).
+/// What `find` needs to know of a lot's life besides its latest row (issue #14): the test
+/// date of its latest retest (which may extend its retest date) and the customer its latest
+/// row releases it to under concession (`""` for none).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Life {
+    /// Test date of the lot's latest retest row (`tested_to`, else the day it was recorded).
+    pub retested: Option<Day>,
+    /// Customer (file stem) of a concession on the lot's latest row; empty for none.
+    pub concession: &'static str,
+}
+
+/// [`current_lots`] with each kept lot's [`Life`] (parallel to the lots).
+pub fn current_lots_with_life(
+    path: &Path,
+    keys: &[String],
+    with_mn_uncertainty: bool,
+) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
+    current_lots_in(path, keys, with_mn_uncertainty, true, None)
+}
+
+/// [`current_lots`], with the lots' lives when `with_life`, and the number of scan parts fixed
+/// when `parts` is given (None: one per core for a large file).
 fn current_lots_in(
     path: &Path,
     keys: &[String],
     with_mn_uncertainty: bool,
+    with_life: bool,
     parts: Option<usize>,
-) -> Result<(Vec<String>, Vec<LotRow>)> {
+) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
     let header = read_header(path)?;
     let file_keys = trend_file::property_keys(&header);
     let layout = RowLayout::new(path, &header, keys)?;
     let parts = scan::parallel_body_in(
         path,
         parts,
-        |_| PartRows::new(keys.len(), with_mn_uncertainty),
+        |_| {
+            PartRows::new(
+                keys.len(),
+                with_mn_uncertainty,
+                with_life.then(|| LifeReader::new(&header)),
+            )
+        },
         |part, n, _, line| {
             if line.is_empty() {
                 return Ok(());
@@ -435,7 +487,8 @@ fn current_lots_in(
             part.read(&layout, n, line)
         },
     )?;
-    Ok((file_keys, latest_rows(parts, keys.len())))
+    let (rows, lives) = latest_rows(parts, keys.len());
+    Ok((file_keys, rows, lives))
 }
 
 /// Column positions a query reads: lot, manufactured, status, spec_revision, mn_uncertainty,
@@ -491,11 +544,16 @@ struct PartRows {
     labels: Vec<Vec<u8>>,
     mn_uncertainty: Vec<Option<f64>>,
     values: Vec<Option<f64>>,
+    /// The lives of the rows, when asked for.
+    life: Option<LifeReader>,
+    lives: Vec<Life>,
 }
 
 impl PartRows {
-    fn new(keys: usize, with_mn_uncertainty: bool) -> PartRows {
+    fn new(keys: usize, with_mn_uncertainty: bool, life: Option<LifeReader>) -> PartRows {
         PartRows {
+            life,
+            lives: Vec::new(),
             keys,
             with_mn_uncertainty,
             spans: Vec::new(),
@@ -572,6 +630,9 @@ impl PartRows {
         for i in 0..self.keys {
             self.values.push(number(field(5 + i)));
         }
+        if let Some(l) = &mut self.life {
+            self.lives.push(l.read(line));
+        }
         self.spans = spans;
         Ok(())
     }
@@ -590,7 +651,10 @@ fn number(s: &[u8]) -> Option<f64> {
 /// The latest row of every lot over the scanned parts, in file order: the (hash, row) pairs
 /// are sorted, and within a run of equal hashes, for every distinct lot id, only the highest
 /// row is kept (a retest supersedes what came before).
-fn latest_rows(parts: Vec<scan::Part<PartRows>>, keys: usize) -> Vec<LotRow> {
+///
+/// With lives (the parts read them), each kept lot's life gets the latest retest date of any
+/// of the lot's rows, and the lives come back parallel to the rows (empty otherwise).
+fn latest_rows(mut parts: Vec<scan::Part<PartRows>>, keys: usize) -> (Vec<LotRow>, Vec<Life>) {
     // Row r of the whole file is row r - first[k] of part k.
     let mut first = Vec::with_capacity(parts.len());
     let mut line_base = Vec::with_capacity(parts.len());
@@ -620,9 +684,15 @@ fn latest_rows(parts: Vec<scan::Part<PartRows>>, keys: usize) -> Vec<LotRow> {
         pairs.par_sort_unstable();
     }
     let mut keep = vec![true; rows];
+    let with_life = parts.iter().any(|p| p.state.life.is_some());
+    let mut retested: Vec<(u32, Option<Day>)> = Vec::new();
     let id = |r: u32| {
         let (k, i) = locate(r as usize);
         parts[k].state.id(i)
+    };
+    let life = |r: u32| {
+        let (k, i) = locate(r as usize);
+        parts[k].state.lives[i]
     };
     let mut i = 0;
     while i < pairs.len() {
@@ -634,13 +704,25 @@ fn latest_rows(parts: Vec<scan::Part<PartRows>>, keys: usize) -> Vec<LotRow> {
             let ra = pairs[a].1;
             if pairs[a + 1..j].iter().any(|&(_, rb)| id(rb) == id(ra)) {
                 keep[ra as usize] = false;
+            } else if with_life && j - i > 1 {
+                let latest = pairs[i..j]
+                    .iter()
+                    .filter(|&&(_, rb)| id(rb) == id(ra))
+                    .filter_map(|&(_, rb)| life(rb).retested)
+                    .max();
+                retested.push((ra, latest));
             }
         }
         i = j;
     }
     drop(pairs);
+    for (r, latest) in retested {
+        let (k, i) = locate(r as usize);
+        parts[k].state.lives[i].retested = latest;
+    }
     let kept = keep.iter().filter(|&&k| k).count();
     let mut out = Vec::with_capacity(kept);
+    let mut lives = Vec::with_capacity(if with_life { kept } else { 0 });
     let mut labels: Vec<&'static str> = Vec::new();
     for (k, p) in parts.into_iter().enumerate() {
         let p = p.state;
@@ -659,9 +741,69 @@ fn latest_rows(parts: Vec<scan::Part<PartRows>>, keys: usize) -> Vec<LotRow> {
                 mn_uncertainty: p.mn_uncertainty.get(i).copied().flatten(),
                 values: p.values[i * keys..(i + 1) * keys].to_vec(),
             });
+            if let Some(l) = p.lives.get(i) {
+                lives.push(*l);
+            }
         }
     }
-    out
+    (out, lives)
+}
+
+/// Reads the [`Life`] cells of a row: `supersedes`, `disposition`, `concession_customer`,
+/// `recorded_at` and `tested_to` (the layout-v3 ones may be absent in an earlier file).
+struct LifeReader {
+    cols: [Option<usize>; 5],
+    upto: usize,
+    spans: Vec<(usize, usize)>,
+    customers: Vec<&'static str>,
+}
+
+impl LifeReader {
+    fn new(header: &[String]) -> LifeReader {
+        let col = |name: &str| header.iter().position(|c| c == name);
+        let cols = [
+            col("supersedes"),
+            col("disposition"),
+            col("concession_customer"),
+            col("recorded_at"),
+            col("tested_to"),
+        ];
+        LifeReader {
+            upto: cols.iter().flatten().copied().max().unwrap_or(0),
+            cols,
+            spans: Vec::new(),
+            customers: Vec::new(),
+        }
+    }
+
+    fn read(&mut self, line: &[u8]) -> Life {
+        split_spans(line, self.upto, &mut self.spans);
+        let cell = |i: usize| -> &[u8] {
+            match self.cols[i].and_then(|c| self.spans.get(c)) {
+                Some(&(a, b)) => &line[a..b.min(line.len())],
+                None => b"",
+            }
+        };
+        let retest = !cell(0).is_empty() && cell(1).is_empty();
+        let retested = retest.then(|| {
+            let tested = cell(4);
+            if tested.len() >= 10 {
+                Day::from_bytes(&tested[..10])
+            } else {
+                Day::from_bytes(&cell(3)[..cell(3).len().min(10)])
+            }
+        });
+        let concession = if cell(1) == b"concession" {
+            let c = cell(2);
+            intern(&mut self.customers, c)
+        } else {
+            ""
+        };
+        Life {
+            retested,
+            concession,
+        }
+    }
 }
 
 /// The checked header columns of a trend file (its first line only).
@@ -757,10 +899,12 @@ mod tests {
             })
             .collect();
         trend_file::write_for_test(&p, &keys, &rows);
-        let (_, one) = current_lots_in(&p, &keys, true, Some(1)).unwrap();
+        let (_, one, lives) = current_lots_in(&p, &keys, true, true, Some(1)).unwrap();
+        assert_eq!(lives.len(), one.len());
         for parts in [2, 3, 5, 8] {
-            let (_, got) = current_lots_in(&p, &keys, true, Some(parts)).unwrap();
+            let (_, got, got_lives) = current_lots_in(&p, &keys, true, true, Some(parts)).unwrap();
             assert_eq!(got, one, "parts {parts}");
+            assert_eq!(got_lives, lives, "parts {parts}");
         }
         let got: Vec<(&str, usize, Option<f64>)> =
             one.iter().map(|r| (&*r.lot, r.line, r.values[0])).collect();
@@ -781,7 +925,7 @@ mod tests {
     /// Issue #20: ids whose hashes collide are still told apart (every hash forced equal).
     #[test]
     fn colliding_hashes_are_told_apart_by_the_ids_issue_20() {
-        let mut part = PartRows::new(1, false);
+        let mut part = PartRows::new(1, false, None);
         for (i, id) in ["X1", "Y2", "X1", "Z3"].iter().enumerate() {
             part.hash.push(7);
             part.ids.extend_from_slice(id.as_bytes());
@@ -793,7 +937,7 @@ mod tests {
             part.values.push(Some(i as f64));
         }
         part.labels.push(b"released".to_vec());
-        let rows = latest_rows(
+        let (rows, _) = latest_rows(
             vec![scan::Part {
                 state: part,
                 lines: 4,

@@ -14,6 +14,7 @@ mod demo_safety;
 mod endgroup;
 mod flags;
 mod intake_scale;
+mod lifecycle;
 mod lookup;
 mod old_registers;
 mod parsers_never_panic;
