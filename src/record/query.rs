@@ -469,7 +469,7 @@ fn current_lots_in(
 ) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
     let header = read_header(path)?;
     let file_keys = trend_file::property_keys(&header);
-    let layout = RowLayout::new(path, &header, keys)?;
+    let layout = RowLayout::new(path, &header, keys, with_mn_uncertainty)?;
     let parts = scan::parallel_body_in(
         path,
         parts,
@@ -501,7 +501,14 @@ struct RowLayout {
 
 impl RowLayout {
     /// The layout for a file with these (checked) `header` columns; refuses a key it lacks.
-    fn new(path: &Path, header: &[String], keys: &[String]) -> Result<RowLayout> {
+    /// A line is split only up to the last column needed (`mn_uncertainty`, near the end of
+    /// the row, only when asked for).
+    fn new(
+        path: &Path,
+        header: &[String],
+        keys: &[String],
+        with_mn_uncertainty: bool,
+    ) -> Result<RowLayout> {
         let col = |name: &str| header.iter().position(|c| c == name);
         let fixed = [
             "lot",
@@ -523,7 +530,13 @@ impl RowLayout {
                 )
             })?);
         }
-        let upto = *want.iter().max().expect("non-empty");
+        let upto = want
+            .iter()
+            .enumerate()
+            .filter(|&(i, _)| i != 4 || with_mn_uncertainty)
+            .map(|(_, &c)| c)
+            .max()
+            .expect("non-empty");
         Ok(RowLayout { want, upto })
     }
 }
