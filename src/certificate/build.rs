@@ -14,7 +14,10 @@ use crate::error::{Error, Result};
 use crate::lot::evaluate::{LotDecision, Status};
 use crate::lot::note::LotNote;
 use crate::record::trend_file::{Row, Trend};
-use crate::spec::customer::{combined, customer_fit, Customer, CustomerProduct, Fit};
+use crate::spec::customer::{
+    combined, customer_fit, recorded_uncertainty, Customer, CustomerProduct, Fit,
+    InspectionDocument,
+};
 use crate::spec::decision::{decimal_from_f64, round, DecisionRule, Verdict};
 use crate::spec::keys::{MN, XN};
 use crate::spec::units::unit_factor;
@@ -51,6 +54,8 @@ pub struct LotRecord {
     /// Test date of the lot's latest retest, which may extend its retest date (issue #14);
     /// set by the caller that reads every row of the lot.
     pub latest_retest: Option<NaiveDate>,
+    /// First and last day of testing, when the record holds them.
+    pub tested: (Option<NaiveDate>, Option<NaiveDate>),
 }
 
 /// A concession (deviation permit) granted by one customer for one lot (ISO 9001:2015 §8.7).
@@ -97,6 +102,9 @@ impl LotRecord {
                 customer: c("concession_customer"),
             }),
             latest_retest: None,
+            // Empty in rows recorded before layout v3 (and in files without the columns):
+            // the certificate then says "not recorded".
+            tested: (date(&c("tested_from")), date(&c("tested_to"))),
         })
     }
 
@@ -136,12 +144,19 @@ impl LotRecord {
             notes: d.notes.clone(),
             concession: None,
             latest_retest: None,
+            tested: (None, None),
         }
     }
 
     fn value(&self, key: &str) -> Option<Decimal> {
         crate::spec::decision::recorded_decimal(self.values.get(key)?)
     }
+}
+
+/// A recorded date cell (`YYYY-MM-DD`, or the date part of an RFC 3339 time); None when
+/// empty or unreadable.
+fn date(cell: &str) -> Option<NaiveDate> {
+    NaiveDate::parse_from_str(cell.get(..10)?, "%Y-%m-%d").ok()
 }
 
 /// A shipment to a customer.
@@ -204,7 +219,7 @@ pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> R
 
 /// What a lot released under concession deviates in (issue #14): every property whose
 /// recorded verdict against the product spec is not a pass, then every property outside the
-/// customer's window ([`customer_shortfalls`]); one plain phrase each.
+/// customer's window (as [`check_customer`] judges it); one plain phrase each.
 pub fn concession_deviations(
     spec: &ProductSpec,
     rec: &LotRecord,
@@ -300,11 +315,23 @@ pub fn build(
     supersedes: Option<Supersedes>,
 ) -> Result<Certificate> {
     let keys = reported_keys(spec, ship);
+    let calculated = calculated_notes(spec, rec, &keys);
     let rows = keys
         .iter()
         .filter_map(|key| spec.property(key))
-        .map(|p| result_row(spec, p, rec, ship))
+        .map(|p| {
+            let mut row = result_row(spec, p, rec, ship);
+            row.note = calculated
+                .iter()
+                .position(|n| n.key == p.key)
+                .map(|i| i + 1);
+            row
+        })
         .collect();
+    let inspection_document = ship
+        .and_then(|s| s.customer.inspection_document)
+        .map(|kind| inspection_document(kind, site))
+        .transpose()?;
     let (name, role) = approver(rec);
     let decided = rec
         .decided_at
@@ -337,18 +364,24 @@ pub fn build(
                 rec.latest_retest,
             )
             .unwrap_or(rec.manufactured),
+            tested_from: rec.tested.0,
+            tested_to: rec.tested.1,
         },
         customer: ship.map(|s| cert::Customer {
             name: s.customer.name.clone(),
+            address: s.customer.address.clone(),
             part_number: s.product.part_number.clone(),
             purchase_order: s.purchase_order.map(str::to_string),
-            quantity: s.quantity.map(str::to_string),
+            quantity: s.quantity.map(bind_numbers),
         }),
+        show_uncertainty: spec.decision_rule == DecisionRule::Guarded
+            && ship.is_none_or(|s| s.customer.show_uncertainty),
         rows,
-        calculated: calculated_notes(spec, rec, &keys),
+        calculated,
         conformity: conformity(spec, rec, ship),
         scope_statement: cert::SCOPE_STATEMENT.to_string(),
         statements: statements(rec, ship),
+        inspection_document,
         authorisation: Authorisation {
             name,
             role,
@@ -400,7 +433,7 @@ fn result_row(
         }
         None => "not measured".to_string(),
     };
-    let verdict = match ship {
+    let decided = match ship {
         Some(s) => customer_fit(
             spec,
             p,
@@ -408,12 +441,22 @@ fn result_row(
             rec.mn_uncertainty,
             s.product.limits.get(key),
         )
-        .verdict()
-        .map_or("—".to_string(), |v| verdict_words(v.as_str())),
-        None => verdict_words(rec.verdicts.get(key).map_or("", String::as_str)),
+        .verdict(),
+        None => rec.verdicts.get(key).and_then(|v| Verdict::parse(v)),
     };
+    let verdict = match (ship, decided) {
+        (_, Some(v)) => verdict_words(v.as_str()),
+        (Some(_), None) => "—".to_string(),
+        (None, None) => verdict_words(rec.verdicts.get(key).map_or("", String::as_str)),
+    };
+    let uncertainty = recorded_uncertainty(spec, p, rec.mn_uncertainty).map(|u| {
+        let mut u = round(u, p.decimals, spec.rounding) * f;
+        u.rescale(dec);
+        u.to_string()
+    });
     let label = match p.temperature_c {
-        Some(t) => format!("{} at {t} °C", p.label),
+        // A no-break space keeps the number with its unit (issue #17).
+        Some(t) => format!("{} at {t}\u{a0}°C", p.label),
         None => p.label.clone(),
     };
     ResultRow {
@@ -431,7 +474,11 @@ fn result_row(
             "report".into()
         },
         result,
+        exact: rec.values.get(key).cloned().unwrap_or_default(),
+        uncertainty,
+        flagged: decided.is_some_and(|v| v != Verdict::Pass),
         verdict,
+        note: None,
     }
 }
 
@@ -454,6 +501,7 @@ fn calculated_notes(spec: &ProductSpec, rec: &LotRecord, keys: &[String]) -> Vec
     let mut calculated = Vec::new();
     if let Some((mn, p)) = reported_value(spec, rec, keys, MN) {
         calculated.push(CalculatedNote {
+            mark: String::new(),
             key: MN.into(),
             label: "Number-average molar mass Mn".into(),
             value: round(mn, p.decimals, spec.rounding).to_string(),
@@ -471,6 +519,7 @@ fn calculated_notes(spec: &ProductSpec, rec: &LotRecord, keys: &[String]) -> Vec
     }
     if let Some((xn, p)) = reported_value(spec, rec, keys, XN) {
         calculated.push(CalculatedNote {
+            mark: String::new(),
             key: XN.into(),
             label: "Degree of polymerisation Xn".into(),
             value: round(xn, p.decimals, spec.rounding).to_string(),
@@ -480,7 +529,73 @@ fn calculated_notes(spec: &ProductSpec, rec: &LotRecord, keys: &[String]) -> Vec
             basis: "calculated from the batch recipe by the Carothers equation, with the extent of reaction from the acid value and the water of condensation".into(),
         });
     }
+    for (i, n) in calculated.iter_mut().enumerate() {
+        n.mark = footnote_mark(i + 1);
+    }
     calculated
+}
+
+/// The footnote mark of note `n` (1-based): superscript digits, `¹`, `²`, ... `¹⁰`.
+pub fn footnote_mark(n: usize) -> String {
+    const SUP: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+    n.to_string()
+        .chars()
+        .map(|c| SUP[c.to_digit(10).unwrap_or(0) as usize])
+        .collect()
+}
+
+/// Replaces the space after a number by a no-break space when a unit or word follows
+/// (`20 t`, `30 °C`, `12 months`), so a line never ends between a number and its unit
+/// (common typographic practice, e.g. the SI Brochure, 9th ed. 2019, §5.4.3: the numerical
+/// value and the unit symbol are separated by a space and stay on one line).
+pub fn bind_numbers(text: &str) -> String {
+    let chars: Vec<char> = text.chars().collect();
+    let mut out = String::with_capacity(text.len() + 4);
+    for (i, &c) in chars.iter().enumerate() {
+        let after_digit = i > 0 && chars[i - 1].is_ascii_digit();
+        let before_unit = chars
+            .get(i + 1)
+            .is_some_and(|n| n.is_alphabetic() || matches!(n, '°' | '%' | '‰' | 'µ'));
+        if c == ' ' && after_digit && before_unit {
+            out.push('\u{a0}');
+        } else {
+            out.push(c);
+        }
+    }
+    out
+}
+
+/// The EN 10204:2004 statement of the document type a customer orders to (wording ours; the
+/// definitions of types 2.2 and 3.1 are those of the standard's clauses 4.1 and 4.2, as
+/// recalled from memory). A 3.1 certificate needs the site's authorised inspection
+/// representative.
+fn inspection_document(kind: InspectionDocument, site: &Site) -> Result<cert::InspectionDocument> {
+    let statement = match kind {
+        InspectionDocument::TestReport22 => "Test report type 2.2 according to EN 10204:2004. \
+            The manufacturer declares that the product supplied complies with the requirements \
+            of the order and reports the test results above."
+            .to_string(),
+        InspectionDocument::Certificate31 => {
+            let r = site.inspection_representative.as_ref().ok_or_else(|| {
+                Error::invalid(
+                    format!("templates/{}: inspection_representative", cert::SITE_FILE),
+                    "the customer orders EN 10204 type 3.1 certificates, which the site's authorised inspection representative validates, and the site file names none",
+                    "Add inspection_representative = { name = \"...\", role = \"...\" } to the site file (a person independent of manufacturing).",
+                )
+            })?;
+            format!(
+                "Inspection certificate type 3.1 according to EN 10204:2004. The results above \
+                 were obtained by tests on the lot supplied. This certificate is validated by {}, \
+                 {}, the manufacturer's authorised inspection representative, who is independent \
+                 of the manufacturing department.",
+                r.name, r.role
+            )
+        }
+    };
+    Ok(cert::InspectionDocument {
+        kind: kind.as_str().to_string(),
+        statement,
+    })
 }
 
 /// The decision rule, guard band and statement of conformity (none for a lot not released).
@@ -558,12 +673,43 @@ fn statements(rec: &LotRecord, ship: Option<&Shipment>) -> Vec<String> {
         ship.map(|s| s.product.statements.clone())
             .unwrap_or_default(),
     );
-    st
+    st.iter().map(|t| bind_numbers(t)).collect()
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn numbers_stay_with_their_units() {
+        assert_eq!(bind_numbers("20 t"), "20\u{a0}t");
+        assert_eq!(
+            bind_numbers("stored below 30 °C for 12 months"),
+            "stored below 30\u{a0}°C for 12\u{a0}months"
+        );
+        assert_eq!(
+            bind_numbers("5 % max, 80 drums"),
+            "5\u{a0}% max, 80\u{a0}drums"
+        );
+        // A space before a number, or between two numbers, stays breakable.
+        assert_eq!(bind_numbers("issue 6, rev 7"), "issue 6, rev 7");
+    }
+
+    #[test]
+    fn test_dates_are_read_from_their_cells_issue_17() {
+        let day = NaiveDate::from_ymd_opt(2026, 11, 27);
+        assert_eq!(date("2026-11-27"), day);
+        assert_eq!(date("2026-11-27T08:00:00Z"), day);
+        assert_eq!(date(""), None, "a row recorded before layout v3");
+        assert_eq!(date("27/11/2026"), None);
+    }
+
+    #[test]
+    fn footnote_marks_are_superscript_numbers() {
+        assert_eq!(footnote_mark(1), "¹");
+        assert_eq!(footnote_mark(2), "²");
+        assert_eq!(footnote_mark(10), "¹⁰");
+    }
 
     #[test]
     fn decimals_follow_the_unit_factor() {

@@ -49,7 +49,8 @@ pub struct Args {
     /// Also write the certificate's HTML beside the PDF (for e-mail bodies).
     #[arg(long)]
     pub html: bool,
-    /// Print {"certificate_number","path","sha256"} as JSON.
+    /// Print {"certificate_number","path","sha256","json_path","json_sha256"} as JSON (the last
+    /// two when the JSON data companion was written).
     #[arg(long)]
     pub json: bool,
     /// How long to wait for a lock (`--lock-timeout`).
@@ -130,6 +131,9 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         }
     };
     let issuer = Issuer::new(&args.templates, &args.certificates)?;
+    if let Some(note) = issuer.notice() {
+        eprintln!("{note}");
+    }
     let mut log = Log::lock(&args.register, wait)?;
     let previous = log
         .entries()
@@ -175,7 +179,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         serde_json::to_string_pretty(&v)? + "\n"
     } else {
         let mut t = format!(
-            "Certificate {} for lot {} ({}) issued to {}{}\n  {}\n  SHA-256 {}\n",
+            "Certificate {} for lot {} ({}) issued to {}{}\n  {}\n  SHA-256 {}\n{}",
             i.certificate_number,
             rec.lot,
             rec.product,
@@ -184,7 +188,11 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                 .map(|p| format!(", superseding {}", p.number))
                 .unwrap_or_default(),
             i.path.display(),
-            i.sha256
+            i.sha256,
+            match (&i.json_path, &i.json_sha256) {
+                (Some(p), Some(sha)) => format!("  {}\n  SHA-256 {sha}\n", p.display()),
+                _ => "  (no JSON data companion: the certificate log predates it; run `resinlot upgrade`)\n".to_string(),
+            }
         );
         if let Some(c) = &rec.concession {
             t.push_str(&format!(

@@ -68,7 +68,8 @@ pub enum Command {
     #[command(after_help = EXIT_STATUS)]
     Specs(cmd::specs::Args),
     /// Check that the record is intact (trend files, hash chains, certificate log and PDFs),
-    /// quarantine a torn last line, or identify certificate PDFs as genuine, altered or unknown.
+    /// quarantine a torn last line, or identify certificate PDFs as genuine, superseded,
+    /// withdrawn, altered or unknown.
     ///
     /// Every trend file is also checked against the anchors kept outside it: each row of
     /// register/heads.csv (row count and last chain value after every append) and each

@@ -261,7 +261,7 @@ fn dispositions_text(t: &Trend, rows: &[&Row]) -> String {
             out.push_str("\nQA dispositions (oldest first):\n");
         }
         out.push_str(&format!(
-            "  row {}  {}  {} by {}{}: {}\n",
+            "  row {}  {}  {} ({}){}: {}\n",
             t.cell(r, "seq"),
             t.cell(r, "recorded_at"),
             d.words(),

@@ -121,7 +121,11 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let now_text = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
     let with_certs = !args.dry_run && !args.no_certificates;
     let issuer = if with_certs {
-        Some(Issuer::new(&args.templates, &args.certificates)?)
+        let issuer = Issuer::new(&args.templates, &args.certificates)?;
+        if let Some(note) = issuer.notice() {
+            eprintln!("{note}");
+        }
+        Some(issuer)
     } else {
         None
     };
@@ -201,9 +205,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             }
             _ => Vec::new(),
         };
-        // Still under the trend files' locks, after the rows (issue #14): a reissued internal
-        // certificate marks its predecessor superseded, and a retest that rejects or holds a
-        // lot withdraws the lot's other current certificates.
+        // Still under the trend files' locks, after the rows (issue #14): a retest that
+        // rejects or holds a lot withdraws its current customer certificates.
         withdrawn = withdraw_after_retests(
             args, &mut log, &locks, &decisions, &recorded, &pending, &issued, &now_text,
         )?;
@@ -221,11 +224,11 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     })
 }
 
-/// After a release's rows and certificates are filed, under the trend files' locks: marks
-/// every internal certificate a retest's new one replaces as superseded, and withdraws the
-/// other current certificates of every retested lot that is now rejected or on hold (trend
-/// row first, then the log rows; `verify` finds and completes a withdrawal cut short between
-/// the two). Returns (lot, certificate) for every certificate withdrawn.
+/// After a release's rows and certificates are filed, under the trend files' locks: withdraws
+/// the current customer certificates of every retested lot that is now rejected or on hold
+/// (trend row first, then the log rows; `verify` finds and completes a withdrawal cut short
+/// between the two). A retest's internal certificate supersedes the old one by its own row's
+/// `supersedes` cell. Returns (lot, certificate) for every certificate withdrawn.
 #[allow(clippy::too_many_arguments)]
 fn withdraw_after_retests(
     args: &Args,
@@ -257,11 +260,6 @@ fn withdraw_after_retests(
             },
         )?),
     };
-    for (p, i) in pending.iter().zip(issued) {
-        if let Some(old) = &p.certificate.supersedes {
-            log.supersede(&old.number, &i.certificate_number, &old.reason, now)?;
-        }
-    }
     let mut out = Vec::new();
     for (d, seq) in retests {
         if !crate::lot::disposition::withdraws(d.status) {
@@ -406,7 +404,12 @@ fn prepare_certificates(
             continue;
         }
         let spec = ctx.specs.for_date(&d.product, d.manufactured)?;
-        let rec = LotRecord::from_decision(d, ctx.approver, ctx.now_text);
+        let mut rec = LotRecord::from_decision(d, ctx.approver, ctx.now_text);
+        if matches!(plan, Plan::Retest { .. }) {
+            // This retest is the lot's latest; tested today, it may extend the retest date
+            // printed on its certificate (issue #14).
+            rec.latest_retest = Some(ctx.now.date_naive());
+        }
         // Only a retest supersedes, and only its reason is logged: a new lot in the same
         // batch carries neither.
         let retest_reason = match plan {

@@ -2,6 +2,7 @@
 
 use std::path::PathBuf;
 
+use crate::cmd::args::TemplatesFolder;
 use crate::cmd::Outcome;
 use crate::spec::SpecSet;
 
@@ -21,12 +22,15 @@ pub enum Action {
         /// Folder holding the product specs. Default: specs.
         #[arg(hide_default_value = true, default_value = "specs")]
         dir: PathBuf,
+        /// The templates folder whose site file is checked too (`--templates`).
+        #[command(flatten)]
+        templates: TemplatesFolder,
     },
 }
 
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
-    let Action::Check { dir } = &args.action;
+    let Action::Check { dir, templates } = &args.action;
     let set = SpecSet::load(dir)?;
     let customers = crate::spec::customer::load_all(&dir.join("customers"), &set)?;
     let mut rows = vec![vec![
@@ -63,6 +67,16 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         set.products.len(),
         customers.len()
     ));
+    text.push_str(&crate::certificate::model::site_warnings(
+        &templates.join(crate::certificate::model::SITE_FILE),
+        customers
+            .iter()
+            .filter(|c| {
+                c.inspection_document
+                    == Some(crate::spec::customer::InspectionDocument::Certificate31)
+            })
+            .map(|c| c.id.as_str()),
+    )?);
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }

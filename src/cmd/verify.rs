@@ -13,8 +13,9 @@ use crate::record::trend_file::Wait;
 /// Arguments of `resinlot verify`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Certificate PDFs to identify against the issue log (genuine, altered or unknown).
-    /// Without any, the whole record is checked instead.
+    /// Certificate PDFs, or their JSON data companions, to identify against the issue log:
+    /// genuine (current, exit 0), superseded, withdrawn, altered or unknown (exit 1). Without
+    /// any, the whole record is checked instead.
     #[arg(id = "pdf", value_name = "CERTIFICATES")]
     pub certificates: Vec<PathBuf>,
     /// The register folder (`--register`).
@@ -28,7 +29,8 @@ pub struct Args {
     /// one, or record the head of a trend file whose last rows were appended without one (a
     /// release interrupted before it recorded them in heads.csv); in the certificates folder,
     /// remove stray temporary `.part` files and log a certificate file found without its log
-    /// entry as void. Each repair is logged in
+    /// entry as void; record the withdrawals of certificates whose lot a later trend row
+    /// rejected or held (a withdrawal interrupted after its trend row). Each repair is logged in
     /// quarantine.log. Safe to run again after an interruption.
     #[arg(long)]
     pub quarantine: bool,

@@ -141,20 +141,27 @@ pub fn check_time_order(
         let Some(t) = trends.get(d.product.as_str()) else {
             continue;
         };
-        let Some(last) = t.rows.last() else {
-            continue;
-        };
-        let at = t.cell(last, "recorded_at");
-        if let Ok(last_t) = chrono::DateTime::parse_from_rfc3339(at) {
-            if now_t < last_t {
-                return Err(Error::invalid(
-                    format!("{}:{}", t.path.display(), last.line),
-                    format!(
-                        "the clock says {now}, earlier than {at}, when the file's last row was recorded"
-                    ),
-                    "Check the system clock and SOURCE_DATE_EPOCH; rows are appended in time order, so nothing was written.",
-                ));
-            }
+        check_clock(t, now_t, now)?;
+    }
+    Ok(())
+}
+
+/// Refuses to append a row stamped `now` (parsed: `now_t`) to `t` when its last row was
+/// recorded later (see [`check_time_order`]); an unreadable recorded time is left to `verify`.
+fn check_clock(t: &Trend, now_t: chrono::DateTime<chrono::FixedOffset>, now: &str) -> Result<()> {
+    let Some(last) = t.rows.last() else {
+        return Ok(());
+    };
+    let at = t.cell(last, "recorded_at");
+    if let Ok(last_t) = chrono::DateTime::parse_from_rfc3339(at) {
+        if now_t < last_t {
+            return Err(Error::invalid(
+                format!("{}:{}", t.path.display(), last.line),
+                format!(
+                    "the clock says {now}, earlier than {at}, when the file's last row was recorded"
+                ),
+                "Check the system clock and SOURCE_DATE_EPOCH; rows are appended in time order, so nothing was written.",
+            ));
         }
     }
     Ok(())
@@ -663,20 +670,8 @@ pub fn record_disposition(
     let owned = disposition_cells(t, latest, d, status);
     let cells: Vec<(&str, String)> = owned.iter().map(|(k, v)| (k.as_str(), v.clone())).collect();
     trend_file::encode_row(t, &cells)?;
-    if let Some(last) = t.rows.last() {
-        let at = t.cell(last, "recorded_at");
-        if let (Ok(a), Ok(b)) = (
-            chrono::DateTime::parse_from_rfc3339(d.now),
-            chrono::DateTime::parse_from_rfc3339(at),
-        ) {
-            if a < b {
-                return Err(Error::invalid(
-                    format!("{}:{}", t.path.display(), last.line),
-                    format!("the clock says {}, earlier than {at}, when the file's last row was recorded", d.now),
-                    "Check the system clock and SOURCE_DATE_EPOCH; rows are appended in time order, so nothing was written.",
-                ));
-            }
-        }
+    if let Ok(now_t) = chrono::DateTime::parse_from_rfc3339(d.now) {
+        check_clock(t, now_t, d.now)?;
     }
     let register = t.path.parent().unwrap_or(Path::new(".")).to_path_buf();
     let mut heads = HeadsLog::open(&register, std::iter::once(t))?;
@@ -982,6 +977,106 @@ decimals = 0
             text.contains("column 'reason'") && text.contains("lot 'L2'"),
             "{text}"
         );
+    }
+
+    /// Issue #14: a disposition row copies the lot's results from its latest row, supersedes
+    /// it, and records the decision; the rules refuse (exit 1) without writing.
+    #[test]
+    fn a_disposition_row_copies_the_results_and_records_the_decision_issue_14() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        // AV 0.98 against a maximum of 1.00 with U 0.05: conditional pass, on hold.
+        record(dir.path(), &specs, &[decide(&specs, "L1", "0.98", "55.6")]);
+        let path = trend_file::path_for(dir.path(), "PD-2000");
+        let mut locked = trend_file::lock(&path, &[], &[], wait()).unwrap();
+        let d = Disposition {
+            decision: Decision::Concession,
+            reason: "deviation agreed",
+            approver: "R. Okafor, QA Manager",
+            concession_ref: "AC-17",
+            concession_customer: "acme",
+            now: "2026-10-03T08:00:00Z",
+        };
+        let done = record_disposition(&mut locked, "L1", &d).unwrap();
+        assert_eq!(
+            done,
+            Dispositioned {
+                previous: Status::OnHold,
+                status: Status::Released,
+                seq: 2
+            }
+        );
+        let t = &locked.trend;
+        let (old, new) = (&t.rows[0], &t.rows[1]);
+        for k in [
+            "acid_value",
+            "acid_value_verdict",
+            "mn",
+            "notes",
+            "manufactured",
+        ] {
+            assert_eq!(t.cell(old, k), t.cell(new, k), "{k} is copied");
+        }
+        assert_eq!(t.cell(new, "status"), "released");
+        assert_eq!(t.cell(new, "supersedes"), "1");
+        assert_eq!(t.cell(new, "disposition"), "concession");
+        assert_eq!(t.cell(new, "concession_ref"), "AC-17");
+        assert_eq!(t.cell(new, "concession_customer"), "acme");
+        assert_eq!(t.cell(new, "approver"), "R. Okafor, QA Manager");
+        // Released now: a second release by disposition is refused, nothing written.
+        let again = Disposition {
+            decision: Decision::Released,
+            ..d
+        };
+        let e = record_disposition(&mut locked, "L1", &again).unwrap_err();
+        assert_eq!(e.exit_code(), 1);
+        assert!(
+            e.to_string().contains("only a lot on hold or incomplete"),
+            "{e}"
+        );
+        drop(locked);
+        assert_eq!(trend_file::read(&path).unwrap().rows.len(), 2);
+    }
+
+    /// Issue #14: lot ids are unique without regard to case, against the trend file and
+    /// within one results file.
+    #[test]
+    fn a_lot_id_differing_only_in_case_is_refused_issue_14() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        record(
+            dir.path(),
+            &specs,
+            &[decide(&specs, "X2612-D05", "0.50", "55.6")],
+        );
+        let d = vec![decide(&specs, "x2612-d05", "0.51", "55.6")];
+        let e = plan_in(dir.path(), &specs, &d, None, &HashMap::new()).unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("differs only in case from lot 'X2612-D05'"),
+            "{e}"
+        );
+        assert_eq!(e.exit_code(), 2);
+        let both = vec![
+            decide(&specs, "L7", "0.50", "55.6"),
+            decide(&specs, "l7", "0.50", "55.6"),
+        ];
+        let e = plan_in(dir.path(), &specs, &both, None, &HashMap::new()).unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("from lot 'L7', recorded in line 2 of r.csv"),
+            "{e}"
+        );
+        let elsewhere = HashMap::from([("L9".to_string(), "PE-3000".to_string())]);
+        let e = plan_in(
+            dir.path(),
+            &specs,
+            &[decide(&specs, "l9", "0.50", "55.6")],
+            None,
+            &elsewhere,
+        )
+        .unwrap_err();
+        assert!(e.to_string().contains("recorded in product PE-3000"), "{e}");
     }
 
     #[test]

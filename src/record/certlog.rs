@@ -166,7 +166,7 @@ pub fn anchors(t: &Trend) -> Vec<Anchor> {
 }
 
 /// One issued certificate.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize)]
 pub struct Entry {
     /// Certificate number.
     pub number: String,
@@ -188,6 +188,9 @@ pub struct Entry {
     pub supersedes: String,
     /// Reason for a reissue.
     pub reason: String,
+    /// SHA-256 of the certificate's JSON data companion (layout v3; empty when none was
+    /// written, e.g. in a log in an earlier layout).
+    pub json_sha256: String,
 }
 
 /// The entry an issue row of a parsed log records.
@@ -208,6 +211,7 @@ fn entry(t: &Trend, row: &trend_file::Row) -> Entry {
         sha256: c("sha256"),
         supersedes: c("supersedes"),
         reason: c("reason"),
+        json_sha256: c("json_sha256"),
     }
 }
 
@@ -657,6 +661,7 @@ impl Log {
             ("sha256", e.sha256.clone()),
             ("supersedes", e.supersedes.clone()),
             ("reason", e.reason.clone()),
+            ("json_sha256", e.json_sha256.clone()),
         ])?;
         self.locked.sync()
     }
@@ -696,6 +701,12 @@ impl Log {
     /// The log's path.
     pub fn path(&self) -> &Path {
         &self.locked.trend.path
+    }
+
+    /// True when the log has the column `name` (the layout-v3 columns are missing from a log
+    /// in an earlier layout until `resinlot upgrade`).
+    pub fn has_column(&self, name: &str) -> bool {
+        self.locked.trend.col(name).is_some()
     }
 
     /// True when the log did not exist (or was empty) when it was locked and nothing has been
@@ -749,6 +760,7 @@ mod tests {
             sha256: "ab".into(),
             supersedes: String::new(),
             reason: String::new(),
+            json_sha256: String::new(),
         };
         log.append(&e).unwrap();
         assert_eq!(log.next_number("FW-"), "FW-000002");
@@ -790,7 +802,134 @@ mod tests {
             sha256: "ab".into(),
             supersedes: String::new(),
             reason: String::new(),
+            json_sha256: String::new(),
         }
+    }
+
+    fn customer_entry(number: &str, supersedes: &str) -> Entry {
+        Entry {
+            customer: "acme".into(),
+            customer_name: "Acme Foams".into(),
+            supersedes: supersedes.into(),
+            reason: if supersedes.is_empty() {
+                String::new()
+            } else {
+                "PO corrected".into()
+            },
+            ..entry(number)
+        }
+    }
+
+    /// Issue #14: event rows are not certificates (not entries, not numbered); a reissue row
+    /// or a `superseded` event supersedes, a `withdrawn` event withdraws, the first decides;
+    /// withdrawals take customer certificates only.
+    #[test]
+    fn events_give_each_certificate_its_standing_issue_14() {
+        let dir = tempfile::tempdir().unwrap();
+        let wait = Wait {
+            timeout: Duration::from_secs(5),
+        };
+        let mut log = Log::lock(dir.path(), wait).unwrap();
+        log.append(&entry("FW-000001")).unwrap(); // internal, L1
+        log.append(&customer_entry("FW-000002", "")).unwrap();
+        log.append(&customer_entry("FW-000003", "FW-000002"))
+            .unwrap();
+        log.supersede(
+            "FW-000002",
+            "FW-000003",
+            "PO corrected",
+            "2026-10-02T00:00:00Z",
+        )
+        .unwrap();
+        // Only once: the event is there now.
+        log.supersede(
+            "FW-000002",
+            "FW-000003",
+            "PO corrected",
+            "2026-10-02T00:00:00Z",
+        )
+        .unwrap();
+        assert_eq!(log.next_number("FW-"), "FW-000004");
+        let cause = Cause {
+            product: "P".into(),
+            row: 7,
+            chain: "abc".into(),
+            reason: "lot rejected by retest (row 7)".into(),
+        };
+        let gone = log
+            .withdraw_lot("L1", &cause, &[], "2026-10-03T00:00:00Z")
+            .unwrap();
+        assert_eq!(
+            gone.iter().map(|e| e.number.as_str()).collect::<Vec<_>>(),
+            ["FW-000003"],
+            "the current customer certificate only"
+        );
+        assert_eq!(log.notice(&gone[0]).customer_name, "Acme Foams");
+        assert_eq!(log.next_number("FW-"), "FW-000004", "events take no number");
+        // Withdrawn again: nothing is current any more.
+        assert!(log
+            .withdraw_lot("L1", &cause, &[], "2026-10-04T00:00:00Z")
+            .unwrap()
+            .is_empty());
+        drop(log);
+        assert_eq!(entries(dir.path()).unwrap().len(), 3);
+        let t = read(dir.path()).unwrap().unwrap();
+        let st = standings(&t);
+        assert_eq!(st["FW-000001"], Standing::Current);
+        assert_eq!(
+            st["FW-000002"],
+            Standing::Superseded {
+                by: "FW-000003".into(),
+                at: "2026-10-01T10:00:00Z".into(),
+                reason: "PO corrected".into()
+            }
+        );
+        assert_eq!(
+            st["FW-000003"],
+            Standing::Withdrawn {
+                at: "2026-10-03T00:00:00Z".into(),
+                reason: "lot rejected by retest (row 7)".into(),
+                cause: "P.csv row 7".into()
+            }
+        );
+        let events: Vec<&str> = t
+            .rows
+            .iter()
+            .filter(|r| is_event_row(&t, r))
+            .map(|r| t.cell(r, "event"))
+            .collect();
+        assert_eq!(events, ["superseded", "withdrawn"]);
+        // The withdrawal anchors the causing row.
+        let a = anchors(&t);
+        assert!(a
+            .iter()
+            .any(|a| a.row == 7 && a.chain == "abc" && a.number == "FW-000003"));
+    }
+
+    /// Issue #14: a log in an earlier layout cannot record a withdrawal: refused before
+    /// anything is written, naming `resinlot upgrade`, when the lot has a customer certificate.
+    #[test]
+    fn an_earlier_log_refuses_withdrawals_issue_14() {
+        let dir = tempfile::tempdir().unwrap();
+        let wait = Wait {
+            timeout: Duration::from_secs(5),
+        };
+        std::fs::write(path(dir.path()), format!("{}\n", COLUMNS_V2.join(","))).unwrap();
+        let mut log = Log::lock(dir.path(), wait).unwrap();
+        log.append(&entry("FW-000001")).unwrap();
+        drop(log);
+        assert!(
+            check_withdrawable(dir.path(), &["L1"]).is_ok(),
+            "internal only"
+        );
+        let mut log = Log::lock(dir.path(), wait).unwrap();
+        log.append(&customer_entry("FW-000002", "")).unwrap();
+        drop(log);
+        let e = check_withdrawable(dir.path(), &["l1"])
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("resinlot upgrade"), "{e}");
+        assert!(check_withdrawable(dir.path(), &["L2"]).is_ok());
     }
 
     /// Issue #13: a log in the earlier layout is appended to as it is, without anchors.

@@ -224,6 +224,93 @@ mod tests {
         }
     }
 
+    /// Issue #14: a lot past its retest date is left out and counted unless asked for; a
+    /// retest on or after the date extends it; a concession lot fits its customer only.
+    /// Invented lots and a fixture spec.
+    #[test]
+    fn expired_lots_are_counted_and_concessions_fit_their_customer_issue_14() {
+        let spec = crate::spec::ProductSpec::parse(
+            std::path::Path::new("s.toml"),
+            "code = \"P\"\nname = \"Test polyol\"\nrevision = \"A\"\neffective = 2025-01-01\nfunctionality = 2.0\ndecision_rule = \"simple\"\nretest_months = 12\n[properties.acid_value]\nlabel = \"Acid value\"\nunit = \"mg KOH/g\"\nmax = 1.0\ndecimals = 2\n",
+        )
+        .unwrap();
+        let mut specs = SpecSet::default();
+        specs.products.insert("P".into(), vec![spec]);
+        let lot = |id: &str, made: &str, line: usize| LotRow {
+            line,
+            lot: id.into(),
+            manufactured: made.into(),
+            status: "released",
+            revision: "A",
+            mn_uncertainty: None,
+            values: vec![Some(0.5)],
+        };
+        let lots = vec![
+            lot("OLD", "2025-11-01", 2),
+            lot("RETESTED", "2025-11-01", 3),
+            lot("NEW", "2026-06-01", 4),
+            lot("CONCEDED", "2026-06-01", 5),
+        ];
+        let lives = vec![
+            Life::default(),
+            Life {
+                retested: Some("2026-11-20".into()),
+                concession: "",
+            },
+            Life::default(),
+            Life {
+                retested: None,
+                concession: "acme",
+            },
+        ];
+        let today = NaiveDate::from_ymd_opt(2026, 12, 10).unwrap();
+        let loaded = vec!["acid_value".to_string()];
+        let mut filter = LotFilter {
+            product: "P",
+            windows: &[],
+            status: None,
+            from: None,
+            to: None,
+            customer: None,
+            life: Some(LifeCheck {
+                lives: &lives,
+                specs: Some(&specs),
+                today,
+                include_expired: false,
+            }),
+        };
+        let ids = |hits: &[&LotRow]| hits.iter().map(|r| r.lot.to_string()).collect::<Vec<_>>();
+        let (hits, expired) = matching_lots_counted(&lots, &loaded, &filter);
+        assert_eq!(ids(&hits), ["CONCEDED", "NEW", "RETESTED"]);
+        assert_eq!(expired, 1);
+        filter.life = Some(LifeCheck {
+            include_expired: true,
+            ..filter.life.unwrap()
+        });
+        assert_eq!(matching_lots_counted(&lots, &loaded, &filter).1, 0);
+        assert_eq!(matching_lots(&lots, &loaded, &filter).len(), 4);
+        let requirements = crate::spec::customer::CustomerProduct {
+            part_number: None,
+            report: None,
+            statements: Vec::new(),
+            limits: Default::default(),
+            units: Default::default(),
+        };
+        for (who, listed) in [("acme", true), ("other", false)] {
+            filter.customer = Some(CustomerCheck {
+                customer: who,
+                specs: &specs,
+                requirements: &requirements,
+            });
+            let hits = matching_lots(&lots, &loaded, &filter);
+            assert_eq!(
+                ids(&hits).contains(&"CONCEDED".to_string()),
+                listed,
+                "{who}"
+            );
+        }
+    }
+
     #[test]
     fn table_loads_only_windows_and_headline_keys() {
         let keys: Vec<String> = ["acid_value", "hydroxyl_value", "viscosity", "mn", "colour"]

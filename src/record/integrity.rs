@@ -106,9 +106,19 @@ pub fn check_register(register_dir: &Path, certificates: &Path) -> Result<Vec<Fi
         match trend_file::parse_bytes(&log, &bytes, true, &is_log_header).1 {
             Some(d) => out.push(FileCheck::from(&log, 0, Some(d))),
             None => {
-                let entries = crate::record::certlog::entries(register_dir)?;
-                let mut check = FileCheck::from(&log, entries.len(), None);
-                for (i, e) in entries.iter().enumerate() {
+                let t = crate::record::certlog::read(register_dir)?;
+                let issues: Vec<(usize, crate::record::certlog::Entry)> = t
+                    .iter()
+                    .flat_map(|t| {
+                        t.rows
+                            .iter()
+                            .filter(|r| crate::record::certlog::is_issue_row(t, r))
+                            .map(|r| (r.line, crate::record::certlog::entry_of(t, r)))
+                    })
+                    .collect();
+                let mut check = FileCheck::from(&log, issues.len(), None);
+                // Issue rows only: event rows (issue #14) and layout rows name no file.
+                for (line, e) in &issues {
                     let pdf = certificates.join(&e.file);
                     let problem = if !pdf.is_file() {
                         Some(format!(
@@ -127,13 +137,7 @@ pub fn check_register(register_dir: &Path, certificates: &Path) -> Result<Vec<Fi
                     };
                     if problem.is_some() {
                         check.problem = problem;
-                        // An upgraded log's layout row (line 2) is not an entry.
-                        let layout = usize::from(
-                            crate::record::certlog::layout(register_dir)?
-                                == Some(crate::record::certlog::Layout::Current)
-                                && crate::record::upgrade::is_upgraded(&log)?,
-                        );
-                        check.line = Some(i + 2 + layout);
+                        check.line = Some(*line);
                         check.lot = Some(e.lot.clone());
                         break;
                     }
@@ -553,8 +557,10 @@ pub fn verdict_for(
     }
 }
 
-/// Identifies a certificate PDF against the issue log: its bytes against every issued
-/// certificate's SHA-256, then its standing (superseded, withdrawn) in the log.
+/// Identifies a certificate PDF, or its JSON data companion (issue #17), against the issue
+/// log: its bytes against every issued certificate's SHA-256 (either file's), then its
+/// standing (superseded, withdrawn) in the log; altered when a certificate of that file name
+/// (`<lot>_<number>.pdf` or `.json`) was issued with other bytes.
 pub fn verify_certificate(pdf: &Path, register_dir: &Path) -> Result<CertVerdict> {
     let sha = file_sha256(pdf)?;
     let log = crate::record::certlog::read(register_dir)?;
@@ -571,14 +577,21 @@ pub fn verify_certificate(pdf: &Path, register_dir: &Path) -> Result<CertVerdict
         .as_ref()
         .map(crate::record::certlog::standings)
         .unwrap_or_default();
-    if let Some(e) = entries.iter().find(|e| e.sha256 == sha) {
+    if let Some(e) = entries
+        .iter()
+        .find(|e| e.sha256 == sha || (!e.json_sha256.is_empty() && e.json_sha256 == sha))
+    {
         return Ok(verdict_for(e, standings.get(&e.number)));
     }
     let name = pdf
         .file_name()
         .map(|n| n.to_string_lossy().to_string())
         .unwrap_or_default();
-    if let Some(e) = entries.iter().find(|e| e.file == name) {
+    let as_pdf = name
+        .strip_suffix(".json")
+        .map(|stem| format!("{stem}.pdf"))
+        .unwrap_or_else(|| name.clone());
+    if let Some(e) = entries.iter().find(|e| e.file == as_pdf) {
         return Ok(CertVerdict::Altered {
             entry: e.clone(),
             sha256: sha,
@@ -607,6 +620,57 @@ mod tests {
             .unwrap();
         l.sync().unwrap();
         p
+    }
+
+    /// Issue #14: a file with the issued bytes is genuine only while its certificate is
+    /// current; otherwise superseded or withdrawn, with the details.
+    #[test]
+    fn the_verdict_follows_the_certificates_standing_issue_14() {
+        use crate::record::certlog::{Entry, Standing};
+        let e = Entry {
+            number: "FW-000004".into(),
+            issued_at: "2026-10-01T10:00:00Z".into(),
+            lot: "L1".into(),
+            product: "P".into(),
+            customer: "acme".into(),
+            customer_name: "Acme Foams".into(),
+            file: "L1_FW-000004.pdf".into(),
+            sha256: "ab".into(),
+            supersedes: String::new(),
+            reason: String::new(),
+            ..Entry::default()
+        };
+        assert!(verdict_for(&e, Some(&Standing::Current)).is_genuine());
+        assert!(verdict_for(&e, None).is_genuine());
+        let v = verdict_for(
+            &e,
+            Some(&Standing::Superseded {
+                by: "FW-000005".into(),
+                at: "2026-10-02T00:00:00Z".into(),
+                reason: "PO corrected".into(),
+            }),
+        );
+        assert_eq!(v.name(), "superseded");
+        let json = serde_json::to_value(&v).unwrap();
+        assert_eq!(json["verdict"], "superseded");
+        assert_eq!(json["superseded_by"], "FW-000005");
+        let v = verdict_for(
+            &e,
+            Some(&Standing::Withdrawn {
+                at: "2026-10-03T00:00:00Z".into(),
+                reason: "lot rejected".into(),
+                cause: "P.csv row 7".into(),
+            }),
+        );
+        assert!(!v.is_genuine());
+        assert_eq!(
+            serde_json::to_value(&v).unwrap()["withdrawn_at"],
+            "2026-10-03T00:00:00Z"
+        );
+        assert_eq!(
+            CertVerdict::Unknown { sha256: "x".into() }.name(),
+            "unknown"
+        );
     }
 
     /// Issue #13 item 3: the missing line end of a complete row is restored, nothing moved.

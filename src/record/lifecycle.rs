@@ -68,19 +68,22 @@ pub fn retest_date(t: &Trend, rows: &[&Row], latest: &Row, months: u32) -> Optio
     disposition::retest_date(made, months, latest_retest(t, rows))
 }
 
-/// Why a row withholds the lot, as the withdrawal rows record it: "rejected by retest row 9:
-/// re-titrated", "on hold by disposition rework row 12: agitator failure".
+/// Why a row withholds the lot, as the withdrawal rows record it: "lot rejected by retest
+/// (row 9): re-titrated", "lot on hold by QA disposition (rework, row 12): agitator failure".
 pub fn withholding_reason(t: &Trend, row: &Row) -> String {
     let by = match disposition_of(t, row) {
-        Some(d) => format!("disposition {}", d.as_str()),
-        None if is_retest_row(t, row) => "retest".to_string(),
-        None => "decision".to_string(),
+        Some(d) => format!(
+            "QA disposition ({}, row {})",
+            d.as_str(),
+            t.cell(row, "seq")
+        ),
+        None if is_retest_row(t, row) => format!("retest (row {})", t.cell(row, "seq")),
+        None => format!("decision (row {})", t.cell(row, "seq")),
     };
     let reason = t.cell(row, "reason");
     format!(
-        "lot {} by {by} (row {}){}",
+        "lot {} by {by}{}",
         t.cell(row, "status").replace('_', " "),
-        t.cell(row, "seq"),
         if reason.is_empty() {
             String::new()
         } else {
@@ -243,7 +246,7 @@ mod tests {
         assert_eq!(retest_date(&t, &rows, rows[2], 12), Some(d(2027, 11, 25)));
         assert_eq!(
             withholding_reason(&t, rows[2]),
-            "lot rejected by disposition rejected (row 3): customer complaint"
+            "lot rejected by QA disposition (rejected, row 3): customer complaint"
         );
         let s = standing_of(&t, rows[2]).unwrap();
         assert_eq!(s.status, Status::Rejected);

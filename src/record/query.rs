@@ -469,7 +469,11 @@ fn current_lots_in(
 ) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
     let header = read_header(path)?;
     let file_keys = trend_file::property_keys(&header);
-    let layout = RowLayout::new(path, &header, keys, with_mn_uncertainty)?;
+    let mut layout = RowLayout::new(path, &header, keys, with_mn_uncertainty)?;
+    if with_life {
+        // One split of each line serves both the row and its life.
+        layout.upto = layout.upto.max(LifeReader::new(&header).upto);
+    }
     let parts = scan::parallel_body_in(
         path,
         parts,
@@ -644,7 +648,7 @@ impl PartRows {
             self.values.push(number(field(5 + i)));
         }
         if let Some(l) = &mut self.life {
-            self.lives.push(l.read(line));
+            self.lives.push(l.read(&spans, line));
         }
         self.spans = spans;
         Ok(())
@@ -767,7 +771,6 @@ fn latest_rows(mut parts: Vec<scan::Part<PartRows>>, keys: usize) -> (Vec<LotRow
 struct LifeReader {
     cols: [Option<usize>; 5],
     upto: usize,
-    spans: Vec<(usize, usize)>,
     customers: Vec<&'static str>,
 }
 
@@ -784,15 +787,14 @@ impl LifeReader {
         LifeReader {
             upto: cols.iter().flatten().copied().max().unwrap_or(0),
             cols,
-            spans: Vec::new(),
             customers: Vec::new(),
         }
     }
 
-    fn read(&mut self, line: &[u8]) -> Life {
-        split_spans(line, self.upto, &mut self.spans);
+    /// The life of `line`, split into `spans` (at least up to `self.upto`) by the row reader.
+    fn read(&mut self, spans: &[(usize, usize)], line: &[u8]) -> Life {
         let cell = |i: usize| -> &[u8] {
-            match self.cols[i].and_then(|c| self.spans.get(c)) {
+            match self.cols[i].and_then(|c| spans.get(c)) {
                 Some(&(a, b)) => &line[a..b.min(line.len())],
                 None => b"",
             }
@@ -976,6 +978,67 @@ mod tests {
             assert_eq!(serde_json::to_string(&l).unwrap(), format!("\"{id}\""));
         }
         assert_ne!(LotId::from("A1"), LotId::from("A10"));
+    }
+
+    /// Issue #14: each kept lot's life carries the latest retest date of any of its rows
+    /// (also when a disposition row came after it) and its concession customer; lot ids typed
+    /// in another case find the recorded lot. Invented rows.
+    #[test]
+    fn lives_follow_retests_and_concessions_issue_14() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        let keys = vec!["acid_value".to_string()];
+        let row = |lot: &str, at: &str, extra: &[(&'static str, &str)]| {
+            let mut r = vec![
+                ("lot", lot.to_string()),
+                ("acid_value", "0.5".to_string()),
+                ("manufactured", "2025-11-01".to_string()),
+                ("recorded_at", at.to_string()),
+            ];
+            r.extend(extra.iter().map(|(k, v)| (*k, v.to_string())));
+            r
+        };
+        trend_file::write_for_test(
+            &p,
+            &keys,
+            &[
+                row("A1", "2025-11-02T08:00:00Z", &[]),
+                row("B2", "2025-11-03T08:00:00Z", &[]),
+                row("A1", "2026-11-05T08:00:00Z", &[("supersedes", "1")]),
+                row(
+                    "A1",
+                    "2026-11-06T08:00:00Z",
+                    &[
+                        ("supersedes", "3"),
+                        ("disposition", "concession"),
+                        ("concession_customer", "acme"),
+                    ],
+                ),
+                row(
+                    "B2",
+                    "2026-11-07T08:00:00Z",
+                    &[("supersedes", "2"), ("tested_to", "2026-11-04")],
+                ),
+            ],
+        );
+        let (_, rows, lives) = current_lots_with_life(&p, &keys, false).unwrap();
+        let got: Vec<(&str, Option<String>, &str)> = rows
+            .iter()
+            .zip(&lives)
+            .map(|(r, l)| (&*r.lot, l.retested.map(|d| d.to_string()), l.concession))
+            .collect();
+        assert_eq!(
+            got,
+            [
+                ("A1", Some("2026-11-05".to_string()), "acme"),
+                // tested_to, when recorded, is the retest's test date.
+                ("B2", Some("2026-11-04".to_string()), ""),
+            ]
+        );
+        let found = find_lot(dir.path(), "a1").unwrap().unwrap();
+        assert_eq!(found.rows.len(), 3);
+        assert_eq!(found.cell(&found.rows[0], "lot"), "A1");
+        assert!(find_lot(dir.path(), "a2").unwrap().is_none());
     }
 
     #[test]

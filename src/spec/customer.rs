@@ -18,7 +18,16 @@ use crate::spec::{ProductSpec, Property, SpecSet};
 struct CustomerFile {
     name: String,
     #[serde(default)]
+    address: Vec<String>,
+    inspection_document: Option<String>,
+    #[serde(default = "yes")]
+    show_uncertainty: bool,
+    #[serde(default)]
     products: IndexMap<String, ProductFile>,
+}
+
+fn yes() -> bool {
+    true
 }
 
 #[derive(Debug, Clone, Deserialize)]
@@ -72,6 +81,12 @@ pub struct Customer {
     pub id: String,
     /// The customer's legal name.
     pub name: String,
+    /// Postal address, one entry per printed line (may be empty).
+    pub address: Vec<String>,
+    /// The EN 10204:2004 inspection document the customer orders to, if any.
+    pub inspection_document: Option<InspectionDocument>,
+    /// Whether certificates show the U column under the guarded rule (default true).
+    pub show_uncertainty: bool,
     /// Requirements per product code.
     pub products: IndexMap<String, CustomerProduct>,
     /// The file.
@@ -120,6 +135,36 @@ impl Customer {
     }
 }
 
+/// The type of inspection document of EN 10204:2004 a customer orders to (types named in the
+/// standard's clause 4; wording of the certificate's statement is resinlot's own).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum InspectionDocument {
+    /// Type 2.2, test report: the manufacturer's declaration of compliance with test results.
+    TestReport22,
+    /// Type 3.1, inspection certificate: results of specific inspection, validated by the
+    /// manufacturer's authorised inspection representative independent of manufacturing.
+    Certificate31,
+}
+
+impl InspectionDocument {
+    /// Parses `"2.2"` or `"3.1"` as written in a customer file.
+    pub fn parse(s: &str) -> Option<InspectionDocument> {
+        match s.trim() {
+            "2.2" => Some(InspectionDocument::TestReport22),
+            "3.1" => Some(InspectionDocument::Certificate31),
+            _ => None,
+        }
+    }
+
+    /// The type as written, `"2.2"` or `"3.1"`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            InspectionDocument::TestReport22 => "2.2",
+            InspectionDocument::Certificate31 => "3.1",
+        }
+    }
+}
+
 /// Customer stems in a folder, sorted.
 pub fn list(dir: &Path) -> Vec<String> {
     let mut v: Vec<String> = std::fs::read_dir(dir)
@@ -150,6 +195,24 @@ fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result
     // Every text field ends up on a certificate: one line of printable text, no control or
     // bidirectional-override characters (issue #13, item 6).
     crate::support::text::check_line(&format!("{file}: name"), "customer name", &raw.name, 200)?;
+    for (i, line) in raw.address.iter().enumerate() {
+        crate::support::text::check_line(
+            &format!("{file}: address[{}]", i + 1),
+            "address line",
+            line,
+            120,
+        )?;
+    }
+    let inspection_document = match &raw.inspection_document {
+        None => None,
+        Some(t) => Some(InspectionDocument::parse(t).ok_or_else(|| {
+            Error::invalid(
+                format!("{file}: inspection_document"),
+                format!("'{t}' is not an EN 10204 document type resinlot issues"),
+                "Write inspection_document = \"3.1\" (inspection certificate) or \"2.2\" (test report), or leave it out.",
+            )
+        })?),
+    };
     let mut products = IndexMap::new();
     for (code, p) in raw.products {
         let place = |f: &str| format!("{file}: products.{code}{f}");
@@ -238,6 +301,9 @@ fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result
     Ok(Customer {
         id: id.to_string(),
         name: raw.name.trim().to_string(),
+        address: raw.address.iter().map(|l| l.trim().to_string()).collect(),
+        inspection_document,
+        show_uncertainty: raw.show_uncertainty,
         products,
         path: path.to_path_buf(),
     })

@@ -120,7 +120,7 @@ fn a_concession_lot_goes_to_its_customer_only_issue_14() {
         "{lookup}"
     );
     assert!(
-        lookup.contains("released under concession by R. Okafor, QA Manager"),
+        lookup.contains("released under concession (R. Okafor, QA Manager)"),
         "{lookup}"
     );
     w.cmd().arg("verify").assert().code(0);

@@ -4,6 +4,7 @@
 mod common;
 
 mod bad_input;
+mod certificate_content;
 mod certificate_faults;
 mod certificate_render;
 mod certify;
