@@ -54,6 +54,10 @@ pub struct Pending {
     pub customer: String,
     /// Reason, for a reissue.
     pub reason: String,
+    /// Purchase order, as given (empty for none or an internal certificate).
+    pub po: String,
+    /// Quantity shipped, as given.
+    pub quantity: String,
 }
 
 impl Issuer {
@@ -212,10 +216,20 @@ impl Issuer {
         html: bool,
         issued_at: &str,
     ) -> Result<Vec<Issued>> {
+        // Every log row is checked first (a purchase order in a log written before layout v3 is
+        // refused naming `resinlot upgrade`), so a refusal leaves no unlogged file behind.
+        let rows: Vec<Vec<Entry>> = pending
+            .iter()
+            .zip(rendered)
+            .map(|(p, r)| {
+                let sha = crate::record::trend_file::hex(&Sha256::digest(&r.pdf));
+                entries(p, &Self::file_name(&p.certificate), &sha, issued_at)
+            })
+            .collect();
+        log.check_rows(&rows.concat())?;
         let mut out = Vec::new();
-        for (p, r) in pending.iter().zip(rendered) {
-            let name = Self::file_name(&p.certificate);
-            let path = self.out.join(&name);
+        for ((p, r), rows) in pending.iter().zip(rendered).zip(&rows) {
+            let path = self.out.join(Self::file_name(&p.certificate));
             crate::support::output::write_atomic(&path, &r.pdf, false)?;
             if html {
                 crate::support::output::write_atomic(
@@ -224,19 +238,35 @@ impl Issuer {
                     false,
                 )?;
             }
-            let sha = crate::record::trend_file::hex(&Sha256::digest(&r.pdf));
-            log.append(&entry(p, &name, &sha, issued_at))?;
+            log.append_all(rows)?;
             out.push(Issued {
                 certificate_number: p.certificate.number.clone(),
                 path,
-                sha256: sha,
+                sha256: rows[0].sha256.clone(),
             });
         }
         Ok(out)
     }
 }
 
-/// The log entry of pending certificate `p`, filed as `file` with SHA-256 `sha`.
+/// The log rows of pending certificate `p`: one per lot, all with its number (issue #16).
+fn entries(p: &Pending, file: &str, sha: &str, issued_at: &str) -> Vec<Entry> {
+    let first = entry(p, file, sha, issued_at);
+    if p.certificate.lots.len() < 2 {
+        return vec![first];
+    }
+    p.certificate
+        .lots
+        .iter()
+        .map(|l| Entry {
+            lot: l.id.clone(),
+            ..first.clone()
+        })
+        .collect()
+}
+
+/// The log entry of pending certificate `p` (its first lot), filed as `file` with SHA-256
+/// `sha`.
 fn entry(p: &Pending, file: &str, sha: &str, issued_at: &str) -> Entry {
     Entry {
         number: p.certificate.number.clone(),
@@ -259,5 +289,8 @@ fn entry(p: &Pending, file: &str, sha: &str, issued_at: &str) -> Entry {
             .map(|s| s.number.clone())
             .unwrap_or_default(),
         reason: p.reason.clone(),
+        po: p.po.clone(),
+        quantity: p.quantity.clone(),
+        ..Default::default()
     }
 }

@@ -28,16 +28,88 @@ pub struct Args {
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     check_lot_id(&args.lot)?;
-    let Some(trend) = crate::record::query::find_lot(&args.register, &args.lot)? else {
-        let near = crate::record::query::suggestions(&args.register, &args.lot, 3)?;
+    let all = crate::record::certlog::entries(&args.register)?;
+    // A certificate number answers for the certificate and each of its lots (issue #16).
+    if let Some(cert) = crate::record::query::certificate(&all, &args.lot) {
+        let mut text = certificate_text(&cert);
+        let mut lots = Vec::new();
+        for lot in &cert.lots {
+            let (t, v) = lot_answer(args, lot, &all)?;
+            text.push('\n');
+            text.push_str(&t);
+            lots.push(v);
+        }
+        let text = if args.json {
+            serde_json::to_string_pretty(&json!({ "certificate": cert, "lots": lots }))? + "\n"
+        } else {
+            text
+        };
+        crate::support::output::print(&text)?;
+        return Ok(Outcome::AllGood);
+    }
+    let (text, v) = lot_answer(args, &args.lot, &all)?;
+    let text = if args.json {
+        serde_json::to_string_pretty(&v)? + "\n"
+    } else {
+        text
+    };
+    crate::support::output::print(&text)?;
+    Ok(Outcome::AllGood)
+}
+
+/// What a certificate number stands for: the delivery it certified and where it stands.
+fn certificate_text(c: &crate::record::certlog::Certificate) -> String {
+    let mut facts = vec![
+        ("Issued".to_string(), c.issued_at.clone()),
+        (
+            "To".to_string(),
+            if c.customer_name.is_empty() {
+                "internal (QC record)".to_string()
+            } else {
+                c.customer_name.clone()
+            },
+        ),
+    ];
+    if !c.po.is_empty() {
+        facts.push(("Purchase order".into(), c.po.clone()));
+    }
+    if !c.quantity.is_empty() {
+        facts.push(("Quantity".into(), c.quantity.clone()));
+    }
+    facts.push(("Lots".into(), c.lots.join(", ")));
+    facts.push(("Status".into(), c.status.as_str().to_string()));
+    if !c.supersedes.is_empty() {
+        facts.push((
+            "Supersedes".into(),
+            format!("{} ({})", c.supersedes, c.reason),
+        ));
+    }
+    facts.push(("File".into(), c.file.clone()));
+    format!(
+        "Certificate {} ({}):\n{}",
+        c.number,
+        c.product,
+        crate::support::table::pairs(&facts)
+    )
+}
+
+/// The text and JSON answers about one lot; refused (exit 1, with near ids) when the record
+/// does not hold it.
+fn lot_answer(
+    args: &Args,
+    lot: &str,
+    all: &[crate::record::certlog::Entry],
+) -> anyhow::Result<(String, Value)> {
+    let Some(trend) = crate::record::query::find_lot(&args.register, lot)? else {
+        let near = crate::record::query::suggestions(&args.register, lot, 3)?;
         let hint = if near.is_empty() {
-            "No similar lot ids are recorded either; check the id on the label.".to_string()
+            "No similar lot ids or certificate numbers are recorded either; check the id on the label.".to_string()
         } else {
             format!("Did you mean {}?", near.join(", "))
         };
         return Err(Error::Shortfall(format!(
             "lot '{}' is not in the record at {}. {hint}",
-            args.lot,
+            lot,
             args.register.display()
         ))
         .into());
@@ -53,18 +125,16 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let spec = specs
         .as_ref()
         .and_then(|s| s.revision(&product, trend.cell(current, "spec_revision")));
-    let certs: Vec<crate::record::certlog::Entry> =
-        crate::record::certlog::entries(&args.register)?
-            .into_iter()
-            .filter(|e| e.lot == args.lot)
-            .collect();
-    let text = if args.json {
-        serde_json::to_string_pretty(&as_json(&trend, &rows, &certs))? + "\n"
-    } else {
-        render(&trend, &rows, spec, &certs)
-    };
-    crate::support::output::print(&text)?;
-    Ok(Outcome::AllGood)
+    let status = crate::record::certlog::statuses(all);
+    let certs: Vec<crate::record::certlog::Entry> = all
+        .iter()
+        .filter(|e| e.lot == lot && e.is_issue())
+        .cloned()
+        .collect();
+    Ok((
+        render(&trend, &rows, spec, &certs, &status),
+        as_json(&trend, &rows, &certs),
+    ))
 }
 
 fn values(t: &Trend, row: &Row) -> Map<String, Value> {
@@ -118,7 +188,7 @@ pub fn as_json(t: &Trend, rows: &[&Row], certs: &[crate::record::certlog::Entry]
         "certificates".into(),
         json!(certs
             .iter()
-            .map(|c| json!({"number": c.number, "customer": c.customer_name, "issued_at": c.issued_at, "file": c.file}))
+            .map(|c| json!({"number": c.number, "customer": c.customer_name, "issued_at": c.issued_at, "file": c.file, "po": c.po, "quantity": c.quantity}))
             .collect::<Vec<_>>()),
     );
     obj.insert(
@@ -145,6 +215,7 @@ fn render(
     rows: &[&Row],
     spec: Option<&ProductSpec>,
     certs: &[crate::record::certlog::Entry],
+    status: &Statuses,
 ) -> String {
     let cur = rows[0];
     let c = |n: &str| t.cell(cur, n);
@@ -160,7 +231,7 @@ fn render(
     if !c("notes").is_empty() {
         out.push_str(&format!("Notes: {}\n", c("notes")));
     }
-    out.push_str(&certificates_text(certs));
+    out.push_str(&certificates_text(certs, status));
     out.push_str(&history_text(t, rows, spec));
     out
 }
@@ -263,8 +334,11 @@ fn derived_text<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> 
     out
 }
 
-/// The certificates issued for the lot.
-fn certificates_text(certs: &[crate::record::certlog::Entry]) -> String {
+/// Each certificate number's status ([`crate::record::certlog::statuses`]).
+type Statuses = std::collections::HashMap<String, crate::record::certlog::CertStatus>;
+
+/// The certificates issued for the lot, with purchase order and status.
+fn certificates_text(certs: &[crate::record::certlog::Entry], status: &Statuses) -> String {
     let mut out = String::new();
     out.push_str("\nCertificates issued:\n");
     if certs.is_empty() {
@@ -272,7 +346,7 @@ fn certificates_text(certs: &[crate::record::certlog::Entry]) -> String {
     }
     for e in certs {
         out.push_str(&format!(
-            "  {}  {}  {}{}\n",
+            "  {}  {}  {}{}{}{}\n",
             e.number,
             if crate::record::certfiles::is_void(e) {
                 "VOID (a file found without its log entry; not a certificate)"
@@ -282,6 +356,17 @@ fn certificates_text(certs: &[crate::record::certlog::Entry]) -> String {
                 e.customer_name.as_str()
             },
             e.issued_at,
+            if e.po.is_empty() {
+                String::new()
+            } else {
+                format!("  PO {}", e.po)
+            },
+            match status.get(&e.number) {
+                Some(s) if *s != crate::record::certlog::CertStatus::Current => {
+                    format!("  [{}]", s.as_str())
+                }
+                _ => String::new(),
+            },
             if e.supersedes.is_empty() {
                 String::new()
             } else {

@@ -346,6 +346,8 @@ fn prepare_certificates(
                 Plan::Retest { reason, .. } => reason.clone(),
                 _ => String::new(),
             },
+            po: String::new(),
+            quantity: String::new(),
         });
     }
     Ok(pending)

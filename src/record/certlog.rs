@@ -153,8 +153,9 @@ pub fn anchors(t: &Trend) -> Vec<Anchor> {
         .collect()
 }
 
-/// One issued certificate.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+/// One row of the log: a certificate issued for one lot (a certificate for several lots has a
+/// row per lot, all with its number), or, when `event` is set, an event about a certificate.
+#[derive(Debug, Clone, PartialEq, Default, serde::Serialize)]
 pub struct Entry {
     /// Certificate number.
     pub number: String,
@@ -176,6 +177,19 @@ pub struct Entry {
     pub supersedes: String,
     /// Reason for a reissue.
     pub reason: String,
+    /// Empty for an issue; otherwise what happened to certificate `number` (layout v3).
+    pub event: String,
+    /// The customer's purchase order (layout v3; empty when none was given).
+    pub po: String,
+    /// Quantity shipped, as written on the certificate (layout v3).
+    pub quantity: String,
+}
+
+impl Entry {
+    /// True for a row that issued a certificate (an empty `event`), not an event about one.
+    pub fn is_issue(&self) -> bool {
+        self.event.is_empty()
+    }
 }
 
 fn entry(t: &Trend, row: &trend_file::Row) -> Entry {
@@ -191,7 +205,130 @@ fn entry(t: &Trend, row: &trend_file::Row) -> Entry {
         sha256: c("sha256"),
         supersedes: c("supersedes"),
         reason: c("reason"),
+        event: c("event"),
+        po: c("po"),
+        quantity: c("quantity"),
     }
+}
+
+/// Where a certificate stands (issue #16).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum CertStatus {
+    /// Issued and neither superseded nor withdrawn.
+    Current,
+    /// A later certificate supersedes it (a reissue) or an event row says so.
+    Superseded,
+    /// An event row withdraws it.
+    Withdrawn,
+}
+
+impl CertStatus {
+    /// The word used in tables, JSON and CSV.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            CertStatus::Current => "current",
+            CertStatus::Superseded => "superseded",
+            CertStatus::Withdrawn => "withdrawn",
+        }
+    }
+}
+
+/// The status of every certificate number in `entries`, read in one pass; the one place a
+/// status is decided. A certificate is withdrawn when an event row about its number says
+/// `withdrawn` (or `withdrawal`), superseded when an issue row supersedes it or an event row
+/// says `superseded`, current otherwise; withdrawal outranks supersession.
+pub fn statuses(entries: &[Entry]) -> std::collections::HashMap<String, CertStatus> {
+    let mut out: std::collections::HashMap<String, CertStatus> = entries
+        .iter()
+        .filter(|e| e.is_issue())
+        .map(|e| (e.number.clone(), CertStatus::Current))
+        .collect();
+    let mut mark = |number: &str, s: CertStatus| {
+        if let Some(cur) = out.get_mut(number) {
+            if *cur != CertStatus::Withdrawn {
+                *cur = s;
+            }
+        }
+    };
+    for e in entries {
+        if e.is_issue() {
+            if !e.supersedes.is_empty() {
+                mark(&e.supersedes, CertStatus::Superseded);
+            }
+        } else if e.event.starts_with("withdraw") {
+            mark(&e.number, CertStatus::Withdrawn);
+        } else if e.event.starts_with("supersede") {
+            mark(&e.number, CertStatus::Superseded);
+        }
+    }
+    out
+}
+
+/// One certificate as the log records it: its issue rows (one per lot) gathered by number.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Certificate {
+    /// Certificate number.
+    pub number: String,
+    /// When it was issued (RFC 3339, UTC).
+    pub issued_at: String,
+    /// Product code.
+    pub product: String,
+    /// Customer file stem; empty for an internal certificate.
+    pub customer: String,
+    /// Customer's legal name.
+    pub customer_name: String,
+    /// Purchase order (empty when none was given).
+    pub po: String,
+    /// Quantity as written.
+    pub quantity: String,
+    /// The lots it certifies, in the order they were logged.
+    pub lots: Vec<String>,
+    /// File name of the PDF.
+    pub file: String,
+    /// SHA-256 of the PDF.
+    pub sha256: String,
+    /// Number of the certificate it supersedes.
+    pub supersedes: String,
+    /// Reason for a reissue.
+    pub reason: String,
+    /// Current, superseded or withdrawn ([`statuses`]).
+    pub status: CertStatus,
+}
+
+/// The certificates of `entries`, in log order, each with all its lots and its status.
+pub fn certificates(entries: &[Entry]) -> Vec<Certificate> {
+    let status = statuses(entries);
+    let mut out: Vec<Certificate> = Vec::new();
+    let mut at: std::collections::HashMap<&str, usize> = std::collections::HashMap::new();
+    for e in entries.iter().filter(|e| e.is_issue()) {
+        if let Some(&i) = at.get(e.number.as_str()) {
+            if !out[i].lots.contains(&e.lot) {
+                out[i].lots.push(e.lot.clone());
+            }
+            continue;
+        }
+        at.insert(&e.number, out.len());
+        out.push(Certificate {
+            number: e.number.clone(),
+            issued_at: e.issued_at.clone(),
+            product: e.product.clone(),
+            customer: e.customer.clone(),
+            customer_name: e.customer_name.clone(),
+            po: e.po.clone(),
+            quantity: e.quantity.clone(),
+            lots: vec![e.lot.clone()],
+            file: e.file.clone(),
+            sha256: e.sha256.clone(),
+            supersedes: e.supersedes.clone(),
+            reason: e.reason.clone(),
+            status: status
+                .get(&e.number)
+                .copied()
+                .unwrap_or(CertStatus::Current),
+        });
+    }
+    out
 }
 
 /// Every entry of the log (none when it does not exist yet); the chain is verified.
@@ -269,8 +406,42 @@ impl Log {
     /// Appends an entry and syncs it to disk; the lot's latest row in its trend file is
     /// recorded as the certificate's anchor (a log in the earlier layout has no column for it).
     pub fn append(&mut self, e: &Entry) -> Result<()> {
+        self.append_all(std::slice::from_ref(e))
+    }
+
+    /// Appends the rows of one certificate (one per lot, the same number) in a single write
+    /// and syncs them: every row is encoded (and a value the log's layout has no column for
+    /// refused) before anything is written, so a refusal writes no row.
+    pub fn append_all(&mut self, rows: &[Entry]) -> Result<()> {
+        let mut cells = Vec::with_capacity(rows.len());
+        for e in rows {
+            cells.push(self.cells(e)?);
+        }
+        let borrowed: Vec<Vec<(&str, String)>> = cells
+            .iter()
+            .map(|c| c.iter().map(|(k, v)| (*k, v.clone())).collect())
+            .collect();
+        self.locked.append_rows(&borrowed)?;
+        self.locked.sync()
+    }
+
+    /// Checks, writing nothing, that each of `rows` could be appended: a value for a column
+    /// the log's layout lacks is refused naming `resinlot upgrade`, a cell that would not read
+    /// back is refused naming its column.
+    pub fn check_rows(&mut self, rows: &[Entry]) -> Result<()> {
+        for e in rows {
+            let cells = self.cells(e)?;
+            let borrowed: Vec<(&str, String)> =
+                cells.iter().map(|(k, v)| (*k, v.clone())).collect();
+            trend_file::encode_row(&self.locked.trend, &borrowed)?;
+        }
+        Ok(())
+    }
+
+    /// The cells of `e`'s row, its anchor included.
+    fn cells(&mut self, e: &Entry) -> Result<Vec<(&'static str, String)>> {
         let (trend_row, trend_chain) = self.anchor(&e.product, &e.lot)?;
-        self.locked.append(&[
+        Ok(vec![
             ("trend_row", trend_row),
             ("trend_chain", trend_chain),
             ("issued_at", e.issued_at.clone()),
@@ -283,8 +454,10 @@ impl Log {
             ("sha256", e.sha256.clone()),
             ("supersedes", e.supersedes.clone()),
             ("reason", e.reason.clone()),
-        ])?;
-        self.locked.sync()
+            ("event", e.event.clone()),
+            ("po", e.po.clone()),
+            ("quantity", e.quantity.clone()),
+        ])
     }
 
     /// The row number and chain value of the latest row of `lot` in `product`'s trend file
@@ -375,6 +548,9 @@ mod tests {
             sha256: "ab".into(),
             supersedes: String::new(),
             reason: String::new(),
+            po: "PO 1".into(),
+            quantity: "20 t".into(),
+            ..Default::default()
         };
         log.append(&e).unwrap();
         assert_eq!(log.next_number("FW-"), "FW-000002");
@@ -416,6 +592,7 @@ mod tests {
             sha256: "ab".into(),
             supersedes: String::new(),
             reason: String::new(),
+            ..Default::default()
         }
     }
 
@@ -474,5 +651,55 @@ mod tests {
             (a[0].row, a[0].chain.as_str(), a[0].line),
             (1, chain.as_str(), 3)
         );
+    }
+
+    /// Issue #16: the rows of a several-lot certificate gather under one number; a reissue
+    /// supersedes, an event row withdraws; a refused row writes none of the batch.
+    #[test]
+    fn certificates_gather_lots_and_read_their_status_issue_16() {
+        let row = |number: &str, lot: &str| Entry {
+            lot: lot.into(),
+            customer: "acme".into(),
+            po: "4711".into(),
+            ..entry(number)
+        };
+        let mut reissue = row("FW-000003", "L1");
+        reissue.supersedes = "FW-000001".into();
+        let withdrawal = Entry {
+            event: "withdrawn".into(),
+            ..entry("FW-000002")
+        };
+        let rows = vec![
+            row("FW-000001", "L1"),
+            row("FW-000001", "L2"),
+            row("FW-000002", "L3"),
+            reissue,
+            withdrawal,
+        ];
+        let c = certificates(&rows);
+        assert_eq!(c.len(), 3);
+        assert_eq!(c[0].lots, ["L1", "L2"]);
+        assert_eq!(c[0].status, CertStatus::Superseded);
+        assert_eq!(c[1].status, CertStatus::Withdrawn);
+        assert_eq!(c[2].status, CertStatus::Current);
+        assert_eq!(c[2].po, "4711");
+
+        let dir = tempfile::tempdir().unwrap();
+        let wait = Wait {
+            timeout: Duration::from_secs(5),
+        };
+        std::fs::write(path(dir.path()), format!("{}\n", COLUMNS_V2.join(","))).unwrap();
+        let mut log = Log::lock(dir.path(), wait).unwrap();
+        let before = std::fs::read(path(dir.path())).unwrap();
+        let e = log
+            .append_all(&[entry("FW-000001"), row("FW-000001", "L2")])
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("resinlot upgrade"), "{e}");
+        assert_eq!(std::fs::read(path(dir.path())).unwrap(), before);
+        log.append_all(&[entry("FW-000001"), entry("FW-000001")])
+            .unwrap();
+        drop(log);
+        assert_eq!(entries(dir.path()).unwrap().len(), 2);
     }
 }

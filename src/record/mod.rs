@@ -11,6 +11,7 @@ pub mod integrity;
 pub mod layout;
 pub mod lines;
 pub mod query;
+pub mod shipments;
 pub mod trend_file;
 pub mod upgrade;
 pub mod workspace;

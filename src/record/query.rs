@@ -97,6 +97,23 @@ pub fn find_lot(register: &Path, lot: &str) -> Result<Option<Trend>> {
     Ok(None)
 }
 
+/// The certificate numbered `number` (case-insensitive) among the log's `entries`, with all
+/// its lots and its status (issue #16: `lookup FW-000123`).
+pub fn certificate(
+    entries: &[crate::record::certlog::Entry],
+    number: &str,
+) -> Option<crate::record::certlog::Certificate> {
+    if !entries
+        .iter()
+        .any(|e| e.is_issue() && e.number.eq_ignore_ascii_case(number))
+    {
+        return None;
+    }
+    crate::record::certlog::certificates(entries)
+        .into_iter()
+        .find(|c| c.number.eq_ignore_ascii_case(number))
+}
+
 /// Up to `n` existing lot ids closest to `lot` (Jaro-Winkler similarity, case-insensitive).
 pub fn suggestions(register: &Path, lot: &str, n: usize) -> Result<Vec<String>> {
     let target = lot.to_ascii_uppercase();

@@ -22,4 +22,5 @@ mod record_anchors;
 mod record_faults;
 mod record_tail;
 mod release;
+mod shipments;
 mod trend;
