@@ -214,16 +214,18 @@ fn recorded_lots(args: &Args, wait: Wait) -> anyhow::Result<(Locked, Vec<LotReco
         };
         match &path {
             None => path = Some((found.path, lot.clone())),
-            Some((p, first)) if *p != found.path => return Err(Error::invalid(
-                format!("certify {first} {lot}"),
-                format!(
+            Some((p, first)) if *p != found.path => {
+                return Err(Error::invalid(
+                    format!("certify {first} {lot}"),
+                    format!(
                     "lot {first} is in {} and lot {lot} in {}: one certificate covers one product",
                     p.display(),
                     found.path.display()
                 ),
-                "Certify the lots of each product on their own certificate.",
-            )
-            .into()),
+                    "Certify the lots of each product on their own certificate.",
+                )
+                .into())
+            }
             Some(_) => {}
         }
     }

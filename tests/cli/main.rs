@@ -12,6 +12,7 @@ mod demo_command;
 mod demo_data;
 mod demo_safety;
 mod endgroup;
+mod find_across;
 mod flags;
 mod intake_scale;
 mod lookup;
