@@ -7,7 +7,7 @@
 //! | [`error`] | the typed errors and exit-code mapping of the library |
 //! | [`support`] | clock, atomic writes and the output guard, TOML and CSV input, printable text, tables, ids, fonts, PDF identity |
 //! | [`stats`] | I-MR, run rules, capability, distributions, regression: the numerics |
-//! | [`chem`] | end-group analysis, recipes, water balance, Carothers and Flory–Stockmayer |
+//! | [`chem`] | end-group analysis, recipes, water balance, Carothers and Stockmayer gel points, hydroxyl methods |
 //! | [`spec`] | product specs, revisions, customers, the decision rule |
 //! | [`lot`] | lab results intake, one lot evaluated against its spec |
 //! | [`record`] | trend files, certificate log, integrity, queries, workspaces |

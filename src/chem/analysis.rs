@@ -2,6 +2,8 @@
 
 use serde::Serialize;
 
+use crate::chem::gel::{self, GelMargin, GelPoints, GelState};
+use crate::chem::hydroxyl_method::AcidityCorrection;
 use crate::chem::recipe::Recipe;
 use crate::chem::stepgrowth as chem;
 use crate::error::{non_negative, positive, Error, Result};
@@ -11,10 +13,11 @@ use crate::error::{non_negative, positive, Error, Result};
 pub struct Titration {
     /// Acid value (mg KOH/g).
     pub av: f64,
-    /// Hydroxyl value as entered (mg KOH/g): raw acetylation value when `acidity_correction`.
+    /// Hydroxyl value as entered (mg KOH/g): a raw result when `acidity_correction` applies.
     pub ohv: f64,
-    /// True when `ohv` is a raw acetylation result that needs AV added.
-    pub acidity_correction: bool,
+    /// How AV enters the raw result: added (acetylation, OHV − AV measured), none, or
+    /// subtracted (ASTM E1899, OHV + AV measured); see [`crate::chem::hydroxyl_method`].
+    pub acidity_correction: AcidityCorrection,
     /// End groups per molecule (2 for linear chains).
     pub functionality: f64,
     /// Expanded uncertainty of AV (k = 2), mg KOH/g.
@@ -74,6 +77,8 @@ pub struct Analysis {
     pub acid_value: f64,
     /// Hydroxyl value after the acidity correction, same basis.
     pub hydroxyl_value_corrected: f64,
+    /// The acidity correction applied to the entered hydroxyl value: add, none or subtract.
+    pub acidity_correction: AcidityCorrection,
     /// End-group Mn (g/mol).
     pub mn: Option<f64>,
     /// Expanded uncertainty of Mn (k = 2), g/mol, when both input uncertainties are known.
@@ -124,14 +129,31 @@ pub struct RecipeFigures {
     pub xn_carothers: Option<f64>,
     /// Carothers gel point (minority extent), when f_avg > 2.
     pub gel_point_carothers: Option<f64>,
-    /// Flory-Stockmayer gel point (minority extent), with branch units.
+    /// Statistical gel point (minority extent), Stockmayer's condition for any mix of
+    /// functionalities, monofunctional units included.
     pub gel_point_statistical: Option<f64>,
+    /// Both gel points in full: extents of both groups, f_w of both sides, the acid value at
+    /// the statistical gel point, or why there is none.
+    pub gel: GelPoints,
     /// Extent of the minority groups now.
     pub extent_of_reaction_minority: f64,
     /// Mn from batch mass / molecules (g/mol).
     pub mn_recipe: Option<f64>,
     /// (end-group Mn - recipe Mn) / recipe Mn, in percent.
     pub mn_disagreement_percent: Option<f64>,
+}
+
+impl RecipeFigures {
+    /// Where this titration stands against the statistical gel point, with the GEL WARNING
+    /// text when it is near or past it ([`gel::gel_state`], [`gel::gel_warning`]).
+    pub fn gel_guard(&self, acid_value: f64, margin: GelMargin) -> (GelState, Option<String>) {
+        let p = self.extent_of_reaction_minority;
+        let state = gel::gel_state(p, acid_value, &self.gel, margin);
+        (
+            state,
+            gel::gel_warning("the batch", p, state, &self.gel, margin),
+        )
+    }
 }
 
 /// Runs the whole analysis; validates first.
@@ -160,6 +182,7 @@ pub fn analyse(t: &Titration, recipe: Option<&Recipe>) -> Result<Analysis> {
     Ok(Analysis {
         acid_value: av,
         hydroxyl_value_corrected: ohv,
+        acidity_correction: t.acidity_correction,
         mn,
         mn_uncertainty,
         hydroxyl_equivalent_weight: chem::hydroxyl_equivalent_weight(ohv),
@@ -178,6 +201,7 @@ fn recipe_figures(r: &Recipe, av: f64, ohv: f64, mn: Option<f64>) -> Result<Reci
     let shortfall = chem::hydroxyl_shortfall_eq(&pr, ohv);
     let main = r.main_hydroxyl_component();
     let mn_recipe = chem::mn_recipe(&pr);
+    let gel = crate::chem::gel::gel_points(r);
     Ok(RecipeFigures {
         recipe_name: r.name.clone(),
         initial_acid_value: av0,
@@ -201,7 +225,8 @@ fn recipe_figures(r: &Recipe, av: f64, ohv: f64, mn: Option<f64>) -> Result<Reci
         average_functionality: f_avg,
         xn_carothers: chem::xn_carothers(p_min, f_avg),
         gel_point_carothers: chem::gel_point_carothers(f_avg),
-        gel_point_statistical: chem::branch_input(r).and_then(|b| chem::gel_point_statistical(&b)),
+        gel_point_statistical: gel.statistical.map(|g| g.p_minority),
+        gel,
         extent_of_reaction_minority: p_min,
         mn_recipe,
         mn_disagreement_percent: match (mn, mn_recipe) {
@@ -220,7 +245,7 @@ mod tests {
         Titration {
             av,
             ohv,
-            acidity_correction: false,
+            acidity_correction: false.into(),
             functionality: 2.0,
             u_av: Some(0.05),
             u_ohv: Some(0.8),

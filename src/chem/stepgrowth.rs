@@ -4,6 +4,7 @@
 
 use serde::Serialize;
 
+use crate::chem::hydroxyl_method::AcidityCorrection;
 use crate::chem::recipe::Charge;
 use crate::error::{Error, Result};
 
@@ -31,41 +32,39 @@ pub fn hydroxyl_equivalent_weight(ohv_corrected: f64) -> Option<f64> {
     (ohv_corrected > 0.0).then(|| KOH_MG_PER_MOL / ohv_corrected)
 }
 
-/// Acidity correction of an acetylation hydroxyl value: OHV = raw + AV.
+/// Acidity correction of a raw hydroxyl value: OHV = raw + c·AV, c = +1, 0 or −1.
 ///
-/// Acetylation methods (ISO 4629-1/-2, ASTM D4274 method A) back-titrate the acetic acid and so
-/// measure OHV - AV; the sample's own acidity must be added back. Isocyanate-reagent methods need
-/// no correction, which is why the caller states it explicitly.
-pub fn corrected_hydroxyl_value(entered: f64, av: f64, acidity_correction: bool) -> f64 {
-    if acidity_correction {
-        entered + av
-    } else {
-        entered
-    }
+/// Acetylation methods (ISO 4629-1/-2, DIN 53240, ASTM D4274) back-titrate the reagent acid
+/// and so measure OHV − AV: the sample's own acidity is added back (c = +1). ASTM E1899
+/// (isocyanate reagent) titrates the sample's acid with the carbamate, OHV + AV (c = −1). The
+/// per-method table with its sources is [`crate::chem::hydroxyl_method::METHODS`]; `true`
+/// and `false` mean add and none, as the historical flag did.
+pub fn corrected_hydroxyl_value(
+    entered: f64,
+    av: f64,
+    correction: impl Into<AcidityCorrection>,
+) -> f64 {
+    entered + correction.into().sign() * av
 }
 
 /// Expanded uncertainty of the end-group Mn from the expanded uncertainties of AV and OHV.
 ///
 /// Mn = 56100 f / S with S = AV + OHV. For uncorrelated inputs (GUM, JCGM 100:2008 §5.1.2),
-/// U(Mn) = Mn · U(S) / S. With the acidity correction S = 2·AV + OHV_raw, so
-/// U(S)² = (2·U_AV)² + U_OHV²; without it U(S)² = U_AV² + U_OHV². Expanded uncertainties of the
-/// same coverage factor (k = 2) propagate linearly in this first-order form.
+/// U(Mn) = Mn · U(S) / S. With OHV = raw + c·AV, S = (1 + c)·AV + OHV_raw, so
+/// U(S)² = ((1 + c)·U_AV)² + U_OHV²: (2·U_AV)² for an added correction, U_AV² without one, and
+/// no AV term at all for a subtracted one. Expanded uncertainties of the same coverage factor
+/// (k = 2) propagate linearly in this first-order form.
 pub fn mn_expanded_uncertainty(
     mn: f64,
     av: f64,
     u_av: f64,
     ohv_entered: f64,
     u_ohv: f64,
-    acidity_correction: bool,
+    correction: impl Into<AcidityCorrection>,
 ) -> f64 {
-    let (sum, u_sum) = if acidity_correction {
-        (
-            2.0 * av + ohv_entered,
-            ((2.0 * u_av).powi(2) + u_ohv.powi(2)).sqrt(),
-        )
-    } else {
-        (av + ohv_entered, (u_av.powi(2) + u_ohv.powi(2)).sqrt())
-    };
+    let k = 1.0 + correction.into().sign();
+    let sum = k * av + ohv_entered;
+    let u_sum = ((k * u_av).powi(2) + u_ohv.powi(2)).sqrt();
     mn * u_sum / sum
 }
 
@@ -158,6 +157,16 @@ pub fn progress_at(ch: &Charge, av: f64) -> Result<Progress> {
     })
 }
 
+/// Acid value of the batch after `esters` ester bonds: the inverse of [`progress_at`].
+///
+/// Water W = max(0, x − R) mol, mass m = m0 − 0.018015·W kg, AV = 56.1·(E_A − x)/m (mg KOH/g
+/// with groups in mol and m in kg). Source: the same first-principles mass balance as
+/// [`progress_at`] (Odian §2-1).
+pub fn acid_value_at_esters(ch: &Charge, esters: f64) -> f64 {
+    let water_kg = (esters - ch.anhydride_rings).max(0.0) * WATER_G_PER_MOL / 1000.0;
+    KOH_MG_PER_MOL * (ch.acid_eq - esters).max(0.0) / ((ch.mass_kg - water_kg) * 1000.0)
+}
+
 /// The naive estimate p = 1 - AV/AV0, which ignores the water lost (shown for comparison only).
 pub fn naive_extent(av: f64, av0: f64) -> f64 {
     1.0 - av / av0
@@ -205,7 +214,9 @@ pub struct BranchInput {
     pub branch_is_hydroxyl: bool,
 }
 
-/// Flory-Stockmayer statistical gel point, as the minority-group extent of reaction.
+/// Flory's closed-form statistical gel point for one branch type (A-A + B-B + A_f, no
+/// monofunctional units), as the minority-group extent of reaction. The tool uses the general
+/// [`crate::chem::gel::gel_point_stockmayer`]; this form is its check for the one-type case.
 ///
 /// Branching coefficient α = P·ρ / (1 - P·(1-ρ)) with P = p_A·p_B (product of the two groups'
 /// extents, equal to x²/(E_A·E_B)) and ρ the fraction of the branched group type on branch
@@ -227,49 +238,6 @@ pub fn gel_point_statistical(b: &BranchInput) -> Option<f64> {
     let x_c = (p_c * b.acid_eq * b.hydroxyl_eq).sqrt();
     let p_min = x_c / b.acid_eq.min(b.hydroxyl_eq);
     (p_min <= 1.0).then_some(p_min)
-}
-
-/// Extracts the branch-unit input from a recipe, or None when there are no branch units or
-/// both group types carry them (the single-branch-type formula does not apply).
-pub fn branch_input(recipe: &crate::chem::recipe::Recipe) -> Option<BranchInput> {
-    let ch = recipe.charge();
-    let mut oh_branch = (0.0, 0u32);
-    let mut acid_branch = (0.0, 0u32);
-    for c in &recipe.components {
-        if c.hydroxyl_groups > 2 {
-            if oh_branch.1 != 0 && oh_branch.1 != c.hydroxyl_groups {
-                return None;
-            }
-            oh_branch = (oh_branch.0 + c.hydroxyl_equivalents(), c.hydroxyl_groups);
-        }
-        if c.acid_groups > 2 {
-            if acid_branch.1 != 0 && acid_branch.1 != c.acid_groups {
-                return None;
-            }
-            acid_branch = (acid_branch.0 + c.acid_equivalents(), c.acid_groups);
-        }
-    }
-    let base = BranchInput {
-        acid_eq: ch.acid_eq,
-        hydroxyl_eq: ch.hydroxyl_eq,
-        branch_eq: 0.0,
-        branch_functionality: 0,
-        branch_is_hydroxyl: true,
-    };
-    match (oh_branch.1 > 0, acid_branch.1 > 0) {
-        (true, false) => Some(BranchInput {
-            branch_eq: oh_branch.0,
-            branch_functionality: oh_branch.1,
-            ..base
-        }),
-        (false, true) => Some(BranchInput {
-            branch_eq: acid_branch.0,
-            branch_functionality: acid_branch.1,
-            branch_is_hydroxyl: false,
-            ..base
-        }),
-        _ => None,
-    }
 }
 
 /// Mn from the recipe: batch mass / molecules left, in g/mol (no cyclisation, no gel).
@@ -409,6 +377,19 @@ mod tests {
     }
 
     #[test]
+    fn acid_value_at_esters_inverts_the_balance() {
+        // Round trip through progress_at (first principles), before and after the rings open.
+        let ch = charge(&[
+            (0.14812, 148.12, 2, 0, true),
+            (0.091308, 76.09, 0, 2, false),
+        ]);
+        for x in [0.3, 1.0, 1.5, 1.99] {
+            let av = acid_value_at_esters(&ch, x);
+            assert_relative_eq!(progress_at(&ch, av).unwrap().esters, x, max_relative = 1e-9);
+        }
+    }
+
+    #[test]
     fn carothers_reduces_to_linear_forms() {
         // Odian §2-6: Xn = (1+r)/(1+r-2rp); r = 1 gives 1/(1-p).
         for &(r, p) in &[(1.0, 0.99), (0.99, 0.95), (0.9, 0.8)] {
@@ -488,6 +469,21 @@ mod tests {
         assert_relative_eq!(u, 1989.362 * 0.806226 / 56.4, max_relative = 1e-5);
         let u_plain = mn_expanded_uncertainty(mn, 0.6, 0.05, 55.8, 0.8, false);
         assert!(u_plain < u);
+    }
+
+    #[test]
+    fn subtracted_correction_leaves_av_out_of_the_sum() {
+        // ASTM E1899 measures OHV + AV (chem::hydroxyl_method): OHV = 56.4 − 0.6 = 55.8, and
+        // S = AV + OHV = raw = 56.4 carries no AV uncertainty (GUM first order, by hand).
+        let c = AcidityCorrection::Subtract;
+        assert_relative_eq!(
+            corrected_hydroxyl_value(56.4, 0.6, c),
+            55.8,
+            epsilon = 1e-12
+        );
+        let mn = mn_end_group(0.6, 55.8, 2.0).unwrap();
+        let u = mn_expanded_uncertainty(mn, 0.6, 0.05, 56.4, 0.8, c);
+        assert_relative_eq!(u, mn * 0.8 / 56.4, max_relative = 1e-12);
     }
 
     #[test]

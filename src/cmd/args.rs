@@ -225,9 +225,49 @@ pub fn reaction_order(text: &str) -> Result<f64, String> {
     }
 }
 
+/// Parses `--gel-margin`: a plain number is Δp, the minority-group extent (0 < Δp < 1); a
+/// number followed by `av` (e.g. `1.5av`) is an acid-value margin in mg KOH/g above the acid
+/// value at the statistical gel point.
+pub fn gel_margin(text: &str) -> Result<crate::chem::gel::GelMargin, String> {
+    use crate::chem::gel::GelMargin;
+    let t = text.trim().to_ascii_lowercase();
+    let (number, in_av) = match t.strip_suffix("av") {
+        Some(n) => (n.trim(), true),
+        None => (t.as_str(), false),
+    };
+    let usage = "give an extent of reaction such as 0.005, or an acid value such as 1.5av";
+    let v: f64 = number
+        .parse()
+        .map_err(|_| format!("'{text}' is not a margin; {usage}"))?;
+    if !v.is_finite() || v < 0.0 {
+        return Err(format!("'{text}' is not a margin of zero or more; {usage}"));
+    }
+    if in_av {
+        crate::chem::ranges::group_value("--gel-margin", v).map_err(|e| e.to_string())?;
+        Ok(GelMargin::AcidValue(v))
+    } else if v >= 1.0 {
+        Err(format!(
+            "{v} is an extent of reaction of 1 or more, so every state would be near the gel point; {usage}"
+        ))
+    } else {
+        Ok(GelMargin::Extent(v))
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn gel_margins() {
+        use crate::chem::gel::GelMargin;
+        assert_eq!(gel_margin("0.01").unwrap(), GelMargin::Extent(0.01));
+        assert_eq!(gel_margin("1.5AV").unwrap(), GelMargin::AcidValue(1.5));
+        assert_eq!(gel_margin(" 2 av").unwrap(), GelMargin::AcidValue(2.0));
+        for bad in ["", "x", "-0.1", "1", "nan", "5000av", "inf"] {
+            assert!(gel_margin(bad).is_err(), "{bad}");
+        }
+    }
 
     #[test]
     fn typed_values() {

@@ -12,7 +12,7 @@ use crate::cmd::args::{CertificatesFolder, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::cook::arrhenius::{self, ArrheniusReport};
 use crate::cook::chart;
-use crate::cook::fit::{self, CookReport, Target};
+use crate::cook::fit::{self, CookReport, GelGuard, Target};
 use crate::cook::kinetics;
 use crate::cook::samples;
 use crate::error::Error;
@@ -65,6 +65,16 @@ pub struct Args {
     /// n-2 degrees of freedom). No target and no chart are used in this mode.
     #[arg(long, conflicts_with_all = ["chart", "target_av", "target_mn"])]
     pub arrhenius: bool,
+    /// How close to the recipe's statistical gel point counts as near, as Δp in extent of
+    /// reaction of the minority groups (e.g. 0.005) or as an acid value above the one at the
+    /// gel point (e.g. 1.5av, mg KOH/g). A target or last sample that near prints a GEL
+    /// WARNING. Default: 0.005.
+    #[arg(long, value_name = "DP|AVav", value_parser = crate::cmd::args::gel_margin, conflicts_with = "arrhenius")]
+    pub gel_margin: Option<crate::chem::gel::GelMargin>,
+    /// Predict the end point even when the target lies at or past the statistical gel point
+    /// (with a GEL WARNING). Without it such a target is refused with exit status 1. Default: off.
+    #[arg(long, conflicts_with = "arrhenius")]
+    pub beyond_gel: bool,
     /// Write an SVG chart of the linearised quantity against time to this file; an existing
     /// file there is replaced only if it is a resinlot chart, and the chart never goes into the
     /// workspace folders. Default: no chart.
@@ -129,7 +139,11 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         (None, Some(mn)) => Target::Mn(mn),
         (None, None) => unreachable!("clap requires a target"),
     };
-    let rep = fit::analyse(&data, &recipe, target, order, args.exclude_below)
+    let guard = GelGuard {
+        margin: args.gel_margin.unwrap_or_default(),
+        beyond_gel: args.beyond_gel,
+    };
+    let rep = fit::analyse(&data, &recipe, target, order, args.exclude_below, guard)
         .map_err(|e| crate::cmd::args::name_flags(e, FLAGS))?;
     let chart = match &args.chart {
         Some(path) => Some((path, chart_bytes(&rep, &recipe)?)),
@@ -194,6 +208,9 @@ pub fn render(r: &CookReport) -> String {
     out.push_str(&crate::support::table::pairs(&pairs));
     for w in &r.warnings {
         out.push_str(&format!("warning: {}: {}\n", w.place, w.message));
+    }
+    for w in &r.gel_warnings {
+        out.push_str(&format!("\n{w}\n"));
     }
     out.push('\n');
     out.push_str(crate::cook::correction::SAFETY_CAUTION);
@@ -311,6 +328,18 @@ fn end_point_pairs(r: &CookReport) -> Vec<(String, String)> {
             fmt_pi(r.predicted_elapsed_min_pi95),
         ),
         (
+            "  extrapolation".into(),
+            format!(
+                "{:.1} sampled time spans from the first sample{}",
+                r.extrapolation_ratio,
+                if r.extrapolation_ratio > fit::EXTRAPOLATION_LIMIT {
+                    format!(" (beyond {}: see the warning)", fit::EXTRAPOLATION_LIMIT)
+                } else {
+                    String::new()
+                }
+            ),
+        ),
+        (
             "Mn at the end point (recipe)".into(),
             r.predicted_mn
                 .map_or("not computable".into(), |m| format!("{m:.0} g/mol")),
@@ -320,7 +349,29 @@ fn end_point_pairs(r: &CookReport) -> Vec<(String, String)> {
             r.predicted_xn
                 .map_or("not computable".into(), |x| format!("{x:.2}")),
         ),
+        ("Gel point, statistical".into(), gel_text(r)),
     ]
+}
+
+/// The statistical gel point of the recipe with its acid value, or why there is none.
+fn gel_text(r: &CookReport) -> String {
+    match (r.gel.statistical, r.gel.statistical_none) {
+        (Some(g), _) => format!(
+            "p_c = {:.5}{}; target {}, guard margin {}",
+            g.p_minority,
+            r.gel
+                .acid_value_at_gel
+                .map_or(String::new(), |av| format!(" (AV {av:.2} mg KOH/g)")),
+            match r.target_gel_state {
+                crate::chem::gel::GelState::Clear => "clear of it",
+                crate::chem::gel::GelState::Near => "near it",
+                crate::chem::gel::GelState::Beyond => "past it",
+            },
+            r.gel_margin
+        ),
+        (None, Some(why)) => why.describe().into(),
+        (None, None) => "none".into(),
+    }
 }
 
 /// The viscosity–Mn power law and the viscosity expected at the end point.

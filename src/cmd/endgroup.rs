@@ -5,6 +5,8 @@ use std::path::PathBuf;
 use anyhow::Context;
 
 use crate::chem::analysis::{analyse, Analysis, Titration};
+use crate::chem::gel::{GelMargin, GelState};
+use crate::chem::hydroxyl_method::AcidityCorrection;
 use crate::chem::recipe::Recipe;
 use crate::cmd::Outcome;
 
@@ -26,11 +28,18 @@ pub struct Args {
         value_name = "F"
     )]
     pub functionality: f64,
-    /// The --ohv given is the raw result of an acetylation method (ISO 4629-1/-2, ASTM D4274
-    /// method A), which measures OHV - AV: the acid value is added before any calculation. Do
-    /// not use it for isocyanate-reagent methods. Default: off.
+    /// The --ohv given is a raw result, corrected for the sample's acidity before any
+    /// calculation as its method needs: an acetylation method (ISO 4629-1/-2, ASTM D4274
+    /// method A) measures OHV - AV, so the acid value is added; name another method with
+    /// --ohv-method. Default: off (the --ohv given is already corrected).
     #[arg(long)]
     pub raw_ohv: bool,
+    /// With --raw-ohv: the hydroxyl method the raw result comes from; its row of resinlot's
+    /// method table decides whether the acid value is added (acetylation: ISO 4629-1/-2,
+    /// DIN 53240-1/-2, ASTM D4274, ASTM E222) or subtracted (ASTM E1899, which measures
+    /// OHV + AV). Default: an acetylation method (added).
+    #[arg(long, value_name = "METHOD", requires = "raw_ohv")]
+    pub ohv_method: Option<String>,
     /// Expanded uncertainty (k = 2) of the acid value, in mg KOH/g. With --ohv-u it gives the
     /// expanded uncertainty of Mn. Default: none.
     #[arg(long, value_name = "MG_KOH_G")]
@@ -46,6 +55,12 @@ pub struct Args {
     /// recipe Mn. Default: none.
     #[arg(long, value_name = "FILE")]
     pub recipe: Option<PathBuf>,
+    /// With --recipe: how close to the statistical gel point counts as near, as Δp in extent
+    /// of reaction of the minority groups (e.g. 0.005) or as an acid value above the one at the
+    /// gel point (e.g. 1.5av, mg KOH/g). Near prints a GEL WARNING; at or past the gel point
+    /// the figures are marked not meaningful and the exit status is 1. Default: 0.005.
+    #[arg(long, value_name = "DP|AVav", value_parser = crate::cmd::args::gel_margin)]
+    pub gel_margin: Option<GelMargin>,
     /// Print one JSON object instead of the table.
     #[arg(long)]
     pub json: bool,
@@ -63,6 +78,7 @@ const FLAGS: &[(&str, &str)] = &[
         "--av-u and --ohv-u",
     ),
     ("solids fraction", "--solids"),
+    ("hydroxyl method", "--ohv-method"),
 ];
 
 /// Runs the command.
@@ -71,24 +87,68 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         Some(path) => Some(Recipe::load(path).context("cannot use the recipe")?),
         None => None,
     };
+    let acidity_correction = if args.raw_ohv {
+        crate::chem::hydroxyl_method::raw_correction(args.ohv_method.as_deref())
+            .map_err(|e| crate::cmd::args::name_flags(e, FLAGS))?
+    } else {
+        AcidityCorrection::None
+    };
     let t = Titration {
         av: args.av,
         ohv: args.ohv,
-        acidity_correction: args.raw_ohv,
+        acidity_correction,
         functionality: args.functionality,
         u_av: args.av_u,
         u_ohv: args.ohv_u,
         solids_fraction: args.solids,
     };
     let a = analyse(&t, recipe.as_ref()).map_err(|e| crate::cmd::args::name_flags(e, FLAGS))?;
+    if args.gel_margin.is_some() && a.recipe.is_none() {
+        return Err(crate::error::Error::invalid(
+            "--gel-margin",
+            "the gel guard needs the batch recipe",
+            "Add --recipe FILE, or leave out --gel-margin.",
+        )
+        .into());
+    }
+    let margin = args.gel_margin.unwrap_or_default();
+    let guard = a.recipe.as_ref().map(|r| r.gel_guard(a.acid_value, margin));
     let text = if args.json {
-        serde_json::to_string_pretty(&a)? + "\n"
+        let mut v = serde_json::to_value(&a)?;
+        if let Some((state, warning)) = &guard {
+            v["gel_margin"] = serde_json::to_value(margin)?;
+            v["gel_state"] = serde_json::to_value(state)?;
+            v["gel_warning"] = serde_json::to_value(warning)?;
+            if *state == GelState::Beyond {
+                v["note"] = GELLED_NOTE.into();
+            }
+        }
+        serde_json::to_string_pretty(&v)? + "\n"
     } else {
-        render(&a, args.solids.is_some(), args.raw_ohv)
+        let mut out = render(&a, args.solids.is_some(), args.raw_ohv);
+        if let Some((state, warning)) = &guard {
+            if let Some(w) = warning {
+                out.push('\n');
+                out.push_str(w);
+                out.push('\n');
+            }
+            if *state == GelState::Beyond {
+                out.push_str(GELLED_NOTE);
+                out.push('\n');
+            }
+        }
+        out
     };
     crate::support::output::print(&text)?;
-    Ok(Outcome::AllGood)
+    Ok(match guard {
+        Some((GelState::Beyond, _)) => Outcome::FellShort,
+        _ => Outcome::AllGood,
+    })
 }
+
+/// Printed when the titration puts the batch at or past the statistical gel point.
+const GELLED_NOTE: &str = "The batch is at or past the statistical gel point: Mn, Xn, p and \
+the recipe figures above assume soluble chains and are not meaningful for a gelled batch.";
 
 fn opt(v: Option<f64>, decimals: usize, unit: &str) -> String {
     v.map_or_else(
@@ -108,7 +168,11 @@ pub fn render(a: &Analysis, solids: bool, corrected: bool) -> String {
         (
             format!(
                 "Hydroxyl value{}{basis}",
-                if corrected { ", acidity-corrected" } else { "" }
+                match (corrected, a.acidity_correction) {
+                    (false, _) | (_, AcidityCorrection::None) => "",
+                    (true, AcidityCorrection::Subtract) => ", acidity-corrected (AV subtracted)",
+                    (true, AcidityCorrection::Add) => ", acidity-corrected",
+                }
             ),
             format!("{:.2} mg KOH/g", a.hydroxyl_value_corrected),
         ),
@@ -191,11 +255,19 @@ pub fn render(a: &Analysis, solids: bool, corrected: bool) -> String {
                     }),
             ),
             (
-                "Gel point, Flory-Stockmayer".into(),
-                r.gel_point_statistical.map_or(
-                    "none (no gel before full conversion, or no single branch type)".into(),
-                    |g| format!("p_c = {g:.4} (now {:.4})", r.extent_of_reaction_minority),
-                ),
+                "Gel point, statistical (Stockmayer)".into(),
+                match (r.gel.statistical, r.gel.statistical_none) {
+                    (Some(g), _) => format!(
+                        "p_c = {:.4} (now {:.4}){}",
+                        g.p_minority,
+                        r.extent_of_reaction_minority,
+                        r.gel
+                            .acid_value_at_gel
+                            .map_or(String::new(), |av| format!(", at AV {av:.2} mg KOH/g"))
+                    ),
+                    (None, Some(why)) => why.describe().into(),
+                    (None, None) => "none".into(),
+                },
             ),
             ("Mn from recipe".into(), opt(r.mn_recipe, 0, "g/mol")),
             (

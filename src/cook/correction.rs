@@ -5,7 +5,8 @@
 
 use serde::Serialize;
 
-use crate::chem::recipe::{Charge, Component};
+use crate::chem::gel::{self, GelMargin, GelPoints, GelState};
+use crate::chem::recipe::{Charge, Component, Recipe};
 use crate::chem::stepgrowth::{self, KOH_MG_PER_MOL};
 use crate::error::{Error, Result};
 use crate::stats::solve::bisect;
@@ -312,6 +313,156 @@ fn lower_hydroxyl(
     })
 }
 
+/// Default largest addition, in percent of the batch mass now (issue #18; common practice: a
+/// correction is a trim, and anything larger is a reformulation for the process engineer).
+pub const DEFAULT_MAX_ADDITION_PCT: f64 = 5.0;
+
+/// The plausibility limits of a correction.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Limits {
+    /// Largest addition in percent of the batch mass now.
+    pub max_addition_pct: f64,
+    /// Largest change of the hydroxyl value asked for (mg KOH/g): the recipe's initial OHV.
+    pub max_ohv_shift: f64,
+}
+
+/// Refuses a target that moves the hydroxyl value by more than the recipe's initial OHV
+/// ([`Error::Shortfall`], exit 1), before any mass is computed.
+pub fn check_target_shift(batch: &BatchNow, target_ohv: f64, limits: &Limits) -> Result<()> {
+    let shift = (target_ohv - batch.hydroxyl_value).abs();
+    if shift > limits.max_ohv_shift {
+        return Err(Error::Shortfall(format!(
+            "--target-ohv: moving the hydroxyl value from {} to {target_ohv} mg KOH/g is a change of {shift:.1} mg KOH/g, more than the recipe's initial hydroxyl value {:.1} mg KOH/g; no correction addition does that. Check the values entered; a batch this far off is a matter for the process engineer and the site's procedure",
+            batch.hydroxyl_value, limits.max_ohv_shift
+        )));
+    }
+    Ok(())
+}
+
+/// Refuses a correction whose addition exceeds `limits.max_addition_pct` of the batch mass
+/// ([`Error::Shortfall`], exit 1), naming the figure and the limit.
+pub fn check_addition(batch: &BatchNow, c: &Correction, limits: &Limits) -> Result<()> {
+    let pct = c.add_kg / batch.mass_kg * 100.0;
+    if pct > limits.max_addition_pct {
+        return Err(Error::Shortfall(format!(
+            "the correction would add {:.1} kg {}, {pct:.1} % of the {} kg batch, above the limit of {} % (--max-addition-pct); nothing is advised. Check the values entered; an addition this large is a reformulation for the process engineer and the site's procedure",
+            c.add_kg, c.component, batch.mass_kg, limits.max_addition_pct
+        )));
+    }
+    Ok(())
+}
+
+/// The batch against the statistical gel point, now and after the correction.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct GelOutlook {
+    /// Minority-group extent now (recipe charge at the measured AV).
+    pub p_now: f64,
+    /// State now.
+    pub state_now: GelState,
+    /// Gel points of the recipe as charged.
+    pub gel_now: GelPoints,
+    /// Minority-group extent after the addition, at the expected acid value.
+    pub p_after: f64,
+    /// State after the addition.
+    pub state_after: GelState,
+    /// Gel points of the recipe with the addition.
+    pub gel_after: GelPoints,
+    /// GEL WARNING lines for either state near or past the gel point.
+    pub warnings: Vec<String>,
+}
+
+impl GelOutlook {
+    /// True when the batch is at or past the statistical gel point now or after the addition.
+    pub fn beyond(&self) -> bool {
+        self.state_now == GelState::Beyond || self.state_after == GelState::Beyond
+    }
+}
+
+/// Printed when the batch is at or past the statistical gel point now.
+pub const GELLED_NOTE: &str = "The batch is at or past the statistical gel point now: the \
+figures above assume soluble chains and are not meaningful for a gelled batch.";
+
+/// Refuses a correction that would take the batch to or past the statistical gel point
+/// ([`Error::Shortfall`], exit 1): advice that gels a batch is no advice. A batch already
+/// past it is reported (with [`GELLED_NOTE`]), not refused.
+pub fn check_gel_after(o: &GelOutlook) -> Result<()> {
+    if o.state_after == GelState::Beyond && o.state_now != GelState::Beyond {
+        let g = o
+            .gel_after
+            .statistical
+            .expect("a state is past the gel point only when there is one");
+        return Err(Error::Shortfall(format!(
+            "the addition would take the batch to p = {:.5}, at or past the statistical gel point of the corrected charge, p_c = {:.5}{}; nothing is advised. Choose a smaller change of the hydroxyl value, or ask the process engineer; the site's procedure decides",
+            o.p_after,
+            g.p_minority,
+            o.gel_after
+                .acid_value_at_gel
+                .map_or(String::new(), |av| format!(" (reached at AV {av:.2} mg KOH/g)")),
+        )));
+    }
+    Ok(())
+}
+
+/// Where the batch stands against the statistical gel point now and after `c`.
+///
+/// The batch is taken as the recipe's charge at the measured acid value (the condensation-water
+/// balance of [`stepgrowth::progress_at`]); the addition is scaled onto that charge by the
+/// ratio of the recipe's batch mass at this AV to the batch mass entered, added to the
+/// components, and the gel points of the new charge ([`gel::gel_points_of`]) are compared with
+/// its state at the expected acid value. Source: first principles on Stockmayer's condition;
+/// the recipe stands in for the batch, so glycol lost overhead is not counted.
+pub fn gel_outlook(
+    recipe: &Recipe,
+    batch: &BatchNow,
+    component: &Component,
+    c: &Correction,
+    margin: GelMargin,
+) -> Result<GelOutlook> {
+    let ch = recipe.charge();
+    let at_recipe = |e: Error| e.at(|place| format!("{place} (recipe '{}')", recipe.name));
+    let now = stepgrowth::progress_at(&ch, batch.acid_value).map_err(at_recipe)?;
+    let gel_now = gel::gel_points_of(&recipe.components, &ch);
+    let p_now = now.p_minority(&ch);
+    let state_now = gel::gel_state(p_now, batch.acid_value, &gel_now, margin);
+    let scale = now.batch_mass_kg / batch.mass_kg;
+    let mut components = recipe.components.clone();
+    components.push(Component {
+        mass_kg: c.add_kg * scale,
+        ..component.clone()
+    });
+    let ch_after = Recipe {
+        name: recipe.name.clone(),
+        components: components.clone(),
+    }
+    .charge();
+    let gel_after = gel::gel_points_of(&components, &ch_after);
+    let after = stepgrowth::progress_at(&ch_after, c.new_acid_value).map_err(at_recipe)?;
+    let p_after = after.p_minority(&ch_after);
+    let state_after = gel::gel_state(p_after, c.new_acid_value, &gel_after, margin);
+    let warnings = [
+        gel::gel_warning("the batch now", p_now, state_now, &gel_now, margin),
+        gel::gel_warning(
+            "the batch after the addition",
+            p_after,
+            state_after,
+            &gel_after,
+            margin,
+        ),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
+    Ok(GelOutlook {
+        p_now,
+        state_now,
+        gel_now,
+        p_after,
+        state_after,
+        gel_after,
+        warnings,
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -428,5 +579,86 @@ mod tests {
         assert!(e.contains("not below"), "{e}");
         let e = correct(&NOW, &npg, 48.0).unwrap_err().to_string();
         assert!(e.contains("No correction"), "{e}");
+    }
+
+    #[test]
+    fn issue_18_addition_of_half_the_batch_is_refused() {
+        // Issue #18: 8500 kg at AV 3, OHV 40, target OHV 400 with neopentyl glycol asked for
+        // x = 8500·(400 − 40)/(1077.3 − 400) = 4518 kg (first principles, as above), 53 %.
+        let npg = comp("neopentyl glycol", 104.15, 0, 2, false);
+        let batch = BatchNow {
+            mass_kg: 8500.0,
+            acid_value: 3.0,
+            hydroxyl_value: 40.0,
+        };
+        let c = correct(&batch, &npg, 400.0).unwrap();
+        assert_relative_eq!(c.add_kg, 4518.0, epsilon = 1.0);
+        let limits = Limits {
+            max_addition_pct: DEFAULT_MAX_ADDITION_PCT,
+            max_ohv_shift: 404.0,
+        };
+        let e = check_addition(&batch, &c, &limits).unwrap_err();
+        assert_eq!(e.exit_code(), 1);
+        let text = e.to_string();
+        assert!(
+            text.contains("4518") && text.contains("53.2 %") && text.contains("5 %"),
+            "{text}"
+        );
+        // Within the limit: the same batch to OHV 56 needs 1.6 % (passes).
+        let ok = correct(&batch, &npg, 56.0).unwrap();
+        assert!(check_addition(&batch, &ok, &limits).is_ok());
+        // A target shift beyond the recipe's initial OHV is refused before any mass is computed.
+        let tight = Limits {
+            max_ohv_shift: 300.0,
+            ..limits
+        };
+        let e = check_target_shift(&batch, 400.0, &tight).unwrap_err();
+        assert_eq!(e.exit_code(), 1);
+        assert!(e.to_string().contains("360.0 mg KOH/g"), "{e}");
+        assert!(check_target_shift(&batch, 56.0, &tight).is_ok());
+    }
+
+    #[test]
+    fn gel_outlook_follows_an_acid_addition_towards_gel() {
+        // PB-4800 (invented demo recipe) gels at p_c 0.99926 (chem::gel, Stockmayer). Adding
+        // adipic acid to lower the hydroxyl value brings the groups nearer balance, so the
+        // batch cooked back to the same AV ends nearer the gel point; adding hexanediol to
+        // raise it moves the gel point away (more hydroxyl excess).
+        let recipe = Recipe::parse("pb", include_str!("../../specs/recipes/pb-4800.toml")).unwrap();
+        let batch = BatchNow {
+            mass_kg: 7830.0,
+            acid_value: 1.8,
+            hydroxyl_value: 36.0,
+        };
+        let gap = |o: &GelOutlook| {
+            (
+                o.gel_now.statistical.unwrap().p_minority - o.p_now,
+                o.gel_after.statistical.map_or(1.0, |g| g.p_minority) - o.p_after,
+            )
+        };
+        let adipic = recipe.component("adipic acid").unwrap().clone();
+        let c = correct(&batch, &adipic, 28.0).unwrap();
+        let o = gel_outlook(&recipe, &batch, &adipic, &c, GelMargin::default()).unwrap();
+        let (before, after) = gap(&o);
+        assert!(after < before, "{after} vs {before}");
+        assert_eq!(o.state_now, GelState::Near);
+        assert!(check_gel_after(&o).is_ok() == (o.state_after != GelState::Beyond));
+        // Lowering the OHV to 30 takes this batch past the corrected charge's gel point.
+        let c = correct(&batch, &adipic, 28.0 - 2.0).unwrap();
+        let deep = gel_outlook(&recipe, &batch, &adipic, &c, GelMargin::default()).unwrap();
+        assert_eq!(deep.state_after, GelState::Beyond);
+        let e = check_gel_after(&deep).unwrap_err();
+        assert_eq!(e.exit_code(), 1);
+        assert!(e.to_string().contains("nothing is advised"), "{e}");
+        assert!(
+            o.warnings[0].starts_with("GEL WARNING: the batch now"),
+            "{:?}",
+            o.warnings
+        );
+        let hdo = recipe.component("1,6-hexanediol").unwrap().clone();
+        let c = correct(&batch, &hdo, 44.0).unwrap();
+        let o = gel_outlook(&recipe, &batch, &hdo, &c, GelMargin::default()).unwrap();
+        let (before, after) = gap(&o);
+        assert!(after > before, "{after} vs {before}");
     }
 }

@@ -5,6 +5,7 @@
 
 use serde::Serialize;
 
+use crate::chem::gel::{self, GelMargin, GelPoints, GelState};
 use crate::chem::recipe::{Charge, Recipe};
 use crate::chem::stepgrowth::{self, Progress};
 use crate::cook::chart::{ChartInput, Mark};
@@ -70,6 +71,21 @@ pub struct CookReport {
     pub predicted_mn: Option<f64>,
     /// Carothers Xn at the target.
     pub predicted_xn: Option<f64>,
+    /// Predicted end point's distance from the first sample in units of the sampled time
+    /// span: (t_end − t_first)/(t_last − t_first). Above
+    /// [`EXTRAPOLATION_LIMIT`] a warning says the end point is extrapolated.
+    pub extrapolation_ratio: f64,
+    /// Gel points of the recipe (statistical and Carothers) and the acid value at the
+    /// statistical one.
+    pub gel: GelPoints,
+    /// The gel guard's margin used.
+    pub gel_margin: GelMargin,
+    /// The target against the statistical gel point.
+    pub target_gel_state: GelState,
+    /// The last sample against the statistical gel point.
+    pub last_sample_gel_state: GelState,
+    /// GEL WARNING lines (target or last sample near or past the gel point).
+    pub gel_warnings: Vec<String>,
     /// Viscosity against Mn, when the samples carry viscosities.
     pub viscosity: Option<ViscosityReport>,
     /// Every sample with its extent of reaction.
@@ -142,6 +158,19 @@ pub struct ViscosityReport {
     pub fit: ViscosityFit,
     /// Which Mn the readings were paired with.
     pub mn_basis: String,
+}
+
+/// The end point may lie at most this many sampled time spans from the first sample before the report warns that it is extrapolated (issue #18; common practice: a fitted rate
+/// law is trusted near the data it was fitted to).
+pub const EXTRAPOLATION_LIMIT: f64 = 2.0;
+
+/// The gel guard's settings for one cook.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct GelGuard {
+    /// How close to the statistical gel point counts as near.
+    pub margin: GelMargin,
+    /// True when a target past the gel point is to be predicted anyway (with a warning).
+    pub beyond_gel: bool,
 }
 
 /// The end point asked for.
@@ -236,13 +265,16 @@ pub fn target_acid_value(ch: &Charge, target: Target) -> Result<f64> {
 /// The steps: acid values to extent of reaction ([`extents`]), early points left out
 /// ([`kinetics::select_points`]), the orders fitted ([`kinetics::choose_model`]), the target
 /// converted to an extent, the end point predicted ([`kinetics::predict_end_point`]), and Mn,
-/// Xn (Carothers) and viscosity at the target.
+/// Xn (Carothers) and viscosity at the target. A target at or past the statistical gel point
+/// is refused ([`Error::Shortfall`], exit 1) unless `guard.beyond_gel`; a target or last
+/// sample within the margin gets a GEL WARNING ([`gel::gel_state`]).
 pub fn analyse(
     data: &Samples,
     recipe: &Recipe,
     target: Target,
     order: Option<f64>,
     exclude_below: f64,
+    guard: GelGuard,
 ) -> Result<CookReport> {
     let ch = recipe.charge();
     let groups = groups_of(&ch);
@@ -256,9 +288,60 @@ pub fn analyse(
     let target_av = target_acid_value(&ch, target)?;
     let at_target = stepgrowth::progress_at(&ch, target_av)
         .map_err(|e| e.at(|_| "target acid value".into()))?;
+    let gel = gel::gel_points(recipe);
+    let p_target = at_target.p_minority(&ch);
+    let target_gel_state = gel::gel_state(p_target, target_av, &gel, guard.margin);
+    if target_gel_state == GelState::Beyond && !guard.beyond_gel {
+        return Err(Error::Shortfall(past_gel_refusal(
+            target_av, p_target, &gel,
+        )));
+    }
     let end = kinetics::predict_end_point(fit, at_target.p_acid);
-    let warnings = fit_warnings(data, fit, &end, target_av)?;
+    let mut warnings = fit_warnings(data, fit, &end, target_av)?;
     let last = data.samples.last().expect("samples are never empty");
+    let last_progress = progress.last().expect("samples are never empty");
+    let last_sample_gel_state = gel::gel_state(
+        last_progress.p_minority(&ch),
+        last.acid_value,
+        &gel,
+        guard.margin,
+    );
+    let mut gel_warnings = Vec::new();
+    if let Some(w) = gel::gel_warning(
+        &format!("the last sample ({}:{})", data.file, last.line),
+        last_progress.p_minority(&ch),
+        last_sample_gel_state,
+        &gel,
+        guard.margin,
+    ) {
+        gel_warnings.push(w);
+    }
+    if let Some(w) = gel::gel_warning(
+        &format!("the target AV {target_av} mg KOH/g"),
+        p_target,
+        target_gel_state,
+        &gel,
+        guard.margin,
+    ) {
+        gel_warnings.push(w);
+    }
+    if target_gel_state == GelState::Beyond {
+        gel_warnings.push(
+            "--beyond-gel: the end point, Mn and Xn below are predicted for a target past the \
+             statistical gel point; they assume soluble chains and are not meaningful for a gelled batch."
+                .into(),
+        );
+    }
+    let extrapolation_ratio = extrapolation_ratio(data, end.elapsed_min);
+    if extrapolation_ratio > EXTRAPOLATION_LIMIT {
+        warnings.push(Warning {
+            place: data.file.clone(),
+            message: format!(
+                "the predicted end point ({:.0} min) lies {extrapolation_ratio:.1} sampled time spans from the first sample, beyond the limit of {EXTRAPOLATION_LIMIT}: it is an extrapolation of the rate law, and its prediction interval covers the fit's scatter only; take more samples before relying on it",
+                end.elapsed_min
+            ),
+        });
+    }
     let predicted_mn = stepgrowth::mn_recipe(&at_target);
     let f_avg = stepgrowth::average_functionality(&ch);
     let predicted_xn = stepgrowth::xn_carothers(at_target.p_minority(&ch), f_avg);
@@ -289,11 +372,46 @@ pub fn analyse(
         remaining_min: end.elapsed_min - last.elapsed_min,
         predicted_mn,
         predicted_xn,
+        extrapolation_ratio,
+        gel,
+        gel_margin: guard.margin,
+        target_gel_state,
+        last_sample_gel_state,
+        gel_warnings,
         viscosity: viscosity_report(data, &progress, predicted_mn),
         samples: sample_rows(data, &points, &sel, fit.order, groups),
         warnings,
         caution: crate::cook::correction::SAFETY_CAUTION.into(),
     })
+}
+
+/// The refusal of a target at or past the statistical gel point.
+fn past_gel_refusal(target_av: f64, p_target: f64, gel: &GelPoints) -> String {
+    let g = gel
+        .statistical
+        .expect("a state is past the gel point only when there is one");
+    format!(
+        "the target AV {target_av} mg KOH/g (p = {p_target:.5}) lies at or past the statistical gel point p_c = {:.5}{} (Carothers p_c = {}): the batch would gel before reaching it. Choose a target short of the gel point, or give --beyond-gel to see the prediction with a warning; the site's cook procedure decides",
+        g.p_minority,
+        gel.acid_value_at_gel
+            .map_or(String::new(), |av| format!(", reached at AV {av:.2} mg KOH/g")),
+        gel.carothers.map_or("none".into(), |c| format!("{c:.5}")),
+    )
+}
+
+/// (t_end − t_first)/(t_last − t_first) over the samples: the predicted end point's distance
+/// from the first sample in sampled time spans (1 = at the last sample). Infinite when the
+/// samples span no time.
+pub fn extrapolation_ratio(data: &Samples, end_min: f64) -> f64 {
+    let times = data.samples.iter().map(|s| s.elapsed_min);
+    let first = times.clone().fold(f64::INFINITY, f64::min);
+    let last = times.fold(f64::NEG_INFINITY, f64::max);
+    let span = last - first;
+    if span > 0.0 {
+        (end_min - first) / span
+    } else {
+        f64::INFINITY
+    }
 }
 
 /// The samples file's warnings, then those of the fit: target already passed, no finite

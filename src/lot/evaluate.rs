@@ -8,6 +8,7 @@ use rust_decimal::Decimal;
 use serde::Serialize;
 
 use crate::chem::analysis::{analyse, Titration};
+use crate::chem::hydroxyl_method::AcidityCorrection;
 use crate::error::{Error, Result};
 use crate::lot::intake::{LotResults, Reading};
 use crate::lot::note::LotNote;
@@ -319,7 +320,8 @@ fn measured_results(spec: &ProductSpec, means: &[(String, Decimal)]) -> Vec<Prop
             results.push(missing(p));
             continue;
         };
-        // ISO 4629-2 acidity correction: the limits apply to the corrected hydroxyl value.
+        // Acidity correction of the method (chem::hydroxyl_method): the limits apply to the
+        // corrected hydroxyl value.
         let corrected = p.key == keys::HYDROXYL_VALUE && p.acidity_correction;
         let u = guard_uncertainty(spec, p);
         let value = if corrected {
@@ -327,7 +329,10 @@ fn measured_results(spec: &ProductSpec, means: &[(String, Decimal)]) -> Vec<Prop
                 results.push(missing(p));
                 continue;
             };
-            entered + av
+            match p.acidity_correction_kind {
+                AcidityCorrection::Subtract => entered - av,
+                _ => entered + av,
+            }
         } else {
             entered
         };
@@ -364,7 +369,7 @@ fn derived_results(
     let u = |k: &str| spec.property(k).and_then(|p| p.uncertainty).map(to_f64);
     let hv_corr = spec
         .property(keys::HYDROXYL_VALUE)
-        .is_some_and(|p| p.acidity_correction);
+        .map_or(AcidityCorrection::None, |p| p.acidity_correction_kind);
     let mut any_missing = false;
     for p in spec.properties.iter().filter(|p| p.derived) {
         let computed = derived_value(
@@ -442,12 +447,12 @@ pub fn derived_value(
     ohv: Option<f64>,
     u_av: Option<f64>,
     u_ohv: Option<f64>,
-    acidity_correction: bool,
+    acidity_correction: AcidityCorrection,
 ) -> Result<Option<(f64, Option<f64>)>> {
     let (Some(ohv), av) = (ohv, av) else {
         return Ok(None);
     };
-    let needs_av = key != keys::HYDROXYL_EQUIVALENT_WEIGHT || acidity_correction;
+    let needs_av = key != keys::HYDROXYL_EQUIVALENT_WEIGHT || acidity_correction.applies();
     if needs_av && av.is_none() {
         return Ok(None);
     }
@@ -482,7 +487,7 @@ pub fn derived_value(
         keys::HYDROXYL_EQUIVALENT_WEIGHT => a.hydroxyl_equivalent_weight.map(|hew| {
             let u = match (u_av, u_ohv) {
                 (Some(ua), Some(uo)) => {
-                    let uc = if acidity_correction {
+                    let uc = if acidity_correction.applies() {
                         (ua * ua + uo * uo).sqrt()
                     } else {
                         uo
@@ -591,6 +596,25 @@ decimals = 0
         assert_eq!(ohv.entered.as_deref(), Some("53.5"));
         assert_eq!(ohv.verdict, Some(Verdict::Pass));
         approx::assert_relative_eq!(ohv.uncertainty.unwrap(), 0.801561, epsilon = 1e-6);
+    }
+
+    #[test]
+    fn isocyanate_method_subtracts_the_acid_value_issue_18() {
+        // ASTM E1899 measures OHV + AV (chem::hydroxyl_method): raw 56.1 − AV 0.5 = 55.6, and
+        // Mn = 56100·2/(0.5 + 55.6) = 2000.0 (definition of the OHV; S equals the raw result).
+        let text = SPEC.replace(
+            "acidity_correction = true",
+            "method = \"ASTM E1899\"\nacidity_correction = true",
+        );
+        let spec = ProductSpec::parse(Path::new("s.toml"), &text).unwrap();
+        let csv = "lot,product,manufactured,acid_value,hydroxyl_value,viscosity\nL1,PD-2000,2026-10-01,0.50,56.1,520\n";
+        let lots = parse("r.csv", csv.as_bytes(), Options::default()).unwrap();
+        let d = evaluate(&spec, &lots[0], "r.csv").unwrap();
+        let ohv = d.get("hydroxyl_value").unwrap();
+        assert_eq!(ohv.reported.as_deref(), Some("55.6"));
+        assert_eq!(ohv.entered.as_deref(), Some("56.1"));
+        let mn = d.get("mn").unwrap();
+        approx::assert_relative_eq!(mn.value.unwrap(), 112200.0 / 56.1, max_relative = 1e-12);
     }
 
     #[test]

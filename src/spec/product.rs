@@ -8,6 +8,7 @@ use indexmap::IndexMap;
 use rust_decimal::Decimal;
 use serde::Deserialize;
 
+use crate::chem::hydroxyl_method::{self, AcidityCorrection};
 use crate::chem::recipe::Recipe;
 use crate::error::{Error, Result};
 use crate::spec::decision::{decimal_from_f64, DecisionRule, Rounding};
@@ -40,10 +41,21 @@ struct PropertyFile {
     max: Option<f64>,
     decimals: u32,
     uncertainty: Option<f64>,
-    acidity_correction: Option<bool>,
+    acidity_correction: Option<AcidityField>,
     temperature_c: Option<f64>,
     andrade_b_k: Option<f64>,
     repeatability: Option<f64>,
+}
+
+/// `acidity_correction` as written: the historical flag or a named correction.
+#[derive(Debug, Deserialize)]
+#[serde(untagged, expecting = "true, false, \"add\", \"none\" or \"subtract\"")]
+enum AcidityField {
+    /// true: results are entered raw, corrected as the method's row of the table says
+    /// (add when the method is not in the table); false: entered already corrected.
+    Flag(bool),
+    /// "add", "none" or "subtract".
+    Named(String),
 }
 
 /// One property of a product spec, validated.
@@ -65,8 +77,12 @@ pub struct Property {
     pub decimals: u32,
     /// Expanded uncertainty U (k = 2), in `unit`.
     pub uncertainty: Option<Decimal>,
-    /// Hydroxyl value entered raw (acetylation): AV is added.
+    /// Hydroxyl value entered raw: AV enters it as `acidity_correction_kind` says.
     pub acidity_correction: bool,
+    /// How AV corrects a raw hydroxyl value (add, none, subtract), from the method table
+    /// ([`crate::chem::hydroxyl_method::METHODS`]) or written in the spec; `None` exactly when
+    /// `acidity_correction` is false.
+    pub acidity_correction_kind: AcidityCorrection,
     /// Spec temperature of a viscosity, °C.
     pub temperature_c: Option<f64>,
     /// Andrade coefficient B (K) in ln η = A + B/T, for temperature correction.
@@ -297,6 +313,7 @@ fn property(
     let (min, max, uncertainty) = limits(file, key, p, rule, derived)?;
     check_property_fields(&place, key, p)?;
     check_physical_ranges(&place, p)?;
+    let acidity = acidity_correction(&place, p)?;
     Ok(Property {
         key: key.to_string(),
         label,
@@ -306,7 +323,8 @@ fn property(
         max,
         decimals: p.decimals,
         uncertainty,
-        acidity_correction: p.acidity_correction.unwrap_or(false),
+        acidity_correction: acidity.applies(),
+        acidity_correction_kind: acidity,
         temperature_c: p.temperature_c,
         andrade_b_k: p.andrade_b_k,
         repeatability: dec(file, key, "repeatability", p.repeatability)?,
@@ -436,6 +454,44 @@ fn check_physical_ranges(place: &impl Fn(&str) -> String, p: &PropertyFile) -> R
 /// A text field as given, trimmed, or `None` when absent or blank.
 fn given(v: &Option<String>) -> Option<&str> {
     v.as_deref().map(str::trim).filter(|t| !t.is_empty())
+}
+
+/// The acidity correction of a hydroxyl value: `true` takes the method's row of
+/// [`hydroxyl_method::METHODS`] (add for a method not in the table, the historical meaning);
+/// a named correction that contradicts the method's row is refused.
+fn acidity_correction(
+    place: &impl Fn(&str) -> String,
+    p: &PropertyFile,
+) -> Result<AcidityCorrection> {
+    let row = p.method.as_deref().and_then(hydroxyl_method::lookup);
+    let kind = match &p.acidity_correction {
+        None | Some(AcidityField::Flag(false)) => return Ok(AcidityCorrection::None),
+        Some(AcidityField::Flag(true)) => row.map_or(AcidityCorrection::Add, |r| r.correction),
+        Some(AcidityField::Named(name)) => AcidityCorrection::parse(name).ok_or_else(|| {
+            Error::invalid(
+                place(".acidity_correction"),
+                format!("'{}' is not an acidity correction", name.escape_debug()),
+                "Write \"add\" (the method measures OHV − AV), \"subtract\" (OHV + AV), \"none\", or true to follow the method's row.",
+            )
+        })?,
+    };
+    if let Some(r) = row.filter(|r| kind.applies() && r.correction != kind) {
+        return Err(Error::invalid(
+            place(".acidity_correction"),
+            format!(
+                "\"{}\" contradicts the method {}, which measures {} and so needs \"{}\"",
+                kind.name(),
+                r.designation,
+                r.measures,
+                r.correction.name()
+            ),
+            format!(
+                "Write acidity_correction = \"{}\" (or true), or correct the method name.",
+                r.correction.name()
+            ),
+        ));
+    }
+    Ok(kind)
 }
 
 /// Fields that belong to one property only: the acidity correction to the hydroxyl value,
@@ -691,6 +747,64 @@ decimals = 0
         assert_eq!(s.properties[0].key, "acid_value");
         assert_eq!(s.property("mn").unwrap().unit, "g/mol");
         assert!(s.property("hydroxyl_value").unwrap().acidity_correction);
+    }
+
+    #[test]
+    fn acidity_correction_follows_the_method_table_issue_18() {
+        // chem::hydroxyl_method::METHODS: ISO 4629-2 measures OHV − AV (add), ASTM E1899
+        // measures OHV + AV (subtract); true follows the row, a contradiction is refused.
+        let kind = |text: &str| {
+            parse(text).map(|s| {
+                s.property("hydroxyl_value")
+                    .unwrap()
+                    .acidity_correction_kind
+            })
+        };
+        let with = |method: &str, corr: &str| {
+            SPEC.replace(
+                "acidity_correction = true",
+                &format!("method = \"{method}\"\nacidity_correction = {corr}"),
+            )
+        };
+        assert_eq!(kind(SPEC).unwrap(), AcidityCorrection::Add);
+        assert_eq!(
+            kind(&with("ISO 4629-2", "true")).unwrap(),
+            AcidityCorrection::Add
+        );
+        assert_eq!(
+            kind(&with("ASTM E1899", "true")).unwrap(),
+            AcidityCorrection::Subtract
+        );
+        assert_eq!(
+            kind(&with("ASTM E1899-16", "\"subtract\"")).unwrap(),
+            AcidityCorrection::Subtract
+        );
+        assert_eq!(
+            kind(&with("ISO 4629-2", "\"none\"")).unwrap(),
+            AcidityCorrection::None
+        );
+        assert_eq!(
+            kind(&with("in-house", "\"subtract\"")).unwrap(),
+            AcidityCorrection::Subtract
+        );
+        let e = kind(&with("ISO 4629-2", "\"subtract\""))
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("properties.hydroxyl_value.acidity_correction")
+                && e.contains("measures OHV − AV")
+                && e.contains("\"add\""),
+            "{e}"
+        );
+        let e = kind(&with("ISO 4629-2", "\"yes\""))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("'yes' is not an acidity correction"), "{e}");
+        let e = kind(&with("ISO 4629-2", "2")).unwrap_err().to_string();
+        assert!(
+            e.contains("\"subtract\"") && e.contains("specs/x.toml:"),
+            "{e}"
+        );
     }
 
     #[test]

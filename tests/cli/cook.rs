@@ -627,3 +627,258 @@ fn cook_chart_never_lands_in_the_register_issue_13() {
         "seq,lot\n"
     );
 }
+
+/// The PB-4800 demo recipe (invented), whose statistical gel point is p_c 0.99926 at AV 0.35.
+fn pb_recipe() -> PathBuf {
+    root().join("specs/recipes/pb-4800.toml")
+}
+
+/// A PB-4800 cook (test fixture, invented numbers): AV falling from 250 to 4 over 9 hours.
+const PB_COOK: &str = "elapsed_min,acid_value\n0,250\n60,120\n120,60\n180,30\n240,18\n\
+300,12\n360,8.5\n420,6.4\n480,5.0\n540,4.0\n";
+
+fn pb_cook(extra: &[&str]) -> (tempfile::TempDir, assert_cmd::assert::Assert) {
+    let (dir, path) = cook_file(PB_COOK);
+    let a = bin()
+        .arg("cook")
+        .arg(&path)
+        .arg("--recipe")
+        .arg(pb_recipe())
+        .args(extra)
+        .assert();
+    (dir, a)
+}
+
+#[test]
+fn cook_target_past_gel_point_exits_1_issue_18() {
+    let dir = tempfile::tempdir().unwrap();
+    let chart = dir.path().join("pb.svg");
+    let (_d, a) = pb_cook(&["--target-av", "0.2", "--chart", chart.to_str().unwrap()]);
+    a.code(1)
+        .stdout(predicate::str::is_empty())
+        .stderr(predicate::str::contains(
+            "lies at or past the statistical gel point p_c = 0.99926",
+        ))
+        .stderr(predicate::str::contains("AV 0.35 mg KOH/g"))
+        .stderr(predicate::str::contains("--beyond-gel"));
+    assert!(!chart.exists(), "a refused cook writes no chart");
+}
+
+#[test]
+fn cook_beyond_gel_flag_predicts_with_a_gel_warning_issue_18() {
+    let (_d, a) = pb_cook(&["--target-av", "0.2", "--beyond-gel"]);
+    a.success()
+        .stdout(predicate::str::contains(
+            "GEL WARNING: the target AV 0.2 mg KOH/g (p = 0.99957) is at or past",
+        ))
+        .stdout(predicate::str::contains(
+            "not meaningful for a gelled batch",
+        ))
+        .stdout(predicate::str::contains("Predicted end point"))
+        .stdout(predicate::str::contains("next titration decides"))
+        .stdout(predicate::str::contains(
+            "process-safety rules take precedence",
+        ));
+    let (_d, a) = pb_cook(&["--target-av", "0.2", "--beyond-gel", "--json"]);
+    let v = json(&a.success().get_output().stdout);
+    assert_eq!(v["target_gel_state"], "beyond");
+    assert!((v["gel"]["statistical"]["p_minority"].as_f64().unwrap() - 0.99926).abs() < 5e-6);
+    assert!(v["caution"]
+        .as_str()
+        .unwrap()
+        .contains("operating procedure"));
+}
+
+#[test]
+fn cook_target_near_gel_point_warns_and_margin_is_settable_issue_18() {
+    let (_d, a) = pb_cook(&["--target-av", "0.5"]);
+    a.success().stdout(predicate::str::contains(
+        "GEL WARNING: the target AV 0.5 mg KOH/g (p = 0.99893) is within Δp = 0.005",
+    ));
+    let (_d, a) = pb_cook(&["--target-av", "0.5", "--gel-margin", "0.0001"]);
+    a.success()
+        .stdout(predicate::str::contains("GEL WARNING").not())
+        .stdout(predicate::str::contains("target clear of it"));
+    let (_d, a) = pb_cook(&["--target-av", "0.5", "--gel-margin", "0.2av"]);
+    a.success()
+        .stdout(predicate::str::contains("within ΔAV = 0.2 mg KOH/g"));
+}
+
+#[test]
+fn cook_bad_gel_margin_is_refused() {
+    let (_d, a) = pb_cook(&["--target-av", "1", "--gel-margin", "2"]);
+    a.code(2)
+        .stderr(predicate::str::contains("--gel-margin"))
+        .stderr(predicate::str::contains("0.005"));
+}
+
+#[test]
+fn extrapolated_end_point_is_a_warning_issue_18() {
+    // pd2000-200-a (invented demo cook): samples over 0..720 min, end point at AV 1 near
+    // 1653 min = 2.3 sampled spans; pd2000-220-a reaches it within 1.3 spans.
+    let out = |file: &str| {
+        bin()
+            .arg("cook")
+            .arg(demo(file))
+            .arg("--recipe")
+            .arg(recipe())
+            .args(["--target-av", "1.0", "--json"])
+            .assert()
+            .success()
+            .get_output()
+            .stdout
+            .clone()
+    };
+    let v = json(&out("pd2000-200-a.csv"));
+    let ratio = v["extrapolation_ratio"].as_f64().unwrap();
+    let t = v["predicted_elapsed_min"].as_f64().unwrap();
+    assert!((ratio - t / 720.0).abs() < 1e-9 && ratio > 2.0, "{ratio}");
+    let text = v["warnings"].to_string();
+    assert!(
+        text.contains("sampled time spans from the first sample, beyond the limit of 2"),
+        "{text}"
+    );
+    let v = json(&out("pd2000-220-a.csv"));
+    assert!(v["extrapolation_ratio"].as_f64().unwrap() < 2.0);
+    assert!(!v["warnings"].to_string().contains("sampled time spans"));
+    bin()
+        .arg("cook")
+        .arg(demo("pd2000-200-a.csv"))
+        .arg("--recipe")
+        .arg(recipe())
+        .args(["--target-av", "1.0"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("extrapolation of the rate law"))
+        .stdout(predicate::str::contains("next titration decides"));
+}
+
+fn adjust_with(recipe: &Path, args: &[&str]) -> assert_cmd::assert::Assert {
+    bin()
+        .arg("adjust")
+        .arg("--recipe")
+        .arg(recipe)
+        .args(args)
+        .assert()
+}
+
+#[test]
+fn adjust_over_five_percent_exits_1_issue_18() {
+    // Issue #18: 4518 kg neopentyl glycol into 8500 kg is 53 % of the batch.
+    let spc = root().join("specs/recipes/spc-35.toml");
+    let args = [
+        "--batch-kg",
+        "8500",
+        "--av",
+        "3",
+        "--ohv",
+        "40",
+        "--target-ohv",
+        "400",
+    ];
+    adjust_with(&spc, &args)
+        .code(1)
+        .stdout(predicate::str::is_empty())
+        .stderr(predicate::str::contains(
+            "4518.0 kg neopentyl glycol, 53.2 %",
+        ))
+        .stderr(predicate::str::contains("limit of 5 %"));
+    let mut wide = args.to_vec();
+    wide.extend(["--max-addition-pct", "60"]);
+    adjust_with(&spc, &wide)
+        .success()
+        .stdout(predicate::str::contains("4518.0 kg neopentyl glycol"))
+        .stdout(predicate::str::contains("next titration decides"));
+}
+
+#[test]
+fn adjust_bad_max_addition_pct_is_refused() {
+    adjust(&[
+        "--ohv",
+        "50.4",
+        "--target-ohv",
+        "56",
+        "--max-addition-pct",
+        "-1",
+    ])
+    .code(2)
+    .stderr(predicate::str::contains("--max-addition-pct"));
+}
+
+#[test]
+fn adjust_shift_beyond_initial_ohv_exits_1_issue_18() {
+    // PD-2000's charge has OHV0 = 56.1·2·(5040/106.12)/11250 = 473.7 mg KOH/g (first
+    // principles); 50 → 600 is a shift of 550.
+    adjust(&[
+        "--ohv",
+        "50",
+        "--target-ohv",
+        "600",
+        "--max-addition-pct",
+        "100",
+    ])
+    .code(1)
+    .stderr(predicate::str::contains("change of 550.0 mg KOH/g"))
+    .stderr(predicate::str::contains("initial hydroxyl value 473.7"));
+}
+
+#[test]
+fn adjust_raw_ohv_is_corrected_like_endgroup_issue_18() {
+    let add = |args: &[&str]| {
+        json(&adjust(args).success().get_output().stdout.clone())["add_kg"]
+            .as_f64()
+            .unwrap()
+    };
+    // Acetylation raw result 49.3 at AV 1.1 is OHV 50.4 (ISO 4629-2 acidity correction).
+    let raw = add(&["--ohv", "49.3", "--raw-ohv", "--target-ohv", "56", "--json"]);
+    let corrected = add(&["--ohv", "50.4", "--target-ohv", "56", "--json"]);
+    assert!(
+        (raw / corrected - 1.0).abs() < 1e-12,
+        "{raw} vs {corrected}"
+    );
+}
+
+#[test]
+fn adjust_near_gel_warns_and_an_addition_that_gels_is_refused_issue_18() {
+    // PB-4800 (invented demo recipe) at AV 1.8 is p = 0.99615, within 0.005 of p_c 0.99926.
+    let pb = pb_recipe();
+    adjust_with(
+        &pb,
+        &[
+            "--batch-kg",
+            "7830",
+            "--av",
+            "1.8",
+            "--ohv",
+            "36",
+            "--target-ohv",
+            "40",
+        ],
+    )
+    .success()
+    .stdout(predicate::str::contains(
+        "GEL WARNING: the batch now (p = 0.99615) is within Δp = 0.005",
+    ))
+    .stdout(predicate::str::contains("flash point"));
+    // Adipic acid to bring the OHV to 26 moves the corrected charge's gel point below the
+    // batch's extent: refused, nothing advised.
+    adjust_with(
+        &pb,
+        &[
+            "--batch-kg",
+            "7830",
+            "--av",
+            "1.8",
+            "--ohv",
+            "36",
+            "--target-ohv",
+            "26",
+        ],
+    )
+    .code(1)
+    .stdout(predicate::str::is_empty())
+    .stderr(predicate::str::contains(
+        "at or past the statistical gel point",
+    ))
+    .stderr(predicate::str::contains("nothing is advised"));
+}

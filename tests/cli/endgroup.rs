@@ -169,3 +169,176 @@ fn one_uncertainty_without_the_other_is_refused() {
             "only one of the two uncertainties",
         ));
 }
+
+fn pb_recipe() -> String {
+    concat!(env!("CARGO_MANIFEST_DIR"), "/specs/recipes/pb-4800.toml").to_string()
+}
+
+#[test]
+fn batch_past_the_gel_point_is_flagged_and_exits_1_issue_18() {
+    // PB-4800 (invented demo recipe): statistical gel point p_c 0.99926 at AV 0.35.
+    Workspace::new()
+        .cmd()
+        .args(["endgroup", "--av", "0.3", "--ohv", "40", "--recipe", &pb_recipe()])
+        .assert()
+        .code(1)
+        .stdout(predicate::str::contains(
+            "GEL WARNING: the batch (p = 0.99936) is at or past the statistical gel point p_c = 0.99926",
+        ))
+        .stdout(predicate::str::contains("not meaningful for a gelled batch"));
+    let out = Workspace::new()
+        .cmd()
+        .args([
+            "endgroup",
+            "--av",
+            "0.5",
+            "--ohv",
+            "40",
+            "--json",
+            "--recipe",
+            &pb_recipe(),
+        ])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["gel_state"], "near");
+    assert!(v["gel_warning"]
+        .as_str()
+        .unwrap()
+        .starts_with("GEL WARNING"));
+}
+
+#[test]
+fn alkyd_with_benzoic_acid_gels_at_0_866_issue_18() {
+    // Issue #18's alkyd (test fixture): glycerol 2, phthalic anhydride 2, benzoic acid 1 mol;
+    // Stockmayer's condition with benzoic acid as a group consumer gives √3/2 = 0.8660.
+    let w = Workspace::new();
+    w.write(
+        "alkyd.toml",
+        "name = 'alkyd test charge'\n\
+         [[component]]\nname = 'glycerol'\nmass_kg = 0.184188\nmolar_mass = 92.094\nhydroxyl_groups = 3\n\
+         [[component]]\nname = 'phthalic anhydride'\nmass_kg = 0.29624\nmolar_mass = 148.12\nacid_groups = 2\nanhydride = true\n\
+         [[component]]\nname = 'benzoic acid'\nmass_kg = 0.12212\nmolar_mass = 122.12\nacid_groups = 1\n",
+    );
+    let out = w
+        .cmd()
+        .args([
+            "endgroup",
+            "--av",
+            "150",
+            "--ohv",
+            "150",
+            "--json",
+            "--recipe",
+            "alkyd.toml",
+        ])
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let p_c = v["gel_point_statistical"].as_f64().unwrap();
+    assert!((p_c - 0.866).abs() <= 0.001, "{p_c}");
+}
+
+#[test]
+fn gel_margin_without_recipe_is_refused() {
+    Workspace::new()
+        .cmd()
+        .args([
+            "endgroup",
+            "--av",
+            "1",
+            "--ohv",
+            "50",
+            "--gel-margin",
+            "0.01",
+        ])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("--gel-margin"))
+        .stderr(predicate::str::contains("--recipe"));
+}
+
+#[test]
+fn ohv_method_table_decides_the_correction_issue_18() {
+    // ASTM E1899 measures OHV + AV, so 56.4 raw at AV 0.6 is OHV 55.8; an acetylation method
+    // (ISO 4629-2, the default) measures OHV − AV: 56.4 + 0.6 = 57.0.
+    let ohv = |extra: &[&str]| {
+        let out = Workspace::new()
+            .cmd()
+            .args([
+                "endgroup",
+                "--av",
+                "0.6",
+                "--ohv",
+                "56.4",
+                "--raw-ohv",
+                "--json",
+            ])
+            .args(extra)
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(0));
+        let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        (
+            v["hydroxyl_value_corrected"].as_f64().unwrap(),
+            v["acidity_correction"].as_str().unwrap().to_string(),
+        )
+    };
+    let (e1899, how) = ohv(&["--ohv-method", "ASTM E1899-16"]);
+    assert!(
+        (e1899 - 55.8).abs() < 1e-12 && how == "subtract",
+        "{e1899} {how}"
+    );
+    let (iso, how) = ohv(&["--ohv-method", "ISO 4629-2"]);
+    assert!((iso - 57.0).abs() < 1e-12 && how == "add", "{iso} {how}");
+    let (default, _) = ohv(&[]);
+    assert!((default - 57.0).abs() < 1e-12);
+}
+
+#[test]
+fn unknown_ohv_method_is_refused() {
+    Workspace::new()
+        .cmd()
+        .args([
+            "endgroup",
+            "--av",
+            "0.6",
+            "--ohv",
+            "56.4",
+            "--raw-ohv",
+            "--ohv-method",
+            "ISO 9999",
+        ])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("--ohv-method"))
+        .stderr(predicate::str::contains(
+            "'ISO 9999' is not in resinlot's table",
+        ))
+        .stderr(predicate::str::contains("ASTM E1899"));
+}
+
+#[test]
+fn ohv_method_needs_raw_ohv() {
+    Workspace::new()
+        .cmd()
+        .args([
+            "endgroup",
+            "--av",
+            "0.6",
+            "--ohv",
+            "56.4",
+            "--ohv-method",
+            "ASTM E1899",
+        ])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("--raw-ohv"));
+}
