@@ -217,7 +217,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     } else if hits.is_empty() {
         "No lots match.\n".to_string()
     } else {
-        table_text(args, given.is_none(), &windows, &hits, customer.as_ref())
+        let across = given.is_none() && args.part_number.is_none();
+        table_text(args, across, &windows, &hits, customer.as_ref())
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)

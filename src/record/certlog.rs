@@ -398,9 +398,20 @@ impl Log {
     }
 
     /// Rows of the log that are certificates (not layout rows).
+    ///
+    /// Counted as distinct numbers: a certificate for several lots has a row per lot, and an
+    /// event row names a number already issued (issue #16).
     fn certificate_rows(&self) -> usize {
         let t = &self.locked.trend;
-        t.rows.iter().filter(|r| !is_layout_row(t, r)).count()
+        let mut numbers: Vec<&str> = t
+            .rows
+            .iter()
+            .filter(|r| !is_layout_row(t, r))
+            .map(|r| t.cell(r, "number"))
+            .collect();
+        numbers.sort_unstable();
+        numbers.dedup();
+        numbers.len()
     }
 
     /// Appends an entry and syncs it to disk; the lot's latest row in its trend file is
@@ -699,6 +710,9 @@ mod tests {
         assert_eq!(std::fs::read(path(dir.path())).unwrap(), before);
         log.append_all(&[entry("FW-000001"), entry("FW-000001")])
             .unwrap();
+        // Two rows, one certificate: the next number is 2, not 3.
+        assert_eq!(log.highest_number("FW-"), 1);
+        assert_eq!(log.next_number("FW-"), "FW-000002");
         drop(log);
         assert_eq!(entries(dir.path()).unwrap().len(), 2);
     }

@@ -173,6 +173,11 @@ T26-104,TP-2000,2026-05-23,0.50,55.5,535
         .assert()
         .code(0)
         .stdout(predicate::str::contains("genuine"));
+    // Three log rows are one certificate: the next delivery takes the next number.
+    deliver(&w, &["T26-103"], "4712", "1 drum")
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains("Certificate FW-000006 "));
 }
 
 #[test]
