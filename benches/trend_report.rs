@@ -92,18 +92,8 @@ fn main() {
     let start = Instant::now();
     for t in &trends {
         let chart = resinlot::trend::chart::ChartInput {
-            product: &t.product,
-            property: &t.label,
-            unit: &t.unit,
-            date_from: &t.date_from,
-            date_to: &t.date_to,
-            lot_ids: &t.lots,
-            values: &t.values,
-            limits: &t.limits,
-            spec_min: t.spec_min,
-            spec_max: t.spec_max,
-            signals: &t.raw_signals,
             baseline_len: None,
+            ..resinlot::trend::chart::ChartInput::of_trend(t)
         };
         resinlot::trend::chart::imr_png(&chart).expect("chart");
     }

@@ -10,11 +10,22 @@ rm -rf "$demo"   # this script owns the folder; the demo itself refuses to delet
 cargo build --release --quiet
 ./target/release/resinlot demo "$demo" > target/readme-demo.txt
 cp target/readme-demo.txt "$demo/outputs/00-demo.txt"
-# Pictures: the first page of a customer certificate and the drifting hydroxyl-value chart.
+# Pictures: the first page of a customer certificate, the drifting hydroxyl-value chart, the
+# hydroxyl-value page and the viscosity-Mn page (the last) of the PD-2000 trend report, and the
+# cook chart (needs pdftotext and pdfinfo, also poppler-utils).
 cert=$(ls "$demo"/certificates/F2611-D05_*.pdf | tail -n 1)
 pdftoppm -png -r 80 -f 1 -l 1 -singlefile "$cert" docs/certificate
 cp "$demo/outputs/pd-2000-hydroxyl-value.png" docs/control-chart.png
-pdftoppm -png -r 60 -f 2 -l 2 -singlefile "$demo/outputs/pd-2000-trend.pdf" docs/trend-report
+report="$demo/outputs/pd-2000-trend.pdf"
+pages=$(pdfinfo "$report" | awk '/^Pages:/ {print $2}')
+ohv=$(for p in $(seq 1 "$pages"); do
+  pdftotext -f "$p" -l "$p" "$report" - | head -n 1 | grep -q '^Hydroxyl value' && { echo "$p"; break; }
+done)
+pdftoppm -png -r 80 -f "$ohv" -l "$ohv" -singlefile "$report" docs/trend-report
+pdftoppm -png -r 80 -f "$pages" -l "$pages" -singlefile "$report" docs/viscosity-mn
+./target/release/resinlot cook demo-lots/cooks/pd2000-200-a.csv --recipe specs/recipes/pd-2000.toml \
+  --target-av 1.0 --chart target/readme-cook.png > /dev/null
+cp target/readme-cook.png docs/cook-chart.png
 python3 - "$demo/outputs" <<'PY'
 import pathlib, re, sys
 out = pathlib.Path(sys.argv[1])

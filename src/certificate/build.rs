@@ -45,6 +45,21 @@ pub struct LotRecord {
     pub decided_at: String,
     /// Notes recorded with the decision (corrections, replicates, conditional results), typed.
     pub notes: Vec<LotNote>,
+    /// The concession the lot was released under, when QA released it for one customer
+    /// (issue #14).
+    pub concession: Option<Concession>,
+    /// Test date of the lot's latest retest, which may extend its retest date (issue #14);
+    /// set by the caller that reads every row of the lot.
+    pub latest_retest: Option<NaiveDate>,
+}
+
+/// A concession (deviation permit) granted by one customer for one lot (ISO 9001:2015 §8.7).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Concession {
+    /// The customer's concession (deviation) number.
+    pub reference: String,
+    /// The customer's file stem.
+    pub customer: String,
 }
 
 impl LotRecord {
@@ -77,6 +92,11 @@ impl LotRecord {
             approver: c("approver"),
             decided_at: c("recorded_at"),
             notes: LotNote::parse_cell(&c("notes")),
+            concession: (c("disposition") == "concession").then(|| Concession {
+                reference: c("concession_ref"),
+                customer: c("concession_customer"),
+            }),
+            latest_retest: None,
         })
     }
 
@@ -114,6 +134,8 @@ impl LotRecord {
             approver: approver.to_string(),
             decided_at: now.to_string(),
             notes: d.notes.clone(),
+            concession: None,
+            latest_retest: None,
         }
     }
 
@@ -168,20 +190,18 @@ fn decimals_after(decimals: u32, factor: Decimal) -> u32 {
 /// ([`customer_fit`]); the error names every lot and property that falls short, with both
 /// windows (issue #16: a delivery of several lots is certified only when every lot fits).
 pub fn check_customer(spec: &ProductSpec, recs: &[LotRecord], ship: &Shipment) -> Result<()> {
-    let failed: Vec<String> = recs
-        .iter()
-        .filter_map(|rec| {
-            let f = customer_failures(spec, rec, ship);
-            (!f.is_empty()).then(|| {
-                format!(
-                    "lot {} cannot be certified for {}: {}",
-                    rec.lot,
-                    ship.customer.name,
-                    f.join("; ")
-                )
-            })
-        })
-        .collect();
+    let mut failed = Vec::new();
+    for rec in recs {
+        let f = customer_shortfalls(spec, rec, ship)?;
+        if !f.is_empty() {
+            failed.push(format!(
+                "lot {} cannot be certified for {}: {}",
+                rec.lot,
+                ship.customer.name,
+                f.join("; ")
+            ));
+        }
+    }
     if failed.is_empty() {
         Ok(())
     } else {
@@ -197,9 +217,49 @@ pub fn check_customer(spec: &ProductSpec, recs: &[LotRecord], ship: &Shipment) -
     }
 }
 
-/// What keeps one lot from a customer's certificate: each property missing or outside the
-/// customer's window, in plain words (empty when the lot fits).
-fn customer_failures(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> Vec<String> {
+/// What a lot released under concession deviates in (issue #14): every property whose
+/// recorded verdict against the product spec is not a pass, then every property outside the
+/// customer's window (as [`check_customer`] judges it); one plain phrase each.
+pub fn concession_deviations(
+    spec: &ProductSpec,
+    rec: &LotRecord,
+    ship: &Shipment,
+) -> Result<Vec<String>> {
+    let mut out: Vec<String> = spec
+        .properties
+        .iter()
+        .filter_map(|p| {
+            let verdict = rec.verdicts.get(&p.key)?;
+            if verdict.is_empty() || verdict == "pass" {
+                return None;
+            }
+            let value = rec
+                .value(&p.key)
+                .map(|v| round(v, p.decimals, spec.rounding).to_string())
+                .unwrap_or_else(|| "missing".into());
+            Some(format!(
+                "{} {} {} is {} against the product spec {} revision {} ({})",
+                p.label,
+                value,
+                p.unit,
+                verdict.replace('_', " "),
+                spec.code,
+                spec.revision,
+                limits_text(p.min, p.max, p.decimals)
+            ))
+        })
+        .collect();
+    out.extend(customer_shortfalls(spec, rec, ship)?);
+    Ok(out)
+}
+
+/// Every property of `rec` that falls short of the customer's windows, in words naming both
+/// windows; a missing required result is named too.
+fn customer_shortfalls(
+    spec: &ProductSpec,
+    rec: &LotRecord,
+    ship: &Shipment,
+) -> Result<Vec<String>> {
     let mut failures = Vec::new();
     for p in &spec.properties {
         let window = ship.product.limits.get(&p.key);
@@ -239,7 +299,7 @@ fn customer_failures(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> Ve
             _ => {}
         }
     }
-    failures
+    Ok(failures)
 }
 
 /// Builds the certificate for `rec`; with a shipment, the customer's view of it.
@@ -438,8 +498,12 @@ fn lot_of(spec: &ProductSpec, rec: &LotRecord) -> cert::Lot {
     cert::Lot {
         id: rec.lot.clone(),
         manufactured: rec.manufactured,
-        retest: crate::spec::retest_date(rec.manufactured, spec.retest_months)
-            .unwrap_or(rec.manufactured),
+        retest: crate::lot::disposition::retest_date(
+            rec.manufactured,
+            spec.retest_months,
+            rec.latest_retest,
+        )
+        .unwrap_or(rec.manufactured),
     }
 }
 
@@ -570,7 +634,24 @@ fn calculated_notes(spec: &ProductSpec, rec: &LotRecord, keys: &[String]) -> Vec
 
 /// The decision rule, guard band and statement of conformity (none for a lot not released).
 fn conformity(spec: &ProductSpec, rec: &LotRecord, ship: Option<&Shipment>) -> Conformity {
-    let statement = if rec.status == Status::Released {
+    let statement = if let (Status::Released, Some(c)) = (rec.status, &rec.concession) {
+        let deviations = ship
+            .and_then(|s| concession_deviations(spec, rec, s).ok())
+            .unwrap_or_default();
+        format!(
+            "RELEASED UNDER CONCESSION {}{}: the lot does not conform in every respect to specification {} revision {}{}. It is supplied under this concession only.",
+            c.reference,
+            ship.map(|s| format!(" agreed with {}", s.customer.name))
+                .unwrap_or_default(),
+            spec.code,
+            spec.revision,
+            if deviations.is_empty() {
+                String::new()
+            } else {
+                format!("; deviations: {}", deviations.join("; "))
+            }
+        )
+    } else if rec.status == Status::Released {
         format!(
             "The lot conforms to specification {} revision {}{} under the decision rule stated.",
             spec.code,

@@ -291,6 +291,5 @@ fn entry(p: &Pending, file: &str, sha: &str, issued_at: &str) -> Entry {
         reason: p.reason.clone(),
         po: p.po.clone(),
         quantity: p.quantity.clone(),
-        ..Default::default()
     }
 }

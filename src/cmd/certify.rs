@@ -127,7 +127,36 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         purchase_order: args.po.as_deref(),
         quantity: args.quantity.as_deref(),
     };
-    build::check_customer(spec, &recs, &ship)?;
+    let today = crate::support::clock::now()?.date_naive();
+    for rec in &recs {
+        check_shelf_life(rec, spec.retest_months, today)?;
+    }
+    // A lot released under concession goes to its customer alone, deviations and all; for
+    // everyone else it is not released (issue #14). Each other lot meets the windows.
+    let mut deviations: Vec<String> = Vec::new();
+    let mut plain: Vec<LotRecord> = Vec::new();
+    for rec in &recs {
+        match &rec.concession {
+            Some(c) if c.customer != customer.id => {
+                return Err(Error::Shortfall(format!(
+                    "lot {} is released under concession {} for customer '{}' only: it cannot be certified for {}",
+                    rec.lot, c.reference, c.customer, customer.name
+                ))
+                .into())
+            }
+            Some(_) => deviations.extend(
+                build::concession_deviations(spec, rec, &ship)?
+                    .into_iter()
+                    .map(|d| if recs.len() > 1 { format!("lot {}: {d}", rec.lot) } else { d }),
+            ),
+            None => plain.push(rec.clone()),
+        }
+    }
+    build::check_customer(spec, &plain, &ship)?;
+    let concessions: Vec<&str> = recs
+        .iter()
+        .filter_map(|r| r.concession.as_ref().map(|c| c.reference.as_str()))
+        .collect();
     let issuer = Issuer::new(&args.templates, &args.certificates)?;
     let mut log = Log::lock(&args.register, wait)?;
     let lots: Vec<&str> = recs.iter().map(|r| r.lot.as_str()).collect();
@@ -136,8 +165,10 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         po: args.po.as_deref().unwrap_or(""),
         lots: &lots,
     };
-    let previous = crate::record::shipments::reissue_of(&log.entries(), &delivery)?;
+    let certs = crate::record::certlog::certificates(&log.entries(), &log.standings());
+    let previous = crate::record::shipments::reissue_of(&certs, &delivery)?;
     let supersedes = supersedes(previous.as_ref(), args, &delivery, &customer)?;
+    let superseded = supersedes.clone();
     let now = crate::support::clock::now()?;
     let number = issuer.numbering(&log)?.nth(0);
     let certificate = build::build_delivery(
@@ -158,23 +189,27 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     }];
     let rendered = issuer.render(&pending)?;
     issuer.check_targets(&pending)?;
-    let issued = issuer.file(
-        &mut log,
-        &pending,
-        &rendered,
-        args.html,
-        &now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
-    )?;
+    let issued_at = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
+    let issued = issuer.file(&mut log, &pending, &rendered, args.html, &issued_at)?;
     let i = &issued[0];
+    if let Some(old) = &superseded {
+        // The reissue row names what it supersedes; the event row says so in the old
+        // certificate's own terms (issue #14). Either alone makes the old one superseded.
+        log.supersede(&old.number, &i.certificate_number, &old.reason, &issued_at)?;
+    }
     let text = if args.json {
         let mut v = serde_json::to_value(i)?;
         v["lots"] = serde_json::json!(lots);
         v["po"] = serde_json::json!(args.po);
         v["quantity"] = serde_json::json!(args.quantity);
         v["supersedes"] = serde_json::json!(previous.as_ref().map(|p| &p.number));
+        if !concessions.is_empty() {
+            v["concession"] =
+                serde_json::json!({"reference": concessions.join(", "), "deviations": deviations});
+        }
         serde_json::to_string_pretty(&v)? + "\n"
     } else {
-        format!(
+        let mut t = format!(
             "Certificate {} for lot{} {} ({}) issued to {}{}{}\n  {}\n  SHA-256 {}\n",
             i.certificate_number,
             if lots.len() == 1 { "" } else { "s" },
@@ -190,7 +225,21 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                 .unwrap_or_default(),
             i.path.display(),
             i.sha256
-        )
+        );
+        if !concessions.is_empty() {
+            t.push_str(&format!(
+                "  Released under concession {} agreed with {}; outside the windows:\n",
+                concessions.join(", "),
+                customer.name
+            ));
+            if deviations.is_empty() {
+                t.push_str("    none recorded\n");
+            }
+            for d in &deviations {
+                t.push_str(&format!("    {d}\n"));
+            }
+        }
+        t
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
@@ -236,13 +285,39 @@ fn recorded_lots(args: &Args, wait: Wait) -> anyhow::Result<(Locked, Vec<LotReco
     let trend = &locked.trend;
     let mut recs = Vec::new();
     for lot in &args.lots {
-        let row = *trend
-            .lot_rows(lot)
-            .first()
+        // The id as recorded: any case finds the lot (issue #14).
+        let found = crate::record::query::find_lot(&args.register, lot)?
             .ok_or_else(|| not_recorded(lot))?;
-        recs.push(LotRecord::from_row(trend, row)?);
+        let id = found.cell(&found.rows[0], "lot");
+        let rows = trend.lot_rows(id);
+        let row = *rows.first().ok_or_else(|| not_recorded(lot))?;
+        let mut rec = LotRecord::from_row(trend, row)?;
+        rec.latest_retest = crate::record::lifecycle::latest_retest(trend, &rows);
+        recs.push(rec);
     }
     Ok((locked, recs))
+}
+
+/// Refuses (exit 1) a lot whose retest date has passed, naming the date (issue #14); the
+/// retest date is extended by a retest on or after it ([`crate::lot::disposition`]).
+fn check_shelf_life(rec: &LotRecord, months: u32, today: chrono::NaiveDate) -> anyhow::Result<()> {
+    let Some(until) =
+        crate::lot::disposition::retest_date(rec.manufactured, months, rec.latest_retest)
+    else {
+        return Ok(());
+    };
+    if crate::lot::disposition::expired(until, today) {
+        return Err(Error::Shortfall(format!(
+            "lot {} passed its retest date {until} (manufactured {}, retest every {months} months{}): it cannot be certified until a retest extends it; record one with `release --retest --reason \"shelf-life retest\"`",
+            rec.lot,
+            rec.manufactured,
+            rec.latest_retest
+                .map(|d| format!(", last retest {d}"))
+                .unwrap_or_default()
+        ))
+        .into());
+    }
+    Ok(())
 }
 
 /// What a reissue supersedes: a certificate already issued for one of the lots to the same

@@ -38,6 +38,12 @@ pub enum Command {
     /// the customer's tighter windows, numbered and recorded in the certificate log.
     #[command(after_help = EXIT_STATUS)]
     Certify(cmd::certify::Args),
+    /// QA's decision on a lot after its first decision (ISO 9001 §8.7): release a held lot,
+    /// release it under one customer's concession, send it to rework or reject it. Appends a
+    /// chained row to the trend file; a lot rejected or held has its certificates withdrawn
+    /// in the certificate log, and the customers to notify are listed.
+    #[command(after_help = EXIT_STATUS)]
+    Disposition(cmd::disposition::Args),
     /// Trend a product's lots: I-MR control charts, Nelson run rules, capability (Cp, Cpk,
     /// Pp, Ppk) and the viscosity–Mn check; SVG/PNG charts and a PDF report.
     #[command(after_help = EXIT_STATUS)]
@@ -66,7 +72,8 @@ pub enum Command {
     #[command(after_help = EXIT_STATUS)]
     Specs(cmd::specs::Args),
     /// Check that the record is intact (trend files, hash chains, certificate log and PDFs),
-    /// quarantine a torn last line, or identify certificate PDFs as genuine, altered or unknown.
+    /// quarantine a torn last line, or identify certificate PDFs as genuine, superseded,
+    /// withdrawn, altered or unknown.
     ///
     /// Every trend file is also checked against the anchors kept outside it: each row of
     /// register/heads.csv (row count and last chain value after every append) and each

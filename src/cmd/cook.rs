@@ -75,9 +75,11 @@ pub struct Args {
     /// (with a GEL WARNING). Without it such a target is refused with exit status 1. Default: off.
     #[arg(long, conflicts_with = "arrhenius")]
     pub beyond_gel: bool,
-    /// Write an SVG chart of the linearised quantity against time to this file; an existing
-    /// file there is replaced only if it is a resinlot chart, and the chart never goes into the
-    /// workspace folders. Default: no chart.
+    /// Write the cook chart to this file: the acid value against time with the fitted model,
+    /// the target and the predicted end point, over the linearised quantity against time, with
+    /// the safety caution at its foot. SVG, or PNG (twice the SVG's 960 px width) for a name
+    /// ending in .png; an existing file there is replaced only if it is a resinlot chart, and
+    /// the chart never goes into the workspace folders. Default: no chart.
     #[arg(long, value_name = "FILE")]
     pub chart: Option<PathBuf>,
     /// The specs folder (`--specs`), which the chart never enters.
@@ -157,16 +159,27 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     if let Some((path, bytes)) = chart {
         let record =
             crate::cmd::args::record_folders(&args.specs, &args.register, &args.certificates);
-        crate::support::output::write_output(path, bytes, OutputKind::Svg, &record)?;
+        // A .png name gets the chart rasterised, not SVG text under the wrong name.
+        let png = path
+            .extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("png"));
+        if png {
+            let bytes = crate::support::visual::svg_to_png(&bytes, 2.0)?;
+            crate::support::output::write_output(path, bytes, OutputKind::Png, &record)?;
+        } else {
+            crate::support::output::write_output(path, bytes, OutputKind::Svg, &record)?;
+        }
     }
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }
 
-/// The SVG chart of one cook, titled with the recipe and the samples file name.
+/// The SVG chart of one cook (acid value and kinetics panels), titled with the recipe and the
+/// samples file name.
 fn chart_bytes(rep: &CookReport, recipe: &Recipe) -> crate::error::Result<Vec<u8>> {
     let title = format!("{} — {}", recipe.name, file_name(&rep.file));
-    chart::render(&rep.chart_input(title))
+    let acid_values = chart::AcidValuePanel::of(rep, &recipe.charge())?;
+    chart::render(&rep.chart_input(title), &acid_values)
 }
 
 fn file_name(path: &str) -> String {

@@ -1,6 +1,8 @@
 //! `resinlot find`: which lots fit given windows, or a customer's requirements, in one product
 //! or across every product of the register.
 
+use std::collections::HashMap;
+
 use chrono::NaiveDate;
 use serde_json::{json, Map, Value};
 
@@ -8,8 +10,8 @@ use crate::cmd::args::{self, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::lot::evaluate::Status;
-use crate::record::find::{self, CustomerCheck, LotFilter, Precision};
-use crate::record::query::{parse_window, LotRow, Window};
+use crate::record::find::{self, CustomerCheck, LifeCheck, LotFilter, Precision};
+use crate::record::query::{parse_window, Life, LotRow, Window};
 use crate::spec::customer::Customer;
 use crate::spec::SpecSet;
 
@@ -67,6 +69,10 @@ pub struct Args {
     /// Print CSV (for a spreadsheet) instead of the table.
     #[arg(long)]
     pub csv: bool,
+    /// Also list lots past their retest date (manufacture date + the spec's retest_months,
+    /// extended by a retest on or after it). Default: they are left out and counted.
+    #[arg(long)]
+    pub include_expired: bool,
 }
 
 /// One product searched: its keys, the columns loaded, its lots and how they are reported.
@@ -75,7 +81,10 @@ struct Searched {
     keys: Vec<String>,
     loaded: Vec<String>,
     lots: Vec<LotRow>,
+    lives: Vec<Life>,
     precision: Option<Precision>,
+    /// Customer (file stem) of each lot released under concession, by trend-file line.
+    concessions: HashMap<usize, &'static str>,
 }
 
 /// A lot found, with the product search it came from.
@@ -124,7 +133,9 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .into());
     }
     let needs_specs = !args.full_precision || args.customer.is_some() || args.part_number.is_some();
-    let specs = if needs_specs {
+    // Shelf life needs the retest period of each lot's revision; without a specs folder
+    // nothing is judged expired (issue #14).
+    let specs = if needs_specs || args.specs.is_dir() {
         Some(SpecSet::load(&args.specs)?)
     } else {
         None
@@ -155,7 +166,14 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             continue; // a product without the property has no lot in the window
         }
         let loaded = find::keys_to_load(&keys, &windows, every);
-        let (_, lots) = crate::record::query::current_lots(&path, &loaded, customer.is_some())?;
+        let (_, lots, lives) =
+            crate::record::query::current_lots_with_life(&path, &loaded, customer.is_some())?;
+        let concessions = lots
+            .iter()
+            .zip(&lives)
+            .filter(|(_, l)| !l.concession.is_empty())
+            .map(|(r, l)| (r.line, l.concession))
+            .collect();
         let precision = match (&specs, args.full_precision) {
             (Some(s), false) => Some(Precision::new(s, product, &lots, &loaded)),
             _ => None,
@@ -165,7 +183,9 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             keys,
             loaded,
             lots,
+            lives,
             precision,
+            concessions,
         });
     }
     if searched.is_empty() && !windows.is_empty() && !products.is_empty() {
@@ -179,10 +199,13 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         )
         .into());
     }
+    let today = crate::support::clock::now()?.date_naive();
+    let mut expired = 0;
     let mut hits: Vec<Hit> = Vec::new();
     for s in &searched {
         let check = match (&specs, &customer) {
             (Some(specs), Some(cu)) => Some(CustomerCheck {
+                customer: &cu.id,
                 specs,
                 requirements: cu.product(&s.product)?,
             }),
@@ -195,13 +218,17 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             from: args.from,
             to: args.to,
             customer: check,
+            life: Some(LifeCheck {
+                lives: &s.lives,
+                specs: specs.as_ref(),
+                today,
+                include_expired: args.include_expired,
+            }),
             precision: s.precision.as_ref(),
         };
-        hits.extend(
-            find::matching_lots(&s.lots, &s.loaded, &filter)
-                .into_iter()
-                .map(|row| Hit { from: s, row }),
-        );
+        let (found, gone) = find::matching_lots_counted(&s.lots, &s.loaded, &filter);
+        expired += gone;
+        hits.extend(found.into_iter().map(|row| Hit { from: s, row }));
     }
     hits.sort_by(|a, b| {
         b.row
@@ -211,14 +238,14 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             .then(b.row.line.cmp(&a.row.line))
     });
     let text = if args.json {
-        json_text(&hits)?
+        json_text(&hits, expired)?
     } else if args.csv {
         csv_text(&searched, &hits)?
     } else if hits.is_empty() {
-        "No lots match.\n".to_string()
+        format!("No lots match.\n{}", expired_text(expired))
     } else {
         let across = given.is_none() && args.part_number.is_none();
-        table_text(args, across, &windows, &hits, customer.as_ref())
+        table_text(args, across, &windows, &hits, customer.as_ref()) + &expired_text(expired)
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
@@ -283,7 +310,21 @@ fn scope(
     Ok((customer, products))
 }
 
-fn json_text(hits: &[Hit]) -> anyhow::Result<String> {
+/// The line saying how many lots were left out as past their retest date (issue #14).
+fn expired_text(expired: usize) -> String {
+    match expired {
+        0 => String::new(),
+        n => format!(
+            "{n} more lot{} matched but {} past {} retest date and left out (--include-expired lists {}).\n",
+            if n == 1 { "" } else { "s" },
+            if n == 1 { "is" } else { "are" },
+            if n == 1 { "its" } else { "their" },
+            if n == 1 { "it" } else { "them" },
+        ),
+    }
+}
+
+fn json_text(hits: &[Hit], expired: usize) -> anyhow::Result<String> {
     let lots: Vec<Value> = hits
         .iter()
         .map(|h| {
@@ -293,6 +334,9 @@ fn json_text(hits: &[Hit]) -> anyhow::Result<String> {
             m.insert("product".into(), json!(h.from.product));
             m.insert("manufactured".into(), json!(r.manufactured));
             m.insert("status".into(), json!(r.status));
+            if let Some(c) = h.from.concessions.get(&r.line) {
+                m.insert("concession_customer".into(), json!(c));
+            }
             for k in &h.from.keys {
                 let v = h.value(k).and_then(|t| t.parse::<f64>().ok());
                 m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
@@ -300,7 +344,7 @@ fn json_text(hits: &[Hit]) -> anyhow::Result<String> {
             Value::Object(m)
         })
         .collect();
-    Ok(serde_json::to_string_pretty(&json!({ "lots": lots }))? + "\n")
+    Ok(serde_json::to_string_pretty(&json!({ "lots": lots, "expired_left_out": expired }))? + "\n")
 }
 
 fn csv_text(searched: &[Searched], hits: &[Hit]) -> anyhow::Result<String> {
@@ -355,7 +399,11 @@ fn table_text(
         if across {
             line.push(h.from.product.clone());
         }
-        line.extend([h.row.manufactured.to_string(), h.row.status.to_string()]);
+        let status = match h.from.concessions.get(&h.row.line) {
+            Some(c) => format!("{} (concession for {c})", h.row.status),
+            None => h.row.status.to_string(),
+        };
+        line.extend([h.row.manufactured.to_string(), status]);
         for k in &show {
             let v = h.value(k).unwrap_or_default();
             line.push(if args.full_precision {

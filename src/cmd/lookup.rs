@@ -5,7 +5,11 @@ use serde_json::{json, Map, Value};
 use crate::cmd::args::{check_lot_id, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
+use crate::record::certlog::{Entry, Standing};
 use crate::record::trend_file::{Row, Trend};
+
+/// A certificate of the lot with its standing in the log.
+type Cert = (Entry, Standing);
 use crate::spec::keys;
 use crate::spec::{end_groups_words, limits_text, ProductSpec, SpecSet};
 
@@ -28,13 +32,13 @@ pub struct Args {
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     check_lot_id(&args.lot)?;
-    let all = crate::record::certlog::entries(&args.register)?;
+    let all = crate::record::certlog::all_certificates(&args.register)?;
     // A certificate number answers for the certificate and each of its lots (issue #16).
     if let Some(cert) = crate::record::query::certificate(&all, &args.lot) {
         let mut text = certificate_text(&cert);
         let mut lots = Vec::new();
         for lot in &cert.lots {
-            let (t, v) = lot_answer(args, lot, &all)?;
+            let (t, v) = lot_answer(args, lot)?;
             text.push('\n');
             text.push_str(&t);
             lots.push(v);
@@ -47,7 +51,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         crate::support::output::print(&text)?;
         return Ok(Outcome::AllGood);
     }
-    let (text, v) = lot_answer(args, &args.lot, &all)?;
+    let (text, v) = lot_answer(args, &args.lot)?;
     let text = if args.json {
         serde_json::to_string_pretty(&v)? + "\n"
     } else {
@@ -95,11 +99,7 @@ fn certificate_text(c: &crate::record::certlog::Certificate) -> String {
 
 /// The text and JSON answers about one lot; refused (exit 1, with near ids) when the record
 /// does not hold it.
-fn lot_answer(
-    args: &Args,
-    lot: &str,
-    all: &[crate::record::certlog::Entry],
-) -> anyhow::Result<(String, Value)> {
+fn lot_answer(args: &Args, lot: &str) -> anyhow::Result<(String, Value)> {
     let Some(trend) = crate::record::query::find_lot(&args.register, lot)? else {
         let near = crate::record::query::suggestions(&args.register, lot, 3)?;
         let hint = if near.is_empty() {
@@ -125,16 +125,38 @@ fn lot_answer(
     let spec = specs
         .as_ref()
         .and_then(|s| s.revision(&product, trend.cell(current, "spec_revision")));
-    let status = crate::record::certlog::statuses(all);
-    let certs: Vec<crate::record::certlog::Entry> = all
-        .iter()
-        .filter(|e| e.lot == lot && e.is_issue())
-        .cloned()
+    // The id as recorded: any case finds the lot (issue #14).
+    let lot = trend.cell(current, "lot").to_string();
+    let log = crate::record::certlog::read(&args.register)?;
+    let standings = log
+        .as_ref()
+        .map(crate::record::certlog::standings)
+        .unwrap_or_default();
+    let certs: Vec<Cert> = crate::record::certlog::entries(&args.register)?
+        .into_iter()
+        .filter(|e| e.lot == lot)
+        .map(|e| {
+            let standing = standings
+                .get(&e.number)
+                .cloned()
+                .unwrap_or(Standing::Current);
+            (e, standing)
+        })
         .collect();
-    Ok((
-        render(&trend, &rows, spec, &certs, &status),
-        as_json(&trend, &rows, &certs),
-    ))
+    let today = crate::support::clock::now()?.date_naive();
+    let shelf = spec.and_then(|s| {
+        crate::record::lifecycle::retest_date(&trend, &rows, current, s.retest_months)
+    });
+    let mut v = as_json(&trend, &rows, &certs);
+    if let Some(o) = v.as_object_mut() {
+        o.insert("retest_date".into(), json!(shelf.map(|d| d.to_string())));
+        o.insert(
+            "expired".into(),
+            json!(shelf.map(|d| crate::lot::disposition::expired(d, today))),
+        );
+    }
+    let text = render(&trend, &rows, spec, &certs, shelf.map(|d| (d, today)));
+    Ok((text, v))
 }
 
 fn values(t: &Trend, row: &Row) -> Map<String, Value> {
@@ -167,11 +189,22 @@ fn row_json(t: &Trend, row: &Row) -> Value {
         "values": values(t, row),
         "verdicts": verdicts,
         "notes": t.cell(row, "notes"),
+        "disposition": non_empty(t.cell(row, "disposition")),
+        "concession_ref": non_empty(t.cell(row, "concession_ref")),
+        "concession_customer": non_empty(t.cell(row, "concession_customer")),
     })
 }
 
+fn non_empty(s: &str) -> Value {
+    if s.is_empty() {
+        Value::Null
+    } else {
+        json!(s)
+    }
+}
+
 /// The JSON answer: the current row's fields at the top level, older rows under `history`.
-pub fn as_json(t: &Trend, rows: &[&Row], certs: &[crate::record::certlog::Entry]) -> Value {
+fn as_json(t: &Trend, rows: &[&Row], certs: &[Cert]) -> Value {
     let cur = rows[0];
     let mut v = row_json(t, cur);
     let obj = v.as_object_mut().expect("object");
@@ -188,7 +221,7 @@ pub fn as_json(t: &Trend, rows: &[&Row], certs: &[crate::record::certlog::Entry]
         "certificates".into(),
         json!(certs
             .iter()
-            .map(|c| json!({"number": c.number, "customer": c.customer_name, "issued_at": c.issued_at, "file": c.file, "po": c.po, "quantity": c.quantity}))
+            .map(|(c, st)| json!({"number": c.number, "customer": c.customer_name, "issued_at": c.issued_at, "file": c.file, "po": c.po, "quantity": c.quantity, "standing": st}))
             .collect::<Vec<_>>()),
     );
     obj.insert(
@@ -214,8 +247,8 @@ fn render(
     t: &Trend,
     rows: &[&Row],
     spec: Option<&ProductSpec>,
-    certs: &[crate::record::certlog::Entry],
-    status: &Statuses,
+    certs: &[Cert],
+    shelf: Option<(chrono::NaiveDate, chrono::NaiveDate)>,
 ) -> String {
     let cur = rows[0];
     let c = |n: &str| t.cell(cur, n);
@@ -225,29 +258,38 @@ fn render(
         c("product"),
         spec.map(|s| format!(" {}", s.name)).unwrap_or_default()
     );
-    out.push_str(&facts_text(spec, &c));
+    out.push_str(&facts_text(&c, shelf));
     out.push_str(&property_table(t, spec, &c));
     out.push_str(&derived_text(spec, &c));
     if !c("notes").is_empty() {
         out.push_str(&format!("Notes: {}\n", c("notes")));
     }
-    out.push_str(&certificates_text(certs, status));
+    out.push_str(&certificates_text(certs));
+    out.push_str(&dispositions_text(t, rows));
     out.push_str(&history_text(t, rows, spec));
     out
 }
 
-/// The lot's status, dates and retest date, as label-value pairs.
-fn facts_text<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> String {
-    let retest = spec.and_then(|s| {
-        chrono::NaiveDate::parse_from_str(c("manufactured"), "%Y-%m-%d")
-            .ok()
-            .and_then(|d| crate::spec::retest_date(d, s.retest_months))
-    });
+/// The lot's status, dates and retest date (with `shelf` = (retest date, today): expired
+/// since the retest date once it has passed), as label-value pairs.
+fn facts_text<'a>(
+    c: &dyn Fn(&str) -> &'a str,
+    shelf: Option<(chrono::NaiveDate, chrono::NaiveDate)>,
+) -> String {
+    let concession = if c("disposition") == "concession" {
+        format!(
+            ", under concession {} for customer '{}' only",
+            c("concession_ref"),
+            c("concession_customer")
+        )
+    } else {
+        String::new()
+    };
     let mut facts = vec![
         (
             "Status".to_string(),
             format!(
-                "{} (spec revision {})",
+                "{} (spec revision {}){concession}",
                 c("status").replace('_', " "),
                 c("spec_revision")
             ),
@@ -258,11 +300,47 @@ fn facts_text<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> St
             format!("{} by {}", c("recorded_at"), c("approver")),
         ),
     ];
-    if let Some(r) = retest {
-        facts.push(("Retest date".into(), r.to_string()));
+    if let Some((r, today)) = shelf {
+        let text = if crate::lot::disposition::expired(r, today) {
+            format!("{r}: expired since {r}; retest before use (`release --retest`)")
+        } else {
+            r.to_string()
+        };
+        facts.push(("Retest date".into(), text));
     }
     let mut out = crate::support::table::pairs(&facts);
     out.push('\n');
+    out
+}
+
+/// QA's dispositions of the lot, oldest first, in plain words (issue #14).
+fn dispositions_text(t: &Trend, rows: &[&Row]) -> String {
+    let mut out = String::new();
+    for r in rows.iter().rev() {
+        let Some(d) = crate::record::lifecycle::disposition_of(t, r) else {
+            continue;
+        };
+        if out.is_empty() {
+            out.push_str("\nQA dispositions (oldest first):\n");
+        }
+        out.push_str(&format!(
+            "  row {}  {}  {} ({}){}: {}\n",
+            t.cell(r, "seq"),
+            t.cell(r, "recorded_at"),
+            d.words(),
+            t.cell(r, "approver"),
+            if d == crate::lot::disposition::Decision::Concession {
+                format!(
+                    " (concession {} for customer '{}')",
+                    t.cell(r, "concession_ref"),
+                    t.cell(r, "concession_customer")
+                )
+            } else {
+                String::new()
+            },
+            t.cell(r, "reason")
+        ));
+    }
     out
 }
 
@@ -334,19 +412,23 @@ fn derived_text<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) -> 
     out
 }
 
-/// Each certificate number's status ([`crate::record::certlog::statuses`]).
-type Statuses = std::collections::HashMap<String, crate::record::certlog::CertStatus>;
-
-/// The certificates issued for the lot, with purchase order and status.
-fn certificates_text(certs: &[crate::record::certlog::Entry], status: &Statuses) -> String {
+/// The certificates issued for the lot, with their standing.
+fn certificates_text(certs: &[Cert]) -> String {
     let mut out = String::new();
     out.push_str("\nCertificates issued:\n");
     if certs.is_empty() {
         out.push_str("  none\n");
     }
-    for e in certs {
+    for (e, st) in certs {
+        let standing = match st {
+            Standing::Withdrawn { at, reason, .. } if !crate::record::certfiles::is_void(e) => {
+                format!("  WITHDRAWN {at}: {reason}")
+            }
+            Standing::Superseded { by, .. } => format!("  superseded by {by}"),
+            _ => String::new(),
+        };
         out.push_str(&format!(
-            "  {}  {}  {}{}{}{}\n",
+            "  {}  {}  {}{}{}{standing}\n",
             e.number,
             if crate::record::certfiles::is_void(e) {
                 "VOID (a file found without its log entry; not a certificate)"
@@ -360,12 +442,6 @@ fn certificates_text(certs: &[crate::record::certlog::Entry], status: &Statuses)
                 String::new()
             } else {
                 format!("  PO {}", e.po)
-            },
-            match status.get(&e.number) {
-                Some(s) if *s != crate::record::certlog::CertStatus::Current => {
-                    format!("  [{}]", s.as_str())
-                }
-                _ => String::new(),
             },
             if e.supersedes.is_empty() {
                 String::new()
@@ -398,7 +474,9 @@ fn history_text(t: &Trend, rows: &[&Row], spec: Option<&ProductSpec>) -> String 
                 vals.join(", ")
             ));
         }
-        if !t.cell(rows[0], "reason").is_empty() {
+        if crate::record::lifecycle::is_retest_row(t, rows[0])
+            && !t.cell(rows[0], "reason").is_empty()
+        {
             out.push_str(&format!("  Retest reason: {}\n", t.cell(rows[0], "reason")));
         }
     }

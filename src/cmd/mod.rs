@@ -8,6 +8,7 @@ pub mod certify;
 pub mod cli;
 pub mod cook;
 pub mod demo;
+pub mod disposition;
 pub mod endgroup;
 pub mod find;
 pub mod init;
@@ -48,6 +49,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Demo(args) => demo::run(&args),
         Command::Init(args) => init::run(&args),
         Command::Certify(args) => certify::run(&args),
+        Command::Disposition(args) => disposition::run(&args),
         Command::Lookup(args) => lookup::run(&args),
         Command::Trend(args) => trend::run(&args),
         Command::Find(args) => find::run(&args),

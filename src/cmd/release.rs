@@ -18,7 +18,7 @@ use crate::lot::evaluate::{evaluate, LotDecision, Status};
 use crate::lot::intake::{self, LotResults};
 use crate::record::append::{self, Plan};
 use crate::record::certfiles::{self, Completed};
-use crate::record::certlog::Log;
+use crate::record::certlog::{Log, Withdrawn};
 use crate::record::trend_file::{Locked, Trend, Wait};
 use crate::spec::SpecSet;
 
@@ -130,14 +130,16 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let mut rendered = Vec::new();
     let mut parts: Vec<String> = Vec::new();
     let mut completed: Vec<Completed> = Vec::new();
+    let mut withdrawn: Vec<(String, Withdrawn)> = Vec::new();
     let (recorded, issued) = if args.dry_run {
         let lines: Vec<u64> = lots.iter().map(|l| l.line).collect();
-        append::plan_unlocked(
+        let plans = append::plan_unlocked(
             &args.register,
             &batch(args, &lines, &decisions),
             &specs,
             &now_text,
         )?;
+        check_withdrawals_recordable(args, &decisions, &plans)?;
         (vec![Recorded::NotWritten; decisions.len()], Vec::new())
     } else {
         let (recorded, locks) = record(
@@ -199,16 +201,106 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             }
             _ => Vec::new(),
         };
+        // Still under the trend files' locks, after the rows (issue #14): a retest that
+        // rejects or holds a lot withdraws its current customer certificates.
+        withdrawn = withdraw_after_retests(
+            args, &mut log, &locks, &decisions, &recorded, &pending, &issued, &now_text,
+        )?;
         drop(locks);
         (recorded, issued)
     };
-    let text = report_text(args, &specs, &decisions, &recorded, &issued, &completed)?;
+    let text = report_text(
+        args, &specs, &decisions, &recorded, &issued, &completed, &withdrawn,
+    )?;
     crate::support::output::print(&text)?;
     Ok(if decisions.iter().all(|d| d.status == Status::Released) {
         Outcome::AllGood
     } else {
         Outcome::FellShort
     })
+}
+
+/// After a release's rows and certificates are filed, under the trend files' locks: withdraws
+/// the current customer certificates of every retested lot that is now rejected or on hold
+/// (trend row first, then the log rows; `verify` finds and completes a withdrawal cut short
+/// between the two). A retest's internal certificate supersedes the old one by its own row's
+/// `supersedes` cell. Returns (lot, certificate) for every certificate withdrawn.
+#[allow(clippy::too_many_arguments)]
+fn withdraw_after_retests(
+    args: &Args,
+    log: &mut Option<Log>,
+    locks: &BTreeMap<&str, Locked>,
+    decisions: &[LotDecision],
+    recorded: &[Recorded],
+    pending: &[Pending],
+    issued: &[Issued],
+    now: &str,
+) -> anyhow::Result<Vec<(String, Withdrawn)>> {
+    let retests: Vec<(&LotDecision, usize)> = decisions
+        .iter()
+        .zip(recorded)
+        .filter_map(|(d, r)| match r {
+            Recorded::Retest { seq, .. } => Some((d, *seq)),
+            _ => None,
+        })
+        .collect();
+    if retests.is_empty() {
+        return Ok(Vec::new());
+    }
+    let log = match log {
+        Some(l) => l,
+        None => log.insert(Log::lock(
+            &args.register,
+            Wait {
+                timeout: Duration::from_secs(args.locking.lock_timeout),
+            },
+        )?),
+    };
+    let mut out = Vec::new();
+    for (d, seq) in retests {
+        if !crate::lot::disposition::withdraws(d.status) {
+            continue;
+        }
+        let Some(locked) = locks.get(d.product.as_str()) else {
+            continue;
+        };
+        let t = &locked.trend;
+        let Some(row) = t.rows.get(seq - 1) else {
+            continue;
+        };
+        let cause = crate::record::lifecycle::cause_of(t, row, &d.product);
+        let new: Vec<String> = pending
+            .iter()
+            .zip(issued)
+            .filter(|(p, _)| p.certificate.lot.id == d.lot)
+            .map(|(_, i)| i.certificate_number.clone())
+            .collect();
+        for e in log.withdraw_lot(&d.lot, &cause, &new, now)? {
+            out.push((d.lot.clone(), log.notice(&e)));
+        }
+    }
+    Ok(out)
+}
+
+/// Refuses, before anything is written, retests that would withdraw certificates from a
+/// certificate log that cannot record withdrawals (an earlier layout: `resinlot upgrade`).
+fn check_withdrawals_recordable(
+    args: &Args,
+    decisions: &[LotDecision],
+    plans: &[Plan],
+) -> anyhow::Result<()> {
+    let lots: Vec<&str> = decisions
+        .iter()
+        .zip(plans)
+        .filter(|(d, p)| {
+            matches!(p, Plan::Retest { .. }) && crate::lot::disposition::withdraws(d.status)
+        })
+        .map(|(d, _)| d.lot.as_str())
+        .collect();
+    Ok(crate::record::certlog::check_withdrawable(
+        &args.register,
+        &lots,
+    )?)
 }
 
 /// Refuses an unusable --reason, and a --reason without --retest (it would be recorded
@@ -308,7 +400,12 @@ fn prepare_certificates(
             continue;
         }
         let spec = ctx.specs.for_date(&d.product, d.manufactured)?;
-        let rec = LotRecord::from_decision(d, ctx.approver, ctx.now_text);
+        let mut rec = LotRecord::from_decision(d, ctx.approver, ctx.now_text);
+        if matches!(plan, Plan::Retest { .. }) {
+            // This retest is the lot's latest; tested today, it may extend the retest date
+            // printed on its certificate (issue #14).
+            rec.latest_retest = Some(ctx.now.date_naive());
+        }
         // Only a retest supersedes, and only its reason is logged: a new lot in the same
         // batch carries neither.
         let retest_reason = match plan {
@@ -361,6 +458,7 @@ fn report_text(
     recorded: &[Recorded],
     issued: &[Issued],
     completed: &[Completed],
+    withdrawn: &[(String, Withdrawn)],
 ) -> anyhow::Result<String> {
     if args.json {
         let lots: Vec<JsonLot> = decisions
@@ -368,9 +466,22 @@ fn report_text(
             .zip(recorded)
             .map(|(decision, recorded)| JsonLot { decision, recorded })
             .collect();
-        return Ok(serde_json::to_string_pretty(
-            &serde_json::json!({ "lots": lots, "certificates": issued, "completed": completed }),
-        )? + "\n");
+        let withdrawn: Vec<serde_json::Value> = withdrawn
+            .iter()
+            .map(|(lot, w)| {
+                let mut v = serde_json::to_value(w).unwrap_or_default();
+                if let Some(o) = v.as_object_mut() {
+                    o.insert("lot".into(), serde_json::json!(lot));
+                }
+                v
+            })
+            .collect();
+        return Ok(serde_json::to_string_pretty(&serde_json::json!({
+            "lots": lots,
+            "certificates": issued,
+            "completed": completed,
+            "withdrawn": withdrawn,
+        }))? + "\n");
     }
     let mut t = render(specs, decisions, recorded, &args.register, args.dry_run);
     if !issued.is_empty() {
@@ -382,6 +493,16 @@ fn report_text(
             issued[0].certificate_number,
             issued[issued.len() - 1].certificate_number
         ));
+    }
+    let mut lots: Vec<&str> = withdrawn.iter().map(|(l, _)| l.as_str()).collect();
+    lots.dedup();
+    for lot in lots {
+        let of_lot: Vec<Withdrawn> = withdrawn
+            .iter()
+            .filter(|(l, _)| l == lot)
+            .map(|(_, w)| w.clone())
+            .collect();
+        t.push_str(&crate::cmd::disposition::notify_text(lot, &of_lot));
     }
     for c in completed {
         t.push_str(&format!(
@@ -433,6 +554,7 @@ fn record<'d>(
     let batch = batch(args, &lines, decisions);
     let trends = locks.iter().map(|(&p, l)| (p, &l.trend)).collect();
     let plans = append::plan(&batch, &trends, specs, &elsewhere)?;
+    check_withdrawals_recordable(args, decisions, &plans)?;
     append::check_time_order(&trends, decisions, &plans, now)?;
     append::check_rows_read_back(&trends, decisions, &plans, approver, now)?;
     // The heads are checked before anything is staged, so a refusal leaves no part behind.

@@ -66,7 +66,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     if let Some(c) = &args.customer {
         known_customer(c, &customers, &args.specs)?;
     }
-    let entries = crate::record::certlog::entries(&args.register)?;
+    let certs = crate::record::certlog::all_certificates(&args.register)?;
     let q = Query {
         customer: args.customer.as_deref(),
         lot: args.lot.as_deref(),
@@ -75,7 +75,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         since: args.since,
         until: args.until,
     };
-    let found = shipments::shipments(&entries, &q, &customers);
+    let found = shipments::shipments(&certs, &q, &customers);
     let text = if args.json {
         serde_json::to_string_pretty(&serde_json::json!({ "shipments": found }))? + "\n"
     } else if args.csv {

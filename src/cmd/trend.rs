@@ -205,7 +205,7 @@ fn chart_kind(path: &Path) -> OutputKind {
 
 /// Writes the I-MR chart: SVG, or PNG for a .png name; with `png`, a PNG beside the SVG too.
 fn write_chart(path: &Path, t: &PropertyTrend, png: bool, record: &[&Path]) -> anyhow::Result<()> {
-    let input = chart_input(t);
+    let input = crate::trend::chart::ChartInput::of_trend(t);
     let svg = crate::trend::chart::imr_svg(&input)?;
     if chart_kind(path) == OutputKind::Png {
         // A .png name gets a PNG, not SVG text under the wrong name.
@@ -219,23 +219,6 @@ fn write_chart(path: &Path, t: &PropertyTrend, png: bool, record: &[&Path]) -> a
         output::write_output(&path.with_extension("png"), png, OutputKind::Png, record)?;
     }
     Ok(())
-}
-
-fn chart_input(t: &PropertyTrend) -> crate::trend::chart::ChartInput<'_> {
-    crate::trend::chart::ChartInput {
-        product: &t.product,
-        property: &t.label,
-        unit: &t.unit,
-        date_from: &t.date_from,
-        date_to: &t.date_to,
-        lot_ids: &t.lots,
-        values: &t.values,
-        limits: &t.limits,
-        spec_min: t.spec_min,
-        spec_max: t.spec_max,
-        signals: &t.raw_signals,
-        baseline_len: (t.baseline_n < t.n).then_some(t.baseline_n),
-    }
 }
 
 fn render_report(

@@ -7,13 +7,15 @@ use crate::cmd::args::{CertificatesFolder, Locking, RegisterFolder};
 use crate::cmd::Outcome;
 use crate::record::certfiles;
 use crate::record::integrity::{self, CertVerdict, Repair};
+use crate::record::lifecycle;
 use crate::record::trend_file::Wait;
 
 /// Arguments of `resinlot verify`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Certificate PDFs to identify against the issue log (genuine, altered or unknown).
-    /// Without any, the whole record is checked instead.
+    /// Certificate PDFs to identify against the issue log: genuine (current, exit 0),
+    /// superseded, withdrawn, altered or unknown (exit 1). Without any, the whole record is
+    /// checked instead.
     #[arg(id = "pdf", value_name = "CERTIFICATES")]
     pub certificates: Vec<PathBuf>,
     /// The register folder (`--register`).
@@ -27,7 +29,8 @@ pub struct Args {
     /// one, or record the head of a trend file whose last rows were appended without one (a
     /// release interrupted before it recorded them in heads.csv); in the certificates folder,
     /// remove stray temporary `.part` files and log a certificate file found without its log
-    /// entry as void. Each repair is logged in
+    /// entry as void; record the withdrawals of certificates whose lot a later trend row
+    /// rejected or held (a withdrawal interrupted after its trend row). Each repair is logged in
     /// quarantine.log. Safe to run again after an interruption.
     #[arg(long)]
     pub quarantine: bool,
@@ -57,7 +60,15 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                 break;
             }
             for c in fixable {
-                let repair = if c.heads_behind {
+                let repair = if c.withdrawals_owed {
+                    let wait = Wait {
+                        timeout: Duration::from_secs(args.locking.lock_timeout),
+                    };
+                    for line in lifecycle::complete_withdrawals(&args.register, &now, wait)? {
+                        out.push_str(&format!("{line} (logged in quarantine.log)\n"));
+                    }
+                    continue;
+                } else if c.heads_behind {
                     integrity::record_head(&c.path, &now)?
                 } else {
                     integrity::quarantine(&c.path, c.offset.unwrap_or(0), &now)?
@@ -102,6 +113,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                         " (run with --quarantine to move it aside)"
                     } else if c.heads_behind {
                         " (run with --quarantine to record their head)"
+                    } else if c.withdrawals_owed {
+                        " (run with --quarantine to record the withdrawals)"
                     } else if c.newline_missing {
                         " (run with --quarantine to restore the line end)"
                     } else {
@@ -157,46 +170,9 @@ fn certificates(args: &Args) -> anyhow::Result<Outcome> {
     let mut json = Vec::new();
     for pdf in &args.certificates {
         let v = integrity::verify_certificate(pdf, &args.register)?;
-        match &v {
-            CertVerdict::Genuine { entry } if certfiles::is_void(entry) => {
-                all_genuine = false;
-                out.push_str(&format!(
-                    "{}: VOID: number {} was logged as void on {} (a file found without its log entry); it is not a valid certificate\n",
-                    pdf.display(),
-                    entry.number,
-                    entry.issued_at
-                ));
-            }
-            CertVerdict::Genuine { entry } => out.push_str(&format!(
-                "{}: genuine: certificate {} for lot {}{}, issued {}\n",
-                pdf.display(),
-                entry.number,
-                entry.lot,
-                if entry.customer_name.is_empty() {
-                    String::new()
-                } else {
-                    format!(" to {}", entry.customer_name)
-                },
-                entry.issued_at
-            )),
-            CertVerdict::Altered { entry, .. } => {
-                all_genuine = false;
-                out.push_str(&format!(
-                    "{}: ALTERED: its bytes differ from certificate {} as issued on {}\n",
-                    pdf.display(),
-                    entry.number,
-                    entry.issued_at
-                ));
-            }
-            CertVerdict::Unknown { .. } => {
-                all_genuine = false;
-                out.push_str(&format!(
-                    "{}: UNKNOWN: no certificate with these bytes was issued from this record\n",
-                    pdf.display()
-                ));
-            }
-        }
-        json.push(serde_json::json!({"file": pdf, "result": v}));
+        all_genuine &= v.is_genuine();
+        out.push_str(&format!("{}: {}\n", pdf.display(), verdict_text(&v)));
+        json.push(verdict_json(pdf, &v));
     }
     if args.json {
         out = serde_json::to_string_pretty(&json)? + "\n";
@@ -206,5 +182,93 @@ fn certificates(args: &Args) -> anyhow::Result<Outcome> {
         Outcome::AllGood
     } else {
         Outcome::FellShort
+    })
+}
+
+/// One line on a verdict, in plain words.
+fn verdict_text(v: &CertVerdict) -> String {
+    let to = |e: &crate::record::certlog::Entry| {
+        if e.customer_name.is_empty() {
+            String::new()
+        } else {
+            format!(" to {}", e.customer_name)
+        }
+    };
+    match v {
+        CertVerdict::Withdrawn { entry, withdrawn_at, .. } if certfiles::is_void(entry) => format!(
+            "VOID: number {} was logged as void on {withdrawn_at} (a file found without its log entry); it is not a valid certificate",
+            entry.number
+        ),
+        CertVerdict::Genuine { entry } => format!(
+            "genuine: certificate {} for lot {}{}, issued {}",
+            entry.number,
+            entry.lot,
+            to(entry),
+            entry.issued_at
+        ),
+        CertVerdict::Superseded {
+            entry,
+            superseded_by,
+            superseded_at,
+            reason,
+        } => format!(
+            "SUPERSEDED: certificate {} for lot {}{}, issued {}, was replaced by certificate {superseded_by} on {superseded_at} ({reason}); ask for {superseded_by}",
+            entry.number,
+            entry.lot,
+            to(entry),
+            entry.issued_at
+        ),
+        CertVerdict::Withdrawn {
+            entry,
+            withdrawn_at,
+            reason,
+            ..
+        } => format!(
+            "WITHDRAWN: certificate {} for lot {}{}, issued {}, was withdrawn on {withdrawn_at}: {reason}; the lot must not be used on its strength",
+            entry.number,
+            entry.lot,
+            to(entry),
+            entry.issued_at
+        ),
+        CertVerdict::Altered { entry, .. } => format!(
+            "ALTERED: its bytes differ from certificate {} as issued on {}",
+            entry.number, entry.issued_at
+        ),
+        CertVerdict::Unknown { .. } => {
+            "UNKNOWN: no certificate with these bytes was issued from this record".to_string()
+        }
+    }
+}
+
+/// The JSON of one verdict: `file`, `verdict` (genuine, superseded, withdrawn, altered or
+/// unknown), `superseded_by`, `withdrawn_at` and `reason` (null when they do not apply), and
+/// the certificate's log entry when there is one.
+fn verdict_json(pdf: &std::path::Path, v: &CertVerdict) -> serde_json::Value {
+    let (entry, superseded_by, withdrawn_at, reason, sha256) = match v {
+        CertVerdict::Genuine { entry } => (Some(entry), None, None, None, None),
+        CertVerdict::Superseded {
+            entry,
+            superseded_by,
+            reason,
+            ..
+        } => (Some(entry), Some(superseded_by), None, Some(reason), None),
+        CertVerdict::Withdrawn {
+            entry,
+            withdrawn_at,
+            reason,
+            ..
+        } => (Some(entry), None, Some(withdrawn_at), Some(reason), None),
+        CertVerdict::Altered { entry, sha256 } => (Some(entry), None, None, None, Some(sha256)),
+        CertVerdict::Unknown { sha256 } => (None, None, None, None, Some(sha256)),
+    };
+    serde_json::json!({
+        "file": pdf,
+        "verdict": v.name(),
+        "superseded_by": superseded_by,
+        "withdrawn_at": withdrawn_at,
+        "reason": reason,
+        "certificate": entry,
+        "sha256": sha256,
+        "result": v,
     })
 }

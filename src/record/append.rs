@@ -9,7 +9,8 @@ use std::path::Path;
 use serde::Serialize;
 
 use crate::error::{Error, Result};
-use crate::lot::evaluate::LotDecision;
+use crate::lot::disposition::Decision;
+use crate::lot::evaluate::{LotDecision, Status};
 use crate::lot::note::LotNote;
 use crate::record::heads::HeadsLog;
 use crate::record::trend_file::{self, Locked, Trend, Wait};
@@ -140,20 +141,27 @@ pub fn check_time_order(
         let Some(t) = trends.get(d.product.as_str()) else {
             continue;
         };
-        let Some(last) = t.rows.last() else {
-            continue;
-        };
-        let at = t.cell(last, "recorded_at");
-        if let Ok(last_t) = chrono::DateTime::parse_from_rfc3339(at) {
-            if now_t < last_t {
-                return Err(Error::invalid(
-                    format!("{}:{}", t.path.display(), last.line),
-                    format!(
-                        "the clock says {now}, earlier than {at}, when the file's last row was recorded"
-                    ),
-                    "Check the system clock and SOURCE_DATE_EPOCH; rows are appended in time order, so nothing was written.",
-                ));
-            }
+        check_clock(t, now_t, now)?;
+    }
+    Ok(())
+}
+
+/// Refuses to append a row stamped `now` (parsed: `now_t`) to `t` when its last row was
+/// recorded later (see [`check_time_order`]); an unreadable recorded time is left to `verify`.
+fn check_clock(t: &Trend, now_t: chrono::DateTime<chrono::FixedOffset>, now: &str) -> Result<()> {
+    let Some(last) = t.rows.last() else {
+        return Ok(());
+    };
+    let at = t.cell(last, "recorded_at");
+    if let Ok(last_t) = chrono::DateTime::parse_from_rfc3339(at) {
+        if now_t < last_t {
+            return Err(Error::invalid(
+                format!("{}:{}", t.path.display(), last.line),
+                format!(
+                    "the clock says {now}, earlier than {at}, when the file's last row was recorded"
+                ),
+                "Check the system clock and SOURCE_DATE_EPOCH; rows are appended in time order, so nothing was written.",
+            ));
         }
     }
     Ok(())
@@ -170,7 +178,12 @@ pub fn lots_elsewhere(
     if !register.is_dir() {
         return Ok(elsewhere);
     }
-    let ours: HashSet<&str> = decisions.iter().map(|d| d.lot.as_str()).collect();
+    // Compared without regard to case (issue #14).
+    let upper: Vec<String> = decisions
+        .iter()
+        .map(|d| d.lot.to_ascii_uppercase())
+        .collect();
+    let ours: HashSet<&str> = upper.iter().map(String::as_str).collect();
     for path in crate::record::query::trend_files(register)? {
         let product = path
             .file_stem()
@@ -186,7 +199,8 @@ pub fn lots_elsewhere(
     Ok(elsewhere)
 }
 
-/// The lot ids of `ours` recorded in another product's trend file, read as bytes and tolerant
+/// The recorded lot ids that match `ours` (upper-case ids) without regard to case, in another
+/// product's trend file, read as bytes and tolerant
 /// of that file's own faults: a torn or unreadable tail of one product must not block releases
 /// of every other product (issue #13, item 13); the broken product is refused when it is
 /// itself released. A last line without its line feed counts only when it has every field.
@@ -210,13 +224,13 @@ fn recorded_lots(path: &Path, ours: &HashSet<&str>) -> Result<Vec<String>> {
                 // seq and recorded_at never hold a comma: the lot is the third field.
                 let lot = line.split(|&b| b == b',').nth(2);
                 if let Some(lot) = lot.and_then(|l| std::str::from_utf8(l).ok()) {
-                    if ours.contains(lot) {
+                    if ours.contains(lot.to_ascii_uppercase().as_str()) {
                         lots.push(lot.to_string());
                     }
                 }
             } else {
                 let cells = trend_file::split_line(&String::from_utf8_lossy(line));
-                if cells.len() == columns && ours.contains(cells[2].as_str()) {
+                if cells.len() == columns && ours.contains(cells[2].to_ascii_uppercase().as_str()) {
                     lots.push(cells[2].clone());
                 }
             }
@@ -241,6 +255,7 @@ pub fn plan(
     specs: &SpecSet,
     elsewhere: &HashMap<String, String>,
 ) -> Result<Vec<Plan>> {
+    let mut seen: HashMap<String, usize> = HashMap::new();
     for (i, d) in batch.decisions.iter().enumerate() {
         if let Some(other) = elsewhere.get(&d.lot) {
             return Err(Error::invalid(
@@ -249,6 +264,22 @@ pub fn plan(
                 "Lot ids must be unique across products; check the lot id and the product code.",
             ));
         }
+        if let Some((id, other)) = elsewhere
+            .iter()
+            .find(|(id, _)| id.eq_ignore_ascii_case(&d.lot))
+        {
+            return Err(same_but_case(batch, i, id, &format!("product {other}")));
+        }
+        // Lot ids are unique without regard to case (issue #14), also within one file.
+        if let Some(&j) = seen.get(&d.lot.to_ascii_uppercase()) {
+            return Err(same_but_case(
+                batch,
+                i,
+                &batch.decisions[j].lot,
+                &format!("line {} of {}", batch.lines[j], batch.results.display()),
+            ));
+        }
+        seen.insert(d.lot.to_ascii_uppercase(), i);
     }
     let mut plans = Vec::with_capacity(batch.decisions.len());
     for (i, d) in batch.decisions.iter().enumerate() {
@@ -268,6 +299,14 @@ pub fn plan(
 fn plan_lot(batch: &Batch<'_>, i: usize, t: &Trend, specs: &SpecSet) -> Result<Plan> {
     let d = &batch.decisions[i];
     let Some(row) = t.lot_rows(&d.lot).first().copied() else {
+        if let Some(r) = t
+            .rows
+            .iter()
+            .find(|r| t.cell(r, "lot").eq_ignore_ascii_case(&d.lot))
+        {
+            let place = format!("{} (row {})", t.path.display(), t.cell(r, "seq"));
+            return Err(same_but_case(batch, i, t.cell(r, "lot"), &place));
+        }
         return Ok(Plan::New);
     };
     let seq: usize = t.cell(row, "seq").parse().unwrap_or(0);
@@ -304,6 +343,21 @@ fn plan_lot(batch: &Batch<'_>, i: usize, t: &Trend, specs: &SpecSet) -> Result<P
             "If this is a retest, run again with --retest --reason \"...\"; the old row stays as history.",
         )),
     }
+}
+
+/// The refusal of lot `i` of `batch`, whose id differs only in case from `recorded`, recorded
+/// at `place` (issue #14: lot ids are unique without regard to case, as labels are read).
+fn same_but_case(batch: &Batch<'_>, i: usize, recorded: &str, place: &str) -> Error {
+    Error::invalid(
+        batch.place(i),
+        format!(
+            "lot id '{}' differs only in case from lot '{recorded}', recorded in {place}",
+            batch.decisions[i].lot
+        ),
+        format!(
+            "Lot ids are unique without regard to case: write '{recorded}' for that lot (a retest needs --retest), or give the new lot another id."
+        ),
+    )
 }
 
 /// True when `row` records the same manufacture date and entered values as `d` (see [`plan`]).
@@ -506,6 +560,131 @@ pub fn commit(
         heads.record(trends, now)?;
     }
     Ok(out)
+}
+
+/// A QA disposition to record (issue #14).
+#[derive(Debug, Clone, Copy)]
+pub struct Disposition<'a> {
+    /// The decision.
+    pub decision: Decision,
+    /// Why, recorded on the row.
+    pub reason: &'a str,
+    /// Who decided, recorded on the row.
+    pub approver: &'a str,
+    /// The customer's concession (deviation) number; empty unless a concession.
+    pub concession_ref: &'a str,
+    /// The customer (file stem) a concession is for; empty unless a concession.
+    pub concession_customer: &'a str,
+    /// When (RFC 3339, UTC).
+    pub now: &'a str,
+}
+
+/// Columns a disposition row does not copy from the lot's latest row: the row's own
+/// identity, decision and audit cells.
+const OWN_COLUMNS: [&str; 12] = [
+    "seq",
+    "recorded_at",
+    "status",
+    "approver",
+    "supersedes",
+    "reason",
+    "disposition",
+    "concession_ref",
+    "concession_customer",
+    "decided_at",
+    "recorded_by",
+    "chain",
+];
+
+/// The cells of the disposition row that follows `latest`, the lot's latest row in `t`: the
+/// measured and derived values, verdicts, notes and test details copied as they are (the
+/// lot's results do not change), the new status, the approver, the row it supersedes, the
+/// reason and the disposition columns. Pure.
+pub fn disposition_cells(
+    t: &Trend,
+    latest: &trend_file::Row,
+    d: &Disposition,
+    status: Status,
+) -> Vec<(String, String)> {
+    let mut cells: Vec<(String, String)> = t
+        .columns
+        .iter()
+        .filter(|c| !OWN_COLUMNS.contains(&c.as_str()))
+        .map(|c| (c.clone(), t.cell(latest, c).to_string()))
+        .collect();
+    for (k, v) in [
+        ("recorded_at", d.now),
+        ("status", status.as_str()),
+        ("approver", d.approver),
+        ("supersedes", t.cell(latest, "seq")),
+        ("reason", d.reason),
+        ("disposition", d.decision.as_str()),
+        ("concession_ref", d.concession_ref),
+        ("concession_customer", d.concession_customer),
+        ("decided_at", d.now),
+    ] {
+        cells.push((k.to_string(), v.to_string()));
+    }
+    cells
+}
+
+/// What a recorded disposition did.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Dispositioned {
+    /// The lot's status before.
+    pub previous: Status,
+    /// Its status now.
+    pub status: Status,
+    /// The row appended.
+    pub seq: usize,
+}
+
+/// Records disposition `d` of `lot` in its trend file, locked by the caller (who keeps the
+/// lock until any withdrawal is logged): checks the rule against the lot's latest row
+/// ([`crate::lot::disposition::check`]; a refusal is a shortfall, exit 1), checks the file
+/// against its head, appends the row (chained, parsed back first), syncs and records the
+/// new head. Nothing is written when anything is refused.
+pub fn record_disposition(
+    locked: &mut Locked,
+    lot: &str,
+    d: &Disposition,
+) -> Result<Dispositioned> {
+    let t = &locked.trend;
+    let latest = *t
+        .lot_rows(lot)
+        .first()
+        .ok_or_else(|| Error::Shortfall(format!("lot '{lot}' is not in {}", t.path.display())))?;
+    let standing = crate::record::lifecycle::standing_of(t, latest).ok_or_else(|| {
+        Error::invalid(
+            format!("{}:{}", t.path.display(), latest.line),
+            "the lot's status cannot be read",
+            "Check the record with `resinlot verify`.",
+        )
+    })?;
+    let status = crate::lot::disposition::check(standing, d.decision).map_err(|why| {
+        Error::Shortfall(format!(
+            "lot {lot} cannot be dispositioned {}: {why}",
+            d.decision.as_str()
+        ))
+    })?;
+    let owned = disposition_cells(t, latest, d, status);
+    let cells: Vec<(&str, String)> = owned.iter().map(|(k, v)| (k.as_str(), v.clone())).collect();
+    trend_file::encode_row(t, &cells)?;
+    if let Ok(now_t) = chrono::DateTime::parse_from_rfc3339(d.now) {
+        check_clock(t, now_t, d.now)?;
+    }
+    let register = t.path.parent().unwrap_or(Path::new(".")).to_path_buf();
+    let mut heads = HeadsLog::open(&register, std::iter::once(t))?;
+    let seq = locked.append(&cells)?;
+    locked.sync()?;
+    if let Some(h) = &mut heads {
+        h.record(std::iter::once(&locked.trend), d.now)?;
+    }
+    Ok(Dispositioned {
+        previous: standing.status,
+        status,
+        seq,
+    })
 }
 
 /// True when two recorded values are the same number ("0.98" and "0.980" are), or both empty.
@@ -798,6 +977,106 @@ decimals = 0
             text.contains("column 'reason'") && text.contains("lot 'L2'"),
             "{text}"
         );
+    }
+
+    /// Issue #14: a disposition row copies the lot's results from its latest row, supersedes
+    /// it, and records the decision; the rules refuse (exit 1) without writing.
+    #[test]
+    fn a_disposition_row_copies_the_results_and_records_the_decision_issue_14() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        // AV 0.98 against a maximum of 1.00 with U 0.05: conditional pass, on hold.
+        record(dir.path(), &specs, &[decide(&specs, "L1", "0.98", "55.6")]);
+        let path = trend_file::path_for(dir.path(), "PD-2000");
+        let mut locked = trend_file::lock(&path, &[], &[], wait()).unwrap();
+        let d = Disposition {
+            decision: Decision::Concession,
+            reason: "deviation agreed",
+            approver: "R. Okafor, QA Manager",
+            concession_ref: "AC-17",
+            concession_customer: "acme",
+            now: "2026-10-03T08:00:00Z",
+        };
+        let done = record_disposition(&mut locked, "L1", &d).unwrap();
+        assert_eq!(
+            done,
+            Dispositioned {
+                previous: Status::OnHold,
+                status: Status::Released,
+                seq: 2
+            }
+        );
+        let t = &locked.trend;
+        let (old, new) = (&t.rows[0], &t.rows[1]);
+        for k in [
+            "acid_value",
+            "acid_value_verdict",
+            "mn",
+            "notes",
+            "manufactured",
+        ] {
+            assert_eq!(t.cell(old, k), t.cell(new, k), "{k} is copied");
+        }
+        assert_eq!(t.cell(new, "status"), "released");
+        assert_eq!(t.cell(new, "supersedes"), "1");
+        assert_eq!(t.cell(new, "disposition"), "concession");
+        assert_eq!(t.cell(new, "concession_ref"), "AC-17");
+        assert_eq!(t.cell(new, "concession_customer"), "acme");
+        assert_eq!(t.cell(new, "approver"), "R. Okafor, QA Manager");
+        // Released now: a second release by disposition is refused, nothing written.
+        let again = Disposition {
+            decision: Decision::Released,
+            ..d
+        };
+        let e = record_disposition(&mut locked, "L1", &again).unwrap_err();
+        assert_eq!(e.exit_code(), 1);
+        assert!(
+            e.to_string().contains("only a lot on hold or incomplete"),
+            "{e}"
+        );
+        drop(locked);
+        assert_eq!(trend_file::read(&path).unwrap().rows.len(), 2);
+    }
+
+    /// Issue #14: lot ids are unique without regard to case, against the trend file and
+    /// within one results file.
+    #[test]
+    fn a_lot_id_differing_only_in_case_is_refused_issue_14() {
+        let dir = tempfile::tempdir().unwrap();
+        let specs = specs();
+        record(
+            dir.path(),
+            &specs,
+            &[decide(&specs, "X2612-D05", "0.50", "55.6")],
+        );
+        let d = vec![decide(&specs, "x2612-d05", "0.51", "55.6")];
+        let e = plan_in(dir.path(), &specs, &d, None, &HashMap::new()).unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("differs only in case from lot 'X2612-D05'"),
+            "{e}"
+        );
+        assert_eq!(e.exit_code(), 2);
+        let both = vec![
+            decide(&specs, "L7", "0.50", "55.6"),
+            decide(&specs, "l7", "0.50", "55.6"),
+        ];
+        let e = plan_in(dir.path(), &specs, &both, None, &HashMap::new()).unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("from lot 'L7', recorded in line 2 of r.csv"),
+            "{e}"
+        );
+        let elsewhere = HashMap::from([("L9".to_string(), "PE-3000".to_string())]);
+        let e = plan_in(
+            dir.path(),
+            &specs,
+            &[decide(&specs, "l9", "0.50", "55.6")],
+            None,
+            &elsewhere,
+        )
+        .unwrap_err();
+        assert!(e.to_string().contains("recorded in product PE-3000"), "{e}");
     }
 
     #[test]

@@ -8,7 +8,7 @@ use rust_decimal::Decimal;
 
 use crate::error::{Error, Result};
 use crate::lot::evaluate::Status;
-use crate::record::query::{LotRow, Window};
+use crate::record::query::{Life, LotRow, Window};
 use crate::spec::customer::{customer_fit, Customer, CustomerProduct};
 use crate::spec::decision::{decimal_from_f64, round_recorded, Rounding};
 use crate::spec::keys;
@@ -20,6 +20,8 @@ pub const HEADLINE_KEYS: [&str; 3] = [keys::MN, keys::ACID_VALUE, keys::HYDROXYL
 /// A customer's requirements for the product searched, with the specs they tighten.
 #[derive(Debug, Clone, Copy)]
 pub struct CustomerCheck<'a> {
+    /// The customer's file stem (a lot released under concession goes to that customer only).
+    pub customer: &'a str,
     /// Every spec revision (a lot is judged under the revision it was released under).
     pub specs: &'a SpecSet,
     /// The customer's requirements for the product.
@@ -41,6 +43,8 @@ pub struct LotFilter<'a> {
     pub to: Option<NaiveDate>,
     /// Only lots that can be certified for this customer.
     pub customer: Option<CustomerCheck<'a>>,
+    /// Each lot's life (parallel to the lots), for shelf life and concessions (issue #14).
+    pub life: Option<LifeCheck<'a>>,
     /// How values are reported: windows then compare the reported value (issue #16). `None`
     /// compares the recorded full-precision value.
     pub precision: Option<&'a Precision>,
@@ -86,6 +90,41 @@ impl Precision {
         let (d, m) = self.of(row, i)?;
         round_recorded(row.values[i]?, d, m)
     }
+}
+
+/// Shelf life and concessions in a search (issue #14).
+#[derive(Debug, Clone, Copy)]
+pub struct LifeCheck<'a> {
+    /// Each lot's [`Life`], parallel to the lots searched.
+    pub lives: &'a [Life],
+    /// The specs (the retest period of the lot's revision); without them nothing expires.
+    pub specs: Option<&'a SpecSet>,
+    /// Today, against which the retest date is judged.
+    pub today: NaiveDate,
+    /// Keep lots past their retest date (they are counted, not listed, otherwise).
+    pub include_expired: bool,
+}
+
+/// True when the lot of `row` (with `life`) is past its retest date on `today` under its
+/// spec revision's `retest_months` ([`crate::lot::disposition::retest_date`]); a lot whose
+/// revision is not in `specs` is not judged.
+pub fn is_expired(
+    product: &str,
+    row: &LotRow,
+    life: &Life,
+    specs: &SpecSet,
+    today: NaiveDate,
+) -> bool {
+    let Some(spec) = specs.revision(product, row.revision) else {
+        return false;
+    };
+    let date = |d: &str| NaiveDate::parse_from_str(d, "%Y-%m-%d").ok();
+    let Some(made) = date(&row.manufactured) else {
+        return false;
+    };
+    let retested = life.retested.and_then(|d| date(&d));
+    crate::lot::disposition::retest_date(made, spec.retest_months, retested)
+        .is_some_and(|until| crate::lot::disposition::expired(until, today))
 }
 
 /// The customers' products that carry part number `pn` (exact match), as (customer, product
@@ -141,6 +180,23 @@ pub fn matching_lots<'r>(
     loaded: &[String],
     filter: &LotFilter,
 ) -> Vec<&'r LotRow> {
+    matching_lots_counted(lots, loaded, filter).0
+}
+
+/// [`matching_lots`], and how many lots that met every other condition were left out as past
+/// their retest date (issue #14).
+pub fn matching_lots_counted<'r>(
+    lots: &'r [LotRow],
+    loaded: &[String],
+    filter: &LotFilter,
+) -> (Vec<&'r LotRow>, usize) {
+    let life_of = |i: usize| -> Life {
+        filter
+            .life
+            .and_then(|l| l.lives.get(i).copied())
+            .unwrap_or_default()
+    };
+    let mut expired = 0usize;
     // Dates are YYYY-MM-DD, so text order is date order: no parsing per row.
     let from = filter.from.map(|d| d.to_string());
     let to = filter.to.map(|d| d.to_string());
@@ -158,12 +214,13 @@ pub fn matching_lots<'r>(
         .collect();
     let mut hits: Vec<&LotRow> = lots
         .iter()
-        .filter(|row| filter.status.is_none_or(|s| s.as_str() == row.status))
-        .filter(|row| {
+        .enumerate()
+        .filter(|(_, row)| filter.status.is_none_or(|s| s.as_str() == row.status))
+        .filter(|(_, row)| {
             let made: &str = &row.manufactured;
             from.as_deref().is_none_or(|f| made >= f) && to.as_deref().is_none_or(|t| made <= t)
         })
-        .filter(|row| {
+        .filter(|(_, row)| {
             filter
                 .windows
                 .iter()
@@ -171,18 +228,38 @@ pub fn matching_lots<'r>(
                 .zip(&bounds)
                 .all(|((w, &i), b)| in_window(row, i, w, *b, filter.precision))
         })
-        .filter(|row| {
-            filter
-                .customer
-                .is_none_or(|c| fits_customer(filter.product, row, loaded, c))
+        .filter(|&(i, row)| {
+            filter.customer.is_none_or(|c| {
+                let life = life_of(i);
+                if life.concession.is_empty() {
+                    fits_customer(filter.product, row, loaded, c)
+                } else {
+                    // Under concession: for its customer, as conceded; for no one else.
+                    life.concession == c.customer
+                }
+            })
         })
+        .filter(|&(i, row)| {
+            let Some(l) = filter.life else {
+                return true;
+            };
+            let gone = l
+                .specs
+                .is_some_and(|s| is_expired(filter.product, row, &life_of(i), s, l.today));
+            if gone && !l.include_expired {
+                expired += 1;
+                return false;
+            }
+            true
+        })
+        .map(|(_, row)| row)
         .collect();
     hits.sort_by(|a, b| {
         b.manufactured
             .cmp(&a.manufactured)
             .then(b.line.cmp(&a.line))
     });
-    hits
+    (hits, expired)
 }
 
 /// True when loaded value `i` of `row` lies in window `w`: its reported value against the
@@ -234,6 +311,94 @@ mod tests {
             key: key.into(),
             lo,
             hi,
+        }
+    }
+
+    /// Issue #14: a lot past its retest date is left out and counted unless asked for; a
+    /// retest on or after the date extends it; a concession lot fits its customer only.
+    /// Invented lots and a fixture spec.
+    #[test]
+    fn expired_lots_are_counted_and_concessions_fit_their_customer_issue_14() {
+        let spec = crate::spec::ProductSpec::parse(
+            std::path::Path::new("s.toml"),
+            "code = \"P\"\nname = \"Test polyol\"\nrevision = \"A\"\neffective = 2025-01-01\nfunctionality = 2.0\ndecision_rule = \"simple\"\nretest_months = 12\n[properties.acid_value]\nlabel = \"Acid value\"\nunit = \"mg KOH/g\"\nmax = 1.0\ndecimals = 2\n",
+        )
+        .unwrap();
+        let mut specs = SpecSet::default();
+        specs.products.insert("P".into(), vec![spec]);
+        let lot = |id: &str, made: &str, line: usize| LotRow {
+            line,
+            lot: id.into(),
+            manufactured: made.into(),
+            status: "released",
+            revision: "A",
+            mn_uncertainty: None,
+            values: vec![Some(0.5)],
+        };
+        let lots = vec![
+            lot("OLD", "2025-11-01", 2),
+            lot("RETESTED", "2025-11-01", 3),
+            lot("NEW", "2026-06-01", 4),
+            lot("CONCEDED", "2026-06-01", 5),
+        ];
+        let lives = vec![
+            Life::default(),
+            Life {
+                retested: Some("2026-11-20".into()),
+                concession: "",
+            },
+            Life::default(),
+            Life {
+                retested: None,
+                concession: "acme",
+            },
+        ];
+        let today = NaiveDate::from_ymd_opt(2026, 12, 10).unwrap();
+        let loaded = vec!["acid_value".to_string()];
+        let mut filter = LotFilter {
+            product: "P",
+            windows: &[],
+            status: None,
+            from: None,
+            to: None,
+            customer: None,
+            life: Some(LifeCheck {
+                lives: &lives,
+                specs: Some(&specs),
+                today,
+                include_expired: false,
+            }),
+            precision: None,
+        };
+        let ids = |hits: &[&LotRow]| hits.iter().map(|r| r.lot.to_string()).collect::<Vec<_>>();
+        let (hits, expired) = matching_lots_counted(&lots, &loaded, &filter);
+        assert_eq!(ids(&hits), ["CONCEDED", "NEW", "RETESTED"]);
+        assert_eq!(expired, 1);
+        filter.life = Some(LifeCheck {
+            include_expired: true,
+            ..filter.life.unwrap()
+        });
+        assert_eq!(matching_lots_counted(&lots, &loaded, &filter).1, 0);
+        assert_eq!(matching_lots(&lots, &loaded, &filter).len(), 4);
+        let requirements = crate::spec::customer::CustomerProduct {
+            part_number: None,
+            report: None,
+            statements: Vec::new(),
+            limits: Default::default(),
+            units: Default::default(),
+        };
+        for (who, listed) in [("acme", true), ("other", false)] {
+            filter.customer = Some(CustomerCheck {
+                customer: who,
+                specs: &specs,
+                requirements: &requirements,
+            });
+            let hits = matching_lots(&lots, &loaded, &filter);
+            assert_eq!(
+                ids(&hits).contains(&"CONCEDED".to_string()),
+                listed,
+                "{who}"
+            );
         }
     }
 

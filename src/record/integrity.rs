@@ -35,6 +35,10 @@ pub struct FileCheck {
     /// True when the trend file only grew past its latest head (a release interrupted between
     /// appending its rows and recording their head): quarantine records the head.
     pub heads_behind: bool,
+    /// True when certificates are still current although a later trend row rejected or held
+    /// their lot (a withdrawal interrupted after its trend row, issue #14): quarantine
+    /// records the withdrawals.
+    pub withdrawals_owed: bool,
 }
 
 impl FileCheck {
@@ -51,13 +55,14 @@ impl FileCheck {
             newline_missing: d.as_ref().is_some_and(|d| d.newline_missing),
             note: None,
             heads_behind: false,
+            withdrawals_owed: false,
         }
     }
 
     /// True when `verify --quarantine` can repair the problem (a torn tail or a missing final
     /// line feed).
     pub fn repairable(&self) -> bool {
-        self.torn_tail || self.newline_missing || self.heads_behind
+        self.torn_tail || self.newline_missing || self.heads_behind || self.withdrawals_owed
     }
 
     /// True when nothing is wrong.
@@ -101,9 +106,19 @@ pub fn check_register(register_dir: &Path, certificates: &Path) -> Result<Vec<Fi
         match trend_file::parse_bytes(&log, &bytes, true, &is_log_header).1 {
             Some(d) => out.push(FileCheck::from(&log, 0, Some(d))),
             None => {
-                let entries = crate::record::certlog::entries(register_dir)?;
-                let mut check = FileCheck::from(&log, entries.len(), None);
-                for (i, e) in entries.iter().enumerate() {
+                let t = crate::record::certlog::read(register_dir)?;
+                let issues: Vec<(usize, crate::record::certlog::Entry)> = t
+                    .iter()
+                    .flat_map(|t| {
+                        t.rows
+                            .iter()
+                            .filter(|r| crate::record::certlog::is_issue_row(t, r))
+                            .map(|r| (r.line, crate::record::certlog::entry_of(t, r)))
+                    })
+                    .collect();
+                let mut check = FileCheck::from(&log, issues.len(), None);
+                // Issue rows only: event rows (issue #14) and layout rows name no file.
+                for (line, e) in &issues {
                     let pdf = certificates.join(&e.file);
                     let problem = if !pdf.is_file() {
                         Some(format!(
@@ -122,13 +137,7 @@ pub fn check_register(register_dir: &Path, certificates: &Path) -> Result<Vec<Fi
                     };
                     if problem.is_some() {
                         check.problem = problem;
-                        // An upgraded log's layout row (line 2) is not an entry.
-                        let layout = usize::from(
-                            crate::record::certlog::layout(register_dir)?
-                                == Some(crate::record::certlog::Layout::Current)
-                                && crate::record::upgrade::is_upgraded(&log)?,
-                        );
-                        check.line = Some(i + 2 + layout);
+                        check.line = Some(*line);
                         check.lot = Some(e.lot.clone());
                         break;
                     }
@@ -268,6 +277,26 @@ fn check_anchors(register: &Path, chains: &Chains, out: &mut Vec<FileCheck>) -> 
         };
         flag(&mut out[*i], a.row + 1, Some(a.lot.clone()), p);
     }
+    if out[log_i].ok() {
+        let owed = crate::record::lifecycle::owed_withdrawals(register, &log)?;
+        if let Some(o) = owed.first() {
+            let p = format!(
+                "certificate {} of lot {} is still current although {} came after it ({}){}: its withdrawal was never logged (an interrupted command)",
+                o.entry.number,
+                o.entry.lot,
+                o.cause.cell(),
+                o.cause.reason,
+                if owed.len() > 1 {
+                    format!(" ({} certificates in all)", owed.len())
+                } else {
+                    String::new()
+                }
+            );
+            let c = &mut out[log_i];
+            flag(c, o.line, Some(o.entry.lot.clone()), p);
+            c.withdrawals_owed = true;
+        }
+    }
     if let Some((pred, problem)) = crate::record::upgrade::check_predecessor(&log_path, &log)? {
         if let Some((line, p)) = problem {
             flag(&mut out[log_i], line, None, p);
@@ -391,6 +420,19 @@ pub fn quarantine(path: &Path, offset: u64, now: &str) -> Result<Repair> {
     Ok(repair)
 }
 
+/// Appends `text` (lines ending in a line feed) to the register's `quarantine.log`, synced.
+pub fn append_quarantine_log(register: &Path, text: &str) -> Result<()> {
+    let log = register.join("quarantine.log");
+    let mut f = std::fs::OpenOptions::new()
+        .create(true)
+        .append(true)
+        .open(&log)
+        .map_err(|e| Error::io(&log, "opening", e))?;
+    f.write_all(text.as_bytes())
+        .and_then(|()| f.sync_all())
+        .map_err(|e| Error::io(&log, "writing", e))
+}
+
 /// Records the head of the trend file `path` in the register's heads file when the file only
 /// grew past its latest head (or has rows and no head yet): a release interrupted after
 /// appending its rows and before recording their head (issue #13, item 4). Holds the trend
@@ -424,14 +466,39 @@ pub fn record_head(path: &Path, now: &str) -> Result<Repair> {
     Ok(Repair::HeadRecorded { rows: t.rows.len() })
 }
 
-/// What the issue log says about a certificate PDF.
+/// What the issue log says about a certificate PDF (issue #14): exactly one of five
+/// verdicts, whose snake_case names are the JSON key `verdict`. Only `genuine` means "a
+/// current certificate, exactly as issued".
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
 #[serde(tag = "verdict", rename_all = "snake_case")]
 pub enum CertVerdict {
-    /// The bytes are exactly those issued.
+    /// The bytes are exactly those issued, and the certificate is current.
     Genuine {
         /// The log entry.
         entry: crate::record::certlog::Entry,
+    },
+    /// The bytes are those issued, but a reissue replaced the certificate.
+    Superseded {
+        /// The log entry.
+        entry: crate::record::certlog::Entry,
+        /// The certificate that replaces it.
+        superseded_by: String,
+        /// When it was replaced.
+        superseded_at: String,
+        /// The reissue's reason.
+        reason: String,
+    },
+    /// The bytes are those issued, but the certificate was withdrawn (the lot was rejected
+    /// or put on hold afterwards) or logged as void.
+    Withdrawn {
+        /// The log entry.
+        entry: crate::record::certlog::Entry,
+        /// When it was withdrawn.
+        withdrawn_at: String,
+        /// Why.
+        reason: String,
+        /// The trend row that caused it ("PD-2000.csv row 63"); empty for a void file.
+        cause: String,
     },
     /// A certificate of this file name was issued, but these bytes differ.
     Altered {
@@ -447,12 +514,69 @@ pub enum CertVerdict {
     },
 }
 
-/// Identifies a certificate PDF against the issue log.
+impl CertVerdict {
+    /// The verdict's name: genuine, superseded, withdrawn, altered or unknown.
+    pub fn name(&self) -> &'static str {
+        match self {
+            CertVerdict::Genuine { .. } => "genuine",
+            CertVerdict::Superseded { .. } => "superseded",
+            CertVerdict::Withdrawn { .. } => "withdrawn",
+            CertVerdict::Altered { .. } => "altered",
+            CertVerdict::Unknown { .. } => "unknown",
+        }
+    }
+
+    /// True only for a current certificate exactly as issued.
+    pub fn is_genuine(&self) -> bool {
+        matches!(self, CertVerdict::Genuine { .. })
+    }
+}
+
+/// The verdict on a file whose SHA-256 `sha` matches issued certificate `entry`, given the
+/// certificate's `standing` in the log. Pure.
+pub fn verdict_for(
+    entry: &crate::record::certlog::Entry,
+    standing: Option<&crate::record::certlog::Standing>,
+) -> CertVerdict {
+    use crate::record::certlog::Standing;
+    let entry = entry.clone();
+    match standing {
+        Some(Standing::Superseded { by, at, reason }) => CertVerdict::Superseded {
+            entry,
+            superseded_by: by.clone(),
+            superseded_at: at.clone(),
+            reason: reason.clone(),
+        },
+        Some(Standing::Withdrawn { at, reason, cause }) => CertVerdict::Withdrawn {
+            entry,
+            withdrawn_at: at.clone(),
+            reason: reason.clone(),
+            cause: cause.clone(),
+        },
+        _ => CertVerdict::Genuine { entry },
+    }
+}
+
+/// Identifies a certificate PDF against the issue log: its bytes against every issued
+/// certificate's SHA-256, then its standing (superseded, withdrawn) in the log.
 pub fn verify_certificate(pdf: &Path, register_dir: &Path) -> Result<CertVerdict> {
     let sha = file_sha256(pdf)?;
-    let entries = crate::record::certlog::entries(register_dir)?;
+    let log = crate::record::certlog::read(register_dir)?;
+    let entries: Vec<crate::record::certlog::Entry> = match &log {
+        Some(t) => t
+            .rows
+            .iter()
+            .filter(|r| crate::record::certlog::is_issue_row(t, r))
+            .map(|r| crate::record::certlog::entry_of(t, r))
+            .collect(),
+        None => Vec::new(),
+    };
+    let standings = log
+        .as_ref()
+        .map(crate::record::certlog::standings)
+        .unwrap_or_default();
     if let Some(e) = entries.iter().find(|e| e.sha256 == sha) {
-        return Ok(CertVerdict::Genuine { entry: e.clone() });
+        return Ok(verdict_for(e, standings.get(&e.number)));
     }
     let name = pdf
         .file_name()
@@ -487,6 +611,57 @@ mod tests {
             .unwrap();
         l.sync().unwrap();
         p
+    }
+
+    /// Issue #14: a file with the issued bytes is genuine only while its certificate is
+    /// current; otherwise superseded or withdrawn, with the details.
+    #[test]
+    fn the_verdict_follows_the_certificates_standing_issue_14() {
+        use crate::record::certlog::{Entry, Standing};
+        let e = Entry {
+            number: "FW-000004".into(),
+            issued_at: "2026-10-01T10:00:00Z".into(),
+            lot: "L1".into(),
+            product: "P".into(),
+            customer: "acme".into(),
+            customer_name: "Acme Foams".into(),
+            file: "L1_FW-000004.pdf".into(),
+            sha256: "ab".into(),
+            supersedes: String::new(),
+            reason: String::new(),
+            ..Default::default()
+        };
+        assert!(verdict_for(&e, Some(&Standing::Current)).is_genuine());
+        assert!(verdict_for(&e, None).is_genuine());
+        let v = verdict_for(
+            &e,
+            Some(&Standing::Superseded {
+                by: "FW-000005".into(),
+                at: "2026-10-02T00:00:00Z".into(),
+                reason: "PO corrected".into(),
+            }),
+        );
+        assert_eq!(v.name(), "superseded");
+        let json = serde_json::to_value(&v).unwrap();
+        assert_eq!(json["verdict"], "superseded");
+        assert_eq!(json["superseded_by"], "FW-000005");
+        let v = verdict_for(
+            &e,
+            Some(&Standing::Withdrawn {
+                at: "2026-10-03T00:00:00Z".into(),
+                reason: "lot rejected".into(),
+                cause: "P.csv row 7".into(),
+            }),
+        );
+        assert!(!v.is_genuine());
+        assert_eq!(
+            serde_json::to_value(&v).unwrap()["withdrawn_at"],
+            "2026-10-03T00:00:00Z"
+        );
+        assert_eq!(
+            CertVerdict::Unknown { sha256: "x".into() }.name(),
+            "unknown"
+        );
     }
 
     /// Issue #13 item 3: the missing line end of a complete row is restored, nothing moved.

@@ -9,6 +9,7 @@ pub mod find;
 pub mod heads;
 pub mod integrity;
 pub mod layout;
+pub mod lifecycle;
 pub mod lines;
 pub mod query;
 pub mod shipments;

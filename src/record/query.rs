@@ -87,31 +87,50 @@ fn lot_rows_chunked(path: &Path, lot: &str, chunk: usize) -> Result<Option<Trend
     }))
 }
 
-/// Finds `lot` in any product's trend file.
+/// Finds `lot` in any product's trend file, written in any case: lot ids are unique without
+/// regard to case (issue #14), so an id typed in another case finds the recorded lot (the
+/// rows carry the id as recorded). The exact id is searched first, at memory speed; only a
+/// miss streams the lot column of every file.
 pub fn find_lot(register: &Path, lot: &str) -> Result<Option<Trend>> {
     for path in trend_files(register)? {
         if let Some(t) = lot_rows_in(&path, lot)? {
             return Ok(Some(t));
         }
     }
+    if let Some((path, id)) = recorded_id(register, lot)? {
+        return lot_rows_in(&path, &id);
+    }
     Ok(None)
 }
 
-/// The certificate numbered `number` (case-insensitive) among the log's `entries`, with all
-/// its lots and its status (issue #16: `lookup FW-000123`).
+/// The trend file and recorded id of the lot whose id equals `lot` without regard to ASCII
+/// case, if any.
+pub fn recorded_id(register: &Path, lot: &str) -> Result<Option<(PathBuf, String)>> {
+    for path in trend_files(register)? {
+        let mut found: Option<String> = None;
+        trend_file::scan(&path, &["lot"], |_, cells| {
+            if found.is_none() && cells[0].eq_ignore_ascii_case(lot) {
+                found = Some(cells[0].to_string());
+            }
+        })?;
+        if let Some(id) = found {
+            return Ok(Some((path, id)));
+        }
+    }
+    Ok(None)
+}
+
+/// The certificate numbered `number` (case-insensitive) among `certs` (the log's
+/// certificates, [`crate::record::certlog::all_certificates`]), with all its lots and its
+/// status (issue #16: `lookup FW-000123`).
 pub fn certificate(
-    entries: &[crate::record::certlog::Entry],
+    certs: &[crate::record::certlog::Certificate],
     number: &str,
 ) -> Option<crate::record::certlog::Certificate> {
-    if !entries
+    certs
         .iter()
-        .any(|e| e.is_issue() && e.number.eq_ignore_ascii_case(number))
-    {
-        return None;
-    }
-    crate::record::certlog::certificates(entries)
-        .into_iter()
         .find(|c| c.number.eq_ignore_ascii_case(number))
+        .cloned()
 }
 
 /// Up to `n` existing lot ids closest to `lot` (Jaro-Winkler similarity, case-insensitive).
@@ -338,10 +357,46 @@ pub fn current_lots(
     keys: &[String],
     with_mn_uncertainty: bool,
 ) -> Result<(Vec<String>, Vec<LotRow>)> {
+    let (file_keys, rows, _) = current_lots_with(path, keys, with_mn_uncertainty, false)?;
+    Ok((file_keys, rows))
+}
+
+/// What `find` needs to know of a lot's life besides its latest row (issue #14): the test
+/// date of its latest retest (which may extend its retest date) and the customer its latest
+/// row releases it to under concession (`""` for none).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Life {
+    /// Test date of the lot's latest retest row (`tested_to`, else the day it was recorded).
+    pub retested: Option<Day>,
+    /// Customer (file stem) of a concession on the lot's latest row; empty for none.
+    pub concession: &'static str,
+}
+
+/// [`current_lots`] with each kept lot's [`Life`] (parallel to the lots).
+pub fn current_lots_with_life(
+    path: &Path,
+    keys: &[String],
+    with_mn_uncertainty: bool,
+) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
+    current_lots_with(path, keys, with_mn_uncertainty, true)
+}
+
+fn current_lots_with(
+    path: &Path,
+    keys: &[String],
+    with_mn_uncertainty: bool,
+    with_life: bool,
+) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
     use std::hash::BuildHasher;
     let header = read_header(path)?;
     let file_keys = trend_file::property_keys(&header);
     let mut reader = RowReader::new(path, &header, keys, with_mn_uncertainty)?;
+    let mut life_reader = with_life.then(|| LifeReader::new(&header));
+    if let Some(l) = &life_reader {
+        // One split of each line serves both readers.
+        reader.upto = reader.upto.max(l.upto);
+    }
+    let mut lives: Vec<Life> = Vec::new();
     let hasher = std::collections::hash_map::RandomState::new();
     // About 250 bytes a row: reserve once instead of growing through a million pushes.
     let estimate = std::fs::metadata(path).map_or(0, |m| m.len() as usize / 250);
@@ -354,10 +409,13 @@ pub fn current_lots(
         let row = reader.read(line_no, line)?;
         keys_seen.push((hasher.hash_one(&*row.lot), rows.len() as u32));
         rows.push(row);
+        if let Some(l) = &mut life_reader {
+            lives.push(l.read(&reader.spans, line));
+        }
         Ok(())
     })?;
-    keep_latest(&mut rows, keys_seen);
-    Ok((file_keys, rows))
+    keep_latest(&mut rows, keys_seen, with_life.then_some(&mut lives));
+    Ok((file_keys, rows, lives))
 }
 
 /// Turns trend-file lines into [`LotRow`]s, splitting only up to the last column needed.
@@ -457,7 +515,14 @@ impl<'a> RowReader<'a> {
 /// Keeps each lot's last row: sorts the (lot hash, row) pairs, and within a run of equal
 /// hashes keeps, for every distinct lot id, the highest row (a retest supersedes what came
 /// before). Rows stay in file order.
-fn keep_latest(rows: &mut Vec<LotRow>, mut keys_seen: Vec<(u64, u32)>) {
+///
+/// With `lives` (parallel to `rows`), each kept lot's life gets the latest retest date of any
+/// of the lot's rows, and the lives are kept alongside.
+fn keep_latest(
+    rows: &mut Vec<LotRow>,
+    mut keys_seen: Vec<(u64, u32)>,
+    mut lives: Option<&mut Vec<Life>>,
+) {
     keys_seen.sort_unstable();
     let mut keep = vec![true; rows.len()];
     let mut i = 0;
@@ -473,15 +538,84 @@ fn keep_latest(rows: &mut Vec<LotRow>, mut keys_seen: Vec<(u64, u32)>) {
                 .any(|&(_, rb)| rows[rb as usize].lot == rows[ra].lot)
             {
                 keep[ra] = false;
+            } else if let Some(lives) = lives.as_deref_mut() {
+                let retested = keys_seen[i..j]
+                    .iter()
+                    .filter(|&&(_, rb)| rows[rb as usize].lot == rows[ra].lot)
+                    .filter_map(|&(_, rb)| lives[rb as usize].retested)
+                    .max();
+                lives[ra].retested = retested;
             }
         }
         i = j;
+    }
+    if let Some(lives) = lives {
+        let mut k = 0;
+        lives.retain(|_| {
+            k += 1;
+            keep[k - 1]
+        });
     }
     let mut k = 0;
     rows.retain(|_| {
         k += 1;
         keep[k - 1]
     });
+}
+
+/// Reads the [`Life`] cells of a row: `supersedes`, `disposition`, `concession_customer`,
+/// `recorded_at` and `tested_to` (the layout-v3 ones may be absent in an earlier file).
+struct LifeReader {
+    cols: [Option<usize>; 5],
+    upto: usize,
+    customers: Vec<&'static str>,
+}
+
+impl LifeReader {
+    fn new(header: &[String]) -> LifeReader {
+        let col = |name: &str| header.iter().position(|c| c == name);
+        let cols = [
+            col("supersedes"),
+            col("disposition"),
+            col("concession_customer"),
+            col("recorded_at"),
+            col("tested_to"),
+        ];
+        LifeReader {
+            upto: cols.iter().flatten().copied().max().unwrap_or(0),
+            cols,
+            customers: Vec::new(),
+        }
+    }
+
+    /// The life of `line`, split into `spans` (at least up to `self.upto`) by the row reader.
+    fn read(&mut self, spans: &[(usize, usize)], line: &[u8]) -> Life {
+        let cell = |i: usize| -> &[u8] {
+            match self.cols[i].and_then(|c| spans.get(c)) {
+                Some(&(a, b)) => &line[a..b.min(line.len())],
+                None => b"",
+            }
+        };
+        let retest = !cell(0).is_empty() && cell(1).is_empty();
+        let retested = retest.then(|| {
+            let tested = cell(4);
+            if tested.len() >= 10 {
+                Day::from_bytes(&tested[..10])
+            } else {
+                Day::from_bytes(&cell(3)[..cell(3).len().min(10)])
+            }
+        });
+        let concession = if cell(1) == b"concession" {
+            let c = cell(2);
+            intern(&mut self.customers, c)
+        } else {
+            ""
+        };
+        Life {
+            retested,
+            concession,
+        }
+    }
 }
 
 /// The checked header columns of a trend file (its first line only).
@@ -549,6 +683,67 @@ mod tests {
         let got: Vec<(&str, Option<f64>)> = rows.iter().map(|r| (&*r.lot, r.values[0])).collect();
         assert_eq!(got, [("B2", Some(0.6)), ("A1", Some(0.4)), ("C3", None)]);
         assert_eq!(&*rows[0].manufactured, "2026-01-01");
+    }
+
+    /// Issue #14: each kept lot's life carries the latest retest date of any of its rows
+    /// (also when a disposition row came after it) and its concession customer; lot ids typed
+    /// in another case find the recorded lot. Invented rows.
+    #[test]
+    fn lives_follow_retests_and_concessions_issue_14() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        let keys = vec!["acid_value".to_string()];
+        let row = |lot: &str, at: &str, extra: &[(&'static str, &str)]| {
+            let mut r = vec![
+                ("lot", lot.to_string()),
+                ("acid_value", "0.5".to_string()),
+                ("manufactured", "2025-11-01".to_string()),
+                ("recorded_at", at.to_string()),
+            ];
+            r.extend(extra.iter().map(|(k, v)| (*k, v.to_string())));
+            r
+        };
+        trend_file::write_for_test(
+            &p,
+            &keys,
+            &[
+                row("A1", "2025-11-02T08:00:00Z", &[]),
+                row("B2", "2025-11-03T08:00:00Z", &[]),
+                row("A1", "2026-11-05T08:00:00Z", &[("supersedes", "1")]),
+                row(
+                    "A1",
+                    "2026-11-06T08:00:00Z",
+                    &[
+                        ("supersedes", "3"),
+                        ("disposition", "concession"),
+                        ("concession_customer", "acme"),
+                    ],
+                ),
+                row(
+                    "B2",
+                    "2026-11-07T08:00:00Z",
+                    &[("supersedes", "2"), ("tested_to", "2026-11-04")],
+                ),
+            ],
+        );
+        let (_, rows, lives) = current_lots_with_life(&p, &keys, false).unwrap();
+        let got: Vec<(&str, Option<String>, &str)> = rows
+            .iter()
+            .zip(&lives)
+            .map(|(r, l)| (&*r.lot, l.retested.map(|d| d.to_string()), l.concession))
+            .collect();
+        assert_eq!(
+            got,
+            [
+                ("A1", Some("2026-11-05".to_string()), "acme"),
+                // tested_to, when recorded, is the retest's test date.
+                ("B2", Some("2026-11-04".to_string()), ""),
+            ]
+        );
+        let found = find_lot(dir.path(), "a1").unwrap().unwrap();
+        assert_eq!(found.rows.len(), 3);
+        assert_eq!(found.cell(&found.rows[0], "lot"), "A1");
+        assert!(find_lot(dir.path(), "a2").unwrap().is_none());
     }
 
     #[test]

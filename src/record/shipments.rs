@@ -9,7 +9,7 @@
 use chrono::NaiveDate;
 
 use crate::error::{Error, Result};
-use crate::record::certlog::{certificates, CertStatus, Certificate, Entry};
+use crate::record::certlog::{CertStatus, Certificate};
 use crate::spec::customer::Customer;
 
 /// One delivery about to be certified.
@@ -62,15 +62,16 @@ pub fn one_revision<'a>(lots: impl Iterator<Item = (&'a str, &'a str)>) -> Resul
 /// same customer on the same purchase order for any of its lots. `None` when there is none (a
 /// new purchase order is a new delivery); refuses when the lots are on several such
 /// certificates, which one reissue cannot replace.
-pub fn reissue_of(entries: &[Entry], d: &Delivery) -> Result<Option<Certificate>> {
-    let mut hits: Vec<Certificate> = certificates(entries)
-        .into_iter()
+pub fn reissue_of(certs: &[Certificate], d: &Delivery) -> Result<Option<Certificate>> {
+    let mut hits: Vec<Certificate> = certs
+        .iter()
         .filter(|c| {
             c.status == CertStatus::Current
                 && c.customer == d.customer
                 && c.po == d.po
                 && c.lots.iter().any(|l| d.lots.contains(&l.as_str()))
         })
+        .cloned()
         .collect();
     match hits.len() {
         0 | 1 => Ok(hits.pop()),
@@ -121,13 +122,13 @@ pub fn part_number<'c>(
         .as_deref()
 }
 
-/// The customer certificates of `entries` that meet `q`, newest first (internal certificates
+/// The customer certificates among `certs` that meet `q`, newest first (internal certificates
 /// are not shipments). Part numbers are read from `customers`.
-pub fn shipments(entries: &[Entry], q: &Query, customers: &[Customer]) -> Vec<Certificate> {
+pub fn shipments(certs: &[Certificate], q: &Query, customers: &[Customer]) -> Vec<Certificate> {
     let since = q.since.map(|d| d.to_string());
     let until = q.until.map(|d| d.to_string());
-    let mut out: Vec<Certificate> = certificates(entries)
-        .into_iter()
+    let mut out: Vec<Certificate> = certs
+        .iter()
         .filter(|c| !c.customer.is_empty())
         .filter(|c| {
             q.customer.is_none_or(|n| {
@@ -144,6 +145,7 @@ pub fn shipments(entries: &[Entry], q: &Query, customers: &[Customer]) -> Vec<Ce
             let day = c.issued_at.get(..10).unwrap_or("");
             since.as_deref().is_none_or(|s| day >= s) && until.as_deref().is_none_or(|u| day <= u)
         })
+        .cloned()
         .collect();
     out.reverse();
     out.sort_by(|a, b| b.issued_at.cmp(&a.issued_at));
@@ -153,6 +155,7 @@ pub fn shipments(entries: &[Entry], q: &Query, customers: &[Customer]) -> Vec<Ce
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::record::certlog::{certificates, Entry};
 
     /// Invented log rows.
     fn row(number: &str, lot: &str, customer: &str, po: &str, at: &str) -> Entry {
@@ -168,14 +171,15 @@ mod tests {
         }
     }
 
-    fn log() -> Vec<Entry> {
-        vec![
+    fn log() -> Vec<Certificate> {
+        let rows = vec![
             row("FW-000001", "L1", "", "", "2026-10-01T08:00:00Z"),
             row("FW-000002", "L1", "acme", "4711", "2026-10-02T08:00:00Z"),
             row("FW-000002", "L2", "acme", "4711", "2026-10-02T08:00:00Z"),
             row("FW-000003", "L1", "acme", "4712", "2026-10-03T08:00:00Z"),
             row("FW-000004", "L3", "brix", "9", "2026-10-03T08:00:00Z"),
-        ]
+        ];
+        certificates(&rows, &Default::default())
     }
 
     #[test]
@@ -207,12 +211,15 @@ mod tests {
             "FW-000003"
         );
         let mut two = entries.clone();
-        two.push(row(
-            "FW-000005",
-            "L9",
-            "acme",
-            "4712",
-            "2026-10-04T08:00:00Z",
+        two.extend(certificates(
+            &[row(
+                "FW-000005",
+                "L9",
+                "acme",
+                "4712",
+                "2026-10-04T08:00:00Z",
+            )],
+            &Default::default(),
         ));
         let e = reissue_of(
             &two,

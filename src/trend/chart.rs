@@ -1,16 +1,20 @@
-//! I-MR control chart rendered as SVG bytes (individuals panel over moving-range panel).
+//! The I-MR chart of one property, drawn as SVG in resinlot's visual language
+//! ([`crate::support::visual`]): an individuals chart over a moving-range chart (the chart
+//! names of ISO 7870-2 and the NIST/SEMATECH e-Handbook §6.3.2).
 //!
-//! Colours and marks: lot values in slate blue joined in manufacture order, centre lines solid
-//! grey, control limits dashed brick red, specification limits solid violet and thicker, signals
-//! as an amber ring with the rule number(s) above the point, moving ranges beyond their limit as
-//! filled amber dots, and a dotted grey line where frozen (baseline) limits start to apply.
-
-use plotters::coord::Shift;
-use plotters::prelude::*;
-use plotters::style::text_anchor::{HPos, Pos, VPos};
+//! Lot values are slate-blue dots joined in manufacture order; the centre line is solid grey,
+//! control limits dashed brick red, spec limits solid violet. Every lot with a run-rule signal
+//! carries an amber ring and every lot outside its spec window a crimson diamond, each with a
+//! numbered tag keyed to the signal list of the report ([`marked_lots`]: 1 is the newest). Tags
+//! are placed where they cover no other text, data point or limit line, joined to their point
+//! by a leader when set apart. A dotted grey line shows where frozen limits start.
 
 use crate::error::{Error, Result};
 use crate::stats::{Limits, Signal};
+use crate::support::visual::{
+    self, fit_text, linear_ticks, Anchor, Bounds, Label, Rgb, Svg, CENTRE, CONTROL, CONTROL_DASH,
+    DATA, GRID, INK, LEFT_OUT, MUTED, OUT_OF_SPEC, SIGNAL, SPEC,
+};
 
 /// Everything the chart shows; the caller has already computed limits and signals.
 #[derive(Debug, Clone, Copy)]
@@ -39,30 +43,151 @@ pub struct ChartInput<'a> {
     pub signals: &'a [Signal],
     /// Number of leading lots the limits were frozen from, when fewer than all were used.
     pub baseline_len: Option<usize>,
+    /// The lowest value the property can take (0 for concentrations, viscosity, colour), at
+    /// which the LCL is held when x̄ − 3σ falls below it ([`natural_lower_bound`]).
+    pub lower_bound: Option<f64>,
 }
 
-/// Chart size in pixels.
-pub const WIDTH: u32 = 1100;
-/// Chart height in pixels.
-pub const HEIGHT: u32 = 720;
+/// Chart width in px.
+pub const WIDTH: u32 = 900;
+/// Chart height in px.
+pub const HEIGHT: u32 = 600;
+/// Width at which the PDF trend report places the chart, mm; with [`WIDTH`] it sets the print
+/// size of the chart's text ([`visual::placed_pt_per_px`]).
+pub const PLACED_WIDTH_MM: f64 = 178.0;
+/// Size of the smallest chart text, px: 15 px placed at [`PLACED_WIDTH_MM`] is 8.4 pt.
+const TEXT: f64 = 15.0;
+/// Panel titles, px.
+const PANEL_TITLE: f64 = 16.0;
+/// The chart title, px.
+const TITLE: f64 = 19.0;
 
-const POINT: RGBColor = RGBColor(0x2f, 0x4b, 0x8a);
-const CENTRE: RGBColor = RGBColor(0x55, 0x55, 0x55);
-const CONTROL: RGBColor = RGBColor(0xb2, 0x3a, 0x2a);
-const SPEC: RGBColor = RGBColor(0x7b, 0x3f, 0xa6);
-const SIGNAL: RGBColor = RGBColor(0xe0, 0x8a, 0x00);
-const BASELINE: RGBColor = RGBColor(0x99, 0x99, 0x99);
-const TEXT: RGBColor = RGBColor(0x22, 0x22, 0x22);
-
-/// Left margin for the y labels, right margin for the line labels, in pixels.
-const Y_LABEL_AREA: u32 = 80;
-const RIGHT_MARGIN: u32 = 120;
+/// Plot area edges, px.
+const PLOT_L: f64 = 100.0;
+const PLOT_R: f64 = 762.0;
+const I_TOP: f64 = 58.0;
+const I_BOTTOM: f64 = 270.0;
+const MR_TOP: f64 = 306.0;
+const MR_BOTTOM: f64 = 382.0;
+/// Top of the rotated lot ids, and their longest extent, px.
+const LOTS_TOP: f64 = MR_BOTTOM + 11.0;
+const LOTS_MAX: f64 = 88.0;
 /// Above this many lots the individual point markers are left out (the line remains).
 const MAX_MARKERS: usize = 400;
-/// Above this many signalled lots the points get small dots instead of numbered rings.
+/// Above this many marked lots the tags are left out (rings and diamonds stay, the list
+/// numbers them).
 const MAX_MARKED_SIGNALS: usize = 150;
-/// Horizontal room one rotated lot label needs, in pixels.
-const LABEL_PITCH: f64 = 15.0;
+/// Most tags drawn on one chart; more would crowd the plot.
+const MAX_TAGS: usize = 60;
+/// Horizontal room one rotated lot id needs, px.
+const LABEL_PITCH: f64 = 19.0;
+
+/// The lowest value a property can take, for holding the LCL there: 0 for the acid and
+/// hydroxyl values, viscosity, water, colour, the molar masses and degree of polymerisation,
+/// the extent of reaction, and for any property whose unit is a concentration, mass fraction,
+/// viscosity or colour scale; none otherwise (a temperature such as Tg can be negative).
+/// Source: first principles (an amount, a concentration or a colour index is never negative).
+pub fn natural_lower_bound(key: &str, unit: &str) -> Option<f64> {
+    const KEYS: [&str; 9] = [
+        "acid_value",
+        "hydroxyl_value",
+        "viscosity",
+        "water",
+        "colour",
+        "mn",
+        "xn",
+        "extent_of_reaction",
+        "hydroxyl_equivalent_weight",
+    ];
+    const UNITS: [&str; 16] = [
+        "mg KOH/g", "%", "% w/w", "wt %", "wt%", "ppm", "mg/kg", "g/mol", "g/eq", "mPa·s", "Pa·s",
+        "cP", "APHA", "Hazen", "Pt-Co", "Gardner",
+    ];
+    (KEYS.contains(&key) || key.starts_with("colour") || UNITS.contains(&unit.trim()))
+        .then_some(0.0)
+}
+
+/// Where a lot lies against its spec window.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Outside {
+    /// Above the upper spec limit.
+    Above,
+    /// Below the lower spec limit.
+    Below,
+}
+
+/// A lot the chart marks: outside its spec window, signalled by a run rule, or both.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MarkedLot {
+    /// Index of the lot in the series (from 0).
+    pub index: usize,
+    /// Its tag number: 1 for the newest marked lot, counting back in time.
+    pub number: usize,
+    /// Outside the spec window, and on which side.
+    pub outside: Option<Outside>,
+    /// Run rules signalled at this lot, in increasing order.
+    pub rules: Vec<u8>,
+}
+
+/// The lots to mark, newest first and numbered so: a lot is marked when its value lies outside
+/// the spec window or a run rule signals at it. The chart's tags and the report's list use the
+/// same numbers.
+pub fn marked_lots(
+    values: &[f64],
+    signals: &[Signal],
+    spec_min: Option<f64>,
+    spec_max: Option<f64>,
+) -> Vec<MarkedLot> {
+    let mut rules: Vec<Vec<u8>> = vec![Vec::new(); values.len()];
+    for s in signals.iter().filter(|s| s.index < values.len()) {
+        if !rules[s.index].contains(&s.rule) {
+            rules[s.index].push(s.rule);
+        }
+    }
+    let mut out = Vec::new();
+    for (i, &v) in values.iter().enumerate().rev() {
+        let outside = if spec_max.is_some_and(|m| v > m) {
+            Some(Outside::Above)
+        } else if spec_min.is_some_and(|m| v < m) {
+            Some(Outside::Below)
+        } else {
+            None
+        };
+        if outside.is_some() || !rules[i].is_empty() {
+            let mut r = std::mem::take(&mut rules[i]);
+            r.sort_unstable();
+            out.push(MarkedLot {
+                index: i,
+                number: out.len() + 1,
+                outside,
+                rules: r,
+            });
+        }
+    }
+    out
+}
+
+impl<'a> ChartInput<'a> {
+    /// The chart of one property's trend, its LCL held at the property's natural lower bound
+    /// ([`natural_lower_bound`]).
+    pub fn of_trend(t: &'a crate::trend::product::PropertyTrend) -> ChartInput<'a> {
+        ChartInput {
+            product: &t.product,
+            property: &t.label,
+            unit: &t.unit,
+            date_from: &t.date_from,
+            date_to: &t.date_to,
+            lot_ids: &t.lots,
+            values: &t.values,
+            limits: &t.limits,
+            spec_min: t.spec_min,
+            spec_max: t.spec_max,
+            signals: &t.raw_signals,
+            baseline_len: (t.baseline_n < t.n).then_some(t.baseline_n),
+            lower_bound: natural_lower_bound(&t.property, &t.unit),
+        }
+    }
+}
 
 /// Renders the I-MR chart as an SVG document.
 ///
@@ -70,28 +195,12 @@ const LABEL_PITCH: f64 = 15.0;
 /// or a signal points past the end of the series.
 pub fn imr_svg(input: &ChartInput) -> Result<Vec<u8>> {
     check(input)?;
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (WIDTH, HEIGHT)).into_drawing_area();
-        draw(&root, input).map_err(|e| {
-            Error::invalid(
-                "chart",
-                format!("drawing failed: {e}"),
-                "Report this as a bug.",
-            )
-        })?;
-        root.present().map_err(|e| {
-            Error::invalid(
-                "chart",
-                format!("drawing failed: {e}"),
-                "Report this as a bug.",
-            )
-        })?;
-    }
-    Ok(svg.into_bytes())
+    let mut svg = Svg::new(f64::from(WIDTH), f64::from(HEIGHT));
+    draw(&mut svg, input);
+    Ok(svg.finish())
 }
 
-/// Scale of the PNG relative to the SVG's pixel size (2 gives 2200 × 1440 pixels).
+/// Scale of the PNG relative to the SVG's pixel size (2 gives 1800 × 1200 pixels).
 pub const PNG_SCALE: f32 = 2.0;
 
 /// Renders the I-MR chart as a PNG image: the SVG of [`imr_svg`] rasterized by resvg at
@@ -103,55 +212,7 @@ pub fn imr_png(input: &ChartInput) -> Result<Vec<u8>> {
     svg_to_png(&svg, PNG_SCALE)
 }
 
-/// Rasterizes an SVG document to PNG bytes at `scale` with resvg, using the bundled fonts.
-pub fn svg_to_png(svg: &[u8], scale: f32) -> Result<Vec<u8>> {
-    let pixmap = rasterize(svg, scale)?;
-    pixmap.encode_png().map_err(|e| {
-        Error::invalid(
-            "--png",
-            format!("PNG encoding failed: {e}"),
-            "Report this as a bug.",
-        )
-    })
-}
-
-fn rasterize(svg: &[u8], scale: f32) -> Result<resvg::tiny_skia::Pixmap> {
-    use resvg::{tiny_skia, usvg};
-    let mut options = usvg::Options::default();
-    let fonts = options.fontdb_mut();
-    // The bundled DejaVu faces (fonts/, with their licence), so the PNG looks the same on every
-    // machine and needs no system fonts.
-    fonts.load_font_data(crate::support::fonts::DEJAVU_SANS.to_vec());
-    fonts.load_font_data(crate::support::fonts::DEJAVU_SANS_BOLD.to_vec());
-    fonts.set_sans_serif_family("DejaVu Sans");
-    let tree = usvg::Tree::from_data(svg, &options).map_err(|e| {
-        Error::invalid(
-            "--png",
-            format!("the chart could not be read back: {e}"),
-            "Report this as a bug.",
-        )
-    })?;
-    let size = tree.size().to_int_size().scale_by(scale).ok_or_else(|| {
-        Error::invalid(
-            "--png",
-            "the image size is out of range",
-            "Report this as a bug.",
-        )
-    })?;
-    let mut pixmap = tiny_skia::Pixmap::new(size.width(), size.height()).ok_or_else(|| {
-        Error::invalid(
-            "--png",
-            "the image size is out of range",
-            "Report this as a bug.",
-        )
-    })?;
-    resvg::render(
-        &tree,
-        tiny_skia::Transform::from_scale(scale, scale),
-        &mut pixmap.as_mut(),
-    );
-    Ok(pixmap)
-}
+pub use crate::support::visual::{rasterize, svg_to_png};
 
 fn check(input: &ChartInput) -> Result<()> {
     let n = input.values.len();
@@ -209,254 +270,674 @@ pub fn fmt_value(x: f64) -> String {
     format!("{x:.decimals$}")
 }
 
-type DrawResult<T = ()> = std::result::Result<T, Box<dyn std::error::Error>>;
-
-/// A label in the right margin: its height on the value axis, its text and colour.
-type RightLabel = (f64, String, RGBColor);
-
-/// Sizes both panels share, from the input.
-struct Frame {
-    /// Number of lots.
-    n: usize,
-    /// Right end of the x axis (lots sit at 0..n-1).
-    x_end: f64,
-    /// Buckets a polyline is decimated to (two per pixel of plot width).
-    buckets: usize,
-    /// Most lot labels that fit under the chart.
-    max_labels: usize,
-    /// Height of the lot-label area under the moving-range panel.
-    x_label_area: u32,
+/// A y-axis title that always keeps its unit: the label is shortened (with "…") to fit
+/// `room` px at `size`, the unit in brackets never.
+pub fn axis_title(label: &str, unit: &str, size: f64, room: f64) -> String {
+    let tail = if unit.is_empty() {
+        String::new()
+    } else {
+        format!(" ({unit})")
+    };
+    let tail_w = visual::text_width(&tail, size, false);
+    format!("{}{tail}", fit_text(label, size, false, room - tail_w))
 }
 
-impl Frame {
-    fn of(input: &ChartInput) -> Frame {
-        let n = input.values.len();
-        let plot_width = WIDTH as f64 - Y_LABEL_AREA as f64 - RIGHT_MARGIN as f64 - 10.0;
-        let longest = input
-            .lot_ids
-            .iter()
-            .map(|s| s.chars().count())
-            .max()
-            .unwrap_or(1);
-        Frame {
-            n,
-            x_end: n as f64 - 0.5,
-            buckets: 2 * plot_width as usize,
-            max_labels: ((plot_width / LABEL_PITCH) as usize).max(2),
-            x_label_area: (longest as u32 * 7 + 14).clamp(30, 110),
-        }
-    }
+/// The value axis of one panel: data range to pixels.
+struct Panel {
+    y: visual::Scale,
+    top: f64,
+    bottom: f64,
+}
 
-    fn hline(&self, y: f64) -> Vec<(f64, f64)> {
-        vec![(-0.5, y), (self.x_end, y)]
+impl Panel {
+    fn py(&self, v: f64) -> f64 {
+        self.y.px(v)
     }
 }
 
-fn draw<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, input: &ChartInput) -> DrawResult
-where
-    DB::ErrorType: 'static,
-{
-    root.fill(&WHITE)?;
-    // `root` covers the whole backend, so backend (pixel) coordinates can be drawn on it as is.
-    let titled = root.titled(&title(input), ("sans-serif", 20).into_font().color(&TEXT))?;
-    let (upper, lower) = titled.split_vertically((HEIGHT as f64 * 0.58) as u32);
-    let frame = Frame::of(input);
-    let top = draw_individuals(root, &titled, &upper, input, &frame)?;
-    let bottom = draw_moving_ranges(root, &lower, input, &frame)?;
-    draw_lot_axis(
-        root,
-        &top,
-        &bottom,
-        input.lot_ids,
-        label_step(frame.n, frame.max_labels),
-    )?;
-    root.draw(&Text::new(
-        "ring and number: Nelson rule signalled at that lot; filled dot: moving range above its limit",
-        (WIDTH as i32 - 12, HEIGHT as i32 - 6),
-        ("sans-serif", 12)
-            .into_font()
-            .color(&TEXT)
-            .pos(Pos::new(HPos::Right, VPos::Bottom)),
-    ))?;
-    Ok(())
+/// x pixel of lot `i` of `n`.
+fn px(i: f64, n: usize) -> f64 {
+    let step = (PLOT_R - PLOT_L) / n as f64;
+    PLOT_L + step * (i + 0.5)
 }
 
-/// The individuals panel: axes, centre line, control and spec limits, the frozen-limits
-/// marker, the values and their signals.
-fn draw_individuals<'a, DB: DrawingBackend>(
-    root: &DrawingArea<DB, Shift>,
-    titled: &DrawingArea<DB, Shift>,
-    upper: &'a DrawingArea<DB, Shift>,
-    input: &ChartInput,
-    frame: &Frame,
-) -> DrawResult<Chart<'a, DB>>
-where
-    DB::ErrorType: 'static,
-{
-    let n = frame.n;
+fn draw(svg: &mut Svg, input: &ChartInput) {
+    let title_text = fit_text(&title(input), TITLE, true, f64::from(WIDTH) - 24.0);
+    svg.text(&Label::new(&title_text, 12.0, 24.0, TITLE).bold());
+    svg.text(&Label::new("Individuals chart", PLOT_L, I_TOP - 12.0, PANEL_TITLE).bold());
+    svg.text(&Label::new("Moving-range chart", PLOT_L, MR_TOP - 12.0, PANEL_TITLE).bold());
+    let mut notes: Vec<String> = Vec::new();
+    let lcl_shown = held_lcl(input, &mut notes);
+    let ind = individuals_panel(input, lcl_shown);
+    let mr = mr_panel(input);
+    axes(svg, input, &ind, &mr);
+    limit_lines(svg, input, &ind, lcl_shown);
+    let marked = marked_lots(input.values, input.signals, input.spec_min, input.spec_max);
+    data(svg, input, &ind, &marked);
+    moving_ranges(svg, input, &mr);
+    baseline_marker(svg, input, &mut notes);
+    tags(svg, input, &ind, &marked, &mut notes);
+    let axis_title = lot_axis(svg, input);
+    legend_and_notes(svg, input, &marked, &notes, axis_title);
+}
+
+/// The LCL as drawn: x̄ − 3σ, or the property's natural lower bound when that is higher (with
+/// a note saying so).
+fn held_lcl(input: &ChartInput, notes: &mut Vec<String>) -> f64 {
     let l = input.limits;
-    let mut ys: Vec<f64> = vec![l.ucl, l.lcl, l.mean];
+    match input.lower_bound {
+        Some(b) if l.lcl < b => {
+            notes.push(format!(
+                "LCL held at {}, the lowest value {} can take (x̄ − 3σ = {}).",
+                fmt_value(b),
+                input.property.to_lowercase(),
+                fmt_value(l.lcl)
+            ));
+            b
+        }
+        _ => l.lcl,
+    }
+}
+
+/// Data range with 8 % padding below and 12 % above (never empty).
+fn padded_range(values: impl Iterator<Item = f64>) -> (f64, f64) {
+    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+    for v in values.filter(|v| v.is_finite()) {
+        lo = lo.min(v);
+        hi = hi.max(v);
+    }
+    if !lo.is_finite() {
+        return (0.0, 1.0);
+    }
+    let span = if hi > lo {
+        hi - lo
+    } else {
+        lo.abs().max(1.0) * 0.1
+    };
+    (lo - 0.08 * span, hi + 0.12 * span)
+}
+
+fn individuals_panel(input: &ChartInput, lcl: f64) -> Panel {
+    let l = input.limits;
+    let mut ys: Vec<f64> = vec![l.ucl, lcl, l.mean];
     ys.extend(input.spec_min);
     ys.extend(input.spec_max);
-    let (y_lo, y_hi) = padded_range(input.values.iter().copied().chain(ys));
-    let mut top = ChartBuilder::on(upper)
-        .margin_top(8)
-        .margin_right(RIGHT_MARGIN)
-        .margin_left(10)
-        .x_label_area_size(10)
-        .y_label_area_size(Y_LABEL_AREA)
-        .build_cartesian_2d(-0.5..frame.x_end, y_lo..y_hi)?;
-    top.configure_mesh()
-        .disable_x_mesh()
-        .light_line_style(WHITE.mix(0.0))
-        .bold_line_style(BLACK.mix(0.06))
-        .x_labels(0)
-        .y_labels(8)
-        .y_label_formatter(&|y| fmt_tick(*y, y_hi - y_lo))
-        .y_desc(input.property)
-        .label_style(("sans-serif", 13).into_font().color(&TEXT))
-        .draw()?;
-    let right_labels = draw_limit_lines(&mut top, input, frame)?;
-    if let Some(b) = input.baseline_len.filter(|&b| b > 0 && b < n) {
-        let x = b as f64 - 0.5;
-        top.draw_series(DashedLineSeries::new(
-            vec![(x, y_lo), (x, y_hi)],
-            3,
-            4,
-            BASELINE.stroke_width(1),
-        ))?;
-        let (px, py) = top.backend_coord(&(x, y_hi));
-        titled.draw(
-            &Text::new(
-                "limits frozen",
-                (px + 4, py + 4),
-                ("sans-serif", 12).into_font(),
-            )
-            .into_dyn(),
-        )?;
+    let (mut lo, hi) = padded_range(input.values.iter().copied().chain(ys));
+    if let Some(b) = input.lower_bound {
+        lo = lo.max(b - 0.02 * (hi - b).abs());
     }
-    top.draw_series(LineSeries::new(
-        decimate(input.values.iter().copied().enumerate(), n, frame.buckets),
-        POINT.stroke_width(1),
-    ))?;
-    if n <= MAX_MARKERS {
-        top.draw_series(
-            input
-                .values
-                .iter()
-                .enumerate()
-                .map(|(i, &v)| Circle::new((i as f64, v), 3, POINT.filled())),
-        )?;
+    Panel {
+        y: visual::Scale::linear(lo, hi, I_BOTTOM, I_TOP),
+        top: I_TOP,
+        bottom: I_BOTTOM,
     }
-    draw_signals(root, &top, input)?;
-    draw_right_labels(root, &top, frame.x_end, &right_labels)?;
-    Ok(top)
 }
 
-/// Centre line, control limits (dashed) and spec limits of the individuals panel; returns
-/// their labels for the right margin.
-fn draw_limit_lines<DB: DrawingBackend>(
-    top: &mut Chart<'_, DB>,
-    input: &ChartInput,
-    frame: &Frame,
-) -> DrawResult<Vec<RightLabel>>
-where
-    DB::ErrorType: 'static,
-{
+fn mr_panel(input: &ChartInput) -> Panel {
     let l = input.limits;
-    let mut right_labels: Vec<RightLabel> = Vec::new();
-    top.draw_series(LineSeries::new(frame.hline(l.mean), CENTRE.stroke_width(1)))?;
-    right_labels.push((l.mean, format!("CL {}", fmt_value(l.mean)), CENTRE));
-    for (y, name) in [(l.ucl, "UCL"), (l.lcl, "LCL")] {
-        top.draw_series(DashedLineSeries::new(
-            frame.hline(y),
-            8,
-            5,
-            CONTROL.stroke_width(2),
-        ))?;
-        right_labels.push((y, format!("{name} {}", fmt_value(y)), CONTROL));
+    let (_, hi) =
+        padded_range(crate::stats::moving_ranges(input.values).chain([l.mr_ucl, l.mr_bar, 0.0]));
+    Panel {
+        y: visual::Scale::linear(0.0, hi, MR_BOTTOM, MR_TOP),
+        top: MR_TOP,
+        bottom: MR_BOTTOM,
     }
+}
+
+/// Frames, grid lines, tick labels and the axis titles (with the unit) of both panels.
+fn axes(svg: &mut Svg, input: &ChartInput, ind: &Panel, mr: &Panel) {
+    // The two vertical titles share the left margin: the individuals title is centred on its
+    // panel, the moving-range title hangs from just below it and may run past its panel.
+    let ind_mid = (I_TOP + I_BOTTOM) / 2.0;
+    let ind_title = axis_title(input.property, input.unit, TEXT, 232.0);
+    let ind_end = ind_mid + visual::text_width(&ind_title, TEXT, false) / 2.0;
+    let mr_top = (ind_end + 12.0).max(MR_TOP - 16.0);
+    // Down to the lot axis title's line, which starts far to the right of the margin.
+    let mr_room = LOTS_TOP + lot_extent(input) + 20.0 - mr_top;
+    let mr_full = axis_title("Moving range", input.unit, TEXT, f64::MAX);
+    let mr_title = if visual::text_width(&mr_full, TEXT, false) <= mr_room {
+        mr_full
+    } else {
+        axis_title("MR", input.unit, TEXT, mr_room)
+    };
+    for (panel, count, title, vertical_at) in [
+        (ind, 6, ind_title, (ind_mid, Anchor::Middle)),
+        (mr, 3, mr_title, (mr_top, Anchor::End)),
+    ] {
+        let (lo, hi) = (panel.y.d0, panel.y.d1);
+        for t in linear_ticks(lo, hi, count) {
+            let y = panel.py(t);
+            svg.line(&[(PLOT_L, y), (PLOT_R, y)], GRID, 1.0, None, "grid");
+            let text = fmt_tick(t, hi - lo);
+            svg.text(
+                &Label::new(&text, PLOT_L - 7.0, y + 5.0, TEXT)
+                    .anchor(Anchor::End)
+                    .colour(MUTED),
+            );
+        }
+        svg.line(
+            &[
+                (PLOT_L, panel.top),
+                (PLOT_L, panel.bottom),
+                (PLOT_R, panel.bottom),
+            ],
+            MUTED,
+            1.0,
+            None,
+            "axis",
+        );
+        svg.text(
+            &Label::new(&title, 24.0, vertical_at.0, TEXT)
+                .anchor(vertical_at.1)
+                .vertical(),
+        );
+    }
+    let _ = input;
+}
+
+/// Horizontal line at value `v` across a panel, reserved so that tags keep clear of it.
+fn hline(
+    svg: &mut Svg,
+    panel: &Panel,
+    v: f64,
+    colour: Rgb,
+    width: f64,
+    dash: Option<&str>,
+    class: &str,
+) {
+    let y = panel.py(v);
+    svg.line(&[(PLOT_L, y), (PLOT_R, y)], colour, width, dash, class);
+    svg.reserve(Bounds {
+        x0: PLOT_L,
+        y0: y - width / 2.0 - 1.0,
+        x1: PLOT_R,
+        y1: y + width / 2.0 + 1.0,
+    });
+}
+
+/// Centre line, control limits and spec limits of the individuals panel, labelled at the right.
+fn limit_lines(svg: &mut Svg, input: &ChartInput, ind: &Panel, lcl: f64) {
+    let l = input.limits;
+    let mut labels: Vec<(f64, String, Rgb)> = Vec::new();
+    hline(svg, ind, l.mean, CENTRE, 1.2, None, "centre-line");
+    labels.push((ind.py(l.mean), format!("CL {}", fmt_value(l.mean)), CENTRE));
+    hline(
+        svg,
+        ind,
+        l.ucl,
+        CONTROL,
+        2.0,
+        Some(visual::CONTROL_DASH),
+        "control-limit",
+    );
+    labels.push((ind.py(l.ucl), format!("UCL {}", fmt_value(l.ucl)), CONTROL));
+    hline(
+        svg,
+        ind,
+        lcl,
+        CONTROL,
+        2.0,
+        Some(CONTROL_DASH),
+        "control-limit",
+    );
+    let lcl_text = if lcl > l.lcl {
+        format!("LCL {} (held)", fmt_value(lcl))
+    } else {
+        format!("LCL {}", fmt_value(lcl))
+    };
+    labels.push((ind.py(lcl), lcl_text, CONTROL));
     for (y, name) in [(input.spec_max, "USL"), (input.spec_min, "LSL")] {
         if let Some(y) = y {
-            top.draw_series(LineSeries::new(frame.hline(y), SPEC.stroke_width(3)))?;
-            right_labels.push((y, format!("{name} {}", fmt_value(y)), SPEC));
+            hline(svg, ind, y, SPEC, 3.0, None, "spec-limit");
+            labels.push((ind.py(y), format!("{name} {}", fmt_value(y)), SPEC));
         }
     }
-    Ok(right_labels)
+    right_labels(svg, &mut labels, ind);
 }
 
-/// The moving-range panel: axes, MR̄ and its upper limit, the ranges, and the ranges beyond
-/// the limit as filled dots.
-fn draw_moving_ranges<'a, DB: DrawingBackend>(
-    root: &DrawingArea<DB, Shift>,
-    lower: &'a DrawingArea<DB, Shift>,
-    input: &ChartInput,
-    frame: &Frame,
-) -> DrawResult<Chart<'a, DB>>
-where
-    DB::ErrorType: 'static,
-{
-    let (n, l) = (frame.n, input.limits);
-    let (_, mr_hi) =
-        padded_range(crate::stats::moving_ranges(input.values).chain([l.mr_ucl, l.mr_bar]));
-    let mut bottom = ChartBuilder::on(lower)
-        .margin_top(6)
-        .margin_bottom(22)
-        .margin_right(RIGHT_MARGIN)
-        .margin_left(10)
-        .x_label_area_size(frame.x_label_area)
-        .y_label_area_size(Y_LABEL_AREA)
-        .build_cartesian_2d(-0.5..frame.x_end, 0.0..mr_hi)?;
-    bottom
-        .configure_mesh()
-        .disable_x_mesh()
-        .light_line_style(WHITE.mix(0.0))
-        .bold_line_style(BLACK.mix(0.06))
-        .label_style(("sans-serif", 13).into_font().color(&TEXT))
-        .x_labels(0)
-        .y_labels(5)
-        .y_label_formatter(&|y| fmt_tick(*y, mr_hi))
-        .y_desc("moving range")
-        .draw()?;
-    bottom.draw_series(LineSeries::new(
-        frame.hline(l.mr_bar),
-        CENTRE.stroke_width(1),
-    ))?;
-    bottom.draw_series(DashedLineSeries::new(
-        frame.hline(l.mr_ucl),
-        8,
-        5,
-        CONTROL.stroke_width(2),
-    ))?;
-    let mr_labels = vec![
-        (l.mr_bar, format!("MR̄ {}", fmt_value(l.mr_bar)), CENTRE),
-        (l.mr_ucl, format!("UCL {}", fmt_value(l.mr_ucl)), CONTROL),
-    ];
-    let mr_points = || {
-        crate::stats::moving_ranges(input.values)
-            .enumerate()
-            .map(|(i, r)| ((i + 1) as f64, r))
-    };
-    let mr_line = decimate(
+/// Labels at the right end of horizontal lines, pushed apart so that none overlaps, kept within
+/// the panel's height (give or take one line).
+fn right_labels(svg: &mut Svg, labels: &mut [(f64, String, Rgb)], panel: &Panel) {
+    const GAP: f64 = 19.0;
+    labels.sort_by(|a, b| a.0.total_cmp(&b.0));
+    for k in 1..labels.len() {
+        if labels[k].0 - labels[k - 1].0 < GAP {
+            labels[k].0 = labels[k - 1].0 + GAP;
+        }
+    }
+    let floor = panel.bottom + 8.0;
+    if let Some(last) = labels.last().map(|l| l.0) {
+        if last > floor {
+            let shift = last - floor;
+            for l in labels.iter_mut() {
+                l.0 -= shift;
+            }
+            for k in (0..labels.len().saturating_sub(1)).rev() {
+                if labels[k + 1].0 - labels[k].0 < GAP {
+                    labels[k].0 = labels[k + 1].0 - GAP;
+                }
+            }
+        }
+    }
+    for (y, text, colour) in labels.iter() {
+        let text = fit_text(text, TEXT, false, f64::from(WIDTH) - PLOT_R - 10.0);
+        svg.text(&Label::new(&text, PLOT_R + 6.0, y + 5.0, TEXT).colour(*colour));
+    }
+}
+
+/// The values (line and dots) and the marks of the marked lots (amber ring for a signal,
+/// crimson diamond outside the spec window); reserves the points so tags keep clear of them.
+fn data(svg: &mut Svg, input: &ChartInput, ind: &Panel, marked: &[MarkedLot]) {
+    let n = input.values.len();
+    let buckets = 2 * (PLOT_R - PLOT_L) as usize;
+    let line: Vec<(f64, f64)> = decimate(input.values.iter().copied().enumerate(), n, buckets)
+        .into_iter()
+        .map(|(i, v)| (px(i, n), ind.py(v)))
+        .collect();
+    svg.line(&line, DATA, 1.2, None, "values");
+    // The data line, sampled every few pixels, is an obstacle for tags.
+    for w in line.windows(2) {
+        let (a, b) = (w[0], w[1]);
+        let steps = ((b.0 - a.0).hypot(b.1 - a.1) / 4.0).ceil().max(1.0) as usize;
+        for s in 0..=steps {
+            let t = s as f64 / steps as f64;
+            let (x, y) = (a.0 + t * (b.0 - a.0), a.1 + t * (b.1 - a.1));
+            svg.reserve(Bounds {
+                x0: x - 1.5,
+                y0: y - 1.5,
+                x1: x + 1.5,
+                y1: y + 1.5,
+            });
+        }
+    }
+    if n <= MAX_MARKERS {
+        for (i, &v) in input.values.iter().enumerate() {
+            svg.circle(px(i as f64, n), ind.py(v), 3.0, Some(DATA), None, "lot");
+        }
+    }
+    let small = marked.len() > MAX_MARKED_SIGNALS;
+    for m in marked {
+        let (x, y) = (px(m.index as f64, n), ind.py(input.values[m.index]));
+        if !m.rules.is_empty() {
+            let r = if small { 4.0 } else { 7.0 };
+            svg.circle(x, y, r, None, Some((SIGNAL, 2.0)), "signal");
+        }
+        if m.outside.is_some() {
+            svg.diamond(
+                x,
+                y,
+                if small { 5.0 } else { 7.0 },
+                OUT_OF_SPEC,
+                "outside-spec",
+            );
+        }
+        svg.reserve(Bounds {
+            x0: x - 8.0,
+            y0: y - 8.0,
+            x1: x + 8.0,
+            y1: y + 8.0,
+        });
+    }
+}
+
+/// The moving ranges (line and dots), MR̄ and its UCL; ranges above the UCL as amber dots.
+fn moving_ranges(svg: &mut Svg, input: &ChartInput, mr: &Panel) {
+    let n = input.values.len();
+    let l = input.limits;
+    let buckets = 2 * (PLOT_R - PLOT_L) as usize;
+    let line: Vec<(f64, f64)> = decimate(
         crate::stats::moving_ranges(input.values)
             .enumerate()
             .map(|(i, r)| (i + 1, r)),
         n - 1,
-        frame.buckets,
-    );
-    bottom.draw_series(LineSeries::new(mr_line, POINT.stroke_width(1)))?;
-    if n <= MAX_MARKERS {
-        bottom.draw_series(mr_points().map(|p| Circle::new(p, 2, POINT.filled())))?;
+        buckets,
+    )
+    .into_iter()
+    .map(|(i, r)| (px(i, n), mr.py(r)))
+    .collect();
+    svg.line(&line, DATA, 1.2, None, "moving-ranges");
+    let beyond = crate::stats::moving_ranges(input.values)
+        .filter(|&r| r > l.mr_ucl)
+        .count();
+    for (i, r) in crate::stats::moving_ranges(input.values).enumerate() {
+        let (x, y) = (px((i + 1) as f64, n), mr.py(r));
+        if r > l.mr_ucl {
+            let dot = if beyond > MAX_MARKED_SIGNALS {
+                2.5
+            } else {
+                4.5
+            };
+            svg.circle(x, y, dot, Some(SIGNAL), None, "range-beyond");
+        } else if n <= MAX_MARKERS {
+            svg.circle(x, y, 2.5, Some(DATA), None, "range");
+        }
     }
-    let beyond = mr_points().filter(|&(_, r)| r > l.mr_ucl).count();
-    let dot = if beyond > MAX_MARKED_SIGNALS { 2 } else { 4 };
-    bottom.draw_series(
-        mr_points()
-            .filter(|&(_, r)| r > l.mr_ucl)
-            .map(|p| Circle::new(p, dot, SIGNAL.filled())),
-    )?;
-    draw_right_labels(root, &bottom, frame.x_end, &mr_labels)?;
-    Ok(bottom)
+    let mut labels = Vec::new();
+    hline(svg, mr, l.mr_bar, CENTRE, 1.2, None, "centre-line");
+    labels.push((
+        mr.py(l.mr_bar),
+        format!("MR̄ {}", fmt_value(l.mr_bar)),
+        CENTRE,
+    ));
+    hline(
+        svg,
+        mr,
+        l.mr_ucl,
+        CONTROL,
+        2.0,
+        Some(CONTROL_DASH),
+        "control-limit",
+    );
+    labels.push((
+        mr.py(l.mr_ucl),
+        format!("UCL {}", fmt_value(l.mr_ucl)),
+        CONTROL,
+    ));
+    right_labels(svg, &mut labels, mr);
+}
+
+/// The dotted line where frozen limits start, with its label inside the plot when there is
+/// room, else as a note.
+fn baseline_marker(svg: &mut Svg, input: &ChartInput, notes: &mut Vec<String>) {
+    let n = input.values.len();
+    let Some(b) = input.baseline_len.filter(|&b| b > 0 && b < n) else {
+        return;
+    };
+    let x = px(b as f64 - 0.5, n);
+    svg.line(
+        &[(x, I_TOP), (x, MR_BOTTOM)],
+        LEFT_OUT,
+        1.2,
+        Some(visual::BASELINE_DASH),
+        "baseline",
+    );
+    let text = format!("limits frozen after lot {b}");
+    let placed = [I_TOP + 17.0, I_BOTTOM - 8.0, I_TOP + 36.0]
+        .iter()
+        .any(|&y| {
+            svg.text_if_free(&Label::new(&text, x + 5.0, y, TEXT).colour(MUTED))
+                || svg.text_if_free(
+                    &Label::new(&text, x - 5.0, y, TEXT)
+                        .anchor(Anchor::End)
+                        .colour(MUTED),
+                )
+        });
+    if !placed {
+        notes.push(format!(
+            "Dotted grey line: {text}; they apply unchanged to the later lots."
+        ));
+    }
+}
+
+/// Numbered tags of the marked lots, placed clear of every text, point and line, newest first
+/// (so the lot needing action gets the best place), joined to their point by a leader line
+/// when set apart.
+fn tags(
+    svg: &mut Svg,
+    input: &ChartInput,
+    ind: &Panel,
+    marked: &[MarkedLot],
+    notes: &mut Vec<String>,
+) {
+    if marked.is_empty() {
+        return;
+    }
+    let n = input.values.len();
+    if marked.len() > MAX_TAGS {
+        notes.push(format!(
+            "{} lots signalled or outside the spec window: too many to number here; the list gives each one (1 = newest).",
+            marked.len()
+        ));
+        return;
+    }
+    let plot = Bounds {
+        x0: PLOT_L + 2.0,
+        y0: ind.top + 2.0,
+        x1: PLOT_R - 2.0,
+        y1: ind.bottom - 2.0,
+    };
+    const DIRS: [(f64, f64); 8] = [
+        (0.0, -1.0),
+        (0.0, 1.0),
+        (-0.75, -0.75),
+        (0.75, -0.75),
+        (-0.75, 0.75),
+        (0.75, 0.75),
+        (-1.0, 0.0),
+        (1.0, 0.0),
+    ];
+    let mut unplaced = 0;
+    for m in marked {
+        let (x, y) = (px(m.index as f64, n), ind.py(input.values[m.index]));
+        let colour = if m.outside.is_some() {
+            OUT_OF_SPEC
+        } else {
+            SIGNAL
+        };
+        let text = m.number.to_string();
+        let found = [18.0, 30.0, 44.0, 60.0, 78.0].iter().find_map(|&d| {
+            DIRS.iter().find_map(|&(dx, dy)| {
+                let (cx, cy) = (x + dx * d, y + dy * d);
+                let label = Label::new(&text, cx, cy + 5.0, TEXT)
+                    .anchor(Anchor::Middle)
+                    .bold()
+                    .colour(Rgb(255, 255, 255));
+                let b = label.bounds();
+                let tag = Bounds {
+                    x0: b.x0 - 3.0,
+                    y0: b.y0 - 1.0,
+                    x1: b.x1 + 3.0,
+                    y1: b.y1 + 1.0,
+                };
+                (plot.contains(&tag) && svg.is_free(&tag)).then_some((label, tag, d))
+            })
+        });
+        let Some((label, tag, d)) = found else {
+            unplaced += 1;
+            continue;
+        };
+        if d > 20.0 {
+            // Leader from the mark's edge to the tag's nearest edge.
+            let tx = x.clamp(tag.x0, tag.x1);
+            let ty = y.clamp(tag.y0, tag.y1);
+            let len = (tx - x).hypot(ty - y).max(1e-9);
+            let (ux, uy) = ((tx - x) / len, (ty - y) / len);
+            svg.line(
+                &[(x + 8.0 * ux, y + 8.0 * uy), (tx, ty)],
+                colour,
+                1.0,
+                None,
+                "leader",
+            );
+        }
+        svg.rect(
+            tag.x0,
+            tag.y0,
+            tag.x1 - tag.x0,
+            tag.y1 - tag.y0,
+            colour,
+            1.0,
+            "tag",
+        );
+        svg.reserve(tag.grow(1.0));
+        svg.text(&label);
+    }
+    if unplaced > 0 {
+        notes.push(format!(
+            "{unplaced} of the {} marked lots carry no number here (no free room next to the point); the list gives each one.",
+            marked.len()
+        ));
+    }
+}
+
+/// The smallest step of the 1-2-5 series with which at most `max_labels` lot labels are shown.
+pub fn label_step(n: usize, max_labels: usize) -> usize {
+    let max_labels = max_labels.max(1);
+    let mut decade = 1usize;
+    loop {
+        for m in [1, 2, 5] {
+            let k = m * decade;
+            if n.div_ceil(k) <= max_labels {
+                return k;
+            }
+        }
+        decade *= 10;
+    }
+}
+
+/// Lot ids shown under the chart: one in every `step`.
+fn lot_step(input: &ChartInput) -> usize {
+    let max_labels = (((PLOT_R - PLOT_L) / LABEL_PITCH) as usize).max(2);
+    label_step(input.values.len(), max_labels)
+}
+
+/// How far the rotated lot ids reach below the moving-range panel, px.
+fn lot_extent(input: &ChartInput) -> f64 {
+    input
+        .lot_ids
+        .iter()
+        .step_by(lot_step(input))
+        .map(|id| visual::text_width(id, TEXT, false))
+        .fold(0.0, f64::max)
+        .min(LOTS_MAX)
+}
+
+/// Tick marks under both panels and the lot ids, read upwards, under the moving-range panel.
+fn lot_axis(svg: &mut Svg, input: &ChartInput) -> f64 {
+    let n = input.values.len();
+    let step = lot_step(input);
+    for (i, id) in input.lot_ids.iter().enumerate().step_by(step) {
+        let x = px(i as f64, n);
+        svg.line(
+            &[(x, MR_BOTTOM), (x, MR_BOTTOM + 5.0)],
+            MUTED,
+            1.0,
+            None,
+            "tick",
+        );
+        svg.line(
+            &[(x, I_BOTTOM), (x, I_BOTTOM + 5.0)],
+            MUTED,
+            1.0,
+            None,
+            "tick",
+        );
+        let id = fit_text(id, TEXT, false, LOTS_MAX);
+        svg.text(
+            &Label::new(&id, x + 5.0, LOTS_TOP, TEXT)
+                .anchor(Anchor::End)
+                .colour(INK)
+                .vertical(),
+        );
+    }
+    let extent = lot_extent(input);
+    let every = if step == 1 {
+        "Lot, in order of manufacture".to_string()
+    } else {
+        format!("Lot, in order of manufacture (one in every {step} named)")
+    };
+    svg.text(
+        &Label::new(
+            &every,
+            (PLOT_L + PLOT_R) / 2.0,
+            LOTS_TOP + extent + 20.0,
+            TEXT,
+        )
+        .anchor(Anchor::Middle)
+        .colour(MUTED),
+    );
+    LOTS_TOP + extent + 20.0
+}
+
+/// The legend (one sample of each mark used, flowing onto a second line when needed) and the
+/// notes below it.
+fn legend_and_notes(
+    svg: &mut Svg,
+    input: &ChartInput,
+    marked: &[MarkedLot],
+    notes: &[String],
+    above: f64,
+) {
+    #[derive(Clone, Copy)]
+    enum Sample {
+        Dot,
+        Line(Rgb, f64, Option<&'static str>),
+        Ring,
+        Diamond,
+    }
+    let mut items: Vec<(Sample, &str)> = vec![
+        (Sample::Dot, "lot value"),
+        (Sample::Line(CENTRE, 1.2, None), "centre line"),
+        (
+            Sample::Line(CONTROL, 2.0, Some(CONTROL_DASH)),
+            "control limit (3σ)",
+        ),
+    ];
+    if input.spec_min.is_some() || input.spec_max.is_some() {
+        items.push((Sample::Line(SPEC, 3.0, None), "spec limit"));
+    }
+    if marked.iter().any(|m| !m.rules.is_empty()) {
+        items.push((Sample::Ring, "run-rule signal"));
+    }
+    if marked.iter().any(|m| m.outside.is_some()) {
+        items.push((Sample::Diamond, "outside the spec window"));
+    }
+    if !marked.is_empty() {
+        items.push((
+            Sample::Dot,
+            "tag n: entry n of the signal list (1 = newest)",
+        ));
+    }
+    let mut x = 12.0;
+    let mut y = above + 24.0;
+    for (i, (sample, text)) in items.iter().enumerate() {
+        let tag_item = !marked.is_empty() && i + 1 == items.len();
+        let w = 26.0 + visual::text_width(text, TEXT, false) + 18.0;
+        if x + w > f64::from(WIDTH) - 8.0 {
+            x = 12.0;
+            y += 21.0;
+        }
+        let cy = y - 5.0;
+        match sample {
+            _ if tag_item => {
+                let l = Label::new("n", x + 11.0, y, TEXT)
+                    .anchor(Anchor::Middle)
+                    .bold()
+                    .colour(Rgb(255, 255, 255));
+                let b = l.bounds();
+                svg.rect(
+                    b.x0 - 4.0,
+                    b.y0 - 1.0,
+                    b.x1 - b.x0 + 8.0,
+                    b.y1 - b.y0 + 2.0,
+                    SIGNAL,
+                    1.0,
+                    "legend",
+                );
+                svg.text(&l);
+            }
+            Sample::Dot => {
+                svg.line(&[(x, cy), (x + 22.0, cy)], DATA, 1.2, None, "legend");
+                svg.circle(x + 11.0, cy, 3.0, Some(DATA), None, "legend");
+            }
+            Sample::Line(c, w, dash) => {
+                svg.line(&[(x, cy), (x + 22.0, cy)], *c, *w, *dash, "legend")
+            }
+            Sample::Ring => svg.circle(x + 11.0, cy, 7.0, None, Some((SIGNAL, 2.0)), "legend"),
+            Sample::Diamond => svg.diamond(x + 11.0, cy, 7.0, OUT_OF_SPEC, "legend"),
+        }
+        svg.text(&Label::new(text, x + 26.0, y, TEXT).colour(INK));
+        x += w;
+    }
+    for note in notes {
+        for line in Svg::wrap(note, TEXT, f64::from(WIDTH) - 24.0) {
+            y += 20.0;
+            if y > f64::from(HEIGHT) - 4.0 {
+                return;
+            }
+            svg.text(&Label::new(&line, 12.0, y, TEXT).colour(MUTED));
+        }
+    }
 }
 
 /// The polyline of `points` (index, value), thinned for long series: when there are more than
@@ -507,58 +988,6 @@ pub fn decimate(
     out
 }
 
-/// The smallest step of the 1-2-5 series with which at most `max_labels` lot labels are shown.
-pub fn label_step(n: usize, max_labels: usize) -> usize {
-    let max_labels = max_labels.max(1);
-    let mut decade = 1usize;
-    loop {
-        for m in [1, 2, 5] {
-            let k = m * decade;
-            if n.div_ceil(k) <= max_labels {
-                return k;
-            }
-        }
-        decade *= 10;
-    }
-}
-
-/// Tick marks on both panels and rotated lot ids under the moving-range panel, every `step` lots.
-fn draw_lot_axis<DB: DrawingBackend>(
-    root: &DrawingArea<DB, Shift>,
-    top: &Chart<'_, DB>,
-    bottom: &Chart<'_, DB>,
-    ids: &[String],
-    step: usize,
-) -> DrawResult
-where
-    DB::ErrorType: 'static,
-{
-    let top_y = top.y_range().start;
-    for (i, id) in ids.iter().enumerate().step_by(step) {
-        let x = i as f64;
-        let (px, py) = bottom.backend_coord(&(x, 0.0));
-        root.draw(&PathElement::new(
-            vec![(px, py), (px, py + 5)],
-            TEXT.stroke_width(1),
-        ))?;
-        let (tx, ty) = top.backend_coord(&(x, top_y));
-        root.draw(&PathElement::new(
-            vec![(tx, ty), (tx, ty + 5)],
-            TEXT.stroke_width(1),
-        ))?;
-        root.draw(&Text::new(
-            id.clone(),
-            (px, py + 8),
-            ("sans-serif", 12)
-                .into_font()
-                .transform(FontTransform::Rotate90)
-                .color(&TEXT)
-                .pos(Pos::new(HPos::Left, VPos::Center)),
-        ))?;
-    }
-    Ok(())
-}
-
 /// An axis tick label with as many decimals as the axis span needs (about 3 significant steps).
 pub fn fmt_tick(y: f64, span: f64) -> String {
     let decimals = if span > 0.0 && span.is_finite() {
@@ -577,141 +1006,6 @@ pub fn fmt_tick(y: f64, span: f64) -> String {
     } else {
         text
     }
-}
-
-/// Data range with 8 % padding on each side (never empty).
-fn padded_range(values: impl Iterator<Item = f64>) -> (f64, f64) {
-    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
-    for v in values.filter(|v| v.is_finite()) {
-        lo = lo.min(v);
-        hi = hi.max(v);
-    }
-    if !lo.is_finite() {
-        return (0.0, 1.0);
-    }
-    let span = if hi > lo {
-        hi - lo
-    } else {
-        lo.abs().max(1.0) * 0.1
-    };
-    (lo - 0.08 * span, hi + 0.12 * span)
-}
-
-type Chart<'b, DB> = ChartContext<
-    'b,
-    DB,
-    Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
->;
-
-/// Rings the signalled points and writes their rule numbers above them; labels that would
-/// overlap the previous one with the same text are left out, others are staggered.
-fn draw_signals<DB: DrawingBackend>(
-    root: &DrawingArea<DB, Shift>,
-    chart: &Chart<'_, DB>,
-    input: &ChartInput,
-) -> DrawResult
-where
-    DB::ErrorType: 'static,
-{
-    let mut by_point: Vec<(usize, String)> = Vec::new();
-    for s in input.signals {
-        match by_point.last_mut() {
-            Some((i, text)) if *i == s.index => {
-                let r = s.rule.to_string();
-                if !text.split(',').any(|t| t == r) {
-                    text.push(',');
-                    text.push_str(&r);
-                }
-            }
-            _ => by_point.push((s.index, s.rule.to_string())),
-        }
-    }
-    if by_point.len() > MAX_MARKED_SIGNALS {
-        // Too many to ring and number legibly: small dots and one note instead.
-        for (i, _) in &by_point {
-            let p = chart.backend_coord(&(*i as f64, input.values[*i]));
-            root.draw(&Circle::new(p, 2, SIGNAL.filled()))?;
-        }
-        let (x0, y0) = chart.backend_coord(&(chart.x_range().start, chart.y_range().end));
-        root.draw(&Text::new(
-            format!(
-                "{} lots signalled (amber dots): too many to number here, see the list of signals",
-                by_point.len()
-            ),
-            (x0 + 8, y0 + 4),
-            ("sans-serif", 12).into_font().color(&TEXT),
-        ))?;
-        return Ok(());
-    }
-    // Boxes (x0, y0, x1, y1 in pixels) of the labels placed so far; only recent ones can collide.
-    let mut placed: Vec<(i32, i32, i32, i32)> = Vec::new();
-    for (i, text) in &by_point {
-        let (px, py) = chart.backend_coord(&(*i as f64, input.values[*i]));
-        root.draw(&Circle::new((px, py), 6, SIGNAL.stroke_width(2)))?;
-        let half = (7 * text.len() as i32 + 4) / 2;
-        // Try above the point at growing heights, then below; a label that fits nowhere is left
-        // out (the ring still marks the point).
-        let candidates = [-9, -23, -37, 23, 37];
-        let free = |bottom: i32| {
-            let rect = (px - half, bottom - 13, px + half, bottom);
-            let clear = placed
-                .iter()
-                .rev()
-                .take(12)
-                .all(|r| rect.2 < r.0 || rect.0 > r.2 || rect.3 < r.1 || rect.1 > r.3);
-            clear.then_some(rect)
-        };
-        let Some(rect) = candidates.iter().find_map(|&dy| free(py + dy)) else {
-            continue;
-        };
-        placed.push(rect);
-        root.draw(&Text::new(
-            text.clone(),
-            (px, rect.3),
-            ("sans-serif", 13)
-                .into_font()
-                .color(&SIGNAL)
-                .pos(Pos::new(HPos::Center, VPos::Bottom)),
-        ))?;
-    }
-    Ok(())
-}
-
-/// Labels the horizontal lines at the right edge, pushed apart so they never overlap.
-fn draw_right_labels<DB: DrawingBackend>(
-    root: &DrawingArea<DB, Shift>,
-    chart: &Chart<'_, DB>,
-    x_end: f64,
-    labels: &[(f64, String, RGBColor)],
-) -> DrawResult
-where
-    DB::ErrorType: 'static,
-{
-    const GAP: i32 = 14;
-    let mut placed: Vec<(i32, i32, &str, RGBColor)> = labels
-        .iter()
-        .map(|(y, text, colour)| {
-            let (px, py) = chart.backend_coord(&(x_end, *y));
-            (px + 6, py, text.as_str(), *colour)
-        })
-        .collect();
-    placed.sort_by_key(|p| p.1);
-    for k in 1..placed.len() {
-        if placed[k].1 - placed[k - 1].1 < GAP {
-            placed[k].1 = placed[k - 1].1 + GAP;
-        }
-    }
-    for (x, y, text, colour) in placed {
-        root.draw(&Text::new(
-            text.to_string(),
-            (x, y),
-            ("sans-serif", 12)
-                .into_font()
-                .color(&colour)
-                .pos(Pos::new(HPos::Left, VPos::Center)),
-        ))?;
-    }
-    Ok(())
 }
 
 #[cfg(test)]
@@ -751,6 +1045,7 @@ mod tests {
             spec_max,
             signals: &signals,
             baseline_len: Some(15),
+            lower_bound: None,
         };
         let svg = String::from_utf8(imr_svg(&input).unwrap()).unwrap();
         if let Ok(dir) = std::env::var("RESINLOT_CHART_DIR") {
@@ -833,6 +1128,7 @@ mod tests {
             spec_max: None,
             signals: &[],
             baseline_len: None,
+            lower_bound: None,
         };
         let svg = String::from_utf8(imr_svg(&input).unwrap()).unwrap();
         if let Ok(dir) = std::env::var("RESINLOT_CHART_DIR") {
@@ -871,6 +1167,7 @@ mod tests {
             spec_max: None,
             signals: &signals,
             baseline_len: Some(2),
+            lower_bound: None,
         };
         let svg = String::from_utf8(imr_svg(&input).unwrap()).unwrap();
         roxmltree::Document::parse(&svg).unwrap();
@@ -894,6 +1191,7 @@ mod tests {
             spec_max: None,
             signals: &[],
             baseline_len: None,
+            lower_bound: None,
         };
         let e = imr_svg(&input).unwrap_err().to_string();
         assert!(e.contains("1 lot ids for 2 values"), "{e}");
@@ -926,5 +1224,198 @@ mod tests {
         assert_eq!(fmt_value(2034.56), "2035");
         assert_eq!(fmt_value(0.8531), "0.8531");
         assert_eq!(fmt_value(0.0), "0");
+    }
+
+    /// Every text at least 8 pt where the PDF report places the chart, no two text boxes
+    /// overlapping, and every vertical (axis) title carrying its unit in brackets.
+    fn assert_tidy(svg: &str, unit: &str) {
+        use crate::support::visual::check;
+        let texts = check::texts(svg);
+        let pt = visual::placed_pt_per_px(f64::from(WIDTH), PLACED_WIDTH_MM);
+        for t in &texts {
+            assert!(
+                t.size * pt >= visual::MIN_TEXT_PT,
+                "{t:?} is {} pt",
+                t.size * pt
+            );
+        }
+        let clash = check::overlapping(&texts);
+        assert!(clash.is_empty(), "{clash:?}");
+        let titles: Vec<&str> = texts
+            .iter()
+            .filter(|t| t.text.contains(&format!("({unit})")))
+            .filter(|t| t.bounds.y1 - t.bounds.y0 > 2.0 * (t.bounds.x1 - t.bounds.x0))
+            .map(|t| t.text.as_str())
+            .collect();
+        assert_eq!(titles.len(), 2, "y-axis titles with ({unit}): {titles:?}");
+        assert!(
+            !svg.contains(visual::OVERBAR),
+            "a combining macron left in the SVG"
+        );
+    }
+
+    #[test]
+    fn issue_19_tidy_text_units_and_standard_chart_names() {
+        let (svg, _, _) = render(Some(1900.0), Some(2100.0));
+        assert_tidy(&svg, "g/mol");
+        assert!(svg.contains(">Individuals chart<") && svg.contains(">Moving-range chart<"));
+        // MR̄ is drawn with a bar stroke, not a combining mark.
+        assert!(svg.contains(">MR 1") || svg.contains(">MR "), "{svg}");
+        assert!(crate::support::visual::check::count_class(&svg, "overbar") >= 1);
+    }
+
+    #[test]
+    fn issue_19_marked_lots_are_numbered_newest_first_and_out_of_spec_has_its_own_mark() {
+        let (ids, values) = fixture();
+        let limits = imr_limits(&values[..15]).unwrap();
+        let signals = nelson_signals(&values, &limits, RuleSet::ALL);
+        let marked = marked_lots(&values, &signals, Some(1900.0), Some(2100.0));
+        // Numbers run 1, 2, … from the newest marked lot back in time.
+        assert!(marked.windows(2).all(|w| w[0].index > w[1].index));
+        assert!(marked.iter().enumerate().all(|(k, m)| m.number == k + 1));
+        // Lot 25 (2110 g/mol) is above the USL 2100: marked outside, whatever its rules.
+        let out: Vec<_> = marked.iter().filter(|m| m.outside.is_some()).collect();
+        assert_eq!(out.len(), 1);
+        assert_eq!((out[0].index, out[0].outside), (24, Some(Outside::Above)));
+        let (svg, _, _) = render(Some(1900.0), Some(2100.0));
+        use crate::support::visual::check::count_class;
+        assert_eq!(count_class(&svg, "outside-spec"), 1);
+        assert_eq!(
+            count_class(&svg, "signal"),
+            marked.iter().filter(|m| !m.rules.is_empty()).count()
+        );
+        // Every tag's number is drawn once (the fixture has room for all).
+        assert_eq!(count_class(&svg, "tag"), marked.len());
+        let _ = ids;
+    }
+
+    /// INVENTED: 62 lots of a fictional polyol whose hydroxyl value drifts down over the last
+    /// 30, as in the demo, so that many lots signal and the tags must find room.
+    fn crowded() -> (Vec<String>, Vec<f64>) {
+        let ids = (1..=62)
+            .map(|i| format!("F26{:02}-D{:02}", 1 + i / 6, i % 6 + 1))
+            .collect();
+        let values = (0..62)
+            .map(|i| {
+                let noise = (((i * 37) % 11) as f64 - 5.0) * 0.12;
+                let drift = if i > 31 {
+                    -0.045 * (i - 31) as f64
+                } else {
+                    0.0
+                };
+                56.0 + noise + drift
+            })
+            .collect();
+        (ids, values)
+    }
+
+    #[test]
+    fn issue_19_a_crowded_chart_stays_tidy() {
+        let (ids, values) = crowded();
+        let limits = imr_limits(&values[..30]).unwrap();
+        let signals = nelson_signals(&values, &limits, RuleSet::ALL);
+        assert!(signals.len() > 15, "{}", signals.len());
+        let input = ChartInput {
+            product: "PX-200",
+            property: "Hydroxyl value",
+            unit: "mg KOH/g",
+            date_from: "2026-01-01",
+            date_to: "2026-11-28",
+            lot_ids: &ids,
+            values: &values,
+            limits: &limits,
+            spec_min: Some(53.0),
+            spec_max: Some(59.0),
+            signals: &signals,
+            baseline_len: Some(30),
+            lower_bound: Some(0.0),
+        };
+        let svg = String::from_utf8(imr_svg(&input).unwrap()).unwrap();
+        if let Ok(dir) = std::env::var("RESINLOT_CHART_DIR") {
+            std::fs::write(format!("{dir}/crowded.svg"), &svg).unwrap();
+            let png = svg_to_png(svg.as_bytes(), 1.0).unwrap();
+            std::fs::write(format!("{dir}/crowded.png"), png).unwrap();
+        }
+        assert_tidy(&svg, "mg KOH/g");
+        // The newest signalled lot carries tag 1.
+        let marked = marked_lots(&values, &signals, Some(53.0), Some(59.0));
+        assert_eq!(
+            marked[0].index,
+            *signals.iter().map(|s| &s.index).max().unwrap()
+        );
+    }
+
+    #[test]
+    fn issue_19_lcl_is_held_at_zero_for_water_with_a_note() {
+        // INVENTED water contents (% w/w): small values with one wet lot, so x̄ − 3σ < 0.
+        let values = [
+            0.020, 0.031, 0.018, 0.045, 0.012, 0.029, 0.060, 0.015, 0.024, 0.038, 0.011, 0.027,
+        ];
+        let ids: Vec<String> = (1..=12).map(|i| format!("W-{i:02}")).collect();
+        let limits = imr_limits(&values).unwrap();
+        assert!(limits.lcl < 0.0, "{}", limits.lcl);
+        let input = ChartInput {
+            product: "PX-300",
+            property: "Water",
+            unit: "%",
+            date_from: "2026-01-01",
+            date_to: "2026-02-01",
+            lot_ids: &ids,
+            values: &values,
+            limits: &limits,
+            spec_min: None,
+            spec_max: Some(0.05),
+            signals: &[],
+            baseline_len: None,
+            lower_bound: natural_lower_bound("water", "%"),
+        };
+        let svg = String::from_utf8(imr_svg(&input).unwrap()).unwrap();
+        assert_tidy(&svg, "%");
+        assert!(svg.contains(">LCL 0 (held)<"), "{svg}");
+        assert!(
+            svg.contains("LCL held at 0, the lowest value water can take"),
+            "{svg}"
+        );
+        assert!(svg.contains(&fmt_value(limits.lcl)));
+        // The lot above the USL 0.05 is marked outside the spec window.
+        assert_eq!(
+            crate::support::visual::check::count_class(&svg, "outside-spec"),
+            1
+        );
+    }
+
+    #[test]
+    fn natural_lower_bounds() {
+        assert_eq!(natural_lower_bound("water", "%"), Some(0.0));
+        assert_eq!(natural_lower_bound("colour", "APHA"), Some(0.0));
+        assert_eq!(natural_lower_bound("acid_value", "mg KOH/g"), Some(0.0));
+        assert_eq!(natural_lower_bound("solids", "% w/w"), Some(0.0));
+        // A glass transition temperature can be below zero: no bound.
+        assert_eq!(natural_lower_bound("tg", "°C"), None);
+    }
+
+    #[test]
+    fn issue_19_long_series_and_many_signals_stay_tidy() {
+        let ids: Vec<String> = (0..500).map(|i| format!("L{i:04}")).collect();
+        let values: Vec<f64> = (0..500).map(|i| ((i * 37) % 23) as f64).collect();
+        let limits = imr_limits(&values).unwrap();
+        let signals = nelson_signals(&values, &limits, RuleSet::ALL);
+        let input = ChartInput {
+            product: "PX-100",
+            property: "Acid value",
+            unit: "mg KOH/g",
+            date_from: "2025-01-01",
+            date_to: "2026-12-01",
+            lot_ids: &ids,
+            values: &values,
+            limits: &limits,
+            spec_min: None,
+            spec_max: Some(20.0),
+            signals: &signals,
+            baseline_len: None,
+            lower_bound: Some(0.0),
+        };
+        let svg = String::from_utf8(imr_svg(&input).unwrap()).unwrap();
+        assert_tidy(&svg, "mg KOH/g");
     }
 }

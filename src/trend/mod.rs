@@ -6,3 +6,4 @@ pub mod chart;
 pub mod product;
 pub mod report;
 pub mod text;
+pub mod viscosity_chart;

@@ -112,6 +112,9 @@ pub struct PropertyTrend {
     /// Values in order (for charts).
     #[serde(skip)]
     pub values: Vec<f64>,
+    /// Manufacture dates in order, one per value (for the report's signal list).
+    #[serde(skip)]
+    pub dates: Vec<crate::record::query::Day>,
     /// Raw signals (for charts).
     #[serde(skip)]
     pub raw_signals: Vec<stats::Signal>,
@@ -214,6 +217,7 @@ pub fn property_trend(
         warnings,
         lots: ids,
         values,
+        dates,
         raw_signals,
     })
 }
@@ -348,6 +352,20 @@ pub struct ViscosityCheck {
     pub fit: stats::LogLogFit,
     /// Lots off the line by more than 3 robust standard deviations.
     pub off_line: Vec<OffLine>,
+    /// Every lot of the fit with its Mn and viscosity, in the fit's order (for the plot).
+    #[serde(skip)]
+    pub points: Vec<ViscosityPoint>,
+}
+
+/// One lot of the viscosity–Mn fit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ViscosityPoint {
+    /// Lot id.
+    pub lot: String,
+    /// Mn, g/mol.
+    pub mn: f64,
+    /// Viscosity, in the spec's unit.
+    pub viscosity: f64,
 }
 
 /// The viscosity–Mn check when both columns were loaded ([`viscosity_check`]).
@@ -382,7 +400,19 @@ pub fn viscosity_check(lots: &[LotRow], mn: usize, visc: usize) -> Option<Viscos
             },
         })
         .collect();
-    Some(ViscosityCheck { fit, off_line })
+    let points = pairs
+        .iter()
+        .map(|(l, m, v)| ViscosityPoint {
+            lot: l.lot.to_string(),
+            mn: *m,
+            viscosity: *v,
+        })
+        .collect();
+    Some(ViscosityCheck {
+        fit,
+        off_line,
+        points,
+    })
 }
 
 #[cfg(test)]

@@ -20,7 +20,8 @@ use serde::Serialize;
 
 use crate::error::{Error, Result};
 use crate::stats::Side;
-use crate::trend::chart::{self, fmt_value, ChartInput};
+use crate::support::visual;
+use crate::trend::chart::{self, fmt_value, ChartInput, MarkedLot};
 use crate::trend::product::{PropertyTrend, ViscosityCheck};
 
 /// Everything the report shows; the caller has computed the trends.
@@ -52,7 +53,7 @@ const MARGIN: f32 = 12.0;
 /// Chart box: left edge, top, width (mm); the height follows the chart's aspect ratio.
 const CHART_X: f32 = MARGIN;
 const CHART_TOP: f32 = 29.0;
-const CHART_W: f32 = 178.0;
+const CHART_W: f32 = chart::PLACED_WIDTH_MM as f32;
 /// Right column (statistics, warnings): left and right edges, mm.
 const COL_X: f32 = 198.0;
 const COL_R: f32 = PAGE_W - MARGIN;
@@ -61,16 +62,18 @@ const BODY_BOTTOM: f32 = 193.0;
 const FOOTER_RULE: f32 = 198.0;
 const FOOTER_TEXT: f32 = 203.0;
 
-/// Raster scale of the chart (1100 × 720 px SVG): 1.5 gives 1650 px across the 178 mm chart
-/// box, about 235 dpi, sharp on screen at 100 % and in print, at about half the rendering and
-/// compression time of the 2× PNG that `--png` writes.
-const CHART_SCALE: f32 = 1.5;
-/// Colours: deep teal accents, near-black text, muted grey for secondary text.
-const ACCENT: (f32, f32, f32) = (0.05, 0.36, 0.40);
-const INK: (f32, f32, f32) = (0.11, 0.12, 0.14);
-const MUTED: (f32, f32, f32) = (0.38, 0.41, 0.44);
-const ROW_SHADE: (f32, f32, f32) = (0.93, 0.95, 0.95);
-const WARN: (f32, f32, f32) = (0.62, 0.30, 0.00);
+/// Raster scale of the chart (900 × 600 px SVG): 2 gives 1800 px across the 178 mm chart box,
+/// about 257 dpi, sharp on screen at 100 % and in print.
+const CHART_SCALE: f32 = 2.0;
+/// Colours of the visual language ([`visual`]): teal accents, near-black text, muted grey for
+/// secondary text, amber warnings and signals, crimson for lots outside the spec window.
+const ACCENT: (f32, f32, f32) = visual::ACCENT.unit();
+const INK: (f32, f32, f32) = visual::INK.unit();
+const MUTED: (f32, f32, f32) = visual::MUTED.unit();
+const ROW_SHADE: (f32, f32, f32) = visual::ROW_SHADE.unit();
+const WARN: (f32, f32, f32) = visual::SIGNAL.unit();
+const OUT: (f32, f32, f32) = visual::OUT_OF_SPEC.unit();
+const WHITE: (f32, f32, f32) = (1.0, 1.0, 1.0);
 
 /// Renders the trend report as PDF bytes.
 ///
@@ -95,23 +98,73 @@ pub fn render_report(input: &ReportInput) -> Result<Vec<u8>> {
         .map(chart_image)
         .collect::<Result<_>>()?;
 
-    let count = input.trends.len() + usize::from(input.viscosity.is_some());
+    // The signal list of each property, split into the part below its chart and the parts on
+    // continuation pages; page numbers follow from the parts.
+    let lists: Vec<(Vec<MarkedLot>, Vec<Vec<ListLine>>)> = input
+        .trends
+        .iter()
+        .zip(&images)
+        .map(|(t, image)| {
+            let marked = chart::marked_lots(&t.values, &t.raw_signals, t.spec_min, t.spec_max);
+            let lines = signal_lines(&regular, t, &marked, CHART_W);
+            let chart_h = CHART_W * image.height as f32 / image.width as f32;
+            let parts = paginate(lines, CHART_TOP + chart_h + 6.0 + LIST_FIRST_OFFSET);
+            (marked, parts)
+        })
+        .collect();
+    let count =
+        lists.iter().map(|(_, p)| p.len()).sum::<usize>() + usize::from(input.viscosity.is_some());
     let mut pages = Vec::with_capacity(count);
-    for (i, (trend, image)) in input.trends.iter().zip(images).enumerate() {
+    for (i, ((trend, image), (marked, parts))) in
+        input.trends.iter().zip(images).zip(&lists).enumerate()
+    {
         let id = XObjectId(format!("Chart{}", i + 1));
         let (px_w, px_h) = (image.width, image.height);
         doc.resources
             .xobjects
             .map
             .insert(id.clone(), printpdf::XObject::Image(image));
+        let own_page = pages.len() + 1;
+        // After part k: the lots still to come and the page they start on.
+        let rest = |k: usize| {
+            (k + 1 < parts.len()).then(|| (entries_in(&parts[k + 1..].concat()), own_page + k + 1))
+        };
         let mut page = Canvas::new(&regular, &bold);
-        property_page(&mut page, input, trend, &id, px_w, px_h);
-        page.footer(input, i + 1, count);
+        property_page(
+            &mut page,
+            input,
+            trend,
+            &id,
+            (px_w, px_h),
+            marked,
+            &parts[0],
+            rest(0),
+        );
+        page.footer(input, own_page, count);
         pages.push(page.finish());
+        for (k, part) in parts.iter().enumerate().skip(1) {
+            let mut page = Canvas::new(&regular, &bold);
+            continuation_page(&mut page, input, trend, part, own_page, rest(k));
+            page.footer(input, pages.len() + 1, count);
+            pages.push(page.finish());
+        }
     }
     if let Some(v) = input.viscosity {
+        let unit = input
+            .trends
+            .iter()
+            .find(|t| t.property == crate::spec::keys::VISCOSITY)
+            .map_or("", |t| t.unit.as_str());
+        let svg = crate::trend::viscosity_chart::viscosity_svg(input.product_code, unit, v)?;
+        let image = svg_image(&svg)?;
+        let id = XObjectId("ViscosityChart".to_string());
+        let size = (image.width, image.height);
+        doc.resources
+            .xobjects
+            .map
+            .insert(id.clone(), printpdf::XObject::Image(image));
         let mut page = Canvas::new(&regular, &bold);
-        viscosity_page(&mut page, input, v);
+        viscosity_page(&mut page, input, v, &id, size);
         page.footer(input, count, count);
         pages.push(page.finish());
     }
@@ -145,31 +198,15 @@ fn fonts() -> &'static (ParsedFont, ParsedFont) {
     })
 }
 
-/// The chart of one trend as an opaque RGB image (composited over white).
+/// The chart of one trend as an opaque RGB image.
 fn chart_image(trend: &PropertyTrend) -> Result<RawImage> {
-    let input = ChartInput {
-        product: &trend.product,
-        property: &trend.label,
-        unit: &trend.unit,
-        date_from: &trend.date_from,
-        date_to: &trend.date_to,
-        lot_ids: &trend.lots,
-        values: &trend.values,
-        limits: &trend.limits,
-        spec_min: trend.spec_min,
-        spec_max: trend.spec_max,
-        signals: &trend.raw_signals,
-        baseline_len: (trend.baseline_n < trend.n).then_some(trend.baseline_n),
-    };
-    let svg = chart::imr_svg(&input)?;
-    let png = chart::svg_to_png(&svg, CHART_SCALE)?;
-    let pixmap = resvg::tiny_skia::Pixmap::decode_png(&png).map_err(|e| {
-        Error::invalid(
-            format!("trend report, {} chart", trend.property),
-            format!("the chart image could not be read back: {e}"),
-            "Report this as a bug.",
-        )
-    })?;
+    let svg = chart::imr_svg(&ChartInput::of_trend(trend))?;
+    svg_image(&svg)
+}
+
+/// An SVG chart rasterised at [`CHART_SCALE`] over white ([`chart::rasterize`]) as an RGB image.
+fn svg_image(svg: &[u8]) -> Result<RawImage> {
+    let pixmap = chart::rasterize(svg, CHART_SCALE)?;
     // tiny-skia pixels are premultiplied RGBA: over white, c' = c + (255 − a).
     let mut rgb = Vec::with_capacity(pixmap.data().len() / 4 * 3);
     for px in pixmap.data().chunks_exact(4) {
@@ -220,7 +257,8 @@ impl<'a> Face<'a> {
 
     /// Advance width of `text` at `size` points, in mm ([`advance_width`]).
     fn width_mm(&self, text: &str, size: f32) -> f32 {
-        advance_width(self.face, text, size) / PT_PER_MM
+        let plain: String = text.chars().filter(|&c| c != visual::OVERBAR).collect();
+        advance_width(self.face, &plain, size) / PT_PER_MM
     }
 
     /// `text` cut to at most `width` mm, ending in "…" when cut.
@@ -307,8 +345,11 @@ impl<'a> Canvas<'a> {
         PdfPage::new(Mm(PAGE_W), Mm(PAGE_H), self.ops)
     }
 
-    /// Text with its baseline at `y` mm from the top, starting at `x` mm.
+    /// Text with its baseline at `y` mm from the top, starting at `x` mm. A combining macron
+    /// becomes a drawn bar over the letters before it ([`visual::overbars`]), because the PDF
+    /// text path does not place combining marks: "MR̄" and "x̄" keep their bars.
     fn text(&mut self, weight: Weight, size: f32, x: f32, y: f32, rgb: (f32, f32, f32), s: &str) {
+        let (plain, bars) = visual::overbars(s);
         let font = self.face(weight);
         self.ops.extend([
             Op::SetFillColor { col: colour(rgb) },
@@ -324,10 +365,24 @@ impl<'a> Canvas<'a> {
                 },
             },
             Op::ShowText {
-                items: vec![TextItem::Text(s.to_string())],
+                items: vec![TextItem::Text(plain.clone())],
             },
             Op::EndTextSection,
         ]);
+        let chars: Vec<char> = plain.chars().collect();
+        for (a, b) in bars {
+            let left = x + font.width_mm(&chars[..a].iter().collect::<String>(), size);
+            let right = x + font.width_mm(&chars[..b].iter().collect::<String>(), size);
+            // DejaVu Sans cap height is 0.73 em: the bar sits just above it.
+            let top = y - 0.80 * size / PT_PER_MM;
+            self.fill(
+                left + 0.06 * size / PT_PER_MM,
+                top,
+                right - left - 0.1 * size / PT_PER_MM,
+                0.055 * size / PT_PER_MM,
+                rgb,
+            );
+        }
     }
 
     /// Text ending at `right` mm.
@@ -502,6 +557,15 @@ fn statistics_rows(t: &PropertyTrend) -> Vec<(String, String)> {
             t.spec_revision.clone().unwrap_or_else(|| "–".to_string()),
         ),
     ];
+    if let Some(b) = chart::natural_lower_bound(&t.property, &t.unit).filter(|b| l.lcl < *b) {
+        rows.insert(
+            5,
+            (
+                "LCL drawn at (lowest possible value)".to_string(),
+                with_unit(b),
+            ),
+        );
+    }
     match &t.capability {
         None => {
             rows.push(("Cp, Cpk".to_string(), "no spec limit".to_string()));
@@ -549,20 +613,20 @@ fn statistics_rows(t: &PropertyTrend) -> Vec<(String, String)> {
     rows
 }
 
-/// One property's page.
+/// One property's page: header, chart, statistics and warnings in the right column, and the
+/// first part of the signal list under the chart (`first`, lines of [`signal_lines`]).
+#[allow(clippy::too_many_arguments)]
 fn property_page(
     page: &mut Canvas,
     input: &ReportInput,
     t: &PropertyTrend,
     chart: &XObjectId,
-    px_w: usize,
-    px_h: usize,
+    (px_w, px_h): (usize, usize),
+    marked: &[MarkedLot],
+    first: &[ListLine],
+    rest: Option<(usize, usize)>,
 ) {
-    let prop = if t.unit.is_empty() {
-        t.label.clone()
-    } else {
-        format!("{} ({})", t.label, t.unit)
-    };
+    let prop = property_title(t);
     // The property comes first so a long product name is what gets shortened.
     let title = format!("{prop}  ·  {} {}", input.product_code, input.product_name);
     let context = format!(
@@ -598,7 +662,78 @@ fn property_page(
 
     // Signals below the chart.
     let top = CHART_TOP + chart_h + 6.0;
-    signals_table(page, t, top, CHART_X, CHART_X + CHART_W);
+    page.heading(CHART_X, top, "Signals, newest first");
+    let summary = signal_summary(t, marked);
+    for (k, line) in page
+        .regular
+        .wrap(&summary, 8.0, CHART_W)
+        .iter()
+        .take(2)
+        .enumerate()
+    {
+        page.text(
+            Weight::Regular,
+            8.0,
+            CHART_X,
+            top + 5.0 + 3.7 * k as f32,
+            MUTED,
+            line,
+        );
+    }
+    let y = list_lines(page, CHART_X, top + LIST_FIRST_OFFSET, first);
+    if let Some((more, next_page)) = rest {
+        and_more(
+            page,
+            (8.0, CHART_X, y),
+            more,
+            &format!(" (the chart marks every signalled lot): continued on page {next_page}"),
+        );
+    }
+}
+
+/// "Label (unit)", or the label alone without a unit.
+fn property_title(t: &PropertyTrend) -> String {
+    if t.unit.is_empty() {
+        t.label.clone()
+    } else {
+        format!("{} ({})", t.label, t.unit)
+    }
+}
+
+/// A page that carries on the signal list of a property whose first page ran out of room.
+fn continuation_page(
+    page: &mut Canvas,
+    input: &ReportInput,
+    t: &PropertyTrend,
+    lines: &[ListLine],
+    from_page: usize,
+    rest: Option<(usize, usize)>,
+) {
+    let title = format!(
+        "{}  ·  {} {}  ·  signals continued",
+        property_title(t),
+        input.product_code,
+        input.product_name
+    );
+    let context = format!(
+        "Signal list of the chart on page {from_page}, continued  ·  {}",
+        input.site
+    );
+    page.header(input, &title, &context);
+    page.heading(
+        CHART_X,
+        CHART_TOP + 3.0,
+        "Signals, newest first (continued)",
+    );
+    let y = list_lines(page, CHART_X, CHART_TOP + 3.0 + LIST_CONT_OFFSET, lines);
+    if let Some((more, next_page)) = rest {
+        and_more(
+            page,
+            (8.0, CHART_X, y),
+            more,
+            &format!(" (the chart marks every signalled lot): continued on page {next_page}"),
+        );
+    }
 }
 
 /// How many of `count` table rows fit between the first row's baseline `y` (mm) and the foot
@@ -627,76 +762,248 @@ fn and_more(page: &mut Canvas, (size, x, y): (f32, f32, f32), more: usize, tail:
     }
 }
 
-/// The list of run-rule signals, as many as fit above the footer.
-fn signals_table(page: &mut Canvas, t: &PropertyTrend, top: f32, left: f32, right: f32) {
-    const SIZE: f32 = 8.0;
-    const STEP: f32 = 4.2;
-    page.heading(
-        left,
-        top,
-        &format!("Run-rule signals ({})", t.signals.len()),
-    );
-    let mut y = top + 7.0;
-    if t.signals.is_empty() {
-        page.text(
-            Weight::Regular,
-            SIZE,
-            left,
-            y,
-            MUTED,
-            "No Nelson rule signal among the selected lots.",
-        );
-        return;
-    }
-    let lot_w = t
-        .signals
-        .iter()
-        .map(|s| page.regular.width_mm(&s.lot, SIZE))
-        .fold(page.bold.width_mm("Lot", SIZE), f32::max)
-        .min(45.0);
-    let x_lot = left + 11.0;
-    let x_date = x_lot + lot_w + 4.0;
-    let x_desc = x_date + page.regular.width_mm("0000-00-00", SIZE) + 4.0;
-    for (x, h) in [
-        (left, "Rule"),
-        (x_lot, "Lot"),
-        (x_date, "Made"),
-        (x_desc, "Pattern"),
-    ] {
-        page.text(Weight::Bold, SIZE, x, y, MUTED, h);
-    }
-    page.fill(left, y + 1.2, right - left, 0.2, MUTED);
-    y += STEP + 0.5;
-    let shown = rows_shown(y, STEP, t.signals.len());
-    for (i, s) in t.signals.iter().take(shown).enumerate() {
-        if i % 2 == 1 {
-            page.fill(left, y - 3.0, right - left, STEP, ROW_SHADE);
-        }
-        page.text(
-            Weight::Bold,
-            SIZE,
-            left + 2.0,
-            y,
-            ACCENT,
-            &s.rule.to_string(),
-        );
-        let lot = page.regular.fit(&s.lot, SIZE, lot_w);
-        page.text(Weight::Regular, SIZE, x_lot, y, INK, &lot);
-        page.text(Weight::Regular, SIZE, x_date, y, INK, &s.manufactured);
-        let desc = page.regular.fit(s.description, SIZE, right - x_desc);
-        page.text(Weight::Regular, SIZE, x_desc, y, INK, &desc);
-        y += STEP;
-    }
-    and_more(
-        page,
-        (SIZE, left, y),
-        t.signals.len() - shown,
-        " (the chart marks every signalled lot)",
-    );
+/// Line step of the signal list, mm.
+const LIST_STEP: f32 = 3.9;
+/// From the list heading to the first line's baseline: on a property page (below the
+/// summary line) and on a continuation page, mm.
+const LIST_FIRST_OFFSET: f32 = 14.2;
+const LIST_CONT_OFFSET: f32 = 7.5;
+
+/// One line of the signal list.
+#[derive(Debug, Clone, PartialEq)]
+enum ListLine {
+    /// A group's head: what was found (coloured) and what it means.
+    Head {
+        /// "outside the spec window" or "rule 2".
+        check: String,
+        /// Colour of the check.
+        colour: (f32, f32, f32),
+        /// The plain-words description (or the rest of it, on a wrapped line).
+        text: String,
+    },
+    /// Lots of the group, each with its tag number, id, manufacture date and (outside the
+    /// spec window) its value, in cells of the given width (mm) so that they line up.
+    Lots(Vec<ListItem>, f32),
 }
 
-/// The viscosity–Mn page: the fit and the lots off the line.
-fn viscosity_page(page: &mut Canvas, input: &ReportInput, v: &ViscosityCheck) {
+/// One lot in the signal list.
+#[derive(Debug, Clone, PartialEq)]
+struct ListItem {
+    number: usize,
+    colour: (f32, f32, f32),
+    lot: String,
+    made: String,
+    value: Option<String>,
+}
+
+/// The summary under the list heading: how many signals on how many lots, the newest and the
+/// first, and the lots outside the spec window.
+fn signal_summary(t: &PropertyTrend, marked: &[MarkedLot]) -> String {
+    let outside = marked.iter().filter(|m| m.outside.is_some()).count();
+    let outside_text = match outside {
+        0 => "no lot outside the spec window".to_string(),
+        1 => "1 lot outside the spec window".to_string(),
+        k => format!("{k} lots outside the spec window"),
+    };
+    match (t.signals.first(), t.signals.last()) {
+        (Some(first), Some(newest)) => {
+            let lots = marked.iter().filter(|m| !m.rules.is_empty()).count();
+            format!(
+                "{} run-rule signals on {lots} lots: newest at {} ({}), first at {} ({}); {outside_text}. Tag numbers as on the chart.",
+                t.signals.len(),
+                newest.lot,
+                newest.manufactured,
+                first.lot,
+                first.manufactured
+            )
+        }
+        _ => format!("No Nelson rule signal among the selected lots; {outside_text}."),
+    }
+}
+
+/// The signal list of one property as lines `width` mm wide: first the lots outside the spec
+/// window, then one group per run rule (and direction), groups ordered by their newest lot and
+/// lots newest first within each group, every lot with the tag number it has on the chart.
+fn signal_lines(face: &Face, t: &PropertyTrend, marked: &[MarkedLot], width: f32) -> Vec<ListLine> {
+    const SIZE: f32 = 8.0;
+    let made = |i: usize| t.dates.get(i).map(|d| d.to_string()).unwrap_or_default();
+    // Each group: what was found, its colour, what it means, and its lots.
+    type Group = (String, (f32, f32, f32), String, Vec<ListItem>);
+    let mut groups: Vec<Group> = Vec::new();
+    let outside: Vec<ListItem> = marked
+        .iter()
+        .filter(|m| m.outside.is_some())
+        .map(|m| ListItem {
+            number: m.number,
+            colour: OUT,
+            lot: t.lots[m.index].clone(),
+            made: made(m.index),
+            value: Some(fmt_value(t.values[m.index])),
+        })
+        .collect();
+    if !outside.is_empty() {
+        groups.push((
+            "outside the spec window".to_string(),
+            OUT,
+            format!(
+                "the lot's value lies outside the spec window {} (value after the date)",
+                spec_text(t.spec_min, t.spec_max, &t.unit)
+            ),
+            outside,
+        ));
+    }
+    let mut rule_groups: Vec<(u8, &'static str, Vec<ListItem>)> = Vec::new();
+    for m in marked.iter().filter(|m| !m.rules.is_empty()) {
+        for s in t.signals.iter().filter(|s| s.index == m.index) {
+            let item = ListItem {
+                number: m.number,
+                colour: if m.outside.is_some() { OUT } else { WARN },
+                lot: s.lot.clone(),
+                made: s.manufactured.clone(),
+                value: None,
+            };
+            match rule_groups
+                .iter_mut()
+                .find(|g| g.0 == s.rule && g.1 == s.description)
+            {
+                Some(g) => {
+                    if !g.2.iter().any(|i| i.number == m.number) {
+                        g.2.push(item);
+                    }
+                }
+                None => rule_groups.push((s.rule, s.description, vec![item])),
+            }
+        }
+    }
+    for (rule, description, items) in rule_groups {
+        let n = items.len();
+        let lots = if n == 1 {
+            "1 lot".to_string()
+        } else {
+            format!("{n} lots")
+        };
+        groups.push((
+            format!("rule {rule}"),
+            WARN,
+            format!("{description} ({lots})"),
+            items,
+        ));
+    }
+    let mut lines = Vec::new();
+    for (check, colour, text, items) in groups {
+        let check_w = face.width_mm(&check, SIZE) + 3.0;
+        let mut first = true;
+        for l in face.wrap(&text, SIZE, width - check_w) {
+            lines.push(ListLine::Head {
+                check: if first { check.clone() } else { String::new() },
+                colour,
+                text: l,
+            });
+            first = false;
+        }
+        let cell = items
+            .iter()
+            .map(|i| item_width(face, i, SIZE))
+            .fold(0.0, f32::max);
+        let per_line = ((width - 3.0) / cell).floor().max(1.0) as usize;
+        for chunk in items.chunks(per_line) {
+            lines.push(ListLine::Lots(chunk.to_vec(), cell));
+        }
+    }
+    lines
+}
+
+/// Width of one lot in the list: tag, lot id, date and value, with the gap after it (mm).
+fn item_width(face: &Face, item: &ListItem, size: f32) -> f32 {
+    let tag = face.width_mm(&item.number.to_string(), size) + 2.4;
+    let value = item
+        .value
+        .as_ref()
+        .map_or(0.0, |v| face.width_mm(v, size) + 2.0);
+    tag + 1.5 + face.width_mm(&item.lot, size) + 2.0 + face.width_mm(&item.made, size) + value + 6.0
+}
+
+/// Draws list lines from baseline `y` down; returns the baseline after the last.
+fn list_lines(page: &mut Canvas, x: f32, mut y: f32, lines: &[ListLine]) -> f32 {
+    const SIZE: f32 = 8.0;
+    for line in lines {
+        match line {
+            ListLine::Head {
+                check,
+                colour,
+                text,
+            } => {
+                let check_w = if check.is_empty() {
+                    page.bold.width_mm("rule 0", SIZE) + 3.0
+                } else {
+                    page.text(Weight::Bold, SIZE, x, y, *colour, check);
+                    page.bold.width_mm(check, SIZE) + 3.0
+                };
+                page.text(Weight::Regular, SIZE, x + check_w, y, INK, text);
+            }
+            ListLine::Lots(items, cell) => {
+                for (k, item) in items.iter().enumerate() {
+                    let mut cx = x + 3.0 + cell * k as f32;
+                    let number = item.number.to_string();
+                    let tag_w = page.bold.width_mm(&number, SIZE) + 2.4;
+                    page.fill(cx, y - 2.9, tag_w, 3.7, item.colour);
+                    page.text(Weight::Bold, SIZE, cx + 1.2, y, WHITE, &number);
+                    cx += tag_w + 1.5;
+                    page.text(Weight::Regular, SIZE, cx, y, INK, &item.lot);
+                    cx += page.regular.width_mm(&item.lot, SIZE) + 2.0;
+                    page.text(Weight::Regular, SIZE, cx, y, MUTED, &item.made);
+                    cx += page.regular.width_mm(&item.made, SIZE);
+                    if let Some(v) = &item.value {
+                        cx += 2.0;
+                        page.text(Weight::Bold, SIZE, cx, y, OUT, v);
+                    }
+                }
+            }
+        }
+        y += LIST_STEP;
+    }
+    y
+}
+
+/// Splits the list lines of one property into the part on its own page (below the chart,
+/// from `first_y`) and the parts on continuation pages, keeping a line for the "continued"
+/// note on every part but the last.
+fn paginate(lines: Vec<ListLine>, first_y: f32) -> Vec<Vec<ListLine>> {
+    let cont_y = CHART_TOP + 3.0 + LIST_CONT_OFFSET;
+    let mut parts = Vec::new();
+    let mut rest = lines;
+    let mut y = first_y;
+    loop {
+        let take = rows_shown(y, LIST_STEP, rest.len());
+        let tail = rest.split_off(take.min(rest.len()));
+        parts.push(rest);
+        if tail.is_empty() {
+            return parts;
+        }
+        rest = tail;
+        y = cont_y;
+    }
+}
+
+/// Lot entries in list lines (a lot signalled by two rules is listed under each).
+fn entries_in(lines: &[ListLine]) -> usize {
+    lines
+        .iter()
+        .map(|l| match l {
+            ListLine::Lots(items, _) => items.len(),
+            ListLine::Head { .. } => 0,
+        })
+        .sum()
+}
+
+/// The viscosity–Mn page: the log-log plot, the fit, the lots off the line and what they mean.
+fn viscosity_page(
+    page: &mut Canvas,
+    input: &ReportInput,
+    v: &ViscosityCheck,
+    chart: &XObjectId,
+    (px_w, px_h): (usize, usize),
+) {
     let title = format!(
         "{} {}  ·  Viscosity against Mn",
         input.product_code, input.product_name
@@ -706,9 +1013,19 @@ fn viscosity_page(page: &mut Canvas, input: &ReportInput, v: &ViscosityCheck) {
         v.fit.n, input.site
     );
     page.header(input, &title, &context);
+    let chart_h = CHART_W * px_h as f32 / px_w as f32;
+    page.ops.push(Op::UseXobject {
+        id: chart.clone(),
+        transform: XObjectTransform {
+            translate_x: Some(pt_x(CHART_X)),
+            translate_y: Some(pt_y(CHART_TOP + chart_h)),
+            dpi: Some(px_w as f32 / (CHART_W / 25.4)),
+            ..XObjectTransform::default()
+        },
+    });
     let f = &v.fit;
-    let left = MARGIN;
-    let right = MARGIN + 120.0;
+    let left = COL_X;
+    let right = COL_R;
     page.heading(left, CHART_TOP + 3.0, "Log-log fit");
     let rows = vec![
         (
@@ -739,21 +1056,24 @@ fn viscosity_page(page: &mut Canvas, input: &ReportInput, v: &ViscosityCheck) {
         "Common practice: an exponent near 1 is expected for unentangled melts, about 3.4 above the entanglement molar mass.".to_string(),
         "A viscosity off the line for its Mn points to branching, contamination or a wrong solids content, which neither property's own chart shows.".to_string(),
     ];
-    page.bullets(left, right, y + 4.0, BODY_BOTTOM, &notes, ACCENT);
-    off_line_table(page, v);
+    page.bullets(
+        CHART_X,
+        CHART_X + CHART_W,
+        CHART_TOP + chart_h + 6.0,
+        BODY_BOTTOM,
+        &notes,
+        ACCENT,
+    );
+    off_line_table(page, v, y + 6.0);
 }
 
-/// The lots off the viscosity–Mn line, in the right half of the page (as many as fit, then a
+/// The lots off the viscosity–Mn line, in the right column from `top` (as many as fit, then a
 /// count of the rest).
-fn off_line_table(page: &mut Canvas, v: &ViscosityCheck) {
-    let x = MARGIN + 140.0;
+fn off_line_table(page: &mut Canvas, v: &ViscosityCheck, top: f32) {
+    let x = COL_X;
     let r = COL_R;
-    page.heading(
-        x,
-        CHART_TOP + 3.0,
-        &format!("Lots off the line ({})", v.off_line.len()),
-    );
-    let mut y = CHART_TOP + 10.0;
+    page.heading(x, top, &format!("Lots off the line ({})", v.off_line.len()));
+    let mut y = top + 7.0;
     const SIZE: f32 = 8.5;
     const STEP: f32 = 4.6;
     if v.off_line.is_empty() {
@@ -767,7 +1087,7 @@ fn off_line_table(page: &mut Canvas, v: &ViscosityCheck) {
         );
         return;
     }
-    let x_date = x + 55.0;
+    let x_date = x + 42.0;
     for (cx, h) in [(x, "Lot"), (x_date, "Made")] {
         page.text(Weight::Bold, SIZE, cx, y, MUTED, h);
     }
@@ -779,7 +1099,7 @@ fn off_line_table(page: &mut Canvas, v: &ViscosityCheck) {
         if i % 2 == 1 {
             page.fill(x, y - 3.2, r - x, STEP, ROW_SHADE);
         }
-        let lot = page.regular.fit(&o.lot, SIZE, 52.0);
+        let lot = page.regular.fit(&o.lot, SIZE, 40.0);
         page.text(Weight::Regular, SIZE, x, y, INK, &lot);
         page.text(Weight::Regular, SIZE, x_date, y, INK, &o.manufactured);
         let z = if o.robust_z.is_finite() {
@@ -1068,5 +1388,73 @@ mod tests {
     fn no_trend_is_an_error() {
         let err = render_report(&input(&[], None)).unwrap_err();
         assert!(err.to_string().contains("TP-100"), "{err}");
+    }
+
+    /// INVENTED: 80 lots rising steadily (as in `many_signals_end_in_and_n_more`).
+    fn rising() -> Vec<PropertyTrend> {
+        let lots: Vec<LotRow> = (0..80)
+            .map(|i| LotRow {
+                line: i + 2,
+                lot: format!("RISE-{:03}", i + 1).into(),
+                manufactured: format!("2026-{:02}-{:02}", 1 + i / 28, 1 + i % 28)
+                    .as_str()
+                    .into(),
+                status: "released",
+                revision: "A",
+                mn_uncertainty: None,
+                values: vec![Some(100.0 + i as f64 + 0.1 * ((i * 3) % 4) as f64)],
+            })
+            .collect();
+        vec![property_trend(
+            "TP-100",
+            "mn",
+            0,
+            "Mn",
+            "g/mol",
+            &lots,
+            SpecWindow {
+                min: None,
+                max: Some(175.0),
+            },
+            None,
+            &Baseline::All,
+            RuleSet::ALL,
+        )
+        .unwrap()]
+    }
+
+    #[test]
+    fn issue_19_every_signal_is_listed_newest_first_continuing_on_following_pages() {
+        let t = rising();
+        let pdf = render("trend_report_issue19", &input(&t, None));
+        let pages = page_texts(&pdf);
+        assert!(pages.len() > 1, "{} pages", pages.len());
+        // The newest signal's lot is on the property's own page, and the list says where it
+        // goes on.
+        let newest = &t[0].signals.last().unwrap().lot;
+        assert!(pages[0].contains(newest.as_str()), "{}", pages[0]);
+        assert!(pages[0].contains("continued on page 2"), "{}", pages[0]);
+        // Every signalled lot is listed somewhere, and every continuation page says so.
+        let all = pages.join(" ");
+        for s in &t[0].signals {
+            assert!(
+                all.contains(&format!("{} {}", s.lot, s.manufactured)),
+                "{}",
+                s.lot
+            );
+        }
+        for (i, page) in pages.iter().enumerate().skip(1) {
+            assert!(page.contains("signals continued"), "page {}: {page}", i + 1);
+            assert!(page.contains(&format!("Page {} of {}", i + 1, pages.len())));
+        }
+        // Lots above the USL 175 come first, as outside the spec window, before any rule.
+        let outside = pages[0]
+            .find("the lot's value lies outside the spec window")
+            .unwrap();
+        let rule = pages[0].find("rule 1").unwrap();
+        assert!(outside < rule, "{}", pages[0]);
+        // Bars are drawn, not left to a combining mark the PDF text path would drop.
+        assert!(!all.contains(visual::OVERBAR));
+        assert!(pages[0].contains("Mean moving range MR"), "{}", pages[0]);
     }
 }

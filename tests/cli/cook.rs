@@ -106,6 +106,33 @@ fn demo_cook_picks_third_order_and_draws_the_chart() {
     assert!(svg.contains("<svg") && svg.contains("Y, order 3 law with hydroxyl excess"));
 }
 
+/// Issue #19: the cook chart shows acid values and carries the caution; a .png name gets a PNG.
+#[test]
+fn issue_19_cook_chart_has_an_acid_value_panel_the_caution_and_a_png_form() {
+    let dir = tempfile::tempdir().unwrap();
+    for name in ["cook.svg", "cook.png"] {
+        let chart = dir.path().join(name);
+        bin()
+            .arg("cook")
+            .arg(demo("pd2000-200-a.csv"))
+            .arg("--recipe")
+            .arg(recipe())
+            .args(["--target-av", "1.0", "--chart"])
+            .arg(&chart)
+            .assert()
+            .success();
+        let bytes = std::fs::read(&chart).unwrap();
+        if name.ends_with(".png") {
+            assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n");
+        } else {
+            let svg = String::from_utf8(bytes).unwrap();
+            assert!(svg.contains(">Acid value (mg KOH/g)<"), "{svg}");
+            assert!(svg.contains("class=\"extrapolated\""));
+            assert!(svg.contains("CAUTION: these figures advise work at a hot reactor"));
+        }
+    }
+}
+
 #[test]
 fn text_report_lists_excluded_points_and_cautions() {
     bin()

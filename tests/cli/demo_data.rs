@@ -113,6 +113,9 @@ fn customer_service_questions() {
             "--where",
             "acid_value=..0.49",
             "--json",
+            // Lots of December 2025 are past their retest date on the demo's clock (issue
+            // #14); the scenario's count is of every lot made.
+            "--include-expired",
         ])
         .output()
         .unwrap();

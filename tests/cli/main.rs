@@ -15,6 +15,7 @@ mod endgroup;
 mod find_across;
 mod flags;
 mod intake_scale;
+mod lifecycle;
 mod lookup;
 mod old_registers;
 mod parsers_never_panic;

@@ -88,11 +88,19 @@ fn killed_releases_leave_a_verifiable_record() {
     let mut rng = Lcg(20261201);
     let mut reported_ok: Vec<String> = Vec::new();
     let mut killed = 0;
+    // Kill times span one uninterrupted release as long as it takes on this machine now (a
+    // loaded machine starts processes slowly; fixed times would kill every run before it
+    // wrote anything, and the test would check nothing).
+    let file = lots_file(&w, "k-first.csv", "KFIRST", 5);
+    let started = std::time::Instant::now();
+    assert!(release_cmd(&w, &file).status().unwrap().success());
+    let span = (started.elapsed().as_micros() as u64 * 5 / 4).max(12_000);
+    reported_ok.push("KFIRST".to_string());
     for run in 0..200 {
         let prefix = format!("K{run:03}");
         let file = lots_file(&w, &format!("k{run}.csv"), &prefix, 5);
         let mut child = release_cmd(&w, &file).spawn().unwrap();
-        std::thread::sleep(std::time::Duration::from_micros(rng.next() % 12_000));
+        std::thread::sleep(std::time::Duration::from_micros(rng.next() % span));
         let _ = child.kill();
         let status = child.wait().unwrap();
         if status.success() {
@@ -131,10 +139,17 @@ fn killed_releases_leave_a_verifiable_record() {
             );
         }
     }
-    w.cmd()
+    let last = w
+        .cmd()
         .args(["verify", "--register", "register"])
-        .assert()
-        .code(0);
+        .output()
+        .unwrap();
+    assert!(
+        last.status.success(),
+        "the record must verify after the last repair:\n{}{}",
+        String::from_utf8_lossy(&last.stdout),
+        String::from_utf8_lossy(&last.stderr)
+    );
 }
 
 fn recorded() -> Workspace {
