@@ -7,7 +7,7 @@ use chrono::NaiveDate;
 use rust_decimal::Decimal;
 
 use crate::certificate::model::{
-    self as cert, Authorisation, CalculatedNote, Certificate, Conformity, ResultRow, Site,
+    self as cert, Authorisation, CalculatedNote, Certificate, Conformity, LotCell, ResultRow, Site,
     Supersedes,
 };
 use crate::error::{Error, Result};
@@ -229,18 +229,33 @@ fn decimals_after(decimals: u32, factor: Decimal) -> u32 {
     d.max(0) as u32
 }
 
-/// Checks that a released lot meets a customer's windows under the product's decision rule
-/// ([`customer_fit`]); the error names every property that falls short, with both windows.
-pub fn check_customer(spec: &ProductSpec, rec: &LotRecord, ship: &Shipment) -> Result<()> {
-    let failures = customer_shortfalls(spec, rec, ship)?;
-    if failures.is_empty() {
+/// Checks that released lots meet a customer's windows under the product's decision rule
+/// ([`customer_fit`]); the error names every lot and property that falls short, with both
+/// windows (issue #16: a delivery of several lots is certified only when every lot fits).
+pub fn check_customer(spec: &ProductSpec, recs: &[LotRecord], ship: &Shipment) -> Result<()> {
+    let mut failed = Vec::new();
+    for rec in recs {
+        let f = customer_shortfalls(spec, rec, ship)?;
+        if !f.is_empty() {
+            failed.push(format!(
+                "lot {} cannot be certified for {}: {}",
+                rec.lot,
+                ship.customer.name,
+                f.join("; ")
+            ));
+        }
+    }
+    if failed.is_empty() {
         Ok(())
     } else {
         Err(Error::Shortfall(format!(
-            "lot {} cannot be certified for {}: {}",
-            rec.lot,
-            ship.customer.name,
-            failures.join("; ")
+            "{}{}",
+            failed.join("\n"),
+            if recs.len() > 1 {
+                "\nNothing was issued: every lot of a delivery must fit."
+            } else {
+                ""
+            }
         )))
     }
 }
@@ -283,7 +298,7 @@ pub fn concession_deviations(
 }
 
 /// Every property of `rec` that falls short of the customer's windows, in words naming both
-/// windows; a missing required result is a shortfall error of its own.
+/// windows; a missing required result is named too.
 fn customer_shortfalls(
     spec: &ProductSpec,
     rec: &LotRecord,
@@ -333,12 +348,10 @@ fn customer_shortfalls(
         }
         let fit = customer_fit(spec, p, rec.value(&p.key), rec.mn_uncertainty, window);
         match fit {
-            Fit::Missing => {
-                return Err(Error::Shortfall(format!(
-                    "lot {} has no {} result, which {} requires",
-                    rec.lot, p.label, ship.customer.name
-                )))
-            }
+            Fit::Missing => failures.push(format!(
+                "it has no {} result, which {} requires",
+                p.label, ship.customer.name
+            )),
             Fit::Decided {
                 verdict,
                 reported,
@@ -420,18 +433,7 @@ pub fn build(
             code: spec.code.clone(),
             revision: spec.revision.clone(),
         },
-        lot: cert::Lot {
-            id: rec.lot.clone(),
-            manufactured: rec.manufactured,
-            retest: crate::lot::disposition::retest_date(
-                rec.manufactured,
-                spec.retest_months,
-                rec.latest_retest,
-            )
-            .unwrap_or(rec.manufactured),
-            tested_from: rec.tested.0,
-            tested_to: rec.tested.1,
-        },
+        lot: lot_of(spec, rec),
         customer: ship.map(|s| cert::Customer {
             name: s.customer.name.clone(),
             address: s.customer.address.clone(),
@@ -454,7 +456,153 @@ pub fn build(
         },
         released: rec.status == Status::Released,
         supersedes,
-    })
+        lots: Vec::new(),
+        lot_blocks: false,
+    }
+    .with_lots(spec, std::slice::from_ref(rec), ship))
+}
+
+/// Builds a customer's certificate for a delivery of one or more lots of one product
+/// (issue #16): the first lot's certificate ([`build`]) with every lot's results in
+/// [`ResultRow::lots`], all lots listed, the calculated values, the decision's notes and the
+/// conformity statement covering each lot, and the latest release authorisation.
+#[allow(clippy::too_many_arguments)]
+pub fn build_delivery(
+    site: &Site,
+    spec: &ProductSpec,
+    recs: &[LotRecord],
+    ship: &Shipment,
+    number: &str,
+    issue_date: NaiveDate,
+    supersedes: Option<Supersedes>,
+) -> Result<Certificate> {
+    let first = recs.first().ok_or_else(|| {
+        Error::invalid(
+            "certify",
+            "no lot was given",
+            "Name one or more lots of the delivery.",
+        )
+    })?;
+    let mut c = build(
+        site,
+        spec,
+        first,
+        Some(ship),
+        number,
+        issue_date,
+        supersedes,
+    )?;
+    if recs.len() == 1 {
+        return Ok(c);
+    }
+    c = c.with_lots(spec, recs, Some(ship));
+    let keys = reported_keys(spec, Some(ship));
+    for note in &mut c.calculated {
+        note.value = recs
+            .iter()
+            .filter_map(|r| {
+                let (v, p) = reported_value(spec, r, &keys, &note.key)?;
+                Some(format!(
+                    "{} (lot {})",
+                    round(v, p.decimals, spec.rounding),
+                    r.lot
+                ))
+            })
+            .collect::<Vec<_>>()
+            .join(", ");
+        // One U per lot would crowd the note; each lot's U is on its own record.
+        if recs
+            .iter()
+            .any(|r| r.mn_uncertainty != first.mn_uncertainty)
+        {
+            note.expanded_uncertainty = None;
+            note.coverage_factor = None;
+        }
+    }
+    let mut statements: Vec<String> = recs
+        .iter()
+        .flat_map(|r| {
+            r.notes
+                .iter()
+                .filter(|n| n.kind.on_certificate())
+                .map(move |n| format!("Lot {}: {}", r.lot, n.text))
+        })
+        .collect();
+    statements.extend(ship.product.statements.clone());
+    c.statements = statements;
+    c.conformity.statement = format!(
+        "Each of the lots {} conforms to specification {} revision {} and to the requirements of {} under the decision rule stated.",
+        recs.iter().map(|r| r.lot.as_str()).collect::<Vec<_>>().join(", "),
+        spec.code,
+        spec.revision,
+        ship.customer.name
+    );
+    let mut names: Vec<String> = Vec::new();
+    for r in recs {
+        let (n, _) = approver(r);
+        if !names.contains(&n) {
+            names.push(n);
+        }
+    }
+    c.authorisation.name = names.join(" / ");
+    c.authorisation.date = recs
+        .iter()
+        .filter_map(|r| {
+            r.decided_at
+                .get(..10)
+                .and_then(|d| NaiveDate::parse_from_str(d, "%Y-%m-%d").ok())
+        })
+        .max()
+        .unwrap_or(c.authorisation.date);
+    c.released = recs.iter().all(|r| r.status == Status::Released);
+    Ok(c)
+}
+
+impl Certificate {
+    /// Lists `recs` as the certificate's lots and puts each lot's result and verdict in every
+    /// row (the same rounding, units and customer windows as the row itself).
+    fn with_lots(
+        mut self,
+        spec: &ProductSpec,
+        recs: &[LotRecord],
+        ship: Option<&Shipment>,
+    ) -> Self {
+        self.lots = recs.iter().map(|r| lot_of(spec, r)).collect();
+        self.lot_blocks = recs.len() > cert::LOT_COLUMNS;
+        for row in &mut self.rows {
+            let Some(p) = spec.property(&row.key) else {
+                continue;
+            };
+            row.lots = recs
+                .iter()
+                .map(|r| {
+                    let one = result_row(spec, p, r, ship);
+                    LotCell {
+                        lot: r.lot.clone(),
+                        result: one.result,
+                        verdict: one.verdict,
+                    }
+                })
+                .collect();
+        }
+        self
+    }
+}
+
+/// A lot as printed: id, manufacture and retest dates.
+fn lot_of(spec: &ProductSpec, rec: &LotRecord) -> cert::Lot {
+    cert::Lot {
+        id: rec.lot.clone(),
+        manufactured: rec.manufactured,
+        retest: crate::lot::disposition::retest_date(
+            rec.manufactured,
+            spec.retest_months,
+            rec.latest_retest,
+        )
+        .unwrap_or(rec.manufactured),
+        tested_from: rec.tested.0,
+        tested_to: rec.tested.1,
+    }
 }
 
 /// The properties reported, in order: the customer's list, or the spec's measured properties,
@@ -550,6 +698,7 @@ fn result_row(
         uncertainty,
         flagged: decided.is_some_and(|v| v != Verdict::Pass),
         verdict,
+        lots: Vec::new(),
         note: None,
     }
 }

@@ -72,6 +72,10 @@ pub struct Pending {
     pub customer: String,
     /// Reason, for a reissue.
     pub reason: String,
+    /// Purchase order, as given (empty for none or an internal certificate).
+    pub po: String,
+    /// Quantity shipped, as given.
+    pub quantity: String,
 }
 
 impl Issuer {
@@ -253,13 +257,10 @@ impl Issuer {
             let sha = crate::record::trend_file::hex(&Sha256::digest(&r.pdf));
             // The companion goes first: the log row that names its SHA-256 comes after it.
             let json = self.write_companion(log, p, &name)?;
-            let e = entry(
-                p,
-                &name,
-                &sha,
-                json.as_ref().map(|j| j.1.as_str()),
-                issued_at,
-            );
+            let e = Entry {
+                json_sha256: json.as_ref().map(|j| j.1.clone()).unwrap_or_default(),
+                ..entry(p, &name, &sha, issued_at)
+            };
             certfiles::finish(log, &self.out, part, &e)?;
             out.push(Issued {
                 certificate_number: p.certificate.number.clone(),
@@ -282,10 +283,20 @@ impl Issuer {
         html: bool,
         issued_at: &str,
     ) -> Result<Vec<Issued>> {
+        // Every log row is checked first (a purchase order in a log written before layout v3 is
+        // refused naming `resinlot upgrade`), so a refusal leaves no unlogged file behind.
+        let rows: Vec<Vec<Entry>> = pending
+            .iter()
+            .zip(rendered)
+            .map(|(p, r)| {
+                let sha = crate::record::trend_file::hex(&Sha256::digest(&r.pdf));
+                entries(p, &Self::file_name(&p.certificate), &sha, issued_at)
+            })
+            .collect();
+        log.check_rows(&rows.concat())?;
         let mut out = Vec::new();
-        for (p, r) in pending.iter().zip(rendered) {
-            let name = Self::file_name(&p.certificate);
-            let path = self.out.join(&name);
+        for ((p, r), rows) in pending.iter().zip(rendered).zip(&rows) {
+            let path = self.out.join(Self::file_name(&p.certificate));
             crate::support::output::write_atomic(&path, &r.pdf, false)?;
             if html {
                 crate::support::output::write_atomic(
@@ -294,19 +305,21 @@ impl Issuer {
                     false,
                 )?;
             }
-            let sha = crate::record::trend_file::hex(&Sha256::digest(&r.pdf));
+            let name = Self::file_name(&p.certificate);
             let json = self.write_companion(log, p, &name)?;
-            log.append(&entry(
-                p,
-                &name,
-                &sha,
-                json.as_ref().map(|j| j.1.as_str()),
-                issued_at,
-            ))?;
+            let json_sha = json.as_ref().map(|j| j.1.clone()).unwrap_or_default();
+            let rows: Vec<Entry> = rows
+                .iter()
+                .map(|e| Entry {
+                    json_sha256: json_sha.clone(),
+                    ..e.clone()
+                })
+                .collect();
+            log.append_all(&rows)?;
             out.push(Issued {
                 certificate_number: p.certificate.number.clone(),
                 path,
-                sha256: sha,
+                sha256: rows[0].sha256.clone(),
                 json_path: json.as_ref().map(|j| j.0.clone()),
                 json_sha256: json.map(|j| j.1),
             });
@@ -315,9 +328,25 @@ impl Issuer {
     }
 }
 
-/// The log entry of pending certificate `p`, filed as `file` with SHA-256 `sha` (and its JSON
-/// companion's, when one was written).
-fn entry(p: &Pending, file: &str, sha: &str, json_sha: Option<&str>, issued_at: &str) -> Entry {
+/// The log rows of pending certificate `p`: one per lot, all with its number (issue #16).
+fn entries(p: &Pending, file: &str, sha: &str, issued_at: &str) -> Vec<Entry> {
+    let first = entry(p, file, sha, issued_at);
+    if p.certificate.lots.len() < 2 {
+        return vec![first];
+    }
+    p.certificate
+        .lots
+        .iter()
+        .map(|l| Entry {
+            lot: l.id.clone(),
+            ..first.clone()
+        })
+        .collect()
+}
+
+/// The log entry of pending certificate `p` (its first lot), filed as `file` with SHA-256
+/// `sha`.
+fn entry(p: &Pending, file: &str, sha: &str, issued_at: &str) -> Entry {
     Entry {
         number: p.certificate.number.clone(),
         issued_at: issued_at.to_string(),
@@ -339,6 +368,8 @@ fn entry(p: &Pending, file: &str, sha: &str, json_sha: Option<&str>, issued_at: 
             .map(|s| s.number.clone())
             .unwrap_or_default(),
         reason: p.reason.clone(),
-        json_sha256: json_sha.unwrap_or_default().to_string(),
+        po: p.po.clone(),
+        quantity: p.quantity.clone(),
+        json_sha256: String::new(),
     }
 }

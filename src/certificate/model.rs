@@ -298,6 +298,22 @@ pub struct ResultRow {
     /// Number of the footnote (a calculated value's note) this row refers to.
     #[serde(default)]
     pub note: Option<usize>,
+    /// The result and verdict of every lot on the certificate, in the order of
+    /// [`Certificate::lots`] (issue #16); `result` and `verdict` above are the first lot's.
+    #[serde(default)]
+    pub lots: Vec<LotCell>,
+}
+
+/// One lot's result for one property, on a certificate that may cover several lots.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LotCell {
+    /// Lot number.
+    pub lot: String,
+    /// Result rounded as the spec says, as a string.
+    pub result: String,
+    /// Verdict text.
+    pub verdict: String,
 }
 
 /// A value calculated rather than measured (Mn, Xn), with its expanded uncertainty.
@@ -384,8 +400,16 @@ pub struct Certificate {
     pub product: Product,
     /// Specification and revision applied.
     pub spec: SpecRef,
-    /// Lot, manufacture and retest dates.
+    /// Lot, manufacture and retest dates (the first lot, on a certificate for several).
     pub lot: Lot,
+    /// Every lot the certificate covers, in order (issue #16: a delivery made of several lots
+    /// has one certificate); the template shows a column per lot, or a block per lot when
+    /// there are more than [`LOT_COLUMNS`].
+    #[serde(default)]
+    pub lots: Vec<Lot>,
+    /// True when the lots are more than [`LOT_COLUMNS`]: the results come as a block per lot.
+    #[serde(default)]
+    pub lot_blocks: bool,
     /// Shipment details, for a customer certificate.
     pub customer: Option<Customer>,
     /// Whether the results table has the U column (guarded decision rule, unless the
@@ -412,6 +436,9 @@ pub struct Certificate {
     /// Set on a reissue: the certificate this one replaces.
     pub supersedes: Option<Supersedes>,
 }
+
+/// Most lots shown side by side, a results column each; more get a block per lot.
+pub const LOT_COLUMNS: usize = 4;
 
 /// The standard scope statement, wording our own. ISO/IEC 17025:2017 §7.8.2.1 asks for a
 /// statement that the results relate only to the items tested, and for a report not to be

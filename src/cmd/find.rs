@@ -1,27 +1,39 @@
-//! `resinlot find`: which lots of a product fit given windows, or a customer's requirements.
+//! `resinlot find`: which lots fit given windows, or a customer's requirements, in one product
+//! or across every product of the register.
+
+use std::collections::HashMap;
 
 use chrono::NaiveDate;
 use serde_json::{json, Map, Value};
 
-use crate::cmd::args::{self, ProductArg, RegisterFolder, SpecsFolder};
+use crate::cmd::args::{self, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
+use crate::error::Error;
 use crate::lot::evaluate::Status;
-use std::collections::HashMap;
-
-use crate::record::find::{self, CustomerCheck, LifeCheck, LotFilter};
-use crate::record::query::{parse_window, LotRow, Window};
+use crate::record::find::{self, CustomerCheck, LifeCheck, LotFilter, Precision};
+use crate::record::query::{parse_window, Life, LotRow, Window};
 use crate::spec::customer::Customer;
 use crate::spec::SpecSet;
 
 /// Arguments of `resinlot find`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// The product, as the first argument or `--product`.
-    #[command(flatten)]
-    pub product: ProductArg,
+    /// Product code, e.g. PD-2000 (or give it with --product). Default: every product in the
+    /// register (the customer's products with --customer).
+    #[arg(value_name = "PRODUCT", value_parser = args::product_code)]
+    pub product_given: Option<String>,
+    /// Product code (or give it as the first argument).
+    #[arg(
+        long = "product",
+        value_name = "CODE",
+        value_parser = args::product_code,
+        conflicts_with = "product_given"
+    )]
+    pub product_flag: Option<String>,
     /// A window a lot must meet, as key=lo..hi with either end open (mn=1900..2100,
-    /// acid_value=..0.5); bounds are inclusive, on the recorded full-precision value. Repeat
-    /// for several properties.
+    /// acid_value=..0.5); bounds are inclusive, on the value rounded as the spec reports it
+    /// (ASTM E29, the spec's decimals), as certificates print it. Repeat for several
+    /// properties.
     #[arg(long = "where", value_name = "KEY=LO..HI")]
     pub windows: Vec<String>,
     /// Only lots with this status: released, on_hold, rejected or incomplete. Default: any
@@ -38,6 +50,13 @@ pub struct Args {
     /// decision rule, as `certify` would: lists the lots that can be certified for them.
     #[arg(long, value_name = "NAME")]
     pub customer: Option<String>,
+    /// The customer part number to search: its product, under its customer's requirements.
+    #[arg(long, value_name = "PN", conflicts_with_all = ["product_given", "product_flag"])]
+    pub part_number: Option<String>,
+    /// Compare and print the recorded full-precision values instead of the reported ones
+    /// (for analysis; certificates print the reported values).
+    #[arg(long)]
+    pub full_precision: bool,
     /// The register folder (`--register`).
     #[command(flatten)]
     pub register: RegisterFolder,
@@ -56,6 +75,42 @@ pub struct Args {
     pub include_expired: bool,
 }
 
+/// One product searched: its keys, the columns loaded, its lots and how they are reported.
+struct Searched {
+    product: String,
+    keys: Vec<String>,
+    loaded: Vec<String>,
+    lots: Vec<LotRow>,
+    lives: Vec<Life>,
+    precision: Option<Precision>,
+    /// Customer (file stem) of each lot released under concession, by trend-file line.
+    concessions: HashMap<usize, &'static str>,
+    /// Words and censored results of the customer's special properties (issue #15).
+    special: Option<find::SpecialCells>,
+}
+
+/// A lot found, with the product search it came from.
+struct Hit<'a> {
+    from: &'a Searched,
+    row: &'a LotRow,
+}
+
+impl Hit<'_> {
+    /// The value of `key` as printed: at the reporting precision, or full precision when the
+    /// spec does not know the key or `--full-precision` was given; `None` when absent.
+    fn value(&self, key: &str) -> Option<String> {
+        let i = self.from.loaded.iter().position(|k| k == key)?;
+        let v = self.row.values[i]?;
+        Some(
+            self.from
+                .precision
+                .as_ref()
+                .and_then(|p| p.reported(self.row, i))
+                .map_or_else(|| v.to_string(), |d| d.to_string()),
+        )
+    }
+}
+
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let windows: Vec<Window> = args
@@ -63,106 +118,224 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .iter()
         .map(|w| parse_window(w))
         .collect::<Result<_, _>>()?;
-    let status = find::status_or_default(args.status, args.customer.is_some());
-    let (from, to) = (args.from, args.to);
-    let path = args.product.trend_file(&args.register, "--product")?;
-    let keys = crate::record::query::trend_keys(&path)?;
-    find::check_window_keys(args.product.code(), &keys, &windows)?;
-    let (specs, customer) = match &args.customer {
-        Some(c) => {
-            let specs = SpecSet::load(&args.specs)?;
-            let cu = Customer::load(&args.specs.join("customers"), c, &specs)?;
-            cu.product(args.product.code())?;
-            (Some(specs), Some(cu))
-        }
-        // Shelf life needs the retest period of each lot's revision; without a specs folder
-        // nothing is judged expired.
-        None if args.specs.is_dir() => (Some(SpecSet::load(&args.specs)?), None),
-        None => (None, None),
-    };
-    if let (Some(specs), Some(_)) = (&specs, &customer) {
-        // Issue #15: a customer's check works from the limits the lots were decided on.
-        crate::record::frozen::refuse_changed(&path, args.product.code(), specs, None)?;
+    let given = args.product_given.as_ref().or(args.product_flag.as_ref());
+    let unbounded = windows.is_empty()
+        && args.customer.is_none()
+        && args.part_number.is_none()
+        && args.status.is_none()
+        && args.from.is_none()
+        && args.to.is_none();
+    if given.is_none() && unbounded {
+        // Every lot of every product is a dump, not a question (issue #12 asks for the product).
+        return Err(Error::invalid(
+            "find",
+            "no product and nothing to look for",
+            "Give the product (<PRODUCT> or --product CODE), or search every product with --where, --customer, --part-number, --status, --from or --to.",
+        )
+        .into());
     }
+    let needs_specs = !args.full_precision || args.customer.is_some() || args.part_number.is_some();
+    // Shelf life needs the retest period of each lot's revision; without a specs folder
+    // nothing is judged expired (issue #14).
+    let specs = if needs_specs || args.specs.is_dir() {
+        Some(SpecSet::load(&args.specs)?)
+    } else {
+        None
+    };
+    let (customer, products) = scope(args, given, specs.as_ref())?;
+    let status = find::status_or_default(args.status, customer.is_some());
     // The table needs only the windows and a few headline values; JSON, CSV and a customer's
     // check need every property.
     let every = args.json || args.csv || customer.is_some();
-    let loaded = find::keys_to_load(&keys, &windows, every);
-    let (_, lots, lives) =
-        crate::record::query::current_lots_with_life(&path, &loaded, customer.is_some())?;
-    // Words and censored results for the customer's check (issue #15).
-    let special: Option<find::SpecialCells> = match (&specs, &customer) {
-        (Some(specs), Some(_)) => {
-            let revs = specs.products.get(args.product.code());
-            let special_keys: Vec<String> = keys
-                .iter()
-                .filter(|k| {
-                    revs.into_iter().flatten().any(|s| {
-                        s.property(k)
-                            .is_some_and(|p| p.is_text() || p.loq.is_some())
-                    })
-                })
-                .cloned()
-                .collect();
-            let lines: Vec<usize> = lots.iter().map(|l| l.line).collect();
-            let cells = crate::record::query::raw_cells(&path, &special_keys, &lines)?;
-            Some((special_keys, cells))
+    let mut searched = Vec::new();
+    for product in &products {
+        let path = crate::record::trend_file::path_for(&args.register, product);
+        if given.is_some() && !path.is_file() {
+            return Err(Error::invalid(
+                format!("--product '{product}'"),
+                format!("no trend file {} exists", path.display()),
+                "Check the product code; lots appear once `resinlot release` has recorded them.",
+            )
+            .into());
         }
-        _ => None,
-    };
-    let customer_check = match (&specs, &customer) {
-        (Some(specs), Some(cu)) => Some(CustomerCheck {
-            customer: &cu.id,
-            specs,
-            requirements: cu.product(args.product.code())?,
-            special: special.as_ref(),
-        }),
-        _ => None,
-    };
-    let filter = LotFilter {
-        product: args.product.code(),
-        windows: &windows,
-        status,
-        from,
-        to,
-        customer: customer_check,
-        life: Some(LifeCheck {
-            lives: &lives,
-            specs: specs.as_ref(),
-            today: crate::support::clock::now()?.date_naive(),
-            include_expired: args.include_expired,
-        }),
-    };
-    let (hits, expired) = find::matching_lots_counted(&lots, &loaded, &filter);
-    let concessions: HashMap<usize, &str> = lots
-        .iter()
-        .zip(&lives)
-        .filter(|(_, l)| !l.concession.is_empty())
-        .map(|(r, l)| (r.line, l.concession))
-        .collect();
+        if !path.is_file() {
+            continue;
+        }
+        let keys = crate::record::query::trend_keys(&path)?;
+        if given.is_some() || products.len() == 1 {
+            find::check_window_keys(product, &keys, &windows)?;
+        } else if find::check_window_keys(product, &keys, &windows).is_err() {
+            continue; // a product without the property has no lot in the window
+        }
+        let loaded = find::keys_to_load(&keys, &windows, every);
+        let (_, lots, lives) =
+            crate::record::query::current_lots_with_life(&path, &loaded, customer.is_some())?;
+        if let (Some(specs), Some(_)) = (&specs, &customer) {
+            // Issue #15: a customer's check works from the limits the lots were decided on.
+            crate::record::frozen::refuse_changed(&path, product, specs, None)?;
+        }
+        // Words and censored results for the customer's check (issue #15).
+        let special: Option<find::SpecialCells> = match (&specs, &customer) {
+            (Some(specs), Some(_)) => {
+                let revs = specs.products.get(product.as_str());
+                let special_keys: Vec<String> = keys
+                    .iter()
+                    .filter(|k| {
+                        revs.into_iter().flatten().any(|s| {
+                            s.property(k)
+                                .is_some_and(|p| p.is_text() || p.loq.is_some())
+                        })
+                    })
+                    .cloned()
+                    .collect();
+                let lines: Vec<usize> = lots.iter().map(|l| l.line).collect();
+                let cells = crate::record::query::raw_cells(&path, &special_keys, &lines)?;
+                Some((special_keys, cells))
+            }
+            _ => None,
+        };
+        let concessions = lots
+            .iter()
+            .zip(&lives)
+            .filter(|(_, l)| !l.concession.is_empty())
+            .map(|(r, l)| (r.line, l.concession))
+            .collect();
+        let precision = match (&specs, args.full_precision) {
+            (Some(s), false) => Some(Precision::new(s, product, &lots, &loaded)),
+            _ => None,
+        };
+        searched.push(Searched {
+            product: product.clone(),
+            keys,
+            loaded,
+            lots,
+            lives,
+            precision,
+            concessions,
+            special,
+        });
+    }
+    if searched.is_empty() && !windows.is_empty() && !products.is_empty() {
+        return Err(Error::invalid(
+            format!("--where '{}=...'", windows[0].key),
+            format!(
+                "no product in {} records this property",
+                args.register.display()
+            ),
+            "Check the property key (`resinlot specs` lists each product's keys).",
+        )
+        .into());
+    }
+    let today = crate::support::clock::now()?.date_naive();
+    let mut expired = 0;
+    let mut hits: Vec<Hit> = Vec::new();
+    for s in &searched {
+        let check = match (&specs, &customer) {
+            (Some(specs), Some(cu)) => Some(CustomerCheck {
+                customer: &cu.id,
+                specs,
+                requirements: cu.product(&s.product)?,
+                special: s.special.as_ref(),
+            }),
+            _ => None,
+        };
+        let filter = LotFilter {
+            product: &s.product,
+            windows: &windows,
+            status,
+            from: args.from,
+            to: args.to,
+            customer: check,
+            life: Some(LifeCheck {
+                lives: &s.lives,
+                specs: specs.as_ref(),
+                today,
+                include_expired: args.include_expired,
+            }),
+            precision: s.precision.as_ref(),
+        };
+        let (found, gone) = find::matching_lots_counted(&s.lots, &s.loaded, &filter);
+        expired += gone;
+        hits.extend(found.into_iter().map(|row| Hit { from: s, row }));
+    }
+    hits.sort_by(|a, b| {
+        b.row
+            .manufactured
+            .cmp(&a.row.manufactured)
+            .then(a.from.product.cmp(&b.from.product))
+            .then(b.row.line.cmp(&a.row.line))
+    });
     let text = if args.json {
-        json_text(args.product.code(), &keys, &hits, expired, &concessions)?
+        json_text(&hits, expired)?
     } else if args.csv {
-        csv_text(args.product.code(), &keys, &hits)?
+        csv_text(&searched, &hits)?
     } else if hits.is_empty() {
         format!("No lots match.\n{}", expired_text(expired))
     } else {
-        table_text(
-            args,
-            &keys,
-            &loaded,
-            &windows,
-            &hits,
-            customer.as_ref(),
-            &concessions,
-        ) + &expired_text(expired)
+        let across = given.is_none() && args.part_number.is_none();
+        table_text(args, across, &windows, &hits, customer.as_ref()) + &expired_text(expired)
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }
 
-fn fmt(v: Option<f64>) -> String {
-    v.map(|x| x.to_string()).unwrap_or_default()
+/// The customer whose requirements apply (from --customer or the part number's owner) and
+/// the products to search: the one given, the part number's, the customer's, or every
+/// product in the register.
+fn scope(
+    args: &Args,
+    given: Option<&String>,
+    specs: Option<&SpecSet>,
+) -> anyhow::Result<(Option<Customer>, Vec<String>)> {
+    let dir = args.specs.join("customers");
+    let customer = match (&args.customer, specs) {
+        (Some(c), Some(s)) => Some(Customer::load(&dir, c, s)?),
+        _ => None,
+    };
+    if let (Some(pn), Some(s)) = (&args.part_number, specs) {
+        let all = match &customer {
+            Some(c) => vec![c.clone()],
+            None => crate::spec::customer::load_all(&dir, s)?,
+        };
+        let owners = find::part_number_owners(&all, pn);
+        return match owners.as_slice() {
+            [(c, product)] => Ok((Some((*c).clone()), vec![product.to_string()])),
+            [] => Err(Error::invalid(
+                format!("--part-number '{pn}'"),
+                format!(
+                    "no customer file in {} gives this part number",
+                    dir.display()
+                ),
+                "Check the part number as the customer's order gives it (see the customer's file).",
+            )
+            .into()),
+            many => Err(Error::invalid(
+                format!("--part-number '{pn}'"),
+                format!(
+                    "several customers use this part number ({})",
+                    many.iter()
+                        .map(|(c, p)| format!("{}: {p}", c.id))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+                "Add --customer NAME to say whose part number it is.",
+            )
+            .into()),
+        };
+    }
+    let products = match (given, &customer) {
+        (Some(p), Some(c)) => {
+            c.product(p)?;
+            vec![p.clone()]
+        }
+        (Some(p), None) => vec![p.clone()],
+        (None, Some(c)) => c.products.keys().cloned().collect(),
+        (None, None) => crate::record::query::trend_files(&args.register)?
+            .iter()
+            .filter_map(|p| p.file_stem().map(|s| s.to_string_lossy().to_string()))
+            .collect(),
+    };
+    Ok((customer, products))
 }
 
 /// The line saying how many lots were left out as past their retest date (issue #14).
@@ -179,25 +352,21 @@ fn expired_text(expired: usize) -> String {
     }
 }
 
-fn json_text(
-    product: &str,
-    keys: &[String],
-    hits: &[&LotRow],
-    expired: usize,
-    concessions: &HashMap<usize, &str>,
-) -> anyhow::Result<String> {
+fn json_text(hits: &[Hit], expired: usize) -> anyhow::Result<String> {
     let lots: Vec<Value> = hits
         .iter()
-        .map(|r| {
+        .map(|h| {
+            let r = h.row;
             let mut m = Map::new();
             m.insert("lot".into(), json!(r.lot));
-            m.insert("product".into(), json!(product));
+            m.insert("product".into(), json!(h.from.product));
             m.insert("manufactured".into(), json!(r.manufactured));
             m.insert("status".into(), json!(r.status));
-            if let Some(c) = concessions.get(&r.line) {
+            if let Some(c) = h.from.concessions.get(&r.line) {
                 m.insert("concession_customer".into(), json!(c));
             }
-            for (k, v) in keys.iter().zip(&r.values) {
+            for k in &h.from.keys {
+                let v = h.value(k).and_then(|t| t.parse::<f64>().ok());
                 m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
             }
             Value::Object(m)
@@ -206,19 +375,28 @@ fn json_text(
     Ok(serde_json::to_string_pretty(&json!({ "lots": lots, "expired_left_out": expired }))? + "\n")
 }
 
-fn csv_text(product: &str, keys: &[String], hits: &[&LotRow]) -> anyhow::Result<String> {
+fn csv_text(searched: &[Searched], hits: &[Hit]) -> anyhow::Result<String> {
+    // Every product's keys, in the order they first appear.
+    let mut keys: Vec<&str> = Vec::new();
+    for s in searched {
+        for k in &s.keys {
+            if !keys.contains(&k.as_str()) {
+                keys.push(k);
+            }
+        }
+    }
     let mut w = csv::Writer::from_writer(Vec::new());
     let mut header = vec!["lot", "product", "manufactured", "status"];
-    header.extend(keys.iter().map(String::as_str));
+    header.extend(keys.iter().copied());
     w.write_record(&header)?;
-    for r in hits {
+    for h in hits {
         let mut rec = vec![
-            r.lot.to_string(),
-            product.to_string(),
-            r.manufactured.to_string(),
-            r.status.to_string(),
+            h.row.lot.to_string(),
+            h.from.product.clone(),
+            h.row.manufactured.to_string(),
+            h.row.status.to_string(),
         ];
-        rec.extend(r.values.iter().map(|v| fmt(*v)));
+        rec.extend(keys.iter().map(|k| h.value(k).unwrap_or_default()));
         w.write_record(&rec)?;
     }
     Ok(String::from_utf8(w.into_inner()?)?)
@@ -226,49 +404,74 @@ fn csv_text(product: &str, keys: &[String], hits: &[&LotRow]) -> anyhow::Result<
 
 fn table_text(
     args: &Args,
-    keys: &[String],
-    loaded: &[String],
+    across: bool,
     windows: &[Window],
-    hits: &[&LotRow],
+    hits: &[Hit],
     customer: Option<&Customer>,
-    concessions: &HashMap<usize, &str>,
 ) -> String {
-    let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
     let mut show: Vec<String> = windows.iter().map(|w| w.key.clone()).collect();
     for k in find::HEADLINE_KEYS {
-        if keys.iter().any(|x| x == k) && !show.iter().any(|s| s == k) {
+        if hits.iter().any(|h| h.from.keys.iter().any(|x| x == k)) && !show.iter().any(|s| s == k) {
             show.push(k.to_string());
         }
     }
-    let mut rows = vec![{
-        let mut h = vec!["lot".to_string(), "manufactured".into(), "status".into()];
-        h.extend(show.iter().cloned());
-        h
-    }];
-    for r in hits {
-        let status = match concessions.get(&r.line) {
-            Some(c) => format!("{} (concession for {c})", r.status),
-            None => r.status.to_string(),
+    let mut head = vec!["lot".to_string()];
+    if across {
+        head.push("product".into());
+    }
+    head.extend(["manufactured".to_string(), "status".into()]);
+    head.extend(show.iter().cloned());
+    let mut rows = vec![head];
+    for h in hits {
+        let mut line = vec![h.row.lot.to_string()];
+        if across {
+            line.push(h.from.product.clone());
+        }
+        let status = match h.from.concessions.get(&h.row.line) {
+            Some(c) => format!("{} (concession for {c})", h.row.status),
+            None => h.row.status.to_string(),
         };
-        let mut line = vec![r.lot.to_string(), r.manufactured.to_string(), status];
+        line.extend([h.row.manufactured.to_string(), status]);
         for k in &show {
-            line.push(short_number(&fmt(r.values[at(k)])));
+            let v = h.value(k).unwrap_or_default();
+            line.push(if args.full_precision {
+                short_number(&v)
+            } else {
+                v
+            });
         }
         rows.push(line);
     }
     let mut t = crate::support::table::render(&rows);
+    let products: Vec<&str> = {
+        let mut p: Vec<&str> = hits.iter().map(|h| h.from.product.as_str()).collect();
+        p.sort();
+        p.dedup();
+        p
+    };
     t.push_str(&format!(
         "{} lot{} of {} match{}.\n",
         hits.len(),
         if hits.len() == 1 { "" } else { "s" },
-        args.product.code(),
+        if across {
+            products.join(", ")
+        } else {
+            products.first().copied().unwrap_or_default().to_string()
+        },
         customer
             .map(|c| format!(
-                " {}'s requirements (tighter windows, product decision rule)",
-                c.name
+                " {}'s requirements (tighter windows, product decision rule){}",
+                c.name,
+                args.part_number
+                    .as_ref()
+                    .map(|pn| format!(" for part number {pn}"))
+                    .unwrap_or_default()
             ))
             .unwrap_or_default()
     ));
+    if !args.full_precision {
+        t.push_str("Values as reported (rounded to the spec's decimals, ASTM E29); --full-precision shows the recorded values.\n");
+    }
     t
 }
 

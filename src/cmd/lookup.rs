@@ -32,16 +32,84 @@ pub struct Args {
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     check_lot_id(&args.lot)?;
-    let Some(trend) = crate::record::query::find_lot(&args.register, &args.lot)? else {
-        let near = crate::record::query::suggestions(&args.register, &args.lot, 3)?;
+    let all = crate::record::certlog::all_certificates(&args.register)?;
+    // A certificate number answers for the certificate and each of its lots (issue #16).
+    if let Some(cert) = crate::record::query::certificate(&all, &args.lot) {
+        let mut text = certificate_text(&cert);
+        let mut lots = Vec::new();
+        for lot in &cert.lots {
+            let (t, v) = lot_answer(args, lot)?;
+            text.push('\n');
+            text.push_str(&t);
+            lots.push(v);
+        }
+        let text = if args.json {
+            serde_json::to_string_pretty(&json!({ "certificate": cert, "lots": lots }))? + "\n"
+        } else {
+            text
+        };
+        crate::support::output::print(&text)?;
+        return Ok(Outcome::AllGood);
+    }
+    let (text, v) = lot_answer(args, &args.lot)?;
+    let text = if args.json {
+        serde_json::to_string_pretty(&v)? + "\n"
+    } else {
+        text
+    };
+    crate::support::output::print(&text)?;
+    Ok(Outcome::AllGood)
+}
+
+/// What a certificate number stands for: the delivery it certified and where it stands.
+fn certificate_text(c: &crate::record::certlog::Certificate) -> String {
+    let mut facts = vec![
+        ("Issued".to_string(), c.issued_at.clone()),
+        (
+            "To".to_string(),
+            if c.customer_name.is_empty() {
+                "internal (QC record)".to_string()
+            } else {
+                c.customer_name.clone()
+            },
+        ),
+    ];
+    if !c.po.is_empty() {
+        facts.push(("Purchase order".into(), c.po.clone()));
+    }
+    if !c.quantity.is_empty() {
+        facts.push(("Quantity".into(), c.quantity.clone()));
+    }
+    facts.push(("Lots".into(), c.lots.join(", ")));
+    facts.push(("Status".into(), c.status.as_str().to_string()));
+    if !c.supersedes.is_empty() {
+        facts.push((
+            "Supersedes".into(),
+            format!("{} ({})", c.supersedes, c.reason),
+        ));
+    }
+    facts.push(("File".into(), c.file.clone()));
+    format!(
+        "Certificate {} ({}):\n{}",
+        c.number,
+        c.product,
+        crate::support::table::pairs(&facts)
+    )
+}
+
+/// The text and JSON answers about one lot; refused (exit 1, with near ids) when the record
+/// does not hold it.
+fn lot_answer(args: &Args, lot: &str) -> anyhow::Result<(String, Value)> {
+    let Some(trend) = crate::record::query::find_lot(&args.register, lot)? else {
+        let near = crate::record::query::suggestions(&args.register, lot, 3)?;
         let hint = if near.is_empty() {
-            "No similar lot ids are recorded either; check the id on the label.".to_string()
+            "No similar lot ids or certificate numbers are recorded either; check the id on the label.".to_string()
         } else {
             format!("Did you mean {}?", near.join(", "))
         };
         return Err(Error::Shortfall(format!(
             "lot '{}' is not in the record at {}. {hint}",
-            args.lot,
+            lot,
             args.register.display()
         ))
         .into());
@@ -79,21 +147,16 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let shelf = spec.and_then(|s| {
         crate::record::lifecycle::retest_date(&trend, &rows, current, s.retest_months)
     });
-    let text = if args.json {
-        let mut v = as_json(&trend, &rows, &certs);
-        if let Some(o) = v.as_object_mut() {
-            o.insert("retest_date".into(), json!(shelf.map(|d| d.to_string())));
-            o.insert(
-                "expired".into(),
-                json!(shelf.map(|d| crate::lot::disposition::expired(d, today))),
-            );
-        }
-        serde_json::to_string_pretty(&v)? + "\n"
-    } else {
-        render(&trend, &rows, spec, &certs, shelf.map(|d| (d, today)))
-    };
-    crate::support::output::print(&text)?;
-    Ok(Outcome::AllGood)
+    let mut v = as_json(&trend, &rows, &certs);
+    if let Some(o) = v.as_object_mut() {
+        o.insert("retest_date".into(), json!(shelf.map(|d| d.to_string())));
+        o.insert(
+            "expired".into(),
+            json!(shelf.map(|d| crate::lot::disposition::expired(d, today))),
+        );
+    }
+    let text = render(&trend, &rows, spec, &certs, shelf.map(|d| (d, today)));
+    Ok((text, v))
 }
 
 fn values(t: &Trend, row: &Row) -> Map<String, Value> {
@@ -174,7 +237,7 @@ fn as_json(t: &Trend, rows: &[&Row], certs: &[Cert]) -> Value {
         "certificates".into(),
         json!(certs
             .iter()
-            .map(|(c, st)| json!({"number": c.number, "customer": c.customer_name, "issued_at": c.issued_at, "file": c.file, "standing": st}))
+            .map(|(c, st)| json!({"number": c.number, "customer": c.customer_name, "issued_at": c.issued_at, "file": c.file, "po": c.po, "quantity": c.quantity, "standing": st}))
             .collect::<Vec<_>>()),
     );
     obj.insert(
@@ -457,7 +520,7 @@ fn certificates_text(certs: &[Cert]) -> String {
             _ => String::new(),
         };
         out.push_str(&format!(
-            "  {}  {}  {}{}{standing}\n",
+            "  {}  {}  {}{}{}{standing}\n",
             e.number,
             if crate::record::certfiles::is_void(e) {
                 "VOID (a file found without its log entry; not a certificate)"
@@ -467,6 +530,11 @@ fn certificates_text(certs: &[Cert]) -> String {
                 e.customer_name.as_str()
             },
             e.issued_at,
+            if e.po.is_empty() {
+                String::new()
+            } else {
+                format!("  PO {}", e.po)
+            },
             if e.supersedes.is_empty() {
                 String::new()
             } else {

@@ -14,6 +14,7 @@ pub mod find;
 pub mod init;
 pub mod lookup;
 pub mod release;
+pub mod shipments;
 pub mod specs;
 pub mod trend;
 pub mod upgrade;
@@ -52,6 +53,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Lookup(args) => lookup::run(&args),
         Command::Trend(args) => trend::run(&args),
         Command::Find(args) => find::run(&args),
+        Command::Shipments(args) => shipments::run(&args),
         Command::Specs(args) => specs::run(&args),
         Command::Verify(args) => verify::run(&args),
         Command::Upgrade(args) => upgrade::run(&args),

@@ -513,6 +513,8 @@ fn prepare_certificates(
                 Plan::Retest { reason, .. } => reason.clone(),
                 _ => String::new(),
             },
+            po: String::new(),
+            quantity: String::new(),
         });
     }
     Ok(pending)

@@ -1,15 +1,18 @@
 //! Finding lots in a product's trend file: status, manufacture dates, windows on recorded
 //! values and a customer's requirements (read-only; the rules come from `spec`).
 
+use std::collections::HashMap;
+
 use chrono::NaiveDate;
+use rust_decimal::Decimal;
 
 use crate::error::{Error, Result};
 use crate::lot::evaluate::Status;
 use crate::record::query::{Life, LotRow, Window};
-use crate::spec::customer::{customer_fit, CustomerProduct};
-use crate::spec::decision::decimal_from_f64;
+use crate::spec::customer::{customer_fit, Customer, CustomerProduct};
+use crate::spec::decision::{decimal_from_f64, round_recorded, Rounding};
 use crate::spec::keys;
-use crate::spec::SpecSet;
+use crate::spec::{ProductSpec, SpecSet};
 
 /// Properties the table of found lots shows after the windows' own keys.
 pub const HEADLINE_KEYS: [&str; 3] = [keys::MN, keys::ACID_VALUE, keys::HYDROXYL_VALUE];
@@ -48,6 +51,51 @@ pub struct LotFilter<'a> {
     pub customer: Option<CustomerCheck<'a>>,
     /// Each lot's life (parallel to the lots), for shelf life and concessions (issue #14).
     pub life: Option<LifeCheck<'a>>,
+    /// How values are reported: windows then compare the reported value (issue #16). `None`
+    /// compares the recorded full-precision value.
+    pub precision: Option<&'a Precision>,
+}
+
+/// Decimals and rounding of each loaded key, by the spec revision each lot was released
+/// under (the product's latest revision for a revision no longer in the specs): the reporting
+/// precision of certificates and `lookup`, so `find` compares and prints what a certificate
+/// prints (ASTM E29 through [`round_recorded`]; issue #16).
+#[derive(Debug, Clone, Default)]
+pub struct Precision {
+    by_revision: HashMap<&'static str, Vec<Option<(u32, Rounding)>>>,
+}
+
+impl Precision {
+    /// The precision of `loaded` keys for every revision among `lots` of `product`.
+    pub fn new(specs: &SpecSet, product: &str, lots: &[LotRow], loaded: &[String]) -> Precision {
+        let of = |spec: Option<&ProductSpec>| -> Vec<Option<(u32, Rounding)>> {
+            loaded
+                .iter()
+                .map(|k| spec.and_then(|s| s.property(k).map(|p| (p.decimals, s.rounding))))
+                .collect()
+        };
+        let mut by_revision = HashMap::new();
+        for row in lots {
+            by_revision.entry(row.revision).or_insert_with(|| {
+                of(specs
+                    .revision(product, row.revision)
+                    .or_else(|| specs.latest(product)))
+            });
+        }
+        Precision { by_revision }
+    }
+
+    /// Decimals and rounding of loaded key `i` for `row`; `None` when no spec knows the key.
+    pub fn of(&self, row: &LotRow, i: usize) -> Option<(u32, Rounding)> {
+        *self.by_revision.get(row.revision)?.get(i)?
+    }
+
+    /// The value of loaded key `i` as reported: rounded to the spec's decimals, or `None`
+    /// when the spec does not know the key or the lot has no value.
+    pub fn reported(&self, row: &LotRow, i: usize) -> Option<Decimal> {
+        let (d, m) = self.of(row, i)?;
+        round_recorded(row.values[i]?, d, m)
+    }
 }
 
 /// Shelf life and concessions in a search (issue #14).
@@ -83,6 +131,20 @@ pub fn is_expired(
     let retested = life.retested.and_then(|d| date(&d));
     crate::lot::disposition::retest_date(made, spec.retest_months, retested)
         .is_some_and(|until| crate::lot::disposition::expired(until, today))
+}
+
+/// The customers' products that carry part number `pn` (exact match), as (customer, product
+/// code) pairs: `find --part-number` and `shipments --part-number` start from these.
+pub fn part_number_owners<'c>(customers: &'c [Customer], pn: &str) -> Vec<(&'c Customer, &'c str)> {
+    customers
+        .iter()
+        .flat_map(|c| {
+            c.products
+                .iter()
+                .filter(|(_, p)| p.part_number.as_deref() == Some(pn))
+                .map(move |(code, _)| (c, code.as_str()))
+        })
+        .collect()
 }
 
 /// The status asked for, or by default: any status, but only released lots for a customer
@@ -146,6 +208,16 @@ pub fn matching_lots_counted<'r>(
     let to = filter.to.map(|d| d.to_string());
     let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
     let win_idx: Vec<usize> = filter.windows.iter().map(|w| at(&w.key)).collect();
+    let bounds: Vec<(Option<Decimal>, Option<Decimal>)> = filter
+        .windows
+        .iter()
+        .map(|w| {
+            (
+                w.lo.and_then(decimal_from_f64),
+                w.hi.and_then(decimal_from_f64),
+            )
+        })
+        .collect();
     let mut hits: Vec<&LotRow> = lots
         .iter()
         .enumerate()
@@ -159,7 +231,8 @@ pub fn matching_lots_counted<'r>(
                 .windows
                 .iter()
                 .zip(&win_idx)
-                .all(|(w, &i)| row.values[i].is_some_and(|v| w.contains(v)))
+                .zip(&bounds)
+                .all(|((w, &i), b)| in_window(row, i, w, *b, filter.precision))
         })
         .filter(|&(i, row)| {
             filter.customer.is_none_or(|c| {
@@ -193,6 +266,23 @@ pub fn matching_lots_counted<'r>(
             .then(b.line.cmp(&a.line))
     });
     (hits, expired)
+}
+
+/// True when loaded value `i` of `row` lies in window `w`: its reported value against the
+/// bounds `b` (exact decimals) when the precision is known, its recorded value otherwise.
+fn in_window(
+    row: &LotRow,
+    i: usize,
+    w: &Window,
+    b: (Option<Decimal>, Option<Decimal>),
+    precision: Option<&Precision>,
+) -> bool {
+    match precision.and_then(|p| p.of(row, i)) {
+        Some((d, m)) => row.values[i]
+            .and_then(|v| round_recorded(v, d, m))
+            .is_some_and(|x| b.0.is_none_or(|lo| x >= lo) && b.1.is_none_or(|hi| x <= hi)),
+        None => row.values[i].is_some_and(|v| w.contains(v)),
+    }
 }
 
 /// True when every property of the lot's spec revision fits the customer's requirements
@@ -308,6 +398,7 @@ mod tests {
                 today,
                 include_expired: false,
             }),
+            precision: None,
         };
         let ids = |hits: &[&LotRow]| hits.iter().map(|r| r.lot.to_string()).collect::<Vec<_>>();
         let (hits, expired) = matching_lots_counted(&lots, &loaded, &filter);

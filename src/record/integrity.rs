@@ -638,7 +638,7 @@ mod tests {
             sha256: "ab".into(),
             supersedes: String::new(),
             reason: String::new(),
-            ..Entry::default()
+            ..Default::default()
         };
         assert!(verdict_for(&e, Some(&Standing::Current)).is_genuine());
         assert!(verdict_for(&e, None).is_genuine());

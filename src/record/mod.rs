@@ -15,6 +15,7 @@ pub mod lifecycle;
 pub mod lines;
 pub mod query;
 pub mod scan;
+pub mod shipments;
 pub mod trend_file;
 pub mod upgrade;
 pub mod workspace;

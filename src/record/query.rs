@@ -127,6 +127,19 @@ pub fn recorded_id(register: &Path, lot: &str) -> Result<Option<(PathBuf, String
     Ok(None)
 }
 
+/// The certificate numbered `number` (case-insensitive) among `certs` (the log's
+/// certificates, [`crate::record::certlog::all_certificates`]), with all its lots and its
+/// status (issue #16: `lookup FW-000123`).
+pub fn certificate(
+    certs: &[crate::record::certlog::Certificate],
+    number: &str,
+) -> Option<crate::record::certlog::Certificate> {
+    certs
+        .iter()
+        .find(|c| c.number.eq_ignore_ascii_case(number))
+        .cloned()
+}
+
 /// Up to `n` existing lot ids closest to `lot` (Jaro-Winkler similarity, case-insensitive).
 pub fn suggestions(register: &Path, lot: &str, n: usize) -> Result<Vec<String>> {
     let target = lot.to_ascii_uppercase();

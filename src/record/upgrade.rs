@@ -416,7 +416,7 @@ mod tests {
                 sha256: "ab".into(),
                 supersedes: String::new(),
                 reason: String::new(),
-                json_sha256: String::new(),
+                ..Default::default()
             })
             .unwrap();
         }

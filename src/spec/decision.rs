@@ -221,6 +221,30 @@ pub fn decimal_from_f64(x: f64) -> Option<Decimal> {
     Decimal::from_scientific(&text).ok().map(|d| d.normalize())
 }
 
+/// A recorded value held as `f64` (queries keep a million lots as floats) rounded to
+/// `decimals` places exactly as [`round`] rounds its decimal: the value as
+/// [`decimal_from_f64`] gives it, then ASTM E29-13 §6.4. `None` for a non-finite value.
+///
+/// Fast path: when `value · 10^decimals` is below 10^9 in size and at least 10^-6 from a
+/// half-unit, the f64 product (error below 2·10^-7 there) rounds to the same integer as the
+/// exact decimal, so no decimal is built; only near a tie, where the rounding rule decides,
+/// is the decimal formed and [`round`] applied.
+pub fn round_recorded(value: f64, decimals: u32, method: Rounding) -> Option<Decimal> {
+    if !value.is_finite() {
+        return None;
+    }
+    if decimals <= 9 {
+        let scaled = value * 10f64.powi(decimals as i32);
+        let frac = (scaled.abs() - scaled.abs().trunc() - 0.5).abs();
+        if scaled.abs() < 1e9 && frac > 1e-6 {
+            let mut d = Decimal::new(scaled.round() as i64, decimals);
+            d.rescale(decimals);
+            return Some(d);
+        }
+    }
+    Some(round(decimal_from_f64(value)?, decimals, method))
+}
+
 /// A decimal as recorded in a trend-file cell: its exact text, or, for a cell written in
 /// floating-point form (an exponent), the nearest decimal. `None` for anything else.
 pub fn recorded_decimal(cell: &str) -> Option<Decimal> {
@@ -232,6 +256,62 @@ pub fn recorded_decimal(cell: &str) -> Option<Decimal> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue #16: the float fast path rounds as the decimal rule does, ties included (ASTM
+    /// E29-13 §6.4.3: 0.0205 to three places is 0.020, 0.0215 is 0.022; half up gives 0.021).
+    #[test]
+    fn recorded_floats_round_as_their_decimals_issue_16() {
+        assert_eq!(
+            round_recorded(0.0205, 3, Rounding::HalfEven)
+                .unwrap()
+                .to_string(),
+            "0.020"
+        );
+        assert_eq!(
+            round_recorded(0.0215, 3, Rounding::HalfEven)
+                .unwrap()
+                .to_string(),
+            "0.022"
+        );
+        assert_eq!(
+            round_recorded(0.0205, 3, Rounding::HalfUp)
+                .unwrap()
+                .to_string(),
+            "0.021"
+        );
+        assert_eq!(
+            round_recorded(2.675, 2, Rounding::HalfEven)
+                .unwrap()
+                .to_string(),
+            "2.68"
+        );
+        assert_eq!(
+            round_recorded(-1.5, 0, Rounding::HalfEven)
+                .unwrap()
+                .to_string(),
+            "-2"
+        );
+        assert_eq!(
+            round_recorded(1989.3617021276596, 0, Rounding::HalfEven)
+                .unwrap()
+                .to_string(),
+            "1989"
+        );
+        assert_eq!(round_recorded(f64::NAN, 1, Rounding::HalfEven), None);
+        // Every value on a grid of ties and near-ties: fast path and decimal rule agree.
+        for i in 0..20_000 {
+            let v = i as f64 * 0.000_25 - 2.0;
+            for d in 0..5 {
+                for m in [Rounding::HalfEven, Rounding::HalfUp] {
+                    assert_eq!(
+                        round_recorded(v, d, m),
+                        Some(round(decimal_from_f64(v).unwrap(), d, m)),
+                        "{v} to {d}"
+                    );
+                }
+            }
+        }
+    }
 
     #[test]
     fn recorded_cells_read_back_exactly() {
