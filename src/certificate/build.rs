@@ -581,6 +581,8 @@ impl Certificate {
                         lot: r.lot.clone(),
                         result: one.result,
                         verdict: one.verdict,
+                        exact: one.exact,
+                        uncertainty: one.uncertainty,
                     }
                 })
                 .collect();

@@ -190,32 +190,7 @@ pub fn data(cert: &Certificate, pdf_file: &str) -> CertificateData {
             date: cert.authorisation.date,
         },
         supersedes: cert.supersedes.clone(),
-        lots: vec![LotData {
-            lot: cert.lot.id.clone(),
-            product_code: cert.product.code.clone(),
-            product_name: cert.product.name.clone(),
-            specification: cert.spec.code.clone(),
-            revision: cert.spec.revision.clone(),
-            manufactured: cert.lot.manufactured,
-            retest: cert.lot.retest,
-            tested_from: cert.lot.tested_from,
-            tested_to: cert.lot.tested_to,
-            properties: cert
-                .rows
-                .iter()
-                .map(|r| PropertyData {
-                    key: r.key.clone(),
-                    label: plain(&r.label),
-                    method: r.method.clone(),
-                    unit: r.unit.clone(),
-                    limits: r.limits.clone(),
-                    result: r.result.clone(),
-                    result_full: r.exact.clone(),
-                    uncertainty: r.uncertainty.clone(),
-                    verdict: r.verdict.clone(),
-                })
-                .collect(),
-        }],
+        lots: lots_data(cert),
     }
 }
 
@@ -230,6 +205,49 @@ pub fn to_bytes(cert: &Certificate, pdf_file: &str) -> Vec<u8> {
 /// The companion's file name for a certificate PDF `<lot>_<number>.pdf`: `<lot>_<number>.json`.
 pub fn file_name(pdf_file: &str) -> String {
     format!("{}.json", pdf_file.strip_suffix(".pdf").unwrap_or(pdf_file))
+}
+
+/// Every lot of the certificate with its dates and results: the first lot from the rows
+/// themselves, every further lot of a several-lot certificate from its cells (issue #16).
+fn lots_data(cert: &Certificate) -> Vec<LotData> {
+    let lots: Vec<crate::certificate::model::Lot> = if cert.lots.is_empty() {
+        vec![cert.lot.clone()]
+    } else {
+        cert.lots.clone()
+    };
+    lots.iter()
+        .enumerate()
+        .map(|(i, lot)| LotData {
+            lot: lot.id.clone(),
+            product_code: cert.product.code.clone(),
+            product_name: cert.product.name.clone(),
+            specification: cert.spec.code.clone(),
+            revision: cert.spec.revision.clone(),
+            manufactured: lot.manufactured,
+            retest: lot.retest,
+            tested_from: lot.tested_from,
+            tested_to: lot.tested_to,
+            properties: cert
+                .rows
+                .iter()
+                .map(|r| {
+                    let cell = r.lots.get(i).filter(|c| c.lot == lot.id);
+                    PropertyData {
+                        key: r.key.clone(),
+                        label: plain(&r.label),
+                        method: r.method.clone(),
+                        unit: r.unit.clone(),
+                        limits: r.limits.clone(),
+                        result: cell.map_or_else(|| r.result.clone(), |c| c.result.clone()),
+                        result_full: cell.map_or_else(|| r.exact.clone(), |c| c.exact.clone()),
+                        uncertainty: cell
+                            .map_or_else(|| r.uncertainty.clone(), |c| c.uncertainty.clone()),
+                        verdict: cell.map_or_else(|| r.verdict.clone(), |c| c.verdict.clone()),
+                    }
+                })
+                .collect(),
+        })
+        .collect()
 }
 
 #[cfg(test)]

@@ -314,6 +314,12 @@ pub struct LotCell {
     pub result: String,
     /// Verdict text.
     pub verdict: String,
+    /// The recorded value at full precision (in the spec's unit), empty when not measured.
+    #[serde(default)]
+    pub exact: String,
+    /// Expanded uncertainty U (k = 2) in the reporting unit, when known.
+    #[serde(default)]
+    pub uncertainty: Option<String>,
 }
 
 /// A value calculated rather than measured (Mn, Xn), with its expanded uncertainty.

@@ -150,9 +150,37 @@ T26-104,TP-2000,2026-05-23,0.50,55.5,535
     ] {
         assert!(text.contains(needle), "missing {needle}: {text}");
     }
+    // The JSON companion (issue #17) lists all three lots, each with its own results, and
+    // the footer names every lot.
+    assert!(text.contains("Lots T26-101, T26-104, T26-103"), "{text}");
+    let data: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(w.path(v["json_path"].as_str().unwrap())).unwrap())
+            .unwrap();
+    let lots = data["lots"].as_array().unwrap();
+    assert_eq!(lots.len(), 3, "{data}");
+    let viscosity = |i: usize| {
+        lots[i]["properties"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|p| p["key"] == "viscosity")
+            .unwrap()["result"]
+            .clone()
+    };
+    assert_eq!(lots[1]["lot"], "T26-104");
+    assert_eq!(viscosity(1), "0.535");
+    assert_ne!(viscosity(0), viscosity(1));
     // The log has one row per lot with the same number; shipments gathers them.
     let log = std::fs::read_to_string(w.path("register/certificates.csv")).unwrap();
     assert_eq!(log.matches(",FW-000005,").count(), 3, "{log}");
+    let json_sha = resinlot::record::certlog::entries(&w.path("register"))
+        .unwrap()
+        .into_iter()
+        .filter(|e| e.number == "FW-000005")
+        .map(|e| e.json_sha256)
+        .collect::<Vec<_>>();
+    assert_eq!(json_sha.len(), 3);
+    assert!(json_sha.iter().all(|s| s.len() == 64 && *s == json_sha[0]));
     let v = json(
         &w.cmd()
             .args(["shipments", "--lot", "T26-104", "--json"])

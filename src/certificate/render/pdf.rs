@@ -161,8 +161,11 @@ fn set_metadata(doc: &mut PdfDocument, cert: &Certificate) {
     info.document_title = format!("{} {}", cert.title, cert.number);
     info.author = cert.issuer.name.clone();
     info.subject = format!(
-        "Lot {} of {}, certificate No. {}",
-        cert.lot.id, cert.product.code, cert.number
+        "Lot{} {} of {}, certificate No. {}",
+        if cert.lots.len() > 1 { "s" } else { "" },
+        lot_ids(cert),
+        cert.product.code,
+        cert.number
     );
     info.identifier = cert.number.clone();
     info.keywords = vec![
@@ -172,6 +175,16 @@ fn set_metadata(doc: &mut PdfDocument, cert: &Certificate) {
     ];
     // Document dates: the issue date at 00:00 UTC, so the file is reproducible.
     crate::support::pdf_meta::set_creator_and_day(doc, cert.issue_date);
+}
+
+/// The certificate's lot ids, comma-separated (several on a delivery of several lots, #16).
+fn lot_ids(cert: &Certificate) -> String {
+    if cert.lots.len() > 1 {
+        let ids: Vec<&str> = cert.lots.iter().map(|l| l.id.as_str()).collect();
+        ids.join(", ")
+    } else {
+        cert.lot.id.clone()
+    }
 }
 
 /// Lays one HTML document out on A4 pages with the bundled fonts.
@@ -406,8 +419,12 @@ fn stamp_footer(
     let text_y = 10.0 * PT_PER_MM;
     let size = 8.0;
     let left = format!(
-        "Certificate No. {}  ·  Lot {}  ·  {} rev. {}",
-        cert.number, cert.lot.id, cert.spec.code, cert.spec.revision
+        "Certificate No. {}  ·  Lot{} {}  ·  {} rev. {}",
+        cert.number,
+        if cert.lots.len() > 1 { "s" } else { "" },
+        lot_ids(cert),
+        cert.spec.code,
+        cert.spec.revision
     );
     let right = format!("Page {index} of {count}");
     let right_w = bold.width(&right, size);
