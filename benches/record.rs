@@ -8,7 +8,8 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::time::Instant;
 
-use resinlot::record::trend_file::{chain_hash, header_line, seed};
+use resinlot::record::layout::TREND_EXTENSION;
+use resinlot::record::trend_file::{chain_hash, chain_seed, header_line, split_line};
 
 const LOTS: usize = 1_000_000;
 
@@ -49,7 +50,7 @@ pub fn generate(register: &Path, n: usize) -> std::io::Result<()> {
         std::fs::File::create(register.join("PD-2000.csv"))?,
     );
     writeln!(out, "{header}")?;
-    let mut prev = seed(&header);
+    let mut prev = chain_seed(&split_line(&header));
     let mut rng = Rng(42);
     let start = chrono::NaiveDate::from_ymd_opt(2026, 3, 1).unwrap();
     for i in 0..n {
@@ -69,8 +70,10 @@ pub fn generate(register: &Path, n: usize) -> std::io::Result<()> {
             v(corrected - 53.0),
             56100.0 / corrected
         );
+        // The chain signs the row without its trailing empty layout-v3 extension cells.
         let chain = chain_hash(&prev, &body);
-        writeln!(out, "{body},{chain}")?;
+        let empty_extension = ",".repeat(TREND_EXTENSION.len());
+        writeln!(out, "{body}{empty_extension},{chain}")?;
         prev = chain;
     }
     out.flush()

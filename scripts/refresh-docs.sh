@@ -26,6 +26,11 @@ pdftoppm -png -r 80 -f "$pages" -l "$pages" -singlefile "$report" docs/viscosity
 ./target/release/resinlot cook demo-lots/cooks/pd2000-200-a.csv --recipe specs/recipes/pd-2000.toml \
   --target-av 1.0 --chart target/readme-cook.png > /dev/null
 cp target/readme-cook.png docs/cook-chart.png
+# Page 2 of a multi-page certificate: the 40-property test fixture (invented values), written by
+# its test when RESINLOT_SAMPLE_DIR is set.
+samples="$PWD/target/readme-samples"
+RESINLOT_SAMPLE_DIR="$samples" cargo test --quiet --test cli certificate_render::forty_properties > /dev/null
+pdftoppm -png -r 80 -f 2 -l 2 -singlefile "$samples/forty.pdf" docs/certificate-page-2
 python3 - "$demo/outputs" <<'PY'
 import pathlib, re, sys
 out = pathlib.Path(sys.argv[1])

@@ -1,10 +1,11 @@
-//! Issuing certificates: render in parallel, write each PDF atomically (never overwriting),
-//! then record it in the certificate log with its SHA-256.
+//! Issuing certificates: render in parallel, write each PDF and its JSON data companion
+//! atomically (never overwriting), then record them in the certificate log with their SHA-256.
 
 use std::path::{Path, PathBuf};
 
 use sha2::{Digest, Sha256};
 
+use crate::certificate::companion;
 use crate::certificate::model::{Certificate, Site, SITE_FILE};
 use crate::certificate::render::{FontPool, Templates};
 use crate::error::{Error, Result};
@@ -21,6 +22,17 @@ pub struct Issuer {
     pub out: PathBuf,
 }
 
+/// Writes `bytes` to `path` unless a file of identical bytes is already there (a filing
+/// repeated after an interruption); any other file of that name is never replaced.
+fn write_once(path: &Path, bytes: &[u8]) -> Result<()> {
+    if std::fs::symlink_metadata(path).is_ok_and(|m| m.is_file())
+        && std::fs::read(path).is_ok_and(|b| b == bytes)
+    {
+        return Ok(());
+    }
+    crate::support::output::write_atomic(path, bytes, false)
+}
+
 /// One issued certificate.
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
 pub struct Issued {
@@ -30,6 +42,12 @@ pub struct Issued {
     pub path: PathBuf,
     /// SHA-256 of the PDF.
     pub sha256: String,
+    /// The JSON data companion, when the log can record its SHA-256 (layout v3).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub json_path: Option<PathBuf>,
+    /// SHA-256 of the JSON data companion.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub json_sha256: Option<String>,
 }
 
 /// Certificate numbers for one run, following every number already used (issue #13, item 8).
@@ -54,18 +72,37 @@ pub struct Pending {
     pub customer: String,
     /// Reason, for a reissue.
     pub reason: String,
+    /// Purchase order, as given (empty for none or an internal certificate).
+    pub po: String,
+    /// Quantity shipped, as given.
+    pub quantity: String,
 }
 
 impl Issuer {
     /// Loads the site file and templates (before any record is written, so a template error
-    /// leaves everything untouched).
+    /// leaves everything untouched). Without template files the built-in templates are used
+    /// ([`Issuer::notice`] says so); without a site file the site is the placeholder one. A
+    /// site whose fields are placeholders is refused (exit 2), naming the file to edit or create.
     pub fn new(templates_dir: &Path, out: &Path) -> Result<Issuer> {
+        let templates = Templates::load(templates_dir)?;
+        let site_path = templates_dir.join(SITE_FILE);
+        let site = if site_path.is_file() {
+            Site::load(&site_path)?
+        } else {
+            Site::placeholder()
+        };
+        site.check_filled_in(&site_path)?;
         Ok(Issuer {
-            site: Site::load(&templates_dir.join(SITE_FILE))?,
-            templates: Templates::load(templates_dir)?,
+            site,
+            templates,
             fonts: FontPool::bundled(),
             out: out.to_path_buf(),
         })
+    }
+
+    /// The note to print once when the built-in templates stand in for a missing folder.
+    pub fn notice(&self) -> Option<String> {
+        self.templates.notice()
     }
 
     /// File name of a certificate: lot id and certificate number.
@@ -123,17 +160,43 @@ impl Issuer {
         tempfile::tempfile_in(&self.out)
             .map_err(|e| Error::io(&self.out, "writing a file in", e))?;
         for p in pending {
-            let path = self.out.join(Self::file_name(&p.certificate));
-            // symlink_metadata: a dangling symbolic link is in the way too (issue #13, item 7).
-            if std::fs::symlink_metadata(&path).is_ok() {
-                return Err(Error::invalid(
+            let name = Self::file_name(&p.certificate);
+            for path in [
+                self.out.join(&name),
+                self.out.join(companion::file_name(&name)),
+            ] {
+                // symlink_metadata: a dangling symbolic link is in the way too (issue #13, item 7).
+                if std::fs::symlink_metadata(&path).is_ok() {
+                    return Err(Error::invalid(
                     path.display().to_string(),
                     "a file of this name already exists and is never overwritten",
                     "Move the stray file aside (certificate numbers are never reused) and run again.",
                 ));
+                }
             }
         }
         Ok(())
+    }
+
+    /// Writes the JSON data companion of `p` (filed as `name`) when `log` can record its
+    /// SHA-256, and returns its path and SHA-256. A log in a layout before v3 has no column for
+    /// it, so no companion is written there (`resinlot upgrade` adds the column).
+    fn write_companion(
+        &self,
+        log: &Log,
+        p: &Pending,
+        name: &str,
+    ) -> Result<Option<(PathBuf, String)>> {
+        if !log.has_column("json_sha256") {
+            return Ok(None);
+        }
+        let bytes = companion::to_bytes(&p.certificate, name);
+        let path = self.out.join(companion::file_name(name));
+        write_once(&path, &bytes)?;
+        Ok(Some((
+            path,
+            crate::record::trend_file::hex(&Sha256::digest(&bytes)),
+        )))
     }
 
     /// Writes each rendered internal certificate to its pending part (fsync'd, never
@@ -192,11 +255,19 @@ impl Issuer {
         for ((p, r), part) in pending.iter().zip(rendered).zip(parts) {
             let name = Self::file_name(&p.certificate);
             let sha = crate::record::trend_file::hex(&Sha256::digest(&r.pdf));
-            certfiles::finish(log, &self.out, part, &entry(p, &name, &sha, issued_at))?;
+            // The companion goes first: the log row that names its SHA-256 comes after it.
+            let json = self.write_companion(log, p, &name)?;
+            let e = Entry {
+                json_sha256: json.as_ref().map(|j| j.1.clone()).unwrap_or_default(),
+                ..entry(p, &name, &sha, issued_at)
+            };
+            certfiles::finish(log, &self.out, part, &e)?;
             out.push(Issued {
                 certificate_number: p.certificate.number.clone(),
                 path: self.out.join(&name),
                 sha256: sha,
+                json_path: json.as_ref().map(|j| j.0.clone()),
+                json_sha256: json.map(|j| j.1),
             });
         }
         Ok(out)
@@ -212,10 +283,20 @@ impl Issuer {
         html: bool,
         issued_at: &str,
     ) -> Result<Vec<Issued>> {
+        // Every log row is checked first (a purchase order in a log written before layout v3 is
+        // refused naming `resinlot upgrade`), so a refusal leaves no unlogged file behind.
+        let rows: Vec<Vec<Entry>> = pending
+            .iter()
+            .zip(rendered)
+            .map(|(p, r)| {
+                let sha = crate::record::trend_file::hex(&Sha256::digest(&r.pdf));
+                entries(p, &Self::file_name(&p.certificate), &sha, issued_at)
+            })
+            .collect();
+        log.check_rows(&rows.concat())?;
         let mut out = Vec::new();
-        for (p, r) in pending.iter().zip(rendered) {
-            let name = Self::file_name(&p.certificate);
-            let path = self.out.join(&name);
+        for ((p, r), rows) in pending.iter().zip(rendered).zip(&rows) {
+            let path = self.out.join(Self::file_name(&p.certificate));
             crate::support::output::write_atomic(&path, &r.pdf, false)?;
             if html {
                 crate::support::output::write_atomic(
@@ -224,19 +305,47 @@ impl Issuer {
                     false,
                 )?;
             }
-            let sha = crate::record::trend_file::hex(&Sha256::digest(&r.pdf));
-            log.append(&entry(p, &name, &sha, issued_at))?;
+            let name = Self::file_name(&p.certificate);
+            let json = self.write_companion(log, p, &name)?;
+            let json_sha = json.as_ref().map(|j| j.1.clone()).unwrap_or_default();
+            let rows: Vec<Entry> = rows
+                .iter()
+                .map(|e| Entry {
+                    json_sha256: json_sha.clone(),
+                    ..e.clone()
+                })
+                .collect();
+            log.append_all(&rows)?;
             out.push(Issued {
                 certificate_number: p.certificate.number.clone(),
                 path,
-                sha256: sha,
+                sha256: rows[0].sha256.clone(),
+                json_path: json.as_ref().map(|j| j.0.clone()),
+                json_sha256: json.map(|j| j.1),
             });
         }
         Ok(out)
     }
 }
 
-/// The log entry of pending certificate `p`, filed as `file` with SHA-256 `sha`.
+/// The log rows of pending certificate `p`: one per lot, all with its number (issue #16).
+fn entries(p: &Pending, file: &str, sha: &str, issued_at: &str) -> Vec<Entry> {
+    let first = entry(p, file, sha, issued_at);
+    if p.certificate.lots.len() < 2 {
+        return vec![first];
+    }
+    p.certificate
+        .lots
+        .iter()
+        .map(|l| Entry {
+            lot: l.id.clone(),
+            ..first.clone()
+        })
+        .collect()
+}
+
+/// The log entry of pending certificate `p` (its first lot), filed as `file` with SHA-256
+/// `sha`.
 fn entry(p: &Pending, file: &str, sha: &str, issued_at: &str) -> Entry {
     Entry {
         number: p.certificate.number.clone(),
@@ -259,5 +368,8 @@ fn entry(p: &Pending, file: &str, sha: &str, issued_at: &str) -> Entry {
             .map(|s| s.number.clone())
             .unwrap_or_default(),
         reason: p.reason.clone(),
+        po: p.po.clone(),
+        quantity: p.quantity.clone(),
+        json_sha256: String::new(),
     }
 }

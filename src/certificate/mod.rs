@@ -1,8 +1,9 @@
 //! Certificate layer: the certificate as data, building it from the record, numbering and
-//! issuing it, and rendering it (tera HTML, printpdf PDF). May use `record`, `lot`, `spec`,
+//! issuing it, rendering it (tera HTML, printpdf PDF) and its JSON data companion. May use `record`, `lot`, `spec`,
 //! `support` and `error`.
 
 pub mod build;
+pub mod companion;
 pub mod issue;
 pub mod model;
 pub mod render;

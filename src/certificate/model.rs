@@ -19,7 +19,11 @@ use crate::error::{Error, Result};
 /// name = "Harrowgate Resins Ltd, Fenmoor Works"
 /// address = ["Fenmoor Industrial Estate", "Harrowgate HG9 0ZZ", "United Kingdom"]
 /// contact = ["Quality Control Laboratory", "qc@example.invalid"]
+/// inspection_representative = { name = "A. Person", role = "Quality Manager" }
 /// ```
+///
+/// A text field starting with [`PLACEHOLDER`] (as `resinlot init` writes them) has not been
+/// filled in yet: no certificate is issued under such a site ([`Site::check_filled_in`]).
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct Site {
@@ -33,7 +37,39 @@ pub struct Site {
     /// Prefix of certificate numbers (letters, digits, '-', '_', '.'), e.g. "FW-".
     #[serde(default = "default_prefix")]
     pub certificate_prefix: String,
+    /// The manufacturer's authorised inspection representative, independent of the
+    /// manufacturing department, who validates EN 10204 type 3.1 certificates.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub inspection_representative: Option<Representative>,
 }
+
+/// A named person and their role, as printed.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Representative {
+    /// Name of the person.
+    pub name: String,
+    /// Role, e.g. `Quality Manager`.
+    pub role: String,
+}
+
+/// Start of a value in `site.toml` that still has to be filled in.
+pub const PLACEHOLDER: &str = "PLACEHOLDER";
+
+/// The site file `resinlot init` writes and the site assumed when no templates folder exists:
+/// every field a placeholder, so nothing is issued until the lab fills it in.
+pub const PLACEHOLDER_SITE: &str = "\
+# The issuing site printed on every certificate of analysis. Replace every value starting with
+# PLACEHOLDER: resinlot refuses to issue certificates until none is left.
+# Keys: name (text), address (list of lines), contact (list of lines), certificate_prefix
+# (start of every certificate number), and inspection_representative (needed for customers
+# who order EN 10204 type 3.1 certificates: a person independent of manufacturing).
+name = \"PLACEHOLDER: legal name of the issuing site\"
+address = [\"PLACEHOLDER: street\", \"PLACEHOLDER: town and postcode\", \"PLACEHOLDER: country\"]
+contact = [\"PLACEHOLDER: laboratory name\", \"PLACEHOLDER: e-mail or telephone\"]
+certificate_prefix = \"CoA-\"
+# inspection_representative = { name = \"PLACEHOLDER: name\", role = \"PLACEHOLDER: role\" }
+";
 
 fn default_prefix() -> String {
     "CoA-".to_string()
@@ -72,6 +108,98 @@ impl Site {
         }
         Ok(site)
     }
+
+    /// The fields still holding a [`PLACEHOLDER`] value, by name (`name`, `address[1]`, ...).
+    pub fn placeholders(&self) -> Vec<String> {
+        let is = |t: &str| t.trim_start().starts_with(PLACEHOLDER);
+        let mut out = Vec::new();
+        if is(&self.name) {
+            out.push("name".to_string());
+        }
+        for (list, field) in [(&self.address, "address"), (&self.contact, "contact")] {
+            for (i, l) in list.iter().enumerate() {
+                if is(l) {
+                    out.push(format!("{field}[{}]", i + 1));
+                }
+            }
+        }
+        if let Some(r) = &self.inspection_representative {
+            if is(&r.name) || is(&r.role) {
+                out.push("inspection_representative".to_string());
+            }
+        }
+        out
+    }
+
+    /// The site assumed when no templates folder exists: [`PLACEHOLDER_SITE`].
+    pub fn placeholder() -> Site {
+        toml::from_str(PLACEHOLDER_SITE).expect("the built-in site file is valid")
+    }
+
+    /// Refuses (exit 2) a site whose fields are still placeholders: certificates would go out
+    /// in no one's name. `path` is the site file, named in the message (it may not exist yet:
+    /// then the message says to create it).
+    pub fn check_filled_in(&self, path: &Path) -> Result<()> {
+        let fields = self.placeholders();
+        if fields.is_empty() {
+            return Ok(());
+        }
+        if !path.exists() {
+            return Err(Error::invalid(
+                path.display().to_string(),
+                "there is no site file, so no certificate can be issued: it would name no issuer",
+                format!(
+                    "Create {} with your site's name, address and contact lines (`resinlot init NEW-FOLDER` writes one to fill in), or give --templates DIR; `release --no-certificates` records decisions without certificates.",
+                    path.display()
+                ),
+            ));
+        }
+        Err(Error::invalid(
+            format!("{}: {}", path.display(), fields.join(", ")),
+            "the issuing site is still a placeholder, so no certificate can be issued in its name",
+            format!(
+                "Edit {} and replace every value starting with {PLACEHOLDER} with your site's own details.",
+                path.display()
+            ),
+        ))
+    }
+
+    /// Writes [`PLACEHOLDER_SITE`] to `path` (for `resinlot init`), replacing what is there.
+    pub fn write_placeholder(path: &Path) -> Result<()> {
+        crate::support::output::write_atomic(path, PLACEHOLDER_SITE.as_bytes(), true)
+    }
+}
+
+/// Warnings about the site file at `path` for `specs check` (issue #17): missing, still
+/// holding placeholders, or naming no inspection representative while the customers in
+/// `needs_31` order EN 10204 type 3.1 certificates. Each warning is one line; none is empty
+/// text. A site file that cannot be read or parsed is an error, as everywhere else.
+pub fn site_warnings<'a>(path: &Path, needs_31: impl Iterator<Item = &'a str>) -> Result<String> {
+    if !path.is_file() {
+        return Ok(format!(
+            "warning: {}: no site file; certify and release refuse to issue certificates until it exists.\n",
+            path.display()
+        ));
+    }
+    let site = Site::load(path)?;
+    let mut out = String::new();
+    let fields = site.placeholders();
+    if !fields.is_empty() {
+        out.push_str(&format!(
+            "warning: {}: {} still {PLACEHOLDER}; certify and release refuse to issue certificates until filled in.\n",
+            path.display(),
+            fields.join(", ")
+        ));
+    }
+    let needs: Vec<&str> = needs_31.collect();
+    if !needs.is_empty() && site.inspection_representative.is_none() {
+        out.push_str(&format!(
+            "warning: {}: no inspection_representative, but {} order EN 10204 type 3.1 certificates, which certify refuses without one.\n",
+            path.display(),
+            needs.join(", ")
+        ));
+    }
+    Ok(out)
 }
 
 /// Product identity as printed.
@@ -104,6 +232,23 @@ pub struct Lot {
     pub manufactured: NaiveDate,
     /// Retest date: manufacture date plus the spec's `retest_months` (see [`crate::spec::retest_date`]).
     pub retest: NaiveDate,
+    /// First day of testing, when the record holds it (rows recorded before issue #15 do not).
+    #[serde(default)]
+    pub tested_from: Option<NaiveDate>,
+    /// Last day of testing, when the record holds it.
+    #[serde(default)]
+    pub tested_to: Option<NaiveDate>,
+}
+
+impl Lot {
+    /// The test date(s) as printed: one day, `from – to`, or `not recorded`.
+    pub fn tested_text(&self) -> String {
+        match (self.tested_from, self.tested_to) {
+            (Some(a), Some(b)) if a != b => format!("{a} – {b}"),
+            (Some(a), _) | (None, Some(a)) => a.to_string(),
+            (None, None) => "not recorded".to_string(),
+        }
+    }
 }
 
 /// Shipment details when the certificate is issued for a customer.
@@ -112,6 +257,9 @@ pub struct Lot {
 pub struct Customer {
     /// Customer's legal name.
     pub name: String,
+    /// Customer's postal address, one entry per line.
+    #[serde(default)]
+    pub address: Vec<String>,
     /// Customer's own part number for the product.
     pub part_number: Option<String>,
     /// Customer's purchase order.
@@ -136,14 +284,51 @@ pub struct ResultRow {
     pub limits: String,
     /// Result rounded as the spec says, as a string.
     pub result: String,
+    /// The recorded value at full precision (in the spec's unit), empty when not measured.
+    #[serde(default)]
+    pub exact: String,
+    /// Expanded uncertainty U (k = 2) in the reporting unit, when known.
+    #[serde(default)]
+    pub uncertainty: Option<String>,
     /// Verdict text, e.g. `Pass` or `Conditional pass`.
     pub verdict: String,
+    /// True when the verdict is anything but a pass (printed in bold).
+    #[serde(default)]
+    pub flagged: bool,
+    /// Number of the footnote (a calculated value's note) this row refers to.
+    #[serde(default)]
+    pub note: Option<usize>,
+    /// The result and verdict of every lot on the certificate, in the order of
+    /// [`Certificate::lots`] (issue #16); `result` and `verdict` above are the first lot's.
+    #[serde(default)]
+    pub lots: Vec<LotCell>,
+}
+
+/// One lot's result for one property, on a certificate that may cover several lots.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LotCell {
+    /// Lot number.
+    pub lot: String,
+    /// Result rounded as the spec says, as a string.
+    pub result: String,
+    /// Verdict text.
+    pub verdict: String,
+    /// The recorded value at full precision (in the spec's unit), empty when not measured.
+    #[serde(default)]
+    pub exact: String,
+    /// Expanded uncertainty U (k = 2) in the reporting unit, when known.
+    #[serde(default)]
+    pub uncertainty: Option<String>,
 }
 
 /// A value calculated rather than measured (Mn, Xn), with its expanded uncertainty.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct CalculatedNote {
+    /// Footnote mark, as printed in the row and before the note (`¹`, `²`, ...).
+    #[serde(default)]
+    pub mark: String,
     /// Property key, e.g. `mn`.
     pub key: String,
     /// Printed symbol or name, e.g. `Mn`.
@@ -169,6 +354,17 @@ pub struct Conformity {
     /// The guard band as applied, e.g. `w = U (k = 2)`.
     pub guard_band: String,
     /// The full statement as printed.
+    pub statement: String,
+}
+
+/// The EN 10204:2004 inspection document this certificate is, as the customer ordered.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct InspectionDocument {
+    /// Type as written in the standard, `3.1` or `2.2`.
+    #[serde(rename = "type")]
+    pub kind: String,
+    /// The statement as printed.
     pub statement: String,
 }
 
@@ -210,10 +406,22 @@ pub struct Certificate {
     pub product: Product,
     /// Specification and revision applied.
     pub spec: SpecRef,
-    /// Lot, manufacture and retest dates.
+    /// Lot, manufacture and retest dates (the first lot, on a certificate for several).
     pub lot: Lot,
+    /// Every lot the certificate covers, in order (issue #16: a delivery made of several lots
+    /// has one certificate); the template shows a column per lot, or a block per lot when
+    /// there are more than [`LOT_COLUMNS`].
+    #[serde(default)]
+    pub lots: Vec<Lot>,
+    /// True when the lots are more than [`LOT_COLUMNS`]: the results come as a block per lot.
+    #[serde(default)]
+    pub lot_blocks: bool,
     /// Shipment details, for a customer certificate.
     pub customer: Option<Customer>,
+    /// Whether the results table has the U column (guarded decision rule, unless the
+    /// customer file says `show_uncertainty = false`).
+    #[serde(default)]
+    pub show_uncertainty: bool,
     /// Reported properties, in reporting order.
     pub rows: Vec<ResultRow>,
     /// Calculated values with their uncertainty (Mn, Xn).
@@ -224,6 +432,9 @@ pub struct Certificate {
     pub scope_statement: String,
     /// Extra statements (customer-specific), each printed as its own paragraph.
     pub statements: Vec<String>,
+    /// The EN 10204 document type and statement, when the customer orders to one.
+    #[serde(default)]
+    pub inspection_document: Option<InspectionDocument>,
     /// Release authorisation.
     pub authorisation: Authorisation,
     /// False for a held or rejected lot: every page carries a NOT RELEASED marking.
@@ -231,6 +442,9 @@ pub struct Certificate {
     /// Set on a reissue: the certificate this one replaces.
     pub supersedes: Option<Supersedes>,
 }
+
+/// Most lots shown side by side, a results column each; more get a block per lot.
+pub const LOT_COLUMNS: usize = 4;
 
 /// The standard scope statement, wording our own. ISO/IEC 17025:2017 §7.8.2.1 asks for a
 /// statement that the results relate only to the items tested, and for a report not to be
@@ -304,6 +518,55 @@ mod tests {
         std::fs::write(&p, "name = \"X\"\naddress = []\n").unwrap();
         let msg = Site::load(&p).unwrap_err().to_string();
         assert!(msg.contains("address"), "{msg}");
+    }
+
+    #[test]
+    fn a_placeholder_site_is_refused_naming_the_file_issue_17() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("site.toml");
+        Site::write_placeholder(&p).unwrap();
+        let site = Site::load(&p).unwrap();
+        assert_eq!(site, Site::placeholder());
+        assert_eq!(
+            site.placeholders(),
+            [
+                "name",
+                "address[1]",
+                "address[2]",
+                "address[3]",
+                "contact[1]",
+                "contact[2]"
+            ]
+        );
+        let err = site.check_filled_in(&p).unwrap_err();
+        assert_eq!(err.exit_code(), 2);
+        let msg = err.to_string();
+        assert!(msg.contains("site.toml: name"), "{msg}");
+        assert!(msg.contains("Edit"), "{msg}");
+        // Without the file the message says to create it.
+        let missing = dir.path().join("none").join("site.toml");
+        let msg = site.check_filled_in(&missing).unwrap_err().to_string();
+        assert!(msg.contains("Create"), "{msg}");
+        // A filled-in site passes.
+        let mut real = site.clone();
+        real.name = "Example Works".into();
+        real.address = vec!["1 Road".into()];
+        real.contact = vec![];
+        assert!(real.check_filled_in(&p).is_ok());
+    }
+
+    #[test]
+    fn specs_check_warns_about_the_site_issue_17() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("site.toml");
+        let none = site_warnings(&p, std::iter::empty()).unwrap();
+        assert!(none.contains("no site file"), "{none}");
+        Site::write_placeholder(&p).unwrap();
+        let w = site_warnings(&p, ["acme"].into_iter()).unwrap();
+        assert!(w.contains("name, address[1]"), "{w}");
+        assert!(w.contains("acme order EN 10204 type 3.1"), "{w}");
+        std::fs::write(&p, "name = \"X\"\naddress = [\"Y\"]\n").unwrap();
+        assert_eq!(site_warnings(&p, std::iter::empty()).unwrap(), "");
     }
 
     #[test]

@@ -48,8 +48,8 @@ pub enum Command {
     /// Pp, Ppk) and the viscosity–Mn check; SVG/PNG charts and a PDF report.
     #[command(after_help = EXIT_STATUS)]
     Trend(cmd::trend::Args),
-    /// Answer "what is lot X?": status, every value with unit and verdict, Mn with its
-    /// uncertainty, certificates issued and retest history.
+    /// Answer "what is lot X?" (or "what is on certificate FW-000123?"): status, every value
+    /// with unit and verdict, Mn with its uncertainty, certificates issued and retest history.
     #[command(after_help = EXIT_STATUS)]
     Lookup(cmd::lookup::Args),
     /// List the lots of a product that fit property windows or a customer's requirements,
@@ -60,6 +60,10 @@ pub enum Command {
     /// pages, find with CSV download, product trends, certificates and certificate checks.
     #[command(after_help = EXIT_STATUS)]
     Serve(cmd::serve::Args),
+    /// List the customer certificates issued (one per delivery: customer, purchase order,
+    /// quantity, lots, status), newest first, by customer, lot, PO, part number or period.
+    #[command(after_help = EXIT_STATUS)]
+    Shipments(cmd::shipments::Args),
     /// Build the demo plant's workspace (default ./resinlot-demo) and run the whole job there:
     /// releases, certificates, trends, customer questions, a cook fit and a correction.
     #[command(after_help = EXIT_STATUS)]

@@ -156,6 +156,26 @@ fn steps() -> Vec<Step> {
         &[0],
     ));
     v.push(step(
+        "certify a delivery of two lots on a new purchase order: one certificate, a column per lot",
+        &[
+            "certify",
+            "F2611-D04",
+            "F2611-D05",
+            "--customer",
+            "brantwick",
+            "--po",
+            "BE-PO-88164",
+            "--quantity",
+            "2 × 20 t",
+        ],
+        &[0],
+    ));
+    v.push(step(
+        "customer service: what did we ship to Brantwick?",
+        &["shipments", "--customer", "brantwick"],
+        &[0],
+    ));
+    v.push(step(
         "fit a cook and predict its end point",
         &[
             "cook",
@@ -336,5 +356,9 @@ mod tests {
             "17-adjust.txt"
         );
         assert_eq!(super::slug(18, &a(&["verify"])), "18-verify.txt");
+        assert_eq!(
+            super::slug(17, &a(&["shipments", "--customer", "brantwick"])),
+            "17-shipments-brantwick.txt"
+        );
     }
 }

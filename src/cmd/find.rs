@@ -1,21 +1,39 @@
-//! `resinlot find`: which lots of a product fit given windows, or a customer's requirements.
+//! `resinlot find`: which lots fit given windows, or a customer's requirements, in one product
+//! or across every product of the register.
 
-use crate::cmd::args::{self, ProductArg, RegisterFolder, SpecsFolder};
-use crate::cmd::Outcome;
-use crate::lot::evaluate::Status;
-use crate::record::find::{self, Found, Search};
-use crate::record::query::{parse_window, Window};
+use std::collections::HashMap;
+
 use chrono::NaiveDate;
+use serde_json::{json, Map, Value};
+
+use crate::cmd::args::{self, RegisterFolder, SpecsFolder};
+use crate::cmd::Outcome;
+use crate::error::Error;
+use crate::lot::evaluate::Status;
+use crate::record::find::{self, CustomerCheck, LifeCheck, LotFilter, Precision};
+use crate::record::query::{parse_window, Life, LotRow, Window};
+use crate::spec::customer::Customer;
+use crate::spec::SpecSet;
 
 /// Arguments of `resinlot find`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// The product, as the first argument or `--product`.
-    #[command(flatten)]
-    pub product: ProductArg,
+    /// Product code, e.g. PD-2000 (or give it with --product). Default: every product in the
+    /// register (the customer's products with --customer).
+    #[arg(value_name = "PRODUCT", value_parser = args::product_code)]
+    pub product_given: Option<String>,
+    /// Product code (or give it as the first argument).
+    #[arg(
+        long = "product",
+        value_name = "CODE",
+        value_parser = args::product_code,
+        conflicts_with = "product_given"
+    )]
+    pub product_flag: Option<String>,
     /// A window a lot must meet, as key=lo..hi with either end open (mn=1900..2100,
-    /// acid_value=..0.5); bounds are inclusive, on the recorded full-precision value. Repeat
-    /// for several properties.
+    /// acid_value=..0.5); bounds are inclusive, on the value rounded as the spec reports it
+    /// (ASTM E29, the spec's decimals), as certificates print it. Repeat for several
+    /// properties.
     #[arg(long = "where", value_name = "KEY=LO..HI")]
     pub windows: Vec<String>,
     /// Only lots with this status: released, on_hold, rejected or incomplete. Default: any
@@ -32,6 +50,13 @@ pub struct Args {
     /// decision rule, as `certify` would: lists the lots that can be certified for them.
     #[arg(long, value_name = "NAME")]
     pub customer: Option<String>,
+    /// The customer part number to search: its product, under its customer's requirements.
+    #[arg(long, value_name = "PN", conflicts_with_all = ["product_given", "product_flag"])]
+    pub part_number: Option<String>,
+    /// Compare and print the recorded full-precision values instead of the reported ones
+    /// (for analysis; certificates print the reported values).
+    #[arg(long)]
+    pub full_precision: bool,
     /// The register folder (`--register`).
     #[command(flatten)]
     pub register: RegisterFolder,
@@ -50,6 +75,42 @@ pub struct Args {
     pub include_expired: bool,
 }
 
+/// One product searched: its keys, the columns loaded, its lots and how they are reported.
+struct Searched {
+    product: String,
+    keys: Vec<String>,
+    loaded: Vec<String>,
+    lots: Vec<LotRow>,
+    lives: Vec<Life>,
+    precision: Option<Precision>,
+    /// Customer (file stem) of each lot released under concession, by trend-file line.
+    concessions: HashMap<usize, &'static str>,
+    /// Words and censored results of the customer's special properties (issue #15).
+    special: Option<find::SpecialCells>,
+}
+
+/// A lot found, with the product search it came from.
+struct Hit<'a> {
+    from: &'a Searched,
+    row: &'a LotRow,
+}
+
+impl Hit<'_> {
+    /// The value of `key` as printed: at the reporting precision, or full precision when the
+    /// spec does not know the key or `--full-precision` was given; `None` when absent.
+    fn value(&self, key: &str) -> Option<String> {
+        let i = self.from.loaded.iter().position(|k| k == key)?;
+        let v = self.row.values[i]?;
+        Some(
+            self.from
+                .precision
+                .as_ref()
+                .and_then(|p| p.reported(self.row, i))
+                .map_or_else(|| v.to_string(), |d| d.to_string()),
+        )
+    }
+}
+
 /// Runs the command.
 pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let windows: Vec<Window> = args
@@ -57,65 +118,376 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .iter()
         .map(|w| parse_window(w))
         .collect::<Result<_, _>>()?;
-    let path = args.product.trend_file(&args.register, "--product")?;
-    let product = args.product.code();
-    // The table needs only the windows and a few headline values; JSON and CSV need every
-    // property.
-    let found = find::search(&Search {
-        product,
-        trend_file: &path,
-        windows: &windows,
-        status: args.status,
-        from: args.from,
-        to: args.to,
-        customer: args.customer.as_deref(),
-        specs: &args.specs,
-        every: args.json || args.csv,
-        include_expired: args.include_expired,
-        today: crate::support::clock::now()?.date_naive(),
-    })?;
-    let text = if args.json {
-        serde_json::to_string_pretty(&find::json_value(product, &found))? + "\n"
-    } else if args.csv {
-        find::csv_text(product, &found)?
-    } else if found.hits.is_empty() {
-        format!("No lots match.\n{}", found.expired_text())
+    let given = args.product_given.as_ref().or(args.product_flag.as_ref());
+    let unbounded = windows.is_empty()
+        && args.customer.is_none()
+        && args.part_number.is_none()
+        && args.status.is_none()
+        && args.from.is_none()
+        && args.to.is_none();
+    if given.is_none() && unbounded {
+        // Every lot of every product is a dump, not a question (issue #12 asks for the product).
+        return Err(Error::invalid(
+            "find",
+            "no product and nothing to look for",
+            "Give the product (<PRODUCT> or --product CODE), or search every product with --where, --customer, --part-number, --status, --from or --to.",
+        )
+        .into());
+    }
+    let needs_specs = !args.full_precision || args.customer.is_some() || args.part_number.is_some();
+    // Shelf life needs the retest period of each lot's revision; without a specs folder
+    // nothing is judged expired (issue #14).
+    let specs = if needs_specs || args.specs.is_dir() {
+        Some(SpecSet::load(&args.specs)?)
     } else {
-        table_text(product, &windows, &found) + &found.expired_text()
+        None
+    };
+    let (customer, products) = scope(args, given, specs.as_ref())?;
+    let status = find::status_or_default(args.status, customer.is_some());
+    // The table needs only the windows and a few headline values; JSON, CSV and a customer's
+    // check need every property.
+    let every = args.json || args.csv || customer.is_some();
+    let mut searched = Vec::new();
+    for product in &products {
+        let path = crate::record::trend_file::path_for(&args.register, product);
+        if given.is_some() && !path.is_file() {
+            return Err(Error::invalid(
+                format!("--product '{product}'"),
+                format!("no trend file {} exists", path.display()),
+                "Check the product code; lots appear once `resinlot release` has recorded them.",
+            )
+            .into());
+        }
+        if !path.is_file() {
+            continue;
+        }
+        let keys = crate::record::query::trend_keys(&path)?;
+        if given.is_some() || products.len() == 1 {
+            find::check_window_keys(product, &keys, &windows)?;
+        } else if find::check_window_keys(product, &keys, &windows).is_err() {
+            continue; // a product without the property has no lot in the window
+        }
+        let loaded = find::keys_to_load(&keys, &windows, every);
+        let (_, lots, lives) =
+            crate::record::query::current_lots_with_life(&path, &loaded, customer.is_some())?;
+        if let (Some(specs), Some(_)) = (&specs, &customer) {
+            // Issue #15: a customer's check works from the limits the lots were decided on.
+            crate::record::frozen::refuse_changed(&path, product, specs, None)?;
+        }
+        // Words and censored results for the customer's check (issue #15).
+        let special: Option<find::SpecialCells> = match (&specs, &customer) {
+            (Some(specs), Some(_)) => {
+                let revs = specs.products.get(product.as_str());
+                let special_keys: Vec<String> = keys
+                    .iter()
+                    .filter(|k| {
+                        revs.into_iter().flatten().any(|s| {
+                            s.property(k)
+                                .is_some_and(|p| p.is_text() || p.loq.is_some())
+                        })
+                    })
+                    .cloned()
+                    .collect();
+                let lines: Vec<usize> = lots.iter().map(|l| l.line).collect();
+                let cells = crate::record::query::raw_cells(&path, &special_keys, &lines)?;
+                Some((special_keys, cells))
+            }
+            _ => None,
+        };
+        let concessions = lots
+            .iter()
+            .zip(&lives)
+            .filter(|(_, l)| !l.concession.is_empty())
+            .map(|(r, l)| (r.line, l.concession))
+            .collect();
+        let precision = match (&specs, args.full_precision) {
+            (Some(s), false) => Some(Precision::new(s, product, &lots, &loaded)),
+            _ => None,
+        };
+        searched.push(Searched {
+            product: product.clone(),
+            keys,
+            loaded,
+            lots,
+            lives,
+            precision,
+            concessions,
+            special,
+        });
+    }
+    if searched.is_empty() && !windows.is_empty() && !products.is_empty() {
+        return Err(Error::invalid(
+            format!("--where '{}=...'", windows[0].key),
+            format!(
+                "no product in {} records this property",
+                args.register.display()
+            ),
+            "Check the property key (`resinlot specs` lists each product's keys).",
+        )
+        .into());
+    }
+    let today = crate::support::clock::now()?.date_naive();
+    let mut expired = 0;
+    let mut hits: Vec<Hit> = Vec::new();
+    for s in &searched {
+        let check = match (&specs, &customer) {
+            (Some(specs), Some(cu)) => Some(CustomerCheck {
+                customer: &cu.id,
+                specs,
+                requirements: cu.product(&s.product)?,
+                special: s.special.as_ref(),
+            }),
+            _ => None,
+        };
+        let filter = LotFilter {
+            product: &s.product,
+            windows: &windows,
+            status,
+            from: args.from,
+            to: args.to,
+            customer: check,
+            life: Some(LifeCheck {
+                lives: &s.lives,
+                specs: specs.as_ref(),
+                today,
+                include_expired: args.include_expired,
+            }),
+            precision: s.precision.as_ref(),
+        };
+        let (found, gone) = find::matching_lots_counted(&s.lots, &s.loaded, &filter);
+        expired += gone;
+        hits.extend(found.into_iter().map(|row| Hit { from: s, row }));
+    }
+    hits.sort_by(|a, b| {
+        b.row
+            .manufactured
+            .cmp(&a.row.manufactured)
+            .then(a.from.product.cmp(&b.from.product))
+            .then(b.row.line.cmp(&a.row.line))
+    });
+    let text = if args.json {
+        json_text(&hits, expired)?
+    } else if args.csv {
+        csv_text(&searched, &hits)?
+    } else if hits.is_empty() {
+        format!("No lots match.\n{}", expired_text(expired))
+    } else {
+        let across = given.is_none() && args.part_number.is_none();
+        table_text(args, across, &windows, &hits, customer.as_ref()) + &expired_text(expired)
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
 }
 
-fn table_text(product: &str, windows: &[Window], found: &Found) -> String {
-    let show = find::shown_keys(&found.keys, windows);
-    let mut rows = vec![{
-        let mut h = vec!["lot".to_string(), "manufactured".into(), "status".into()];
-        h.extend(show.iter().cloned());
-        h
-    }];
-    for &i in &found.hits {
-        let r = &found.lots[i];
-        let mut line = vec![
-            r.lot.to_string(),
-            r.manufactured.to_string(),
-            found.status_text(i),
+/// The customer whose requirements apply (from --customer or the part number's owner) and
+/// the products to search: the one given, the part number's, the customer's, or every
+/// product in the register.
+fn scope(
+    args: &Args,
+    given: Option<&String>,
+    specs: Option<&SpecSet>,
+) -> anyhow::Result<(Option<Customer>, Vec<String>)> {
+    let dir = args.specs.join("customers");
+    let customer = match (&args.customer, specs) {
+        (Some(c), Some(s)) => Some(Customer::load(&dir, c, s)?),
+        _ => None,
+    };
+    if let (Some(pn), Some(s)) = (&args.part_number, specs) {
+        let all = match &customer {
+            Some(c) => vec![c.clone()],
+            None => crate::spec::customer::load_all(&dir, s)?,
+        };
+        let owners = find::part_number_owners(&all, pn);
+        return match owners.as_slice() {
+            [(c, product)] => Ok((Some((*c).clone()), vec![product.to_string()])),
+            [] => Err(Error::invalid(
+                format!("--part-number '{pn}'"),
+                format!(
+                    "no customer file in {} gives this part number",
+                    dir.display()
+                ),
+                "Check the part number as the customer's order gives it (see the customer's file).",
+            )
+            .into()),
+            many => Err(Error::invalid(
+                format!("--part-number '{pn}'"),
+                format!(
+                    "several customers use this part number ({})",
+                    many.iter()
+                        .map(|(c, p)| format!("{}: {p}", c.id))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+                "Add --customer NAME to say whose part number it is.",
+            )
+            .into()),
+        };
+    }
+    let products = match (given, &customer) {
+        (Some(p), Some(c)) => {
+            c.product(p)?;
+            vec![p.clone()]
+        }
+        (Some(p), None) => vec![p.clone()],
+        (None, Some(c)) => c.products.keys().cloned().collect(),
+        (None, None) => crate::record::query::trend_files(&args.register)?
+            .iter()
+            .filter_map(|p| p.file_stem().map(|s| s.to_string_lossy().to_string()))
+            .collect(),
+    };
+    Ok((customer, products))
+}
+
+/// The line saying how many lots were left out as past their retest date (issue #14).
+fn expired_text(expired: usize) -> String {
+    match expired {
+        0 => String::new(),
+        n => format!(
+            "{n} more lot{} matched but {} past {} retest date and left out (--include-expired lists {}).\n",
+            if n == 1 { "" } else { "s" },
+            if n == 1 { "is" } else { "are" },
+            if n == 1 { "its" } else { "their" },
+            if n == 1 { "it" } else { "them" },
+        ),
+    }
+}
+
+fn json_text(hits: &[Hit], expired: usize) -> anyhow::Result<String> {
+    let lots: Vec<Value> = hits
+        .iter()
+        .map(|h| {
+            let r = h.row;
+            let mut m = Map::new();
+            m.insert("lot".into(), json!(r.lot));
+            m.insert("product".into(), json!(h.from.product));
+            m.insert("manufactured".into(), json!(r.manufactured));
+            m.insert("status".into(), json!(r.status));
+            if let Some(c) = h.from.concessions.get(&r.line) {
+                m.insert("concession_customer".into(), json!(c));
+            }
+            for k in &h.from.keys {
+                let v = h.value(k).and_then(|t| t.parse::<f64>().ok());
+                m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
+            }
+            Value::Object(m)
+        })
+        .collect();
+    Ok(serde_json::to_string_pretty(&json!({ "lots": lots, "expired_left_out": expired }))? + "\n")
+}
+
+fn csv_text(searched: &[Searched], hits: &[Hit]) -> anyhow::Result<String> {
+    // Every product's keys, in the order they first appear.
+    let mut keys: Vec<&str> = Vec::new();
+    for s in searched {
+        for k in &s.keys {
+            if !keys.contains(&k.as_str()) {
+                keys.push(k);
+            }
+        }
+    }
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut header = vec!["lot", "product", "manufactured", "status"];
+    header.extend(keys.iter().copied());
+    w.write_record(&header)?;
+    for h in hits {
+        let mut rec = vec![
+            h.row.lot.to_string(),
+            h.from.product.clone(),
+            h.row.manufactured.to_string(),
+            h.row.status.to_string(),
         ];
+        rec.extend(keys.iter().map(|k| h.value(k).unwrap_or_default()));
+        w.write_record(&rec)?;
+    }
+    Ok(String::from_utf8(w.into_inner()?)?)
+}
+
+fn table_text(
+    args: &Args,
+    across: bool,
+    windows: &[Window],
+    hits: &[Hit],
+    customer: Option<&Customer>,
+) -> String {
+    let mut show: Vec<String> = windows.iter().map(|w| w.key.clone()).collect();
+    for k in find::HEADLINE_KEYS {
+        if hits.iter().any(|h| h.from.keys.iter().any(|x| x == k)) && !show.iter().any(|s| s == k) {
+            show.push(k.to_string());
+        }
+    }
+    let mut head = vec!["lot".to_string()];
+    if across {
+        head.push("product".into());
+    }
+    head.extend(["manufactured".to_string(), "status".into()]);
+    head.extend(show.iter().cloned());
+    let mut rows = vec![head];
+    for h in hits {
+        let mut line = vec![h.row.lot.to_string()];
+        if across {
+            line.push(h.from.product.clone());
+        }
+        let status = match h.from.concessions.get(&h.row.line) {
+            Some(c) => format!("{} (concession for {c})", h.row.status),
+            None => h.row.status.to_string(),
+        };
+        line.extend([h.row.manufactured.to_string(), status]);
         for k in &show {
-            line.push(find::table_cell(found, r, k));
+            let v = h.value(k).unwrap_or_default();
+            line.push(if args.full_precision {
+                short_number(&v)
+            } else {
+                v
+            });
         }
         rows.push(line);
     }
-    let n = found.hits.len();
     let mut t = crate::support::table::render(&rows);
+    let products: Vec<&str> = {
+        let mut p: Vec<&str> = hits.iter().map(|h| h.from.product.as_str()).collect();
+        p.sort();
+        p.dedup();
+        p
+    };
     t.push_str(&format!(
-        "{n} lot{} of {product} match{}.\n",
-        if n == 1 { "" } else { "s" },
-        found
-            .customer_name
-            .as_ref()
-            .map(|c| format!(" {c}'s requirements (tighter windows, product decision rule)"))
+        "{} lot{} of {} match{}.\n",
+        hits.len(),
+        if hits.len() == 1 { "" } else { "s" },
+        if across {
+            products.join(", ")
+        } else {
+            products.first().copied().unwrap_or_default().to_string()
+        },
+        customer
+            .map(|c| format!(
+                " {}'s requirements (tighter windows, product decision rule){}",
+                c.name,
+                args.part_number
+                    .as_ref()
+                    .map(|pn| format!(" for part number {pn}"))
+                    .unwrap_or_default()
+            ))
             .unwrap_or_default()
     ));
+    if !args.full_precision {
+        t.push_str("Values as reported (rounded to the spec's decimals, ASTM E29); --full-precision shows the recorded values.\n");
+    }
     t
+}
+
+/// Shortens a full-precision number for the table (four significant decimals at most).
+fn short_number(cell: &str) -> String {
+    match cell.parse::<f64>() {
+        Ok(v) if cell.len() > 8 => {
+            let digits = if v.abs() >= 100.0 {
+                0
+            } else if v.abs() >= 10.0 {
+                2
+            } else {
+                4
+            };
+            format!("{v:.digits$}")
+        }
+        _ => cell.to_string(),
+    }
 }

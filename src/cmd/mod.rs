@@ -15,6 +15,7 @@ pub mod init;
 pub mod lookup;
 pub mod release;
 pub mod serve;
+pub mod shipments;
 pub mod specs;
 pub mod trend;
 pub mod upgrade;
@@ -54,6 +55,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<Outcome> {
         Command::Trend(args) => trend::run(&args),
         Command::Find(args) => find::run(&args),
         Command::Serve(args) => serve::run(&args),
+        Command::Shipments(args) => shipments::run(&args),
         Command::Specs(args) => specs::run(&args),
         Command::Verify(args) => verify::run(&args),
         Command::Upgrade(args) => upgrade::run(&args),

@@ -114,14 +114,21 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             max_bytes: args.max_bytes,
             ..intake::Limits::default()
         },
+        text_keys: specs.text_keys(),
     };
-    let lots = intake::read_file(&args.results, opts)?;
+    let parsed = intake::read_file_report(&args.results, opts)?;
+    let ignored = ignored_columns(&specs, &parsed);
+    let lots = parsed.lots;
     let decisions = decide(args, &specs, &lots)?;
     let now = crate::support::clock::now()?;
     let now_text = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
     let with_certs = !args.dry_run && !args.no_certificates;
     let issuer = if with_certs {
-        Some(Issuer::new(&args.templates, &args.certificates)?)
+        let issuer = Issuer::new(&args.templates, &args.certificates)?;
+        if let Some(note) = issuer.notice() {
+            eprintln!("{note}");
+        }
+        Some(issuer)
     } else {
         None
     };
@@ -209,15 +216,61 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         drop(locks);
         (recorded, issued)
     };
-    let text = report_text(
+    let mut text = report_text(
         args, &specs, &decisions, &recorded, &issued, &completed, &withdrawn,
     )?;
+    if !ignored.is_empty() && !args.json {
+        text.push_str(&format!(
+            "Ignored columns (nothing reads them): {}.\n",
+            ignored.join(", ")
+        ));
+    }
     crate::support::output::print(&text)?;
     Ok(if decisions.iter().all(|d| d.status == Status::Released) {
         Outcome::AllGood
     } else {
         Outcome::FellShort
     })
+}
+
+/// The columns of the results file that nothing reads (issue #15): unknown columns of a long
+/// file, and value columns of a wide file that are empty on every row and are no property of
+/// any product in the file.
+fn ignored_columns(specs: &SpecSet, parsed: &intake::Parsed) -> Vec<String> {
+    let mut ignored = parsed.ignored.clone();
+    for key in &parsed.empty {
+        let known = parsed.lots.iter().any(|l| {
+            specs
+                .for_date(&l.product, l.manufactured)
+                .is_ok_and(|s| s.property(key).is_some())
+        });
+        if !known {
+            ignored.push(key.clone());
+        }
+    }
+    ignored
+}
+
+/// Refuses a test or decision time after `now` (a wrong clock or a typing error).
+fn check_lab_times(file: &str, lot: &LotResults, now: chrono::NaiveDateTime) -> anyhow::Result<()> {
+    for (column, t) in [
+        ("tested_at", &lot.tested_to),
+        ("decided_at", &lot.decided_at),
+    ] {
+        if let Some(t) = t.as_ref().filter(|t| t.earliest_utc() > now) {
+            return Err(Error::invalid(
+                format!("{file}:{}, lot '{}', column '{column}'", lot.line, lot.lot),
+                format!(
+                    "{} is in the future (now is {})",
+                    t.text,
+                    now.format("%Y-%m-%dT%H:%M:%S")
+                ),
+                "Check the date and time.",
+            )
+            .into());
+        }
+    }
+    Ok(())
 }
 
 /// After a release's rows and certificates are filed, under the trend files' locks: withdraws
@@ -326,8 +379,10 @@ fn decide(args: &Args, specs: &SpecSet, lots: &[LotResults]) -> anyhow::Result<V
     let file = args.results.display().to_string();
     let bar = progress(lots.len());
     let mut decisions = Vec::with_capacity(lots.len());
-    let today = crate::support::clock::now()?.date_naive();
+    let now = crate::support::clock::now()?;
+    let today = now.date_naive();
     for lot in lots {
+        check_lab_times(&file, lot, now.naive_utc())?;
         if lot.manufactured > today {
             return Err(Error::invalid(
                 format!("{file}:{}, lot '{}'", lot.line, lot.lot),
@@ -400,11 +455,26 @@ fn prepare_certificates(
             continue;
         }
         let spec = ctx.specs.for_date(&d.product, d.manufactured)?;
-        let mut rec = LotRecord::from_decision(d, ctx.approver, ctx.now_text);
+        let mut rec = LotRecord::from_decision(
+            d,
+            d.approver.as_deref().unwrap_or(ctx.approver),
+            d.decided_at.as_deref().unwrap_or(ctx.now_text),
+        );
         if matches!(plan, Plan::Retest { .. }) {
-            // This retest is the lot's latest; tested today, it may extend the retest date
-            // printed on its certificate (issue #14).
-            rec.latest_retest = Some(ctx.now.date_naive());
+            // This retest is the lot's latest; tested today (or when the results file says),
+            // it may extend the retest date printed on its certificate (issue #14).
+            rec.latest_retest = Some(
+                d.tested_to
+                    .as_deref()
+                    .and_then(|t| t.get(..10))
+                    .and_then(|t| chrono::NaiveDate::parse_from_str(t, "%Y-%m-%d").ok())
+                    .unwrap_or(ctx.now.date_naive()),
+            );
+            if d.tested_to.is_none() {
+                // The row leaves them empty: the day the retest is recorded.
+                let today = Some(ctx.now.date_naive());
+                rec.tested = (today, today);
+            }
         }
         // Only a retest supersedes, and only its reason is logged: a new lot in the same
         // batch carries neither.
@@ -443,6 +513,8 @@ fn prepare_certificates(
                 Plan::Retest { reason, .. } => reason.clone(),
                 _ => String::new(),
             },
+            po: String::new(),
+            quantity: String::new(),
         });
     }
     Ok(pending)

@@ -101,7 +101,21 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     for (file, kind) in outputs(args) {
         output::check_destination(&file, kind, &record)?;
     }
-    let keys = crate::record::query::trend_keys(&path)?;
+    let all_keys = crate::record::query::trend_keys(&path)?;
+    // Text properties are not trended (issue #15); they are named once below.
+    let text_keys = product::text_columns(&specs, args.product.code(), &all_keys);
+    if let Some(p) = args.property.as_ref().filter(|p| text_keys.contains(p)) {
+        return Err(Error::invalid(
+            format!("--property '{p}'"),
+            format!("{p} is a text property: its results are words, which have no trend"),
+            "Choose a numeric property; `resinlot find` and `lookup` show the words.",
+        )
+        .into());
+    }
+    let keys: Vec<String> = all_keys
+        .into_iter()
+        .filter(|k| !text_keys.contains(k))
+        .collect();
     if let Some(p) = &args.property {
         if !keys.contains(p) {
             return Err(Error::invalid(
@@ -124,7 +138,20 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         .into());
     }
     let spec = product::spec_for(&specs, args.product.code(), &lots);
-    let trends = product::property_trends(&TrendRequest {
+    let censorable = product::censorable_columns(&specs, args.product.code(), &columns);
+    let censored: Vec<(String, usize)> = if censorable.is_empty() {
+        Vec::new()
+    } else {
+        let lines: Vec<usize> = lots.iter().map(|l| l.line).collect();
+        let counts = crate::record::query::censored_counts(&path, &censorable, &lines)?;
+        censorable.into_iter().zip(counts).collect()
+    };
+    let text_keys: Vec<String> = if args.property.is_some() {
+        Vec::new()
+    } else {
+        text_keys
+    };
+    let mut trends = product::property_trends(&TrendRequest {
         product: args.product.code(),
         columns: &columns,
         lots: &lots,
@@ -133,6 +160,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         baseline: &baseline,
         rules,
     })?;
+    product::note_censored(&mut trends, &censored);
     let visc = product::viscosity_check_of(&lots, &columns);
     if let (Some(path), Some(t)) = (&args.chart, trends.first()) {
         write_chart(path, t, args.png, &record)?;
@@ -154,6 +182,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                 "product": args.product.code(),
                 "properties": trends.iter().map(text::trend_json).collect::<Vec<_>>(),
                 "viscosity_vs_mn": visc.as_ref().map(text::visc_json),
+                "not_trended_text": text_keys,
             })
         };
         serde_json::to_string_pretty(&v)? + "\n"
@@ -165,7 +194,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             &trends,
             visc.as_ref(),
             args.released_only,
-        )
+        ) + &product::exclusions_text(&text_keys, &censored)
     };
     crate::support::output::print(&text)?;
     Ok(if product::any_signal(&trends, visc.as_ref()) {

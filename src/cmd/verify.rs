@@ -3,7 +3,7 @@
 use std::path::PathBuf;
 use std::time::Duration;
 
-use crate::cmd::args::{CertificatesFolder, Locking, RegisterFolder};
+use crate::cmd::args::{CertificatesFolder, Locking, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::record::certfiles;
 use crate::record::integrity::{self, CertVerdict, Repair};
@@ -13,9 +13,9 @@ use crate::record::trend_file::Wait;
 /// Arguments of `resinlot verify`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Certificate PDFs to identify against the issue log: genuine (current, exit 0),
-    /// superseded, withdrawn, altered or unknown (exit 1). Without any, the whole record is
-    /// checked instead.
+    /// Certificate PDFs, or their JSON data companions, to identify against the issue log:
+    /// genuine (current, exit 0), superseded, withdrawn, altered or unknown (exit 1). Without
+    /// any, the whole record is checked instead.
     #[arg(id = "pdf", value_name = "CERTIFICATES")]
     pub certificates: Vec<PathBuf>,
     /// The register folder (`--register`).
@@ -24,6 +24,10 @@ pub struct Args {
     /// The certificates folder (`--certificates`).
     #[command(flatten)]
     pub certificates_folder: CertificatesFolder,
+    /// The specs folder (`--specs`): every lot's recorded spec SHA-256 is compared with the
+    /// revision file there. When the folder does not exist, verify says so and skips this.
+    #[command(flatten)]
+    pub specs: SpecsFolder,
     /// Move a torn last line (left by an interrupted write) to a side file beside the trend
     /// file, never deleting it, or restore the line end of a complete last row that lacks
     /// one, or record the head of a trend file whose last rows were appended without one (a
@@ -87,10 +91,19 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     }
     // The certificates folder against the log and the trend files (issue #13, items 7-9).
     let findings = certfiles::check_folder(&args.register, &args.certificates_folder)?;
-    let ok = checks.iter().all(integrity::FileCheck::ok) && findings.is_empty();
+    // The limits on record against today's spec files (issue #15).
+    let specs = if args.specs.is_dir() {
+        let set = crate::spec::SpecSet::load(&args.specs)?;
+        Some(crate::record::frozen::check_register(&args.register, &set)?)
+    } else {
+        None
+    };
+    let ok = checks.iter().all(integrity::FileCheck::ok)
+        && findings.is_empty()
+        && specs.as_ref().is_none_or(|s| s.changed.is_empty());
     if args.json {
         out = serde_json::to_string_pretty(
-            &serde_json::json!({ "intact": ok, "files": checks, "certificates_folder": findings }),
+            &serde_json::json!({ "intact": ok, "files": checks, "certificates_folder": findings, "specs": specs }),
         )? + "\n";
     } else {
         for c in &checks {
@@ -131,6 +144,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                 f.fix
             ));
         }
+        out.push_str(&specs_text(&args.specs, specs.as_ref()));
         out.push_str(if ok {
             "The record is intact.\n"
         } else {
@@ -143,6 +157,32 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     } else {
         Outcome::FellShort
     })
+}
+
+/// What verify says of the spec revisions the lots were decided on.
+pub fn specs_text(
+    dir: &std::path::Path,
+    specs: Option<&crate::record::frozen::RegisterSpecs>,
+) -> String {
+    let Some(specs) = specs else {
+        return format!(
+            "{}: not found, so the spec revisions recorded on the lots were not compared (give --specs)\n",
+            dir.display()
+        );
+    };
+    let mut out = String::new();
+    for c in &specs.changed {
+        out.push_str(&format!("{}: BROKEN: {}\n", dir.display(), c.message()));
+    }
+    if specs.unrecorded > 0 {
+        out.push_str(&format!(
+            "{}: {} row{} recorded before spec hashes were kept cannot be compared with the spec files\n",
+            dir.display(),
+            specs.unrecorded,
+            if specs.unrecorded == 1 { "" } else { "s" }
+        ));
+    }
+    out
 }
 
 /// The line `verify --quarantine` prints for one repair of `path`.

@@ -492,7 +492,7 @@ fn kinetics_panel(svg: &mut Svg, input: &ChartInput, av: &AcidValuePanel, x: &Sc
         .fold(input.target_y, f64::max);
     let y = Scale::linear(0.0, top_y * 1.08, B_BOTTOM, B_TOP);
     let title = format!(
-        "(b) Kinetics check: {} against time, order {}, R² {:.3}",
+        "(b) Kinetics check: {} against time, order {}, R² {:.4}",
         y_label(input.order, input.excess),
         input.order,
         av.r_squared

@@ -10,9 +10,11 @@ use serde::Serialize;
 use crate::chem::analysis::{analyse, Titration};
 use crate::chem::hydroxyl_method::AcidityCorrection;
 use crate::error::{Error, Result};
-use crate::lot::intake::{LotResults, Reading};
+use crate::lot::intake::{entered_text, Form, LotResults, Reading};
 use crate::lot::note::LotNote;
-use crate::spec::decision::{decimal_from_f64, round, verdict, DecisionRule, Verdict};
+use crate::spec::decision::{
+    censored_text, censored_verdict, decimal_from_f64, round, verdict, DecisionRule, Verdict,
+};
 use crate::spec::keys;
 use crate::spec::units::unit_factor;
 use crate::spec::{ProductSpec, Property};
@@ -99,6 +101,22 @@ pub struct LotDecision {
     pub properties: Vec<PropertyResult>,
     /// Reasons and notes (conditional results, corrections, missing values).
     pub notes: Vec<LotNote>,
+    /// Analysts of the lot's results, as named in the results file.
+    pub analysts: Vec<String>,
+    /// Earliest `tested_at` of the results, when the results file gives test times.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub tested_from: Option<String>,
+    /// Latest `tested_at` of the results, when the results file gives test times.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub tested_to: Option<String>,
+    /// Approver named for the lot in the results file (history imports).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub approver: Option<String>,
+    /// Decision time given in the results file (history imports): recorded instead of now.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub decided_at: Option<String>,
+    /// SHA-256 of the spec revision file the lot was decided on.
+    pub spec_sha256: String,
 }
 
 impl LotDecision {
@@ -194,7 +212,7 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
     check_entered_keys(spec, lot, file)?;
     let mut notes = Vec::new();
     let means = measured_means(spec, lot, file, &mut notes)?;
-    let mut results = measured_results(spec, &means.values);
+    let mut results = measured_results(spec, &means);
     let derived_missing = derived_results(spec, lot, file, &means.values, &mut results)?;
     for r in &results {
         if let Some(v) = r.verdict {
@@ -209,6 +227,7 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
             }
         }
     }
+    notes.extend(lot.notes.iter().map(|n| LotNote::lab(n)));
     let worst = results.iter().filter_map(|r| r.verdict).max();
     let status = if worst == Some(Verdict::Fail) {
         Status::Rejected
@@ -227,6 +246,12 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
         status,
         properties: results,
         notes,
+        analysts: lot.analysts.clone(),
+        tested_from: lot.tested_from.as_ref().map(|t| t.text.clone()),
+        tested_to: lot.tested_to.as_ref().map(|t| t.text.clone()),
+        approver: lot.approver.clone(),
+        decided_at: lot.decided_at.as_ref().map(|t| t.text.clone()),
+        spec_sha256: spec.sha256.clone(),
     })
 }
 
@@ -263,10 +288,21 @@ fn check_entered_keys(spec: &ProductSpec, lot: &LotResults, file: &str) -> Resul
     Ok(())
 }
 
+/// A result that is not a number: a word of a text property, or a censored result.
+#[derive(Debug, Clone, PartialEq)]
+enum Special {
+    /// The allowed word, as written in the spec.
+    Word(String),
+    /// Below the stated limit, in the spec's unit.
+    Below(Decimal),
+}
+
 /// The means of the measured properties of one lot.
 struct Means {
     /// Mean of the replicates, by property key, in spec order.
     values: Vec<(String, Decimal)>,
+    /// Words and censored results, by property key.
+    special: Vec<(String, Special)>,
     /// A measured property has no reading.
     any_missing: bool,
     /// A replicate range exceeds the property's repeatability limit.
@@ -283,6 +319,7 @@ fn measured_means(
 ) -> Result<Means> {
     let mut means = Means {
         values: Vec::new(),
+        special: Vec::new(),
         any_missing: false,
         repeat_fail: false,
     };
@@ -292,6 +329,10 @@ fn measured_means(
             notes.push(LotNote::not_measured(&p.label));
             continue;
         };
+        if let Some(sp) = special_result(lot, p, readings, file)? {
+            means.special.push((p.key.clone(), sp));
+            continue;
+        }
         let m = mean_reading(lot, p, readings, notes, file)?;
         if m.n > 1 {
             match p.repeatability {
@@ -307,8 +348,148 @@ fn measured_means(
     Ok(means)
 }
 
+/// The word or censored result of property `p`, or `None` when its readings are numbers;
+/// refuses what the spec does not allow (issue #15): a word that is not in the allowed list,
+/// a number for a text property or a word for a numeric one, `<L` or `nd` without a limit of
+/// quantification, a stated limit under the LOQ or above the maximum, and censored and
+/// quantified replicates mixed.
+fn special_result(
+    lot: &LotResults,
+    p: &Property,
+    readings: &[Reading],
+    file: &str,
+) -> Result<Option<Special>> {
+    let place = |r: &Reading| format!("{file}:{}, lot '{}', {}", r.line, lot.lot, p.key);
+    if let crate::spec::Kind::Text { allowed, .. } = &p.kind {
+        let mut word: Option<&str> = None;
+        for r in readings {
+            let entered = entered_text(r.value, &r.form);
+            let w = p.allowed_word(&entered).ok_or_else(|| {
+                Error::invalid(
+                    place(r),
+                    format!("'{entered}' is not one of the words this property allows"),
+                    format!("Enter one of: {}.", allowed.join(", ")),
+                )
+            })?;
+            if word.is_some_and(|old| old != w) {
+                return Err(Error::invalid(
+                    place(r),
+                    format!(
+                        "'{w}' differs from '{}' given for the same lot",
+                        word.unwrap_or("")
+                    ),
+                    "Enter the reported result once.",
+                ));
+            }
+            word = Some(w);
+        }
+        return Ok(word.map(|w| Special::Word(w.to_string())));
+    }
+    let mut below: Option<Decimal> = None;
+    let mut numbers = false;
+    for r in readings {
+        let limit = match &r.form {
+            Form::Number => {
+                numbers = true;
+                continue;
+            }
+            Form::Word(w) => {
+                return Err(Error::invalid(
+                    place(r),
+                    format!("'{w}' is not a number"),
+                    "Enter the result as a plain decimal number, e.g. 55.2, or as <L below the limit of quantification.",
+                ))
+            }
+            Form::Below => r.value,
+            Form::NotDetected => p.loq.unwrap_or_default(),
+        };
+        let Some(loq) = p.loq else {
+            return Err(Error::invalid(
+                place(r),
+                format!(
+                    "'{}' is a result below a limit, but the spec gives no limit of quantification for {}",
+                    entered_text(r.value, &r.form),
+                    p.key
+                ),
+                "Enter the measured number, or add loq = ... to the property in the spec.",
+            ));
+        };
+        let limit = match &r.unit {
+            Some(u) => {
+                limit
+                    * unit_factor(u, &p.unit).ok_or_else(|| {
+                        Error::invalid(
+                    place(r),
+                    format!("unit '{u}' cannot be converted to the spec's '{}'", p.unit),
+                    "Report the result in the spec's unit (known conversions: cP, mPa·s, Pa·s).",
+                )
+                    })?
+            }
+            None => limit,
+        };
+        if limit < loq {
+            return Err(Error::invalid(
+                place(r),
+                format!("'<{limit}' is below the limit of quantification {loq}"),
+                format!("A result cannot be stated below the LOQ: enter <{loq} or nd."),
+            ));
+        }
+        if let Some(max) = p.max.filter(|m| limit > *m) {
+            return Err(Error::invalid(
+                place(r),
+                format!("'<{limit}' is above the maximum {max}, so it cannot show conformity"),
+                "Enter the measured number (a method with a lower limit of quantification may be needed).",
+            ));
+        }
+        below = Some(below.map_or(limit, |b: Decimal| b.max(limit)));
+    }
+    match below {
+        Some(_) if numbers => Err(Error::invalid(
+            place(&readings[0]),
+            "quantified and below-limit replicates are mixed",
+            "Enter the reported result: either the number or <L, not both.",
+        )),
+        Some(l) => Ok(Some(Special::Below(l.normalize()))),
+        None => Ok(None),
+    }
+}
+
+/// The decided result of a word or a censored result.
+fn special_decided(spec: &ProductSpec, p: &Property, sp: &Special) -> PropertyResult {
+    let mut r = missing(p);
+    match sp {
+        Special::Word(w) => {
+            r.exact = Some(w.clone());
+            r.reported = Some(w.clone());
+            r.verdict = Some(if p.conforms(w) {
+                Verdict::Pass
+            } else {
+                Verdict::Fail
+            });
+        }
+        Special::Below(l) => {
+            let u = guard_uncertainty(spec, p);
+            let w = match spec.decision_rule {
+                DecisionRule::Guarded => u.unwrap_or_default(),
+                DecisionRule::Simple => Decimal::ZERO,
+            };
+            r.exact = Some(crate::spec::decision::RecordedResult::Below(*l).cell());
+            r.reported = Some(censored_text(*l, p.decimals));
+            r.verdict = if p.has_limit() {
+                censored_verdict(*l, p.min, p.max, w)
+            } else {
+                None
+            };
+            r.uncertainty = u.map(to_f64);
+        }
+    }
+    r
+}
+
 /// The result of every measured property, in spec order, from the replicate means.
-fn measured_results(spec: &ProductSpec, means: &[(String, Decimal)]) -> Vec<PropertyResult> {
+fn measured_results(spec: &ProductSpec, means: &Means) -> Vec<PropertyResult> {
+    let special = &means.special;
+    let means = &means.values;
     let guarded = spec.decision_rule == DecisionRule::Guarded;
     let av_mean = means
         .iter()
@@ -316,6 +497,10 @@ fn measured_results(spec: &ProductSpec, means: &[(String, Decimal)]) -> Vec<Prop
         .map(|(_, v)| *v);
     let mut results = Vec::new();
     for p in spec.measured() {
+        if let Some((_, sp)) = special.iter().find(|(k, _)| *k == p.key) {
+            results.push(special_decided(spec, p, sp));
+            continue;
+        }
         let Some(entered) = means.iter().find(|(k, _)| *k == p.key).map(|(_, v)| *v) else {
             results.push(missing(p));
             continue;
@@ -678,6 +863,74 @@ decimals = 0
                 .any(|n| n.kind == NoteKind::RepeatabilityExceeded
                     && n.text.contains("repeatability"))
         );
+    }
+
+    // Test fixture (invented): text and below-LOQ properties (issue #15).
+    const TW: &str = r#"
+code = "TW-10"
+name = "Test"
+revision = "A"
+effective = 2026-01-01
+functionality = 2.0
+decision_rule = "guarded"
+retest_months = 12
+[properties.water]
+label = "Water"
+unit = "%"
+max = 0.05
+decimals = 2
+uncertainty = 0.01
+loq = 0.01
+[properties.appearance]
+label = "Appearance"
+kind = "text"
+allowed = ["clear", "hazy"]
+conforming = ["clear"]
+"#;
+
+    fn run_tw(csv: &str) -> Result<LotDecision> {
+        let spec = ProductSpec::parse(Path::new("s.toml"), TW).unwrap();
+        let opts = Options {
+            text_keys: ["appearance".to_string()].into_iter().collect(),
+            ..Options::default()
+        };
+        let lots = parse("r.csv", csv.as_bytes(), opts).unwrap();
+        evaluate(&spec, &lots[0], "r.csv")
+    }
+
+    #[test]
+    fn words_and_censored_results_are_decided_issue_15() {
+        let head = "lot,product,manufactured,water,appearance\n";
+        let d = run_tw(&format!("{head}L1,TW-10,2026-10-01,<0.01,CLEAR\n")).unwrap();
+        assert_eq!(d.status, Status::Released);
+        let w = d.get("water").unwrap();
+        // Stored as <L, reported "< 0.01", no number; U = 0.01: 0.01 <= 0.05 - 0.01 passes.
+        assert_eq!(
+            (w.exact.as_deref(), w.reported.as_deref(), w.value),
+            (Some("<0.01"), Some("< 0.01"), None)
+        );
+        assert_eq!(w.verdict, Some(Verdict::Pass));
+        let a = d.get("appearance").unwrap();
+        assert_eq!(a.exact.as_deref(), Some("clear"));
+        // 0.045 > 0.05 - 0.01: conditional pass, the lot is held; a non-conforming word fails.
+        let d = run_tw(&format!("{head}L1,TW-10,2026-10-01,<0.045,hazy\n")).unwrap();
+        assert_eq!(
+            d.get("water").unwrap().verdict,
+            Some(Verdict::ConditionalPass)
+        );
+        assert_eq!(d.get("appearance").unwrap().verdict, Some(Verdict::Fail));
+        assert_eq!(d.status, Status::Rejected);
+        // nd is censored at the LOQ.
+        let d = run_tw(&format!("{head}L1,TW-10,2026-10-01,ND,clear\n")).unwrap();
+        assert_eq!(d.get("water").unwrap().exact.as_deref(), Some("<0.01"));
+        for (cells, want) in [
+            ("<0.06,clear", "above the maximum"),
+            ("<0.001,clear", "below the limit of quantification"),
+            ("0.02,cloudy", "not one of the words"),
+        ] {
+            let e = run_tw(&format!("{head}L1,TW-10,2026-10-01,{cells}\n")).unwrap_err();
+            assert!(e.to_string().contains(want), "{want}: {e}");
+        }
     }
 
     #[test]

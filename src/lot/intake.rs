@@ -1,10 +1,10 @@
 //! Lab results intake: wide or long CSV, comma or semicolon, decimal point or comma, with BOM.
 
-use std::collections::HashMap;
+use std::collections::{BTreeSet, HashMap};
 use std::path::Path;
 use std::str::FromStr;
 
-use chrono::NaiveDate;
+use chrono::{NaiveDate, NaiveDateTime};
 use indexmap::IndexMap;
 use rust_decimal::Decimal;
 
@@ -33,11 +33,27 @@ impl Default for Limits {
     }
 }
 
+/// How a result was entered (issue #15).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Form {
+    /// A number; the reading's `value` is it.
+    Number,
+    /// Below a stated limit, entered as `<0.01` or `< 0.01`; `value` is the limit.
+    Below,
+    /// `nd` (not detected): below the spec's limit of quantification, applied when the lot is
+    /// evaluated; `value` is zero until then.
+    NotDetected,
+    /// A word, in a column or row of a text property; `value` is zero.
+    Word(String),
+}
+
 /// One entered result (a replicate), as read.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Reading {
-    /// The value exactly as entered, as a decimal.
+    /// The value exactly as entered, as a decimal (see `form` for `<`, `nd` and words).
     pub value: Decimal,
+    /// How the result was entered.
+    pub form: Form,
     /// Unit given in the file, if any.
     pub unit: Option<String>,
     /// Measurement temperature given in the file (°C), if any.
@@ -61,19 +77,119 @@ pub struct LotResults {
     pub analysts: Vec<String>,
     /// Line of the lot's first row.
     pub line: u64,
+    /// Earliest `tested_at` of the lot's results, when the file gives one.
+    pub tested_from: Option<LabTime>,
+    /// Latest `tested_at` of the lot's results, when the file gives one.
+    pub tested_to: Option<LabTime>,
+    /// Lab notes (`notes` column), distinct, in file order.
+    pub notes: Vec<String>,
+    /// Approver named for the lot in the file (history imports), if any.
+    pub approver: Option<String>,
+    /// Decision time given for the lot in the file (history imports), if any.
+    pub decided_at: Option<LabTime>,
 }
 
+/// A date or time as a lab file gives it (`tested_at`, `decided_at`): a date `YYYY-MM-DD`,
+/// a time with a zone (RFC 3339, kept in UTC) or a local time `YYYY-MM-DD HH:MM[:SS]`.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct LabTime {
+    /// As recorded: `YYYY-MM-DD`, `YYYY-MM-DDTHH:MM:SSZ` or `YYYY-MM-DDTHH:MM:SS` (local).
+    pub text: String,
+    /// For ordering: the start of the day for a date, UTC for a zoned time.
+    pub at: NaiveDateTime,
+}
+
+impl LabTime {
+    /// Parses one of the accepted forms; `None` for anything else.
+    pub fn parse(v: &str) -> Option<LabTime> {
+        let v = v.trim();
+        if let Ok(d) = NaiveDate::parse_from_str(v, "%Y-%m-%d") {
+            return Some(LabTime {
+                text: d.to_string(),
+                at: d.and_hms_opt(0, 0, 0)?,
+            });
+        }
+        if let Ok(t) = chrono::DateTime::parse_from_rfc3339(v) {
+            let utc = t.with_timezone(&chrono::Utc);
+            return Some(LabTime {
+                text: utc.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
+                at: utc.naive_utc(),
+            });
+        }
+        for f in [
+            "%Y-%m-%dT%H:%M:%S",
+            "%Y-%m-%dT%H:%M",
+            "%Y-%m-%d %H:%M:%S",
+            "%Y-%m-%d %H:%M",
+        ] {
+            if let Ok(t) = NaiveDateTime::parse_from_str(v, f) {
+                return Some(LabTime {
+                    text: t.format("%Y-%m-%dT%H:%M:%S").to_string(),
+                    at: t,
+                });
+            }
+        }
+        None
+    }
+
+    /// The calendar date.
+    pub fn date(&self) -> NaiveDate {
+        self.at.date()
+    }
+
+    /// The earliest UTC instant it can stand for: itself when zoned; a local time or date
+    /// may be as far as UTC+14:00 ahead (the largest offset in use, IANA tz database).
+    pub fn earliest_utc(&self) -> NaiveDateTime {
+        if self.text.ends_with('Z') {
+            self.at
+        } else {
+            self.at - chrono::Duration::hours(14)
+        }
+    }
+}
+
+/// A results file as read: its lots, and the columns it had that nothing reads.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Parsed {
+    /// The lots, in file order.
+    pub lots: Vec<LotResults>,
+    /// Columns that are neither a known column nor a value column (long files), named so
+    /// that nothing in the file disappears silently.
+    pub ignored: Vec<String>,
+    /// Value columns of a wide file that hold no value on any row (ignored unless the spec
+    /// has the property, which is then missing).
+    pub empty: Vec<String>,
+}
+
+/// Columns with a meaning of their own besides the values (both shapes).
+const META_COLUMNS: [&str; 6] = [
+    "analyst",
+    "tested_at",
+    "notes",
+    "approver",
+    "decided_at",
+    "manufactured",
+];
+
 /// Options for reading a results file.
-#[derive(Debug, Clone, Copy, Default)]
+#[derive(Debug, Clone, Default)]
 pub struct Options {
     /// Numbers use a decimal comma (then the delimiter must be ';').
     pub decimal_comma: bool,
     /// Size bounds.
     pub limits: Limits,
+    /// Property keys whose results are words (`kind = "text"` in some spec): their cells are
+    /// read as words, every other value cell as a number, `<L` or `nd`.
+    pub text_keys: BTreeSet<String>,
 }
 
 /// Reads and validates a results file; `name` is used in messages.
 pub fn read_file(path: &Path, opts: Options) -> Result<Vec<LotResults>> {
+    read_file_report(path, opts).map(|p| p.lots)
+}
+
+/// Reads and validates a results file, also naming the columns nothing reads.
+pub fn read_file_report(path: &Path, opts: Options) -> Result<Parsed> {
     let name = path.display().to_string();
     let meta = std::fs::metadata(path).map_err(|e| Error::io(path, "reading", e))?;
     if meta.len() > opts.limits.max_bytes {
@@ -106,11 +222,16 @@ pub fn read_file(path: &Path, opts: Options) -> Result<Vec<LotResults>> {
             "Split the file, or raise the limit with --max-bytes if it is genuine.",
         ));
     }
-    parse(&name, &bytes, opts)
+    parse_report(&name, &bytes, opts)
 }
 
 /// Parses results from bytes.
 pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>> {
+    parse_report(name, bytes, opts).map(|p| p.lots)
+}
+
+/// Parses results from bytes, also naming the columns nothing reads.
+pub fn parse_report(name: &str, bytes: &[u8], opts: Options) -> Result<Parsed> {
     if let Some(why) = utf16_sign(bytes) {
         return Err(Error::invalid(
             format!("{name}:1"),
@@ -191,11 +312,15 @@ pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>>
         headers: &headers,
         opts,
     };
-    let lots = if headers.iter().any(|h| h == "property") {
-        ctx.long(&mut reader)?
+    let (lots, ignored, empty) = if headers.iter().any(|h| h == "property") {
+        (ctx.long(&mut reader)?, ctx.ignored_long(), Vec::new())
     } else {
-        ctx.wide(&mut reader)?
+        let (lots, empty) = ctx.wide(&mut reader)?;
+        (lots, Vec::new(), empty)
     };
+    for lot in &lots {
+        ctx.check_times(lot)?;
+    }
     if lots.is_empty() {
         return Err(Error::invalid(
             name,
@@ -203,7 +328,11 @@ pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>>
             "Add one row per lot (wide) or per test result (long).",
         ));
     }
-    Ok(lots)
+    Ok(Parsed {
+        lots,
+        ignored,
+        empty,
+    })
 }
 
 /// Why `bytes` look like UTF-16 rather than UTF-8 text, if they do: a UTF-16 byte-order mark
@@ -251,8 +380,19 @@ fn unterminated_quote(text: &str) -> Option<usize> {
     open.then_some(opened_at)
 }
 
-/// Numbered replicates seen in a long file: (lot, key, replicate) -> (value, line).
-type Replicates = HashMap<(String, String, String), (Decimal, u64)>;
+/// Numbered replicates seen in a long file: (lot, key, replicate) -> (value, form, line).
+type Replicates = HashMap<(String, String, String), (Decimal, Form, u64)>;
+
+/// The lot-level columns of one row: who tested when, notes, and a history import's
+/// approver and decision time.
+#[derive(Debug, Default)]
+struct RowMeta {
+    analyst: Option<String>,
+    tested: Option<LabTime>,
+    note: Option<String>,
+    approver: Option<String>,
+    decided_at: Option<LabTime>,
+}
 
 struct Ctx<'a> {
     name: &'a str,
@@ -392,6 +532,145 @@ impl Ctx<'_> {
         Ok(d)
     }
 
+    /// A result cell of property `key`: a word for a text key; else a number, `<L` (with or
+    /// without a space) or `nd`.
+    fn result(&self, v: &str, line: u64, key: &str) -> Result<(Decimal, Form)> {
+        if self.opts.text_keys.contains(key) {
+            return Ok((Decimal::ZERO, Form::Word(v.to_string())));
+        }
+        if let Some(limit) = v.strip_prefix('<') {
+            return Ok((self.number(limit.trim(), line, key)?, Form::Below));
+        }
+        if v.eq_ignore_ascii_case("nd") {
+            return Ok((Decimal::ZERO, Form::NotDetected));
+        }
+        Ok((self.number(v, line, key)?, Form::Number))
+    }
+
+    /// The lot-level columns of a row (empty cells are absent).
+    fn row_meta(&self, rec: &csv::StringRecord, line: u64) -> Result<RowMeta> {
+        let text = |column: &str| -> Result<Option<String>> {
+            match self.col(column) {
+                Some(i) => Ok(Some(self.cell(rec, i, line)?.to_string()).filter(|v| !v.is_empty())),
+                None => Ok(None),
+            }
+        };
+        let time = |column: &str| -> Result<Option<LabTime>> {
+            let Some(v) = text(column)? else {
+                return Ok(None);
+            };
+            LabTime::parse(&v).map(Some).ok_or_else(|| {
+                Error::invalid(
+                    format!("{}:{line}, column '{column}'", self.name),
+                    format!("'{v}' is not a date or time"),
+                    "Write YYYY-MM-DD, YYYY-MM-DD HH:MM, or an RFC 3339 time such as 2026-11-03T14:20:00Z.",
+                )
+            })
+        };
+        let approver = text("approver")?;
+        if let Some(a) = &approver {
+            crate::support::text::check_line(
+                &format!("{}:{line}, column 'approver'", self.name),
+                "approver name",
+                a,
+                80,
+            )?;
+        }
+        Ok(RowMeta {
+            analyst: text("analyst")?,
+            tested: time("tested_at")?,
+            note: text("notes")?,
+            approver,
+            decided_at: time("decided_at")?,
+        })
+    }
+
+    /// Adds a row's lot-level columns to its lot; a lot has one approver and one decision
+    /// time, so a row that gives another is refused.
+    fn merge_meta(&self, lot: &mut LotResults, m: RowMeta, line: u64) -> Result<()> {
+        // "AB;CD" names two analysts (the record joins analysts with ';').
+        for a in m.analyst.iter().flat_map(|a| a.split(';')) {
+            let a = a.trim().to_string();
+            if !a.is_empty() && !lot.analysts.contains(&a) {
+                lot.analysts.push(a);
+            }
+        }
+        if let Some(t) = m.tested {
+            if lot.tested_from.as_ref().is_none_or(|f| t.at < f.at) {
+                lot.tested_from = Some(t.clone());
+            }
+            if lot.tested_to.as_ref().is_none_or(|f| t.at > f.at) {
+                lot.tested_to = Some(t);
+            }
+        }
+        if let Some(n) = m.note {
+            if !lot.notes.contains(&n) {
+                lot.notes.push(n);
+            }
+        }
+        let conflict = |column: &str, old: &str, new: &str| {
+            Error::invalid(
+                format!("{}:{line}, lot '{}', column '{column}'", self.name, lot.lot),
+                format!("'{new}' differs from '{old}' given earlier for the lot"),
+                format!("Give one {column} per lot."),
+            )
+        };
+        if let Some(a) = m.approver {
+            match &lot.approver {
+                Some(old) if *old != a => return Err(conflict("approver", old, &a)),
+                _ => lot.approver = Some(a),
+            }
+        }
+        if let Some(d) = m.decided_at {
+            match &lot.decided_at {
+                Some(old) if *old != d => return Err(conflict("decided_at", &old.text, &d.text)),
+                _ => lot.decided_at = Some(d),
+            }
+        }
+        Ok(())
+    }
+
+    /// A lot is tested and decided on or after its manufacture date.
+    fn check_times(&self, lot: &LotResults) -> Result<()> {
+        for (column, t) in [
+            ("tested_at", &lot.tested_from),
+            ("decided_at", &lot.decided_at),
+        ] {
+            if let Some(t) = t.as_ref().filter(|t| t.date() < lot.manufactured) {
+                return Err(Error::invalid(
+                    format!(
+                        "{}:{}, lot '{}', column '{column}'",
+                        self.name, lot.line, lot.lot
+                    ),
+                    format!(
+                        "{} is before the manufacture date {}",
+                        t.text, lot.manufactured
+                    ),
+                    "Check the date; a lot is tested and decided after it is made.",
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    /// The columns of a long file that nothing reads, in header order.
+    fn ignored_long(&self) -> Vec<String> {
+        const LONG: [&str; 7] = [
+            "lot",
+            "product",
+            "property",
+            "value",
+            "unit",
+            "replicate",
+            "temperature_c",
+        ];
+        self.headers
+            .iter()
+            .filter(|h| !LONG.contains(&h.as_str()) && !META_COLUMNS.contains(&h.as_str()))
+            .cloned()
+            .collect()
+    }
+
     fn temperature(&self, v: &str, line: u64, column: &str) -> Result<Option<f64>> {
         if v.is_empty() {
             return Ok(None);
@@ -408,18 +687,17 @@ impl Ctx<'_> {
         Ok(Some(t))
     }
 
-    fn wide(&self, reader: &mut csv::Reader<&[u8]>) -> Result<Vec<LotResults>> {
+    fn wide(&self, reader: &mut csv::Reader<&[u8]>) -> Result<(Vec<LotResults>, Vec<String>)> {
         let idx = self.require(&["lot", "product", "manufactured"], "wide")?;
         let vt = self.col("viscosity_temperature_c");
-        let analyst = self.col("analyst");
         let value_cols: Vec<usize> = (0..self.headers.len())
             .filter(|i| {
                 !idx.contains(i)
                     && Some(*i) != vt
-                    && Some(*i) != analyst
-                    && self.headers[*i] != "notes"
+                    && !META_COLUMNS.contains(&self.headers[*i].as_str())
             })
             .collect();
+        let mut filled = vec![false; self.headers.len()];
         for &i in &value_cols {
             let h = &self.headers[i];
             let ok = h.chars().next().is_some_and(|c| c.is_ascii_lowercase())
@@ -455,8 +733,9 @@ impl Ctx<'_> {
                 if v.is_empty() {
                     continue;
                 }
+                filled[i] = true;
                 let key = self.headers[i].clone();
-                let value = self.number(v, line, &key)?;
+                let (value, form) = self.result(v, line, &key)?;
                 let t = if key == keys::VISCOSITY {
                     temperature_c
                 } else {
@@ -466,31 +745,28 @@ impl Ctx<'_> {
                     key,
                     vec![Reading {
                         value,
+                        form,
                         unit: None,
                         temperature_c: t,
                         line,
                     }],
                 );
             }
-            let analysts = match analyst {
-                Some(i) => {
-                    let a = self.cell(&rec, i, line)?;
-                    if a.is_empty() {
-                        vec![]
-                    } else {
-                        vec![a.to_string()]
-                    }
-                }
-                None => vec![],
-            };
-            let new = LotResults {
+            let meta = self.row_meta(&rec, line)?;
+            let mut new = LotResults {
                 lot,
                 product,
                 manufactured,
                 readings,
-                analysts,
+                analysts: vec![],
                 line,
+                tested_from: None,
+                tested_to: None,
+                notes: vec![],
+                approver: None,
+                decided_at: None,
             };
+            self.merge_meta(&mut new, meta, line)?;
             if let Some(old) = index.get(&new.lot).map(|&i| &lots[i]) {
                 let Some(what) = duplicate_difference(old, &new) else {
                     continue;
@@ -504,7 +780,12 @@ impl Ctx<'_> {
             index.insert(new.lot.clone(), lots.len());
             lots.push(new);
         }
-        Ok(lots)
+        let empty = value_cols
+            .iter()
+            .filter(|&&i| !filled[i])
+            .map(|&i| self.headers[i].clone())
+            .collect();
+        Ok((lots, empty))
     }
 
     /// The property key of a long-format row, lower-cased; refuses anything but a key.
@@ -525,7 +806,7 @@ impl Ctx<'_> {
     }
 
     /// The value of a long-format row; refuses an empty one.
-    fn long_value(&self, raw: &str, line: u64) -> Result<Decimal> {
+    fn long_value(&self, raw: &str, line: u64, key: &str) -> Result<(Decimal, Form)> {
         if raw.is_empty() {
             return Err(Error::invalid(
                 format!("{}:{line}, column 'value'", self.name),
@@ -533,7 +814,10 @@ impl Ctx<'_> {
                 "Enter the result, or leave the row out if the test was not done.",
             ));
         }
-        self.number(raw, line, "value")
+        if self.opts.text_keys.contains(key) {
+            return self.result(raw, line, key);
+        }
+        self.result(raw, line, "value")
     }
 
     /// True when `row` (lot, key, replicate, value, line) repeats a numbered replicate already
@@ -545,26 +829,29 @@ impl Ctx<'_> {
     fn repeated_replicate(
         &self,
         seen: &mut Replicates,
-        row: (String, String, String, Decimal, u64),
+        row: (String, String, String, (Decimal, Form), u64),
     ) -> Result<bool> {
         let (lot, key, r, value, line) = &row;
         if r.is_empty() {
             return Ok(false);
         }
-        if let Some(&(prev_value, prev_line)) = seen.get(&(lot.clone(), key.clone(), r.clone())) {
-            if prev_value != *value {
+        if let Some((prev_value, prev_form, prev_line)) =
+            seen.get(&(lot.clone(), key.clone(), r.clone()))
+        {
+            if (prev_value, prev_form) != (&value.0, &value.1) {
                 return Err(Error::invalid(
                     format!("{}:{line}, lot '{lot}'", self.name),
                     format!(
-                        "replicate {r} of {key} already appears on line {prev_line} with value {prev_value}"
+                        "replicate {r} of {key} already appears on line {prev_line} with value {}",
+                        entered_text(*prev_value, prev_form)
                     ),
                     "Remove the conflicting row or number the replicates distinctly.",
                 ));
             }
             return Ok(true);
         }
-        let (lot, key, r, value, line) = row;
-        seen.insert((lot, key, r), (value, line));
+        let (lot, key, r, (value, form), line) = row;
+        seen.insert((lot, key, r), (value, form, line));
         Ok(false)
     }
 
@@ -600,6 +887,11 @@ impl Ctx<'_> {
             readings: IndexMap::new(),
             analysts: vec![],
             line,
+            tested_from: None,
+            tested_to: None,
+            notes: vec![],
+            approver: None,
+            decided_at: None,
         });
         dates.push(None);
         index.insert(lot.to_string(), lots.len() - 1);
@@ -611,7 +903,6 @@ impl Ctx<'_> {
         let unit = self.col("unit");
         let temp = self.col("temperature_c");
         let made = self.col("manufactured");
-        let analyst = self.col("analyst");
         let replicate = self.col("replicate");
         let mut lots: Vec<LotResults> = Vec::new();
         let mut dates: Vec<Option<NaiveDate>> = Vec::new();
@@ -623,7 +914,7 @@ impl Ctx<'_> {
             let lot = self.lot_id(self.cell(&rec, idx[0], line)?, line)?;
             let product = self.product(self.cell(&rec, idx[1], line)?, line)?;
             let key = self.property_key(self.cell(&rec, idx[2], line)?, line)?;
-            let value = self.long_value(self.cell(&rec, idx[3], line)?, line)?;
+            let value = self.long_value(self.cell(&rec, idx[3], line)?, line, &key)?;
             let unit_v = match unit {
                 Some(i) => Some(self.cell(&rec, i, line)?.to_string()).filter(|u| !u.is_empty()),
                 None => None,
@@ -645,7 +936,7 @@ impl Ctx<'_> {
             };
             if let Some(i) = replicate {
                 let r = self.cell(&rec, i, line)?.to_string();
-                let row = (lot.clone(), key.clone(), r, value, line);
+                let row = (lot.clone(), key.clone(), r, value.clone(), line);
                 if self.repeated_replicate(&mut seen_replicates, row)? {
                     continue;
                 }
@@ -663,14 +954,12 @@ impl Ctx<'_> {
                     _ => dates[pos] = Some(d),
                 }
             }
-            if let Some(i) = analyst {
-                let a = self.cell(&rec, i, line)?.to_string();
-                if !a.is_empty() && !lots[pos].analysts.contains(&a) {
-                    lots[pos].analysts.push(a);
-                }
-            }
+            let meta = self.row_meta(&rec, line)?;
+            self.merge_meta(&mut lots[pos], meta, line)?;
+            let (value, form) = value;
             lots[pos].readings.entry(key).or_default().push(Reading {
                 value,
+                form,
                 unit: unit_v,
                 temperature_c: t,
                 line,
@@ -714,7 +1003,22 @@ fn duplicate_difference(a: &LotResults, b: &LotResults) -> Option<String> {
             name(b)
         ));
     }
+    if (&a.tested_from, &a.notes, &a.approver, &a.decided_at)
+        != (&b.tested_from, &b.notes, &b.approver, &b.decided_at)
+    {
+        return Some("a different test date, note, approver or decision time".into());
+    }
     None
+}
+
+/// A reading as it was entered, for messages: `0.5`, `<0.01`, `nd` or the word.
+pub fn entered_text(value: Decimal, form: &Form) -> String {
+    match form {
+        Form::Number => value.to_string(),
+        Form::Below => format!("<{value}"),
+        Form::NotDetected => "nd".into(),
+        Form::Word(w) => w.clone(),
+    }
 }
 
 fn same_results(a: &LotResults, b: &LotResults) -> bool {
@@ -726,7 +1030,7 @@ fn same_results(a: &LotResults, b: &LotResults) -> bool {
                 v.len() == w.len()
                     && v.iter()
                         .zip(w)
-                        .all(|(x, y)| x.value == y.value && x.unit == y.unit)
+                        .all(|(x, y)| x.value == y.value && x.form == y.form && x.unit == y.unit)
             })
         })
 }
@@ -818,7 +1122,7 @@ mod tests {
         let lots = parse(
             "r.csv",
             b"lot;product;manufactured;acid_value\nL1;P;2026-10-01;0,52\n",
-            comma,
+            comma.clone(),
         )
         .unwrap();
         assert_eq!(lots[0].readings["acid_value"][0].value.to_string(), "0.52");
@@ -872,6 +1176,71 @@ mod tests {
             "{head}L1,P,2026-10-01,540,60,AB\nL1,P,2026-10-01,540,60,AB\n"
         ));
         assert_eq!(same.unwrap().len(), 1);
+    }
+
+    /// Issue #15: results below a limit, nd and words are read as such; times are normalised.
+    #[test]
+    fn censored_words_and_times_are_read_issue_15() {
+        let opts = Options {
+            text_keys: ["appearance".to_string()].into_iter().collect(),
+            ..Options::default()
+        };
+        let parsed = parse_report(
+            "r.csv",
+            b"lot,product,property,value,tested_at,analyst,manufactured,sample_id\n\
+              L1,P,water,<0.01,2026-10-02,AB;CD,2026-10-01,S1\n\
+              L1,P,colour,nd,2026-10-03T10:00:00+02:00,EF,,S1\n\
+              L1,P,appearance,Clear,2026-10-02 09:30,AB,,S1\n",
+            opts,
+        )
+        .unwrap();
+        assert_eq!(parsed.ignored, vec!["sample_id".to_string()]);
+        let l = &parsed.lots[0];
+        let water = &l.readings["water"][0];
+        assert_eq!(
+            (water.value.to_string(), &water.form),
+            ("0.01".into(), &Form::Below)
+        );
+        assert_eq!(l.readings["colour"][0].form, Form::NotDetected);
+        assert_eq!(
+            l.readings["appearance"][0].form,
+            Form::Word("Clear".to_string())
+        );
+        assert_eq!(l.analysts, vec!["AB", "CD", "EF"]);
+        assert_eq!(l.tested_from.as_ref().unwrap().text, "2026-10-02");
+        // 10:00 at UTC+02:00 is 08:00 UTC (RFC 3339 offsets).
+        assert_eq!(l.tested_to.as_ref().unwrap().text, "2026-10-03T08:00:00Z");
+        // A word in a numeric column is still refused where it is read.
+        let e = p("lot,product,manufactured,acid_value\nL1,P,2026-10-01,clear\n").unwrap_err();
+        assert!(e.to_string().contains("'clear' is not a number"), "{e}");
+        // An empty wide column is reported for the caller to judge.
+        let wide = parse_report(
+            "r.csv",
+            b"lot,product,manufactured,acid_value,remark\nL1,P,2026-10-01,0.5,\n",
+            Options::default(),
+        )
+        .unwrap();
+        assert_eq!(wide.empty, vec!["remark".to_string()]);
+    }
+
+    #[test]
+    fn lab_times_parse_in_the_documented_forms_issue_15() {
+        assert_eq!(LabTime::parse("2026-10-02").unwrap().text, "2026-10-02");
+        assert_eq!(
+            LabTime::parse("2026-10-02 09:30").unwrap().text,
+            "2026-10-02T09:30:00"
+        );
+        assert_eq!(
+            LabTime::parse("2026-10-02T09:30:00Z").unwrap().text,
+            "2026-10-02T09:30:00Z"
+        );
+        assert!(LabTime::parse("02/10/2026").is_none());
+        // A local time may stand for an instant up to 14 hours earlier in UTC (UTC+14:00).
+        let local = LabTime::parse("2026-10-02 14:00").unwrap();
+        assert_eq!(
+            local.earliest_utc(),
+            LabTime::parse("2026-10-02T00:00:00Z").unwrap().at
+        );
     }
 
     proptest::proptest! {

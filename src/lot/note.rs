@@ -20,6 +20,8 @@ pub enum NoteKind {
     RepeatabilityExceeded,
     /// A decided value is not a plain pass (its verdict in words).
     NotPassed,
+    /// A note from the results file's `notes` column (issue #15), kept as the lab wrote it.
+    Lab,
     /// Any other text (notes written before notes were typed, or by hand).
     Other,
 }
@@ -48,6 +50,7 @@ const RANGE_OF: &str = ": range of ";
 const EXCEEDS: &str = " exceeds the repeatability limit ";
 const MEAN_OF: &str = ": mean of ";
 const REPLICATES_RANGE: &str = " replicates (range ";
+const LAB: &str = "lab note: ";
 const VERDICT_WORDS: [&str; 3] = ["conditional pass", "conditional fail", "fail"];
 
 impl LotNote {
@@ -101,12 +104,16 @@ impl LotNote {
         )
     }
 
+    /// A note the lab wrote in the results file: "lab note: `text`".
+    pub fn lab(text: &str) -> LotNote {
+        LotNote::new(NoteKind::Lab, format!("{LAB}{text}"))
+    }
+
     /// Types a note read back from the record, by the wordings above.
     pub fn parse(text: &str) -> LotNote {
-        let kind = if text.contains(MEASURED_AT)
-            && text.contains(BY_ANDRADE)
-            && text.ends_with(" K)")
-        {
+        let kind = if text.starts_with(LAB) {
+            NoteKind::Lab
+        } else if text.contains(MEASURED_AT) && text.contains(BY_ANDRADE) && text.ends_with(" K)") {
             NoteKind::TemperatureCorrected
         } else if text.contains(RANGE_OF) && text.contains(EXCEEDS) {
             NoteKind::RepeatabilityExceeded

@@ -374,12 +374,47 @@ fn same_results(t: &Trend, row: &trend_file::Row, d: &LotDecision, specs: &SpecS
                 p.property.as_str()
             };
             spec_p.is_none_or(|sp| sp.derived)
-                || same_number(t.cell(row, entered_col), p.entered.as_deref().unwrap_or(""))
+                || same_number(
+                    t.cell(row, entered_col),
+                    p.entered.as_deref().or(p.exact.as_deref()).unwrap_or(""),
+                )
         })
 }
 
+/// The audit cells of a row (issue #15): who tested and when, when it was decided (the
+/// results file's `decided_at` for a history import, else `now`), the login name of the
+/// person running the command, and the SHA-256 of the spec revision used.
+///
+/// Without `tested_at` in the results file, a lot's first row records its manufacture date as
+/// the test date (end-of-batch testing); a retest's row leaves the test dates empty, which
+/// means the day the row was recorded (a retest is not tested on the manufacture date).
+fn audit_cells(d: &LotDecision, plan: &Plan, now: &str) -> Vec<(&'static str, String)> {
+    let untested = match plan {
+        Plan::Retest { .. } => String::new(),
+        _ => d.manufactured.to_string(),
+    };
+    vec![
+        ("analysts", d.analysts.join(";")),
+        (
+            "tested_from",
+            d.tested_from.clone().unwrap_or_else(|| untested.clone()),
+        ),
+        ("tested_to", d.tested_to.clone().unwrap_or(untested)),
+        (
+            "decided_at",
+            d.decided_at.clone().unwrap_or_else(|| now.to_string()),
+        ),
+        (
+            "recorded_by",
+            crate::support::audit::recorded_by().to_string(),
+        ),
+        ("spec_sha256", d.spec_sha256.clone()),
+    ]
+}
+
 /// The cells of the trend-file row recording `d`, by column name (`seq` and `chain` are the
-/// writer's).
+/// writer's). The approver is the results file's for the lot when it names one (a history
+/// import), else `approver`.
 pub fn row_cells(d: &LotDecision, plan: &Plan, approver: &str, now: &str) -> Vec<(String, String)> {
     let mut cells: Vec<(&str, String)> = vec![
         ("recorded_at", now.to_string()),
@@ -388,9 +423,13 @@ pub fn row_cells(d: &LotDecision, plan: &Plan, approver: &str, now: &str) -> Vec
         ("manufactured", d.manufactured.to_string()),
         ("spec_revision", d.spec_revision.clone()),
         ("status", d.status.as_str().to_string()),
-        ("approver", approver.to_string()),
+        (
+            "approver",
+            d.approver.clone().unwrap_or_else(|| approver.to_string()),
+        ),
         ("notes", LotNote::cell(&d.notes)),
     ];
+    cells.extend(audit_cells(d, plan, now));
     let verdicts: Vec<String> = d
         .properties
         .iter()

@@ -226,6 +226,7 @@ fn pending_entry(
         sha256,
         supersedes,
         reason: trend.cell(row, "reason").to_string(),
+        ..Default::default()
     }
 }
 
@@ -503,6 +504,7 @@ pub fn repair_folder(
                     sha256: crate::record::integrity::file_sha256(&f.path)?,
                     supersedes: String::new(),
                     reason: VOID_REASON.to_string(),
+                    ..Default::default()
                 })?;
                 format!(
                     "logged {} as void: certificate number {number} stays used, the file is not a valid certificate",
@@ -564,6 +566,7 @@ mod tests {
             sha256: String::new(),
             supersedes: String::new(),
             reason: String::new(),
+            ..Default::default()
         };
         assert_eq!(
             lot_and_number("A_B_FW_000005.pdf", &[e("FW_000001")]),

@@ -165,8 +165,9 @@ pub fn anchors(t: &Trend) -> Vec<Anchor> {
         .collect()
 }
 
-/// One issued certificate.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+/// One issue row: a certificate issued for one lot (a certificate for several lots has a row
+/// per lot, all with its number; issue #16).
+#[derive(Debug, Clone, PartialEq, Default, serde::Serialize)]
 pub struct Entry {
     /// Certificate number.
     pub number: String,
@@ -188,6 +189,13 @@ pub struct Entry {
     pub supersedes: String,
     /// Reason for a reissue.
     pub reason: String,
+    /// SHA-256 of the certificate's JSON data companion (layout v3; empty when none was
+    /// written, e.g. in a log in an earlier layout).
+    pub json_sha256: String,
+    /// The customer's purchase order (layout v3; empty when none was given).
+    pub po: String,
+    /// Quantity shipped, as written on the certificate (layout v3).
+    pub quantity: String,
 }
 
 /// The entry an issue row of a parsed log records.
@@ -208,6 +216,9 @@ fn entry(t: &Trend, row: &trend_file::Row) -> Entry {
         sha256: c("sha256"),
         supersedes: c("supersedes"),
         reason: c("reason"),
+        json_sha256: c("json_sha256"),
+        po: c("po"),
+        quantity: c("quantity"),
     }
 }
 
@@ -396,6 +407,115 @@ pub fn standings(t: &Trend) -> HashMap<String, Standing> {
         out.entry(number).or_insert(own);
     }
     out
+}
+
+/// Where a certificate stands, in one word (issue #16: `shipments`, `lookup NUMBER`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum CertStatus {
+    /// Neither superseded nor withdrawn.
+    Current,
+    /// Replaced by a reissue.
+    Superseded,
+    /// Withdrawn, or logged as void.
+    Withdrawn,
+}
+
+impl CertStatus {
+    /// The word of a certificate's [`Standing`] (decided by [`standings`], the one place).
+    pub fn of(s: Option<&Standing>) -> CertStatus {
+        match s {
+            None | Some(Standing::Current) => CertStatus::Current,
+            Some(Standing::Superseded { .. }) => CertStatus::Superseded,
+            Some(Standing::Withdrawn { .. }) => CertStatus::Withdrawn,
+        }
+    }
+
+    /// The word used in tables, JSON and CSV.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            CertStatus::Current => "current",
+            CertStatus::Superseded => "superseded",
+            CertStatus::Withdrawn => "withdrawn",
+        }
+    }
+}
+
+/// One certificate as the log records it: its issue rows (one per lot) gathered by number.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Certificate {
+    /// Certificate number.
+    pub number: String,
+    /// When it was issued (RFC 3339, UTC).
+    pub issued_at: String,
+    /// Product code.
+    pub product: String,
+    /// Customer file stem; empty for an internal certificate.
+    pub customer: String,
+    /// Customer's legal name.
+    pub customer_name: String,
+    /// Purchase order (empty when none was given).
+    pub po: String,
+    /// Quantity as written.
+    pub quantity: String,
+    /// The lots it certifies, in the order they were logged.
+    pub lots: Vec<String>,
+    /// File name of the PDF.
+    pub file: String,
+    /// SHA-256 of the PDF.
+    pub sha256: String,
+    /// Number of the certificate it supersedes.
+    pub supersedes: String,
+    /// Reason for a reissue.
+    pub reason: String,
+    /// Current, superseded or withdrawn ([`CertStatus::of`] its [`Standing`]).
+    pub status: CertStatus,
+}
+
+/// The certificates of issue rows `entries`, in log order, each with all its lots and its
+/// status from `standing` ([`standings`] or [`Log::standings`]).
+pub fn certificates(entries: &[Entry], standing: &HashMap<String, Standing>) -> Vec<Certificate> {
+    let mut out: Vec<Certificate> = Vec::new();
+    let mut at: HashMap<&str, usize> = HashMap::new();
+    for e in entries {
+        if let Some(&i) = at.get(e.number.as_str()) {
+            if !out[i].lots.contains(&e.lot) {
+                out[i].lots.push(e.lot.clone());
+            }
+            continue;
+        }
+        at.insert(&e.number, out.len());
+        out.push(Certificate {
+            number: e.number.clone(),
+            issued_at: e.issued_at.clone(),
+            product: e.product.clone(),
+            customer: e.customer.clone(),
+            customer_name: e.customer_name.clone(),
+            po: e.po.clone(),
+            quantity: e.quantity.clone(),
+            lots: vec![e.lot.clone()],
+            file: e.file.clone(),
+            sha256: e.sha256.clone(),
+            supersedes: e.supersedes.clone(),
+            reason: e.reason.clone(),
+            status: CertStatus::of(standing.get(&e.number)),
+        });
+    }
+    out
+}
+
+/// Every certificate of the register's log, with its lots and status (none without a log).
+pub fn all_certificates(register: &Path) -> Result<Vec<Certificate>> {
+    let Some(t) = read(register)? else {
+        return Ok(vec![]);
+    };
+    let entries: Vec<Entry> = t
+        .rows
+        .iter()
+        .filter(|r| is_issue_row(&t, r))
+        .map(|r| entry(&t, r))
+        .collect();
+    Ok(certificates(&entries, &standings(&t)))
 }
 
 /// Every entry of the log (none when it does not exist yet); the chain is verified.
@@ -634,17 +754,54 @@ impl Log {
         format!("{prefix}{:06}", self.certificate_rows() + 1 + k)
     }
 
-    /// Rows of the log that are certificates (not layout rows, not event rows).
+    /// Certificates in the log (not layout rows, not event rows), counted as distinct
+    /// numbers: a certificate for several lots has a row per lot (issue #16).
     fn certificate_rows(&self) -> usize {
         let t = &self.locked.trend;
-        t.rows.iter().filter(|r| is_issue_row(t, r)).count()
+        let mut numbers: Vec<&str> = t
+            .rows
+            .iter()
+            .filter(|r| is_issue_row(t, r))
+            .map(|r| t.cell(r, "number"))
+            .collect();
+        numbers.sort_unstable();
+        numbers.dedup();
+        numbers.len()
     }
 
     /// Appends an entry and syncs it to disk; the lot's latest row in its trend file is
     /// recorded as the certificate's anchor (a log in the earlier layout has no column for it).
     pub fn append(&mut self, e: &Entry) -> Result<()> {
+        self.append_all(std::slice::from_ref(e))
+    }
+
+    /// Appends the rows of one certificate (one per lot, the same number) in a single write
+    /// and syncs them: every row is encoded (and a value the log's layout has no column for
+    /// refused) before anything is written, so a refusal writes no row (issue #16).
+    pub fn append_all(&mut self, rows: &[Entry]) -> Result<()> {
+        let mut cells = Vec::with_capacity(rows.len());
+        for e in rows {
+            cells.push(self.cells(e)?);
+        }
+        self.locked.append_rows(&cells)?;
+        self.locked.sync()
+    }
+
+    /// Checks, writing nothing, that each of `rows` could be appended: a value for a column
+    /// the log's layout lacks is refused naming `resinlot upgrade`, a cell that would not read
+    /// back is refused naming its column.
+    pub fn check_rows(&mut self, rows: &[Entry]) -> Result<()> {
+        for e in rows {
+            let cells = self.cells(e)?;
+            trend_file::encode_row(&self.locked.trend, &cells)?;
+        }
+        Ok(())
+    }
+
+    /// The cells of `e`'s row, its anchor included.
+    fn cells(&mut self, e: &Entry) -> Result<Vec<(&'static str, String)>> {
         let (trend_row, trend_chain) = self.anchor(&e.product, &e.lot)?;
-        self.locked.append(&[
+        Ok(vec![
             ("trend_row", trend_row),
             ("trend_chain", trend_chain),
             ("issued_at", e.issued_at.clone()),
@@ -657,8 +814,10 @@ impl Log {
             ("sha256", e.sha256.clone()),
             ("supersedes", e.supersedes.clone()),
             ("reason", e.reason.clone()),
-        ])?;
-        self.locked.sync()
+            ("json_sha256", e.json_sha256.clone()),
+            ("po", e.po.clone()),
+            ("quantity", e.quantity.clone()),
+        ])
     }
 
     /// The row number and chain value of the latest row of `lot` in `product`'s trend file
@@ -696,6 +855,12 @@ impl Log {
     /// The log's path.
     pub fn path(&self) -> &Path {
         &self.locked.trend.path
+    }
+
+    /// True when the log has the column `name` (the layout-v3 columns are missing from a log
+    /// in an earlier layout until `resinlot upgrade`).
+    pub fn has_column(&self, name: &str) -> bool {
+        self.locked.trend.col(name).is_some()
     }
 
     /// True when the log did not exist (or was empty) when it was locked and nothing has been
@@ -749,6 +914,9 @@ mod tests {
             sha256: "ab".into(),
             supersedes: String::new(),
             reason: String::new(),
+            po: "PO 1".into(),
+            quantity: "20 t".into(),
+            json_sha256: "cd".into(),
         };
         log.append(&e).unwrap();
         assert_eq!(log.next_number("FW-"), "FW-000002");
@@ -790,6 +958,7 @@ mod tests {
             sha256: "ab".into(),
             supersedes: String::new(),
             reason: String::new(),
+            ..Default::default()
         }
     }
 
@@ -974,5 +1143,47 @@ mod tests {
             (a[0].row, a[0].chain.as_str(), a[0].line),
             (1, chain.as_str(), 3)
         );
+    }
+
+    /// Issue #16: the rows of a several-lot certificate gather under one number and count as
+    /// one certificate; a reissue supersedes; a refused row writes none of the batch.
+    #[test]
+    fn certificates_gather_lots_and_read_their_status_issue_16() {
+        let dir = tempfile::tempdir().unwrap();
+        let wait = Wait {
+            timeout: Duration::from_secs(5),
+        };
+        let row = |number: &str, lot: &str, supersedes: &str| Entry {
+            lot: lot.into(),
+            po: "4711".into(),
+            ..customer_entry(number, supersedes)
+        };
+        let mut log = Log::lock(dir.path(), wait).unwrap();
+        log.append_all(&[row("FW-000001", "L1", ""), row("FW-000001", "L2", "")])
+            .unwrap();
+        assert_eq!(log.next_number("FW-"), "FW-000002");
+        log.append_all(&[row("FW-000002", "L3", "")]).unwrap();
+        log.append_all(&[row("FW-000003", "L1", "FW-000001")])
+            .unwrap();
+        let c = certificates(&log.entries(), &log.standings());
+        assert_eq!(c.len(), 3);
+        assert_eq!(c[0].lots, ["L1", "L2"]);
+        assert_eq!(c[0].status, CertStatus::Superseded);
+        assert_eq!(c[1].status, CertStatus::Current);
+        assert_eq!(c[2].po, "4711");
+        drop(log);
+        assert_eq!(all_certificates(dir.path()).unwrap(), c);
+
+        let old = tempfile::tempdir().unwrap();
+        std::fs::write(path(old.path()), format!("{}\n", COLUMNS_V2.join(","))).unwrap();
+        let mut log = Log::lock(old.path(), wait).unwrap();
+        let before = std::fs::read(path(old.path())).unwrap();
+        let e = log
+            .append_all(&[entry("FW-000001"), row("FW-000001", "L2", "")])
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("resinlot upgrade"), "{e}");
+        assert!(log.check_rows(&[row("FW-000001", "L2", "")]).is_err());
+        assert_eq!(std::fs::read(path(old.path())).unwrap(), before);
     }
 }

@@ -1,17 +1,19 @@
 //! Finding lots in a product's trend file: status, manufacture dates, windows on recorded
 //! values and a customer's requirements (read-only; the rules come from `spec`).
 
+use std::collections::HashMap;
 use std::path::Path;
 
 use chrono::NaiveDate;
+use rust_decimal::Decimal;
 
 use crate::error::{Error, Result};
 use crate::lot::evaluate::Status;
 use crate::record::query::{Life, LotRow, Window};
 use crate::spec::customer::{customer_fit, Customer, CustomerProduct};
-use crate::spec::decision::decimal_from_f64;
+use crate::spec::decision::{decimal_from_f64, round_recorded, Rounding};
 use crate::spec::keys;
-use crate::spec::SpecSet;
+use crate::spec::{ProductSpec, SpecSet};
 
 /// Properties the table of found lots shows after the windows' own keys.
 pub const HEADLINE_KEYS: [&str; 3] = [keys::MN, keys::ACID_VALUE, keys::HYDROXYL_VALUE];
@@ -25,7 +27,13 @@ pub struct CustomerCheck<'a> {
     pub specs: &'a SpecSet,
     /// The customer's requirements for the product.
     pub requirements: &'a CustomerProduct,
+    /// Words and censored results, which [`LotRow::values`] cannot hold (issue #15).
+    pub special: Option<&'a SpecialCells>,
 }
+
+/// Words and censored results of a product's lots: the keys, and each row's cells of those
+/// keys by line number ([`crate::record::query::raw_cells`]).
+pub type SpecialCells = (Vec<String>, std::collections::HashMap<usize, Vec<String>>);
 
 /// What a lot must meet to be found.
 #[derive(Debug, Clone)]
@@ -44,6 +52,51 @@ pub struct LotFilter<'a> {
     pub customer: Option<CustomerCheck<'a>>,
     /// Each lot's life (parallel to the lots), for shelf life and concessions (issue #14).
     pub life: Option<LifeCheck<'a>>,
+    /// How values are reported: windows then compare the reported value (issue #16). `None`
+    /// compares the recorded full-precision value.
+    pub precision: Option<&'a Precision>,
+}
+
+/// Decimals and rounding of each loaded key, by the spec revision each lot was released
+/// under (the product's latest revision for a revision no longer in the specs): the reporting
+/// precision of certificates and `lookup`, so `find` compares and prints what a certificate
+/// prints (ASTM E29 through [`round_recorded`]; issue #16).
+#[derive(Debug, Clone, Default)]
+pub struct Precision {
+    by_revision: HashMap<&'static str, Vec<Option<(u32, Rounding)>>>,
+}
+
+impl Precision {
+    /// The precision of `loaded` keys for every revision among `lots` of `product`.
+    pub fn new(specs: &SpecSet, product: &str, lots: &[LotRow], loaded: &[String]) -> Precision {
+        let of = |spec: Option<&ProductSpec>| -> Vec<Option<(u32, Rounding)>> {
+            loaded
+                .iter()
+                .map(|k| spec.and_then(|s| s.property(k).map(|p| (p.decimals, s.rounding))))
+                .collect()
+        };
+        let mut by_revision = HashMap::new();
+        for row in lots {
+            by_revision.entry(row.revision).or_insert_with(|| {
+                of(specs
+                    .revision(product, row.revision)
+                    .or_else(|| specs.latest(product)))
+            });
+        }
+        Precision { by_revision }
+    }
+
+    /// Decimals and rounding of loaded key `i` for `row`; `None` when no spec knows the key.
+    pub fn of(&self, row: &LotRow, i: usize) -> Option<(u32, Rounding)> {
+        *self.by_revision.get(row.revision)?.get(i)?
+    }
+
+    /// The value of loaded key `i` as reported: rounded to the spec's decimals, or `None`
+    /// when the spec does not know the key or the lot has no value.
+    pub fn reported(&self, row: &LotRow, i: usize) -> Option<Decimal> {
+        let (d, m) = self.of(row, i)?;
+        round_recorded(row.values[i]?, d, m)
+    }
 }
 
 /// Shelf life and concessions in a search (issue #14).
@@ -79,6 +132,20 @@ pub fn is_expired(
     let retested = life.retested.and_then(|d| date(&d));
     crate::lot::disposition::retest_date(made, spec.retest_months, retested)
         .is_some_and(|until| crate::lot::disposition::expired(until, today))
+}
+
+/// The customers' products that carry part number `pn` (exact match), as (customer, product
+/// code) pairs: `find --part-number` and `shipments --part-number` start from these.
+pub fn part_number_owners<'c>(customers: &'c [Customer], pn: &str) -> Vec<(&'c Customer, &'c str)> {
+    customers
+        .iter()
+        .flat_map(|c| {
+            c.products
+                .iter()
+                .filter(|(_, p)| p.part_number.as_deref() == Some(pn))
+                .map(move |(code, _)| (c, code.as_str()))
+        })
+        .collect()
 }
 
 /// The status asked for, or by default: any status, but only released lots for a customer
@@ -153,6 +220,16 @@ pub fn matching_indices_counted(
     let to = filter.to.map(|d| d.to_string());
     let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
     let win_idx: Vec<usize> = filter.windows.iter().map(|w| at(&w.key)).collect();
+    let bounds: Vec<(Option<Decimal>, Option<Decimal>)> = filter
+        .windows
+        .iter()
+        .map(|w| {
+            (
+                w.lo.and_then(decimal_from_f64),
+                w.hi.and_then(decimal_from_f64),
+            )
+        })
+        .collect();
     let mut hits: Vec<usize> = lots
         .iter()
         .enumerate()
@@ -166,7 +243,8 @@ pub fn matching_indices_counted(
                 .windows
                 .iter()
                 .zip(&win_idx)
-                .all(|(w, &i)| row.values[i].is_some_and(|v| w.contains(v)))
+                .zip(&bounds)
+                .all(|((w, &i), b)| in_window(row, i, w, *b, filter.precision))
         })
         .filter(|&(i, row)| {
             filter.customer.is_none_or(|c| {
@@ -210,7 +288,7 @@ pub struct Search<'a> {
     pub product: &'a str,
     /// The product's trend file.
     pub trend_file: &'a Path,
-    /// Windows on recorded full-precision values.
+    /// Windows on reported values (recorded full-precision values with `full_precision`).
     pub windows: &'a [Window],
     /// The status asked for (None: any; see [`status_or_default`] for a customer).
     pub status: Option<Status>,
@@ -220,8 +298,11 @@ pub struct Search<'a> {
     pub to: Option<NaiveDate>,
     /// A customer's file stem in `specs/customers`, whose windows apply.
     pub customer: Option<&'a str>,
-    /// The specs folder (read only for a customer's check).
+    /// The specs folder (reporting precision, shelf life, a customer's check).
     pub specs: &'a Path,
+    /// Compare and show the recorded full-precision values instead of the reported ones
+    /// (`find --full-precision`, issue #16).
+    pub full_precision: bool,
     /// Load every property (JSON, CSV), not only the windows' and the headline keys.
     pub every: bool,
     /// List lots past their retest date too (otherwise they are counted, not listed).
@@ -247,9 +328,25 @@ pub struct Found {
     pub expired: usize,
     /// The customer's legal name, when a customer's windows applied.
     pub customer_name: Option<String>,
+    /// How values are reported (issue #16); `None` with `full_precision`.
+    pub precision: Option<Precision>,
 }
 
 impl Found {
+    /// The value of `key` for the lot `row` as `find` prints it: at the reporting precision,
+    /// or at full precision when the spec does not know the key or `full_precision` was
+    /// asked; `None` when not loaded or not recorded.
+    pub fn value(&self, row: &LotRow, key: &str) -> Option<String> {
+        let i = self.loaded.iter().position(|k| k == key)?;
+        let v = row.values[i]?;
+        Some(
+            self.precision
+                .as_ref()
+                .and_then(|p| p.reported(row, i))
+                .map_or_else(|| v.to_string(), |d| d.to_string()),
+        )
+    }
+
     /// The matching lots, newest first.
     pub fn hit_rows(&self) -> Vec<&LotRow> {
         self.hits.iter().map(|&i| &self.lots[i]).collect()
@@ -296,30 +393,60 @@ pub fn search(s: &Search) -> Result<Found> {
     let status = status_or_default(s.status, s.customer.is_some());
     let keys = crate::record::query::trend_keys(s.trend_file)?;
     check_window_keys(s.product, &keys, s.windows)?;
-    let (specs, customer) = match s.customer {
-        Some(c) => {
-            let specs = SpecSet::load(s.specs)?;
-            let cu = Customer::load(&s.specs.join("customers"), c, &specs)?;
-            cu.product(s.product)?;
-            (Some(specs), Some(cu))
-        }
-        // Shelf life needs the retest period of each lot's revision; without a specs folder
-        // nothing is judged expired.
-        None if s.specs.is_dir() => (Some(SpecSet::load(s.specs)?), None),
-        None => (None, None),
+    // The reporting precision and a customer's check need the specs; shelf life uses them
+    // when there (without a specs folder nothing is judged expired).
+    let specs = if !s.full_precision || s.customer.is_some() || s.specs.is_dir() {
+        Some(SpecSet::load(s.specs)?)
+    } else {
+        None
     };
-    let customer_check = match (&specs, &customer) {
-        (Some(specs), Some(cu)) => Some(CustomerCheck {
-            customer: &cu.id,
-            specs,
-            requirements: cu.product(s.product)?,
-        }),
+    let customer = match (s.customer, &specs) {
+        (Some(c), Some(specs)) => {
+            let cu = Customer::load(&s.specs.join("customers"), c, specs)?;
+            cu.product(s.product)?;
+            Some(cu)
+        }
         _ => None,
     };
     // A customer's check needs every property.
     let loaded = keys_to_load(&keys, s.windows, s.every || customer.is_some());
     let (_, lots, lives) =
         crate::record::query::current_lots_with_life(s.trend_file, &loaded, customer.is_some())?;
+    // Issue #15: a customer's check works from the limits the lots were decided on, and
+    // reads the words and censored results of the customer's special properties.
+    let special: Option<SpecialCells> = match (&specs, &customer) {
+        (Some(specs), Some(_)) => {
+            crate::record::frozen::refuse_changed(s.trend_file, s.product, specs, None)?;
+            let revs = specs.products.get(s.product);
+            let special_keys: Vec<String> = keys
+                .iter()
+                .filter(|k| {
+                    revs.into_iter().flatten().any(|r| {
+                        r.property(k)
+                            .is_some_and(|p| p.is_text() || p.loq.is_some())
+                    })
+                })
+                .cloned()
+                .collect();
+            let lines: Vec<usize> = lots.iter().map(|l| l.line).collect();
+            let cells = crate::record::query::raw_cells(s.trend_file, &special_keys, &lines)?;
+            Some((special_keys, cells))
+        }
+        _ => None,
+    };
+    let customer_check = match (&specs, &customer) {
+        (Some(specs), Some(cu)) => Some(CustomerCheck {
+            customer: &cu.id,
+            specs,
+            requirements: cu.product(s.product)?,
+            special: special.as_ref(),
+        }),
+        _ => None,
+    };
+    let precision = match (&specs, s.full_precision) {
+        (Some(sp), false) => Some(Precision::new(sp, s.product, &lots, &loaded)),
+        _ => None,
+    };
     let filter = LotFilter {
         product: s.product,
         windows: s.windows,
@@ -333,8 +460,10 @@ pub fn search(s: &Search) -> Result<Found> {
             today: s.today,
             include_expired: s.include_expired,
         }),
+        precision: precision.as_ref(),
     };
     let (hits, expired) = matching_indices_counted(&lots, &loaded, &filter);
+    let customer_name = customer.map(|c| c.name);
     Ok(Found {
         keys,
         loaded,
@@ -342,17 +471,14 @@ pub fn search(s: &Search) -> Result<Found> {
         lives,
         hits,
         expired,
-        customer_name: customer.map(|c| c.name),
+        customer_name,
+        precision,
     })
 }
 
-fn cell(v: Option<f64>) -> String {
-    v.map(|x| x.to_string()).unwrap_or_default()
-}
-
 /// The found lots as CSV (`find --csv` and the web page's download): lot, product,
-/// manufactured, status, then every property at full precision. `found` must have loaded
-/// every key (`Search::every`).
+/// manufactured, status, then every property as reported ([`Found::value`]). `found` must
+/// have loaded every key (`Search::every`).
 pub fn csv_text(product: &str, found: &Found) -> Result<String> {
     let bad =
         |e: &dyn std::fmt::Display| Error::invalid("CSV", e.to_string(), "Report this as a bug.");
@@ -367,7 +493,12 @@ pub fn csv_text(product: &str, found: &Found) -> Result<String> {
             r.manufactured.to_string(),
             r.status.to_string(),
         ];
-        rec.extend(r.values.iter().map(|v| cell(*v)));
+        rec.extend(
+            found
+                .loaded
+                .iter()
+                .map(|k| found.value(r, k).unwrap_or_default()),
+        );
         w.write_record(&rec).map_err(|e| bad(&e))?;
     }
     let bytes = w.into_inner().map_err(|e| bad(&e))?;
@@ -375,7 +506,7 @@ pub fn csv_text(product: &str, found: &Found) -> Result<String> {
 }
 
 /// The found lots as JSON (`find --json`): `{"lots": [...], "expired_left_out": n}` with
-/// every property at full precision (null when not recorded).
+/// every property as reported ([`Found::value`]; null when not recorded).
 pub fn json_value(product: &str, found: &Found) -> serde_json::Value {
     use serde_json::{json, Map, Value};
     let lots: Vec<Value> = found
@@ -391,7 +522,8 @@ pub fn json_value(product: &str, found: &Found) -> serde_json::Value {
             if let Some(c) = found.concession(i) {
                 m.insert("concession_customer".into(), json!(c));
             }
-            for (k, v) in found.loaded.iter().zip(&r.values) {
+            for k in &found.loaded {
+                let v = found.value(r, k).and_then(|t| t.parse::<f64>().ok());
                 m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
             }
             Value::Object(m)
@@ -429,14 +561,31 @@ pub fn short_number(cell: &str) -> String {
     }
 }
 
-/// A value of the table of found lots: `key`'s value shortened, empty when not recorded.
+/// A value of the table of found lots: as reported, or shortened at full precision
+/// ([`short_number`]); empty when not recorded.
 pub fn table_cell(found: &Found, row: &LotRow, key: &str) -> String {
-    found
-        .loaded
-        .iter()
-        .position(|k| k == key)
-        .map(|i| short_number(&cell(row.values[i])))
-        .unwrap_or_default()
+    let v = found.value(row, key).unwrap_or_default();
+    match found.precision {
+        Some(_) => v,
+        None => short_number(&v),
+    }
+}
+
+/// True when loaded value `i` of `row` lies in window `w`: its reported value against the
+/// bounds `b` (exact decimals) when the precision is known, its recorded value otherwise.
+fn in_window(
+    row: &LotRow,
+    i: usize,
+    w: &Window,
+    b: (Option<Decimal>, Option<Decimal>),
+    precision: Option<&Precision>,
+) -> bool {
+    match precision.and_then(|p| p.of(row, i)) {
+        Some((d, m)) => row.values[i]
+            .and_then(|v| round_recorded(v, d, m))
+            .is_some_and(|x| b.0.is_none_or(|lo| x >= lo) && b.1.is_none_or(|hi| x <= hi)),
+        None => row.values[i].is_some_and(|v| w.contains(v)),
+    }
 }
 
 /// True when every property of the lot's spec revision fits the customer's requirements
@@ -451,6 +600,18 @@ pub fn fits_customer(product: &str, row: &LotRow, loaded: &[String], c: Customer
             .position(|k| *k == p.key)
             .and_then(|i| row.values[i])
             .and_then(decimal_from_f64);
+        let special = match value {
+            None => special_cell(c, row, &p.key),
+            Some(_) => None,
+        };
+        if let Some(recorded) = special {
+            return crate::spec::customer::special_fit(
+                spec,
+                p,
+                &recorded,
+                c.requirements.limits.get(&p.key),
+            ) == Some(crate::spec::decision::Verdict::Pass);
+        }
         customer_fit(
             spec,
             p,
@@ -460,6 +621,18 @@ pub fn fits_customer(product: &str, row: &LotRow, loaded: &[String], c: Customer
         )
         .passes()
     })
+}
+
+/// The word or censored result recorded for `key` on `row`, when the check holds one.
+fn special_cell(
+    c: CustomerCheck,
+    row: &LotRow,
+    key: &str,
+) -> Option<crate::spec::decision::RecordedResult> {
+    let (keys, cells) = c.special?;
+    let i = keys.iter().position(|k| k == key)?;
+    crate::spec::decision::RecordedResult::parse(cells.get(&row.line)?.get(i)?)
+        .filter(|r| !matches!(r, crate::spec::decision::RecordedResult::Number(_)))
 }
 
 #[cfg(test)]
@@ -528,6 +701,7 @@ mod tests {
                 today,
                 include_expired: false,
             }),
+            precision: None,
         };
         let ids = |hits: &[&LotRow]| hits.iter().map(|r| r.lot.to_string()).collect::<Vec<_>>();
         let (hits, expired) = matching_lots_counted(&lots, &loaded, &filter);
@@ -551,6 +725,7 @@ mod tests {
                 customer: who,
                 specs: &specs,
                 requirements: &requirements,
+                special: None,
             });
             let hits = matching_lots(&lots, &loaded, &filter);
             assert_eq!(

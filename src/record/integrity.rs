@@ -557,8 +557,10 @@ pub fn verdict_for(
     }
 }
 
-/// Identifies a certificate PDF against the issue log: its bytes against every issued
-/// certificate's SHA-256, then its standing (superseded, withdrawn) in the log.
+/// Identifies a certificate PDF, or its JSON data companion (issue #17), against the issue
+/// log: its bytes against every issued certificate's SHA-256 (either file's), then its
+/// standing (superseded, withdrawn) in the log; altered when a certificate of that file name
+/// (`<lot>_<number>.pdf` or `.json`) was issued with other bytes.
 pub fn verify_certificate(pdf: &Path, register_dir: &Path) -> Result<CertVerdict> {
     let sha = file_sha256(pdf)?;
     let name = pdf
@@ -594,10 +596,18 @@ fn identify(sha: String, name: &str, register_dir: &Path) -> Result<CertVerdict>
         .as_ref()
         .map(crate::record::certlog::standings)
         .unwrap_or_default();
-    if let Some(e) = entries.iter().find(|e| e.sha256 == sha) {
+    if let Some(e) = entries
+        .iter()
+        .find(|e| e.sha256 == sha || (!e.json_sha256.is_empty() && e.json_sha256 == sha))
+    {
         return Ok(verdict_for(e, standings.get(&e.number)));
     }
-    if let Some(e) = entries.iter().find(|e| e.file == name) {
+    // A JSON companion's name maps to its PDF's name in the log (issue #17).
+    let as_pdf = name
+        .strip_suffix(".json")
+        .map(|stem| format!("{stem}.pdf"))
+        .unwrap_or_else(|| name.to_string());
+    if let Some(e) = entries.iter().find(|e| e.file == as_pdf) {
         return Ok(CertVerdict::Altered {
             entry: e.clone(),
             sha256: sha,
@@ -644,6 +654,7 @@ mod tests {
             sha256: "ab".into(),
             supersedes: String::new(),
             reason: String::new(),
+            ..Default::default()
         };
         assert!(verdict_for(&e, Some(&Standing::Current)).is_genuine());
         assert!(verdict_for(&e, None).is_genuine());

@@ -6,6 +6,7 @@ use chrono::NaiveDate;
 
 use crate::error::{Error, Result};
 use crate::record::lines;
+use crate::record::scan;
 use crate::record::trend_file::{self, Row, Trend};
 
 /// Every product trend file in a register folder, sorted: every `.csv` file but the
@@ -24,10 +25,16 @@ pub fn trend_files(register: &Path) -> Result<Vec<PathBuf>> {
     Ok(v)
 }
 
-/// The rows of `lot` in one trend file (file order), found by a byte search before any parse:
-/// the file is read in 8 MiB chunks and only lines containing `,lot,` are split, so memory
-/// stays small and a million-lot file is searched at memory speed.
+/// The rows of `lot` in one trend file (file order), with their line numbers. Goes through the trend file's lot index ([`crate::record::index`]), checked against the
+/// file before use and rebuilt when stale, so a million-lot file answers in milliseconds.
 pub fn lot_rows_in(path: &Path, lot: &str) -> Result<Option<Trend>> {
+    crate::record::index::lot_rows(path, lot)
+}
+
+/// [`lot_rows_in`] without the index: a byte search before any parse (the file is read in
+/// 8 MiB chunks and only lines containing `,lot,` are split, so memory stays small). The
+/// reference the index is tested against.
+pub fn lot_rows_scanned(path: &Path, lot: &str) -> Result<Option<Trend>> {
     lot_rows_chunked(path, lot, lines::CHUNK)
 }
 
@@ -118,6 +125,19 @@ pub fn recorded_id(register: &Path, lot: &str) -> Result<Option<(PathBuf, String
         }
     }
     Ok(None)
+}
+
+/// The certificate numbered `number` (case-insensitive) among `certs` (the log's
+/// certificates, [`crate::record::certlog::all_certificates`]), with all its lots and its
+/// status (issue #16: `lookup FW-000123`).
+pub fn certificate(
+    certs: &[crate::record::certlog::Certificate],
+    number: &str,
+) -> Option<crate::record::certlog::Certificate> {
+    certs
+        .iter()
+        .find(|c| c.number.eq_ignore_ascii_case(number))
+        .cloned()
 }
 
 /// Up to `n` existing lot ids closest to `lot` (Jaro-Winkler similarity, case-insensitive).
@@ -253,6 +273,87 @@ impl serde::Serialize for Day {
     }
 }
 
+/// A lot id kept inline when it is short (up to 22 bytes, as lot ids are), on the heap
+/// otherwise; derefs to `&str`. Saves an allocation per lot in a million-lot query.
+#[derive(Clone, PartialEq, Eq, Hash)]
+pub struct LotId(LotIdRepr);
+
+#[derive(Clone, PartialEq, Eq, Hash)]
+enum LotIdRepr {
+    Inline { len: u8, bytes: [u8; 22] },
+    Heap(Box<str>),
+}
+
+impl From<&str> for LotId {
+    fn from(s: &str) -> LotId {
+        if s.len() <= 22 {
+            let mut bytes = [0u8; 22];
+            bytes[..s.len()].copy_from_slice(s.as_bytes());
+            LotId(LotIdRepr::Inline {
+                len: s.len() as u8,
+                bytes,
+            })
+        } else {
+            LotId(LotIdRepr::Heap(s.into()))
+        }
+    }
+}
+
+impl From<String> for LotId {
+    fn from(s: String) -> LotId {
+        LotId::from(s.as_str())
+    }
+}
+
+impl std::ops::Deref for LotId {
+    type Target = str;
+    fn deref(&self) -> &str {
+        match &self.0 {
+            // Built from a whole &str, so the inline bytes are UTF-8.
+            LotIdRepr::Inline { len, bytes } => {
+                std::str::from_utf8(&bytes[..*len as usize]).unwrap_or("?")
+            }
+            LotIdRepr::Heap(s) => s,
+        }
+    }
+}
+
+impl AsRef<str> for LotId {
+    fn as_ref(&self) -> &str {
+        self
+    }
+}
+
+impl PartialEq<str> for LotId {
+    fn eq(&self, other: &str) -> bool {
+        &**self == other
+    }
+}
+
+impl PartialEq<&str> for LotId {
+    fn eq(&self, other: &&str) -> bool {
+        &**self == *other
+    }
+}
+
+impl std::fmt::Debug for LotId {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        std::fmt::Debug::fmt(&**self, f)
+    }
+}
+
+impl std::fmt::Display for LotId {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self)
+    }
+}
+
+impl serde::Serialize for LotId {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
+        s.serialize_str(self)
+    }
+}
+
 /// The current (latest) row of one lot, reduced to what queries need (compact: a million
 /// lots fit in well under 300 MB).
 #[derive(Debug, Clone, PartialEq)]
@@ -260,7 +361,7 @@ pub struct LotRow {
     /// Line in the trend file.
     pub line: usize,
     /// Lot id.
-    pub lot: Box<str>,
+    pub lot: LotId,
     /// Manufacture date.
     pub manufactured: Day,
     /// Status (snake_case).
@@ -299,7 +400,7 @@ fn intern(table: &mut Vec<&'static str>, text: &[u8]) -> &'static str {
 /// Splits one CSV line into field spans (start, end) up to column `upto`, honouring quotes;
 /// a quoted field's span excludes its outer quotes (doubled quotes inside stay doubled, which
 /// never matters for the ids, dates and numbers read here).
-fn split_spans(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
+pub(crate) fn split_spans(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
     out.clear();
     let mut start = 0;
     let mut quoted_from: Option<usize> = None; // inside a quoted field opened here
@@ -348,14 +449,16 @@ fn split_spans(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
 /// the expanded uncertainty of Mn when asked). Returns the property keys the file has, and the
 /// lots in order of their latest row.
 ///
-/// Reads in 8 MiB chunks and splits only the columns it needs, so a million-lot file takes a
-/// fraction of a second and memory grows only with the lots kept.
+/// The body is scanned in parallel ([`scan::parallel_body`], one range per core) and only the
+/// columns needed are split, straight into compact column vectors (no record per row); each
+/// lot is kept as a 64-bit hash ([`scan::lot_hash`]) and the ids are compared whenever two
+/// hashes agree, so the latest row of each lot is exact. Rows are built for the kept lots only.
 pub fn current_lots(
     path: &Path,
     keys: &[String],
     with_mn_uncertainty: bool,
 ) -> Result<(Vec<String>, Vec<LotRow>)> {
-    let (file_keys, rows, _) = current_lots_with(path, keys, with_mn_uncertainty, false)?;
+    let (file_keys, rows, _) = current_lots_in(path, keys, with_mn_uncertainty, false, None)?;
     Ok((file_keys, rows))
 }
 
@@ -376,67 +479,131 @@ pub fn current_lots_with_life(
     keys: &[String],
     with_mn_uncertainty: bool,
 ) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
-    current_lots_with(path, keys, with_mn_uncertainty, true)
+    current_lots_in(path, keys, with_mn_uncertainty, true, None)
 }
 
-fn current_lots_with(
+/// [`current_lots`], with the lots' lives when `with_life`, and the number of scan parts fixed
+/// when `parts` is given (None: one per core for a large file).
+fn current_lots_in(
     path: &Path,
     keys: &[String],
     with_mn_uncertainty: bool,
     with_life: bool,
+    parts: Option<usize>,
 ) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
-    use std::hash::BuildHasher;
     let header = read_header(path)?;
     let file_keys = trend_file::property_keys(&header);
-    let mut reader = RowReader::new(path, &header, keys, with_mn_uncertainty)?;
-    let mut life_reader = with_life.then(|| LifeReader::new(&header));
-    if let Some(l) = &life_reader {
-        // One split of each line serves both readers.
-        reader.upto = reader.upto.max(l.upto);
+    let mut layout = RowLayout::new(path, &header, keys, with_mn_uncertainty)?;
+    if with_life {
+        // One split of each line serves both the row and its life.
+        layout.upto = layout.upto.max(LifeReader::new(&header).upto);
     }
-    let mut lives: Vec<Life> = Vec::new();
-    let hasher = std::collections::hash_map::RandomState::new();
-    // About 250 bytes a row: reserve once instead of growing through a million pushes.
-    let estimate = std::fs::metadata(path).map_or(0, |m| m.len() as usize / 250);
-    let mut keys_seen: Vec<(u64, u32)> = Vec::with_capacity(estimate);
-    let mut rows: Vec<LotRow> = Vec::with_capacity(estimate);
-    lines::for_each_line(path, lines::CHUNK, |line_no, line| {
-        if line_no == 1 || line.is_empty() {
-            return Ok(());
-        }
-        let row = reader.read(line_no, line)?;
-        keys_seen.push((hasher.hash_one(&*row.lot), rows.len() as u32));
-        rows.push(row);
-        if let Some(l) = &mut life_reader {
-            lives.push(l.read(&reader.spans, line));
-        }
-        Ok(())
-    })?;
-    keep_latest(&mut rows, keys_seen, with_life.then_some(&mut lives));
+    let parts = scan::parallel_body_in(
+        path,
+        parts,
+        |_| {
+            PartRows::new(
+                keys.len(),
+                with_mn_uncertainty,
+                with_life.then(|| LifeReader::new(&header)),
+            )
+        },
+        |part, n, _, line| {
+            if line.is_empty() {
+                return Ok(());
+            }
+            part.read(&layout, n, line)
+        },
+    )?;
+    let (rows, lives) = latest_rows(parts, keys.len());
     Ok((file_keys, rows, lives))
 }
 
-/// Turns trend-file lines into [`LotRow`]s, splitting only up to the last column needed.
-struct RowReader<'a> {
-    path: &'a Path,
-    /// Column of lot, manufactured, status, spec_revision, mn_uncertainty, then the keys.
+/// How many of the rows on `lines` (1-based line numbers, as in [`LotRow::line`]) record a
+/// censored result (`<L`, below the limit of quantification) in each of `keys`: trend
+/// excludes those from its statistics and says how many (issue #15). Streams the file once.
+pub fn censored_counts(path: &Path, keys: &[String], lines: &[usize]) -> Result<Vec<usize>> {
+    let header = read_header(path)?;
+    let cols: Vec<Option<usize>> = keys
+        .iter()
+        .map(|k| header.iter().position(|c| c == k))
+        .collect();
+    let wanted: std::collections::HashSet<usize> = lines.iter().copied().collect();
+    let mut counts = vec![0; keys.len()];
+    lines::for_each_line(path, lines::CHUNK, |line_no, line| {
+        if line_no == 1 || !wanted.contains(&line_no) || !line.contains(&b'<') {
+            return Ok(());
+        }
+        let cells = trend_file::split_line(&String::from_utf8_lossy(line));
+        for (n, c) in counts.iter_mut().zip(&cols) {
+            if c.and_then(|i| cells.get(i))
+                .is_some_and(|v| v.starts_with('<'))
+            {
+                *n += 1;
+            }
+        }
+        Ok(())
+    })?;
+    Ok(counts)
+}
+
+/// The recorded cells of `keys` on the rows at `lines` (line number to cells, in `keys`
+/// order) for the results [`LotRow::values`] cannot hold: words and censored results
+/// (issue #15). Streams the file once; rows whose cells among `keys` are all numbers or empty
+/// are left out.
+pub fn raw_cells(
+    path: &Path,
+    keys: &[String],
+    lines: &[usize],
+) -> Result<std::collections::HashMap<usize, Vec<String>>> {
+    let header = read_header(path)?;
+    let cols: Vec<Option<usize>> = keys
+        .iter()
+        .map(|k| header.iter().position(|c| c == k))
+        .collect();
+    let wanted: std::collections::HashSet<usize> = lines.iter().copied().collect();
+    let mut out = std::collections::HashMap::new();
+    if keys.is_empty() {
+        return Ok(out);
+    }
+    lines::for_each_line(path, lines::CHUNK, |line_no, line| {
+        if line_no == 1 || !wanted.contains(&line_no) {
+            return Ok(());
+        }
+        let cells = trend_file::split_line(&String::from_utf8_lossy(line));
+        let mine: Vec<String> = cols
+            .iter()
+            .map(|c| c.and_then(|i| cells.get(i)).cloned().unwrap_or_default())
+            .collect();
+        if mine
+            .iter()
+            .any(|v| !v.is_empty() && v.parse::<f64>().is_err())
+        {
+            out.insert(line_no, mine);
+        }
+        Ok(())
+    })?;
+    Ok(out)
+}
+
+/// Column positions a query reads: lot, manufactured, status, spec_revision, mn_uncertainty,
+/// then the keys.
+struct RowLayout {
     want: Vec<usize>,
     /// The last column needed.
     upto: usize,
-    with_mn_uncertainty: bool,
-    spans: Vec<(usize, usize)>,
-    statuses: Vec<&'static str>,
-    revisions: Vec<&'static str>,
 }
 
-impl<'a> RowReader<'a> {
-    /// A reader for a file with these (checked) `header` columns; refuses a key it lacks.
+impl RowLayout {
+    /// The layout for a file with these (checked) `header` columns; refuses a key it lacks.
+    /// A line is split only up to the last column needed (`mn_uncertainty`, near the end of
+    /// the row, only when asked for).
     fn new(
-        path: &'a Path,
+        path: &Path,
         header: &[String],
         keys: &[String],
         with_mn_uncertainty: bool,
-    ) -> Result<RowReader<'a>> {
+    ) -> Result<RowLayout> {
         let col = |name: &str| header.iter().position(|c| c == name);
         let fixed = [
             "lot",
@@ -458,107 +625,236 @@ impl<'a> RowReader<'a> {
                 )
             })?);
         }
-        let upto = *want.iter().max().expect("non-empty");
-        Ok(RowReader {
-            path,
-            want,
-            upto,
-            with_mn_uncertainty,
-            spans: Vec::with_capacity(upto + 2),
-            statuses: Vec::new(),
-            revisions: Vec::new(),
-        })
-    }
-
-    /// The row on line `line_no`; refuses a line with fewer fields than needed.
-    fn read(&mut self, line_no: usize, line: &[u8]) -> Result<LotRow> {
-        split_spans(line, self.upto, &mut self.spans);
-        if self.spans.len() <= self.upto {
-            return Err(Error::invalid(
-                format!("{}:{line_no}", self.path.display()),
-                "the row has fewer fields than the header",
-                "Check the trend file with `resinlot verify`.",
-            ));
-        }
-        let (spans, want) = (&self.spans, &self.want);
-        let field = |i: usize| {
-            let (a, b) = spans[want[i]];
-            &line[a..b.min(line.len())]
-        };
-        let num = |s: &[u8]| -> Option<f64> {
-            if s.is_empty() {
-                None
-            } else {
-                std::str::from_utf8(s)
-                    .ok()
-                    .and_then(|t| t.parse::<f64>().ok())
-            }
-        };
-        Ok(LotRow {
-            line: line_no,
-            lot: Box::from(std::str::from_utf8(field(0)).unwrap_or("?")),
-            manufactured: Day::from_bytes(field(1)),
-            status: intern(&mut self.statuses, field(2)),
-            revision: intern(&mut self.revisions, field(3)),
-            mn_uncertainty: if self.with_mn_uncertainty {
-                num(field(4))
-            } else {
-                None
-            },
-            values: (5..want.len()).map(|i| num(field(i))).collect(),
-        })
+        let upto = want
+            .iter()
+            .enumerate()
+            .filter(|&(i, _)| i != 4 || with_mn_uncertainty)
+            .map(|(_, &c)| c)
+            .max()
+            .expect("non-empty");
+        Ok(RowLayout { want, upto })
     }
 }
 
-/// Keeps each lot's last row: sorts the (lot hash, row) pairs, and within a run of equal
-/// hashes keeps, for every distinct lot id, the highest row (a retest supersedes what came
-/// before). Rows stay in file order.
+/// The rows of one scanned part, column by column: lot ids in one byte arena, short labels
+/// (status, revision) as indices into a small table, values in one flat vector.
+struct PartRows {
+    keys: usize,
+    with_mn_uncertainty: bool,
+    spans: Vec<(usize, usize)>,
+    hash: Vec<u64>,
+    ids: Vec<u8>,
+    id_end: Vec<u32>,
+    line: Vec<u32>,
+    made: Vec<Day>,
+    status: Vec<u8>,
+    revision: Vec<u8>,
+    labels: Vec<Vec<u8>>,
+    mn_uncertainty: Vec<Option<f64>>,
+    values: Vec<Option<f64>>,
+    /// The lives of the rows, when asked for.
+    life: Option<LifeReader>,
+    lives: Vec<Life>,
+}
+
+impl PartRows {
+    fn new(keys: usize, with_mn_uncertainty: bool, life: Option<LifeReader>) -> PartRows {
+        PartRows {
+            life,
+            lives: Vec::new(),
+            keys,
+            with_mn_uncertainty,
+            spans: Vec::new(),
+            hash: Vec::new(),
+            ids: Vec::new(),
+            id_end: Vec::new(),
+            line: Vec::new(),
+            made: Vec::new(),
+            status: Vec::new(),
+            revision: Vec::new(),
+            labels: Vec::new(),
+            mn_uncertainty: Vec::new(),
+            values: Vec::new(),
+        }
+    }
+
+    fn len(&self) -> usize {
+        self.hash.len()
+    }
+
+    fn id(&self, i: usize) -> &[u8] {
+        let from = if i == 0 {
+            0
+        } else {
+            self.id_end[i - 1] as usize
+        };
+        &self.ids[from..self.id_end[i] as usize]
+    }
+
+    fn label(&mut self, text: &[u8]) -> u8 {
+        if let Some(i) = self.labels.iter().position(|l| l == text) {
+            return i as u8;
+        }
+        // More than 255 distinct statuses and revisions in one part cannot come from resinlot;
+        // the last slot then stands for the rest (they read as "?").
+        if self.labels.len() >= 255 {
+            return 255;
+        }
+        self.labels.push(text.to_vec());
+        (self.labels.len() - 1) as u8
+    }
+
+    /// Reads line `n` of the part; refuses a line with fewer fields than needed.
+    fn read(
+        &mut self,
+        layout: &RowLayout,
+        n: usize,
+        line: &[u8],
+    ) -> std::result::Result<(), scan::LineFault> {
+        let mut spans = std::mem::take(&mut self.spans);
+        split_spans(line, layout.upto, &mut spans);
+        if spans.len() <= layout.upto {
+            return Err(scan::LineFault {
+                local_line: n,
+                problem: "the row has fewer fields than the header".into(),
+            });
+        }
+        let field = |i: usize| {
+            let (a, b) = spans[layout.want[i]];
+            &line[a..b.min(line.len())]
+        };
+        let lot = field(0);
+        self.hash.push(scan::lot_hash(lot));
+        self.ids.extend_from_slice(lot);
+        self.id_end.push(self.ids.len() as u32);
+        self.line.push(n as u32);
+        self.made.push(Day::from_bytes(field(1)));
+        let (s, r) = (self.label(field(2)), self.label(field(3)));
+        self.status.push(s);
+        self.revision.push(r);
+        if self.with_mn_uncertainty {
+            self.mn_uncertainty.push(number(field(4)));
+        }
+        for i in 0..self.keys {
+            self.values.push(number(field(5 + i)));
+        }
+        if let Some(l) = &mut self.life {
+            self.lives.push(l.read(&spans, line));
+        }
+        self.spans = spans;
+        Ok(())
+    }
+}
+
+/// A recorded cell as a number (None when empty or not a number).
+fn number(s: &[u8]) -> Option<f64> {
+    if s.is_empty() {
+        return None;
+    }
+    std::str::from_utf8(s)
+        .ok()
+        .and_then(|t| t.parse::<f64>().ok())
+}
+
+/// The latest row of every lot over the scanned parts, in file order: the (hash, row) pairs
+/// are sorted, and within a run of equal hashes, for every distinct lot id, only the highest
+/// row is kept (a retest supersedes what came before).
 ///
-/// With `lives` (parallel to `rows`), each kept lot's life gets the latest retest date of any
-/// of the lot's rows, and the lives are kept alongside.
-fn keep_latest(
-    rows: &mut Vec<LotRow>,
-    mut keys_seen: Vec<(u64, u32)>,
-    mut lives: Option<&mut Vec<Life>>,
-) {
-    keys_seen.sort_unstable();
-    let mut keep = vec![true; rows.len()];
+/// With lives (the parts read them), each kept lot's life gets the latest retest date of any
+/// of the lot's rows, and the lives come back parallel to the rows (empty otherwise).
+fn latest_rows(mut parts: Vec<scan::Part<PartRows>>, keys: usize) -> (Vec<LotRow>, Vec<Life>) {
+    // Row r of the whole file is row r - first[k] of part k.
+    let mut first = Vec::with_capacity(parts.len());
+    let mut line_base = Vec::with_capacity(parts.len());
+    let (mut rows, mut lines) = (0usize, 1usize);
+    for p in &parts {
+        first.push(rows);
+        line_base.push(lines);
+        rows += p.state.len();
+        lines += p.lines;
+    }
+    let locate = |r: usize| {
+        let k = first.partition_point(|&f| f <= r) - 1;
+        (k, r - first[k])
+    };
+    let mut pairs: Vec<(u64, u32)> = Vec::with_capacity(rows);
+    for (k, p) in parts.iter().enumerate() {
+        pairs.extend(
+            p.state
+                .hash
+                .iter()
+                .enumerate()
+                .map(|(i, &h)| (h, (first[k] + i) as u32)),
+        );
+    }
+    {
+        use rayon::slice::ParallelSliceMut;
+        pairs.par_sort_unstable();
+    }
+    let mut keep = vec![true; rows];
+    let with_life = parts.iter().any(|p| p.state.life.is_some());
+    let mut retested: Vec<(u32, Option<Day>)> = Vec::new();
+    let id = |r: u32| {
+        let (k, i) = locate(r as usize);
+        parts[k].state.id(i)
+    };
+    let life = |r: u32| {
+        let (k, i) = locate(r as usize);
+        parts[k].state.lives[i]
+    };
     let mut i = 0;
-    while i < keys_seen.len() {
+    while i < pairs.len() {
         let mut j = i + 1;
-        while j < keys_seen.len() && keys_seen[j].0 == keys_seen[i].0 {
+        while j < pairs.len() && pairs[j].0 == pairs[i].0 {
             j += 1;
         }
         for a in i..j {
-            let ra = keys_seen[a].1 as usize;
-            if keys_seen[a + 1..j]
-                .iter()
-                .any(|&(_, rb)| rows[rb as usize].lot == rows[ra].lot)
-            {
-                keep[ra] = false;
-            } else if let Some(lives) = lives.as_deref_mut() {
-                let retested = keys_seen[i..j]
+            let ra = pairs[a].1;
+            if pairs[a + 1..j].iter().any(|&(_, rb)| id(rb) == id(ra)) {
+                keep[ra as usize] = false;
+            } else if with_life && j - i > 1 {
+                let latest = pairs[i..j]
                     .iter()
-                    .filter(|&&(_, rb)| rows[rb as usize].lot == rows[ra].lot)
-                    .filter_map(|&(_, rb)| lives[rb as usize].retested)
+                    .filter(|&&(_, rb)| id(rb) == id(ra))
+                    .filter_map(|&(_, rb)| life(rb).retested)
                     .max();
-                lives[ra].retested = retested;
+                retested.push((ra, latest));
             }
         }
         i = j;
     }
-    if let Some(lives) = lives {
-        let mut k = 0;
-        lives.retain(|_| {
-            k += 1;
-            keep[k - 1]
-        });
+    drop(pairs);
+    for (r, latest) in retested {
+        let (k, i) = locate(r as usize);
+        parts[k].state.lives[i].retested = latest;
     }
-    let mut k = 0;
-    rows.retain(|_| {
-        k += 1;
-        keep[k - 1]
-    });
+    let kept = keep.iter().filter(|&&k| k).count();
+    let mut out = Vec::with_capacity(kept);
+    let mut lives = Vec::with_capacity(if with_life { kept } else { 0 });
+    let mut labels: Vec<&'static str> = Vec::new();
+    for (k, p) in parts.into_iter().enumerate() {
+        let p = p.state;
+        let names: Vec<&'static str> = p.labels.iter().map(|l| intern(&mut labels, l)).collect();
+        let name = |i: u8| names.get(i as usize).copied().unwrap_or("?");
+        for i in 0..p.len() {
+            if !keep[first[k] + i] {
+                continue;
+            }
+            out.push(LotRow {
+                line: line_base[k] + p.line[i] as usize,
+                lot: LotId::from(std::str::from_utf8(p.id(i)).unwrap_or("?")),
+                manufactured: p.made[i],
+                status: name(p.status[i]),
+                revision: name(p.revision[i]),
+                mn_uncertainty: p.mn_uncertainty.get(i).copied().flatten(),
+                values: p.values[i * keys..(i + 1) * keys].to_vec(),
+            });
+            if let Some(l) = p.lives.get(i) {
+                lives.push(*l);
+            }
+        }
+    }
+    (out, lives)
 }
 
 /// Reads the [`Life`] cells of a row: `supersedes`, `disposition`, `concession_customer`,
@@ -625,6 +921,11 @@ fn read_header(path: &Path) -> Result<Vec<String>> {
     let columns = trend_file::split_line(first.trim_end());
     trend_file::check_trend_header(path, &columns)?;
     Ok(columns)
+}
+
+/// The checked header columns of the trend file at `path` (its first line only).
+pub fn header_columns(path: &Path) -> Result<Vec<String>> {
+    read_header(path)
 }
 
 /// The property keys of a trend file (from its header only).
@@ -701,6 +1002,93 @@ mod tests {
         let got: Vec<(&str, Option<f64>)> = rows.iter().map(|r| (&*r.lot, r.values[0])).collect();
         assert_eq!(got, [("B2", Some(0.6)), ("A1", Some(0.4)), ("C3", None)]);
         assert_eq!(&*rows[0].manufactured, "2026-01-01");
+    }
+
+    /// Issue #20: split into several parts, the scan still keeps exactly the latest row of
+    /// each lot (a retest in a later part supersedes) and numbers lines as the file does.
+    #[test]
+    fn parallel_parts_keep_the_latest_row_and_exact_lines_issue_20() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("P.csv");
+        let keys = vec!["acid_value".to_string()];
+        let lots = ["A1", "B2", "C3", "A1", "D4", "B2", "E5", "A1"];
+        let rows: Vec<_> = lots
+            .iter()
+            .enumerate()
+            .map(|(i, lot)| {
+                vec![
+                    ("lot", lot.to_string()),
+                    ("acid_value", format!("0.{}", i + 1)),
+                    ("manufactured", "2026-01-01".into()),
+                    ("status", "released".into()),
+                ]
+            })
+            .collect();
+        trend_file::write_for_test(&p, &keys, &rows);
+        let (_, one, lives) = current_lots_in(&p, &keys, true, true, Some(1)).unwrap();
+        assert_eq!(lives.len(), one.len());
+        for parts in [2, 3, 5, 8] {
+            let (_, got, got_lives) = current_lots_in(&p, &keys, true, true, Some(parts)).unwrap();
+            assert_eq!(got, one, "parts {parts}");
+            assert_eq!(got_lives, lives, "parts {parts}");
+        }
+        let got: Vec<(&str, usize, Option<f64>)> =
+            one.iter().map(|r| (&*r.lot, r.line, r.values[0])).collect();
+        // Header is line 1, so row i (from 0) is line i + 2.
+        assert_eq!(
+            got,
+            [
+                ("C3", 4, Some(0.3)),
+                ("D4", 6, Some(0.5)),
+                ("B2", 7, Some(0.6)),
+                ("E5", 8, Some(0.7)),
+                ("A1", 9, Some(0.8))
+            ]
+        );
+        assert_eq!(one[0].status, "released");
+    }
+
+    /// Issue #20: ids whose hashes collide are still told apart (every hash forced equal).
+    #[test]
+    fn colliding_hashes_are_told_apart_by_the_ids_issue_20() {
+        let mut part = PartRows::new(1, false, None);
+        for (i, id) in ["X1", "Y2", "X1", "Z3"].iter().enumerate() {
+            part.hash.push(7);
+            part.ids.extend_from_slice(id.as_bytes());
+            part.id_end.push(part.ids.len() as u32);
+            part.line.push(i as u32 + 1);
+            part.made.push(Day::from("2026-01-01"));
+            part.status.push(0);
+            part.revision.push(0);
+            part.values.push(Some(i as f64));
+        }
+        part.labels.push(b"released".to_vec());
+        let (rows, _) = latest_rows(
+            vec![scan::Part {
+                state: part,
+                lines: 4,
+            }],
+            1,
+        );
+        let got: Vec<(&str, usize)> = rows.iter().map(|r| (&*r.lot, r.line)).collect();
+        assert_eq!(got, [("Y2", 3), ("X1", 4), ("Z3", 5)]);
+    }
+
+    #[test]
+    fn lot_ids_inline_or_on_the_heap_read_back() {
+        for id in [
+            "",
+            "A1",
+            "PD-2000-26-000123",
+            "a-very-long-lot-identifier-of-40-bytes!!",
+        ] {
+            let l = LotId::from(id);
+            assert_eq!(&*l, id);
+            assert_eq!(l, id);
+            assert_eq!(l.to_string(), id);
+            assert_eq!(serde_json::to_string(&l).unwrap(), format!("\"{id}\""));
+        }
+        assert_ne!(LotId::from("A1"), LotId::from("A10"));
     }
 
     /// Issue #14: each kept lot's life carries the latest retest date of any of its rows

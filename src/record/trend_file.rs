@@ -716,6 +716,41 @@ impl Locked {
         Ok(seq)
     }
 
+    /// Appends several rows in one write (issue #16: the rows of one certificate): every row is
+    /// encoded first, so a row that would be refused writes none of them.
+    pub fn append_rows(&mut self, rows: &[Vec<(&str, String)>]) -> Result<()> {
+        let (n0, head0) = (self.trend.rows.len(), self.trend.head.clone());
+        let mut text = if self.fresh {
+            format!("{}\n", self.header)
+        } else {
+            String::new()
+        };
+        for cells in rows {
+            let (line, back) = match encode_row(&self.trend, cells) {
+                Ok(x) => x,
+                Err(e) => {
+                    self.trend.rows.truncate(n0);
+                    self.trend.head = head0;
+                    return Err(e);
+                }
+            };
+            text.push_str(&line);
+            self.trend.head = back[back.len() - 1].clone();
+            let seq = self.trend.rows.len() + 1;
+            self.trend.rows.push(Row {
+                line: seq + 1,
+                cells: back,
+            });
+        }
+        if let Err(e) = self.file.write_all(text.as_bytes()) {
+            self.trend.rows.truncate(n0);
+            self.trend.head = head0;
+            return Err(Error::io(&self.trend.path, "writing", e));
+        }
+        self.fresh = false;
+        Ok(())
+    }
+
     /// True when the file did not exist (or was empty) when it was locked and nothing has
     /// been appended since.
     pub fn is_fresh(&self) -> bool {

@@ -416,6 +416,7 @@ mod tests {
                 sha256: "ab".into(),
                 supersedes: String::new(),
                 reason: String::new(),
+                ..Default::default()
             })
             .unwrap();
         }

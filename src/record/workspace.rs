@@ -96,7 +96,12 @@ fn workspace_files(dir: &Path) -> Result<Vec<(String, String)>> {
                 .join("/");
             if meta.is_dir() {
                 walk(root, &path, out)?;
-            } else if rel == DEMO_MARKER {
+            } else if rel == DEMO_MARKER
+                || e.file_name()
+                    .to_str()
+                    .is_some_and(crate::record::index::is_index_name)
+            {
+                // The marker itself, and lot indexes (derived, rebuilt at will, not the record).
                 continue;
             } else if meta.file_type().is_symlink() {
                 let target =

@@ -18,7 +18,16 @@ use crate::spec::{ProductSpec, Property, SpecSet};
 struct CustomerFile {
     name: String,
     #[serde(default)]
+    address: Vec<String>,
+    inspection_document: Option<String>,
+    #[serde(default = "yes")]
+    show_uncertainty: bool,
+    #[serde(default)]
     products: IndexMap<String, ProductFile>,
+}
+
+fn yes() -> bool {
+    true
 }
 
 #[derive(Debug, Clone, Deserialize)]
@@ -72,6 +81,12 @@ pub struct Customer {
     pub id: String,
     /// The customer's legal name.
     pub name: String,
+    /// Postal address, one entry per printed line (may be empty).
+    pub address: Vec<String>,
+    /// The EN 10204:2004 inspection document the customer orders to, if any.
+    pub inspection_document: Option<InspectionDocument>,
+    /// Whether certificates show the U column under the guarded rule (default true).
+    pub show_uncertainty: bool,
     /// Requirements per product code.
     pub products: IndexMap<String, CustomerProduct>,
     /// The file.
@@ -120,6 +135,36 @@ impl Customer {
     }
 }
 
+/// The type of inspection document of EN 10204:2004 a customer orders to (types named in the
+/// standard's clause 4; wording of the certificate's statement is resinlot's own).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum InspectionDocument {
+    /// Type 2.2, test report: the manufacturer's declaration of compliance with test results.
+    TestReport22,
+    /// Type 3.1, inspection certificate: results of specific inspection, validated by the
+    /// manufacturer's authorised inspection representative independent of manufacturing.
+    Certificate31,
+}
+
+impl InspectionDocument {
+    /// Parses `"2.2"` or `"3.1"` as written in a customer file.
+    pub fn parse(s: &str) -> Option<InspectionDocument> {
+        match s.trim() {
+            "2.2" => Some(InspectionDocument::TestReport22),
+            "3.1" => Some(InspectionDocument::Certificate31),
+            _ => None,
+        }
+    }
+
+    /// The type as written, `"2.2"` or `"3.1"`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            InspectionDocument::TestReport22 => "2.2",
+            InspectionDocument::Certificate31 => "3.1",
+        }
+    }
+}
+
 /// Customer stems in a folder, sorted.
 pub fn list(dir: &Path) -> Vec<String> {
     let mut v: Vec<String> = std::fs::read_dir(dir)
@@ -150,6 +195,24 @@ fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result
     // Every text field ends up on a certificate: one line of printable text, no control or
     // bidirectional-override characters (issue #13, item 6).
     crate::support::text::check_line(&format!("{file}: name"), "customer name", &raw.name, 200)?;
+    for (i, line) in raw.address.iter().enumerate() {
+        crate::support::text::check_line(
+            &format!("{file}: address[{}]", i + 1),
+            "address line",
+            line,
+            120,
+        )?;
+    }
+    let inspection_document = match &raw.inspection_document {
+        None => None,
+        Some(t) => Some(InspectionDocument::parse(t).ok_or_else(|| {
+            Error::invalid(
+                format!("{file}: inspection_document"),
+                format!("'{t}' is not an EN 10204 document type resinlot issues"),
+                "Write inspection_document = \"3.1\" (inspection certificate) or \"2.2\" (test report), or leave it out.",
+            )
+        })?),
+    };
     let mut products = IndexMap::new();
     for (code, p) in raw.products {
         let place = |f: &str| format!("{file}: products.{code}{f}");
@@ -194,6 +257,15 @@ fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result
         let mut limits = IndexMap::new();
         for (k, w) in &p.limits {
             known(k, &format!(".limits.{k}"))?;
+            // A window holds numbers; a text property is decided by its conforming words
+            // (issue #15), so a window on one would be silently ignored.
+            if spec.property(k).is_some_and(|p| p.is_text()) {
+                return Err(Error::invalid(
+                    place(&format!(".limits.{k}")),
+                    format!("{k} is a text property: its results are words, which a window cannot limit"),
+                    "Remove this window; the spec's conforming words apply to every customer.",
+                ));
+            }
             let conv = |v: Option<f64>, f: &str| -> Result<Option<Decimal>> {
                 v.map(|x| {
                     decimal_from_f64(x).ok_or_else(|| {
@@ -238,6 +310,9 @@ fn validate(id: &str, raw: CustomerFile, path: &Path, specs: &SpecSet) -> Result
     Ok(Customer {
         id: id.to_string(),
         name: raw.name.trim().to_string(),
+        address: raw.address.iter().map(|l| l.trim().to_string()).collect(),
+        inspection_document,
+        show_uncertainty: raw.show_uncertainty,
         products,
         path: path.to_path_buf(),
     })
@@ -450,6 +525,40 @@ pub fn customer_fit(
         reported,
         window: lim,
         uncertainty: u,
+    }
+}
+
+/// The customer-fit rule for a result that is not a number (issue #15): a word passes when
+/// it is one of the spec's conforming words (a customer window holds numbers and does not
+/// apply to it); a censored result "< L" is decided by
+/// [`censored_verdict`](crate::spec::decision::censored_verdict) against the tighter of the
+/// spec's and the customer's windows, with the product's guard band, and a stated limit above
+/// the window's maximum fails. `None` for a number (use [`customer_fit`]).
+pub fn special_fit(
+    spec: &ProductSpec,
+    p: &Property,
+    recorded: &crate::spec::decision::RecordedResult,
+    window: Option<&Window>,
+) -> Option<Verdict> {
+    use crate::spec::decision::RecordedResult;
+    match recorded {
+        RecordedResult::Number(_) => None,
+        RecordedResult::Word(w) => Some(if p.conforms(w) {
+            Verdict::Pass
+        } else {
+            Verdict::Fail
+        }),
+        RecordedResult::Below(l) => {
+            let lim = combined(p.min, p.max, window);
+            let w = match spec.decision_rule {
+                DecisionRule::Guarded => recorded_uncertainty(spec, p, None).unwrap_or_default(),
+                DecisionRule::Simple => Decimal::ZERO,
+            };
+            Some(
+                crate::spec::decision::censored_verdict(*l, lim.min, lim.max, w)
+                    .unwrap_or(Verdict::Fail),
+            )
+        }
     }
 }
 

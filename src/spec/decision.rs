@@ -134,6 +134,84 @@ pub fn verdict(x: Decimal, min: Option<Decimal>, max: Option<Decimal>, w: Decima
     upper.max(lower)
 }
 
+/// Verdict of a censored result "< L" (below the stated limit L, e.g. below the limit of
+/// quantification) against optional limits with guard band `w`; `None` when L is above the
+/// maximum, which the caller refuses as bad input (such a result cannot show conformity).
+///
+/// The true value lies somewhere below L. Against a maximum TL it passes when L ≤ TL − w
+/// (the guarded acceptance limit of ILAC-G8:09/2019 §4.2.3; w = 0 under §4.2.1) and is a
+/// conditional pass when TL − w < L ≤ TL, since the value itself is unknown. Against a minimum
+/// it fails: nothing below L can be shown to reach the minimum. Treating a censored result as
+/// "below L", never as a number, is common practice for results under the LOQ.
+pub fn censored_verdict(
+    limit: Decimal,
+    min: Option<Decimal>,
+    max: Option<Decimal>,
+    w: Decimal,
+) -> Option<Verdict> {
+    let upper = match max {
+        Some(tl) if limit > tl => return None,
+        Some(tl) if limit > tl - w => Verdict::ConditionalPass,
+        _ => Verdict::Pass,
+    };
+    let lower = if min.is_some() {
+        Verdict::Fail
+    } else {
+        Verdict::Pass
+    };
+    Some(upper.max(lower))
+}
+
+/// How a censored result is reported: "< L", with L given at least to `decimals` places (a
+/// stated limit is never rounded, so it is never understated).
+pub fn censored_text(limit: Decimal, decimals: u32) -> String {
+    let mut l = limit;
+    if l.scale() < decimals {
+        l.rescale(decimals);
+    }
+    format!("< {l}")
+}
+
+/// A result as a trend-file cell records it: a number, a censored result `<L`, or a word of
+/// a text property.
+#[derive(Debug, Clone, PartialEq)]
+pub enum RecordedResult {
+    /// A number.
+    Number(Decimal),
+    /// Below the stated limit L (`<L` in the cell).
+    Below(Decimal),
+    /// A word of a text property, as written in the spec.
+    Word(String),
+}
+
+impl RecordedResult {
+    /// Reads a recorded cell; `None` for an empty cell.
+    pub fn parse(cell: &str) -> Option<RecordedResult> {
+        let cell = cell.trim();
+        if cell.is_empty() {
+            return None;
+        }
+        if let Some(l) = cell.strip_prefix('<') {
+            if let Some(d) = recorded_decimal(l.trim()) {
+                return Some(RecordedResult::Below(d));
+            }
+        }
+        Some(match recorded_decimal(cell) {
+            Some(d) => RecordedResult::Number(d),
+            None => RecordedResult::Word(cell.to_string()),
+        })
+    }
+
+    /// The cell text that records this result: the number, `<L` or the word.
+    pub fn cell(&self) -> String {
+        match self {
+            RecordedResult::Number(d) => d.to_string(),
+            RecordedResult::Below(l) => format!("<{l}"),
+            RecordedResult::Word(w) => w.clone(),
+        }
+    }
+}
+
 /// Converts a finite f64 to a Decimal (about 15 significant digits kept).
 pub fn decimal_from_f64(x: f64) -> Option<Decimal> {
     if !x.is_finite() {
@@ -141,6 +219,30 @@ pub fn decimal_from_f64(x: f64) -> Option<Decimal> {
     }
     let text = format!("{:.*e}", 14, x);
     Decimal::from_scientific(&text).ok().map(|d| d.normalize())
+}
+
+/// A recorded value held as `f64` (queries keep a million lots as floats) rounded to
+/// `decimals` places exactly as [`round`] rounds its decimal: the value as
+/// [`decimal_from_f64`] gives it, then ASTM E29-13 §6.4. `None` for a non-finite value.
+///
+/// Fast path: when `value · 10^decimals` is below 10^9 in size and at least 10^-6 from a
+/// half-unit, the f64 product (error below 2·10^-7 there) rounds to the same integer as the
+/// exact decimal, so no decimal is built; only near a tie, where the rounding rule decides,
+/// is the decimal formed and [`round`] applied.
+pub fn round_recorded(value: f64, decimals: u32, method: Rounding) -> Option<Decimal> {
+    if !value.is_finite() {
+        return None;
+    }
+    if decimals <= 9 {
+        let scaled = value * 10f64.powi(decimals as i32);
+        let frac = (scaled.abs() - scaled.abs().trunc() - 0.5).abs();
+        if scaled.abs() < 1e9 && frac > 1e-6 {
+            let mut d = Decimal::new(scaled.round() as i64, decimals);
+            d.rescale(decimals);
+            return Some(d);
+        }
+    }
+    Some(round(decimal_from_f64(value)?, decimals, method))
 }
 
 /// A decimal as recorded in a trend-file cell: its exact text, or, for a cell written in
@@ -154,6 +256,62 @@ pub fn recorded_decimal(cell: &str) -> Option<Decimal> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue #16: the float fast path rounds as the decimal rule does, ties included (ASTM
+    /// E29-13 §6.4.3: 0.0205 to three places is 0.020, 0.0215 is 0.022; half up gives 0.021).
+    #[test]
+    fn recorded_floats_round_as_their_decimals_issue_16() {
+        assert_eq!(
+            round_recorded(0.0205, 3, Rounding::HalfEven)
+                .unwrap()
+                .to_string(),
+            "0.020"
+        );
+        assert_eq!(
+            round_recorded(0.0215, 3, Rounding::HalfEven)
+                .unwrap()
+                .to_string(),
+            "0.022"
+        );
+        assert_eq!(
+            round_recorded(0.0205, 3, Rounding::HalfUp)
+                .unwrap()
+                .to_string(),
+            "0.021"
+        );
+        assert_eq!(
+            round_recorded(2.675, 2, Rounding::HalfEven)
+                .unwrap()
+                .to_string(),
+            "2.68"
+        );
+        assert_eq!(
+            round_recorded(-1.5, 0, Rounding::HalfEven)
+                .unwrap()
+                .to_string(),
+            "-2"
+        );
+        assert_eq!(
+            round_recorded(1989.3617021276596, 0, Rounding::HalfEven)
+                .unwrap()
+                .to_string(),
+            "1989"
+        );
+        assert_eq!(round_recorded(f64::NAN, 1, Rounding::HalfEven), None);
+        // Every value on a grid of ties and near-ties: fast path and decimal rule agree.
+        for i in 0..20_000 {
+            let v = i as f64 * 0.000_25 - 2.0;
+            for d in 0..5 {
+                for m in [Rounding::HalfEven, Rounding::HalfUp] {
+                    assert_eq!(
+                        round_recorded(v, d, m),
+                        Some(round(decimal_from_f64(v).unwrap(), d, m)),
+                        "{v} to {d}"
+                    );
+                }
+            }
+        }
+    }
 
     #[test]
     fn recorded_cells_read_back_exactly() {
@@ -224,6 +382,60 @@ mod tests {
         let z = Decimal::ZERO;
         assert_eq!(verdict(d("1.00"), None, Some(d("1.0")), z), Verdict::Pass);
         assert_eq!(verdict(d("1.01"), None, Some(d("1.0")), z), Verdict::Fail);
+    }
+
+    #[test]
+    fn censored_results_issue_15() {
+        // Rule stated at censored_verdict (ILAC-G8:09/2019 §4.2.3 acceptance limit TL − w).
+        let (max, w) = (Some(d("0.05")), d("0.01"));
+        assert_eq!(
+            censored_verdict(d("0.01"), None, max, w),
+            Some(Verdict::Pass)
+        );
+        assert_eq!(
+            censored_verdict(d("0.04"), None, max, w),
+            Some(Verdict::Pass)
+        ); // = TL − w
+        assert_eq!(
+            censored_verdict(d("0.045"), None, max, w),
+            Some(Verdict::ConditionalPass)
+        );
+        assert_eq!(
+            censored_verdict(d("0.05"), None, max, w),
+            Some(Verdict::ConditionalPass)
+        );
+        assert_eq!(censored_verdict(d("0.06"), None, max, w), None);
+        // Simple rule: w = 0, anything at or under the maximum passes.
+        assert_eq!(
+            censored_verdict(d("0.05"), None, max, Decimal::ZERO),
+            Some(Verdict::Pass)
+        );
+        // Against a minimum a censored result fails.
+        assert_eq!(
+            censored_verdict(d("0.01"), Some(d("0.5")), None, w),
+            Some(Verdict::Fail)
+        );
+        assert_eq!(censored_text(d("0.01"), 2), "< 0.01");
+        assert_eq!(censored_text(d("0.1"), 2), "< 0.10");
+        assert_eq!(censored_text(d("0.005"), 2), "< 0.005");
+    }
+
+    #[test]
+    fn recorded_results_read_back_issue_15() {
+        assert_eq!(
+            RecordedResult::parse("0.50"),
+            Some(RecordedResult::Number(d("0.50")))
+        );
+        assert_eq!(
+            RecordedResult::parse("<0.01"),
+            Some(RecordedResult::Below(d("0.01")))
+        );
+        assert_eq!(
+            RecordedResult::parse("clear"),
+            Some(RecordedResult::Word("clear".into()))
+        );
+        assert_eq!(RecordedResult::parse(""), None);
+        assert_eq!(RecordedResult::Below(d("0.01")).cell(), "<0.01");
     }
 
     #[test]

@@ -37,14 +37,34 @@ struct PropertyFile {
     label: Option<String>,
     unit: Option<String>,
     method: Option<String>,
+    kind: Option<String>,
+    allowed: Option<Vec<String>>,
+    conforming: Option<Vec<String>>,
+    loq: Option<f64>,
     min: Option<f64>,
     max: Option<f64>,
-    decimals: u32,
+    decimals: Option<u32>,
     uncertainty: Option<f64>,
     acidity_correction: Option<AcidityField>,
     temperature_c: Option<f64>,
     andrade_b_k: Option<f64>,
     repeatability: Option<f64>,
+}
+
+/// What a property's results are: numbers (the default) or words from a fixed list.
+#[derive(Debug, Clone, PartialEq, Eq, Default)]
+pub enum Kind {
+    /// A number, rounded and decided against limits.
+    #[default]
+    Number,
+    /// One of `allowed` (matched case-insensitively, kept as written in the spec); it passes
+    /// when it is one of `conforming` and fails otherwise (`kind = "text"`).
+    Text {
+        /// Every word a result may be, as written in the spec.
+        allowed: Vec<String>,
+        /// The words that conform (a subset of `allowed`).
+        conforming: Vec<String>,
+    },
 }
 
 /// `acidity_correction` as written: the historical flag or a named correction.
@@ -91,12 +111,38 @@ pub struct Property {
     pub repeatability: Option<Decimal>,
     /// True for computed properties (mn, xn, ...).
     pub derived: bool,
+    /// Numbers or words.
+    pub kind: Kind,
+    /// Limit of quantification: a result entered as `<x` or `nd` is censored (below it).
+    pub loq: Option<Decimal>,
 }
 
 impl Property {
-    /// True when the property has at least one limit.
+    /// True when the property has at least one limit (a text property always has: its list of
+    /// conforming words).
     pub fn has_limit(&self) -> bool {
-        self.min.is_some() || self.max.is_some()
+        self.min.is_some() || self.max.is_some() || self.is_text()
+    }
+
+    /// True for a `kind = "text"` property.
+    pub fn is_text(&self) -> bool {
+        matches!(self.kind, Kind::Text { .. })
+    }
+
+    /// The allowed word matching `entered` case-insensitively, as written in the spec.
+    pub fn allowed_word(&self, entered: &str) -> Option<&str> {
+        match &self.kind {
+            Kind::Text { allowed, .. } => allowed
+                .iter()
+                .find(|w| w.to_lowercase() == entered.trim().to_lowercase())
+                .map(String::as_str),
+            Kind::Number => None,
+        }
+    }
+
+    /// True when `word` (as written in the spec) is a conforming result.
+    pub fn conforms(&self, word: &str) -> bool {
+        matches!(&self.kind, Kind::Text { conforming, .. } if conforming.iter().any(|c| c == word))
     }
 }
 
@@ -125,6 +171,9 @@ pub struct ProductSpec {
     pub properties: Vec<Property>,
     /// The file it came from.
     pub path: PathBuf,
+    /// SHA-256 (lower-case hex) of the file's bytes as read: recorded on every lot decided
+    /// on this revision, so an edit of the revision after use is found.
+    pub sha256: String,
 }
 
 impl ProductSpec {
@@ -227,6 +276,7 @@ impl ProductSpec {
             recipe,
             properties,
             path: path.to_path_buf(),
+            sha256: crate::support::audit::sha256_hex(text.as_bytes()),
         };
         for needs in keys::DERIVED {
             if spec.property(needs).is_none() {
@@ -299,18 +349,27 @@ fn property(
         }
     }
     let derived = keys::is_derived(key);
+    let kind = kind(&place, key, p)?;
+    if kind != Kind::Number {
+        return text_property(&place, key, p, kind);
+    }
     let (unit, label) = unit_and_label(&place, key, p, derived)?;
-    if p.decimals > 10 {
+    let Some(decimals) = p.decimals else {
         return Err(Error::invalid(
             place(".decimals"),
-            format!(
-                "{} decimal places is more than any method resolves",
-                p.decimals
-            ),
+            "the reporting precision is missing",
+            "Add decimals = N, the number of decimal places results are reported with.",
+        ));
+    };
+    if decimals > 10 {
+        return Err(Error::invalid(
+            place(".decimals"),
+            format!("{decimals} decimal places is more than any method resolves"),
             "Use 0 to 10.",
         ));
     }
     let (min, max, uncertainty) = limits(file, key, p, rule, derived)?;
+    let loq = loq(file, key, p, derived, max)?;
     check_property_fields(&place, key, p)?;
     check_physical_ranges(&place, p)?;
     let acidity = acidity_correction(&place, p)?;
@@ -321,7 +380,7 @@ fn property(
         method: p.method.clone(),
         min,
         max,
-        decimals: p.decimals,
+        decimals,
         uncertainty,
         acidity_correction: acidity.applies(),
         acidity_correction_kind: acidity,
@@ -329,7 +388,194 @@ fn property(
         andrade_b_k: p.andrade_b_k,
         repeatability: dec(file, key, "repeatability", p.repeatability)?,
         derived,
+        kind: Kind::Number,
+        loq,
     })
+}
+
+/// The property's kind from `kind = "number" | "text"` (default number); `allowed` and
+/// `conforming` belong to text properties only.
+fn kind(place: &impl Fn(&str) -> String, key: &str, p: &PropertyFile) -> Result<Kind> {
+    match p.kind.as_deref() {
+        None | Some("number") => {
+            if p.allowed.is_some() || p.conforming.is_some() {
+                return Err(Error::invalid(
+                    place(""),
+                    "allowed and conforming belong to text properties",
+                    "Add kind = \"text\", or remove allowed and conforming.",
+                ));
+            }
+            Ok(Kind::Number)
+        }
+        Some("text") => {
+            // The end-group inputs and the viscosity feed calculations: they stay numbers.
+            if keys::is_derived(key)
+                || [keys::ACID_VALUE, keys::HYDROXYL_VALUE, keys::VISCOSITY].contains(&key)
+            {
+                return Err(Error::invalid(
+                    place(".kind"),
+                    format!("'{key}' is used in calculations and must be a number"),
+                    "Remove kind = \"text\", or use another key for a text result.",
+                ));
+            }
+            let allowed = text_words(&place(".allowed"), p.allowed.as_deref().unwrap_or(&[]))?;
+            let given = text_words(
+                &place(".conforming"),
+                p.conforming.as_deref().unwrap_or(&[]),
+            )?;
+            let mut conforming = Vec::new();
+            for w in &given {
+                let Some(a) = allowed
+                    .iter()
+                    .find(|a| a.to_lowercase() == w.to_lowercase())
+                else {
+                    return Err(Error::invalid(
+                        place(".conforming"),
+                        format!("'{w}' is not one of the allowed words"),
+                        "List every conforming word in allowed as well.",
+                    ));
+                };
+                conforming.push(a.clone());
+            }
+            Ok(Kind::Text {
+                allowed,
+                conforming,
+            })
+        }
+        Some(other) => Err(Error::invalid(
+            place(".kind"),
+            format!("'{other}' is not a kind of property"),
+            "Use kind = \"number\" (the default) or kind = \"text\".",
+        )),
+    }
+}
+
+/// A non-empty list of distinct (case-insensitively) printable words, none of which could be
+/// read as a number or a censored result (so a recorded cell says which it is).
+fn text_words(place: &str, words: &[String]) -> Result<Vec<String>> {
+    if words.is_empty() {
+        return Err(Error::invalid(
+            place,
+            "the list is missing or empty",
+            "List the words as they are reported, e.g. [\"clear\", \"hazy\"].",
+        ));
+    }
+    let mut out: Vec<String> = Vec::new();
+    for w in words {
+        let w = w.trim();
+        crate::support::text::check_line(place, "word", w, 40)?;
+        if w.is_empty()
+            || w.starts_with('<')
+            || w.eq_ignore_ascii_case("nd")
+            || w.parse::<f64>().is_ok()
+        {
+            return Err(Error::invalid(
+                place,
+                format!("'{w}' cannot be a word result: it is empty or reads as a number"),
+                "Use words such as \"clear\" or \"conforms\".",
+            ));
+        }
+        if out.iter().any(|o| o.to_lowercase() == w.to_lowercase()) {
+            return Err(Error::invalid(
+                place,
+                format!("'{w}' is listed twice"),
+                "List each word once (words are matched regardless of case).",
+            ));
+        }
+        out.push(w.to_string());
+    }
+    Ok(out)
+}
+
+/// A text property: label and unit (optional, empty), the word lists, and none of the
+/// numeric fields.
+fn text_property(
+    place: &impl Fn(&str) -> String,
+    key: &str,
+    p: &PropertyFile,
+    kind: Kind,
+) -> Result<Property> {
+    let numeric = [
+        ("min", p.min.is_some()),
+        ("max", p.max.is_some()),
+        ("decimals", p.decimals.is_some()),
+        ("uncertainty", p.uncertainty.is_some()),
+        ("loq", p.loq.is_some()),
+        ("repeatability", p.repeatability.is_some()),
+        ("acidity_correction", p.acidity_correction.is_some()),
+        ("temperature_c", p.temperature_c.is_some()),
+        ("andrade_b_k", p.andrade_b_k.is_some()),
+    ];
+    if let Some((field, _)) = numeric.iter().find(|(_, given)| *given) {
+        return Err(Error::invalid(
+            place(&format!(".{field}")),
+            format!("a text property has no {field}"),
+            "Remove this line; a text result is decided by its conforming words.",
+        ));
+    }
+    let Some(label) = given(&p.label) else {
+        return Err(Error::invalid(
+            place(".label"),
+            "the label is missing",
+            "Add label = \"...\", the name printed on certificates.",
+        ));
+    };
+    Ok(Property {
+        key: key.to_string(),
+        label: label.to_string(),
+        unit: given(&p.unit).unwrap_or("").to_string(),
+        method: p.method.clone(),
+        min: None,
+        max: None,
+        decimals: 0,
+        uncertainty: None,
+        acidity_correction: false,
+        acidity_correction_kind: Default::default(),
+        temperature_c: None,
+        andrade_b_k: None,
+        repeatability: None,
+        derived: false,
+        kind,
+        loq: None,
+    })
+}
+
+/// The limit of quantification: measured, non-end-group properties only (Mn, Xn and p need
+/// quantified titrations), positive, and at most the maximum (else no result below it could
+/// show conformity).
+fn loq(
+    file: &str,
+    key: &str,
+    p: &PropertyFile,
+    derived: bool,
+    max: Option<Decimal>,
+) -> Result<Option<Decimal>> {
+    let place = format!("{file}: properties.{key}.loq");
+    let Some(loq) = dec(file, key, "loq", p.loq)? else {
+        return Ok(None);
+    };
+    if derived || key == keys::ACID_VALUE || key == keys::HYDROXYL_VALUE {
+        return Err(Error::invalid(
+            place,
+            format!("'{key}' must be quantified: Mn, Xn and p are calculated from it"),
+            "Remove loq; enter the titration result as a number.",
+        ));
+    }
+    if loq <= Decimal::ZERO {
+        return Err(Error::invalid(
+            place,
+            format!("{loq} is not a usable limit of quantification"),
+            "Give the limit of quantification as a positive number in the property's unit.",
+        ));
+    }
+    if let Some(m) = max.filter(|m| loq > *m) {
+        return Err(Error::invalid(
+            place,
+            format!("the limit of quantification {loq} is above the maximum {m}"),
+            "A result below the LOQ must be able to conform: check the LOQ and the limit.",
+        ));
+    }
+    Ok(Some(loq))
 }
 
 /// The key is well formed, and a derived key can be computed from what the spec holds.
@@ -642,6 +888,18 @@ impl SpecSet {
         self.products.get(code).and_then(|v| v.last())
     }
 
+    /// Every property key that is a text property in some revision of some product: a
+    /// results file reads those cells as words.
+    pub fn text_keys(&self) -> std::collections::BTreeSet<String> {
+        self.products
+            .values()
+            .flatten()
+            .flat_map(|s| s.properties.iter())
+            .filter(|p| p.is_text())
+            .map(|p| p.key.clone())
+            .collect()
+    }
+
     /// Every property key used by any revision of `code`, in first-seen order.
     pub fn all_keys(&self, code: &str) -> Vec<String> {
         let mut keys: Vec<String> = Vec::new();
@@ -680,6 +938,15 @@ pub fn limits_text(min: Option<Decimal>, max: Option<Decimal>, decimals: u32) ->
         (None, Some(hi)) => format!("≤ {}", f(hi)),
         (Some(lo), None) => format!("≥ {}", f(lo)),
         (None, None) => "report only".to_string(),
+    }
+}
+
+/// The requirement of a text property as printed: its conforming words ("clear" or
+/// "clear, slightly hazy"); `None` for a numeric property (see [`limits_text`]).
+pub fn conforming_text(p: &Property) -> Option<String> {
+    match &p.kind {
+        Kind::Text { conforming, .. } => Some(conforming.join(", ")),
+        Kind::Number => None,
     }
 }
 

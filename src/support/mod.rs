@@ -1,7 +1,8 @@
 //! Support layer: the injected clock, printing and atomic file writes, TOML reading with
 //! file:line:column errors, aligned tables, safe identifiers, the bundled fonts, the PDF file
-//! identity (identifier, producer, dates) and the visual language of charts and pages. Uses only `error` and outside crates; every other layer may use it.
+//! identity (identifier, producer, dates), the visual language of charts and pages, and who runs the command (`audit`). Uses only `error` and outside crates; every other layer may use it.
 
+pub mod audit;
 pub mod clock;
 pub mod csv_input;
 pub mod fonts;

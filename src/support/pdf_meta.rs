@@ -18,6 +18,19 @@ pub fn set_creator_and_day(doc: &mut printpdf::PdfDocument, day: chrono::NaiveDa
     }
 }
 
+/// Blanks out the empty `/GTS_PDFXVersion()` entry printpdf 0.12 writes into every document
+/// information dictionary. The key declares PDF/X conformance (ISO 15930), so readers report
+/// a file carrying it as PDF/X even when empty; resinlot's PDFs are plain PDF and claim no
+/// conformance (issue #17). The entry is overwritten with spaces, which a dictionary allows
+/// between entries (ISO 32000-1 §7.2.2), so no byte offset in the file moves. A file without
+/// the empty entry is left as it is.
+pub fn drop_empty_pdfx_version(bytes: &mut [u8]) {
+    const ENTRY: &[u8] = b"/GTS_PDFXVersion()";
+    if let Some(at) = bytes.windows(ENTRY.len()).position(|w| w == ENTRY) {
+        bytes[at..at + ENTRY.len()].fill(b' ');
+    }
+}
+
 /// Length of each of the two identifier strings printpdf writes, in characters.
 const LEN: usize = 32;
 
@@ -79,6 +92,22 @@ mod tests {
             String::from_utf8(pdf).unwrap(),
             format!("trailer<</ID[({want})({want})]>>")
         );
+    }
+
+    #[test]
+    fn the_empty_pdfx_claim_is_blanked_in_place() {
+        let mut pdf = b"<</Trapped/False/GTS_PDFXVersion()/Title(x)>>".to_vec();
+        let len = pdf.len();
+        drop_empty_pdfx_version(&mut pdf);
+        assert_eq!(pdf.len(), len);
+        assert_eq!(
+            pdf,
+            b"<</Trapped/False                  /Title(x)>>".to_vec()
+        );
+        // A real version string is not ours to remove.
+        let mut real = b"/GTS_PDFXVersion(PDF/X-3:2002)".to_vec();
+        drop_empty_pdfx_version(&mut real);
+        assert_eq!(real, b"/GTS_PDFXVersion(PDF/X-3:2002)".to_vec());
     }
 
     #[test]

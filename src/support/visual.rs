@@ -699,15 +699,25 @@ pub fn linear_ticks(lo: f64, hi: f64, target: usize) -> Vec<f64> {
         return vec![lo];
     }
     let raw = (hi - lo) / target.max(1) as f64;
-    let mag = 10f64.powf(raw.log10().floor());
-    let step = [1.0, 2.0, 5.0, 10.0]
-        .iter()
-        .map(|m| m * mag)
-        .find(|s| *s >= raw)
-        .unwrap_or(10.0 * mag);
+    let e = raw.log10().floor() as i32;
+    let mag = 10f64.powi(e);
+    let m = [1.0, 2.0, 5.0, 10.0]
+        .into_iter()
+        .find(|m| m * mag >= raw)
+        .unwrap_or(10.0);
+    let step = m * mag;
     let first = (lo / step).ceil() as i64;
     let last = (hi / step).floor() as i64;
-    (first..=last).map(|k| k as f64 * step).collect()
+    // k·m is an exact integer; dividing it by a power of ten gives the decimal tick correctly
+    // rounded (0.3, not 3 × 0.1 = 0.30000000000000004).
+    let tick = |k: i64| {
+        if e < 0 {
+            k as f64 * m / 10f64.powi(-e)
+        } else {
+            k as f64 * m * mag
+        }
+    };
+    (first..=last).map(tick).collect()
 }
 
 /// Ticks of a log10 axis inside [lo, hi]: 1, 2 and 5 of each decade when at most four decades
@@ -885,21 +895,18 @@ mod tests {
 
     #[test]
     fn ticks_step_by_1_2_5() {
-        assert_eq!(
-            linear_ticks(0.0, 10.0, 5),
-            vec![0.0, 2.0, 4.0, 6.0, 8.0, 10.0]
-        );
-        let ticks = linear_ticks(0.13, 0.61, 5);
-        let want = [0.2, 0.3, 0.4, 0.5, 0.6];
-        assert_eq!(ticks.len(), want.len(), "{ticks:?}");
-        for (t, w) in ticks.iter().zip(want) {
-            assert!((t - w).abs() < 1e-9, "{ticks:?}");
-        }
-        assert_eq!(log_ticks(150.0, 3000.0), vec![200.0, 500.0, 1000.0, 2000.0]);
-        assert_eq!(
-            log_ticks(1.0, 1e5),
-            vec![1.0, 10.0, 100.0, 1000.0, 1e4, 1e5]
-        );
+        // Ticks are k · step in floating point: compared to 1e-12 relative.
+        let same = |got: Vec<f64>, want: &[f64]| {
+            assert_eq!(got.len(), want.len(), "{got:?}");
+            for (g, w) in got.iter().zip(want) {
+                assert!((g - w).abs() <= 1e-12 * w.abs().max(1.0), "{got:?}");
+            }
+        };
+        same(linear_ticks(0.0, 10.0, 5), &[0.0, 2.0, 4.0, 6.0, 8.0, 10.0]);
+        same(linear_ticks(0.13, 0.61, 5), &[0.2, 0.3, 0.4, 0.5, 0.6]);
+        same(log_ticks(150.0, 3000.0), &[200.0, 500.0, 1000.0, 2000.0]);
+        // More than four decades: the decades only.
+        same(log_ticks(1.0, 1e5), &[1.0, 10.0, 100.0, 1000.0, 1e4, 1e5]);
     }
 
     #[test]

@@ -864,6 +864,7 @@ fn legend_and_notes(
         Line(Rgb, f64, Option<&'static str>),
         Ring,
         Diamond,
+        Tag,
     }
     let mut items: Vec<(Sample, &str)> = vec![
         (Sample::Dot, "lot value"),
@@ -883,15 +884,11 @@ fn legend_and_notes(
         items.push((Sample::Diamond, "outside the spec window"));
     }
     if !marked.is_empty() {
-        items.push((
-            Sample::Dot,
-            "tag n: entry n of the signal list (1 = newest)",
-        ));
+        items.push((Sample::Tag, "tag n: lot n of the signal list (1 = newest)"));
     }
     let mut x = 12.0;
     let mut y = above + 24.0;
-    for (i, (sample, text)) in items.iter().enumerate() {
-        let tag_item = !marked.is_empty() && i + 1 == items.len();
+    for (sample, text) in &items {
         let w = 26.0 + visual::text_width(text, TEXT, false) + 18.0;
         if x + w > f64::from(WIDTH) - 8.0 {
             x = 12.0;
@@ -899,7 +896,7 @@ fn legend_and_notes(
         }
         let cy = y - 5.0;
         match sample {
-            _ if tag_item => {
+            Sample::Tag => {
                 let l = Label::new("n", x + 11.0, y, TEXT)
                     .anchor(Anchor::Middle)
                     .bold()

@@ -328,6 +328,70 @@ pub fn property_trends(req: &TrendRequest) -> Result<Vec<PropertyTrend>> {
     Ok(trends)
 }
 
+/// The columns of a trend file that hold words (`kind = "text"` in some revision of
+/// `product`): trend leaves them out of its statistics and says so once (issue #15).
+pub fn text_columns(specs: &SpecSet, product: &str, columns: &[String]) -> Vec<String> {
+    let revs = specs.products.get(product).map_or(&[][..], Vec::as_slice);
+    columns
+        .iter()
+        .filter(|k| {
+            revs.iter()
+                .any(|s| s.property(k).is_some_and(|p| p.is_text()))
+        })
+        .cloned()
+        .collect()
+}
+
+/// The columns that may hold censored results (a `loq` in some revision of `product`).
+pub fn censorable_columns(specs: &SpecSet, product: &str, columns: &[String]) -> Vec<String> {
+    let revs = specs.products.get(product).map_or(&[][..], Vec::as_slice);
+    columns
+        .iter()
+        .filter(|k| {
+            revs.iter()
+                .any(|s| s.property(k).is_some_and(|p| p.loq.is_some()))
+        })
+        .cloned()
+        .collect()
+}
+
+/// Adds to each trend the warning that `count` results below the limit of quantification
+/// were excluded from its statistics (`censored` pairs a key with its count).
+pub fn note_censored(trends: &mut [PropertyTrend], censored: &[(String, usize)]) {
+    for t in trends {
+        if let Some((_, n)) = censored.iter().find(|(k, n)| *k == t.property && *n > 0) {
+            t.warnings.push(format!(
+                "{n} result{} below the limit of quantification (recorded as <L) excluded from the statistics",
+                if *n == 1 { "" } else { "s" }
+            ));
+        }
+    }
+}
+
+/// The lines trend prints once under its overview about what it left out (issue #15): text
+/// properties, and censored results per property.
+pub fn exclusions_text(text_keys: &[String], censored: &[(String, usize)]) -> String {
+    let mut out = String::new();
+    if !text_keys.is_empty() {
+        out.push_str(&format!(
+            "Not trended: {} (text results; statistics need numbers).\n",
+            text_keys.join(", ")
+        ));
+    }
+    let excluded: Vec<String> = censored
+        .iter()
+        .filter(|(_, n)| *n > 0)
+        .map(|(k, n)| format!("{k} {n}"))
+        .collect();
+    if !excluded.is_empty() {
+        out.push_str(&format!(
+            "Excluded from the statistics, results below the limit of quantification: {}.\n",
+            excluded.join(", ")
+        ));
+    }
+    out
+}
+
 /// True when any trend has a run-rule signal or any lot is off the viscosity–Mn line.
 pub fn any_signal(trends: &[PropertyTrend], visc: Option<&ViscosityCheck>) -> bool {
     trends.iter().any(|t| !t.signals.is_empty()) || visc.is_some_and(|v| !v.off_line.is_empty())

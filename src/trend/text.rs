@@ -263,8 +263,20 @@ fn signals_text(t: &PropertyTrend, rules: &str) -> String {
     if t.signals.is_empty() {
         return format!("\nNo run-rule signals (rules: {rules}).\n");
     }
-    let mut out = format!("\nSignals ({}):\n", t.signals.len());
+    let mut out = format!(
+        "\nSignals ({}; tag: the lot's number on the chart, 1 = newest):\n",
+        t.signals.len()
+    );
+    let marked =
+        crate::trend::chart::marked_lots(&t.values, &t.raw_signals, t.spec_min, t.spec_max);
+    let tag = |index: usize| {
+        marked
+            .iter()
+            .find(|m| m.index == index)
+            .map_or(String::new(), |m| m.number.to_string())
+    };
     let mut rows = vec![vec![
+        "tag".to_string(),
         "rule".to_string(),
         "lot".into(),
         "manufactured".into(),
@@ -273,6 +285,7 @@ fn signals_text(t: &PropertyTrend, rules: &str) -> String {
     ]];
     for s in &t.signals {
         rows.push(vec![
+            tag(s.index),
             s.rule.to_string(),
             s.lot.clone(),
             s.manufactured.clone(),

@@ -358,6 +358,7 @@ mod tests {
             sha256: "ab".into(),
             supersedes: String::new(),
             reason: String::new(),
+            ..Entry::default()
         };
         let g = verdict_view(&CertVerdict::Genuine { entry: e.clone() });
         assert_eq!((g.word, g.tone), ("genuine", "good"));

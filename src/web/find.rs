@@ -176,6 +176,7 @@ fn answer(config: &crate::web::Config, form: FindForm) -> Result<Response, PageE
         to,
         customer,
         specs: &config.specs,
+        full_precision: false,
         every: csv,
         include_expired: !form.include_expired.is_empty(),
         today: crate::support::clock::now()?.date_naive(),

@@ -370,3 +370,195 @@ fn text_baselines(pdf: &[u8]) -> Vec<Vec<f32>> {
         })
         .collect()
 }
+
+/// Horizontal rules (pt from the bottom edge) and text baselines of each page, read from the
+/// content streams with lopdf: a rule is a painted path or rectangle (`m`/`l`/`re`, then `S`
+/// or `f`) whose bounding box is at most 2 pt high and wider than it is high; its height is
+/// the middle of that box. A baseline is the y of each `Tm`.
+fn rules_and_baselines(pdf: &[u8]) -> Vec<(Vec<f32>, Vec<f32>)> {
+    use lopdf::content::Content;
+    let doc = lopdf::Document::load_mem(pdf).unwrap();
+    let num = |o: &lopdf::Object| o.as_float().unwrap_or(0.0);
+    doc.get_pages()
+        .values()
+        .map(|&id| {
+            let content = Content::decode(&doc.get_page_content(id)).unwrap();
+            let (mut rules, mut baselines) = (Vec::new(), Vec::new());
+            let mut points: Vec<(f32, f32)> = Vec::new();
+            for op in &content.operations {
+                let a = &op.operands;
+                match op.operator.as_str() {
+                    "m" | "l" => points.push((num(&a[0]), num(&a[1]))),
+                    "re" => {
+                        let (x, y, w, h) = (num(&a[0]), num(&a[1]), num(&a[2]), num(&a[3]));
+                        points.extend([(x, y), (x + w, y + h)]);
+                    }
+                    "S" | "s" | "f" | "F" | "f*" | "B" | "b" | "n" => {
+                        if op.operator != "n" && !points.is_empty() {
+                            let lo = points.iter().map(|p| p.1).fold(f32::MAX, f32::min);
+                            let hi = points.iter().map(|p| p.1).fold(f32::MIN, f32::max);
+                            let left = points.iter().map(|p| p.0).fold(f32::MAX, f32::min);
+                            let right = points.iter().map(|p| p.0).fold(f32::MIN, f32::max);
+                            if hi - lo <= 2.0 && right - left > hi - lo {
+                                rules.push((lo + hi) / 2.0);
+                            }
+                        }
+                        points.clear();
+                    }
+                    "Tm" => baselines.push(num(&a[5])),
+                    _ => {}
+                }
+            }
+            (rules, baselines)
+        })
+        .collect()
+}
+
+/// A certificate of `n` FICTIONAL properties (invented labels and values), guarded rule, with
+/// the U column, some labels long enough to wrap.
+fn long_certificate(n: usize) -> Certificate {
+    let mut cert = fixture("sample");
+    let row = cert.rows[1].clone();
+    cert.show_uncertainty = true;
+    cert.rows = (1..=n)
+        .map(|i| ResultRow {
+            key: format!("p{i}"),
+            label: if i % 3 == 0 {
+                format!("Property {i} measured after conditioning at 23\u{a0}°C and 50\u{a0}% relative humidity")
+            } else {
+                format!("Property {i}")
+            },
+            result: format!("{}.{}", 50 + i % 9, i % 10),
+            uncertainty: Some("0.8".into()),
+            ..row.clone()
+        })
+        .collect();
+    cert
+}
+
+#[test]
+fn forty_properties_run_to_three_pages_that_hold_up_issue_17() {
+    let cert = long_certificate(40);
+    let out = render("forty", &cert);
+    let pages = page_texts(&out.pdf);
+    assert_eq!(pages.len(), 3, "40 properties take three pages");
+    for (i, text) in pages.iter().enumerate() {
+        // The table header is repeated on every page that has rows, and every page is numbered.
+        assert!(
+            text.contains("Property Method Unit Limits Result U (k = 2) Verdict"),
+            "page {}: no header row:\n{text}",
+            i + 1
+        );
+        assert!(
+            text.contains(&format!("Page {} of 3", i + 1)),
+            "page {}",
+            i + 1
+        );
+    }
+    // Every row is printed once, in order.
+    let all = pages.join(" ");
+    let mut at = 0;
+    for i in 1..=40 {
+        let needle = format!("Property {i} ");
+        let found = all[at..]
+            .find(&needle)
+            .unwrap_or_else(|| panic!("row {i} missing or out of order"));
+        at += found + needle.len();
+        assert_eq!(all.matches(&needle).count(), 1, "row {i} printed twice");
+    }
+    // The statement of conformity and the signature block share a page.
+    let statement = squash(&cert.conformity.statement);
+    let on = |t: &str| pages.iter().position(|p| squash(p).contains(t));
+    let s = on(&statement).expect("statement printed");
+    assert_eq!(on(&squash(&cert.authorisation.name)), Some(s));
+    assert_eq!(
+        on(&squash(&format!(
+            "Release authorised {}",
+            cert.authorisation.date
+        ))),
+        Some(s)
+    );
+    // No text baseline lies within 1 pt of a horizontal rule on any page.
+    let geometry = rules_and_baselines(&out.pdf);
+    assert_eq!(geometry.len(), 3);
+    for (i, (rules, baselines)) in geometry.iter().enumerate() {
+        assert!(
+            rules.len() > 10,
+            "page {}: rules found {}",
+            i + 1,
+            rules.len()
+        );
+        for r in rules {
+            for b in baselines {
+                assert!(
+                    (r - b).abs() > 1.0,
+                    "page {}: baseline {b} pt within 1 pt of the rule at {r} pt",
+                    i + 1
+                );
+            }
+        }
+    }
+}
+
+#[test]
+fn the_rule_check_catches_a_rule_through_text_issue_17() {
+    // The check above can fail: a rule drawn through a line of text is found.
+    let cert = fixture("sample");
+    let out = render("sample-ruled", &cert);
+    let geometry = rules_and_baselines(&out.pdf);
+    let (_, baselines) = &geometry[0];
+    let y = baselines[3];
+    let mut doc = lopdf::Document::load_mem(&out.pdf).unwrap();
+    let page = *doc.get_pages().values().next().unwrap();
+    let mut content = lopdf::content::Content::decode(&doc.get_page_content(page)).unwrap();
+    for (op, args) in [("m", vec![40.0, y]), ("l", vec![500.0, y]), ("S", vec![])] {
+        content.operations.push(lopdf::content::Operation::new(
+            op,
+            args.into_iter().map(lopdf::Object::Real).collect(),
+        ));
+    }
+    doc.change_page_content(page, content.encode().unwrap())
+        .unwrap();
+    let mut bytes = Vec::new();
+    doc.save_to(&mut bytes).unwrap();
+    let (rules, baselines) = &rules_and_baselines(&bytes)[0];
+    assert!(rules
+        .iter()
+        .any(|r| baselines.iter().any(|b| (r - b).abs() <= 1.0)));
+}
+
+#[test]
+fn a_template_without_page_rows_keeps_the_engines_page_breaks_issue_17() {
+    // A template edited before issue #17 prints every row itself: resinlot does not paginate
+    // it (each page would repeat the whole table) but leaves the breaks to the HTML engine.
+    let dir = edited_templates(|t| {
+        t.replace("{% if page.rows %}", "{% if rows %}")
+            .replace("{% for row in page.rows %}", "{% for row in rows %}")
+    });
+    let templates = Templates::load(dir.path()).unwrap();
+    assert!(!templates.paged());
+    assert!(Templates::load(&templates_dir()).unwrap().paged());
+    let cert = long_certificate(40);
+    let out = render::render_one(&templates, &FontPool::bundled(), &cert).unwrap();
+    let pages = page_texts(&out.pdf);
+    assert!(pages.len() >= 2, "{}", pages.len());
+    let all = pages.join(" ");
+    for i in 1..=40 {
+        assert_eq!(all.matches(&format!("Property {i} ")).count(), 1, "row {i}");
+    }
+}
+
+#[test]
+fn test_dates_are_printed_issue_17() {
+    let mut cert = fixture("sample");
+    let day = |d: u32| chrono::NaiveDate::from_ymd_opt(2026, 9, d);
+    cert.lot.tested_from = day(14);
+    cert.lot.tested_to = day(15);
+    let text = page_texts(&render("tested", &cert).pdf).join(" ");
+    // A range is printed on two lines (the narrow column cannot hold it), never split inside
+    // a date.
+    assert!(text.contains("Tested 2026-09-14 – 2026-09-15"), "{text}");
+    cert.lot.tested_to = day(14);
+    let text = page_texts(&render("tested-one-day", &cert).pdf).join(" ");
+    assert!(text.contains("Tested 2026-09-14 Retest"), "{text}");
+}

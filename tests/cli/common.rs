@@ -98,6 +98,11 @@ impl Workspace {
                 .collect();
             entries.sort();
             for e in entries {
+                // A lot index is derived and rebuilt at will: not part of what a command changed.
+                let name = e.file_name().and_then(|n| n.to_str()).unwrap_or("");
+                if resinlot::record::index::is_index_name(name) {
+                    continue;
+                }
                 if e.is_dir() {
                     out.push((e.clone(), "folder".into()));
                     walk(&e, out);

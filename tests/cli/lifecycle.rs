@@ -165,7 +165,8 @@ fn a_retest_that_rejects_a_certified_lot_withdraws_its_certificates_issue_14() {
         .unwrap();
     assert_eq!(nw["customer"], "northwind");
     assert_eq!(nw["customer_name"], "Northwind & Sons <Foams>");
-    assert_eq!(nw["po"], "");
+    // Since issue #16 the log records the purchase order, so the notice names it.
+    assert_eq!(nw["po"], "PO-7781");
     let old = pdf_of(&w, "FW-000004");
     let out = w.cmd().arg("verify").arg(&old).output().unwrap();
     assert_eq!(out.status.code(), Some(1));

@@ -3,7 +3,9 @@
 
 mod common;
 
+mod audit;
 mod bad_input;
+mod certificate_content;
 mod certificate_faults;
 mod certificate_render;
 mod certify;
@@ -12,6 +14,7 @@ mod demo_command;
 mod demo_data;
 mod demo_safety;
 mod endgroup;
+mod find_across;
 mod flags;
 mod intake_scale;
 mod lifecycle;
@@ -25,4 +28,5 @@ mod record_tail;
 mod release;
 mod serve;
 mod serve_browser;
+mod shipments;
 mod trend;

@@ -230,17 +230,38 @@ fn old_registers_still_read_and_append_without_upgrade_issue_13() {
     );
     assert!(text.contains("`resinlot upgrade` adds them"), "{text}");
     w.write("lot.csv", PD_LOT);
-    w.release("lot.csv").assert().success();
-    // Still the earlier layout, appended to as it is; no heads file is started.
+    // Issue #15: a new row records who tested when, the login name and the spec's SHA-256,
+    // which the earlier layout has no columns for, so the release is refused naming
+    // `resinlot upgrade` and nothing is written (nothing is dropped silently); the old
+    // register still reads and verifies as it is.
+    let before = w.snapshot();
+    let out = w.release("lot.csv").assert().code(2);
+    let err = String::from_utf8_lossy(&out.get_output().stderr).into_owned();
+    assert!(err.contains("resinlot upgrade"), "{err}");
+    assert_eq!(w.snapshot(), before);
     let log = std::fs::read_to_string(w.path("register/certificates.csv")).unwrap();
     let old = std::fs::read_to_string(fixture("register/certificates.csv")).unwrap();
     assert!(log.starts_with(&old));
+    assert!(!w.path("register/heads.csv").exists());
+    let (code, text) = verify(&w);
+    assert_eq!(code, 0, "{text}");
+    assert!(
+        text.contains("register/PD-2000.csv: 62 rows, intact"),
+        "{text}"
+    );
+    assert!(
+        text.contains("register/certificates.csv: 8 rows, intact"),
+        "{text}"
+    );
+    // The upgrade carries the eight log rows over; the release then appends and numbers on.
+    w.cmd().arg("upgrade").assert().success();
+    w.release("lot.csv").assert().success();
+    let log = std::fs::read_to_string(w.path("register/certificates.csv")).unwrap();
     assert!(log
         .lines()
         .last()
         .unwrap()
         .contains(",FW-000009,F2611-D99,"));
-    assert!(!w.path("register/heads.csv").exists());
     let (code, text) = verify(&w);
     assert_eq!(code, 0, "{text}");
     assert!(
@@ -248,15 +269,7 @@ fn old_registers_still_read_and_append_without_upgrade_issue_13() {
         "{text}"
     );
     assert!(
-        text.contains("register/certificates.csv: 9 rows, intact"),
-        "{text}"
-    );
-    // The upgrade then carries the nine rows over.
-    w.cmd().arg("upgrade").assert().success();
-    let (code, text) = verify(&w);
-    assert_eq!(code, 0, "{text}");
-    assert!(
-        text.contains("register/certificates.csv.v1: 9 rows, intact"),
+        text.contains("register/certificates.csv.v1: 8 rows, intact"),
         "{text}"
     );
 }

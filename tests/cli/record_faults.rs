@@ -197,10 +197,11 @@ fn a_retest_reason_stays_with_the_retested_lot_issue_13() {
     let headers = rdr.headers().unwrap().clone();
     let col = |name: &str| headers.iter().position(|h| h == name).unwrap();
     let rows: Vec<csv::StringRecord> = rdr.records().map(Result::unwrap).collect();
+    // The lot's last issue row (issue #14 adds event rows, e.g. "superseded", after it).
     let row_of = |lot: &str| {
         rows.iter()
             .rev()
-            .find(|r| &r[col("lot")] == lot)
+            .find(|r| &r[col("lot")] == lot && r[col("event")].is_empty())
             .unwrap()
             .clone()
     };

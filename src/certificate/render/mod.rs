@@ -1,12 +1,14 @@
 //! Certificate rendering: data model -> tera template -> HTML -> PDF, one certificate or many.
 //!
 //! The HTML step reads the lab's templates (`certificate.html.tera`, `certificate.css`) from a
-//! templates folder at run time, so wording and layout change without recompiling. The PDF
-//! step lays the HTML out with printpdf's HTML engine using the bundled DejaVu fonts only, then
-//! stamps the footer (certificate number, page x of y) and, for a lot that is not released,
-//! the NOT RELEASED marking onto every page with printpdf's own operations.
+//! templates folder at run time (or the built-in ones), so wording and layout change without
+//! recompiling. The PDF step lays the HTML out with printpdf's HTML engine using the bundled
+//! DejaVu fonts only, one page at a time when the certificate runs to several ([`layout`]),
+//! then stamps the footer (certificate number, page x of y) and, for a lot that is not
+//! released, the NOT RELEASED marking onto every page with printpdf's own operations.
 
 mod html;
+pub mod layout;
 mod pdf;
 
 pub use html::{render_html, Templates, CERTIFICATE_TEMPLATE, STYLESHEET};
@@ -31,7 +33,7 @@ pub struct Rendered {
 /// Renders one certificate with already-loaded templates and fonts.
 pub fn render_one(templates: &Templates, fonts: &FontPool, cert: &Certificate) -> Result<Rendered> {
     let html = templates.render(cert)?;
-    let pdf = render_pdf(&html, cert, fonts)?;
+    let pdf = render_pdf(templates, &html, cert, fonts)?;
     Ok(Rendered { html, pdf })
 }
 

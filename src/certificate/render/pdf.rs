@@ -1,4 +1,5 @@
-//! PDF step: lays the certificate HTML out with printpdf's HTML engine on A4, using only the
+//! PDF step: lays the certificate HTML out with printpdf's HTML engine on A4, one page at a
+//! time when it runs to several (see [`crate::certificate::render::layout`]), using only the
 //! bundled DejaVu fonts, then stamps footer and NOT RELEASED marking with printpdf operations.
 
 use std::collections::{BTreeMap, HashMap};
@@ -12,6 +13,8 @@ use printpdf::{
 };
 
 use crate::certificate::model::Certificate;
+use crate::certificate::render::layout::{self, Heights, PagePlan};
+use crate::certificate::render::Templates;
 use crate::error::{Error, Result};
 
 use crate::support::fonts::{advance_width, DEJAVU_SANS, DEJAVU_SANS_BOLD};
@@ -112,9 +115,80 @@ impl<'a> StampFont<'a> {
     }
 }
 
-/// Lays `html` out as an A4 PDF and stamps every page with the certificate number and
+/// Lays the certificate out as an A4 PDF and stamps every page with the certificate number and
 /// "Page x of y", plus the NOT RELEASED marking when `cert.released` is false.
-pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Vec<u8>> {
+///
+/// A certificate that fits one page is laid out whole. A longer one is paginated by resinlot
+/// ([`layout::plan`]): the head and closing block are measured by laying them out alone, the
+/// rows and footnotes with the font's metrics; each page is then laid out on its own from the
+/// template (table header repeated) and checked to fit one page; a page that does not is
+/// planned again with one unit fewer.
+/// `whole_html` is the certificate rendered whole ([`Templates::render`]).
+pub fn render_pdf(
+    templates: &Templates,
+    whole_html: &str,
+    cert: &Certificate,
+    fonts: &FontPool,
+) -> Result<Vec<u8>> {
+    let first = lay_out(whole_html, cert, fonts)?;
+    let mut doc = if first.pages.len() == 1 || !templates.paged() {
+        first
+    } else {
+        paginate(templates, cert, fonts)?
+    };
+    set_metadata(&mut doc, cert);
+    let regular = StampFont::register(&mut doc, &fonts.regular);
+    let bold = StampFont::register(&mut doc, &fonts.bold);
+    let pages = doc.pages.len();
+    for (i, page) in doc.pages.iter_mut().enumerate() {
+        stamp_footer(page, cert, i + 1, pages, &regular, &bold);
+        if !cert.released {
+            stamp_not_released(page, &bold);
+        }
+    }
+    let mut warnings = Vec::new();
+    let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);
+    crate::support::pdf_meta::drop_empty_pdfx_version(&mut bytes);
+    set_document_id(&mut bytes, cert);
+    Ok(bytes)
+}
+
+/// Title, author (the issuing site), subject (lot and certificate number) and keywords, and
+/// the reproducible creator and dates ([`crate::support::pdf_meta::set_creator_and_day`]).
+/// No conformance (PDF/A, PDF/X) is claimed: the file is plain PDF.
+fn set_metadata(doc: &mut PdfDocument, cert: &Certificate) {
+    let info = &mut doc.metadata.info;
+    info.document_title = format!("{} {}", cert.title, cert.number);
+    info.author = cert.issuer.name.clone();
+    info.subject = format!(
+        "Lot{} {} of {}, certificate No. {}",
+        if cert.lots.len() > 1 { "s" } else { "" },
+        lot_ids(cert),
+        cert.product.code,
+        cert.number
+    );
+    info.identifier = cert.number.clone();
+    info.keywords = vec![
+        "certificate of analysis".to_string(),
+        cert.product.code.clone(),
+        cert.lot.id.clone(),
+    ];
+    // Document dates: the issue date at 00:00 UTC, so the file is reproducible.
+    crate::support::pdf_meta::set_creator_and_day(doc, cert.issue_date);
+}
+
+/// The certificate's lot ids, comma-separated (several on a delivery of several lots, #16).
+fn lot_ids(cert: &Certificate) -> String {
+    if cert.lots.len() > 1 {
+        let ids: Vec<&str> = cert.lots.iter().map(|l| l.id.as_str()).collect();
+        ids.join(", ")
+    } else {
+        cert.lot.id.clone()
+    }
+}
+
+/// Lays one HTML document out on A4 pages with the bundled fonts.
+fn lay_out(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<PdfDocument> {
     let options = GeneratePdfOptions {
         page_width: Some(PAGE_W_MM),
         page_height: Some(PAGE_H_MM),
@@ -125,7 +199,7 @@ pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Ve
         ..GeneratePdfOptions::default()
     };
     let mut warnings = Vec::new();
-    let mut doc = PdfDocument::from_html_with_cache(
+    let doc = PdfDocument::from_html_with_cache(
         html,
         &BTreeMap::new(),
         // The faces reach the layout through the pool's font cache; passing them again in
@@ -148,23 +222,148 @@ pub fn render_pdf(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<Ve
             &format!("no page was produced ({detail})"),
         ));
     }
-    doc.metadata.info.document_title = format!("{} {}", cert.title, cert.number);
-    doc.metadata.info.subject = format!("Lot {} of {}", cert.lot.id, cert.product.code);
-    doc.metadata.info.identifier = cert.number.clone();
-    // Document dates: the issue date at 00:00 UTC, so the file is reproducible.
-    crate::support::pdf_meta::set_creator_and_day(&mut doc, cert.issue_date);
-    let regular = StampFont::register(&mut doc, &fonts.regular);
-    let bold = StampFont::register(&mut doc, &fonts.bold);
-    let pages = doc.pages.len();
-    for (i, page) in doc.pages.iter_mut().enumerate() {
-        stamp_footer(page, cert, i + 1, pages, &regular, &bold);
-        if !cert.released {
-            stamp_not_released(page, &bold);
+    Ok(doc)
+}
+
+/// Top edge of the content box, pt from the bottom of the page.
+fn content_top() -> f32 {
+    (PAGE_H_MM - MARGIN_TOP_MM) * PT_PER_MM
+}
+
+/// Height used on the first page of `doc`, pt from the top of the content box: down to the
+/// lowest drawn line or shape, or the lowest text baseline less a descender (0.25 em).
+pub(crate) fn used_height(doc: &PdfDocument) -> f32 {
+    let Some(page) = doc.pages.first() else {
+        return 0.0;
+    };
+    let mut low = content_top();
+    let mut size = 9.0f32;
+    let mut take = |y: f32| low = low.min(y);
+    for op in &page.ops {
+        match op {
+            Op::SetFont { size: s, .. } => size = s.0,
+            Op::SetTextMatrix { matrix } => match matrix {
+                TextMatrix::Translate(_, y) | TextMatrix::TranslateRotate(_, y, _) => {
+                    take(y.0 - 0.25 * size)
+                }
+                TextMatrix::Raw(m) => take(m[5] - 0.25 * size),
+            },
+            Op::DrawLine { line } => line.points.iter().for_each(|p| take(p.p.y.0)),
+            Op::DrawPolygon { polygon } => polygon
+                .rings
+                .iter()
+                .flat_map(|r| &r.points)
+                .for_each(|p| take(p.p.y.0)),
+            Op::DrawRectangle { rectangle } => take(rectangle.y.0),
+            _ => {}
         }
     }
-    let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);
-    set_document_id(&mut bytes, cert);
-    Ok(bytes)
+    content_top() - low
+}
+
+/// Height of the content box, pt.
+fn content_height() -> f32 {
+    (PAGE_H_MM - MARGIN_TOP_MM - MARGIN_BOTTOM_MM) * PT_PER_MM
+}
+
+/// Paginates a certificate that does not fit one page (see [`render_pdf`]).
+fn paginate(templates: &Templates, cert: &Certificate, fonts: &FontPool) -> Result<PdfDocument> {
+    let probe = |plan: PagePlan, index: usize| -> Result<f32> {
+        let html = templates.render_page(cert, &plan.page(cert, index))?;
+        Ok(used_height(&lay_out(&html, cert, fonts)?))
+    };
+    let nothing = PagePlan {
+        rows: (0, 0),
+        notes: (0, 0),
+        closing: false,
+    };
+    let head = probe(nothing.clone(), 1)?;
+    let running = probe(nothing.clone(), 2)?;
+    let closing = probe(
+        PagePlan {
+            closing: true,
+            ..nothing.clone()
+        },
+        2,
+    )? - running;
+    let with_u = cert.show_uncertainty;
+    let note_text = |n: &crate::certificate::model::CalculatedNote| {
+        format!(
+            "{} {} = {} {} ± {} {} (expanded uncertainty, k = 2), {}.",
+            n.mark,
+            n.label,
+            n.value,
+            n.unit,
+            n.expanded_uncertainty.as_deref().unwrap_or(""),
+            n.unit,
+            n.basis
+        )
+    };
+    let heights = Heights {
+        // A little slack under the measured blocks: margins collapse differently next to
+        // the table than alone.
+        head: head + 4.0,
+        running: running + 4.0,
+        table_head: layout::table_head_height(),
+        rows: cert
+            .rows
+            .iter()
+            .map(|r| layout::row_height(&fonts.regular, &fonts.bold, r, with_u))
+            .collect(),
+        notes: cert
+            .calculated
+            .iter()
+            .map(|n| layout::note_height(&fonts.regular, &note_text(n)))
+            .collect(),
+        closing: closing + 4.0,
+        page: content_height(),
+    };
+    let mut limits: Vec<Option<usize>> = Vec::new();
+    // Each retry takes one unit off one page, so the loop ends; the bound is a safeguard.
+    for _ in 0..(cert.rows.len() + cert.calculated.len() + 8) {
+        let plans = layout::plan(&heights, &limits);
+        let mut docs = Vec::with_capacity(plans.len());
+        let mut overflow = None;
+        for (k, plan) in plans.iter().enumerate() {
+            let html = templates.render_page(cert, &plan.page(cert, k + 1))?;
+            let doc = lay_out(&html, cert, fonts)?;
+            if doc.pages.len() > 1 {
+                overflow = Some((k, plan.units()));
+                break;
+            }
+            docs.push(doc);
+        }
+        match overflow {
+            None => return Ok(merge(docs)),
+            Some((k, units)) if units > 1 => {
+                if limits.len() <= k {
+                    limits.resize(k + 1, None);
+                }
+                limits[k] = Some(units - 1);
+            }
+            Some((k, _)) => {
+                return Err(layout_error(
+                    cert,
+                    &format!("page {} holds a single block taller than an A4 page", k + 1),
+                ))
+            }
+        }
+    }
+    Err(layout_error(cert, "the pages could not be fitted"))
+}
+
+/// One document of the pages of `docs` in order; every page was laid out with the same
+/// bundled faces, so the font resources are shared under the same ids.
+fn merge(docs: Vec<PdfDocument>) -> PdfDocument {
+    let mut iter = docs.into_iter();
+    let mut doc = iter.next().expect("at least one page is planned");
+    for other in iter {
+        for (id, font) in other.resources.fonts.map {
+            doc.resources.fonts.map.entry(id).or_insert(font);
+        }
+        doc.pages.extend(other.pages);
+    }
+    doc
 }
 
 /// Sets the PDF's file identifier from the certificate's content
@@ -220,8 +419,12 @@ fn stamp_footer(
     let text_y = 10.0 * PT_PER_MM;
     let size = 8.0;
     let left = format!(
-        "Certificate No. {}  ·  Lot {}  ·  {} rev. {}",
-        cert.number, cert.lot.id, cert.spec.code, cert.spec.revision
+        "Certificate No. {}  ·  Lot{} {}  ·  {} rev. {}",
+        cert.number,
+        if cert.lots.len() > 1 { "s" } else { "" },
+        lot_ids(cert),
+        cert.spec.code,
+        cert.spec.revision
     );
     let right = format!("Page {index} of {count}");
     let right_w = bold.width(&right, size);
