@@ -1,6 +1,6 @@
 //! `resinlot lookup`: everything the record holds about one lot, in plain words.
 
-use serde_json::{json, Map, Value};
+use serde_json::{json, Value};
 
 use crate::cmd::args::{check_lot_id, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
@@ -159,70 +159,10 @@ fn lot_answer(args: &Args, lot: &str) -> anyhow::Result<(String, Value)> {
     Ok((text, v))
 }
 
-fn values(t: &Trend, row: &Row) -> Map<String, Value> {
-    let mut m = Map::new();
-    for k in t.keys() {
-        let cell = t.cell(row, &k);
-        // Words and censored results ("<0.01") as recorded (issue #15).
-        let v = cell.parse::<f64>().map_or_else(
-            |_| {
-                if cell.is_empty() {
-                    Value::Null
-                } else {
-                    json!(cell)
-                }
-            },
-            |x| json!(x),
-        );
-        m.insert(k, v);
-    }
-    m
-}
-
-fn row_json(t: &Trend, row: &Row) -> Value {
-    let verdicts: Map<String, Value> = t
-        .keys()
-        .into_iter()
-        .filter_map(|k| {
-            let v = t.cell(row, &format!("{k}_verdict"));
-            (!v.is_empty()).then(|| (k, json!(v)))
-        })
-        .collect();
-    json!({
-        "row": t.cell(row, "seq").parse::<u64>().ok(),
-        "recorded_at": t.cell(row, "recorded_at"),
-        "status": t.cell(row, "status"),
-        "spec_revision": t.cell(row, "spec_revision"),
-        "approver": t.cell(row, "approver"),
-        "supersedes": t.cell(row, "supersedes").parse::<u64>().ok(),
-        "reason": t.cell(row, "reason"),
-        "values": values(t, row),
-        "verdicts": verdicts,
-        "notes": t.cell(row, "notes"),
-        "analysts": t.cell(row, "analysts"),
-        "tested_from": t.cell(row, "tested_from"),
-        "tested_to": t.cell(row, "tested_to"),
-        "decided_at": t.cell(row, "decided_at"),
-        "recorded_by": t.cell(row, "recorded_by"),
-        "spec_sha256": t.cell(row, "spec_sha256"),
-        "disposition": non_empty(t.cell(row, "disposition")),
-        "concession_ref": non_empty(t.cell(row, "concession_ref")),
-        "concession_customer": non_empty(t.cell(row, "concession_customer")),
-    })
-}
-
-fn non_empty(s: &str) -> Value {
-    if s.is_empty() {
-        Value::Null
-    } else {
-        json!(s)
-    }
-}
-
 /// The JSON answer: the current row's fields at the top level, older rows under `history`.
 fn as_json(t: &Trend, rows: &[&Row], certs: &[Cert]) -> Value {
     let cur = rows[0];
-    let mut v = row_json(t, cur);
+    let mut v = crate::record::answer::row_json(t, cur);
     let obj = v.as_object_mut().expect("object");
     obj.insert("lot".into(), json!(t.cell(cur, "lot")));
     obj.insert("product".into(), json!(t.cell(cur, "product")));
@@ -242,7 +182,10 @@ fn as_json(t: &Trend, rows: &[&Row], certs: &[Cert]) -> Value {
     );
     obj.insert(
         "history".into(),
-        json!(rows[1..].iter().map(|r| row_json(t, r)).collect::<Vec<_>>()),
+        json!(rows[1..]
+            .iter()
+            .map(|r| crate::record::answer::row_json(t, r))
+            .collect::<Vec<_>>()),
     );
     v
 }
@@ -405,31 +348,13 @@ fn limits_source<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) ->
 
 /// QA's dispositions of the lot, oldest first, in plain words (issue #14).
 fn dispositions_text(t: &Trend, rows: &[&Row]) -> String {
-    let mut out = String::new();
-    for r in rows.iter().rev() {
-        let Some(d) = crate::record::lifecycle::disposition_of(t, r) else {
-            continue;
-        };
-        if out.is_empty() {
-            out.push_str("\nQA dispositions (oldest first):\n");
-        }
-        out.push_str(&format!(
-            "  row {}  {}  {} ({}){}: {}\n",
-            t.cell(r, "seq"),
-            t.cell(r, "recorded_at"),
-            d.words(),
-            t.cell(r, "approver"),
-            if d == crate::lot::disposition::Decision::Concession {
-                format!(
-                    " (concession {} for customer '{}')",
-                    t.cell(r, "concession_ref"),
-                    t.cell(r, "concession_customer")
-                )
-            } else {
-                String::new()
-            },
-            t.cell(r, "reason")
-        ));
+    let lines = crate::record::answer::dispositions(t, rows);
+    if lines.is_empty() {
+        return String::new();
+    }
+    let mut out = String::from("\nQA dispositions (oldest first):\n");
+    for l in lines {
+        out.push_str(&format!("  {l}\n"));
     }
     out
 }

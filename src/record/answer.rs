@@ -252,7 +252,7 @@ fn facts<'a>(
 }
 
 /// QA's dispositions of the lot, oldest first, in plain words (issue #14).
-fn dispositions(t: &Trend, rows: &[&Row]) -> Vec<String> {
+pub fn dispositions(t: &Trend, rows: &[&Row]) -> Vec<String> {
     let mut out = Vec::new();
     for r in rows.iter().rev() {
         let Some(d) = crate::record::lifecycle::disposition_of(t, r) else {
@@ -484,17 +484,30 @@ impl LotAnswer {
     }
 }
 
-fn values(t: &Trend, row: &Row) -> Map<String, Value> {
+/// The recorded values of a row by key: numbers as numbers, words and censored results
+/// (`<0.01`) as recorded, empty cells as null.
+pub fn values(t: &Trend, row: &Row) -> Map<String, Value> {
     let mut m = Map::new();
     for k in t.keys() {
         let cell = t.cell(row, &k);
-        let v = cell.parse::<f64>().map_or(Value::Null, |x| json!(x));
+        // Words and censored results ("<0.01") as recorded (issue #15).
+        let v = cell.parse::<f64>().map_or_else(
+            |_| {
+                if cell.is_empty() {
+                    Value::Null
+                } else {
+                    json!(cell)
+                }
+            },
+            |x| json!(x),
+        );
         m.insert(k, v);
     }
     m
 }
 
-fn row_json(t: &Trend, row: &Row) -> Value {
+/// One trend row as `lookup --json` gives it.
+pub fn row_json(t: &Trend, row: &Row) -> Value {
     let verdicts: Map<String, Value> = t
         .keys()
         .into_iter()
@@ -514,6 +527,12 @@ fn row_json(t: &Trend, row: &Row) -> Value {
         "values": values(t, row),
         "verdicts": verdicts,
         "notes": t.cell(row, "notes"),
+        "analysts": t.cell(row, "analysts"),
+        "tested_from": t.cell(row, "tested_from"),
+        "tested_to": t.cell(row, "tested_to"),
+        "decided_at": t.cell(row, "decided_at"),
+        "recorded_by": t.cell(row, "recorded_by"),
+        "spec_sha256": t.cell(row, "spec_sha256"),
         "disposition": non_empty(t.cell(row, "disposition")),
         "concession_ref": non_empty(t.cell(row, "concession_ref")),
         "concession_customer": non_empty(t.cell(row, "concession_customer")),
