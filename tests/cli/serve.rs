@@ -831,6 +831,16 @@ fn a_purchase_order_in_the_search_box_leads_to_its_certificate() {
             "{lot}"
         );
     }
+    // Each lot's page lists the certificate with its PO and quantity.
+    let lot = lots[0].as_str().unwrap();
+    let text = s.get(&format!("/lot/{lot}")).text();
+    assert!(
+        text.contains(&format!(
+            "<td>BE-PO-88164</td><td>{}</td>",
+            cert["quantity"].as_str().unwrap()
+        )),
+        "{text}"
+    );
     // A PO that is no lot id (a slash in it) works too.
     let page = s.get("/?q=KD%2F2026%2F417");
     assert_eq!(page.status, 303);
