@@ -105,11 +105,12 @@ fn main() {
             0 => format!("{base}/find?product=PD-2000&where=mn%3D1950..2050"),
             1 => format!("{base}/certificate/FW-000006"),
             2 => format!("{base}/"),
+            3 => format!("{base}/shipments?customer=brantwick"),
             _ => format!("{base}/lot/{}", lots[i % lots.len()]),
         })
         .collect();
     report(
-        "customer-service mix (lot, certificate, find, search)",
+        "customer-service mix (lot, certificate, find, search, shipments)",
         burst(mix),
     );
     let heavy: Vec<String> = (0..CONCURRENT)
