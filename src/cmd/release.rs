@@ -247,8 +247,8 @@ struct ProductTable {
     keys: Vec<String>,
     /// Column widths of the whole table.
     widths: Vec<usize>,
-    /// Whether any lot gets a line under the table.
-    notes: bool,
+    /// The positions in the file of the lots that get a line under the table.
+    notes: Vec<u32>,
 }
 
 /// `release --dry-run` of a wide results file, one lot at a time (issue #13, item 11): the
@@ -275,6 +275,7 @@ fn streamed_dry_run(
     let mut tables: BTreeMap<String, ProductTable> = BTreeMap::new();
     let mut used: Vec<&crate::spec::ProductSpec> = Vec::new();
     let bar = progress_unsized();
+    let mut position: u32 = 0;
     let scan = intake::scan_wide(&file, bytes, opts.clone(), &mut |lot, twin| {
         if refused.is_some() {
             return;
@@ -301,15 +302,18 @@ fn streamed_dry_run(
                 ProductTable {
                     keys,
                     widths,
-                    notes: false,
+                    notes: Vec::new(),
                 }
             });
             crate::support::table::widen(
                 &mut t.widths,
                 &lot_row(&d, &t.keys, &Recorded::NotWritten),
             );
-            t.notes |= note_line(&d).is_some();
+            if note_line(&d).is_some() {
+                t.notes.push(position);
+            }
         }
+        position += 1;
         plan.add(&d, lot.line, twin.map(|t| (t.lot.as_str(), t.line)));
     })?;
     bar.finish_and_clear();
@@ -349,8 +353,8 @@ fn streamed_dry_run(
                 out.write_all(crate::support::table::line(&row, &t.widths).as_bytes())?;
                 Ok(())
             })?;
-            if t.notes {
-                scan.for_each(Some(product), &mut |lot| -> anyhow::Result<()> {
+            if !t.notes.is_empty() {
+                scan.for_each_at(&t.notes, &mut |lot| -> anyhow::Result<()> {
                     if let Some(line) = note_line(&decide(&lot)?) {
                         out.write_all(line.as_bytes())?;
                     }

@@ -605,6 +605,19 @@ impl WideScan<'_> {
         Ok((self.id_of(position as u32)?, self.rows[position].1))
     }
 
+    /// Reads the lots at `positions` (in file order, ascending) again and hands each to
+    /// `visit`, reading only their rows.
+    pub fn for_each_at<E: From<Error>>(
+        &self,
+        positions: &[u32],
+        visit: &mut dyn FnMut(LotResults) -> std::result::Result<(), E>,
+    ) -> std::result::Result<(), E> {
+        for &j in positions {
+            visit(self.lot(j)?)?;
+        }
+        Ok(())
+    }
+
     /// Reads every lot again, in file order (repeated rows skipped), and hands it to `visit`;
     /// with `product`, only the lots of that product. The rows were checked by
     /// [`scan_wide`], so this refuses nothing new.
