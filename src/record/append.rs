@@ -586,6 +586,9 @@ pub fn plan_unlocked(
     Ok(plans)
 }
 
+/// A trend's lot ids in upper case -> their rows (indices), newest first.
+type LotRowsIndex = HashMap<String, Vec<usize>>;
+
 /// Plans a dry run one lot at a time (issue #13, item 11), with the rules and refusals of
 /// [`plan_unlocked`] and its messages, keeping only what the plan needs: each product's trend
 /// as read (with an index of its lot ids), the first refusal, the products that would get a
@@ -600,7 +603,7 @@ pub struct StreamPlan<'a> {
     retest: Option<&'a str>,
     /// Each product's trend as read (an empty one for a product without a file) and its lot
     /// ids in upper case -> rows, newest first; `None` for one that could not be read.
-    trends: BTreeMap<String, Option<(Trend, HashMap<String, Vec<usize>>)>>,
+    trends: BTreeMap<String, Option<(Trend, LotRowsIndex)>>,
     /// The first trend file that could not be read (products in order of first lot).
     unreadable: Option<Error>,
     /// The first lot (position, refusal) whose id equals an earlier lot's but for case.
@@ -663,7 +666,7 @@ impl<'a> StreamPlan<'a> {
             };
             let entry = match read {
                 Ok(t) => {
-                    let mut ids: HashMap<String, Vec<usize>> = HashMap::new();
+                    let mut ids: LotRowsIndex = HashMap::new();
                     for (i, r) in t.rows.iter().enumerate().rev() {
                         ids.entry(t.cell(r, "lot").to_ascii_uppercase())
                             .or_default()
