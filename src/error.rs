@@ -109,12 +109,13 @@ pub fn non_negative(place: &str, value: f64) -> Result<f64> {
 /// Checks that `value` is finite and within `lo..=hi`, the physically sensible range of the
 /// input (`unit` is printed with the bounds); `place` names the input.
 pub fn within(place: &str, value: f64, lo: f64, hi: f64, unit: &str) -> Result<f64> {
-    let unit = if unit.is_empty() {
-        String::new()
-    } else {
-        format!(" {unit}")
-    };
     if !value.is_finite() || value < lo || value > hi {
+        // Formatted only for a refusal: this runs for every value of every lot.
+        let unit = if unit.is_empty() {
+            String::new()
+        } else {
+            format!(" {unit}")
+        };
         return Err(Error::invalid(
             place,
             format!("{value}{unit} is outside the range {lo} to {hi}{unit} that resinlot accepts"),

@@ -1,7 +1,7 @@
 //! `resinlot release`: decide every lot of a results file and append it to the trend files.
 
 use std::collections::BTreeMap;
-use std::io::IsTerminal;
+use std::io::{IsTerminal, Write};
 use std::path::PathBuf;
 use std::time::Duration;
 
@@ -116,7 +116,15 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         },
         text_keys: specs.text_keys(),
     };
-    let parsed = intake::read_file_report(&args.results, opts)?;
+    let bytes = intake::read_bytes(&args.results, &opts)?;
+    if args.dry_run {
+        // A wide file's dry run streams (issue #13, item 11); a long file is read whole.
+        if let Some(outcome) = streamed_dry_run(args, &specs, &bytes, opts.clone())? {
+            return Ok(outcome);
+        }
+    }
+    let parsed = intake::parse_report(&args.results.display().to_string(), &bytes, opts)?;
+    drop(bytes);
     let ignored = ignored_columns(&specs, &parsed);
     let lots = parsed.lots;
     let decisions = decide(args, &specs, &lots)?;
@@ -231,6 +239,198 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     } else {
         Outcome::FellShort
     })
+}
+
+/// What the table output needs of one product, measured while the lots are decided.
+struct ProductTable {
+    /// The property columns: those of the product's first lot.
+    keys: Vec<String>,
+    /// Column widths of the whole table.
+    widths: Vec<usize>,
+    /// The positions in the file of the lots that get a line under the table.
+    notes: Vec<u32>,
+}
+
+/// `release --dry-run` of a wide results file, one lot at a time (issue #13, item 11): the
+/// first pass reads, checks and decides each lot and plans it against the trend files
+/// (`record::append::StreamPlan`), keeping only counts, column widths and the plan's compact
+/// state; once nothing is refused, the second pass reads and decides the lots again and writes
+/// each line of the report (table or JSON) as it goes. It refuses what the whole-file path
+/// refuses, with the same message, and prints the same bytes. `None` for a long file.
+fn streamed_dry_run(
+    args: &Args,
+    specs: &SpecSet,
+    bytes: &[u8],
+    opts: intake::Options,
+) -> anyhow::Result<Option<Outcome>> {
+    let file = args.results.display().to_string();
+    let now = crate::support::clock::now()?;
+    let now_text = now.to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
+    let retest = args
+        .retest
+        .then(|| args.reason.as_deref().unwrap_or_default());
+    let mut plan = append::StreamPlan::new(&args.register, &args.results, specs, retest);
+    let mut refused: Option<anyhow::Error> = None;
+    let mut counts = Counts::default();
+    let mut tables: BTreeMap<String, ProductTable> = BTreeMap::new();
+    let mut used: Vec<&crate::spec::ProductSpec> = Vec::new();
+    let bar = progress_unsized();
+    let mut position: u32 = 0;
+    let scan = intake::scan_wide(&file, bytes, opts.clone(), &mut |lot, twin| {
+        if refused.is_some() {
+            return;
+        }
+        let d = match decide_lot(&file, specs, lot, &now) {
+            Ok(d) => d,
+            Err(e) => {
+                refused = Some(e);
+                return;
+            }
+        };
+        bar.inc(1);
+        counts.add(d.status);
+        if let Ok(spec) = specs.for_date(&lot.product, lot.manufactured) {
+            if !used.iter().any(|u| std::ptr::eq(*u, spec)) {
+                used.push(spec);
+            }
+        }
+        if !args.json {
+            let t = tables.entry(d.product.clone()).or_insert_with(|| {
+                let keys: Vec<String> = d.properties.iter().map(|p| p.property.clone()).collect();
+                let mut widths = Vec::new();
+                crate::support::table::widen(&mut widths, &table_header(&keys));
+                ProductTable {
+                    keys,
+                    widths,
+                    notes: Vec::new(),
+                }
+            });
+            crate::support::table::widen(
+                &mut t.widths,
+                &lot_row(&d, &t.keys, &Recorded::NotWritten),
+            );
+            if note_line(&d).is_some() {
+                t.notes.push(position);
+            }
+        }
+        position += 1;
+        plan.add(&d, lot.line, twin.map(|t| (t.lot.as_str(), t.line)));
+    })?;
+    bar.finish_and_clear();
+    let Some(scan) = scan else {
+        return Ok(None);
+    };
+    if let Some(e) = refused {
+        return Err(e);
+    }
+    let position_of = |id: &str| scan.position_of(id).ok().flatten();
+    let lot_at = |i: usize| scan.lot_at(i).unwrap_or_default();
+    let withdrawing = plan.finish(&position_of, &lot_at, &now_text)?;
+    let lots: Vec<&str> = withdrawing.iter().map(String::as_str).collect();
+    crate::record::certlog::check_withdrawable(&args.register, &lots)?;
+    let ignored: Vec<String> = scan
+        .empty
+        .iter()
+        .filter(|key| !used.iter().any(|s| s.property(key).is_some()))
+        .cloned()
+        .collect();
+
+    // Nothing was refused: the report, written as the lots are decided again.
+    let mut out = std::io::BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
+    let decide = |lot: &LotResults| decide_lot(&file, specs, lot, &now);
+    if args.json {
+        write_json_streamed(&mut out, &scan, &decide)?;
+    } else {
+        for (product, t) in &tables {
+            let name = specs.latest(product).map_or("", |s| s.name.as_str());
+            writeln!(out, "{product}  {name}")?;
+            out.write_all(
+                crate::support::table::line(&table_header(&t.keys), &t.widths).as_bytes(),
+            )?;
+            out.write_all(crate::support::table::rule(&t.widths).as_bytes())?;
+            scan.for_each(Some(product), &mut |lot| -> anyhow::Result<()> {
+                let row = lot_row(&decide(&lot)?, &t.keys, &Recorded::NotWritten);
+                out.write_all(crate::support::table::line(&row, &t.widths).as_bytes())?;
+                Ok(())
+            })?;
+            if !t.notes.is_empty() {
+                scan.for_each_at(&t.notes, &mut |lot| -> anyhow::Result<()> {
+                    if let Some(line) = note_line(&decide(&lot)?) {
+                        out.write_all(line.as_bytes())?;
+                    }
+                    Ok(())
+                })?;
+            }
+            out.write_all(b"\n")?;
+        }
+        out.write_all(summary_line(&counts, 0, &args.register, true).as_bytes())?;
+        if !ignored.is_empty() {
+            writeln!(
+                out,
+                "Ignored columns (nothing reads them): {}.",
+                ignored.join(", ")
+            )?;
+        }
+    }
+    out.flush()?;
+    Ok(Some(if counts.released == counts.lots {
+        Outcome::AllGood
+    } else {
+        Outcome::FellShort
+    }))
+}
+
+/// Writes a dry run's JSON as [`report_text`] builds it (the same keys in the same order,
+/// pretty-printed alike), one lot at a time.
+fn write_json_streamed(
+    out: &mut dyn Write,
+    scan: &intake::WideScan<'_>,
+    decide: &dyn Fn(&LotResults) -> anyhow::Result<LotDecision>,
+) -> anyhow::Result<()> {
+    // The other members of a dry run's report are empty; an empty list prints as `[]`.
+    let wrapper = serde_json::json!({
+        "lots": [],
+        "certificates": [],
+        "completed": [],
+        "withdrawn": [],
+    });
+    let Some(members) = wrapper.as_object() else {
+        anyhow::bail!("the JSON report is not an object");
+    };
+    out.write_all(b"{\n")?;
+    for (n, (key, value)) in members.iter().enumerate() {
+        write!(out, "  {}: ", serde_json::to_string(key)?)?;
+        if key == "lots" {
+            out.write_all(b"[\n")?;
+            let mut first = true;
+            scan.for_each(None, &mut |lot| -> anyhow::Result<()> {
+                let d = decide(&lot)?;
+                let v = serde_json::to_value(JsonLot {
+                    decision: &d,
+                    recorded: &Recorded::NotWritten,
+                })?;
+                if !first {
+                    out.write_all(b",\n")?;
+                }
+                first = false;
+                // Strings in JSON hold no raw line break, so each line is indented alike.
+                for (i, line) in serde_json::to_string_pretty(&v)?.split('\n').enumerate() {
+                    if i > 0 {
+                        out.write_all(b"\n")?;
+                    }
+                    out.write_all(b"    ")?;
+                    out.write_all(line.as_bytes())?;
+                }
+                Ok(())
+            })?;
+            out.write_all(b"\n  ]")?;
+        } else {
+            out.write_all(serde_json::to_string_pretty(value)?.as_bytes())?;
+        }
+        out.write_all(if n + 1 < members.len() { b",\n" } else { b"\n" })?;
+    }
+    out.write_all(b"}\n")?;
+    Ok(())
 }
 
 /// The columns of the results file that nothing reads (issue #15): unknown columns of a long
@@ -380,35 +580,46 @@ fn decide(args: &Args, specs: &SpecSet, lots: &[LotResults]) -> anyhow::Result<V
     let bar = progress(lots.len());
     let mut decisions = Vec::with_capacity(lots.len());
     let now = crate::support::clock::now()?;
-    let today = now.date_naive();
     for lot in lots {
-        check_lab_times(&file, lot, now.naive_utc())?;
-        if lot.manufactured > today {
-            return Err(Error::invalid(
-                format!("{file}:{}, lot '{}'", lot.line, lot.lot),
-                format!(
-                    "manufacture date {} is in the future (today is {today})",
-                    lot.manufactured
-                ),
-                "Check the manufacture date.",
-            )
-            .into());
-        }
-        let spec = specs
-            .for_date(&lot.product, lot.manufactured)
-            .map_err(|e| match e {
-                Error::Invalid {
-                    place,
-                    problem,
-                    fix,
-                } => Error::invalid(format!("{file}:{}: {place}", lot.line), problem, fix),
-                other => other,
-            })?;
-        decisions.push(evaluate(spec, lot, &file)?);
+        decisions.push(decide_lot(&file, specs, lot, &now)?);
         bar.inc(1);
     }
     bar.finish_and_clear();
     Ok(decisions)
+}
+
+/// Evaluates one lot against the spec revision in force on its manufacture date, refusing a
+/// test, decision or manufacture date after `now`.
+fn decide_lot(
+    file: &str,
+    specs: &SpecSet,
+    lot: &LotResults,
+    now: &chrono::DateTime<chrono::Utc>,
+) -> anyhow::Result<LotDecision> {
+    let today = now.date_naive();
+    check_lab_times(file, lot, now.naive_utc())?;
+    if lot.manufactured > today {
+        return Err(Error::invalid(
+            format!("{file}:{}, lot '{}'", lot.line, lot.lot),
+            format!(
+                "manufacture date {} is in the future (today is {today})",
+                lot.manufactured
+            ),
+            "Check the manufacture date.",
+        )
+        .into());
+    }
+    let spec = specs
+        .for_date(&lot.product, lot.manufactured)
+        .map_err(|e| match e {
+            Error::Invalid {
+                place,
+                problem,
+                fix,
+            } => Error::invalid(format!("{file}:{}: {place}", lot.line), problem, fix),
+            other => other,
+        })?;
+    Ok(evaluate(spec, lot, file)?)
 }
 
 /// What building the internal certificates of a release needs.
@@ -585,6 +796,20 @@ fn report_text(
     Ok(t)
 }
 
+/// A counter of decided lots on a terminal, when the number of lots is not known yet.
+fn progress_unsized() -> indicatif::ProgressBar {
+    if std::io::stderr().is_terminal() {
+        let bar = indicatif::ProgressBar::new_spinner();
+        bar.set_style(
+            indicatif::ProgressStyle::with_template("deciding lots {pos}")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_spinner()),
+        );
+        bar
+    } else {
+        indicatif::ProgressBar::hidden()
+    }
+}
+
 fn progress(n: usize) -> indicatif::ProgressBar {
     if n > 20 && std::io::stderr().is_terminal() {
         let bar = indicatif::ProgressBar::new(n as u64);
@@ -656,6 +881,101 @@ fn short(v: Option<crate::spec::decision::Verdict>) -> &'static str {
     }
 }
 
+/// The header row of a product's table, whose property columns are `keys`.
+fn table_header(keys: &[String]) -> Vec<String> {
+    let mut h = vec!["lot".to_string(), "rev".into(), "status".into()];
+    h.extend(keys.iter().cloned());
+    h.push("record".into());
+    h
+}
+
+/// The table row of one lot.
+fn lot_row(d: &LotDecision, keys: &[String], recorded: &Recorded) -> Vec<String> {
+    let mut r = vec![
+        d.lot.clone(),
+        d.spec_revision.clone(),
+        d.status.as_str().to_string(),
+    ];
+    for k in keys {
+        r.push(d.get(k).map_or("-".to_string(), |p| {
+            format!(
+                "{}{}",
+                p.reported.as_deref().unwrap_or("missing"),
+                short(p.verdict)
+            )
+        }));
+    }
+    r.push(match recorded {
+        Recorded::New(s) => format!("row {s}"),
+        Recorded::Retest { seq, supersedes } => {
+            format!("row {seq} (retest of {supersedes})")
+        }
+        Recorded::Unchanged(s) => format!("unchanged (row {s})"),
+        Recorded::NotWritten => "not written".into(),
+    });
+    r
+}
+
+/// The line under a product's table naming why a lot was not released, if it was not and
+/// has notes.
+fn note_line(d: &LotDecision) -> Option<String> {
+    (d.status != Status::Released && !d.notes.is_empty()).then(|| {
+        format!(
+            "  {} {}: {}\n",
+            d.lot,
+            d.status.as_str(),
+            crate::lot::note::LotNote::cell(&d.notes)
+        )
+    })
+}
+
+/// How many lots of each status a release decided.
+#[derive(Debug, Default, Clone, Copy)]
+struct Counts {
+    lots: usize,
+    released: usize,
+    on_hold: usize,
+    rejected: usize,
+    incomplete: usize,
+}
+
+impl Counts {
+    fn add(&mut self, s: Status) {
+        self.lots += 1;
+        match s {
+            Status::Released => self.released += 1,
+            Status::OnHold => self.on_hold += 1,
+            Status::Rejected => self.rejected += 1,
+            Status::Incomplete => self.incomplete += 1,
+        }
+    }
+}
+
+/// The closing line of the table output: the lots by status, and what was written.
+fn summary_line(c: &Counts, unchanged: usize, register: &std::path::Path, dry_run: bool) -> String {
+    format!(
+        "{} lots: {} released, {} on hold, {} rejected, {} incomplete. {}\n",
+        c.lots,
+        c.released,
+        c.on_hold,
+        c.rejected,
+        c.incomplete,
+        if dry_run {
+            "Dry run: nothing was written.".to_string()
+        } else {
+            format!(
+                "Recorded in {}{}.",
+                register.display(),
+                if unchanged > 0 {
+                    format!(" ({unchanged} already recorded, unchanged)")
+                } else {
+                    String::new()
+                }
+            )
+        }
+    )
+}
+
 fn render(
     specs: &SpecSet,
     decisions: &[LotDecision],
@@ -673,82 +993,31 @@ fn render(
             .collect();
         let name = specs.latest(product).map_or("", |s| s.name.as_str());
         out.push_str(&format!("{product}  {name}\n"));
-        let keys: Vec<&str> = decisions[idx[0]]
+        let keys: Vec<String> = decisions[idx[0]]
             .properties
             .iter()
-            .map(|p| p.property.as_str())
+            .map(|p| p.property.clone())
             .collect();
-        let mut rows = vec![{
-            let mut h = vec!["lot".to_string(), "rev".into(), "status".into()];
-            h.extend(keys.iter().map(|k| k.to_string()));
-            h.push("record".into());
-            h
-        }];
+        let mut rows = vec![table_header(&keys)];
         for &i in &idx {
-            let d = &decisions[i];
-            let mut r = vec![
-                d.lot.clone(),
-                d.spec_revision.clone(),
-                d.status.as_str().to_string(),
-            ];
-            for k in &keys {
-                r.push(d.get(k).map_or("-".to_string(), |p| {
-                    format!(
-                        "{}{}",
-                        p.reported.as_deref().unwrap_or("missing"),
-                        short(p.verdict)
-                    )
-                }));
-            }
-            r.push(match &recorded[i] {
-                Recorded::New(s) => format!("row {s}"),
-                Recorded::Retest { seq, supersedes } => {
-                    format!("row {seq} (retest of {supersedes})")
-                }
-                Recorded::Unchanged(s) => format!("unchanged (row {s})"),
-                Recorded::NotWritten => "not written".into(),
-            });
-            rows.push(r);
+            rows.push(lot_row(&decisions[i], &keys, &recorded[i]));
         }
         out.push_str(&crate::support::table::render(&rows));
         for &i in &idx {
-            let d = &decisions[i];
-            if d.status != Status::Released && !d.notes.is_empty() {
-                out.push_str(&format!(
-                    "  {} {}: {}\n",
-                    d.lot,
-                    d.status.as_str(),
-                    crate::lot::note::LotNote::cell(&d.notes)
-                ));
+            if let Some(line) = note_line(&decisions[i]) {
+                out.push_str(&line);
             }
         }
         out.push('\n');
     }
-    let count = |s: Status| decisions.iter().filter(|d| d.status == s).count();
-    out.push_str(&format!(
-        "{} lots: {} released, {} on hold, {} rejected, {} incomplete. {}\n",
-        decisions.len(),
-        count(Status::Released),
-        count(Status::OnHold),
-        count(Status::Rejected),
-        count(Status::Incomplete),
-        if dry_run {
-            "Dry run: nothing was written.".to_string()
-        } else {
-            let unchanged = recorded
-                .iter()
-                .filter(|r| matches!(r, Recorded::Unchanged(_)))
-                .count();
-            format!(
-                "Recorded in {}{}.",
-                register.display(),
-                if unchanged > 0 {
-                    format!(" ({unchanged} already recorded, unchanged)")
-                } else {
-                    String::new()
-                }
-            )
-        }
-    ));
+    let mut counts = Counts::default();
+    for d in decisions {
+        counts.add(d.status);
+    }
+    let unchanged = recorded
+        .iter()
+        .filter(|r| matches!(r, Recorded::Unchanged(_)))
+        .count();
+    out.push_str(&summary_line(&counts, unchanged, register, dry_run));
     out
 }

@@ -190,6 +190,13 @@ pub fn read_file(path: &Path, opts: Options) -> Result<Vec<LotResults>> {
 
 /// Reads and validates a results file, also naming the columns nothing reads.
 pub fn read_file_report(path: &Path, opts: Options) -> Result<Parsed> {
+    let bytes = read_bytes(path, &opts)?;
+    parse_report(&path.display().to_string(), &bytes, opts)
+}
+
+/// The bytes of a results file, refused when over `opts.limits.max_bytes` (checked on the
+/// size first, then counted while reading).
+pub fn read_bytes(path: &Path, opts: &Options) -> Result<Vec<u8>> {
     let name = path.display().to_string();
     let meta = std::fs::metadata(path).map_err(|e| Error::io(path, "reading", e))?;
     if meta.len() > opts.limits.max_bytes {
@@ -206,7 +213,7 @@ pub fn read_file_report(path: &Path, opts: Options) -> Result<Parsed> {
     // Counted while reading: /dev/zero, a FIFO or a growing file has no size up front, so at
     // most one byte over the limit is read (issue #13, item 12).
     let file = std::fs::File::open(path).map_err(|e| Error::io(path, "reading", e))?;
-    let mut bytes = Vec::new();
+    let mut bytes = Vec::with_capacity(meta.len().min(opts.limits.max_bytes) as usize + 1);
     std::io::Read::read_to_end(
         &mut std::io::Read::take(file, opts.limits.max_bytes.saturating_add(1)),
         &mut bytes,
@@ -222,7 +229,7 @@ pub fn read_file_report(path: &Path, opts: Options) -> Result<Parsed> {
             "Split the file, or raise the limit with --max-bytes if it is genuine.",
         ));
     }
-    parse_report(&name, &bytes, opts)
+    Ok(bytes)
 }
 
 /// Parses results from bytes.
@@ -230,8 +237,10 @@ pub fn parse(name: &str, bytes: &[u8], opts: Options) -> Result<Vec<LotResults>>
     parse_report(name, bytes, opts).map(|p| p.lots)
 }
 
-/// Parses results from bytes, also naming the columns nothing reads.
-pub fn parse_report(name: &str, bytes: &[u8], opts: Options) -> Result<Parsed> {
+/// The checks every results file passes before its rows are read: not UTF-16, valid UTF-8
+/// (a BOM is dropped), every quote closed, a header within the column limit and without a
+/// repeated column. Returns the text after any BOM, the delimiter and the lower-cased header.
+fn prepare<'b>(name: &str, bytes: &'b [u8], opts: &Options) -> Result<(&'b str, u8, Vec<String>)> {
     if let Some(why) = utf16_sign(bytes) {
         return Err(Error::invalid(
             format!("{name}:1"),
@@ -288,10 +297,7 @@ pub fn parse_report(name: &str, bytes: &[u8], opts: Options) -> Result<Parsed> {
             "Check that this is a results file; it has far more columns than any spec.",
         ));
     }
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(delimiter)
-        .trim(csv::Trim::All)
-        .from_reader(text.as_bytes());
+    let mut reader = csv_reader(text, delimiter, true);
     let headers: Vec<String> = reader
         .headers()
         .map_err(|e| crate::support::csv_input::error(name, &e))?
@@ -307,6 +313,25 @@ pub fn parse_report(name: &str, bytes: &[u8], opts: Options) -> Result<Parsed> {
             ));
         }
     }
+    Ok((text, delimiter, headers))
+}
+
+/// A CSV reader over `text` with the results files' settings.
+fn csv_reader(text: &str, delimiter: u8, has_headers: bool) -> csv::Reader<&[u8]> {
+    csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .has_headers(has_headers)
+        .trim(csv::Trim::All)
+        .from_reader(text.as_bytes())
+}
+
+/// Parses results from bytes, also naming the columns nothing reads.
+pub fn parse_report(name: &str, bytes: &[u8], opts: Options) -> Result<Parsed> {
+    let (text, delimiter, headers) = prepare(name, bytes, &opts)?;
+    let mut reader = csv_reader(text, delimiter, true);
+    reader
+        .headers()
+        .map_err(|e| crate::support::csv_input::error(name, &e))?;
     let ctx = Ctx {
         name,
         headers: &headers,
@@ -333,6 +358,300 @@ pub fn parse_report(name: &str, bytes: &[u8], opts: Options) -> Result<Parsed> {
         ignored,
         empty,
     })
+}
+
+/// An earlier lot of a file whose id equals a later lot's without regard to case.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Twin {
+    /// Its id as written.
+    pub lot: String,
+    /// The line of its row.
+    pub line: u64,
+}
+
+/// Hashes a map key that is itself a 64-bit hash: passes it through.
+#[derive(Default)]
+struct PassThrough(u64);
+
+impl std::hash::Hasher for PassThrough {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+    fn write(&mut self, bytes: &[u8]) {
+        for &b in bytes {
+            self.0 = self.0.rotate_left(8) ^ u64::from(b);
+        }
+    }
+    fn write_u64(&mut self, n: u64) {
+        self.0 = n;
+    }
+}
+
+/// 64-bit hash of a lot id without regard to ASCII case (SipHash-1-3 with fixed keys, the
+/// standard library's `DefaultHasher`): it only groups ids, which are compared whenever two
+/// hashes agree.
+fn upper_hash(id: &str) -> u64 {
+    use std::hash::Hasher;
+    let mut h = std::collections::hash_map::DefaultHasher::new();
+    let mut buf = [0u8; 64];
+    for chunk in id.as_bytes().chunks(64) {
+        let part = &mut buf[..chunk.len()];
+        part.copy_from_slice(chunk);
+        part.make_ascii_uppercase();
+        h.write(part);
+    }
+    h.write_usize(id.len());
+    h.finish()
+}
+
+/// A wide results file read one lot at a time (issue #13, item 11): every row is checked as
+/// [`parse_report`] checks it, but only its place is kept, with a hash of its lot id, so
+/// memory holds the file's bytes and about 50 bytes per lot instead of every lot's results.
+/// The lots are read again with [`WideScan::for_each`].
+pub struct WideScan<'a> {
+    name: &'a str,
+    text: &'a str,
+    delimiter: u8,
+    headers: Vec<String>,
+    opts: Options,
+    layout: WideLayout,
+    /// Byte offset (in `text`) and line of each lot's row, in file order.
+    rows: Vec<(u64, u64)>,
+    /// [`upper_hash`] of a lot id -> the first lot with that hash.
+    by_hash: HashMap<u64, u32, std::hash::BuildHasherDefault<PassThrough>>,
+    /// Lots whose hash an earlier lot with another id took: id -> lot.
+    overflow: HashMap<String, u32>,
+    /// Lines of the rows skipped as exact repeats of an earlier row, ascending.
+    repeats: Vec<u64>,
+    /// Value columns that hold no value on any row (as [`Parsed::empty`]).
+    pub empty: Vec<String>,
+}
+
+/// Reads a wide results file one lot at a time, refusing exactly what [`parse_report`]
+/// refuses, with the same message: `visit` sees each lot in file order (a row that repeats
+/// an earlier one exactly is skipped, as there), with the earlier lot whose id differs only
+/// in case, if any. `Ok(None)` for a long file, which is read whole by [`parse_report`].
+///
+/// Refusals of one row come as that row is read; a test or decision time before the
+/// manufacture date, which [`parse_report`] checks once every row is read, comes after the
+/// last row, for the first such lot.
+pub fn scan_wide<'a>(
+    name: &'a str,
+    bytes: &'a [u8],
+    opts: Options,
+    visit: &mut dyn FnMut(&LotResults, Option<&Twin>),
+) -> Result<Option<WideScan<'a>>> {
+    let (text, delimiter, headers) = prepare(name, bytes, &opts)?;
+    if headers.iter().any(|h| h == "property") {
+        return Ok(None);
+    }
+    let layout = Ctx {
+        name,
+        headers: &headers,
+        opts: opts.clone(),
+    }
+    .wide_layout()?;
+    let mut scan = WideScan {
+        name,
+        text,
+        delimiter,
+        headers,
+        opts,
+        layout,
+        rows: Vec::new(),
+        by_hash: HashMap::default(),
+        overflow: HashMap::new(),
+        repeats: Vec::new(),
+        empty: Vec::new(),
+    };
+    let mut filled = vec![false; scan.headers.len()];
+    let mut late: Option<Error> = None;
+    let mut reader = csv_reader(text, delimiter, true);
+    reader
+        .headers()
+        .map_err(|e| crate::support::csv_input::error(name, &e))?;
+    let mut rec = csv::StringRecord::new();
+    loop {
+        match reader.read_record(&mut rec) {
+            Ok(true) => {}
+            Ok(false) => break,
+            Err(e) => return Err(crate::support::csv_input::error(name, &e)),
+        }
+        let (byte, line) = rec.position().map_or((0, 0), |p| (p.byte(), p.line()));
+        let ctx = scan.ctx();
+        let new = ctx.wide_row(&scan.layout, &rec, line, &mut filled)?;
+        let hash = upper_hash(&new.lot);
+        let n = scan.rows.len() as u32;
+        let mut twin = None;
+        match scan.by_hash.get(&hash).copied() {
+            None => {
+                scan.by_hash.insert(hash, n);
+            }
+            Some(first) => {
+                let same = if scan.id_of(first)? == new.lot {
+                    Some(first)
+                } else {
+                    scan.overflow.get(&new.lot).copied()
+                };
+                if let Some(j) = same {
+                    let old = scan.lot(j)?;
+                    if let Some(e) = scan.ctx().repeated_row(&old, &new, line) {
+                        return Err(e);
+                    }
+                    scan.repeats.push(line);
+                    continue;
+                }
+                twin = scan.first_twin(&new.lot)?;
+                scan.overflow.insert(new.lot.clone(), n);
+            }
+        }
+        if late.is_none() {
+            late = scan.ctx().check_times(&new).err();
+        }
+        visit(&new, twin.as_ref());
+        scan.rows.push((byte, line));
+    }
+    if let Some(e) = late {
+        return Err(e);
+    }
+    if scan.rows.is_empty() {
+        return Err(Error::invalid(
+            name,
+            "the file has a header but no results",
+            "Add one row per lot (wide) or per test result (long).",
+        ));
+    }
+    scan.empty = scan.ctx().empty_columns(&scan.layout, &filled);
+    Ok(Some(scan))
+}
+
+impl WideScan<'_> {
+    fn ctx(&self) -> Ctx<'_> {
+        Ctx {
+            name: self.name,
+            headers: &self.headers,
+            opts: self.opts.clone(),
+        }
+    }
+
+    /// Number of lots.
+    pub fn len(&self) -> usize {
+        self.rows.len()
+    }
+
+    /// True when the file has no lot (never, once scanned).
+    pub fn is_empty(&self) -> bool {
+        self.rows.is_empty()
+    }
+
+    /// The row of lot `j`, read again.
+    fn record(&self, j: u32) -> Result<(csv::StringRecord, u64)> {
+        let (byte, line) = self.rows[j as usize];
+        let mut reader = csv_reader(&self.text[byte as usize..], self.delimiter, false);
+        let mut rec = csv::StringRecord::new();
+        reader
+            .read_record(&mut rec)
+            .map_err(|e| crate::support::csv_input::error(self.name, &e))?;
+        Ok((rec, line))
+    }
+
+    /// The id of lot `j`.
+    fn id_of(&self, j: u32) -> Result<String> {
+        let (rec, _) = self.record(j)?;
+        Ok(rec.get(self.layout.idx[0]).unwrap_or("").to_string())
+    }
+
+    /// Lot `j`, read again.
+    fn lot(&self, j: u32) -> Result<LotResults> {
+        let (rec, line) = self.record(j)?;
+        let mut filled = vec![false; self.headers.len()];
+        self.ctx().wide_row(&self.layout, &rec, line, &mut filled)
+    }
+
+    /// The first lot whose id equals `id` without regard to case, if any.
+    fn first_twin(&self, id: &str) -> Result<Option<Twin>> {
+        Ok(match self.position_of(id)? {
+            Some(j) => Some(Twin {
+                lot: self.id_of(j as u32)?,
+                line: self.rows[j].1,
+            }),
+            None => None,
+        })
+    }
+
+    /// The position (in file order) of the first lot whose id equals `id` without regard to
+    /// case, if the file has one.
+    pub fn position_of(&self, id: &str) -> Result<Option<usize>> {
+        let hash = upper_hash(id);
+        if !self.by_hash.contains_key(&hash) {
+            return Ok(None);
+        }
+        let mut found: Option<u32> = None;
+        if let Some(&j) = self.by_hash.get(&hash) {
+            if self.id_of(j)?.eq_ignore_ascii_case(id) {
+                found = Some(j);
+            }
+        }
+        for (other, &j) in &self.overflow {
+            if other.eq_ignore_ascii_case(id) && found.is_none_or(|f| j < f) {
+                found = Some(j);
+            }
+        }
+        Ok(found.map(|j| j as usize))
+    }
+
+    /// The id and line of the lot at `position` (in file order).
+    pub fn lot_at(&self, position: usize) -> Result<(String, u64)> {
+        Ok((self.id_of(position as u32)?, self.rows[position].1))
+    }
+
+    /// Reads the lots at `positions` (in file order, ascending) again and hands each to
+    /// `visit`, reading only their rows.
+    pub fn for_each_at<E: From<Error>>(
+        &self,
+        positions: &[u32],
+        visit: &mut dyn FnMut(LotResults) -> std::result::Result<(), E>,
+    ) -> std::result::Result<(), E> {
+        for &j in positions {
+            visit(self.lot(j)?)?;
+        }
+        Ok(())
+    }
+
+    /// Reads every lot again, in file order (repeated rows skipped), and hands it to `visit`;
+    /// with `product`, only the lots of that product. The rows were checked by
+    /// [`scan_wide`], so this refuses nothing new.
+    pub fn for_each<E: From<Error>>(
+        &self,
+        product: Option<&str>,
+        visit: &mut dyn FnMut(LotResults) -> std::result::Result<(), E>,
+    ) -> std::result::Result<(), E> {
+        let ctx = self.ctx();
+        let mut filled = vec![false; self.headers.len()];
+        let mut repeats = self.repeats.iter().peekable();
+        let mut reader = csv_reader(self.text, self.delimiter, true);
+        reader
+            .headers()
+            .map_err(|e| crate::support::csv_input::error(self.name, &e))?;
+        let mut rec = csv::StringRecord::new();
+        loop {
+            match reader.read_record(&mut rec) {
+                Ok(true) => {}
+                Ok(false) => break,
+                Err(e) => return Err(crate::support::csv_input::error(self.name, &e).into()),
+            }
+            let line = rec.position().map_or(0, |p| p.line());
+            if repeats.peek() == Some(&&line) {
+                repeats.next();
+                continue;
+            }
+            if product.is_some_and(|p| rec.get(self.layout.idx[1]) != Some(p)) {
+                continue;
+            }
+            visit(ctx.wide_row(&self.layout, &rec, line, &mut filled)?)?;
+        }
+        Ok(())
+    }
 }
 
 /// Why `bytes` look like UTF-16 rather than UTF-8 text, if they do: a UTF-16 byte-order mark
@@ -392,6 +711,17 @@ struct RowMeta {
     note: Option<String>,
     approver: Option<String>,
     decided_at: Option<LabTime>,
+}
+
+/// Where a wide file keeps its columns.
+#[derive(Debug, Clone)]
+struct WideLayout {
+    /// The lot, product and manufactured columns.
+    idx: Vec<usize>,
+    /// The viscosity_temperature_c column, if any.
+    vt: Option<usize>,
+    /// The value columns.
+    value_cols: Vec<usize>,
 }
 
 struct Ctx<'a> {
@@ -687,7 +1017,8 @@ impl Ctx<'_> {
         Ok(Some(t))
     }
 
-    fn wide(&self, reader: &mut csv::Reader<&[u8]>) -> Result<(Vec<LotResults>, Vec<String>)> {
+    /// The columns of a wide file, checked once from its header.
+    fn wide_layout(&self) -> Result<WideLayout> {
         let idx = self.require(&["lot", "product", "manufactured"], "wide")?;
         let vt = self.col("viscosity_temperature_c");
         let value_cols: Vec<usize> = (0..self.headers.len())
@@ -697,7 +1028,6 @@ impl Ctx<'_> {
                     && !META_COLUMNS.contains(&self.headers[*i].as_str())
             })
             .collect();
-        let mut filled = vec![false; self.headers.len()];
         for &i in &value_cols {
             let h = &self.headers[i];
             let ok = h.chars().next().is_some_and(|c| c.is_ascii_lowercase())
@@ -711,6 +1041,98 @@ impl Ctx<'_> {
                 ));
             }
         }
+        Ok(WideLayout {
+            idx,
+            vt,
+            value_cols,
+        })
+    }
+
+    /// One row of a wide file as a lot; marks in `filled` the value columns it gives.
+    fn wide_row(
+        &self,
+        layout: &WideLayout,
+        rec: &csv::StringRecord,
+        line: u64,
+        filled: &mut [bool],
+    ) -> Result<LotResults> {
+        let idx = &layout.idx;
+        let lot = self.lot_id(self.cell(rec, idx[0], line)?, line)?;
+        let product = self.product(self.cell(rec, idx[1], line)?, line)?;
+        let manufactured = self.date(self.cell(rec, idx[2], line)?, line)?;
+        let temperature_c = match layout.vt {
+            Some(i) => {
+                self.temperature(self.cell(rec, i, line)?, line, "viscosity_temperature_c")?
+            }
+            None => None,
+        };
+        let mut readings = IndexMap::with_capacity(layout.value_cols.len());
+        for &i in &layout.value_cols {
+            let v = self.cell(rec, i, line)?;
+            if v.is_empty() {
+                continue;
+            }
+            filled[i] = true;
+            let key = self.headers[i].clone();
+            let (value, form) = self.result(v, line, &key)?;
+            let t = if key == keys::VISCOSITY {
+                temperature_c
+            } else {
+                None
+            };
+            readings.insert(
+                key,
+                vec![Reading {
+                    value,
+                    form,
+                    unit: None,
+                    temperature_c: t,
+                    line,
+                }],
+            );
+        }
+        let meta = self.row_meta(rec, line)?;
+        let mut new = LotResults {
+            lot,
+            product,
+            manufactured,
+            readings,
+            analysts: vec![],
+            line,
+            tested_from: None,
+            tested_to: None,
+            notes: vec![],
+            approver: None,
+            decided_at: None,
+        };
+        self.merge_meta(&mut new, meta, line)?;
+        Ok(new)
+    }
+
+    /// The refusal of `new`, a second wide row of lot `old` on `line`, unless it repeats it
+    /// exactly (`None`: the row is skipped).
+    fn repeated_row(&self, old: &LotResults, new: &LotResults, line: u64) -> Option<Error> {
+        let what = duplicate_difference(old, new)?;
+        Some(Error::invalid(
+            format!("{}:{line}, lot '{}'", self.name, new.lot),
+            format!("the lot already appears on line {} with {what}", old.line),
+            "Keep one row per lot: delete the duplicate or make both rows agree; enter a retest as a separate release with --retest.",
+        ))
+    }
+
+    /// The value columns of a wide file that no row fills.
+    fn empty_columns(&self, layout: &WideLayout, filled: &[bool]) -> Vec<String> {
+        layout
+            .value_cols
+            .iter()
+            .filter(|&&i| !filled[i])
+            .map(|&i| self.headers[i].clone())
+            .collect()
+    }
+
+    fn wide(&self, reader: &mut csv::Reader<&[u8]>) -> Result<(Vec<LotResults>, Vec<String>)> {
+        let layout = self.wide_layout()?;
+        let mut filled = vec![false; self.headers.len()];
         let mut lots: Vec<LotResults> = Vec::new();
         // Lot id -> index in `lots`, so a repeated row is found in O(1), not by a scan
         // (a scan per row made intake quadratic in the number of lots, issue #13 item 11).
@@ -718,74 +1140,17 @@ impl Ctx<'_> {
         for rec in reader.records() {
             let rec = rec.map_err(|e| crate::support::csv_input::error(self.name, &e))?;
             let line = rec.position().map_or(0, |p| p.line());
-            let lot = self.lot_id(self.cell(&rec, idx[0], line)?, line)?;
-            let product = self.product(self.cell(&rec, idx[1], line)?, line)?;
-            let manufactured = self.date(self.cell(&rec, idx[2], line)?, line)?;
-            let temperature_c = match vt {
-                Some(i) => {
-                    self.temperature(self.cell(&rec, i, line)?, line, "viscosity_temperature_c")?
-                }
-                None => None,
-            };
-            let mut readings = IndexMap::new();
-            for &i in &value_cols {
-                let v = self.cell(&rec, i, line)?;
-                if v.is_empty() {
-                    continue;
-                }
-                filled[i] = true;
-                let key = self.headers[i].clone();
-                let (value, form) = self.result(v, line, &key)?;
-                let t = if key == keys::VISCOSITY {
-                    temperature_c
-                } else {
-                    None
-                };
-                readings.insert(
-                    key,
-                    vec![Reading {
-                        value,
-                        form,
-                        unit: None,
-                        temperature_c: t,
-                        line,
-                    }],
-                );
-            }
-            let meta = self.row_meta(&rec, line)?;
-            let mut new = LotResults {
-                lot,
-                product,
-                manufactured,
-                readings,
-                analysts: vec![],
-                line,
-                tested_from: None,
-                tested_to: None,
-                notes: vec![],
-                approver: None,
-                decided_at: None,
-            };
-            self.merge_meta(&mut new, meta, line)?;
+            let new = self.wide_row(&layout, &rec, line, &mut filled)?;
             if let Some(old) = index.get(&new.lot).map(|&i| &lots[i]) {
-                let Some(what) = duplicate_difference(old, &new) else {
-                    continue;
-                };
-                return Err(Error::invalid(
-                    format!("{}:{line}, lot '{}'", self.name, new.lot),
-                    format!("the lot already appears on line {} with {what}", old.line),
-                    "Keep one row per lot: delete the duplicate or make both rows agree; enter a retest as a separate release with --retest.",
-                ));
+                match self.repeated_row(old, &new, line) {
+                    Some(e) => return Err(e),
+                    None => continue,
+                }
             }
             index.insert(new.lot.clone(), lots.len());
             lots.push(new);
         }
-        let empty = value_cols
-            .iter()
-            .filter(|&&i| !filled[i])
-            .map(|&i| self.headers[i].clone())
-            .collect();
-        Ok((lots, empty))
+        Ok((lots, self.empty_columns(&layout, &filled)))
     }
 
     /// The property key of a long-format row, lower-cased; refuses anything but a key.

@@ -126,13 +126,7 @@ pub fn check_time_order(
     plans: &[Plan],
     now: &str,
 ) -> Result<()> {
-    let Ok(now_t) = chrono::DateTime::parse_from_rfc3339(now) else {
-        return Err(Error::invalid(
-            "clock",
-            format!("'{now}' is not an RFC 3339 time"),
-            "Report this as a bug: the clock's time is always RFC 3339.",
-        ));
-    };
+    let now_t = clock_time(now)?;
     let mut checked: HashSet<&str> = HashSet::new();
     for (d, _) in decisions.iter().zip(plans).filter(|(_, p)| p.writes()) {
         if !checked.insert(d.product.as_str()) {
@@ -144,6 +138,17 @@ pub fn check_time_order(
         check_clock(t, now_t, now)?;
     }
     Ok(())
+}
+
+/// `now` parsed, refused when it is not RFC 3339 (a bug).
+fn clock_time(now: &str) -> Result<chrono::DateTime<chrono::FixedOffset>> {
+    chrono::DateTime::parse_from_rfc3339(now).map_err(|_| {
+        Error::invalid(
+            "clock",
+            format!("'{now}' is not an RFC 3339 time"),
+            "Report this as a bug: the clock's time is always RFC 3339.",
+        )
+    })
 }
 
 /// Refuses to append a row stamped `now` (parsed: `now_t`) to `t` when its last row was
@@ -174,16 +179,26 @@ pub fn lots_elsewhere(
     decisions: &[LotDecision],
     skip: &dyn Fn(&str) -> bool,
 ) -> Result<HashMap<String, String>> {
-    let mut elsewhere: HashMap<String, String> = HashMap::new();
-    if !register.is_dir() {
-        return Ok(elsewhere);
-    }
     // Compared without regard to case (issue #14).
     let upper: Vec<String> = decisions
         .iter()
         .map(|d| d.lot.to_ascii_uppercase())
         .collect();
     let ours: HashSet<&str> = upper.iter().map(String::as_str).collect();
+    lots_elsewhere_of(register, &|id| ours.contains(id), skip)
+}
+
+/// The lots recorded in the trend file of a product not in `skip` for which `ours` (given the
+/// id in upper case) is true: lot id as recorded -> that product (see [`lots_elsewhere`]).
+pub fn lots_elsewhere_of(
+    register: &Path,
+    ours: &dyn Fn(&str) -> bool,
+    skip: &dyn Fn(&str) -> bool,
+) -> Result<HashMap<String, String>> {
+    let mut elsewhere: HashMap<String, String> = HashMap::new();
+    if !register.is_dir() {
+        return Ok(elsewhere);
+    }
     for path in crate::record::query::trend_files(register)? {
         let product = path
             .file_stem()
@@ -192,7 +207,7 @@ pub fn lots_elsewhere(
         if skip(&product) {
             continue;
         }
-        for lot in recorded_lots(&path, &ours)? {
+        for lot in recorded_lots(&path, ours)? {
             elsewhere.insert(lot, product.clone());
         }
     }
@@ -204,7 +219,7 @@ pub fn lots_elsewhere(
 /// of that file's own faults: a torn or unreadable tail of one product must not block releases
 /// of every other product (issue #13, item 13); the broken product is refused when it is
 /// itself released. A last line without its line feed counts only when it has every field.
-fn recorded_lots(path: &Path, ours: &HashSet<&str>) -> Result<Vec<String>> {
+fn recorded_lots(path: &Path, ours: &dyn Fn(&str) -> bool) -> Result<Vec<String>> {
     let mut columns = 0usize;
     let mut lots = Vec::new();
     crate::record::lines::for_each_block(path, crate::record::lines::CHUNK, |block| {
@@ -224,13 +239,13 @@ fn recorded_lots(path: &Path, ours: &HashSet<&str>) -> Result<Vec<String>> {
                 // seq and recorded_at never hold a comma: the lot is the third field.
                 let lot = line.split(|&b| b == b',').nth(2);
                 if let Some(lot) = lot.and_then(|l| std::str::from_utf8(l).ok()) {
-                    if ours.contains(lot.to_ascii_uppercase().as_str()) {
+                    if ours(lot.to_ascii_uppercase().as_str()) {
                         lots.push(lot.to_string());
                     }
                 }
             } else {
                 let cells = trend_file::split_line(&String::from_utf8_lossy(line));
-                if cells.len() == columns && ours.contains(cells[2].to_ascii_uppercase().as_str()) {
+                if cells.len() == columns && ours(cells[2].to_ascii_uppercase().as_str()) {
                     lots.push(cells[2].clone());
                 }
             }
@@ -268,13 +283,18 @@ pub fn plan(
             .iter()
             .find(|(id, _)| id.eq_ignore_ascii_case(&d.lot))
         {
-            return Err(same_but_case(batch, i, id, &format!("product {other}")));
+            return Err(same_but_case(
+                &batch.place(i),
+                &d.lot,
+                id,
+                &format!("product {other}"),
+            ));
         }
         // Lot ids are unique without regard to case (issue #14), also within one file.
         if let Some(&j) = seen.get(&d.lot.to_ascii_uppercase()) {
             return Err(same_but_case(
-                batch,
-                i,
+                &batch.place(i),
+                &d.lot,
                 &batch.decisions[j].lot,
                 &format!("line {} of {}", batch.lines[j], batch.results.display()),
             ));
@@ -298,14 +318,39 @@ pub fn plan(
 /// The plan for lot `i` of `batch` against its product's trend `t` (see [`plan`]).
 fn plan_lot(batch: &Batch<'_>, i: usize, t: &Trend, specs: &SpecSet) -> Result<Plan> {
     let d = &batch.decisions[i];
-    let Some(row) = t.lot_rows(&d.lot).first().copied() else {
-        if let Some(r) = t
-            .rows
+    let latest = t.lot_rows(&d.lot).first().copied();
+    let case_twin = || {
+        t.rows
             .iter()
             .find(|r| t.cell(r, "lot").eq_ignore_ascii_case(&d.lot))
-        {
-            let place = format!("{} (row {})", t.path.display(), t.cell(r, "seq"));
-            return Err(same_but_case(batch, i, t.cell(r, "lot"), &place));
+    };
+    plan_one(
+        &batch.place(i),
+        d,
+        t,
+        latest,
+        &case_twin,
+        specs,
+        batch.retest,
+    )
+}
+
+/// The plan for lot `d` (named `place` in refusals) against its product's trend `t`, where
+/// `latest` is its latest row and `case_twin` finds a row of a lot whose id differs from its
+/// own only in case (see [`plan`]).
+fn plan_one<'t>(
+    place: &str,
+    d: &LotDecision,
+    t: &'t Trend,
+    latest: Option<&'t trend_file::Row>,
+    case_twin: &dyn Fn() -> Option<&'t trend_file::Row>,
+    specs: &SpecSet,
+    retest: Option<&str>,
+) -> Result<Plan> {
+    let Some(row) = latest else {
+        if let Some(r) = case_twin() {
+            let where_ = format!("{} (row {})", t.path.display(), t.cell(r, "seq"));
+            return Err(same_but_case(place, &d.lot, t.cell(r, "lot"), &where_));
         }
         return Ok(Plan::New);
     };
@@ -315,7 +360,7 @@ fn plan_lot(batch: &Batch<'_>, i: usize, t: &Trend, specs: &SpecSet) -> Result<P
         // A retest re-measures the same lot; it cannot move the lot's manufacture date, which
         // decides the spec revision and the retest period (issue #13, item 22).
         return Err(Error::invalid(
-            batch.place(i),
+            place,
             format!(
                 "manufacture date {} differs from {recorded_date}, recorded for this lot in {} (row {seq})",
                 d.manufactured,
@@ -329,13 +374,13 @@ fn plan_lot(batch: &Batch<'_>, i: usize, t: &Trend, specs: &SpecSet) -> Result<P
     if same_results(t, row, d, specs) {
         return Ok(Plan::Unchanged { seq });
     }
-    match batch.retest {
+    match retest {
         Some(reason) => Ok(Plan::Retest {
             supersedes: seq,
             reason: reason.to_string(),
         }),
         None => Err(Error::invalid(
-            batch.place(i),
+            place,
             format!(
                 "the lot is already recorded in {} (row {seq}) with different results",
                 t.path.display()
@@ -345,15 +390,13 @@ fn plan_lot(batch: &Batch<'_>, i: usize, t: &Trend, specs: &SpecSet) -> Result<P
     }
 }
 
-/// The refusal of lot `i` of `batch`, whose id differs only in case from `recorded`, recorded
-/// at `place` (issue #14: lot ids are unique without regard to case, as labels are read).
-fn same_but_case(batch: &Batch<'_>, i: usize, recorded: &str, place: &str) -> Error {
+/// The refusal of lot `lot` (named `place`), whose id differs only in case from `recorded`,
+/// recorded at `where_` (issue #14: lot ids are unique without regard to case, as labels are
+/// read).
+fn same_but_case(place: &str, lot: &str, recorded: &str, where_: &str) -> Error {
     Error::invalid(
-        batch.place(i),
-        format!(
-            "lot id '{}' differs only in case from lot '{recorded}', recorded in {place}",
-            batch.decisions[i].lot
-        ),
+        place,
+        format!("lot id '{lot}' differs only in case from lot '{recorded}', recorded in {where_}"),
         format!(
             "Lot ids are unique without regard to case: write '{recorded}' for that lot (a retest needs --retest), or give the new lot another id."
         ),
@@ -541,6 +584,197 @@ pub fn plan_unlocked(
     let plans = plan(batch, &trends, specs, &elsewhere)?;
     check_time_order(&trends, batch.decisions, &plans, now)?;
     Ok(plans)
+}
+
+/// A trend's lot ids in upper case -> their rows (indices), newest first.
+type LotRowsIndex = HashMap<String, Vec<usize>>;
+
+/// Plans a dry run one lot at a time (issue #13, item 11), with the rules and refusals of
+/// [`plan_unlocked`] and its messages, keeping only what the plan needs: each product's trend
+/// as read (with an index of its lot ids), the first refusal, the products that would get a
+/// row and the retested lots whose certificates would be withdrawn. Lots are given in file
+/// order with [`StreamPlan::add`]; [`StreamPlan::finish`] checks what needs every lot (ids
+/// recorded for other products, the clock) and returns the first refusal, chosen as
+/// [`plan_unlocked`] would choose it.
+pub struct StreamPlan<'a> {
+    register: &'a Path,
+    results: &'a Path,
+    specs: &'a SpecSet,
+    retest: Option<&'a str>,
+    /// Each product's trend as read (an empty one for a product without a file) and its lot
+    /// ids in upper case -> rows, newest first; `None` for one that could not be read.
+    trends: BTreeMap<String, Option<(Trend, LotRowsIndex)>>,
+    /// The first trend file that could not be read (products in order of first lot).
+    unreadable: Option<Error>,
+    /// The first lot (position, refusal) whose id equals an earlier lot's but for case.
+    twin: Option<(usize, Error)>,
+    /// The first lot refused against its trend file.
+    refused: Option<Error>,
+    /// Products that get a new row, in the order of their first such lot.
+    writes: Vec<String>,
+    /// Lots retested with a status that withdraws their customer certificates.
+    withdrawing: Vec<String>,
+    /// Lots added so far.
+    count: usize,
+}
+
+impl<'a> StreamPlan<'a> {
+    /// A plan for the results file `results` (named in refusals) against the register;
+    /// `retest` as in [`Batch::retest`].
+    pub fn new(
+        register: &'a Path,
+        results: &'a Path,
+        specs: &'a SpecSet,
+        retest: Option<&'a str>,
+    ) -> Self {
+        StreamPlan {
+            register,
+            results,
+            specs,
+            retest,
+            trends: BTreeMap::new(),
+            unreadable: None,
+            twin: None,
+            refused: None,
+            writes: Vec::new(),
+            withdrawing: Vec::new(),
+            count: 0,
+        }
+    }
+
+    /// Plans the next lot of the file, `d`, from line `line`; `twin` is an earlier lot of the
+    /// file whose id equals its own but for case (id, line), if any.
+    pub fn add(&mut self, d: &LotDecision, line: u64, twin: Option<(&str, u64)>) {
+        let position = self.count;
+        self.count += 1;
+        let place = || format!("{}:{line}, lot '{}'", self.results.display(), d.lot);
+        if let (Some((lot, at)), None) = (twin, &self.twin) {
+            let where_ = format!("line {at} of {}", self.results.display());
+            self.twin = Some((position, same_but_case(&place(), &d.lot, lot, &where_)));
+        }
+        if !self.trends.contains_key(&d.product) {
+            let path = trend_file::path_for(self.register, &d.product);
+            let read = if path.is_file() {
+                trend_file::read(&path)
+            } else {
+                Ok(Trend {
+                    path,
+                    columns: Vec::new(),
+                    rows: Vec::new(),
+                    head: String::new(),
+                })
+            };
+            let entry = match read {
+                Ok(t) => {
+                    let mut ids: LotRowsIndex = HashMap::new();
+                    for (i, r) in t.rows.iter().enumerate().rev() {
+                        ids.entry(t.cell(r, "lot").to_ascii_uppercase())
+                            .or_default()
+                            .push(i);
+                    }
+                    Some((t, ids))
+                }
+                Err(e) => {
+                    self.unreadable.get_or_insert(e);
+                    None
+                }
+            };
+            self.trends.insert(d.product.clone(), entry);
+        }
+        if self.unreadable.is_some() || self.refused.is_some() {
+            return;
+        }
+        let Some(Some((t, ids))) = self.trends.get(&d.product) else {
+            return;
+        };
+        let rows: &[usize] = ids
+            .get(&d.lot.to_ascii_uppercase())
+            .map_or(&[], Vec::as_slice);
+        let latest = rows
+            .iter()
+            .map(|&i| &t.rows[i])
+            .find(|r| t.cell(r, "lot") == d.lot);
+        let case_twin = || {
+            rows.iter()
+                .map(|&i| &t.rows[i])
+                .min_by_key(|r| r.line)
+                .filter(|r| t.cell(r, "lot") != d.lot)
+        };
+        match plan_one(&place(), d, t, latest, &case_twin, self.specs, self.retest) {
+            Ok(plan) => {
+                if plan.writes() && !self.writes.contains(&d.product) {
+                    self.writes.push(d.product.clone());
+                }
+                if matches!(plan, Plan::Retest { .. })
+                    && crate::lot::disposition::withdraws(d.status)
+                {
+                    self.withdrawing.push(d.lot.clone());
+                }
+            }
+            Err(e) => self.refused = Some(e),
+        }
+    }
+
+    /// Finishes the plan: refuses as [`plan_unlocked`] would (an unreadable trend file, a
+    /// lot id recorded for another product or repeated in the file but for case, a lot
+    /// refused against its trend file, a clock behind a trend file that gets a row), else
+    /// returns the retested lots whose customer certificates a release would withdraw.
+    /// `position_of` gives the position of the first lot of the file whose id equals the
+    /// given one but for case, and `lot_at` the id and line of the lot at a position.
+    pub fn finish(
+        self,
+        position_of: &dyn Fn(&str) -> Option<usize>,
+        lot_at: &dyn Fn(usize) -> (String, u64),
+        now: &str,
+    ) -> Result<Vec<String>> {
+        if let Some(e) = self.unreadable {
+            return Err(e);
+        }
+        let elsewhere =
+            lots_elsewhere_of(self.register, &|upper| position_of(upper).is_some(), &|p| {
+                self.trends.contains_key(p)
+            })?;
+        // The first lot refused for its id: recorded for another product (exactly, then but
+        // for case), or equal to an earlier lot of the file but for case.
+        let first_elsewhere = elsewhere.keys().filter_map(|id| position_of(id)).min();
+        let twin_first = match (&self.twin, first_elsewhere) {
+            (Some((t, _)), Some(e)) => *t < e,
+            (Some(_), None) => true,
+            _ => false,
+        };
+        if twin_first {
+            if let Some((_, e)) = self.twin {
+                return Err(e);
+            }
+        }
+        if let Some(i) = first_elsewhere {
+            let (lot, line) = lot_at(i);
+            let place = format!("{}:{line}, lot '{lot}'", self.results.display());
+            if let Some(other) = elsewhere.get(&lot) {
+                return Err(Error::invalid(
+                    place,
+                    format!("this lot id is already recorded for product {other}"),
+                    "Lot ids must be unique across products; check the lot id and the product code.",
+                ));
+            }
+            if let Some((id, other)) = elsewhere
+                .iter()
+                .find(|(id, _)| id.eq_ignore_ascii_case(&lot))
+            {
+                return Err(same_but_case(&place, &lot, id, &format!("product {other}")));
+            }
+        }
+        if let Some(e) = self.refused {
+            return Err(e);
+        }
+        let now_t = clock_time(now)?;
+        for product in &self.writes {
+            if let Some(Some((t, _))) = self.trends.get(product) {
+                check_clock(t, now_t, now)?;
+            }
+        }
+        Ok(self.withdrawing)
+    }
 }
 
 /// Appends the row of every lot whose plan writes, under the locks taken by
@@ -940,10 +1174,16 @@ decimals = 0
         let ours = HashSet::from(["L1", "L2", "L3"]);
         let torn = [whole.as_slice(), b"3,2026-10-02T08:00:00Z,L3,PD-\xC3"].concat();
         std::fs::write(&p, &torn).unwrap();
-        assert_eq!(recorded_lots(&p, &ours).unwrap(), ["L1", "L2"]);
+        assert_eq!(
+            recorded_lots(&p, &|id| ours.contains(id)).unwrap(),
+            ["L1", "L2"]
+        );
         // A complete last row without its line feed is recorded all the same.
         std::fs::write(&p, &whole[..whole.len() - 1]).unwrap();
-        assert_eq!(recorded_lots(&p, &ours).unwrap(), ["L1", "L2"]);
+        assert_eq!(
+            recorded_lots(&p, &|id| ours.contains(id)).unwrap(),
+            ["L1", "L2"]
+        );
     }
 
     /// Issue #13 item 22: a retest may not move the lot's manufacture date.

@@ -12,33 +12,54 @@ fn width(cell: &str) -> usize {
 /// and gets an underline. Widths are display widths, not bytes or characters, so "mPa·s" and
 /// "x̄" align.
 pub fn render(rows: &[Vec<String>]) -> String {
-    let cols = rows.iter().map(Vec::len).max().unwrap_or(0);
-    let mut widths = vec![0usize; cols];
+    let mut widths = Vec::new();
     for row in rows {
-        for (i, cell) in row.iter().enumerate() {
-            widths[i] = widths[i].max(width(cell));
-        }
+        widen(&mut widths, row);
     }
     let mut out = String::new();
     for (n, row) in rows.iter().enumerate() {
-        let mut line = String::new();
-        for (i, cell) in row.iter().enumerate() {
-            if i > 0 {
-                line.push_str("  ");
-            }
-            line.push_str(cell);
-            if i + 1 < row.len() {
-                line.extend(std::iter::repeat_n(' ', widths[i] - width(cell)));
-            }
-        }
-        out.push_str(line.trim_end());
-        out.push('\n');
+        out.push_str(&line(row, &widths));
         if n == 0 && rows.len() > 1 {
-            let total: usize = widths.iter().sum::<usize>() + 2 * cols.saturating_sub(1);
-            out.push_str(&"-".repeat(total));
-            out.push('\n');
+            out.push_str(&rule(&widths));
         }
     }
+    out
+}
+
+/// Grows `widths` (one per column) to fit `row`: a table written a row at a time measures
+/// every row with this first, then writes each with [`line`] (as [`render`] does).
+pub fn widen(widths: &mut Vec<usize>, row: &[String]) {
+    if widths.len() < row.len() {
+        widths.resize(row.len(), 0);
+    }
+    for (i, cell) in row.iter().enumerate() {
+        widths[i] = widths[i].max(width(cell));
+    }
+}
+
+/// One row of a table whose columns are `widths` wide, with its line feed; the last cell is
+/// not padded and trailing spaces are dropped.
+pub fn line(row: &[String], widths: &[usize]) -> String {
+    let mut line = String::new();
+    for (i, cell) in row.iter().enumerate() {
+        if i > 0 {
+            line.push_str("  ");
+        }
+        line.push_str(cell);
+        if i + 1 < row.len() {
+            line.extend(std::iter::repeat_n(' ', widths[i] - width(cell)));
+        }
+    }
+    let mut out = line.trim_end().to_string();
+    out.push('\n');
+    out
+}
+
+/// The underline of a table's header, as wide as its columns and their separators.
+pub fn rule(widths: &[usize]) -> String {
+    let total: usize = widths.iter().sum::<usize>() + 2 * widths.len().saturating_sub(1);
+    let mut out = "-".repeat(total);
+    out.push('\n');
     out
 }
 

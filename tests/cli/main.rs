@@ -13,6 +13,7 @@ mod cook;
 mod demo_command;
 mod demo_data;
 mod demo_safety;
+mod dry_run_stream;
 mod endgroup;
 mod find_across;
 mod flags;
