@@ -157,10 +157,11 @@ pub fn render_pdf(
     Ok(bytes)
 }
 
-/// zlib level of the PDF's streams (content and font programs). printpdf's `save` uses
-/// the best compression (level 9); level 6 (zlib's default) costs about a third of the time
-/// here for files a few per cent larger (issue #20; figures in README, Performance).
-const COMPRESSION_LEVEL: u32 = 6;
+/// zlib level of the PDF's streams (content and font programs). printpdf's `save` uses the
+/// best compression (level 9), about 14 % of one certificate's instructions; level 1 (the
+/// fastest) makes the demo certificate about 12 % larger (42 to 47 kB) (issue #20; figures in
+/// README, Performance).
+const COMPRESSION_LEVEL: u32 = 1;
 
 /// The PDF file of `doc`: printpdf's `save` (font subsetting, the lopdf document) with
 /// the streams compressed at [`COMPRESSION_LEVEL`], deterministic for the same document.
