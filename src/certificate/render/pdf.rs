@@ -158,10 +158,11 @@ pub fn render_pdf(
 }
 
 /// zlib level of the PDF's streams (content and font programs). printpdf's `save` uses the
-/// best compression (level 9), about 14 % of one certificate's instructions; level 1 (the
-/// fastest) makes the demo certificate about 12 % larger (42 to 47 kB) (issue #20; figures in
-/// README, Performance).
-const COMPRESSION_LEVEL: u32 = 1;
+/// best compression (level 9). Level 6 (zlib's default) takes about a fifth less time for a
+/// file 0.3 % larger (the benchmark's sample: 42,960 to 43,086 bytes); level 1 took 70 % less
+/// time but made the demo certificate 29 % larger (45.7 to 58.8 kB), too much for files kept
+/// for good (issue #20; README, Performance).
+const COMPRESSION_LEVEL: u32 = 6;
 
 /// The PDF file of `doc`: printpdf's `save` (font subsetting, the lopdf document) with
 /// the streams compressed at [`COMPRESSION_LEVEL`], deterministic for the same document.
