@@ -24,6 +24,7 @@ pub struct Templates {
     dir: PathBuf,
     built_in: bool,
     paged: bool,
+    builtin_family: bool,
 }
 
 impl Templates {
@@ -39,6 +40,7 @@ impl Templates {
         tera.autoescape_on([".html.tera", ".html"]);
         let has = |name: &str| dir.join(name).exists();
         let mut paged = false;
+        let mut both = String::new();
         let built_in =
             !dir.exists() || (has(SITE_FILE) && !has(STYLESHEET) && !has(CERTIFICATE_TEMPLATE));
         for (name, shipped) in [
@@ -54,6 +56,7 @@ impl Templates {
             if name == CERTIFICATE_TEMPLATE {
                 paged = prints_page_rows(&text);
             }
+            both.push_str(&text);
             tera.add_raw_template(name, &text)
                 .map_err(|e| template_error(dir, &e))?;
         }
@@ -62,6 +65,7 @@ impl Templates {
             dir: dir.to_path_buf(),
             built_in,
             paged,
+            builtin_family: names_builtin_family(&both),
         })
     }
 
@@ -70,6 +74,13 @@ impl Templates {
     /// long certificates are left to the HTML engine's own page breaks.
     pub fn paged(&self) -> bool {
         self.paged
+    }
+
+    /// True when the template or stylesheet may select one of printpdf's built-in faces by
+    /// name (Times, Helvetica, Arial, Courier, Symbol, Zapf Dingbats, or a generic family):
+    /// only then are those faces registered for the layout (issue #20).
+    pub fn names_builtin_family(&self) -> bool {
+        self.builtin_family
     }
 
     /// A one-line notice when the built-in templates stand in for a missing folder.
@@ -120,6 +131,25 @@ fn prints_page_rows(template: &str) -> bool {
     code.contains("page.rows")
 }
 
+/// True when `text` mentions, in any case and anywhere (comments, wording), a family name
+/// that printpdf 0.12 maps to one of its built-in faces, or a generic family (`serif`,
+/// `sans-serif`, `monospace`), or sets no `font-family` at all. Erring towards true only
+/// costs time: the built-in faces are then registered as printpdf does.
+fn names_builtin_family(text: &str) -> bool {
+    let lower = text.to_ascii_lowercase();
+    const NAMES: [&str; 8] = [
+        "times",
+        "helvetica",
+        "arial",
+        "courier",
+        "symbol",
+        "zapf",
+        "serif",
+        "monospace",
+    ];
+    NAMES.iter().any(|n| lower.contains(n)) || !lower.contains("font-family")
+}
+
 /// Renders `cert` with the templates in `templates_dir` (loads them on every call; use
 /// [`Templates`] to render many).
 pub fn render_html(templates_dir: &Path, cert: &Certificate) -> Result<String> {
@@ -163,6 +193,29 @@ fn template_error(dir: &Path, err: &tera::Error) -> Error {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn builtin_family_names_are_found_in_any_case_issue_20() {
+        let shipped = format!("{BUILT_IN_STYLESHEET}{BUILT_IN_TEMPLATE}");
+        assert!(!names_builtin_family(&shipped));
+        // No family set anywhere: the layout's default is a generic family.
+        assert!(names_builtin_family("<p>{{ number }}</p>"));
+        assert!(!names_builtin_family(
+            "body { font-family: \"DejaVu Sans\"; }"
+        ));
+        for css in [
+            "body { font-family: Helvetica; }",
+            "td { font-family: \"Times New Roman\", serif }",
+            "p { font-family: 'Courier New' }",
+            "h1 { font-family: ARIAL }",
+            "b { font-family: \"DejaVu Sans\", sans-serif }",
+            "pre { font-family: monospace }",
+            "i { font-family: Symbol }",
+            "u { font-family: ZapfDingbats }",
+        ] {
+            assert!(names_builtin_family(css), "{css}");
+        }
+    }
 
     #[test]
     fn page_rows_in_comments_do_not_count() {

@@ -7,6 +7,7 @@
 //! then stamps the footer (certificate number, page x of y) and, for a lot that is not
 //! released, the NOT RELEASED marking onto every page with printpdf's own operations.
 
+mod engine;
 mod html;
 pub mod layout;
 mod pdf;

@@ -3,7 +3,7 @@
 //! bundled DejaVu fonts, then stamps footer and NOT RELEASED marking with printpdf operations.
 
 use std::collections::{BTreeMap, HashMap};
-use std::sync::{Arc, Mutex};
+use std::sync::{Arc, Mutex, OnceLock};
 
 use printpdf::html::{rust_fontconfig, SharedFontPool};
 use printpdf::{
@@ -13,6 +13,7 @@ use printpdf::{
 };
 
 use crate::certificate::model::Certificate;
+use crate::certificate::render::engine::{self, PageBox, Registered};
 use crate::certificate::render::layout::{self, Heights, PagePlan};
 use crate::certificate::render::Templates;
 use crate::error::{Error, Result};
@@ -44,6 +45,9 @@ pub struct FontPool {
     /// The same faces parsed for the stamps drawn after layout (footer, marking).
     regular: ParsedFont,
     bold: ParsedFont,
+    /// printpdf's built-in faces registered once with a font manager over `pool`, on first
+    /// use: only a template that names one of their families needs them (issue #20).
+    registered: Arc<OnceLock<std::result::Result<Registered, String>>>,
 }
 
 impl FontPool {
@@ -73,6 +77,7 @@ impl FontPool {
             pool,
             regular: parse(DEJAVU_SANS),
             bold: parse(DEJAVU_SANS_BOLD),
+            registered: Arc::new(OnceLock::new()),
         }
     }
 }
@@ -130,7 +135,7 @@ pub fn render_pdf(
     cert: &Certificate,
     fonts: &FontPool,
 ) -> Result<Vec<u8>> {
-    let first = lay_out(whole_html, cert, fonts)?;
+    let first = lay_out(templates, whole_html, cert, fonts)?;
     let mut doc = if first.pages.len() == 1 || !templates.paged() {
         first
     } else {
@@ -146,11 +151,51 @@ pub fn render_pdf(
             stamp_not_released(page, &bold);
         }
     }
-    let mut warnings = Vec::new();
-    let mut bytes = doc.save(&PdfSaveOptions::default(), &mut warnings);
+    let mut bytes = save(&doc);
     crate::support::pdf_meta::drop_empty_pdfx_version(&mut bytes);
     set_document_id(&mut bytes, cert);
     Ok(bytes)
+}
+
+/// zlib level of the PDF's streams (content and font programs). printpdf's `save` uses the
+/// best compression (level 9). Level 6 (zlib's default) takes about a fifth less time for a
+/// file 0.3 % larger (the benchmark's sample: 42,960 to 43,086 bytes); level 1 took 70 % less
+/// time but made the demo certificate 29 % larger (45.7 to 58.8 kB), too much for files kept
+/// for good (issue #20; README, Performance).
+const COMPRESSION_LEVEL: u32 = 6;
+
+/// The PDF file of `doc`: printpdf's `save` (font subsetting, the lopdf document) with
+/// the streams compressed at [`COMPRESSION_LEVEL`], deterministic for the same document.
+fn save(doc: &PdfDocument) -> Vec<u8> {
+    use std::io::Write;
+    let mut warnings = Vec::new();
+    let mut lo = doc.to_lopdf_document(&PdfSaveOptions::default(), &mut warnings);
+    for object in lo.objects.values_mut() {
+        if let lopdf::Object::Stream(stream) = object {
+            // As lopdf's `Stream::compress`: only streams not yet filtered, and only when
+            // compressing saves bytes.
+            if !stream.allows_compression || stream.dict.get(b"Filter").is_ok() {
+                continue;
+            }
+            let mut encoder = flate2::write::ZlibEncoder::new(
+                Vec::new(),
+                flate2::Compression::new(COMPRESSION_LEVEL),
+            );
+            let packed = encoder
+                .write_all(&stream.content)
+                .and_then(|()| encoder.finish());
+            if let Ok(packed) = packed {
+                if packed.len() + 19 < stream.content.len() {
+                    stream.dict.set("Filter", "FlateDecode");
+                    stream.set_content(packed);
+                }
+            }
+        }
+    }
+    let mut bytes = Vec::new();
+    lo.save_to(&mut bytes)
+        .expect("writing a PDF into memory cannot fail");
+    bytes
 }
 
 /// Title, author (the issuing site), subject (lot and certificate number) and keywords, and
@@ -187,30 +232,41 @@ fn lot_ids(cert: &Certificate) -> String {
     }
 }
 
-/// Lays one HTML document out on A4 pages with the bundled fonts.
-fn lay_out(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<PdfDocument> {
-    let options = GeneratePdfOptions {
-        page_width: Some(PAGE_W_MM),
-        page_height: Some(PAGE_H_MM),
-        margin_top: Some(MARGIN_TOP_MM),
-        margin_right: Some(MARGIN_SIDE_MM),
-        margin_bottom: Some(MARGIN_BOTTOM_MM),
-        margin_left: Some(MARGIN_SIDE_MM),
-        ..GeneratePdfOptions::default()
+/// Lays one HTML document out on A4 pages with the bundled fonts: through [`engine`], with
+/// the fonts set up once per process, or through printpdf's own `from_html_with_cache` when
+/// the pages use a face other than the bundled ones. printpdf's built-in faces are registered
+/// (once) only for templates that name one of their families
+/// ([`Templates::names_builtin_family`]); no other template can reach them.
+fn lay_out(
+    templates: &Templates,
+    html: &str,
+    cert: &Certificate,
+    fonts: &FontPool,
+) -> Result<PdfDocument> {
+    let page = PageBox {
+        width: PAGE_W_MM,
+        height: PAGE_H_MM,
+        top: MARGIN_TOP_MM,
+        right: MARGIN_SIDE_MM,
+        bottom: MARGIN_BOTTOM_MM,
+        left: MARGIN_SIDE_MM,
+    };
+    let faces = [&fonts.regular, &fonts.bold];
+    let registered = if templates.names_builtin_family() {
+        let once = fonts
+            .registered
+            .get_or_init(|| Registered::new(&fonts.pool));
+        Some(once.as_ref().map_err(|e| layout_error(cert, e))?)
+    } else {
+        None
     };
     let mut warnings = Vec::new();
-    let doc = PdfDocument::from_html_with_cache(
-        html,
-        &BTreeMap::new(),
-        // The faces reach the layout through the pool's font cache; passing them again in
-        // this map makes printpdf re-register both on every call (about 9 ms per certificate
-        // here) and gives byte-identical output, so the map stays empty.
-        &BTreeMap::new(),
-        &options,
-        &mut warnings,
-        Some(fonts.pool.clone()),
-    )
-    .map_err(|e| layout_error(cert, &e))?;
+    let doc = match engine::lay_out(html, page, &fonts.pool, registered, &faces)
+        .map_err(|e| layout_error(cert, &e))?
+    {
+        Some(doc) => doc,
+        None => lay_out_printpdf(html, cert, fonts, &mut warnings)?,
+    };
     if doc.pages.is_empty() {
         let detail = warnings
             .iter()
@@ -223,6 +279,36 @@ fn lay_out(html: &str, cert: &Certificate, fonts: &FontPool) -> Result<PdfDocume
         ));
     }
     Ok(doc)
+}
+
+/// [`lay_out`] through printpdf's own HTML entry point.
+fn lay_out_printpdf(
+    html: &str,
+    cert: &Certificate,
+    fonts: &FontPool,
+    warnings: &mut Vec<printpdf::PdfWarnMsg>,
+) -> Result<PdfDocument> {
+    let options = GeneratePdfOptions {
+        page_width: Some(PAGE_W_MM),
+        page_height: Some(PAGE_H_MM),
+        margin_top: Some(MARGIN_TOP_MM),
+        margin_right: Some(MARGIN_SIDE_MM),
+        margin_bottom: Some(MARGIN_BOTTOM_MM),
+        margin_left: Some(MARGIN_SIDE_MM),
+        ..GeneratePdfOptions::default()
+    };
+    PdfDocument::from_html_with_cache(
+        html,
+        &BTreeMap::new(),
+        // The faces reach the layout through the pool's font cache; passing them again in
+        // this map makes printpdf re-register both on every call and gives byte-identical
+        // output, so the map stays empty.
+        &BTreeMap::new(),
+        &options,
+        warnings,
+        Some(fonts.pool.clone()),
+    )
+    .map_err(|e| layout_error(cert, &e))
 }
 
 /// Top edge of the content box, pt from the bottom of the page.
@@ -270,7 +356,7 @@ fn content_height() -> f32 {
 fn paginate(templates: &Templates, cert: &Certificate, fonts: &FontPool) -> Result<PdfDocument> {
     let probe = |plan: PagePlan, index: usize| -> Result<f32> {
         let html = templates.render_page(cert, &plan.page(cert, index))?;
-        Ok(used_height(&lay_out(&html, cert, fonts)?))
+        Ok(used_height(&lay_out(templates, &html, cert, fonts)?))
     };
     let nothing = PagePlan {
         rows: (0, 0),
@@ -326,7 +412,7 @@ fn paginate(templates: &Templates, cert: &Certificate, fonts: &FontPool) -> Resu
         let mut overflow = None;
         for (k, plan) in plans.iter().enumerate() {
             let html = templates.render_page(cert, &plan.page(cert, k + 1))?;
-            let doc = lay_out(&html, cert, fonts)?;
+            let doc = lay_out(templates, &html, cert, fonts)?;
             if doc.pages.len() > 1 {
                 overflow = Some((k, plan.units()));
                 break;
@@ -511,4 +597,100 @@ fn stamp_not_released(page: &mut PdfPage, bold: &StampFont) {
     });
     page.ops.push(Op::EndTextSection);
     page.ops.push(Op::RestoreGraphicsState);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn page() -> PageBox {
+        PageBox {
+            width: PAGE_W_MM,
+            height: PAGE_H_MM,
+            top: MARGIN_TOP_MM,
+            right: MARGIN_SIDE_MM,
+            bottom: MARGIN_BOTTOM_MM,
+            left: MARGIN_SIDE_MM,
+        }
+    }
+
+    /// The PDF bytes of `doc` with fixed metadata and file identifier, so two documents laid
+    /// out by different paths compare by what they draw and embed.
+    fn bytes(mut doc: PdfDocument) -> Vec<u8> {
+        doc.metadata = PdfDocument::new("same").metadata;
+        crate::support::pdf_meta::set_creator_and_day(
+            &mut doc,
+            chrono::NaiveDate::from_ymd_opt(2026, 12, 2).unwrap(),
+        );
+        let mut bytes = save(&doc);
+        crate::support::pdf_meta::set_document_id(&mut bytes, &[7; 32]);
+        bytes
+    }
+
+    /// Lays `html` out through printpdf's `from_html_with_cache` and through [`engine`]
+    /// (with the built-in faces registered when `builtins`) and checks the pages and the PDF
+    /// bytes agree.
+    fn same_as_printpdf(html: &str, builtins: bool) {
+        let fonts = FontPool::bundled();
+        let sample: Certificate = serde_json::from_str(
+            &std::fs::read_to_string(concat!(
+                env!("CARGO_MANIFEST_DIR"),
+                "/tests/fixtures/certificates/sample.json"
+            ))
+            .unwrap(),
+        )
+        .unwrap();
+        let theirs = lay_out_printpdf(html, &sample, &fonts, &mut Vec::new()).unwrap();
+        let registered = builtins.then(|| Registered::new(&fonts.pool).unwrap());
+        let faces = [&fonts.regular, &fonts.bold];
+        let ours = engine::lay_out(html, page(), &fonts.pool, registered.as_ref(), &faces)
+            .unwrap()
+            .expect("only the bundled faces are used");
+        assert!(!ours.pages.is_empty());
+        assert_eq!(ours.pages, theirs.pages);
+        assert_eq!(
+            ours.resources.fonts.map.keys().collect::<Vec<_>>(),
+            theirs.resources.fonts.map.keys().collect::<Vec<_>>()
+        );
+        assert!(bytes(ours) == bytes(theirs), "the PDF files differ");
+    }
+
+    #[test]
+    fn engine_lays_out_as_printpdf_does_issue_20() {
+        let templates =
+            Templates::load(&std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("templates"))
+                .unwrap();
+        assert!(!templates.names_builtin_family());
+        let sample: Certificate = serde_json::from_str(
+            &std::fs::read_to_string(concat!(
+                env!("CARGO_MANIFEST_DIR"),
+                "/tests/fixtures/certificates/sample.json"
+            ))
+            .unwrap(),
+        )
+        .unwrap();
+        // The shipped template: without the built-in faces, as render_pdf lays it out.
+        same_as_printpdf(&templates.render(&sample).unwrap(), false);
+        // Every printable Windows-1252 character (the built-in faces' whole repertoire), in
+        // regular and bold: DejaVu Sans sets each one, so the built-in faces change nothing.
+        let cp1252: String = (0x20u8..=0xff)
+            .filter(|b| *b != 0x7f && !(0x80..0xa0).contains(b))
+            .map(char::from)
+            .chain("€‚ƒ„…†‡ˆ‰Š‹ŒŽ‘’“”•–—˜™š›œžŸ".chars())
+            .collect();
+        let escaped = cp1252
+            .replace('&', "&amp;")
+            .replace('<', "&lt;")
+            .replace('>', "&gt;");
+        let html = format!(
+            "<html><head><style>body {{ font-family: \"DejaVu Sans\"; font-size: 9pt; }}</style></head>\
+             <body><p>{escaped}</p><p><b>{escaped}</b></p></body></html>"
+        );
+        same_as_printpdf(&html, false);
+        // A stylesheet naming a generic family: laid out with the built-in faces registered.
+        same_as_printpdf(
+            &html.replace("\"DejaVu Sans\";", "\"DejaVu Sans\", sans-serif;"),
+            true,
+        );
+    }
 }
