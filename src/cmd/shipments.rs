@@ -5,9 +5,7 @@ use chrono::NaiveDate;
 use crate::cmd::args::{self, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
-use crate::record::certlog::Certificate;
 use crate::record::shipments::{self, Query};
-use crate::spec::customer::Customer;
 use crate::spec::SpecSet;
 
 /// Arguments of `resinlot shipments`.
@@ -64,7 +62,12 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         Vec::new()
     };
     if let Some(c) = &args.customer {
-        known_customer(c, &customers, &args.specs)?;
+        shipments::known_customer(
+            &format!("--customer '{c}'"),
+            c,
+            &customers,
+            &args.specs.join("customers"),
+        )?;
     }
     let certs = crate::record::certlog::all_certificates(&args.register)?;
     let q = Query {
@@ -79,101 +82,12 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let text = if args.json {
         serde_json::to_string_pretty(&serde_json::json!({ "shipments": found }))? + "\n"
     } else if args.csv {
-        csv_text(&found)?
+        shipments::csv_text(&found)?
     } else if found.is_empty() {
         "No certificates issued match.\n".to_string()
     } else {
-        table_text(&found)
+        shipments::table_text(&found)
     };
     crate::support::output::print(&text)?;
     Ok(Outcome::AllGood)
-}
-
-/// Refuses a customer that no customer file names (a typo would otherwise list nothing).
-fn known_customer(
-    name: &str,
-    customers: &[Customer],
-    specs: &std::path::Path,
-) -> anyhow::Result<()> {
-    if customers
-        .iter()
-        .any(|c| c.id.eq_ignore_ascii_case(name) || c.name.eq_ignore_ascii_case(name))
-    {
-        return Ok(());
-    }
-    Err(Error::invalid(
-        format!("--customer '{name}'"),
-        format!(
-            "no customer file in {} has this file name or legal name",
-            specs.join("customers").display()
-        ),
-        format!(
-            "Known customers: {}.",
-            customers
-                .iter()
-                .map(|c| c.id.as_str())
-                .collect::<Vec<_>>()
-                .join(", ")
-        ),
-    )
-    .into())
-}
-
-const COLUMNS: [&str; 9] = [
-    "number",
-    "issued",
-    "customer",
-    "po",
-    "quantity",
-    "lots",
-    "product",
-    "status",
-    "supersedes",
-];
-
-fn cells(c: &Certificate) -> [String; 9] {
-    [
-        c.number.clone(),
-        c.issued_at.clone(),
-        c.customer_name.clone(),
-        c.po.clone(),
-        c.quantity.clone(),
-        c.lots.join(" "),
-        c.product.clone(),
-        c.status.as_str().to_string(),
-        c.supersedes.clone(),
-    ]
-}
-
-fn csv_text(found: &[Certificate]) -> anyhow::Result<String> {
-    let mut w = csv::Writer::from_writer(Vec::new());
-    w.write_record(COLUMNS)?;
-    for c in found {
-        w.write_record(cells(c))?;
-    }
-    Ok(String::from_utf8(w.into_inner()?)?)
-}
-
-fn table_text(found: &[Certificate]) -> String {
-    let mut rows = vec![COLUMNS[..8]
-        .iter()
-        .map(|s| s.to_string())
-        .collect::<Vec<_>>()];
-    for c in found {
-        let mut r = cells(c).to_vec();
-        r.truncate(8);
-        r[1] = c.issued_at.get(..10).unwrap_or(&c.issued_at).to_string();
-        rows.push(r);
-    }
-    let mut t = crate::support::table::render(&rows);
-    let current = found
-        .iter()
-        .filter(|c| c.status == crate::record::certlog::CertStatus::Current)
-        .count();
-    t.push_str(&format!(
-        "{} certificate{} ({current} current).\n",
-        found.len(),
-        if found.len() == 1 { "" } else { "s" }
-    ));
-    t
 }

@@ -113,6 +113,10 @@ pub struct CertificateLine {
     pub issued_to: String,
     /// When (RFC 3339, UTC).
     pub issued_at: String,
+    /// The customer's purchase order, empty when none (internal certificates have none).
+    pub po: String,
+    /// The quantity shipped as written on the certificate, empty when none.
+    pub quantity: String,
     /// True for a number logged as void (a file found without its log entry).
     pub void: bool,
     /// The number it supersedes, empty when none.
@@ -361,6 +365,8 @@ fn certificate_line(e: &Entry, st: &Standing) -> CertificateLine {
             e.customer_name.clone()
         },
         issued_at: e.issued_at.clone(),
+        po: e.po.clone(),
+        quantity: e.quantity.clone(),
         void,
         supersedes: e.supersedes.clone(),
         reason: e.reason.clone(),

@@ -152,6 +152,110 @@ pub fn shipments(certs: &[Certificate], q: &Query, customers: &[Customer]) -> Ve
     out
 }
 
+/// Refuses a customer that no customer file in `dir` names by file stem or legal name (a typo
+/// would otherwise list nothing), naming the known ones; `place` is where it was given
+/// (`--customer 'X'`).
+pub fn known_customer(
+    place: &str,
+    name: &str,
+    customers: &[Customer],
+    dir: &std::path::Path,
+) -> Result<()> {
+    if customers
+        .iter()
+        .any(|c| c.id.eq_ignore_ascii_case(name) || c.name.eq_ignore_ascii_case(name))
+    {
+        return Ok(());
+    }
+    Err(Error::invalid(
+        place,
+        format!(
+            "no customer file in {} has this file name or legal name",
+            dir.display()
+        ),
+        format!(
+            "Known customers: {}.",
+            customers
+                .iter()
+                .map(|c| c.id.as_str())
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+    ))
+}
+
+/// The columns of `shipments --csv` (and of the web page's CSV download), in order.
+pub const COLUMNS: [&str; 9] = [
+    "number",
+    "issued",
+    "customer",
+    "po",
+    "quantity",
+    "lots",
+    "product",
+    "status",
+    "supersedes",
+];
+
+/// One certificate's cells under [`COLUMNS`] (lots separated by spaces, the issue time in full).
+pub fn cells(c: &Certificate) -> [String; 9] {
+    [
+        c.number.clone(),
+        c.issued_at.clone(),
+        c.customer_name.clone(),
+        c.po.clone(),
+        c.quantity.clone(),
+        c.lots.join(" "),
+        c.product.clone(),
+        c.status.as_str().to_string(),
+        c.supersedes.clone(),
+    ]
+}
+
+/// `found` as CSV: a header of [`COLUMNS`] and one line per certificate.
+pub fn csv_text(found: &[Certificate]) -> Result<String> {
+    let fail = |e: &dyn std::fmt::Display| {
+        Error::invalid(
+            "shipments",
+            format!("cannot write the CSV: {e}"),
+            "Report this as a bug in resinlot.",
+        )
+    };
+    let mut w = csv::Writer::from_writer(Vec::new());
+    w.write_record(COLUMNS).map_err(|e| fail(&e))?;
+    for c in found {
+        w.write_record(cells(c)).map_err(|e| fail(&e))?;
+    }
+    let bytes = w.into_inner().map_err(|e| fail(&e))?;
+    String::from_utf8(bytes).map_err(|e| fail(&e))
+}
+
+/// `found` as the plain table `resinlot shipments` prints (issue day only, no supersedes
+/// column), with a count line.
+pub fn table_text(found: &[Certificate]) -> String {
+    let mut rows = vec![COLUMNS[..8]
+        .iter()
+        .map(|s| s.to_string())
+        .collect::<Vec<_>>()];
+    for c in found {
+        let mut r = cells(c).to_vec();
+        r.truncate(8);
+        r[1] = c.issued_at.get(..10).unwrap_or(&c.issued_at).to_string();
+        rows.push(r);
+    }
+    let mut t = crate::support::table::render(&rows);
+    let current = found
+        .iter()
+        .filter(|c| c.status == CertStatus::Current)
+        .count();
+    t.push_str(&format!(
+        "{} certificate{} ({current} current).\n",
+        found.len(),
+        if found.len() == 1 { "" } else { "s" }
+    ));
+    t
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

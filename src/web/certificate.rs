@@ -19,7 +19,10 @@ struct CertificatePage {
     entry: Entry,
     issued_to: String,
     void: bool,
-    lot_link: String,
+    /// Every lot the certificate covers, with its page.
+    lots: Vec<crate::web::pages::Link>,
+    /// Current, superseded or withdrawn (empty for a void number).
+    standing: String,
     pdf_link: String,
     supersedes_link: String,
     superseded_by: Vec<String>,
@@ -44,6 +47,12 @@ pub async fn page(
     pages::blocking(move || {
         let (entry, all) = entry_of(&config, &number)?;
         let void = crate::record::certfiles::is_void(&entry);
+        let cert = crate::record::certlog::all_certificates(&config.register)?
+            .into_iter()
+            .find(|c| c.number == entry.number);
+        let lot_ids = cert
+            .as_ref()
+            .map_or_else(|| vec![entry.lot.clone()], |c| c.lots.clone());
         pages::page(
             "certificate.html",
             &CertificatePage {
@@ -56,7 +65,17 @@ pub async fn page(
                     entry.customer_name.clone()
                 },
                 void,
-                lot_link: format!("/lot/{}", entry.lot),
+                lots: lot_ids
+                    .iter()
+                    .map(|l| crate::web::pages::Link {
+                        href: format!("/lot/{l}"),
+                        text: l.clone(),
+                    })
+                    .collect(),
+                standing: match (&cert, void) {
+                    (Some(c), false) => c.status.as_str().to_string(),
+                    _ => String::new(),
+                },
                 pdf_link: format!("/certificate/{}/pdf", entry.number),
                 supersedes_link: if entry.supersedes.is_empty() {
                     String::new()

@@ -11,7 +11,7 @@ use serde::Serialize;
 use crate::error::{Error, Result};
 
 /// The page templates, by name, as compiled in.
-const TEMPLATES: [(&str, &str); 9] = [
+const TEMPLATES: [(&str, &str); 10] = [
     ("base.html", include_str!("../../templates/web/base.html")),
     (
         "search.html",
@@ -30,6 +30,10 @@ const TEMPLATES: [(&str, &str); 9] = [
     (
         "verify.html",
         include_str!("../../templates/web/verify.html"),
+    ),
+    (
+        "shipments.html",
+        include_str!("../../templates/web/shipments.html"),
     ),
     ("login.html", include_str!("../../templates/web/login.html")),
     ("error.html", include_str!("../../templates/web/error.html")),

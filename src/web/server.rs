@@ -91,6 +91,7 @@ pub fn router(state: Shared) -> Router {
         .route("/lot/{lot}", get(crate::web::lot::page))
         .route("/find", get(crate::web::find::page))
         .route("/product/{code}", get(crate::web::product::page))
+        .route("/shipments", get(crate::web::shipments::page))
         .route("/certificate/{number}", get(crate::web::certificate::page))
         .route(
             "/certificate/{number}/pdf",

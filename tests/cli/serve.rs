@@ -713,3 +713,143 @@ fn the_server_stops_when_its_handle_drops() {
         "still listening on {addr}"
     );
 }
+
+/// Issue #21: `/shipments` lists a customer's certificates as `shipments` does, and its CSV
+/// download is byte for byte `shipments --csv`.
+#[test]
+fn the_shipments_page_lists_deliveries_and_its_csv_equals_shipments_csv() {
+    let s = Server::start(demo(), &[]);
+    let page = s.get("/shipments?customer=brantwick");
+    assert_eq!(page.status, 200);
+    let text = page.text();
+    let cli = String::from_utf8(
+        resinlot(demo(), &["shipments", "--customer", "brantwick", "--json"]).stdout,
+    )
+    .unwrap();
+    let json: serde_json::Value = serde_json::from_str(&cli).unwrap();
+    let listed = json["shipments"].as_array().unwrap();
+    assert!(listed.len() >= 2, "the demo ships Brantwick twice: {cli}");
+    // Newest first, each with its PO, its lots linked, and its standing.
+    let mut at = 0;
+    for c in listed {
+        let number = c["number"].as_str().unwrap();
+        let link = format!("<a href=\"/certificate/{number}\">{number}</a>");
+        let here = text[at..].find(&link).unwrap_or_else(|| panic!("{link}"));
+        at += here + link.len();
+        assert!(text.contains(c["po"].as_str().unwrap()));
+        for lot in c["lots"].as_array().unwrap() {
+            let lot = lot.as_str().unwrap();
+            assert!(text.contains(&format!("<a href=\"/lot/{lot}\">{lot}</a>")));
+        }
+    }
+    assert!(!text.contains("QAS-5530"), "only the customer asked for");
+    let summary = format!("<p id=\"summary\">{} certificates (", listed.len());
+    assert!(text.contains(&summary), "{text}");
+    let csv = s.get("/shipments?customer=brantwick&lot=&po=&since=&until=&format=csv");
+    assert_eq!(csv.status, 200);
+    assert!(csv.header("content-type").unwrap().starts_with("text/csv"));
+    let cli_csv = resinlot(demo(), &["shipments", "--customer", "brantwick", "--csv"]).stdout;
+    assert_eq!(csv.body, cli_csv);
+    // Every filter at once, as the command applies them.
+    let csv = s.get("/shipments?po=KD%2F2026%2F417&since=2020-01-01&until=2099-12-31&format=csv");
+    let cli_csv = resinlot(
+        demo(),
+        &[
+            "shipments",
+            "--po",
+            "KD/2026/417",
+            "--since",
+            "2020-01-01",
+            "--until",
+            "2099-12-31",
+            "--csv",
+        ],
+    )
+    .stdout;
+    assert_eq!(csv.body, cli_csv);
+    assert_eq!(String::from_utf8(cli_csv).unwrap().lines().count(), 2);
+}
+
+#[test]
+fn the_shipments_page_refuses_an_unknown_customer_and_a_backwards_period_issue_21() {
+    let s = Server::start(demo(), &[]);
+    let page = s.get("/shipments?customer=brantwik");
+    assert_eq!(page.status, 400);
+    let text = page.text();
+    assert!(text.contains("customer &#39;brantwik&#39;"), "{text}");
+    assert!(text.contains("Known customers: brantwick"), "{text}");
+    let page = s.get("/shipments?since=2026-12-02&until=2026-01-01");
+    assert_eq!(page.status, 400);
+    assert!(page.text().contains("the period ends before it starts"));
+    let page = s.get("/shipments?since=yesterday");
+    assert_eq!(page.status, 400);
+    assert!(page.text().contains("yesterday"), "{}", page.text());
+}
+
+#[test]
+fn the_shipments_page_says_when_nothing_was_shipped_yet_issue_21() {
+    let ws = tempfile::tempdir().unwrap();
+    let out = resinlot(ws.path(), &["init", "lab"]);
+    assert_eq!(out.status.code(), Some(0), "{out:?}");
+    std::fs::create_dir_all(ws.path().join("lab/register")).unwrap();
+    let s = Server::start(&ws.path().join("lab"), &[]);
+    let page = s.get("/shipments");
+    assert_eq!(page.status, 200);
+    assert!(page
+        .text()
+        .contains("No certificate has been issued to a customer yet."));
+}
+
+/// Issue #21: the search box takes a purchase order: one certificate on it opens that
+/// certificate, and its page names the PO, every lot and its standing.
+#[test]
+fn a_purchase_order_in_the_search_box_leads_to_its_certificate() {
+    let s = Server::start(demo(), &[]);
+    let cli =
+        String::from_utf8(resinlot(demo(), &["shipments", "--po", "BE-PO-88164", "--json"]).stdout)
+            .unwrap();
+    let json: serde_json::Value = serde_json::from_str(&cli).unwrap();
+    let cert = &json["shipments"][0];
+    let number = cert["number"].as_str().unwrap();
+    let page = s.get("/?q=BE-PO-88164");
+    assert_eq!(page.status, 303, "{}", page.text());
+    assert_eq!(
+        page.header("location"),
+        Some(format!("/certificate/{number}").as_str())
+    );
+    let page = s.get(&format!("/certificate/{number}"));
+    let text = page.text();
+    assert!(text.contains("<dd id=\"po\">BE-PO-88164</dd>"), "{text}");
+    assert!(text.contains("<dd id=\"standing\">current</dd>"), "{text}");
+    let lots = cert["lots"].as_array().unwrap();
+    assert!(lots.len() >= 2, "the demo's two-lot delivery: {cli}");
+    assert!(text.contains("<dt>Lots</dt>"));
+    for lot in lots {
+        let lot = lot.as_str().unwrap();
+        assert!(
+            text.contains(&format!("<a href=\"/lot/{lot}\">{lot}</a>")),
+            "{lot}"
+        );
+    }
+    // Each lot's page lists the certificate with its PO and quantity.
+    let lot = lots[0].as_str().unwrap();
+    let text = s.get(&format!("/lot/{lot}")).text();
+    assert!(
+        text.contains(&format!(
+            "<td>BE-PO-88164</td><td>{}</td>",
+            cert["quantity"].as_str().unwrap()
+        )),
+        "{text}"
+    );
+    // A PO that is no lot id (a slash in it) works too.
+    let page = s.get("/?q=KD%2F2026%2F417");
+    assert_eq!(page.status, 303);
+    assert!(page
+        .header("location")
+        .unwrap()
+        .starts_with("/certificate/"));
+    // Nothing of that name: the page says what can be typed.
+    let page = s.get("/?q=NO%2FSUCH%2FPO");
+    assert_eq!(page.status, 404);
+    assert!(page.text().contains("purchase order"));
+}
