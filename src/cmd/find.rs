@@ -490,9 +490,9 @@ fn write_table(
         p.dedup();
         p
     };
-    write!(
+    writeln!(
         out,
-        "{} lot{} of {} match{}.\n",
+        "{} lot{} of {} match{}.",
         hits.len(),
         if hits.len() == 1 { "" } else { "s" },
         if across {
