@@ -60,10 +60,16 @@ pub fn generate(register: &Path, n: usize) -> std::io::Result<()> {
         let mn = 112200.0 / (av + corrected);
         let visc = (-7.38 + 1.80 * mn.ln()).exp() * (1.0 + 0.02 * rng.normal());
         let water = (0.025 + 0.006 * rng.normal()).max(0.001);
+        // Xn and p follow from the values above, so they scatter as real lots do (issue #20;
+        // constant columns made every lot signal). Xn = Mn / M0 with an invented mean
+        // repeat-unit mass M0 = 114.3 g/mol; p = 1 − AV/AV0 (naive extent, `chem::stepgrowth::
+        // naive_extent`) with an invented initial acid value AV0 = 454 mg KOH/g.
+        let xn = mn / 114.3;
+        let p = 1.0 - av / 454.0;
         let made = start + chrono::Days::new((i / 4000) as u64);
         let v = |x: f64| if x > 0.0 { "pass" } else { "fail" };
         let body = format!(
-            "{},2026-11-30T12:00:00Z,B{:07},PD-2000,{made},C,released,Benchmark,,,{av:.2},{},{corrected:.2},{},{visc:.0},pass,{water:.3},pass,{mn},pass,17.5,,0.9989,,{},,{ohv:.1},28.5,",
+            "{},2026-11-30T12:00:00Z,B{:07},PD-2000,{made},C,released,Benchmark,,,{av:.2},{},{corrected:.2},{},{visc:.0},pass,{water:.3},pass,{mn},pass,{xn:.1},,{p:.4},,{},,{ohv:.1},28.5,",
             i + 1,
             i,
             v(1.0 - av),

@@ -2,6 +2,7 @@
 //! or across every product of the register.
 
 use std::collections::HashMap;
+use std::io::Write;
 
 use chrono::NaiveDate;
 use serde_json::{json, Map, Value};
@@ -265,17 +266,21 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             .then(a.from.product.cmp(&b.from.product))
             .then(b.row.line.cmp(&a.row.line))
     });
-    let text = if args.json {
-        json_text(&hits, expired)?
+    // Issue #20: the answer is written as it is made, not gathered first, so memory does
+    // not grow with the number of lots found.
+    let mut out = std::io::BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
+    if args.json {
+        write_json(&mut out, &hits, expired)?;
     } else if args.csv {
-        csv_text(&searched, &hits)?
+        write_csv(&mut out, &searched, &hits)?;
     } else if hits.is_empty() {
-        format!("No lots match.\n{}", expired_text(expired))
+        write!(out, "No lots match.\n{}", expired_text(expired))?;
     } else {
         let across = given.is_none() && args.part_number.is_none();
-        table_text(args, across, &windows, &hits, customer.as_ref()) + &expired_text(expired)
-    };
-    crate::support::output::print(&text)?;
+        write_table(&mut out, args, across, &windows, &hits, customer.as_ref())?;
+        out.write_all(expired_text(expired).as_bytes())?;
+    }
+    out.flush()?;
     Ok(Outcome::AllGood)
 }
 
@@ -352,30 +357,59 @@ fn expired_text(expired: usize) -> String {
     }
 }
 
-fn json_text(hits: &[Hit], expired: usize) -> anyhow::Result<String> {
-    let lots: Vec<Value> = hits
-        .iter()
-        .map(|h| {
-            let r = h.row;
-            let mut m = Map::new();
-            m.insert("lot".into(), json!(r.lot));
-            m.insert("product".into(), json!(h.from.product));
-            m.insert("manufactured".into(), json!(r.manufactured));
-            m.insert("status".into(), json!(r.status));
-            if let Some(c) = h.from.concessions.get(&r.line) {
-                m.insert("concession_customer".into(), json!(c));
-            }
-            for k in &h.from.keys {
-                let v = h.value(k).and_then(|t| t.parse::<f64>().ok());
-                m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
-            }
-            Value::Object(m)
-        })
-        .collect();
-    Ok(serde_json::to_string_pretty(&json!({ "lots": lots, "expired_left_out": expired }))? + "\n")
+/// One found lot as JSON: lot, product, manufactured, status, the concession's customer when
+/// there is one, then every key of its product as reported (null when not recorded).
+fn lot_json(h: &Hit) -> Value {
+    let r = h.row;
+    let mut m = Map::new();
+    m.insert("lot".into(), json!(r.lot));
+    m.insert("product".into(), json!(h.from.product));
+    m.insert("manufactured".into(), json!(r.manufactured));
+    m.insert("status".into(), json!(r.status));
+    if let Some(c) = h.from.concessions.get(&r.line) {
+        m.insert("concession_customer".into(), json!(c));
+    }
+    for k in &h.from.keys {
+        let v = h.value(k).and_then(|t| t.parse::<f64>().ok());
+        m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
+    }
+    Value::Object(m)
 }
 
-fn csv_text(searched: &[Searched], hits: &[Hit]) -> anyhow::Result<String> {
+/// Writes `{"expired_left_out": n, "lots": [...]}` pretty-printed, one lot at a time: the
+/// same text as `serde_json::to_string_pretty` of the whole object (keys in sorted order, two
+/// spaces per level), then a line feed.
+fn write_json(out: &mut impl Write, hits: &[Hit], expired: usize) -> anyhow::Result<()> {
+    write!(out, "{{\n  \"expired_left_out\": {expired},\n  \"lots\": [")?;
+    for (i, h) in hits.iter().enumerate() {
+        out.write_all(if i == 0 { b"\n" } else { b",\n" })?;
+        let text = serde_json::to_string_pretty(&lot_json(h))?;
+        for (j, line) in text.lines().enumerate() {
+            if j > 0 {
+                out.write_all(b"\n")?;
+            }
+            out.write_all(b"    ")?;
+            out.write_all(line.as_bytes())?;
+        }
+    }
+    if !hits.is_empty() {
+        out.write_all(b"\n  ")?;
+    }
+    out.write_all(b"]\n}\n")?;
+    Ok(())
+}
+
+/// A CSV writer's error as an I/O error where it is one (so a closed pipe stays a closed pipe).
+fn csv_error(e: csv::Error) -> anyhow::Error {
+    match e.into_kind() {
+        csv::ErrorKind::Io(io) => io.into(),
+        other => anyhow::anyhow!("writing CSV: {other:?}"),
+    }
+}
+
+/// Writes the hits as CSV: lot, product, manufactured, status, then every product's keys in
+/// the order they first appear (empty where a lot's product lacks the key).
+fn write_csv(out: &mut impl Write, searched: &[Searched], hits: &[Hit]) -> anyhow::Result<()> {
     // Every product's keys, in the order they first appear.
     let mut keys: Vec<&str> = Vec::new();
     for s in searched {
@@ -385,30 +419,36 @@ fn csv_text(searched: &[Searched], hits: &[Hit]) -> anyhow::Result<String> {
             }
         }
     }
-    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut w = csv::Writer::from_writer(out);
     let mut header = vec!["lot", "product", "manufactured", "status"];
     header.extend(keys.iter().copied());
-    w.write_record(&header)?;
+    w.write_record(&header).map_err(csv_error)?;
+    let mut rec: Vec<String> = Vec::new();
     for h in hits {
-        let mut rec = vec![
+        rec.clear();
+        rec.extend([
             h.row.lot.to_string(),
             h.from.product.clone(),
             h.row.manufactured.to_string(),
             h.row.status.to_string(),
-        ];
+        ]);
         rec.extend(keys.iter().map(|k| h.value(k).unwrap_or_default()));
-        w.write_record(&rec)?;
+        w.write_record(&rec).map_err(csv_error)?;
     }
-    Ok(String::from_utf8(w.into_inner()?)?)
+    w.flush()?;
+    Ok(())
 }
 
-fn table_text(
+/// Writes the hits as an aligned table (streamed: [`crate::support::table::write_streamed`])
+/// and the line saying how many lots of which products match.
+fn write_table(
+    out: &mut impl Write,
     args: &Args,
     across: bool,
     windows: &[Window],
     hits: &[Hit],
     customer: Option<&Customer>,
-) -> String {
+) -> anyhow::Result<()> {
     let mut show: Vec<String> = windows.iter().map(|w| w.key.clone()).collect();
     for k in find::HEADLINE_KEYS {
         if hits.iter().any(|h| h.from.keys.iter().any(|x| x == k)) && !show.iter().any(|s| s == k) {
@@ -421,9 +461,12 @@ fn table_text(
     }
     head.extend(["manufactured".to_string(), "status".into()]);
     head.extend(show.iter().cloned());
-    let mut rows = vec![head];
-    for h in hits {
-        let mut line = vec![h.row.lot.to_string()];
+    crate::support::table::write_streamed(out, hits.len() + 1, |i, line| {
+        let Some(h) = i.checked_sub(1).map(|i| &hits[i]) else {
+            line.extend(head.iter().cloned());
+            return;
+        };
+        line.push(h.row.lot.to_string());
         if across {
             line.push(h.from.product.clone());
         }
@@ -440,17 +483,16 @@ fn table_text(
                 v
             });
         }
-        rows.push(line);
-    }
-    let mut t = crate::support::table::render(&rows);
+    })?;
     let products: Vec<&str> = {
         let mut p: Vec<&str> = hits.iter().map(|h| h.from.product.as_str()).collect();
         p.sort();
         p.dedup();
         p
     };
-    t.push_str(&format!(
-        "{} lot{} of {} match{}.\n",
+    writeln!(
+        out,
+        "{} lot{} of {} match{}.",
         hits.len(),
         if hits.len() == 1 { "" } else { "s" },
         if across {
@@ -468,11 +510,11 @@ fn table_text(
                     .unwrap_or_default()
             ))
             .unwrap_or_default()
-    ));
+    )?;
     if !args.full_precision {
-        t.push_str("Values as reported (rounded to the spec's decimals, ASTM E29); --full-precision shows the recorded values.\n");
+        out.write_all("Values as reported (rounded to the spec's decimals, ASTM E29); --full-precision shows the recorded values.\n".as_bytes())?;
     }
-    t
+    Ok(())
 }
 
 /// Shortens a full-precision number for the table (four significant decimals at most).

@@ -31,6 +31,18 @@ pub struct Limits {
 }
 
 impl Limits {
+    /// Whether the baseline shows any spread: MR̄ > 0. With MR̄ = 0 every baseline value is the
+    /// same, σ_within = 0 and the limits collapse onto the centre line, so an individuals chart
+    /// has no limits to judge points by (any later difference, even the last digit of a
+    /// float sum, would read as "beyond 3σ"). Such data show the resolution of the result, not
+    /// the process: Wheeler and Chambers, Understanding Statistical Process Control (2nd ed.,
+    /// 1992), on "chunky data", where too coarse a measurement increment makes the moving
+    /// ranges zero and the limits meaningless (from memory). The limits themselves are
+    /// x̄ ± 3·MR̄/d2 (NIST/SEMATECH e-Handbook §6.3.2.2), which need σ̂ > 0.
+    pub fn has_spread(&self) -> bool {
+        self.mr_bar > 0.0
+    }
+
     /// The value at `k` within-process standard deviations from the centre (k may be negative).
     pub fn at_sigma(&self, k: f64) -> f64 {
         self.mean + k * self.sigma_within
@@ -152,6 +164,16 @@ mod tests {
         assert!(e.contains("at least 2"), "{e}");
         let e = imr_limits(&[1.0, f64::NAN]).unwrap_err().to_string();
         assert!(e.contains("value 2"), "{e}");
+    }
+
+    #[test]
+    fn constant_baseline_has_no_spread() {
+        // First principles: equal values have every moving range 0, so MR̄ = σ = 0 and
+        // UCL = LCL = x̄ (issue #20).
+        let l = imr_limits(&[0.9989; 5]).unwrap();
+        assert_eq!((l.mr_bar, l.sigma_within), (0.0, 0.0));
+        assert!(!l.has_spread());
+        assert!(imr_limits(&[1.0, 1.0, 1.1]).unwrap().has_spread());
     }
 
     #[test]

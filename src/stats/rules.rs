@@ -142,8 +142,14 @@ pub fn nelson_signals(values: &[f64], limits: &Limits, rules: RuleSet) -> Vec<Si
 /// zone line, so every reported point is part of its pattern). Near the start of the series the
 /// windows of rules 5 and 6 hold the points there are. Non-finite values break every run.
 ///
+/// Limits without spread (MR̄ = 0, [`Limits::has_spread`]) give no signals: the rules count
+/// points against σ-wide zones, and with σ = 0 there are none (issue #20).
+///
 /// One pass, O(n), constant state; the only allocation is growth of `out`.
 pub fn nelson_signals_into(values: &[f64], limits: &Limits, rules: RuleSet, out: &mut Vec<Signal>) {
+    if !limits.has_spread() {
+        return;
+    }
     let zones = Zones::of(limits);
     let mut runs = Runs::new();
     for (i, &x) in values.iter().enumerate() {
@@ -335,6 +341,16 @@ mod tests {
             mr_ucl: 3.267 * 1.128,
             mr_lcl: 0.0,
         }
+    }
+
+    #[test]
+    fn limits_without_spread_give_no_signal() {
+        // Issue #20: a constant column (MR̄ = 0) once flagged every lot. The sum behind x̄
+        // rounds, so x̄ differs from the values in the last bit; without the spread check
+        // every point would lie "beyond 3σ".
+        let values = vec![0.9989; 1000];
+        let l = crate::stats::imr_limits(&values).unwrap();
+        assert!(nelson_signals(&values, &l, RuleSet::ALL).is_empty());
     }
 
     fn fired(values: &[f64]) -> BTreeSet<u8> {

@@ -63,6 +63,33 @@ pub fn rule(widths: &[usize]) -> String {
     out
 }
 
+/// Writes the same text as [`render`] without holding the rows: `row(i, cells)` fills row `i`
+/// (0 is the header) of `rows`. Each row is asked for twice, once for the column widths
+/// ([`widen`]) and once to write it ([`line`]), so memory stays flat however many rows there
+/// are (issue #20).
+pub fn write_streamed(
+    out: &mut impl std::io::Write,
+    rows: usize,
+    mut row: impl FnMut(usize, &mut Vec<String>),
+) -> std::io::Result<()> {
+    let mut cells: Vec<String> = Vec::new();
+    let mut widths: Vec<usize> = Vec::new();
+    for n in 0..rows {
+        cells.clear();
+        row(n, &mut cells);
+        widen(&mut widths, &cells);
+    }
+    for n in 0..rows {
+        cells.clear();
+        row(n, &mut cells);
+        out.write_all(line(&cells, &widths).as_bytes())?;
+        if n == 0 && rows > 1 {
+            out.write_all(rule(&widths).as_bytes())?;
+        }
+    }
+    Ok(())
+}
+
 /// Key/value table without a header line.
 pub fn pairs(rows: &[(String, String)]) -> String {
     let w = rows.iter().map(|(k, _)| width(k)).max().unwrap_or(0);
@@ -80,6 +107,33 @@ mod tests {
             vec!["mPa·s".into(), "1".into()],
         ]);
         assert_eq!(t, "unit   x\n--------\nmPa·s  1\n");
+    }
+
+    /// Issue #20: the streamed table is byte for byte the rendered one, ragged rows and
+    /// trailing blanks included.
+    #[test]
+    fn streamed_table_is_the_rendered_one_issue_20() {
+        let rows: Vec<Vec<String>> = [
+            vec!["lot", "x̄", "status"],
+            vec!["A1", "1.5", ""],
+            vec!["B22", "mPa·s", "released (concession)"],
+            vec!["C", "2"],
+        ]
+        .iter()
+        .map(|r| r.iter().map(|c| c.to_string()).collect())
+        .collect();
+        for n in 0..=rows.len() {
+            let mut out = Vec::new();
+            super::write_streamed(&mut out, n, |i, cells| {
+                cells.extend(rows[i].iter().cloned())
+            })
+            .unwrap();
+            assert_eq!(
+                String::from_utf8(out).unwrap(),
+                super::render(&rows[..n]),
+                "{n} rows"
+            );
+        }
     }
 
     /// Issue #12: "x̄" is x plus a combining macron, one column wide on a terminal.

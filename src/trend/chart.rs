@@ -30,7 +30,7 @@ pub struct ChartInput<'a> {
     /// Last manufacture date shown.
     pub date_to: &'a str,
     /// Lot ids in manufacture order, one per value.
-    pub lot_ids: &'a [String],
+    pub lot_ids: &'a [crate::record::query::LotId],
     /// Property values in manufacture order.
     pub values: &'a [f64],
     /// Control limits (from the baseline).
@@ -325,6 +325,13 @@ fn draw(svg: &mut Svg, input: &ChartInput) {
 /// a note saying so).
 fn held_lcl(input: &ChartInput, notes: &mut Vec<String>) -> f64 {
     let l = input.limits;
+    if !l.has_spread() {
+        notes.push(
+            "No spread: every baseline lot has the same value, so there are no control limits."
+                .into(),
+        );
+        return l.lcl;
+    }
     match input.lower_bound {
         Some(b) if l.lcl < b => {
             notes.push(format!(
@@ -461,6 +468,12 @@ fn limit_lines(svg: &mut Svg, input: &ChartInput, ind: &Panel, lcl: f64) {
     let mut labels: Vec<(f64, String, Rgb)> = Vec::new();
     hline(svg, ind, l.mean, CENTRE, 1.2, None, "centre-line");
     labels.push((ind.py(l.mean), format!("CL {}", fmt_value(l.mean)), CENTRE));
+    if !l.has_spread() {
+        // Issue #20: limits that collapse onto the centre line are not drawn.
+        spec_lines(svg, input, ind, &mut labels);
+        right_labels(svg, &mut labels, ind);
+        return;
+    }
     hline(
         svg,
         ind,
@@ -486,13 +499,23 @@ fn limit_lines(svg: &mut Svg, input: &ChartInput, ind: &Panel, lcl: f64) {
         format!("LCL {}", fmt_value(lcl))
     };
     labels.push((ind.py(lcl), lcl_text, CONTROL));
+    spec_lines(svg, input, ind, &mut labels);
+    right_labels(svg, &mut labels, ind);
+}
+
+/// The spec limits as lines, with their labels added to `labels`.
+fn spec_lines(
+    svg: &mut Svg,
+    input: &ChartInput,
+    ind: &Panel,
+    labels: &mut Vec<(f64, String, Rgb)>,
+) {
     for (y, name) in [(input.spec_max, "USL"), (input.spec_min, "LSL")] {
         if let Some(y) = y {
             hline(svg, ind, y, SPEC, 3.0, None, "spec-limit");
             labels.push((ind.py(y), format!("{name} {}", fmt_value(y)), SPEC));
         }
     }
-    right_labels(svg, &mut labels, ind);
 }
 
 /// Labels at the right end of horizontal lines, pushed apart so that none overlaps, kept within
@@ -596,12 +619,14 @@ fn moving_ranges(svg: &mut Svg, input: &ChartInput, mr: &Panel) {
     .map(|(i, r)| (px(i, n), mr.py(r)))
     .collect();
     svg.line(&line, DATA, 1.2, None, "moving-ranges");
+    // Without spread there is no MR limit (issue #20), so no range is beyond it.
+    let beyond_limit = |r: f64| l.has_spread() && r > l.mr_ucl;
     let beyond = crate::stats::moving_ranges(input.values)
-        .filter(|&r| r > l.mr_ucl)
+        .filter(|&r| beyond_limit(r))
         .count();
     for (i, r) in crate::stats::moving_ranges(input.values).enumerate() {
         let (x, y) = (px((i + 1) as f64, n), mr.py(r));
-        if r > l.mr_ucl {
+        if beyond_limit(r) {
             let dot = if beyond > MAX_MARKED_SIGNALS {
                 2.5
             } else {
@@ -619,6 +644,10 @@ fn moving_ranges(svg: &mut Svg, input: &ChartInput, mr: &Panel) {
         format!("MR̄ {}", fmt_value(l.mr_bar)),
         CENTRE,
     ));
+    if !l.has_spread() {
+        right_labels(svg, &mut labels, mr);
+        return;
+    }
     hline(
         svg,
         mr,
@@ -1010,6 +1039,10 @@ mod tests {
     use super::*;
     use crate::stats::{imr_limits, nelson_signals, RuleSet};
 
+    fn lot_ids(ids: &[String]) -> Vec<crate::record::query::LotId> {
+        ids.iter().map(|s| s.as_str().into()).collect()
+    }
+
     /// Invented test fixture: 30 lots of a fictional product with a planted upward shift.
     fn fixture() -> (Vec<String>, Vec<f64>) {
         let ids = (1..=30).map(|i| format!("T26-{i:03}")).collect();
@@ -1035,7 +1068,7 @@ mod tests {
             unit: "g/mol",
             date_from: "2026-01-05",
             date_to: "2026-03-02",
-            lot_ids: &ids,
+            lot_ids: &lot_ids(&ids),
             values: &values,
             limits: &limits,
             spec_min,
@@ -1118,7 +1151,7 @@ mod tests {
             unit: "mg KOH/g",
             date_from: "2025-01-01",
             date_to: "2026-12-01",
-            lot_ids: &ids,
+            lot_ids: &lot_ids(&ids),
             values: &values,
             limits: &limits,
             spec_min: None,
@@ -1157,7 +1190,7 @@ mod tests {
             unit: "mg KOH/g",
             date_from: "2026-01-01",
             date_to: "2026-02-01",
-            lot_ids: &ids,
+            lot_ids: &lot_ids(&ids),
             values: &values,
             limits: &limits,
             spec_min: None,
@@ -1181,7 +1214,7 @@ mod tests {
             unit: "",
             date_from: "",
             date_to: "",
-            lot_ids: &ids,
+            lot_ids: &lot_ids(&ids),
             values: &[1.0, 2.0],
             limits: &limits,
             spec_min: None,
@@ -1318,7 +1351,7 @@ mod tests {
             unit: "mg KOH/g",
             date_from: "2026-01-01",
             date_to: "2026-11-28",
-            lot_ids: &ids,
+            lot_ids: &lot_ids(&ids),
             values: &values,
             limits: &limits,
             spec_min: Some(53.0),
@@ -1357,7 +1390,7 @@ mod tests {
             unit: "%",
             date_from: "2026-01-01",
             date_to: "2026-02-01",
-            lot_ids: &ids,
+            lot_ids: &lot_ids(&ids),
             values: &values,
             limits: &limits,
             spec_min: None,
@@ -1403,7 +1436,7 @@ mod tests {
             unit: "mg KOH/g",
             date_from: "2025-01-01",
             date_to: "2026-12-01",
-            lot_ids: &ids,
+            lot_ids: &lot_ids(&ids),
             values: &values,
             limits: &limits,
             spec_min: None,

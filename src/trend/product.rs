@@ -6,7 +6,7 @@ use serde::Serialize;
 use rust_decimal::Decimal;
 
 use crate::error::{Error, Result};
-use crate::record::query::LotRow;
+use crate::record::query::{LotId, LotRow};
 use crate::spec::keys;
 use crate::spec::{ProductSpec, Property, SpecSet};
 use crate::stats::{self, Capability, Limits, Normality, RuleSet, SpecWindow};
@@ -106,9 +106,9 @@ pub struct PropertyTrend {
     pub normality: Option<Normality>,
     /// Warnings about how far the figures can be trusted.
     pub warnings: Vec<String>,
-    /// Lot ids in order (for charts).
+    /// Lot ids in order (for charts), kept inline (no allocation per lot, issue #20).
     #[serde(skip)]
-    pub lots: Vec<String>,
+    pub lots: Vec<LotId>,
     /// Values in order (for charts).
     #[serde(skip)]
     pub values: Vec<f64>,
@@ -139,7 +139,7 @@ pub fn property_trend(
     let mut values = Vec::new();
     for l in lots {
         if let Some(v) = l.values[column] {
-            ids.push(l.lot.to_string());
+            ids.push(l.lot.clone());
             dates.push(l.manufactured);
             values.push(v);
         }
@@ -175,7 +175,7 @@ pub fn property_trend(
         .iter()
         .map(|s| LotSignal {
             rule: s.rule,
-            lot: ids[s.index].clone(),
+            lot: ids[s.index].to_string(),
             index: s.index,
             manufactured: dates[s.index].to_string(),
             description: s.description,
@@ -191,6 +191,15 @@ pub fn property_trend(
         warnings.push(
             "the values do not look normally distributed (Anderson-Darling p < 0.05): capability indices may mislead".into(),
         );
+    }
+    if !limits.has_spread() {
+        // Issue #20: degenerate limits are stated once instead of flagging every lot.
+        warnings.push(format!(
+            "no spread: all {base_n} baseline lots have the value {}, so the moving range is 0 \
+             and there are no control limits; no run rule is applied. Check the result's \
+             resolution, or whether it is calculated rather than measured",
+            values[0]
+        ));
     }
     if base_n < values.len() {
         warnings.push(format!(

@@ -534,6 +534,14 @@ fn statistics_rows(t: &PropertyTrend) -> Vec<(String, String)> {
             format!("{} {}", fmt_value(x), t.unit)
         }
     };
+    // Without spread (MR̄ = 0) there are no control limits (issue #20).
+    let limit = |x: f64| {
+        if l.has_spread() {
+            with_unit(x)
+        } else {
+            "none (no spread)".to_string()
+        }
+    };
     let mut rows = vec![
         ("Centre line x̄".to_string(), with_unit(l.mean)),
         ("Mean moving range MR̄".to_string(), with_unit(l.mr_bar)),
@@ -541,9 +549,9 @@ fn statistics_rows(t: &PropertyTrend) -> Vec<(String, String)> {
             "σ within (MR̄ / 1.128)".to_string(),
             with_unit(l.sigma_within),
         ),
-        ("UCL (x̄ + 3σ)".to_string(), with_unit(l.ucl)),
-        ("LCL (x̄ − 3σ)".to_string(), with_unit(l.lcl)),
-        ("MR chart UCL (3.267 · MR̄)".to_string(), with_unit(l.mr_ucl)),
+        ("UCL (x̄ + 3σ)".to_string(), limit(l.ucl)),
+        ("LCL (x̄ − 3σ)".to_string(), limit(l.lcl)),
+        ("MR chart UCL (3.267 · MR̄)".to_string(), limit(l.mr_ucl)),
         (
             "Lots for the limits".to_string(),
             format!("{} of {}", t.baseline_n, t.n),
@@ -557,7 +565,9 @@ fn statistics_rows(t: &PropertyTrend) -> Vec<(String, String)> {
             t.spec_revision.clone().unwrap_or_else(|| "–".to_string()),
         ),
     ];
-    if let Some(b) = chart::natural_lower_bound(&t.property, &t.unit).filter(|b| l.lcl < *b) {
+    if let Some(b) =
+        chart::natural_lower_bound(&t.property, &t.unit).filter(|b| l.has_spread() && l.lcl < *b)
+    {
         rows.insert(
             5,
             (
@@ -836,7 +846,7 @@ fn signal_lines(face: &Face, t: &PropertyTrend, marked: &[MarkedLot], width: f32
         .map(|m| ListItem {
             number: m.number,
             colour: OUT,
-            lot: t.lots[m.index].clone(),
+            lot: t.lots[m.index].to_string(),
             made: made(m.index),
             value: Some(fmt_value(t.values[m.index])),
         })

@@ -8,8 +8,12 @@ use crate::spec::keys;
 use crate::trend::product::{PropertyTrend, ViscosityCheck};
 
 /// The JSON of one property's trend (the documented keys, and more).
+///
+/// Without spread (MR̄ = 0, issue #20) `ucl`, `lcl` and `mr_ucl` are null: there are no
+/// control limits, and a warning says why.
 pub fn trend_json(t: &PropertyTrend) -> Value {
     let cap = t.capability.as_ref();
+    let limit = |x: f64| t.limits.has_spread().then_some(x);
     json!({
         "product": t.product,
         "property": t.property,
@@ -22,9 +26,9 @@ pub fn trend_json(t: &PropertyTrend) -> Value {
         "mean": t.limits.mean,
         "mr_bar": t.limits.mr_bar,
         "sigma_within": t.limits.sigma_within,
-        "ucl": t.limits.ucl,
-        "lcl": t.limits.lcl,
-        "mr_ucl": t.limits.mr_ucl,
+        "ucl": limit(t.limits.ucl),
+        "lcl": limit(t.limits.lcl),
+        "mr_ucl": limit(t.limits.mr_ucl),
         "signals": t.signals,
         "spec_min": t.spec_min,
         "spec_max": t.spec_max,
@@ -209,11 +213,19 @@ pub fn detail_pairs(t: &PropertyTrend) -> Vec<(String, String)> {
         ("Centre line x̄".to_string(), num(l.mean)),
         (
             "UCL / LCL".to_string(),
-            format!("{} / {}", num(l.ucl), num(l.lcl)),
+            if l.has_spread() {
+                format!("{} / {}", num(l.ucl), num(l.lcl))
+            } else {
+                "none (no spread)".into()
+            },
         ),
         (
             "MR̄ / MR UCL".to_string(),
-            format!("{} / {}", num(l.mr_bar), num(l.mr_ucl)),
+            if l.has_spread() {
+                format!("{} / {}", num(l.mr_bar), num(l.mr_ucl))
+            } else {
+                format!("{} / none", num(l.mr_bar))
+            },
         ),
         ("σ_within = MR̄/1.128".to_string(), num(l.sigma_within)),
         (

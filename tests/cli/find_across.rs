@@ -188,3 +188,49 @@ fn find_across_products_refuses_a_property_none_records_issue_16() {
         .code(2)
         .stderr(predicate::str::contains("TP-2000 has no property 'colour'"));
 }
+
+/// Issue #20: find writes its answer as it makes it. The streamed JSON is the same text as the
+/// whole document pretty-printed at once, and the streamed CSV and table hold every lot.
+#[test]
+fn find_streams_the_same_json_csv_and_table_issue_20() {
+    let w = with_water();
+    for args in [
+        vec!["find", "TP-2000", "--json"],
+        vec!["find", "TP-2000", "--where", "water=5..9", "--json"],
+    ] {
+        let out = w.cmd().args(&args).output().unwrap();
+        assert_eq!(out.status.code(), Some(0), "{args:?}");
+        let text = String::from_utf8(out.stdout).unwrap();
+        let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+        assert_eq!(
+            text,
+            serde_json::to_string_pretty(&v).unwrap() + "\n",
+            "{args:?}"
+        );
+    }
+    let out = w.cmd().args(["find", "TP-2000", "--csv"]).output().unwrap();
+    let text = String::from_utf8(out.stdout).unwrap();
+    let lines: Vec<&str> = text.lines().collect();
+    assert!(
+        lines[0].starts_with("lot,product,manufactured,status,"),
+        "{text}"
+    );
+    assert!(
+        lines[1].starts_with("T26-702,TP-2000,2026-05-21,released,"),
+        "{text}"
+    );
+    assert!(
+        lines[2].starts_with("T26-701,TP-2000,2026-05-20,released,"),
+        "{text}"
+    );
+    let out = w.cmd().args(["find", "TP-2000"]).output().unwrap();
+    let text = String::from_utf8(out.stdout).unwrap();
+    let lines: Vec<&str> = text.lines().collect();
+    // Header, underline as wide as the columns, then newest first, aligned.
+    assert!(lines[0].starts_with("lot "), "{text}");
+    assert!(lines[1].chars().all(|c| c == '-'), "{text}");
+    let at = |l: &str| l.find("2026-").unwrap();
+    assert_eq!(at(lines[2]), at(lines[3]), "{text}");
+    assert!(lines[2].starts_with("T26-702"), "{text}");
+    assert!(text.contains("lots of TP-2000 match."), "{text}");
+}

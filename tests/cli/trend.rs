@@ -234,3 +234,69 @@ fn baseline_of_fewer_than_two_lots_is_refused() {
         .code(2)
         .stderr(predicate::str::contains("at least 2 lots"));
 }
+
+/// Issue #20: a property every lot records with the same value has no spread (MR̄ = 0). Its
+/// limits would collapse onto the centre line and every lot signalled; now there are no
+/// limits, no signals and one warning, and the exit code says nothing fell short.
+#[test]
+fn a_property_without_spread_has_no_limits_and_no_signals_issue_20() {
+    let w = Workspace::new();
+    let mut csv = String::from("lot,product,manufactured,acid_value,hydroxyl_value,viscosity\n");
+    let ohv = [
+        55.1, 55.6, 55.3, 55.9, 55.4, 55.2, 55.8, 55.5, 55.0, 55.7, 55.3, 55.6,
+    ];
+    for (i, o) in ohv.iter().enumerate() {
+        csv.push_str(&format!(
+            "T28-{i:03},TP-2000,2026-07-{:02},0.45,{o},{}\n",
+            i + 1,
+            520 + 3 * i
+        ));
+    }
+    w.write("lots.csv", &csv);
+    w.release("lots.csv")
+        .arg("--no-certificates")
+        .assert()
+        .code(0);
+    let out = w
+        .cmd()
+        .args(["trend", "TP-2000", "--property", "acid_value", "--json"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0), "{out:?}");
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["mr_bar"], 0.0);
+    assert!(
+        v["ucl"].is_null() && v["lcl"].is_null() && v["mr_ucl"].is_null(),
+        "{v}"
+    );
+    assert_eq!(v["signals"].as_array().unwrap().len(), 0);
+    let warnings = v["warnings"].to_string();
+    assert!(
+        warnings.contains("no spread: all 12 baseline lots have the value 0.45"),
+        "{warnings}"
+    );
+    // The text detail says the same, and the chart draws no control limit.
+    w.cmd()
+        .args(["trend", "TP-2000", "--property", "acid_value"])
+        .assert()
+        .code(0)
+        .stdout(predicate::str::contains("UCL / LCL"))
+        .stdout(predicate::str::contains("none (no spread)"))
+        .stdout(predicate::str::contains("No run-rule signals"));
+    w.cmd()
+        .args(["trend", "TP-2000", "--property", "acid_value", "--chart"])
+        .arg(w.path("av.svg"))
+        .assert()
+        .code(0);
+    let svg = std::fs::read_to_string(w.path("av.svg")).unwrap();
+    assert!(!svg.contains("control-limit"), "no limit line expected");
+    assert!(svg.contains("No spread"), "the chart says why");
+    // A property with spread beside it still gets its limits.
+    let out = w
+        .cmd()
+        .args(["trend", "TP-2000", "--property", "hydroxyl_value", "--json"])
+        .output()
+        .unwrap();
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert!(v["ucl"].as_f64().is_some(), "{v}");
+}
