@@ -27,7 +27,7 @@ pub fn render(rows: &[Vec<String>]) -> String {
 }
 
 /// Grows `widths` (one per column) to fit `row`: a table written a row at a time measures
-/// every row with this first, then writes each with [`line`] (as [`render`] does).
+/// every row with this first, then writes each with [`line()`] (as [`render`] does).
 pub fn widen(widths: &mut Vec<usize>, row: &[String]) {
     if widths.len() < row.len() {
         widths.resize(row.len(), 0);
@@ -65,7 +65,7 @@ pub fn rule(widths: &[usize]) -> String {
 
 /// Writes the same text as [`render`] without holding the rows: `row(i, cells)` fills row `i`
 /// (0 is the header) of `rows`. Each row is asked for twice, once for the column widths
-/// ([`widen`]) and once to write it ([`line`]), so memory stays flat however many rows there
+/// ([`widen`]) and once to write it ([`line()`]), so memory stays flat however many rows there
 /// are (issue #20).
 pub fn write_streamed(
     out: &mut impl std::io::Write,
