@@ -5,6 +5,7 @@ use serde_json::{json, Value};
 use crate::cmd::args::{check_lot_id, RegisterFolder, SpecsFolder};
 use crate::cmd::Outcome;
 use crate::error::Error;
+use crate::record::answer::reported;
 use crate::record::certlog::{Entry, Standing};
 use crate::record::trend_file::{Row, Trend};
 
@@ -190,23 +191,6 @@ fn as_json(t: &Trend, rows: &[&Row], certs: &[Cert]) -> Value {
     v
 }
 
-/// A recorded cell as reported: rounded to the property's decimals under the spec's rounding,
-/// or as it stands when the spec does not know the key or the cell is no number.
-fn reported(spec: Option<&ProductSpec>, key: &str, cell: &str) -> String {
-    use crate::spec::decision::RecordedResult;
-    if let Some(RecordedResult::Below(l)) = RecordedResult::parse(cell) {
-        let decimals = spec.and_then(|s| s.property(key)).map_or(0, |p| p.decimals);
-        return crate::spec::decision::censored_text(l, decimals);
-    }
-    let (Some(s), Some(d)) = (spec, crate::spec::decision::recorded_decimal(cell)) else {
-        return cell.to_string();
-    };
-    match s.property(key) {
-        Some(p) => crate::spec::decision::round(d, p.decimals, s.rounding).to_string(),
-        None => cell.to_string(),
-    }
-}
-
 fn render(
     t: &Trend,
     rows: &[&Row],
@@ -222,7 +206,10 @@ fn render(
         c("product"),
         spec.map(|s| format!(" {}", s.name)).unwrap_or_default()
     );
-    out.push_str(&facts_text(&c, shelf));
+    out.push_str(&crate::support::table::pairs(
+        &crate::record::answer::facts(&c, shelf),
+    ));
+    out.push('\n');
     out.push_str(&property_table(t, spec, &c));
     out.push_str(&limits_source(spec, &c));
     out.push_str(&derived_text(spec, &c));
@@ -233,86 +220,6 @@ fn render(
     out.push_str(&dispositions_text(t, rows));
     out.push_str(&history_text(t, rows, spec));
     out
-}
-
-/// The lot's status, dates and retest date (with `shelf` = (retest date, today): expired
-/// since the retest date once it has passed), as label-value pairs.
-fn facts_text<'a>(
-    c: &dyn Fn(&str) -> &'a str,
-    shelf: Option<(chrono::NaiveDate, chrono::NaiveDate)>,
-) -> String {
-    let concession = if c("disposition") == "concession" {
-        format!(
-            ", under concession {} for customer '{}' only",
-            c("concession_ref"),
-            c("concession_customer")
-        )
-    } else {
-        String::new()
-    };
-    let mut facts = vec![
-        (
-            "Status".to_string(),
-            format!(
-                "{} (spec revision {}){concession}",
-                c("status").replace('_', " "),
-                c("spec_revision")
-            ),
-        ),
-        ("Manufactured".to_string(), c("manufactured").to_string()),
-        (
-            "Decided".to_string(),
-            format!(
-                "{} by {}",
-                Some(c("decided_at"))
-                    .filter(|d| !d.is_empty())
-                    .unwrap_or(c("recorded_at")),
-                c("approver")
-            ),
-        ),
-    ];
-    facts.extend(audit_facts(c));
-    if let Some((r, today)) = shelf {
-        let text = if crate::lot::disposition::expired(r, today) {
-            format!("{r}: expired since {r}; retest before use (`release --retest`)")
-        } else {
-            r.to_string()
-        };
-        facts.push(("Retest date".into(), text));
-    }
-    let mut out = crate::support::table::pairs(&facts);
-    out.push('\n');
-    out
-}
-
-/// Who tested and when, and who recorded the row when (issue #15); nothing for a row written
-/// before these were kept.
-fn audit_facts<'a>(c: &dyn Fn(&str) -> &'a str) -> Vec<(String, String)> {
-    let mut facts = Vec::new();
-    let (from, to) = (c("tested_from"), c("tested_to"));
-    if !from.is_empty() {
-        let dates = if from == to {
-            from.to_string()
-        } else {
-            format!("{from} to {to}")
-        };
-        let analysts = c("analysts").replace(';', ", ");
-        facts.push((
-            "Tested".to_string(),
-            if analysts.is_empty() {
-                format!("{dates} (analyst not named in the results file)")
-            } else {
-                format!("{dates} by {analysts}")
-            },
-        ));
-    }
-    if !c("recorded_by").is_empty() {
-        facts.push((
-            "Recorded".to_string(),
-            format!("{} by login {}", c("recorded_at"), c("recorded_by")),
-        ));
-    }
-    facts
 }
 
 /// Which limits the table shows (issue #15): the spec revision the lot was decided on, when

@@ -174,6 +174,11 @@ pub struct LotAnswer {
 /// A recorded cell as reported: rounded to the property's decimals under the spec's rounding,
 /// or as it stands when the spec does not know the key or the cell is no number.
 pub fn reported(spec: Option<&ProductSpec>, key: &str, cell: &str) -> String {
+    use crate::spec::decision::RecordedResult;
+    if let Some(RecordedResult::Below(l)) = RecordedResult::parse(cell) {
+        let decimals = spec.and_then(|s| s.property(key)).map_or(0, |p| p.decimals);
+        return crate::spec::decision::censored_text(l, decimals);
+    }
     let (Some(s), Some(d)) = (spec, crate::spec::decision::recorded_decimal(cell)) else {
         return cell.to_string();
     };
@@ -214,9 +219,10 @@ pub fn answer(rec: &LotRecord, spec: Option<&ProductSpec>, today: NaiveDate) -> 
     }
 }
 
-/// The lot's status, dates and retest date (with `shelf` = (retest date, today): expired
-/// since the retest date once it has passed), as label-value pairs.
-fn facts<'a>(
+/// The lot's status, dates, who tested and recorded it (issue #15) and retest date (with
+/// `shelf` = (retest date, today): expired since the retest date once it has passed), as
+/// label-value pairs: `lookup`'s facts and the web lot page's.
+pub fn facts<'a>(
     c: &dyn Fn(&str) -> &'a str,
     shelf: Option<(NaiveDate, NaiveDate)>,
 ) -> Vec<(String, String)> {
@@ -241,9 +247,16 @@ fn facts<'a>(
         ("Manufactured".to_string(), c("manufactured").to_string()),
         (
             "Decided".to_string(),
-            format!("{} by {}", c("recorded_at"), c("approver")),
+            format!(
+                "{} by {}",
+                Some(c("decided_at"))
+                    .filter(|d| !d.is_empty())
+                    .unwrap_or(c("recorded_at")),
+                c("approver")
+            ),
         ),
     ];
+    facts.extend(audit_facts(c));
     if let Some((r, today)) = shelf {
         let text = if crate::lot::disposition::expired(r, today) {
             format!("{r}: expired since {r}; retest before use (`release --retest`)")
@@ -251,6 +264,36 @@ fn facts<'a>(
             r.to_string()
         };
         facts.push(("Retest date".into(), text));
+    }
+    facts
+}
+
+/// Who tested and when, and who recorded the row when (issue #15); nothing for a row written
+/// before these were kept.
+fn audit_facts<'a>(c: &dyn Fn(&str) -> &'a str) -> Vec<(String, String)> {
+    let mut facts = Vec::new();
+    let (from, to) = (c("tested_from"), c("tested_to"));
+    if !from.is_empty() {
+        let dates = if from == to {
+            from.to_string()
+        } else {
+            format!("{from} to {to}")
+        };
+        let analysts = c("analysts").replace(';', ", ");
+        facts.push((
+            "Tested".to_string(),
+            if analysts.is_empty() {
+                format!("{dates} (analyst not named in the results file)")
+            } else {
+                format!("{dates} by {analysts}")
+            },
+        ));
+    }
+    if !c("recorded_by").is_empty() {
+        facts.push((
+            "Recorded".to_string(),
+            format!("{} by login {}", c("recorded_at"), c("recorded_by")),
+        ));
     }
     facts
 }
@@ -551,45 +594,6 @@ fn non_empty(s: &str) -> Value {
     } else {
         json!(s)
     }
-}
-
-/// The JSON answer of `lookup --json`: the current row's fields at the top level (values at full
-/// precision), older rows under `history`, the retest date under `spec` and whether it has
-/// passed on `today`.
-pub fn as_json(rec: &LotRecord, spec: Option<&ProductSpec>, today: NaiveDate) -> Value {
-    let t = &rec.trend;
-    let rows = rec.rows_newest_first();
-    let cur = rows[0];
-    let mut v = row_json(t, cur);
-    let obj = v.as_object_mut().expect("object");
-    obj.insert("lot".into(), json!(t.cell(cur, "lot")));
-    obj.insert("product".into(), json!(t.cell(cur, "product")));
-    obj.insert("manufactured".into(), json!(t.cell(cur, "manufactured")));
-    obj.insert(
-        "mn_uncertainty".into(),
-        t.cell(cur, "mn_uncertainty")
-            .parse::<f64>()
-            .map_or(Value::Null, |x| json!(x)),
-    );
-    obj.insert(
-        "certificates".into(),
-        json!(rec
-            .certificates
-            .iter()
-            .map(|(c, st)| json!({"number": c.number, "customer": c.customer_name, "issued_at": c.issued_at, "file": c.file, "standing": st}))
-            .collect::<Vec<_>>()),
-    );
-    obj.insert(
-        "history".into(),
-        json!(rows[1..].iter().map(|r| row_json(t, r)).collect::<Vec<_>>()),
-    );
-    let shelf = rec.retest_date(spec);
-    obj.insert("retest_date".into(), json!(shelf.map(|d| d.to_string())));
-    obj.insert(
-        "expired".into(),
-        json!(shelf.map(|d| crate::lot::disposition::expired(d, today))),
-    );
-    v
 }
 
 #[cfg(test)]
