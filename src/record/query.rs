@@ -402,6 +402,33 @@ fn intern(table: &mut Vec<&'static str>, text: &[u8]) -> &'static str {
 /// never matters for the ids, dates and numbers read here).
 pub(crate) fn split_spans(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
     out.clear();
+    // Fields here are short (ids, dates, numbers): a plain byte loop beats a vector search
+    // per field. A quote anywhere before the last field needed hands the line to the
+    // quote-aware split below (issue #20).
+    let mut start = 0;
+    let mut plain = true;
+    for (i, &b) in line.iter().enumerate() {
+        if b == b',' {
+            out.push((start, i));
+            if out.len() > upto {
+                return;
+            }
+            start = i + 1;
+        } else if b == b'"' {
+            plain = false;
+            break;
+        }
+    }
+    if plain {
+        out.push((start, line.len()));
+        return;
+    }
+    split_spans_quoted(line, upto, out);
+}
+
+/// [`split_spans`] for a line with quotes.
+fn split_spans_quoted(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
+    out.clear();
     let mut start = 0;
     let mut quoted_from: Option<usize> = None; // inside a quoted field opened here
     let mut quote_end = 0;
@@ -746,14 +773,62 @@ impl PartRows {
     }
 }
 
-/// A recorded cell as a number (None when empty or not a number).
+/// A recorded cell as a number (None when empty or not a number): [`exact_decimal`] for the
+/// plain decimals resinlot writes, the standard library's parser for anything else.
 fn number(s: &[u8]) -> Option<f64> {
     if s.is_empty() {
         return None;
     }
-    std::str::from_utf8(s)
-        .ok()
-        .and_then(|t| t.parse::<f64>().ok())
+    exact_decimal(s).or_else(|| {
+        std::str::from_utf8(s)
+            .ok()
+            .and_then(|t| t.parse::<f64>().ok())
+    })
+}
+
+/// Powers of ten that are exact in binary64 (10^0 to 10^22).
+const EXACT_POW10: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+
+/// A plain decimal `[-]digits[.digits]` of at most 15 significant digits, read exactly as the
+/// standard library reads it but without its general machinery (issue #20); None for any
+/// other form, which the caller hands to the standard parser.
+///
+/// Clinger's fast path: with the digits read as an integer m < 10^15 < 2^53 and k ≤ 22 digits
+/// after the point, both m and 10^k are exact doubles, and one IEEE 754 division rounds
+/// m / 10^k correctly, which is the correctly rounded value of the decimal text. Source:
+/// W. D. Clinger, "How to read floating point numbers accurately", PLDI 1990, §4.
+pub(crate) fn exact_decimal(s: &[u8]) -> Option<f64> {
+    let (negative, body) = match s.first()? {
+        b'-' => (true, &s[1..]),
+        _ => (false, s),
+    };
+    let mut mantissa: u64 = 0;
+    let mut digits = 0u32;
+    let mut point: Option<usize> = None;
+    for (i, &b) in body.iter().enumerate() {
+        match b {
+            b'0'..=b'9' => {
+                digits += 1;
+                if digits > 15 {
+                    return None;
+                }
+                mantissa = mantissa * 10 + u64::from(b - b'0');
+            }
+            b'.' if point.is_none() && i > 0 => point = Some(i),
+            _ => return None,
+        }
+    }
+    let after = match point {
+        Some(p) if p + 1 == body.len() => return None, // "5." goes to the standard parser
+        Some(p) => body.len() - p - 1,
+        None if digits == 0 => return None,
+        None => 0,
+    };
+    let v = mantissa as f64 / EXACT_POW10[after];
+    Some(if negative { -v } else { v })
 }
 
 /// The latest row of every lot over the scanned parts, in file order: the (hash, row) pairs
@@ -936,6 +1011,89 @@ pub fn trend_keys(path: &Path) -> Result<Vec<String>> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue #20: the fast decimal reader gives the standard library's value bit for bit
+    /// (the reference: Rust's `f64::from_str`, correctly rounded) on every form it accepts,
+    /// and declines the forms it does not handle.
+    #[test]
+    fn exact_decimal_matches_the_standard_parser() {
+        let mut state = 0x2545_f491_4f6c_dd1du64;
+        let mut next = || {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            state
+        };
+        for _ in 0..200_000 {
+            let r = next();
+            let int_digits = 1 + (r % 9) as usize;
+            let frac_digits = ((r >> 8) % 8) as usize;
+            let mut t = String::new();
+            if r >> 20 & 1 == 1 {
+                t.push('-');
+            }
+            for k in 0..int_digits {
+                t.push(char::from(b'0' + ((r >> (24 + 3 * k)) % 10) as u8));
+            }
+            if frac_digits > 0 {
+                t.push('.');
+                for _ in 0..frac_digits {
+                    t.push(char::from(b'0' + (next() % 10) as u8));
+                }
+            }
+            let want: f64 = t.parse().unwrap();
+            let got = exact_decimal(t.as_bytes());
+            if int_digits + frac_digits <= 15 {
+                assert_eq!(got.map(f64::to_bits), Some(want.to_bits()), "{t}");
+            }
+            assert_eq!(
+                number(t.as_bytes()).map(f64::to_bits),
+                Some(want.to_bits()),
+                "{t}"
+            );
+        }
+        for declined in [
+            "",
+            "-",
+            ".5",
+            "5.",
+            "1e3",
+            "+1",
+            "1.2.3",
+            "0x10",
+            "1234567890123456",
+        ] {
+            assert_eq!(exact_decimal(declined.as_bytes()), None, "{declined}");
+        }
+        assert_eq!(number(b"5."), Some(5.0));
+        assert_eq!(number(b"1e3"), Some(1000.0));
+        assert_eq!(number(b"<0.05"), None);
+        assert_eq!(
+            exact_decimal(b"-0").map(f64::to_bits),
+            Some((-0.0f64).to_bits())
+        );
+    }
+
+    /// Issue #20: the plain byte split and the quote-aware split agree on lines without quotes,
+    /// and a quote anywhere sends the line to the quote-aware one.
+    #[test]
+    fn plain_split_agrees_with_the_quoted_split() {
+        for line in [
+            &b"a,b,,c"[..],
+            b"",
+            b",",
+            b"1,2,3,4,5,6",
+            b"x,\"y,z\",w",
+            b"x,y,\"z\"\"q\",w",
+        ] {
+            for upto in 0..6 {
+                let (mut a, mut b) = (Vec::new(), Vec::new());
+                split_spans(line, upto, &mut a);
+                split_spans_quoted(line, upto, &mut b);
+                assert_eq!(a, b, "{:?} upto {upto}", String::from_utf8_lossy(line));
+            }
+        }
+    }
 
     /// Writes a trend file at `p` with the columns `keys` holding `rows`, through the lock and
     /// append of `record::trend_file` (test fixture: invented lots and values).
