@@ -127,8 +127,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         }
     }
     let columns = product::columns_for(&keys, args.property.as_deref());
-    let (_, lots) = crate::record::query::current_lots(&path, &columns, false)?;
-    let lots = product::select(lots, &sel);
+    let (_, lots) = crate::record::query::current_table(&path, &columns, false)?;
+    let lots = std::sync::Arc::new(product::select(lots, &sel));
     if lots.is_empty() {
         return Err(Error::invalid(
             format!("product '{}'", args.product.code()),
@@ -142,7 +142,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let censored: Vec<(String, usize)> = if censorable.is_empty() {
         Vec::new()
     } else {
-        let lines: Vec<usize> = lots.iter().map(|l| l.line).collect();
+        let lines: Vec<usize> = (0..lots.len()).map(|i| lots.line(i)).collect();
         let counts = crate::record::query::censored_counts(&path, &censorable, &lines)?;
         censorable.into_iter().zip(counts).collect()
     };
