@@ -527,6 +527,15 @@ pub struct Life {
     pub concession: &'static str,
 }
 
+/// [`current_table`] with each kept lot's [`Life`] ([`LotTable::lives`]).
+pub fn current_table_with_life(
+    path: &Path,
+    keys: &[String],
+    with_mn_uncertainty: bool,
+) -> Result<(Vec<String>, LotTable)> {
+    current_lots_in(path, keys, with_mn_uncertainty, true, None)
+}
+
 /// [`current_lots`] with each kept lot's [`Life`] (parallel to the lots).
 pub fn current_lots_with_life(
     path: &Path,
@@ -1207,6 +1216,35 @@ impl LotTable {
             mn_uncertainty: self.mn_uncertainty(i),
             values: (0..self.keys).map(|k| self.value(i, k)).collect(),
         }
+    }
+
+    /// Puts lot `i` into `row`, reusing its allocation (for a pass over every lot).
+    pub fn row_into(&self, i: usize, row: &mut LotRow) {
+        row.line = self.line(i);
+        row.lot = LotId::from(self.lot(i));
+        row.manufactured = self.made[i];
+        row.status = self.status(i);
+        row.revision = self.revision(i);
+        row.mn_uncertainty = self.mn_uncertainty(i);
+        row.values.clear();
+        row.values.extend((0..self.keys).map(|k| self.value(i, k)));
+    }
+
+    /// The distinct spec revisions of the lots.
+    pub fn revisions(&self) -> Vec<&'static str> {
+        let mut seen = [false; 256];
+        for &r in &self.revision {
+            seen[r as usize] = true;
+        }
+        (0..256)
+            .filter(|&r| seen[r])
+            .map(|r| self.labels.get(r).copied().unwrap_or("?"))
+            .collect()
+    }
+
+    /// The lives of the lots (parallel to them) when they were loaded; empty otherwise.
+    pub fn lives(&self) -> &[Life] {
+        &self.lives
     }
 
     /// Every lot as a row, in table order.
