@@ -389,26 +389,37 @@ pub struct TrendRequest<'a> {
 /// The trend of the one property asked for, or of every column; in the overview a property
 /// with too few values is skipped, not fatal. Errors when no trend remains.
 pub fn property_trends(req: &TrendRequest) -> Result<Vec<PropertyTrend>> {
+    use rayon::prelude::*;
+    let wanted: Vec<(usize, &String)> = req
+        .columns
+        .iter()
+        .enumerate()
+        .filter(|(_, key)| req.property.is_none_or(|p| p == *key))
+        .collect();
+    // The properties are independent: one per core at a time (issue #20), kept in column order.
+    let results: Vec<Result<PropertyTrend>> = wanted
+        .par_iter()
+        .map(|&(col, key)| {
+            let p = req.spec.and_then(|s| s.property(key));
+            let label = p.map_or(key.as_str(), |p| p.label.as_str());
+            let unit = p.map_or("", |p| if p.unit == "1" { "" } else { p.unit.as_str() });
+            property_trend(
+                req.product,
+                key,
+                col,
+                label,
+                unit,
+                req.lots,
+                spec_window(p),
+                req.spec.map(|s| s.revision.clone()),
+                req.baseline,
+                req.rules,
+            )
+        })
+        .collect();
     let mut trends = Vec::new();
-    for (col, key) in req.columns.iter().enumerate() {
-        if req.property.is_some_and(|p| p != key) {
-            continue;
-        }
-        let p = req.spec.and_then(|s| s.property(key));
-        let label = p.map_or(key.as_str(), |p| p.label.as_str());
-        let unit = p.map_or("", |p| if p.unit == "1" { "" } else { p.unit.as_str() });
-        match property_trend(
-            req.product,
-            key,
-            col,
-            label,
-            unit,
-            req.lots,
-            spec_window(p),
-            req.spec.map(|s| s.revision.clone()),
-            req.baseline,
-            req.rules,
-        ) {
+    for r in results {
+        match r {
             Ok(t) => trends.push(t),
             Err(_) if req.property.is_none() => {}
             Err(e) => return Err(e),
