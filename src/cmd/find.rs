@@ -122,8 +122,8 @@ impl Hit<'_> {
             self.from
                 .precision
                 .as_ref()
-                .and_then(|p| p.reported(row, i))
-                .map_or_else(|| v.to_string(), |d| d.to_string()),
+                .and_then(|p| p.reported_text(row, i))
+                .unwrap_or_else(|| v.to_string()),
         )
     }
 }

@@ -110,6 +110,12 @@ impl Precision {
         let (d, m) = self.of(row, i)?;
         round_recorded(row.values[i]?, d, m)
     }
+
+    /// [`Precision::reported`] as the text `find` prints.
+    pub fn reported_text(&self, row: &LotRow, i: usize) -> Option<String> {
+        let (d, m) = self.of(row, i)?;
+        crate::spec::decision::round_recorded_text(row.values[i]?, d, m)
+    }
 }
 
 /// Shelf life and concessions in a search (issue #14).
@@ -381,8 +387,8 @@ impl Found {
         Some(
             self.precision
                 .as_ref()
-                .and_then(|p| p.reported(row, i))
-                .map_or_else(|| v.to_string(), |d| d.to_string()),
+                .and_then(|p| p.reported_text(row, i))
+                .unwrap_or_else(|| v.to_string()),
         )
     }
 

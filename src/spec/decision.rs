@@ -245,6 +245,47 @@ pub fn round_recorded(value: f64, decimals: u32, method: Rounding) -> Option<Dec
     Some(round(decimal_from_f64(value)?, decimals, method))
 }
 
+/// [`round_recorded`] as text (what `find` prints): in the fast path the rounded integer is
+/// written with its decimal point directly, the same characters as the decimal's own display
+/// (`decimals` places, a minus sign only below zero), without building the decimal (issue #20).
+pub fn round_recorded_text(value: f64, decimals: u32, method: Rounding) -> Option<String> {
+    if value.is_finite() && decimals <= 9 {
+        let scaled = value * 10f64.powi(decimals as i32);
+        let frac = (scaled.abs() - scaled.abs().trunc() - 0.5).abs();
+        if scaled.abs() < 1e9 && frac > 1e-6 {
+            return Some(fixed_point(scaled.round() as i64, decimals as usize));
+        }
+    }
+    round_recorded(value, decimals, method).map(|d| d.to_string())
+}
+
+/// `units / 10^decimals` written with exactly `decimals` places (at most 9; `units` below
+/// 10^9 in size, as [`round_recorded_text`]'s fast path gives them), in one allocation.
+fn fixed_point(units: i64, decimals: usize) -> String {
+    let mut buf = [0u8; 24];
+    let mut at = buf.len();
+    let mut n = units.unsigned_abs();
+    let mut written = 0;
+    loop {
+        if written == decimals && decimals > 0 {
+            at -= 1;
+            buf[at] = b'.';
+        }
+        at -= 1;
+        buf[at] = b'0' + (n % 10) as u8;
+        n /= 10;
+        written += 1;
+        if n == 0 && written > decimals {
+            break;
+        }
+    }
+    if units < 0 {
+        at -= 1;
+        buf[at] = b'-';
+    }
+    buf[at..].iter().map(|&b| char::from(b)).collect()
+}
+
 /// A decimal as recorded in a trend-file cell: its exact text, or, for a cell written in
 /// floating-point form (an exponent), the nearest decimal. `None` for anything else.
 pub fn recorded_decimal(cell: &str) -> Option<Decimal> {
@@ -256,6 +297,40 @@ pub fn recorded_decimal(cell: &str) -> Option<Decimal> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue #20: the text of a rounded recorded value is the decimal's own display (the
+    /// reference: rust_decimal's `Display` of [`round_recorded`]'s result), in the fast path
+    /// and near ties, for both rounding methods.
+    #[test]
+    fn rounded_text_is_the_decimals_display() {
+        let mut state = 0x9e37_79b9_7f4a_7c15u64;
+        let mut next = || {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            state
+        };
+        let mut values = vec![
+            0.0, -0.0, 0.0205, 0.0215, -0.0049, 0.5, 2.5, 1999.5, -1999.5, 1e-12,
+        ];
+        for _ in 0..50_000 {
+            let r = next();
+            let magnitude = 10f64.powi((r % 9) as i32 - 4);
+            let v = ((r >> 8) % 2_000_000) as f64 / 1000.0 * magnitude;
+            values.push(if r >> 40 & 1 == 1 { -v } else { v });
+        }
+        for v in values {
+            for d in 0..=6 {
+                for m in [Rounding::HalfEven, Rounding::HalfUp] {
+                    assert_eq!(
+                        round_recorded_text(v, d, m),
+                        round_recorded(v, d, m).map(|x| x.to_string()),
+                        "{v} to {d} places, {m:?}"
+                    );
+                }
+            }
+        }
+    }
 
     /// Issue #16: the float fast path rounds as the decimal rule does, ties included (ASTM
     /// E29-13 §6.4.3: 0.0205 to three places is 0.020, 0.0215 is 0.022; half up gives 0.021).
