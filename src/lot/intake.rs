@@ -425,6 +425,9 @@ pub struct WideScan<'a> {
     repeats: Vec<u64>,
     /// Value columns that hold no value on any row (as [`Parsed::empty`]).
     pub empty: Vec<String>,
+    /// One reader that seeks to a lot's row to read it again: building a CSV reader costs
+    /// more than reading a row (issue #13, item 11).
+    seeker: std::cell::RefCell<csv::Reader<std::io::Cursor<&'a [u8]>>>,
 }
 
 /// Reads a wide results file one lot at a time, refusing exactly what [`parse_report`]
@@ -463,6 +466,14 @@ pub fn scan_wide<'a>(
         overflow: HashMap::new(),
         repeats: Vec::new(),
         empty: Vec::new(),
+        seeker: std::cell::RefCell::new(
+            csv::ReaderBuilder::new()
+                .delimiter(delimiter)
+                .has_headers(false)
+                .trim(csv::Trim::All)
+                .buffer_capacity(1024)
+                .from_reader(std::io::Cursor::new(text.as_bytes())),
+        ),
     };
     let mut filled = vec![false; scan.headers.len()];
     let mut late: Option<Error> = None;
@@ -547,10 +558,13 @@ impl WideScan<'_> {
     /// The row of lot `j`, read again.
     fn record(&self, j: u32) -> Result<(csv::StringRecord, u64)> {
         let (byte, line) = self.rows[j as usize];
-        let mut reader = csv_reader(&self.text[byte as usize..], self.delimiter, false);
+        let mut reader = self.seeker.borrow_mut();
+        let mut at = csv::Position::new();
+        at.set_byte(byte).set_line(line).set_record(u64::from(j));
         let mut rec = csv::StringRecord::new();
         reader
-            .read_record(&mut rec)
+            .seek(at)
+            .and_then(|()| reader.read_record(&mut rec))
             .map_err(|e| crate::support::csv_input::error(self.name, &e))?;
         Ok((rec, line))
     }
