@@ -241,22 +241,128 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     })
 }
 
-/// What the table output needs of one product, measured while the lots are decided.
+/// What the table output needs of one product, gathered while the lots are decided.
 struct ProductTable {
     /// The property columns: those of the product's first lot.
     keys: Vec<String>,
     /// Column widths of the whole table.
     widths: Vec<usize>,
+    /// The table's rows, all cells but the last ("not written").
+    rows: RowStore,
     /// The positions in the file of the lots that get a line under the table.
     notes: Vec<u32>,
 }
 
+/// A dry run's table rows kept as text in blocks of about 1 MiB (no block is ever copied to
+/// grow, so memory stays near the text's size): a row is its status as one digit (its
+/// place in [`STATUSES`]), then every other cell followed by [`CELL_END`], then [`ROW_END`].
+/// Cells never hold these control characters: intake refuses them in every cell, and the
+/// other cells are numbers, words of the specs and fixed words.
+#[derive(Default)]
+struct RowStore {
+    blocks: Vec<String>,
+}
+
+const CELL_END: char = '\u{1f}';
+const ROW_END: char = '\u{1e}';
+const BLOCK: usize = 1 << 20;
+const STATUSES: [Status; 4] = [
+    Status::Released,
+    Status::OnHold,
+    Status::Rejected,
+    Status::Incomplete,
+];
+
+impl RowStore {
+    /// Keeps the row of a lot with `status` whose other cells are `cells` (lot, revision,
+    /// then the properties).
+    fn push(&mut self, status: Status, cells: &[&str]) {
+        let len: usize = cells.iter().map(|c| c.len() + 1).sum::<usize>() + 2;
+        let fits = self
+            .blocks
+            .last()
+            .is_some_and(|b| b.capacity() - b.len() >= len);
+        if !fits {
+            self.blocks.push(String::with_capacity(BLOCK.max(len)));
+        }
+        if let Some(b) = self.blocks.last_mut() {
+            let code = STATUSES.iter().position(|s| *s == status).unwrap_or(0);
+            b.push(char::from(b'0' + code as u8));
+            for c in cells {
+                b.push_str(c);
+                b.push(CELL_END);
+            }
+            b.push(ROW_END);
+        }
+    }
+
+    /// The rows, in the order pushed, each as its status and other cells.
+    fn rows(&self) -> impl Iterator<Item = (Status, impl Iterator<Item = &str>)> {
+        self.blocks
+            .iter()
+            .flat_map(|b| b.split_terminator(ROW_END))
+            .map(|row| {
+                let code = usize::from(row.as_bytes()[0] - b'0');
+                (STATUSES[code], row[1..].split_terminator(CELL_END))
+            })
+    }
+}
+
+/// Lots decided together, on every core (issue #13, item 11): enough to share out, few
+/// enough to keep memory flat.
+const CHUNK: usize = 2048;
+
+/// One lot of a dry run, decided: what the bookkeeping in file order needs.
+struct Decided<'s> {
+    decision: LotDecision,
+    /// The spec revision the lot was decided on.
+    spec: Option<&'s crate::spec::ProductSpec>,
+    /// Its table row by its own properties (none for JSON).
+    row: Option<Vec<String>>,
+    /// It gets a line under the table.
+    noted: bool,
+}
+
+/// Decides `lots` on every core, in order: the lot's decision or its refusal.
+fn decide_chunk<'s>(
+    file: &str,
+    specs: &'s SpecSet,
+    lots: &[LotResults],
+    now: &chrono::DateTime<chrono::Utc>,
+    rows: bool,
+) -> Vec<anyhow::Result<Decided<'s>>> {
+    use rayon::prelude::*;
+    lots.par_iter()
+        .map(|lot| {
+            let decision = decide_lot(file, specs, lot, now)?;
+            let spec = specs.for_date(&lot.product, lot.manufactured).ok();
+            let row = rows.then(|| {
+                let keys: Vec<String> = decision
+                    .properties
+                    .iter()
+                    .map(|p| p.property.clone())
+                    .collect();
+                lot_row(&decision, &keys, &Recorded::NotWritten)
+            });
+            let noted = note_line(&decision).is_some();
+            Ok(Decided {
+                decision,
+                spec,
+                row,
+                noted,
+            })
+        })
+        .collect()
+}
+
 /// `release --dry-run` of a wide results file, one lot at a time (issue #13, item 11): the
-/// first pass reads, checks and decides each lot and plans it against the trend files
-/// (`record::append::StreamPlan`), keeping only counts, column widths and the plan's compact
-/// state; once nothing is refused, the second pass reads and decides the lots again and writes
-/// each line of the report (table or JSON) as it goes. It refuses what the whole-file path
-/// refuses, with the same message, and prints the same bytes. `None` for a long file.
+/// first pass reads and checks each lot, decides lots in chunks on every core, and plans
+/// each against the trend files (`record::append::StreamPlan`), keeping counts, column
+/// widths, the plan's compact state and, for the table, each lot's row as text; once nothing
+/// is refused, the table is written from the rows kept (only lots with a note line are read
+/// and decided again), or the JSON as the lots are read and decided again. It refuses what
+/// the whole-file path refuses, with the same message, and prints the same bytes. `None` for
+/// a long file.
 fn streamed_dry_run(
     args: &Args,
     specs: &SpecSet,
@@ -276,46 +382,89 @@ fn streamed_dry_run(
     let mut used: Vec<&crate::spec::ProductSpec> = Vec::new();
     let bar = progress_unsized();
     let mut position: u32 = 0;
-    let scan = intake::scan_wide(&file, bytes, opts.clone(), &mut |lot, twin| {
+    let mut lots: Vec<LotResults> = Vec::with_capacity(CHUNK);
+    let mut twins: Vec<Option<intake::Twin>> = Vec::with_capacity(CHUNK);
+    // Decides the lots gathered so far and takes them in file order; after a refusal, the
+    // later lots are neither decided nor planned, as on the whole-file path.
+    let mut flush = |lots: &mut Vec<LotResults>, twins: &mut Vec<Option<intake::Twin>>| {
         if refused.is_some() {
+            lots.clear();
+            twins.clear();
             return;
         }
-        let d = match decide_lot(&file, specs, lot, &now) {
-            Ok(d) => d,
-            Err(e) => {
-                refused = Some(e);
-                return;
-            }
-        };
-        bar.inc(1);
-        counts.add(d.status);
-        if let Ok(spec) = specs.for_date(&lot.product, lot.manufactured) {
-            if !used.iter().any(|u| std::ptr::eq(*u, spec)) {
-                used.push(spec);
-            }
-        }
-        if !args.json {
-            let t = tables.entry(d.product.clone()).or_insert_with(|| {
-                let keys: Vec<String> = d.properties.iter().map(|p| p.property.clone()).collect();
-                let mut widths = Vec::new();
-                crate::support::table::widen(&mut widths, &table_header(&keys));
-                ProductTable {
-                    keys,
-                    widths,
-                    notes: Vec::new(),
+        let decided = decide_chunk(&file, specs, lots, &now, !args.json);
+        for ((lot, twin), decided) in lots.drain(..).zip(twins.drain(..)).zip(decided) {
+            let Decided {
+                decision: d,
+                spec,
+                row,
+                noted,
+            } = match decided {
+                Ok(x) => x,
+                Err(e) => {
+                    refused = Some(e);
+                    break;
                 }
-            });
-            crate::support::table::widen(
-                &mut t.widths,
-                &lot_row(&d, &t.keys, &Recorded::NotWritten),
-            );
-            if note_line(&d).is_some() {
-                t.notes.push(position);
+            };
+            bar.inc(1);
+            counts.add(d.status);
+            if let Some(spec) = spec {
+                if !used.iter().any(|u| std::ptr::eq(*u, spec)) {
+                    used.push(spec);
+                }
             }
+            if let Some(row) = row {
+                let t = tables.entry(d.product.clone()).or_insert_with(|| {
+                    let keys: Vec<String> =
+                        d.properties.iter().map(|p| p.property.clone()).collect();
+                    let mut widths = Vec::new();
+                    crate::support::table::widen(&mut widths, &table_header(&keys));
+                    ProductTable {
+                        keys,
+                        widths,
+                        rows: RowStore::default(),
+                        notes: Vec::new(),
+                    }
+                });
+                // A lot decided on another revision than the product's first lot has its
+                // row laid out by the first lot's properties.
+                let same_keys = d.properties.iter().map(|p| &p.property).eq(t.keys.iter());
+                let row = if same_keys {
+                    row
+                } else {
+                    lot_row(&d, &t.keys, &Recorded::NotWritten)
+                };
+                crate::support::table::widen(&mut t.widths, &row);
+                // Every cell but the status and the last ("not written").
+                let kept: Vec<&str> = row[..row.len() - 1]
+                    .iter()
+                    .enumerate()
+                    .filter(|(i, _)| *i != 2)
+                    .map(|(_, c)| c.as_str())
+                    .collect();
+                t.rows.push(d.status, &kept);
+                if noted {
+                    t.notes.push(position);
+                }
+            }
+            position += 1;
+            plan.add(
+                &d,
+                lot.line,
+                twin.as_ref().map(|t| (t.lot.as_str(), t.line)),
+            );
         }
-        position += 1;
-        plan.add(&d, lot.line, twin.map(|t| (t.lot.as_str(), t.line)));
+        lots.clear();
+        twins.clear();
+    };
+    let scan = intake::scan_wide(&file, bytes, opts.clone(), &mut |lot, twin| {
+        lots.push(lot);
+        twins.push(twin);
+        if lots.len() == CHUNK {
+            flush(&mut lots, &mut twins);
+        }
     })?;
+    flush(&mut lots, &mut twins);
     bar.finish_and_clear();
     let Some(scan) = scan else {
         return Ok(None);
@@ -335,12 +484,14 @@ fn streamed_dry_run(
         .cloned()
         .collect();
 
-    // Nothing was refused: the report, written as the lots are decided again.
+    // Nothing was refused: the report.
     let mut out = std::io::BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
     let decide = |lot: &LotResults| decide_lot(&file, specs, lot, &now);
     if args.json {
         write_json_streamed(&mut out, &scan, &decide)?;
     } else {
+        let mut line = String::new();
+        let mut cells: Vec<&str> = Vec::new();
         for (product, t) in &tables {
             let name = specs.latest(product).map_or("", |s| s.name.as_str());
             writeln!(out, "{product}  {name}")?;
@@ -348,11 +499,16 @@ fn streamed_dry_run(
                 crate::support::table::line(&table_header(&t.keys), &t.widths).as_bytes(),
             )?;
             out.write_all(crate::support::table::rule(&t.widths).as_bytes())?;
-            scan.for_each(Some(product), &mut |lot| -> anyhow::Result<()> {
-                let row = lot_row(&decide(&lot)?, &t.keys, &Recorded::NotWritten);
-                out.write_all(crate::support::table::line(&row, &t.widths).as_bytes())?;
-                Ok(())
-            })?;
+            for (status, mut row) in t.rows.rows() {
+                cells.clear();
+                cells.extend(row.by_ref().take(2));
+                cells.push(status.as_str());
+                cells.extend(row);
+                cells.push("not written");
+                line.clear();
+                crate::support::table::push_line(&mut line, &cells, &t.widths);
+                out.write_all(line.as_bytes())?;
+            }
             if !t.notes.is_empty() {
                 scan.for_each_at(&t.notes, &mut |lot| -> anyhow::Result<()> {
                     if let Some(line) = note_line(&decide(&lot)?) {
