@@ -274,25 +274,30 @@ const STATUSES: [Status; 4] = [
 ];
 
 impl RowStore {
-    /// Keeps the row of a lot with `status` whose other cells are `cells` (lot, revision,
-    /// then the properties).
-    fn push(&mut self, status: Status, cells: &[&str]) {
-        let len: usize = cells.iter().map(|c| c.len() + 1).sum::<usize>() + 2;
+    /// Appends to `out` the row of a lot with `status` whose other cells are `cells` (lot,
+    /// revision, then the properties), as the store keeps it.
+    fn encode<'c>(out: &mut String, status: Status, cells: impl IntoIterator<Item = &'c str>) {
+        let code = STATUSES.iter().position(|s| *s == status).unwrap_or(0);
+        out.push(char::from(b'0' + code as u8));
+        for c in cells {
+            out.push_str(c);
+            out.push(CELL_END);
+        }
+        out.push(ROW_END);
+    }
+
+    /// Keeps a row made by [`RowStore::encode`].
+    fn push(&mut self, encoded: &str) {
         let fits = self
             .blocks
             .last()
-            .is_some_and(|b| b.capacity() - b.len() >= len);
+            .is_some_and(|b| b.capacity() - b.len() >= encoded.len());
         if !fits {
-            self.blocks.push(String::with_capacity(BLOCK.max(len)));
+            self.blocks
+                .push(String::with_capacity(BLOCK.max(encoded.len())));
         }
         if let Some(b) = self.blocks.last_mut() {
-            let code = STATUSES.iter().position(|s| *s == status).unwrap_or(0);
-            b.push(char::from(b'0' + code as u8));
-            for c in cells {
-                b.push_str(c);
-                b.push(CELL_END);
-            }
-            b.push(ROW_END);
+            b.push_str(encoded);
         }
     }
 
@@ -318,9 +323,43 @@ struct Decided<'s> {
     /// The spec revision the lot was decided on.
     spec: Option<&'s crate::spec::ProductSpec>,
     /// Its table row by its own properties (none for JSON).
-    row: Option<Vec<String>>,
+    row: Option<OwnRow>,
     /// It gets a line under the table.
     noted: bool,
+}
+
+/// A lot's table row laid out by its own properties: as [`RowStore::encode`] writes it, and
+/// the display width of each cell ([`lot_row`] with the lot's own keys, without a string for
+/// each cell).
+struct OwnRow {
+    encoded: String,
+    widths: Vec<usize>,
+}
+
+impl OwnRow {
+    fn of(d: &LotDecision) -> OwnRow {
+        use crate::support::table::width;
+        let mut encoded = String::with_capacity(16 * (d.properties.len() + 2));
+        let mut widths = Vec::with_capacity(d.properties.len() + 4);
+        let code = STATUSES.iter().position(|s| *s == d.status).unwrap_or(0);
+        encoded.push(char::from(b'0' + code as u8));
+        for cell in [d.lot.as_str(), d.spec_revision.as_str()] {
+            encoded.push_str(cell);
+            encoded.push(CELL_END);
+            widths.push(width(cell));
+        }
+        widths.push(width(d.status.as_str()));
+        for p in &d.properties {
+            let start = encoded.len();
+            encoded.push_str(p.reported.as_deref().unwrap_or("missing"));
+            encoded.push_str(short(p.verdict));
+            widths.push(width(&encoded[start..]));
+            encoded.push(CELL_END);
+        }
+        encoded.push(ROW_END);
+        widths.push(width(NOT_WRITTEN));
+        OwnRow { encoded, widths }
+    }
 }
 
 /// Decides `lots` on every core, in order: the lot's decision or its refusal.
@@ -336,14 +375,7 @@ fn decide_chunk<'s>(
         .map(|lot| {
             let decision = decide_lot(file, specs, lot, now)?;
             let spec = specs.for_date(&lot.product, lot.manufactured).ok();
-            let row = rows.then(|| {
-                let keys: Vec<String> = decision
-                    .properties
-                    .iter()
-                    .map(|p| p.property.clone())
-                    .collect();
-                lot_row(&decision, &keys, &Recorded::NotWritten)
-            });
+            let row = rows.then(|| OwnRow::of(&decision));
             let noted = note_line(&decision).is_some();
             Ok(Decided {
                 decision,
@@ -429,20 +461,24 @@ fn streamed_dry_run(
                 // A lot decided on another revision than the product's first lot has its
                 // row laid out by the first lot's properties.
                 let same_keys = d.properties.iter().map(|p| &p.property).eq(t.keys.iter());
-                let row = if same_keys {
-                    row
+                if same_keys {
+                    for (w, cell) in t.widths.iter_mut().zip(&row.widths) {
+                        *w = (*w).max(*cell);
+                    }
+                    t.rows.push(&row.encoded);
                 } else {
-                    lot_row(&d, &t.keys, &Recorded::NotWritten)
-                };
-                crate::support::table::widen(&mut t.widths, &row);
-                // Every cell but the status and the last ("not written").
-                let kept: Vec<&str> = row[..row.len() - 1]
-                    .iter()
-                    .enumerate()
-                    .filter(|(i, _)| *i != 2)
-                    .map(|(_, c)| c.as_str())
-                    .collect();
-                t.rows.push(d.status, &kept);
+                    let cells = lot_row(&d, &t.keys, &Recorded::NotWritten);
+                    crate::support::table::widen(&mut t.widths, &cells);
+                    // Every cell but the status and the last ("not written").
+                    let kept = cells[..cells.len() - 1]
+                        .iter()
+                        .enumerate()
+                        .filter(|(i, _)| *i != 2)
+                        .map(|(_, c)| c.as_str());
+                    let mut encoded = String::new();
+                    RowStore::encode(&mut encoded, d.status, kept);
+                    t.rows.push(&encoded);
+                }
                 if noted {
                     t.notes.push(position);
                 }
@@ -504,7 +540,7 @@ fn streamed_dry_run(
                 cells.extend(row.by_ref().take(2));
                 cells.push(status.as_str());
                 cells.extend(row);
-                cells.push("not written");
+                cells.push(NOT_WRITTEN);
                 line.clear();
                 crate::support::table::push_line(&mut line, &cells, &t.widths);
                 out.write_all(line.as_bytes())?;
@@ -1045,6 +1081,9 @@ fn table_header(keys: &[String]) -> Vec<String> {
     h
 }
 
+/// The record cell of a lot a dry run decides.
+const NOT_WRITTEN: &str = "not written";
+
 /// The table row of one lot.
 fn lot_row(d: &LotDecision, keys: &[String], recorded: &Recorded) -> Vec<String> {
     let mut r = vec![
@@ -1067,7 +1106,7 @@ fn lot_row(d: &LotDecision, keys: &[String], recorded: &Recorded) -> Vec<String>
             format!("row {seq} (retest of {supersedes})")
         }
         Recorded::Unchanged(s) => format!("unchanged (row {s})"),
-        Recorded::NotWritten => "not written".into(),
+        Recorded::NotWritten => NOT_WRITTEN.into(),
     });
     r
 }

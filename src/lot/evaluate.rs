@@ -526,7 +526,15 @@ fn measured_results(spec: &ProductSpec, means: &Means) -> Vec<PropertyResult> {
         } else {
             Decimal::ZERO
         };
-        let mut r = decide(p, value, w, spec, Some(value.to_string()), u.map(to_f64));
+        let mut r = decide(
+            p,
+            value,
+            None,
+            w,
+            spec,
+            Some(value.to_string()),
+            u.map(to_f64),
+        );
         r.entered = Some(entered.to_string());
         results.push(r);
     }
@@ -575,9 +583,7 @@ fn derived_results(
                     (true, Some(u)) => decimal_from_f64(u).unwrap_or_default(),
                     _ => Decimal::ZERO,
                 };
-                let mut r = decide(p, d, w, spec, None, unc);
-                r.value = Some(value);
-                results.push(r);
+                results.push(decide(p, d, Some(value), w, spec, None, unc));
             }
             None => {
                 any_missing = true;
@@ -601,9 +607,12 @@ fn missing(p: &Property) -> PropertyResult {
     }
 }
 
+/// The result of property `p` with `value` (as a float `float` when it was computed as one,
+/// else converted from the decimal), decided with guard band `w`.
 fn decide(
     p: &Property,
     value: Decimal,
+    float: Option<f64>,
     w: Decimal,
     spec: &ProductSpec,
     exact: Option<String>,
@@ -612,7 +621,7 @@ fn decide(
     let reported = round(value, p.decimals, spec.rounding);
     PropertyResult {
         property: p.key.clone(),
-        value: Some(to_f64(value)),
+        value: Some(float.unwrap_or_else(|| to_f64(value))),
         exact,
         entered: None,
         reported: Some(reported.to_string()),

@@ -4,7 +4,7 @@ use unicode_width::UnicodeWidthStr;
 
 /// The width a cell takes on a terminal: combining marks (the bar of x̄ and MR̄) take no
 /// column, so they are not counted as characters are (Unicode UAX #11 via `unicode-width`).
-fn width(cell: &str) -> usize {
+pub fn width(cell: &str) -> usize {
     UnicodeWidthStr::width(cell)
 }
 
