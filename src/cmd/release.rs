@@ -362,6 +362,14 @@ impl OwnRow {
     }
 }
 
+/// A chunk of lots as read, the earlier lot of each whose id differs only in case, and each
+/// lot's decision or refusal.
+type DecidedChunk<'s> = (
+    Vec<LotResults>,
+    Vec<Option<intake::Twin>>,
+    Vec<anyhow::Result<Decided<'s>>>,
+);
+
 /// Decides `lots` on every core, in order: the lot's decision or its refusal.
 fn decide_chunk<'s>(
     file: &str,
@@ -395,9 +403,9 @@ fn decide_chunk<'s>(
 /// and decided again), or the JSON as the lots are read and decided again. It refuses what
 /// the whole-file path refuses, with the same message, and prints the same bytes. `None` for
 /// a long file.
-fn streamed_dry_run(
+fn streamed_dry_run<'s>(
     args: &Args,
-    specs: &SpecSet,
+    specs: &'s SpecSet,
     bytes: &[u8],
     opts: intake::Options,
 ) -> anyhow::Result<Option<Outcome>> {
@@ -411,21 +419,18 @@ fn streamed_dry_run(
     let mut refused: Option<anyhow::Error> = None;
     let mut counts = Counts::default();
     let mut tables: BTreeMap<String, ProductTable> = BTreeMap::new();
-    let mut used: Vec<&crate::spec::ProductSpec> = Vec::new();
+    let mut used: Vec<&'s crate::spec::ProductSpec> = Vec::new();
     let bar = progress_unsized();
     let mut position: u32 = 0;
-    let mut lots: Vec<LotResults> = Vec::with_capacity(CHUNK);
-    let mut twins: Vec<Option<intake::Twin>> = Vec::with_capacity(CHUNK);
-    // Decides the lots gathered so far and takes them in file order; after a refusal, the
-    // later lots are neither decided nor planned, as on the whole-file path.
-    let mut flush = |lots: &mut Vec<LotResults>, twins: &mut Vec<Option<intake::Twin>>| {
+    // Takes a decided chunk in file order; after a refusal, the later lots are not planned,
+    // as on the whole-file path.
+    let mut take = |chunk: DecidedChunk<'s>| {
+        let (lots, twins, decided) = chunk;
         if refused.is_some() {
-            lots.clear();
-            twins.clear();
             return;
         }
-        let decided = decide_chunk(&file, specs, lots, &now, !args.json);
-        for ((lot, twin), decided) in lots.drain(..).zip(twins.drain(..)).zip(decided) {
+        let mut spent = Vec::with_capacity(decided.len());
+        for ((lot, twin), decided) in lots.iter().zip(twins).zip(decided) {
             let Decided {
                 decision: d,
                 spec,
@@ -446,18 +451,22 @@ fn streamed_dry_run(
                 }
             }
             if let Some(row) = row {
-                let t = tables.entry(d.product.clone()).or_insert_with(|| {
+                if !tables.contains_key(&d.product) {
                     let keys: Vec<String> =
                         d.properties.iter().map(|p| p.property.clone()).collect();
                     let mut widths = Vec::new();
                     crate::support::table::widen(&mut widths, &table_header(&keys));
-                    ProductTable {
+                    let table = ProductTable {
                         keys,
                         widths,
                         rows: RowStore::default(),
                         notes: Vec::new(),
-                    }
-                });
+                    };
+                    tables.insert(d.product.clone(), table);
+                }
+                let Some(t) = tables.get_mut(&d.product) else {
+                    continue;
+                };
                 // A lot decided on another revision than the product's first lot has its
                 // row laid out by the first lot's properties.
                 let same_keys = d.properties.iter().map(|p| &p.property).eq(t.keys.iter());
@@ -489,18 +498,52 @@ fn streamed_dry_run(
                 lot.line,
                 twin.as_ref().map(|t| (t.lot.as_str(), t.line)),
             );
+            spent.push(d);
         }
-        lots.clear();
-        twins.clear();
+        // Freed by a worker while this thread reads on.
+        rayon::spawn(move || drop((lots, spent)));
     };
-    let scan = intake::scan_wide(&file, bytes, opts.clone(), &mut |lot, twin| {
-        lots.push(lot);
-        twins.push(twin);
-        if lots.len() == CHUNK {
-            flush(&mut lots, &mut twins);
+    // While one chunk is decided on the workers, this thread reads the next (at most two
+    // chunks in flight, taken in file order).
+    let scan = rayon::in_place_scope(|scope| {
+        let mut lots: Vec<LotResults> = Vec::with_capacity(CHUNK);
+        let mut twins: Vec<Option<intake::Twin>> = Vec::with_capacity(CHUNK);
+        let mut in_flight: Option<std::sync::mpsc::Receiver<DecidedChunk<'s>>> = None;
+        let (file, now, json) = (&file, &now, args.json);
+        let send = |lots: Vec<LotResults>, twins: Vec<Option<intake::Twin>>| {
+            let (tx, rx) = std::sync::mpsc::sync_channel(1);
+            scope.spawn(move |_| {
+                let decided = decide_chunk(file, specs, &lots, now, !json);
+                // The receiver is gone only when the run already failed.
+                let _ = tx.send((lots, twins, decided));
+            });
+            rx
+        };
+        let mut take_previous = |in_flight: &mut Option<std::sync::mpsc::Receiver<_>>| {
+            if let Some(chunk) = in_flight.take().and_then(|rx| rx.recv().ok()) {
+                take(chunk);
+            }
+        };
+        let scan = intake::scan_wide(&file, bytes, opts.clone(), &mut |lot, twin| {
+            lots.push(lot);
+            twins.push(twin);
+            if lots.len() == CHUNK {
+                let rx = send(
+                    std::mem::replace(&mut lots, Vec::with_capacity(CHUNK)),
+                    std::mem::replace(&mut twins, Vec::with_capacity(CHUNK)),
+                );
+                take_previous(&mut in_flight);
+                in_flight = Some(rx);
+            }
+        });
+        if scan.is_ok() && !lots.is_empty() {
+            let rx = send(lots, twins);
+            take_previous(&mut in_flight);
+            in_flight = Some(rx);
         }
+        take_previous(&mut in_flight);
+        scan
     })?;
-    flush(&mut lots, &mut twins);
     bar.finish_and_clear();
     let Some(scan) = scan else {
         return Ok(None);
