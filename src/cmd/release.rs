@@ -315,7 +315,7 @@ impl RowStore {
 
 /// Lots decided together, on every core (issue #13, item 11): enough to share out, few
 /// enough to keep memory flat.
-const CHUNK: usize = 2048;
+const CHUNK: usize = 128;
 
 /// One lot of a dry run, decided: what the bookkeeping in file order needs.
 struct Decided<'s> {
@@ -588,14 +588,31 @@ fn streamed_dry_run<'s>(
                 crate::support::table::push_line(&mut line, &cells, &t.widths);
                 out.write_all(line.as_bytes())?;
             }
-            if !t.notes.is_empty() {
-                scan.for_each_at(&t.notes, &mut |lot| -> anyhow::Result<()> {
-                    if let Some(line) = note_line(&decide(&lot)?) {
+            // The lots with a line under the table, read again and decided in chunks on
+            // every core, written in file order.
+            let mut noted: Vec<LotResults> = Vec::with_capacity(CHUNK);
+            let write_notes = |noted: &mut Vec<LotResults>, out: &mut dyn Write| {
+                use rayon::prelude::*;
+                let lines: Vec<anyhow::Result<Option<String>>> = noted
+                    .par_iter()
+                    .map(|lot| Ok(note_line(&decide(lot)?)))
+                    .collect();
+                noted.clear();
+                for line in lines {
+                    if let Some(line) = line? {
                         out.write_all(line.as_bytes())?;
                     }
-                    Ok(())
-                })?;
-            }
+                }
+                anyhow::Ok(())
+            };
+            scan.for_each_at(&t.notes, &mut |lot| -> anyhow::Result<()> {
+                noted.push(lot);
+                if noted.len() == CHUNK {
+                    write_notes(&mut noted, &mut out)?;
+                }
+                Ok(())
+            })?;
+            write_notes(&mut noted, &mut out)?;
             out.write_all(b"\n")?;
         }
         out.write_all(summary_line(&counts, 0, &args.register, true).as_bytes())?;
