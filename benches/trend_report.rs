@@ -48,7 +48,7 @@ fn main() {
         .and_then(|i| args.get(i + 1))
         .and_then(|s| s.parse().ok())
         .unwrap_or(200);
-    let lots = lots(n);
+    let lots = std::sync::Arc::new(resinlot::record::query::LotTable::from_rows(&lots(n)));
     let trends: Vec<PropertyTrend> = (0..PROPERTIES)
         .map(|k| {
             let base = 100.0 * (k + 1) as f64;

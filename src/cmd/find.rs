@@ -1,7 +1,6 @@
 //! `resinlot find`: which lots fit given windows, or a customer's requirements, in one product
 //! or across every product of the register.
 
-use std::collections::HashMap;
 use std::io::Write;
 
 use chrono::NaiveDate;
@@ -12,7 +11,7 @@ use crate::cmd::Outcome;
 use crate::error::Error;
 use crate::lot::evaluate::Status;
 use crate::record::find::{self, CustomerCheck, LifeCheck, LotFilter, Precision};
-use crate::record::query::{parse_window, Life, LotRow, Window};
+use crate::record::query::{parse_window, LotRow, LotTable, Window};
 use crate::spec::customer::Customer;
 use crate::spec::SpecSet;
 
@@ -76,37 +75,54 @@ pub struct Args {
     pub include_expired: bool,
 }
 
-/// One product searched: its keys, the columns loaded, its lots and how they are reported.
+/// One product searched: its keys, the columns loaded, its matching lots and how they are
+/// reported.
 struct Searched {
     product: String,
     keys: Vec<String>,
     loaded: Vec<String>,
-    lots: Vec<LotRow>,
-    lives: Vec<Life>,
+    /// Every lot's current row, column by column, with its life.
+    table: LotTable,
+    /// Indices into `table` of the matching lots.
+    found: Vec<usize>,
     precision: Option<Precision>,
-    /// Customer (file stem) of each lot released under concession, by trend-file line.
-    concessions: HashMap<usize, &'static str>,
-    /// Words and censored results of the customer's special properties (issue #15).
-    special: Option<find::SpecialCells>,
 }
 
-/// A lot found, with the product search it came from.
+impl Searched {
+    /// Customer (file stem) of lot `at` when it was released under concession.
+    fn concession(&self, at: usize) -> Option<&'static str> {
+        self.table
+            .lives()
+            .get(at)
+            .map(|l| l.concession)
+            .filter(|c| !c.is_empty())
+    }
+}
+
+/// A lot found: the product search it came from and its index in that search's table. Its
+/// row is built when it is written (issue #20: no row is kept per lot found).
 struct Hit<'a> {
     from: &'a Searched,
-    row: &'a LotRow,
+    at: usize,
 }
 
 impl Hit<'_> {
-    /// The value of `key` as printed: at the reporting precision, or full precision when the
-    /// spec does not know the key or `--full-precision` was given; `None` when absent.
-    fn value(&self, key: &str) -> Option<String> {
+    /// The lot's current row.
+    fn row(&self) -> LotRow {
+        self.from.table.row(self.at)
+    }
+
+    /// The value of `key` on `row` (this lot's) as printed: at the reporting precision, or
+    /// full precision when the spec does not know the key or `--full-precision` was given;
+    /// `None` when absent.
+    fn value(&self, row: &LotRow, key: &str) -> Option<String> {
         let i = self.from.loaded.iter().position(|k| k == key)?;
-        let v = self.row.values[i]?;
+        let v = row.values[i]?;
         Some(
             self.from
                 .precision
                 .as_ref()
-                .and_then(|p| p.reported(self.row, i))
+                .and_then(|p| p.reported(row, i))
                 .map_or_else(|| v.to_string(), |d| d.to_string()),
         )
     }
@@ -148,6 +164,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     // The table needs only the windows and a few headline values; JSON, CSV and a customer's
     // check need every property.
     let every = args.json || args.csv || customer.is_some();
+    let today = crate::support::clock::now()?.date_naive();
+    let mut expired = 0;
     let mut searched = Vec::new();
     for product in &products {
         let path = crate::record::trend_file::path_for(&args.register, product);
@@ -169,8 +187,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
             continue; // a product without the property has no lot in the window
         }
         let loaded = find::keys_to_load(&keys, &windows, every);
-        let (_, lots, lives) =
-            crate::record::query::current_lots_with_life(&path, &loaded, customer.is_some())?;
+        let (_, table) =
+            crate::record::query::current_table_with_life(&path, &loaded, customer.is_some())?;
         if let (Some(specs), Some(_)) = (&specs, &customer) {
             // Issue #15: a customer's check works from the limits the lots were decided on.
             crate::record::frozen::refuse_changed(&path, product, specs, None)?;
@@ -189,31 +207,54 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
                     })
                     .cloned()
                     .collect();
-                let lines: Vec<usize> = lots.iter().map(|l| l.line).collect();
+                let lines: Vec<usize> = (0..table.len()).map(|i| table.line(i)).collect();
                 let cells = crate::record::query::raw_cells(&path, &special_keys, &lines)?;
                 Some((special_keys, cells))
             }
             _ => None,
         };
-        let concessions = lots
-            .iter()
-            .zip(&lives)
-            .filter(|(_, l)| !l.concession.is_empty())
-            .map(|(r, l)| (r.line, l.concession))
-            .collect();
         let precision = match (&specs, args.full_precision) {
-            (Some(s), false) => Some(Precision::new(s, product, &lots, &loaded)),
+            (Some(s), false) => Some(Precision::of_revisions(
+                s,
+                product,
+                table.revisions(),
+                &loaded,
+            )),
             _ => None,
         };
+        let check = match (&specs, &customer) {
+            (Some(specs), Some(cu)) => Some(CustomerCheck {
+                customer: &cu.id,
+                specs,
+                requirements: cu.product(product)?,
+                special: special.as_ref(),
+            }),
+            _ => None,
+        };
+        let filter = LotFilter {
+            product,
+            windows: &windows,
+            status,
+            from: args.from,
+            to: args.to,
+            customer: check,
+            life: Some(LifeCheck {
+                lives: table.lives(),
+                specs: specs.as_ref(),
+                today,
+                include_expired: args.include_expired,
+            }),
+            precision: precision.as_ref(),
+        };
+        let (found, gone) = find::matching_in_table(&table, &loaded, &filter);
+        expired += gone;
         searched.push(Searched {
             product: product.clone(),
             keys,
             loaded,
-            lots,
-            lives,
+            table,
+            found,
             precision,
-            concessions,
-            special,
         });
     }
     if searched.is_empty() && !windows.is_empty() && !products.is_empty() {
@@ -227,44 +268,16 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         )
         .into());
     }
-    let today = crate::support::clock::now()?.date_naive();
-    let mut expired = 0;
     let mut hits: Vec<Hit> = Vec::new();
     for s in &searched {
-        let check = match (&specs, &customer) {
-            (Some(specs), Some(cu)) => Some(CustomerCheck {
-                customer: &cu.id,
-                specs,
-                requirements: cu.product(&s.product)?,
-                special: s.special.as_ref(),
-            }),
-            _ => None,
-        };
-        let filter = LotFilter {
-            product: &s.product,
-            windows: &windows,
-            status,
-            from: args.from,
-            to: args.to,
-            customer: check,
-            life: Some(LifeCheck {
-                lives: &s.lives,
-                specs: specs.as_ref(),
-                today,
-                include_expired: args.include_expired,
-            }),
-            precision: s.precision.as_ref(),
-        };
-        let (found, gone) = find::matching_lots_counted(&s.lots, &s.loaded, &filter);
-        expired += gone;
-        hits.extend(found.into_iter().map(|row| Hit { from: s, row }));
+        hits.extend(s.found.iter().map(|&at| Hit { from: s, at }));
     }
     hits.sort_by(|a, b| {
-        b.row
-            .manufactured
-            .cmp(&a.row.manufactured)
+        let (ta, tb) = (&a.from.table, &b.from.table);
+        tb.made(b.at)
+            .cmp(&ta.made(a.at))
             .then(a.from.product.cmp(&b.from.product))
-            .then(b.row.line.cmp(&a.row.line))
+            .then(tb.line(b.at).cmp(&ta.line(a.at)))
     });
     // Issue #20: the answer is written as it is made, not gathered first, so memory does
     // not grow with the number of lots found.
@@ -360,17 +373,17 @@ fn expired_text(expired: usize) -> String {
 /// One found lot as JSON: lot, product, manufactured, status, the concession's customer when
 /// there is one, then every key of its product as reported (null when not recorded).
 fn lot_json(h: &Hit) -> Value {
-    let r = h.row;
+    let r = &h.row();
     let mut m = Map::new();
     m.insert("lot".into(), json!(r.lot));
     m.insert("product".into(), json!(h.from.product));
     m.insert("manufactured".into(), json!(r.manufactured));
     m.insert("status".into(), json!(r.status));
-    if let Some(c) = h.from.concessions.get(&r.line) {
+    if let Some(c) = h.from.concession(h.at) {
         m.insert("concession_customer".into(), json!(c));
     }
     for k in &h.from.keys {
-        let v = h.value(k).and_then(|t| t.parse::<f64>().ok());
+        let v = h.value(r, k).and_then(|t| t.parse::<f64>().ok());
         m.insert(k.clone(), v.map_or(Value::Null, |v| json!(v)));
     }
     Value::Object(m)
@@ -425,14 +438,15 @@ fn write_csv(out: &mut impl Write, searched: &[Searched], hits: &[Hit]) -> anyho
     w.write_record(&header).map_err(csv_error)?;
     let mut rec: Vec<String> = Vec::new();
     for h in hits {
+        let row = h.row();
         rec.clear();
         rec.extend([
-            h.row.lot.to_string(),
+            row.lot.to_string(),
             h.from.product.clone(),
-            h.row.manufactured.to_string(),
-            h.row.status.to_string(),
+            row.manufactured.to_string(),
+            row.status.to_string(),
         ]);
-        rec.extend(keys.iter().map(|k| h.value(k).unwrap_or_default()));
+        rec.extend(keys.iter().map(|k| h.value(&row, k).unwrap_or_default()));
         w.write_record(&rec).map_err(csv_error)?;
     }
     w.flush()?;
@@ -466,17 +480,18 @@ fn write_table(
             line.extend(head.iter().cloned());
             return;
         };
-        line.push(h.row.lot.to_string());
+        let row = h.row();
+        line.push(row.lot.to_string());
         if across {
             line.push(h.from.product.clone());
         }
-        let status = match h.from.concessions.get(&h.row.line) {
-            Some(c) => format!("{} (concession for {c})", h.row.status),
-            None => h.row.status.to_string(),
+        let status = match h.from.concession(h.at) {
+            Some(c) => format!("{} (concession for {c})", row.status),
+            None => row.status.to_string(),
         };
-        line.extend([h.row.manufactured.to_string(), status]);
+        line.extend([row.manufactured.to_string(), status]);
         for k in &show {
-            let v = h.value(k).unwrap_or_default();
+            let v = h.value(&row, k).unwrap_or_default();
             line.push(if args.full_precision {
                 short_number(&v)
             } else {

@@ -4,7 +4,6 @@
 use std::path::{Path, PathBuf};
 
 use chrono::NaiveDate;
-use serde_json::json;
 
 use crate::cmd::args::{
     self, CertificatesFolder, ProductArg, RegisterFolder, SpecsFolder, TemplatesFolder,
@@ -127,8 +126,8 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         }
     }
     let columns = product::columns_for(&keys, args.property.as_deref());
-    let (_, lots) = crate::record::query::current_lots(&path, &columns, false)?;
-    let lots = product::select(lots, &sel);
+    let (_, lots) = crate::record::query::current_table(&path, &columns, false)?;
+    let lots = std::sync::Arc::new(product::select(lots, &sel));
     if lots.is_empty() {
         return Err(Error::invalid(
             format!("product '{}'", args.product.code()),
@@ -142,7 +141,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     let censored: Vec<(String, usize)> = if censorable.is_empty() {
         Vec::new()
     } else {
-        let lines: Vec<usize> = lots.iter().map(|l| l.line).collect();
+        let lines: Vec<usize> = (0..lots.len()).map(|i| lots.line(i)).collect();
         let counts = crate::record::query::censored_counts(&path, &censorable, &lines)?;
         censorable.into_iter().zip(counts).collect()
     };
@@ -174,29 +173,39 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
         )?;
         output::write_output(path, bytes, OutputKind::Pdf, &record)?;
     }
-    let text = if args.json {
-        let v = if args.property.is_some() {
-            text::trend_json(&trends[0])
-        } else {
-            json!({
-                "product": args.product.code(),
-                "properties": trends.iter().map(text::trend_json).collect::<Vec<_>>(),
-                "viscosity_vs_mn": visc.as_ref().map(text::visc_json),
-                "not_trended_text": text_keys,
-            })
-        };
-        serde_json::to_string_pretty(&v)? + "\n"
-    } else if args.property.is_some() {
-        text::detail(&trends[0], visc.as_ref(), &args.rules)
-    } else {
-        text::summary(
+    let text = if args.json && args.property.is_none() {
+        // Every property: written one at a time (issue #20), the document never held whole.
+        let mut out = std::io::BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
+        text::write_overview_json(
+            &mut out,
             args.product.code(),
             &trends,
             visc.as_ref(),
-            args.released_only,
-        ) + &product::exclusions_text(&text_keys, &censored)
+            &text_keys,
+        )?;
+        std::io::Write::flush(&mut out)?;
+        None
+    } else if args.json {
+        let mut out = std::io::BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
+        text::write_trend_json(&mut out, &trends[0])?;
+        std::io::Write::write_all(&mut out, b"\n")?;
+        std::io::Write::flush(&mut out)?;
+        None
+    } else if args.property.is_some() {
+        Some(text::detail(&trends[0], visc.as_ref(), &args.rules))
+    } else {
+        Some(
+            text::summary(
+                args.product.code(),
+                &trends,
+                visc.as_ref(),
+                args.released_only,
+            ) + &product::exclusions_text(&text_keys, &censored),
+        )
     };
-    crate::support::output::print(&text)?;
+    if let Some(text) = text {
+        crate::support::output::print(&text)?;
+    }
     Ok(if product::any_signal(&trends, visc.as_ref()) {
         Outcome::FellShort
     } else {

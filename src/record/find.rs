@@ -1,7 +1,6 @@
 //! Finding lots in a product's trend file: status, manufacture dates, windows on recorded
 //! values and a customer's requirements (read-only; the rules come from `spec`).
 
-use std::collections::HashMap;
 use std::path::Path;
 
 use chrono::NaiveDate;
@@ -9,7 +8,7 @@ use rust_decimal::Decimal;
 
 use crate::error::{Error, Result};
 use crate::lot::evaluate::Status;
-use crate::record::query::{Life, LotRow, Window};
+use crate::record::query::{Day, Life, LotRow, LotTable, Window};
 use crate::spec::customer::{customer_fit, Customer, CustomerProduct};
 use crate::spec::decision::{decimal_from_f64, round_recorded, Rounding};
 use crate::spec::keys;
@@ -57,38 +56,57 @@ pub struct LotFilter<'a> {
     pub precision: Option<&'a Precision>,
 }
 
+/// Decimals and rounding of each loaded key under one revision.
+type KeyPrecision = Vec<Option<(u32, Rounding)>>;
+
 /// Decimals and rounding of each loaded key, by the spec revision each lot was released
 /// under (the product's latest revision for a revision no longer in the specs): the reporting
 /// precision of certificates and `lookup`, so `find` compares and prints what a certificate
 /// prints (ASTM E29 through [`round_recorded`]; issue #16).
 #[derive(Debug, Clone, Default)]
 pub struct Precision {
-    by_revision: HashMap<&'static str, Vec<Option<(u32, Rounding)>>>,
+    /// A handful of revisions per product: a list searched in order beats hashing per lot.
+    by_revision: Vec<(&'static str, KeyPrecision)>,
 }
 
 impl Precision {
     /// The precision of `loaded` keys for every revision among `lots` of `product`.
     pub fn new(specs: &SpecSet, product: &str, lots: &[LotRow], loaded: &[String]) -> Precision {
+        Precision::of_revisions(specs, product, lots.iter().map(|r| r.revision), loaded)
+    }
+
+    /// The precision of `loaded` keys for each of `revisions` of `product` (repeats allowed).
+    pub fn of_revisions(
+        specs: &SpecSet,
+        product: &str,
+        revisions: impl IntoIterator<Item = &'static str>,
+        loaded: &[String],
+    ) -> Precision {
         let of = |spec: Option<&ProductSpec>| -> Vec<Option<(u32, Rounding)>> {
             loaded
                 .iter()
                 .map(|k| spec.and_then(|s| s.property(k).map(|p| (p.decimals, s.rounding))))
                 .collect()
         };
-        let mut by_revision = HashMap::new();
-        for row in lots {
-            by_revision.entry(row.revision).or_insert_with(|| {
-                of(specs
-                    .revision(product, row.revision)
-                    .or_else(|| specs.latest(product)))
-            });
+        let mut by_revision: Vec<(&'static str, KeyPrecision)> = Vec::new();
+        for rev in revisions {
+            if !by_revision.iter().any(|(r, _)| *r == rev) {
+                let spec = specs
+                    .revision(product, rev)
+                    .or_else(|| specs.latest(product));
+                by_revision.push((rev, of(spec)));
+            }
         }
         Precision { by_revision }
     }
 
     /// Decimals and rounding of loaded key `i` for `row`; `None` when no spec knows the key.
     pub fn of(&self, row: &LotRow, i: usize) -> Option<(u32, Rounding)> {
-        *self.by_revision.get(row.revision)?.get(i)?
+        let (_, v) = self
+            .by_revision
+            .iter()
+            .find(|(r, _)| std::ptr::eq(*r, row.revision) || *r == row.revision)?;
+        *v.get(i)?
     }
 
     /// The value of loaded key `i` as reported: rounded to the spec's decimals, or `None`
@@ -125,13 +143,31 @@ pub fn is_expired(
     let Some(spec) = specs.revision(product, row.revision) else {
         return false;
     };
-    let date = |d: &str| NaiveDate::parse_from_str(d, "%Y-%m-%d").ok();
+    let date = |d: &str| iso_date(d);
     let Some(made) = date(&row.manufactured) else {
         return false;
     };
     let retested = life.retested.and_then(|d| date(&d));
     crate::lot::disposition::retest_date(made, spec.retest_months, retested)
         .is_some_and(|until| crate::lot::disposition::expired(until, today))
+}
+
+/// A date as `NaiveDate::parse_from_str(d, "%Y-%m-%d")` reads it, with the form the record
+/// keeps (`YYYY-MM-DD`, ten bytes) read without the format parser: a search may judge a
+/// million lots (issue #20).
+fn iso_date(d: &str) -> Option<NaiveDate> {
+    let b = d.as_bytes();
+    let num = |r: std::ops::Range<usize>| -> Option<u32> {
+        b[r].iter().try_fold(0u32, |n, &c| {
+            c.is_ascii_digit().then(|| n * 10 + u32::from(c - b'0'))
+        })
+    };
+    if b.len() == 10 && b[4] == b'-' && b[7] == b'-' {
+        if let (Some(y), Some(m), Some(day)) = (num(0..4), num(5..7), num(8..10)) {
+            return NaiveDate::from_ymd_opt(y as i32, m, day);
+        }
+    }
+    NaiveDate::parse_from_str(d, "%Y-%m-%d").ok()
 }
 
 /// The customers' products that carry part number `pn` (exact match), as (customer, product
@@ -208,6 +244,41 @@ pub fn matching_indices_counted(
     loaded: &[String],
     filter: &LotFilter,
 ) -> (Vec<usize>, usize) {
+    matching_in(
+        lots.len(),
+        |i, row| row.clone_from(&lots[i]),
+        |i| (lots[i].manufactured, lots[i].line),
+        loaded,
+        filter,
+    )
+}
+
+/// [`matching_indices_counted`] over a [`LotTable`] (whose lives, when the filter has them,
+/// are the table's): each lot is looked at through one reused row, so no record is built per
+/// lot (issue #20); indices into the table, newest first.
+pub fn matching_in_table(
+    table: &LotTable,
+    loaded: &[String],
+    filter: &LotFilter,
+) -> (Vec<usize>, usize) {
+    matching_in(
+        table.len(),
+        |i, row| table.row_into(i, row),
+        |i| (table.made(i), table.line(i)),
+        loaded,
+        filter,
+    )
+}
+
+/// The lots `0..n` that meet `filter`, each put into one reused row by `fetch`, sorted newest
+/// first by `key` (manufacture date, record line); and how many were left out as expired.
+fn matching_in(
+    n: usize,
+    mut fetch: impl FnMut(usize, &mut LotRow),
+    key: impl Fn(usize) -> (Day, usize),
+    loaded: &[String],
+    filter: &LotFilter,
+) -> (Vec<usize>, usize) {
     let life_of = |i: usize| -> Life {
         filter
             .life
@@ -230,54 +301,61 @@ pub fn matching_indices_counted(
             )
         })
         .collect();
-    let mut hits: Vec<usize> = lots
-        .iter()
-        .enumerate()
-        .filter(|(_, row)| filter.status.is_none_or(|s| s.as_str() == row.status))
-        .filter(|(_, row)| {
-            let made: &str = &row.manufactured;
-            from.as_deref().is_none_or(|f| made >= f) && to.as_deref().is_none_or(|t| made <= t)
-        })
-        .filter(|(_, row)| {
-            filter
-                .windows
-                .iter()
-                .zip(&win_idx)
-                .zip(&bounds)
-                .all(|((w, &i), b)| in_window(row, i, w, *b, filter.precision))
-        })
-        .filter(|&(i, row)| {
-            filter.customer.is_none_or(|c| {
-                let life = life_of(i);
-                if life.concession.is_empty() {
-                    fits_customer(filter.product, row, loaded, c)
-                } else {
-                    // Under concession: for its customer, as conceded; for no one else.
-                    life.concession == c.customer
-                }
-            })
-        })
-        .filter(|&(i, row)| {
-            let Some(l) = filter.life else {
-                return true;
-            };
+    let mut row = LotRow {
+        line: 0,
+        lot: "".into(),
+        manufactured: Day::default(),
+        status: "",
+        revision: "",
+        mn_uncertainty: None,
+        values: Vec::new(),
+    };
+    // Dates compare as their bytes (YYYY-MM-DD): no text per lot.
+    let (from_day, to_day) = (from.as_deref().map(Day::from), to.as_deref().map(Day::from));
+    let mut hits: Vec<usize> = Vec::new();
+    for i in 0..n {
+        fetch(i, &mut row);
+        let row = &row;
+        if filter.status.is_some_and(|s| s.as_str() != row.status) {
+            continue;
+        }
+        let made = row.manufactured;
+        if !(from_day.is_none_or(|f| made >= f) && to_day.is_none_or(|t| made <= t)) {
+            continue;
+        }
+        let in_windows = filter
+            .windows
+            .iter()
+            .zip(&win_idx)
+            .zip(&bounds)
+            .all(|((w, &k), b)| in_window(row, k, w, *b, filter.precision));
+        if !in_windows {
+            continue;
+        }
+        let fits = filter.customer.is_none_or(|c| {
+            let life = life_of(i);
+            if life.concession.is_empty() {
+                fits_customer(filter.product, row, loaded, c)
+            } else {
+                // Under concession: for its customer, as conceded; for no one else.
+                life.concession == c.customer
+            }
+        });
+        if !fits {
+            continue;
+        }
+        if let Some(l) = filter.life {
             let gone = l
                 .specs
                 .is_some_and(|s| is_expired(filter.product, row, &life_of(i), s, l.today));
             if gone && !l.include_expired {
                 expired += 1;
-                return false;
+                continue;
             }
-            true
-        })
-        .map(|(i, _)| i)
-        .collect();
-    hits.sort_by(|&a, &b| {
-        let (a, b) = (&lots[a], &lots[b]);
-        b.manufactured
-            .cmp(&a.manufactured)
-            .then(b.line.cmp(&a.line))
-    });
+        }
+        hits.push(i);
+    }
+    hits.sort_by_key(|&i| std::cmp::Reverse(key(i)));
     (hits, expired)
 }
 
@@ -318,11 +396,12 @@ pub struct Found {
     pub keys: Vec<String>,
     /// The keys loaded into each [`LotRow`]'s values.
     pub loaded: Vec<String>,
-    /// Every lot's current row.
+    /// The current rows of the matching lots, newest first (issue #20: only the matches are
+    /// kept as rows).
     pub lots: Vec<LotRow>,
     /// Each lot's life (retest, concession), parallel to `lots`.
     pub lives: Vec<Life>,
-    /// Indices into `lots` of the matches, newest first.
+    /// Indices into `lots` of the matches, newest first (every index, in order).
     pub hits: Vec<usize>,
     /// Lots that met every other condition but are past their retest date and were left out.
     pub expired: usize,
@@ -410,8 +489,8 @@ pub fn search(s: &Search) -> Result<Found> {
     };
     // A customer's check needs every property.
     let loaded = keys_to_load(&keys, s.windows, s.every || customer.is_some());
-    let (_, lots, lives) =
-        crate::record::query::current_lots_with_life(s.trend_file, &loaded, customer.is_some())?;
+    let (_, table) =
+        crate::record::query::current_table_with_life(s.trend_file, &loaded, customer.is_some())?;
     // Issue #15: a customer's check works from the limits the lots were decided on, and
     // reads the words and censored results of the customer's special properties.
     let special: Option<SpecialCells> = match (&specs, &customer) {
@@ -428,7 +507,7 @@ pub fn search(s: &Search) -> Result<Found> {
                 })
                 .cloned()
                 .collect();
-            let lines: Vec<usize> = lots.iter().map(|l| l.line).collect();
+            let lines: Vec<usize> = (0..table.len()).map(|i| table.line(i)).collect();
             let cells = crate::record::query::raw_cells(s.trend_file, &special_keys, &lines)?;
             Some((special_keys, cells))
         }
@@ -444,7 +523,12 @@ pub fn search(s: &Search) -> Result<Found> {
         _ => None,
     };
     let precision = match (&specs, s.full_precision) {
-        (Some(sp), false) => Some(Precision::new(sp, s.product, &lots, &loaded)),
+        (Some(sp), false) => Some(Precision::of_revisions(
+            sp,
+            s.product,
+            table.revisions(),
+            &loaded,
+        )),
         _ => None,
     };
     let filter = LotFilter {
@@ -455,14 +539,21 @@ pub fn search(s: &Search) -> Result<Found> {
         to: s.to,
         customer: customer_check,
         life: Some(LifeCheck {
-            lives: &lives,
+            lives: table.lives(),
             specs: specs.as_ref(),
             today: s.today,
             include_expired: s.include_expired,
         }),
         precision: precision.as_ref(),
     };
-    let (hits, expired) = matching_indices_counted(&lots, &loaded, &filter);
+    let (found, expired) = matching_in_table(&table, &loaded, &filter);
+    // Rows for the matches only (issue #20): memory follows the hits, not the lots.
+    let lots: Vec<LotRow> = found.iter().map(|&i| table.row(i)).collect();
+    let lives: Vec<Life> = found
+        .iter()
+        .map(|&i| table.lives().get(i).copied().unwrap_or_default())
+        .collect();
+    let hits: Vec<usize> = (0..lots.len()).collect();
     let customer_name = customer.map(|c| c.name);
     Ok(Found {
         keys,
@@ -638,6 +729,30 @@ fn special_cell(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue #20: the quick date reader agrees with chrono's `%Y-%m-%d` parser.
+    #[test]
+    fn iso_date_reads_as_chrono_does() {
+        for d in [
+            "2026-03-01",
+            "2024-02-29",
+            "2025-02-29",
+            "2026-13-01",
+            "2026-00-10",
+            "0000-01-01",
+            "2026-1-01",
+            "2026/03/01",
+            "",
+            "2026-03-0x",
+            "9999-12-31",
+        ] {
+            assert_eq!(
+                iso_date(d),
+                NaiveDate::parse_from_str(d, "%Y-%m-%d").ok(),
+                "{d}"
+            );
+        }
+    }
 
     fn window(key: &str, lo: Option<f64>, hi: Option<f64>) -> Window {
         Window {

@@ -38,14 +38,16 @@ pub fn path_for(trend: &Path) -> PathBuf {
     trend.with_file_name(format!(".{stem}.lot-index"))
 }
 
-/// True for a file name the lot index uses (so folder walks can leave it out).
+/// True for a file name the lot index or the lot table cache
+/// ([`crate::record::table_cache`]) uses: derived files, so folder walks leave them out.
 pub fn is_index_name(name: &str) -> bool {
-    name.starts_with('.') && name.ends_with(".lot-index")
+    (name.starts_with('.') && name.ends_with(".lot-index"))
+        || crate::record::table_cache::is_cache_name(name)
 }
 
 /// What the index records about the trend file it was built from.
 #[derive(Debug, Clone, PartialEq, Eq)]
-struct Stamp {
+pub(crate) struct Stamp {
     len: u64,
     ino: u64,
     mtime: (i64, i64),
@@ -56,7 +58,7 @@ struct Stamp {
 
 impl Stamp {
     /// The stamp of the open trend file as it stands now.
-    fn of(file: &File, path: &Path) -> Result<Stamp> {
+    pub(crate) fn of(file: &File, path: &Path) -> Result<Stamp> {
         let m = file.metadata().map_err(|e| Error::io(path, "reading", e))?;
         Ok(Stamp {
             len: m.len(),
@@ -67,7 +69,8 @@ impl Stamp {
         })
     }
 
-    fn bytes(&self) -> Vec<u8> {
+    /// The index's magic followed by the stamp's fields.
+    pub(crate) fn bytes(&self) -> Vec<u8> {
         let mut v = Vec::with_capacity(HEAD);
         v.extend_from_slice(MAGIC);
         for x in [

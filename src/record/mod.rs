@@ -17,6 +17,7 @@ pub mod lines;
 pub mod query;
 pub mod scan;
 pub mod shipments;
+pub mod table_cache;
 pub mod trend_file;
 pub mod upgrade;
 pub mod workspace;

@@ -240,6 +240,18 @@ pub fn parse_date(flag: &str, text: &str) -> Result<NaiveDate> {
 pub struct Day([u8; 10]);
 
 impl Day {
+    /// The ten bytes as they are (the lot table cache keeps them so).
+    pub(crate) fn from_raw(b: &[u8]) -> Day {
+        let mut d = [0u8; 10];
+        d.copy_from_slice(&b[..10]);
+        Day(d)
+    }
+
+    /// The ten bytes.
+    pub(crate) fn as_bytes(&self) -> &[u8; 10] {
+        &self.0
+    }
+
     fn from_bytes(b: &[u8]) -> Day {
         let mut d = [b'?'; 10];
         let n = b.len().min(10);
@@ -378,6 +390,11 @@ pub struct LotRow {
 /// the life of the process. `table` is the scan's own cache; a miss there looks in one table
 /// for the whole process, so a long-running process (`resinlot serve`, issue #21) that scans
 /// the record on every request keeps one copy of each label, not one per scan.
+/// One process-wide copy of a short label (see [`intern`]).
+pub(crate) fn intern_label(text: &str) -> &'static str {
+    intern(&mut Vec::new(), text.as_bytes())
+}
+
 fn intern(table: &mut Vec<&'static str>, text: &[u8]) -> &'static str {
     static INTERNED: std::sync::Mutex<Vec<&'static str>> = std::sync::Mutex::new(Vec::new());
     let t = std::str::from_utf8(text).unwrap_or("?");
@@ -401,6 +418,33 @@ fn intern(table: &mut Vec<&'static str>, text: &[u8]) -> &'static str {
 /// a quoted field's span excludes its outer quotes (doubled quotes inside stay doubled, which
 /// never matters for the ids, dates and numbers read here).
 pub(crate) fn split_spans(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
+    out.clear();
+    // Fields here are short (ids, dates, numbers): a plain byte loop beats a vector search
+    // per field. A quote anywhere before the last field needed hands the line to the
+    // quote-aware split below (issue #20).
+    let mut start = 0;
+    let mut plain = true;
+    for (i, &b) in line.iter().enumerate() {
+        if b == b',' {
+            out.push((start, i));
+            if out.len() > upto {
+                return;
+            }
+            start = i + 1;
+        } else if b == b'"' {
+            plain = false;
+            break;
+        }
+    }
+    if plain {
+        out.push((start, line.len()));
+        return;
+    }
+    split_spans_quoted(line, upto, out);
+}
+
+/// [`split_spans`] for a line with quotes.
+fn split_spans_quoted(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
     out.clear();
     let mut start = 0;
     let mut quoted_from: Option<usize> = None; // inside a quoted field opened here
@@ -458,8 +502,18 @@ pub fn current_lots(
     keys: &[String],
     with_mn_uncertainty: bool,
 ) -> Result<(Vec<String>, Vec<LotRow>)> {
-    let (file_keys, rows, _) = current_lots_in(path, keys, with_mn_uncertainty, false, None)?;
-    Ok((file_keys, rows))
+    let (file_keys, table) = current_table(path, keys, with_mn_uncertainty)?;
+    Ok((file_keys, table.into_rows()))
+}
+
+/// [`current_lots`] as a [`LotTable`]: the same lots, column by column (no record per lot),
+/// which is what `trend` works on (issue #20).
+pub fn current_table(
+    path: &Path,
+    keys: &[String],
+    with_mn_uncertainty: bool,
+) -> Result<(Vec<String>, LotTable)> {
+    current_lots_in(path, keys, with_mn_uncertainty, false, None)
 }
 
 /// What `find` needs to know of a lot's life besides its latest row (issue #14): the test
@@ -473,13 +527,24 @@ pub struct Life {
     pub concession: &'static str,
 }
 
+/// [`current_table`] with each kept lot's [`Life`] ([`LotTable::lives`]).
+pub fn current_table_with_life(
+    path: &Path,
+    keys: &[String],
+    with_mn_uncertainty: bool,
+) -> Result<(Vec<String>, LotTable)> {
+    current_lots_in(path, keys, with_mn_uncertainty, true, None)
+}
+
 /// [`current_lots`] with each kept lot's [`Life`] (parallel to the lots).
 pub fn current_lots_with_life(
     path: &Path,
     keys: &[String],
     with_mn_uncertainty: bool,
 ) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
-    current_lots_in(path, keys, with_mn_uncertainty, true, None)
+    let (file_keys, mut table) = current_lots_in(path, keys, with_mn_uncertainty, true, None)?;
+    let lives = std::mem::take(&mut table.lives);
+    Ok((file_keys, table.into_rows(), lives))
 }
 
 /// [`current_lots`], with the lots' lives when `with_life`, and the number of scan parts fixed
@@ -490,13 +555,52 @@ fn current_lots_in(
     with_mn_uncertainty: bool,
     with_life: bool,
     parts: Option<usize>,
-) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
+) -> Result<(Vec<String>, LotTable)> {
     let header = read_header(path)?;
     let file_keys = trend_file::property_keys(&header);
-    let mut layout = RowLayout::new(path, &header, keys, with_mn_uncertainty)?;
+    // Checks the keys against the header first, whatever answers.
+    RowLayout::new(path, &header, keys, with_mn_uncertainty)?;
+    if parts.is_none() && keys.iter().all(|k| file_keys.contains(k)) {
+        // Through the lot table cache (issue #20): the scan below, of every property with
+        // the uncertainty and the lives, runs only when the cache is stale or missing.
+        let table = crate::record::table_cache::current(
+            path,
+            &file_keys,
+            keys,
+            with_mn_uncertainty,
+            with_life,
+            || scan_table(path, &header, &file_keys, true, true, None),
+        )?;
+        return Ok((file_keys, table));
+    }
+    let table = scan_table(path, &header, keys, with_mn_uncertainty, with_life, parts)?;
+    Ok((file_keys, table))
+}
+
+/// The scan's answer without the cache, as rows and lives (the reference the cache is tested
+/// against).
+#[cfg(test)]
+pub(crate) fn scanned_for_test(path: &Path, keys: &[&str]) -> (Vec<LotRow>, Vec<Life>) {
+    let keys: Vec<String> = keys.iter().map(|s| s.to_string()).collect();
+    let header = read_header(path).unwrap();
+    let mut t = scan_table(path, &header, &keys, true, true, None).unwrap();
+    let lives = std::mem::take(&mut t.lives);
+    (t.into_rows(), lives)
+}
+
+/// The scan behind [`current_lots_in`]: the latest row of every lot with `keys`.
+fn scan_table(
+    path: &Path,
+    header: &[String],
+    keys: &[String],
+    with_mn_uncertainty: bool,
+    with_life: bool,
+    parts: Option<usize>,
+) -> Result<LotTable> {
+    let mut layout = RowLayout::new(path, header, keys, with_mn_uncertainty)?;
     if with_life {
         // One split of each line serves both the row and its life.
-        layout.upto = layout.upto.max(LifeReader::new(&header).upto);
+        layout.upto = layout.upto.max(LifeReader::new(header).upto);
     }
     let parts = scan::parallel_body_in(
         path,
@@ -505,7 +609,7 @@ fn current_lots_in(
             PartRows::new(
                 keys.len(),
                 with_mn_uncertainty,
-                with_life.then(|| LifeReader::new(&header)),
+                with_life.then(|| LifeReader::new(header)),
             )
         },
         |part, n, _, line| {
@@ -515,8 +619,7 @@ fn current_lots_in(
             part.read(&layout, n, line)
         },
     )?;
-    let (rows, lives) = latest_rows(parts, keys.len());
-    Ok((file_keys, rows, lives))
+    Ok(latest_table(parts, keys.len()))
 }
 
 /// How many of the rows on `lines` (1-based line numbers, as in [`LotRow::line`]) record a
@@ -528,10 +631,16 @@ pub fn censored_counts(path: &Path, keys: &[String], lines: &[usize]) -> Result<
         .iter()
         .map(|k| header.iter().position(|c| c == k))
         .collect();
-    let wanted: std::collections::HashSet<usize> = lines.iter().copied().collect();
+    // The lines in file order, walked alongside the file (no hash set of a million lines).
+    let mut wanted: Vec<usize> = lines.to_vec();
+    wanted.sort_unstable();
+    let mut next = 0usize;
     let mut counts = vec![0; keys.len()];
     lines::for_each_line(path, lines::CHUNK, |line_no, line| {
-        if line_no == 1 || !wanted.contains(&line_no) || !line.contains(&b'<') {
+        while next < wanted.len() && wanted[next] < line_no {
+            next += 1;
+        }
+        if line_no == 1 || wanted.get(next) != Some(&line_no) || !line.contains(&b'<') {
             return Ok(());
         }
         let cells = trend_file::split_line(&String::from_utf8_lossy(line));
@@ -650,8 +759,10 @@ struct PartRows {
     status: Vec<u8>,
     revision: Vec<u8>,
     labels: Vec<Vec<u8>>,
-    mn_uncertainty: Vec<Option<f64>>,
-    values: Vec<Option<f64>>,
+    /// NaN for an empty cell (as in [`LotTable`]).
+    mn_uncertainty: Vec<f64>,
+    /// Row-major, `keys` per row, NaN for an empty cell.
+    values: Vec<f64>,
     /// The lives of the rows, when asked for.
     life: Option<LifeReader>,
     lives: Vec<Life>,
@@ -679,7 +790,7 @@ impl PartRows {
     }
 
     fn len(&self) -> usize {
-        self.hash.len()
+        self.line.len()
     }
 
     fn id(&self, i: usize) -> &[u8] {
@@ -733,10 +844,11 @@ impl PartRows {
         self.status.push(s);
         self.revision.push(r);
         if self.with_mn_uncertainty {
-            self.mn_uncertainty.push(number(field(4)));
+            self.mn_uncertainty
+                .push(number(field(4)).unwrap_or(f64::NAN));
         }
         for i in 0..self.keys {
-            self.values.push(number(field(5 + i)));
+            self.values.push(number(field(5 + i)).unwrap_or(f64::NAN));
         }
         if let Some(l) = &mut self.life {
             self.lives.push(l.read(&spans, line));
@@ -746,14 +858,62 @@ impl PartRows {
     }
 }
 
-/// A recorded cell as a number (None when empty or not a number).
+/// A recorded cell as a number (None when empty or not a number): [`exact_decimal`] for the
+/// plain decimals resinlot writes, the standard library's parser for anything else.
 fn number(s: &[u8]) -> Option<f64> {
     if s.is_empty() {
         return None;
     }
-    std::str::from_utf8(s)
-        .ok()
-        .and_then(|t| t.parse::<f64>().ok())
+    exact_decimal(s).or_else(|| {
+        std::str::from_utf8(s)
+            .ok()
+            .and_then(|t| t.parse::<f64>().ok())
+    })
+}
+
+/// Powers of ten that are exact in binary64 (10^0 to 10^22).
+const EXACT_POW10: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+
+/// A plain decimal `[-]digits[.digits]` of at most 15 significant digits, read exactly as the
+/// standard library reads it but without its general machinery (issue #20); None for any
+/// other form, which the caller hands to the standard parser.
+///
+/// Clinger's fast path: with the digits read as an integer m < 10^15 < 2^53 and k ≤ 22 digits
+/// after the point, both m and 10^k are exact doubles, and one IEEE 754 division rounds
+/// m / 10^k correctly, which is the correctly rounded value of the decimal text. Source:
+/// W. D. Clinger, "How to read floating point numbers accurately", PLDI 1990, §4.
+pub(crate) fn exact_decimal(s: &[u8]) -> Option<f64> {
+    let (negative, body) = match s.first()? {
+        b'-' => (true, &s[1..]),
+        _ => (false, s),
+    };
+    let mut mantissa: u64 = 0;
+    let mut digits = 0u32;
+    let mut point: Option<usize> = None;
+    for (i, &b) in body.iter().enumerate() {
+        match b {
+            b'0'..=b'9' => {
+                digits += 1;
+                if digits > 15 {
+                    return None;
+                }
+                mantissa = mantissa * 10 + u64::from(b - b'0');
+            }
+            b'.' if point.is_none() && i > 0 => point = Some(i),
+            _ => return None,
+        }
+    }
+    let after = match point {
+        Some(p) if p + 1 == body.len() => return None, // "5." goes to the standard parser
+        Some(p) => body.len() - p - 1,
+        None if digits == 0 => return None,
+        None => 0,
+    };
+    let v = mantissa as f64 / EXACT_POW10[after];
+    Some(if negative { -v } else { v })
 }
 
 /// The latest row of every lot over the scanned parts, in file order: the (hash, row) pairs
@@ -761,8 +921,11 @@ fn number(s: &[u8]) -> Option<f64> {
 /// row is kept (a retest supersedes what came before).
 ///
 /// With lives (the parts read them), each kept lot's life gets the latest retest date of any
-/// of the lot's rows, and the lives come back parallel to the rows (empty otherwise).
-fn latest_rows(mut parts: Vec<scan::Part<PartRows>>, keys: usize) -> (Vec<LotRow>, Vec<Life>) {
+/// of the lot's rows, and the table's lives are parallel to its rows (empty otherwise).
+///
+/// Memory (issue #20): the parts' hash columns are dropped once the pairs are made, and each
+/// part is dropped as soon as its kept rows are copied into the table.
+fn latest_table(mut parts: Vec<scan::Part<PartRows>>, keys: usize) -> LotTable {
     // Row r of the whole file is row r - first[k] of part k.
     let mut first = Vec::with_capacity(parts.len());
     let mut line_base = Vec::with_capacity(parts.len());
@@ -778,11 +941,10 @@ fn latest_rows(mut parts: Vec<scan::Part<PartRows>>, keys: usize) -> (Vec<LotRow
         (k, r - first[k])
     };
     let mut pairs: Vec<(u64, u32)> = Vec::with_capacity(rows);
-    for (k, p) in parts.iter().enumerate() {
+    for (k, p) in parts.iter_mut().enumerate() {
+        let hash = std::mem::take(&mut p.state.hash);
         pairs.extend(
-            p.state
-                .hash
-                .iter()
+            hash.iter()
                 .enumerate()
                 .map(|(i, &h)| (h, (first[k] + i) as u32)),
         );
@@ -793,6 +955,7 @@ fn latest_rows(mut parts: Vec<scan::Part<PartRows>>, keys: usize) -> (Vec<LotRow
     }
     let mut keep = vec![true; rows];
     let with_life = parts.iter().any(|p| p.state.life.is_some());
+    let with_mn = parts.iter().any(|p| p.state.with_mn_uncertainty);
     let mut retested: Vec<(u32, Option<Day>)> = Vec::new();
     let id = |r: u32| {
         let (k, i) = locate(r as usize);
@@ -829,32 +992,328 @@ fn latest_rows(mut parts: Vec<scan::Part<PartRows>>, keys: usize) -> (Vec<LotRow
         parts[k].state.lives[i].retested = latest;
     }
     let kept = keep.iter().filter(|&&k| k).count();
-    let mut out = Vec::with_capacity(kept);
-    let mut lives = Vec::with_capacity(if with_life { kept } else { 0 });
-    let mut labels: Vec<&'static str> = Vec::new();
+    let mut table = LotTable::with_capacity(keys, kept, with_mn, with_life);
+    let mut cache: Vec<&'static str> = Vec::new();
     for (k, p) in parts.into_iter().enumerate() {
         let p = p.state;
-        let names: Vec<&'static str> = p.labels.iter().map(|l| intern(&mut labels, l)).collect();
-        let name = |i: u8| names.get(i as usize).copied().unwrap_or("?");
+        let labels: Vec<u8> = p
+            .labels
+            .iter()
+            .map(|l| table.label_index(intern(&mut cache, l)))
+            .collect();
+        let label = |i: u8| labels.get(i as usize).copied().unwrap_or(LotTable::UNKNOWN);
         for i in 0..p.len() {
             if !keep[first[k] + i] {
                 continue;
             }
-            out.push(LotRow {
-                line: line_base[k] + p.line[i] as usize,
-                lot: LotId::from(std::str::from_utf8(p.id(i)).unwrap_or("?")),
-                manufactured: p.made[i],
-                status: name(p.status[i]),
-                revision: name(p.revision[i]),
-                mn_uncertainty: p.mn_uncertainty.get(i).copied().flatten(),
-                values: p.values[i * keys..(i + 1) * keys].to_vec(),
-            });
+            table.line.push(line_base[k] as u32 + p.line[i]);
+            table.ids.extend_from_slice(p.id(i));
+            table.id_end.push(table.ids.len() as u32);
+            table.made.push(p.made[i]);
+            table.status.push(label(p.status[i]));
+            table.revision.push(label(p.revision[i]));
+            if with_mn {
+                table
+                    .mn_uncertainty
+                    .push(p.mn_uncertainty.get(i).copied().unwrap_or(f64::NAN));
+            }
+            table
+                .values
+                .extend_from_slice(&p.values[i * keys..(i + 1) * keys]);
             if let Some(l) = p.lives.get(i) {
-                lives.push(*l);
+                table.lives.push(*l);
             }
         }
+        // `p` is dropped here: its memory is free before the next part is copied.
     }
-    (out, lives)
+    table
+}
+
+/// The current lots of a trend file column by column (issue #20): what [`LotRow`] holds for
+/// each lot, without a record per lot. Ids share one byte buffer, statuses and revisions are
+/// indices into a small table of labels, empty numbers are NaN. A million lots with one
+/// property take about 36 MB.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct LotTable {
+    pub(crate) keys: usize,
+    pub(crate) line: Vec<u32>,
+    pub(crate) ids: Vec<u8>,
+    pub(crate) id_end: Vec<u32>,
+    pub(crate) made: Vec<Day>,
+    pub(crate) status: Vec<u8>,
+    pub(crate) revision: Vec<u8>,
+    pub(crate) labels: Vec<&'static str>,
+    /// Empty unless asked for; NaN for an empty cell.
+    pub(crate) mn_uncertainty: Vec<f64>,
+    /// Row-major, `keys` per lot; NaN for an empty cell.
+    pub(crate) values: Vec<f64>,
+    /// Parallel to the lots when asked for (`find`), empty otherwise.
+    pub(crate) lives: Vec<Life>,
+}
+
+impl LotTable {
+    /// The label index that reads as "?" (more distinct labels than a table holds).
+    const UNKNOWN: u8 = 255;
+
+    fn with_capacity(keys: usize, lots: usize, with_mn: bool, with_life: bool) -> LotTable {
+        LotTable {
+            keys,
+            line: Vec::with_capacity(lots),
+            ids: Vec::new(),
+            id_end: Vec::with_capacity(lots),
+            made: Vec::with_capacity(lots),
+            status: Vec::with_capacity(lots),
+            revision: Vec::with_capacity(lots),
+            labels: Vec::new(),
+            mn_uncertainty: Vec::with_capacity(if with_mn { lots } else { 0 }),
+            values: Vec::with_capacity(lots * keys),
+            lives: Vec::with_capacity(if with_life { lots } else { 0 }),
+        }
+    }
+
+    fn label_index(&mut self, label: &'static str) -> u8 {
+        if let Some(i) = self.labels.iter().position(|l| *l == label) {
+            return i as u8;
+        }
+        if self.labels.len() >= Self::UNKNOWN as usize {
+            return Self::UNKNOWN;
+        }
+        self.labels.push(label);
+        (self.labels.len() - 1) as u8
+    }
+
+    /// A table from its columns (the lot table cache reads them so).
+    #[allow(clippy::too_many_arguments)]
+    pub(crate) fn from_parts(
+        keys: usize,
+        line: Vec<u32>,
+        ids: Vec<u8>,
+        id_end: Vec<u32>,
+        made: Vec<Day>,
+        status: Vec<u8>,
+        revision: Vec<u8>,
+        labels: Vec<&'static str>,
+        mn_uncertainty: Vec<f64>,
+        values: Vec<f64>,
+        lives: Vec<Life>,
+    ) -> LotTable {
+        LotTable {
+            keys,
+            line,
+            ids,
+            id_end,
+            made,
+            status,
+            revision,
+            labels,
+            mn_uncertainty,
+            values,
+            lives,
+        }
+    }
+
+    /// This table (loaded with every property `file_keys`) with only the values of `keys`,
+    /// and the uncertainty and lives only when asked for.
+    pub(crate) fn project(
+        mut self,
+        file_keys: &[String],
+        keys: &[String],
+        with_mn_uncertainty: bool,
+        with_life: bool,
+    ) -> LotTable {
+        let cols: Vec<usize> = keys
+            .iter()
+            .map(|k| file_keys.iter().position(|f| f == k).expect("keys checked"))
+            .collect();
+        let n = self.len();
+        let mut values = Vec::with_capacity(n * cols.len());
+        for i in 0..n {
+            for &c in &cols {
+                values.push(self.values[i * self.keys + c]);
+            }
+        }
+        self.values = values;
+        self.keys = cols.len();
+        if !with_mn_uncertainty {
+            self.mn_uncertainty = Vec::new();
+        }
+        if !with_life {
+            self.lives = Vec::new();
+        }
+        self
+    }
+
+    /// Number of lots.
+    pub fn len(&self) -> usize {
+        self.line.len()
+    }
+
+    /// True when the table holds no lot.
+    pub fn is_empty(&self) -> bool {
+        self.line.is_empty()
+    }
+
+    /// Number of property values per lot (the keys the table was loaded with).
+    pub fn keys(&self) -> usize {
+        self.keys
+    }
+
+    /// Line of lot `i`'s latest row in the trend file.
+    pub fn line(&self, i: usize) -> usize {
+        self.line[i] as usize
+    }
+
+    /// Id of lot `i`.
+    pub fn lot(&self, i: usize) -> &str {
+        let from = if i == 0 {
+            0
+        } else {
+            self.id_end[i - 1] as usize
+        };
+        std::str::from_utf8(&self.ids[from..self.id_end[i] as usize]).unwrap_or("?")
+    }
+
+    /// Manufacture date of lot `i`.
+    pub fn made(&self, i: usize) -> Day {
+        self.made[i]
+    }
+
+    /// Status of lot `i` (snake_case).
+    pub fn status(&self, i: usize) -> &'static str {
+        self.labels
+            .get(self.status[i] as usize)
+            .copied()
+            .unwrap_or("?")
+    }
+
+    /// Spec revision applied to lot `i`.
+    pub fn revision(&self, i: usize) -> &'static str {
+        self.labels
+            .get(self.revision[i] as usize)
+            .copied()
+            .unwrap_or("?")
+    }
+
+    /// Value of key `k` (in load order) of lot `i`; None when the cell is empty.
+    pub fn value(&self, i: usize, k: usize) -> Option<f64> {
+        let v = self.values[i * self.keys + k];
+        (!v.is_nan()).then_some(v)
+    }
+
+    /// Expanded uncertainty of lot `i`'s Mn, when it was loaded and recorded.
+    pub fn mn_uncertainty(&self, i: usize) -> Option<f64> {
+        self.mn_uncertainty.get(i).copied().filter(|v| !v.is_nan())
+    }
+
+    /// Lot `i` as a row.
+    pub fn row(&self, i: usize) -> LotRow {
+        LotRow {
+            line: self.line(i),
+            lot: LotId::from(self.lot(i)),
+            manufactured: self.made[i],
+            status: self.status(i),
+            revision: self.revision(i),
+            mn_uncertainty: self.mn_uncertainty(i),
+            values: (0..self.keys).map(|k| self.value(i, k)).collect(),
+        }
+    }
+
+    /// Puts lot `i` into `row`, reusing its allocation (for a pass over every lot).
+    pub fn row_into(&self, i: usize, row: &mut LotRow) {
+        row.line = self.line(i);
+        row.lot = LotId::from(self.lot(i));
+        row.manufactured = self.made[i];
+        row.status = self.status(i);
+        row.revision = self.revision(i);
+        row.mn_uncertainty = self.mn_uncertainty(i);
+        row.values.clear();
+        row.values.extend((0..self.keys).map(|k| self.value(i, k)));
+    }
+
+    /// The distinct spec revisions of the lots.
+    pub fn revisions(&self) -> Vec<&'static str> {
+        let mut seen = [false; 256];
+        for &r in &self.revision {
+            seen[r as usize] = true;
+        }
+        (0..256)
+            .filter(|&r| seen[r])
+            .map(|r| self.labels.get(r).copied().unwrap_or("?"))
+            .collect()
+    }
+
+    /// The lives of the lots (parallel to them) when they were loaded; empty otherwise.
+    pub fn lives(&self) -> &[Life] {
+        &self.lives
+    }
+
+    /// Every lot as a row, in table order.
+    pub fn into_rows(self) -> Vec<LotRow> {
+        (0..self.len()).map(|i| self.row(i)).collect()
+    }
+
+    /// A table of these rows (each with `keys` values), in their order.
+    pub fn from_rows(rows: &[LotRow]) -> LotTable {
+        let keys = rows.first().map_or(0, |r| r.values.len());
+        let with_mn = rows.iter().any(|r| r.mn_uncertainty.is_some());
+        let mut t = LotTable::with_capacity(keys, rows.len(), with_mn, false);
+        for r in rows {
+            t.line.push(r.line as u32);
+            t.ids.extend_from_slice(r.lot.as_bytes());
+            t.id_end.push(t.ids.len() as u32);
+            t.made.push(r.manufactured);
+            let (s, v) = (t.label_index(r.status), t.label_index(r.revision));
+            t.status.push(s);
+            t.revision.push(v);
+            if with_mn {
+                t.mn_uncertainty.push(r.mn_uncertainty.unwrap_or(f64::NAN));
+            }
+            for k in 0..keys {
+                t.values
+                    .push(r.values.get(k).copied().flatten().unwrap_or(f64::NAN));
+            }
+        }
+        t
+    }
+
+    /// The lots at `order` (indices into this table), in that order; the table itself when
+    /// `order` is every lot in table order.
+    pub fn gather(self, order: &[u32]) -> LotTable {
+        if order.len() == self.len() && order.iter().enumerate().all(|(i, &o)| o as usize == i) {
+            return self;
+        }
+        let mut t = LotTable::with_capacity(
+            self.keys,
+            order.len(),
+            !self.mn_uncertainty.is_empty(),
+            !self.lives.is_empty(),
+        );
+        t.labels = self.labels.clone();
+        for &o in order {
+            let i = o as usize;
+            t.line.push(self.line[i]);
+            let from = if i == 0 {
+                0
+            } else {
+                self.id_end[i - 1] as usize
+            };
+            t.ids
+                .extend_from_slice(&self.ids[from..self.id_end[i] as usize]);
+            t.id_end.push(t.ids.len() as u32);
+            t.made.push(self.made[i]);
+            t.status.push(self.status[i]);
+            t.revision.push(self.revision[i]);
+            if let Some(&u) = self.mn_uncertainty.get(i) {
+                t.mn_uncertainty.push(u);
+            }
+            t.values
+                .extend_from_slice(&self.values[i * self.keys..(i + 1) * self.keys]);
+            if let Some(l) = self.lives.get(i) {
+                t.lives.push(*l);
+            }
+        }
+        t
+    }
 }
 
 /// Reads the [`Life`] cells of a row: `supersedes`, `disposition`, `concession_customer`,
@@ -936,6 +1395,89 @@ pub fn trend_keys(path: &Path) -> Result<Vec<String>> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue #20: the fast decimal reader gives the standard library's value bit for bit
+    /// (the reference: Rust's `f64::from_str`, correctly rounded) on every form it accepts,
+    /// and declines the forms it does not handle.
+    #[test]
+    fn exact_decimal_matches_the_standard_parser() {
+        let mut state = 0x2545_f491_4f6c_dd1du64;
+        let mut next = || {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            state
+        };
+        for _ in 0..200_000 {
+            let r = next();
+            let int_digits = 1 + (r % 9) as usize;
+            let frac_digits = ((r >> 8) % 8) as usize;
+            let mut t = String::new();
+            if r >> 20 & 1 == 1 {
+                t.push('-');
+            }
+            for k in 0..int_digits {
+                t.push(char::from(b'0' + ((r >> (24 + 3 * k)) % 10) as u8));
+            }
+            if frac_digits > 0 {
+                t.push('.');
+                for _ in 0..frac_digits {
+                    t.push(char::from(b'0' + (next() % 10) as u8));
+                }
+            }
+            let want: f64 = t.parse().unwrap();
+            let got = exact_decimal(t.as_bytes());
+            if int_digits + frac_digits <= 15 {
+                assert_eq!(got.map(f64::to_bits), Some(want.to_bits()), "{t}");
+            }
+            assert_eq!(
+                number(t.as_bytes()).map(f64::to_bits),
+                Some(want.to_bits()),
+                "{t}"
+            );
+        }
+        for declined in [
+            "",
+            "-",
+            ".5",
+            "5.",
+            "1e3",
+            "+1",
+            "1.2.3",
+            "0x10",
+            "1234567890123456",
+        ] {
+            assert_eq!(exact_decimal(declined.as_bytes()), None, "{declined}");
+        }
+        assert_eq!(number(b"5."), Some(5.0));
+        assert_eq!(number(b"1e3"), Some(1000.0));
+        assert_eq!(number(b"<0.05"), None);
+        assert_eq!(
+            exact_decimal(b"-0").map(f64::to_bits),
+            Some((-0.0f64).to_bits())
+        );
+    }
+
+    /// Issue #20: the plain byte split and the quote-aware split agree on lines without quotes,
+    /// and a quote anywhere sends the line to the quote-aware one.
+    #[test]
+    fn plain_split_agrees_with_the_quoted_split() {
+        for line in [
+            &b"a,b,,c"[..],
+            b"",
+            b",",
+            b"1,2,3,4,5,6",
+            b"x,\"y,z\",w",
+            b"x,y,\"z\"\"q\",w",
+        ] {
+            for upto in 0..6 {
+                let (mut a, mut b) = (Vec::new(), Vec::new());
+                split_spans(line, upto, &mut a);
+                split_spans_quoted(line, upto, &mut b);
+                assert_eq!(a, b, "{:?} upto {upto}", String::from_utf8_lossy(line));
+            }
+        }
+    }
 
     /// Writes a trend file at `p` with the columns `keys` holding `rows`, through the lock and
     /// append of `record::trend_file` (test fixture: invented lots and values).
@@ -1025,13 +1567,18 @@ mod tests {
             })
             .collect();
         trend_file::write_for_test(&p, &keys, &rows);
-        let (_, one, lives) = current_lots_in(&p, &keys, true, true, Some(1)).unwrap();
-        assert_eq!(lives.len(), one.len());
+        let (_, one) = current_lots_in(&p, &keys, true, true, Some(1)).unwrap();
+        assert_eq!(one.lives.len(), one.len());
         for parts in [2, 3, 5, 8] {
-            let (_, got, got_lives) = current_lots_in(&p, &keys, true, true, Some(parts)).unwrap();
-            assert_eq!(got, one, "parts {parts}");
-            assert_eq!(got_lives, lives, "parts {parts}");
+            let (_, got) = current_lots_in(&p, &keys, true, true, Some(parts)).unwrap();
+            assert_eq!(
+                got.clone().into_rows(),
+                one.clone().into_rows(),
+                "parts {parts}"
+            );
+            assert_eq!(got.lives, one.lives, "parts {parts}");
         }
+        let one = one.into_rows();
         let got: Vec<(&str, usize, Option<f64>)> =
             one.iter().map(|r| (&*r.lot, r.line, r.values[0])).collect();
         // Header is line 1, so row i (from 0) is line i + 2.
@@ -1060,16 +1607,17 @@ mod tests {
             part.made.push(Day::from("2026-01-01"));
             part.status.push(0);
             part.revision.push(0);
-            part.values.push(Some(i as f64));
+            part.values.push(i as f64);
         }
         part.labels.push(b"released".to_vec());
-        let (rows, _) = latest_rows(
+        let rows = latest_table(
             vec![scan::Part {
                 state: part,
                 lines: 4,
             }],
             1,
-        );
+        )
+        .into_rows();
         let got: Vec<(&str, usize)> = rows.iter().map(|r| (&*r.lot, r.line)).collect();
         assert_eq!(got, [("Y2", 3), ("X1", 4), ("Z3", 5)]);
     }

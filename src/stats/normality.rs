@@ -50,9 +50,19 @@ pub fn anderson_darling(values: &[f64]) -> Option<Normality> {
     let nf = n as f64;
     // Σ (2i−1) ln Φ(zᵢ) + (2(n−i)+1) ln Φ(−zᵢ), i from 1: the same sum regrouped per point.
     let mut sum = 0.0;
+    // Equal values (results are recorded to a few decimals, so a long series repeats them)
+    // share one evaluation of the tails: the same x gives the same z bit for bit (issue #20).
+    let mut last: Option<(f64, (f64, f64))> = None;
     for (k, &x) in sorted.iter().enumerate() {
         let i = (k + 1) as f64;
-        let (ln_cdf, ln_sf) = ln_normal_cdf_pair((x - mean) / s);
+        let (ln_cdf, ln_sf) = match last {
+            Some((lx, pair)) if lx.to_bits() == x.to_bits() => pair,
+            _ => {
+                let pair = ln_normal_cdf_pair((x - mean) / s);
+                last = Some((x, pair));
+                pair
+            }
+        };
         sum += (2.0 * i - 1.0) * ln_cdf + (2.0 * (nf - i) + 1.0) * ln_sf;
     }
     let a2 = -nf - sum / nf;

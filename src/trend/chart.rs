@@ -30,7 +30,7 @@ pub struct ChartInput<'a> {
     /// Last manufacture date shown.
     pub date_to: &'a str,
     /// Lot ids in manufacture order, one per value.
-    pub lot_ids: &'a [crate::record::query::LotId],
+    pub lot_ids: &'a crate::trend::product::TrendLots,
     /// Property values in manufacture order.
     pub values: &'a [f64],
     /// Control limits (from the baseline).
@@ -1039,8 +1039,8 @@ mod tests {
     use super::*;
     use crate::stats::{imr_limits, nelson_signals, RuleSet};
 
-    fn lot_ids(ids: &[String]) -> Vec<crate::record::query::LotId> {
-        ids.iter().map(|s| s.as_str().into()).collect()
+    fn lot_ids(ids: &[String]) -> crate::trend::product::TrendLots {
+        crate::trend::product::TrendLots::of_ids(ids)
     }
 
     /// Invented test fixture: 30 lots of a fictional product with a planted upward shift.

@@ -1,12 +1,14 @@
 //! Lot-to-lot trending of one product: select lots, then I-MR limits, run rules, capability,
 //! normality and the viscosity–Mn check for each property (pure; no file I/O).
 
+use std::sync::Arc;
+
 use serde::Serialize;
 
 use rust_decimal::Decimal;
 
 use crate::error::{Error, Result};
-use crate::record::query::{LotId, LotRow};
+use crate::record::query::{Day, LotTable};
 use crate::spec::keys;
 use crate::spec::{ProductSpec, Property, SpecSet};
 use crate::stats::{self, Capability, Limits, Normality, RuleSet, SpecWindow};
@@ -34,24 +36,113 @@ pub struct Selection {
 }
 
 /// Keeps the selected lots (latest row of each), in manufacture order (then record order).
-pub fn select(mut lots: Vec<LotRow>, sel: &Selection) -> Vec<LotRow> {
-    // Dates are YYYY-MM-DD, so text order is date order: no parsing per lot.
-    let (from, to) = (
-        sel.from.map(|d| d.to_string()),
-        sel.to.map(|d| d.to_string()),
-    );
-    lots.retain(|l| {
-        let d: &str = &l.manufactured;
-        (!sel.released_only || l.status == "released")
-            && from.as_deref().is_none_or(|f| d >= f)
-            && to.as_deref().is_none_or(|t| d <= t)
-    });
-    lots.sort_by(|a, b| {
-        a.manufactured
-            .cmp(&b.manufactured)
-            .then(a.line.cmp(&b.line))
-    });
-    lots
+/// The table is in record order, so a stable sort on the date keeps record order within a day;
+/// a table already selected and in order is returned as it is (no copy, issue #20).
+pub fn select(lots: LotTable, sel: &Selection) -> LotTable {
+    // Dates are YYYY-MM-DD, so byte order is date order: no parsing per lot.
+    let (from, to) = (sel.from.map(day_of), sel.to.map(day_of));
+    let mut order: Vec<u32> = (0..lots.len() as u32)
+        .filter(|&i| {
+            let i = i as usize;
+            let d = lots.made(i);
+            (!sel.released_only || lots.status(i) == "released")
+                && from.is_none_or(|f| d >= f)
+                && to.is_none_or(|t| d <= t)
+        })
+        .collect();
+    debug_assert!((1..lots.len()).all(|i| lots.line(i - 1) < lots.line(i)));
+    if !order
+        .windows(2)
+        .all(|w| lots.made(w[0] as usize) <= lots.made(w[1] as usize))
+    {
+        order.sort_by_key(|&i| lots.made(i as usize));
+    }
+    lots.gather(&order)
+}
+
+/// A date as the record keeps it.
+fn day_of(d: chrono::NaiveDate) -> Day {
+    Day::from(d.to_string().as_str())
+}
+
+/// The lots of one property's trend, in order: indices into the selected lots, which every
+/// property of a trend shares (ids and dates are not copied per property, issue #20).
+#[derive(Debug, Clone)]
+pub struct TrendLots {
+    table: Arc<LotTable>,
+    /// Indices into `table`; None when every lot of the table has a value.
+    rows: Option<Vec<u32>>,
+}
+
+impl TrendLots {
+    /// The lots `rows` of `table` (None: all of them, in order).
+    pub fn new(table: Arc<LotTable>, rows: Option<Vec<u32>>) -> TrendLots {
+        TrendLots { table, rows }
+    }
+
+    /// Lots with these ids (invented test fixtures and charts drawn without a record), dated
+    /// 1970-01-01.
+    pub fn of_ids<S: AsRef<str>>(ids: &[S]) -> TrendLots {
+        let rows: Vec<crate::record::query::LotRow> = ids
+            .iter()
+            .enumerate()
+            .map(|(i, id)| crate::record::query::LotRow {
+                line: i + 2,
+                lot: id.as_ref().into(),
+                manufactured: Day::from("1970-01-01"),
+                status: "released",
+                revision: "",
+                mn_uncertainty: None,
+                values: Vec::new(),
+            })
+            .collect();
+        TrendLots::new(Arc::new(LotTable::from_rows(&rows)), None)
+    }
+
+    fn at(&self, i: usize) -> usize {
+        match &self.rows {
+            Some(r) => r[i] as usize,
+            None => i,
+        }
+    }
+
+    /// Number of lots.
+    pub fn len(&self) -> usize {
+        self.rows.as_ref().map_or(self.table.len(), Vec::len)
+    }
+
+    /// True when there is no lot.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Id of the `i`-th lot.
+    pub fn id(&self, i: usize) -> &str {
+        self.table.lot(self.at(i))
+    }
+
+    /// Manufacture date of the `i`-th lot.
+    pub fn date(&self, i: usize) -> Day {
+        self.table.made(self.at(i))
+    }
+
+    /// The ids in order.
+    pub fn iter(&self) -> impl Iterator<Item = &str> + '_ {
+        (0..self.len()).map(|i| self.id(i))
+    }
+}
+
+impl std::ops::Index<usize> for TrendLots {
+    type Output = str;
+    fn index(&self, i: usize) -> &str {
+        self.id(i)
+    }
+}
+
+impl Serialize for TrendLots {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
+        s.collect_seq(self.iter())
+    }
 }
 
 /// One signal, tied to its lot.
@@ -106,15 +197,13 @@ pub struct PropertyTrend {
     pub normality: Option<Normality>,
     /// Warnings about how far the figures can be trusted.
     pub warnings: Vec<String>,
-    /// Lot ids in order (for charts), kept inline (no allocation per lot, issue #20).
+    /// The lots in order, one per value, with their ids and manufacture dates (for charts
+    /// and the report's signal list); shared with the other properties (issue #20).
     #[serde(skip)]
-    pub lots: Vec<LotId>,
+    pub lots: TrendLots,
     /// Values in order (for charts).
     #[serde(skip)]
     pub values: Vec<f64>,
-    /// Manufacture dates in order, one per value (for the report's signal list).
-    #[serde(skip)]
-    pub dates: Vec<crate::record::query::Day>,
     /// Raw signals (for charts).
     #[serde(skip)]
     pub raw_signals: Vec<stats::Signal>,
@@ -128,22 +217,21 @@ pub fn property_trend(
     column: usize,
     label: &str,
     unit: &str,
-    lots: &[LotRow],
+    lots: &Arc<LotTable>,
     window: SpecWindow,
     spec_revision: Option<String>,
     baseline: &Baseline,
     rules: RuleSet,
 ) -> Result<PropertyTrend> {
-    let mut ids = Vec::new();
-    let mut dates = Vec::new();
-    let mut values = Vec::new();
-    for l in lots {
-        if let Some(v) = l.values[column] {
-            ids.push(l.lot.clone());
-            dates.push(l.manufactured);
+    let mut rows = Vec::new();
+    let mut values = Vec::with_capacity(lots.len());
+    for i in 0..lots.len() {
+        if let Some(v) = lots.value(i, column) {
+            rows.push(i as u32);
             values.push(v);
         }
     }
+    let ids = TrendLots::new(lots.clone(), (rows.len() < lots.len()).then_some(rows));
     if values.len() < 2 {
         return Err(Error::invalid(
             format!("{product} {key}"),
@@ -158,8 +246,8 @@ pub fn property_trend(
         Baseline::All => values.len(),
         Baseline::First(n) => (*n).min(values.len()),
         Baseline::Until(d) => {
-            let d = d.to_string();
-            dates.iter().take_while(|m| &***m <= d.as_str()).count()
+            let d = day_of(*d);
+            (0..ids.len()).take_while(|&i| ids.date(i) <= d).count()
         }
     };
     if base_n < 2 {
@@ -175,9 +263,9 @@ pub fn property_trend(
         .iter()
         .map(|s| LotSignal {
             rule: s.rule,
-            lot: ids[s.index].to_string(),
+            lot: ids.id(s.index).to_string(),
             index: s.index,
-            manufactured: dates[s.index].to_string(),
+            manufactured: ids.date(s.index).to_string(),
             description: s.description,
         })
         .collect();
@@ -213,8 +301,8 @@ pub fn property_trend(
         label: label.to_string(),
         unit: unit.to_string(),
         n: values.len(),
-        date_from: dates.first().map(|d| d.to_string()).unwrap_or_default(),
-        date_to: dates.last().map(|d| d.to_string()).unwrap_or_default(),
+        date_from: ids.date(0).to_string(),
+        date_to: ids.date(ids.len() - 1).to_string(),
         baseline_n: base_n,
         limits,
         signals,
@@ -226,7 +314,6 @@ pub fn property_trend(
         warnings,
         lots: ids,
         values,
-        dates,
         raw_signals,
     })
 }
@@ -262,10 +349,10 @@ pub fn columns_for(keys: &[String], property: Option<&str>) -> Vec<String> {
 
 /// The spec revision in effect for the latest selected lot (lots in manufacture order), or the
 /// product's latest revision when none is dated for it.
-pub fn spec_for<'a>(specs: &'a SpecSet, product: &str, lots: &[LotRow]) -> Option<&'a ProductSpec> {
-    let latest_date = lots
-        .last()
-        .and_then(|l| chrono::NaiveDate::parse_from_str(&l.manufactured, "%Y-%m-%d").ok());
+pub fn spec_for<'a>(specs: &'a SpecSet, product: &str, lots: &LotTable) -> Option<&'a ProductSpec> {
+    let latest_date = (!lots.is_empty())
+        .then(|| lots.made(lots.len() - 1))
+        .and_then(|d| chrono::NaiveDate::parse_from_str(&d, "%Y-%m-%d").ok());
     latest_date
         .and_then(|d| specs.for_date(product, d).ok())
         .or_else(|| specs.latest(product))
@@ -288,7 +375,7 @@ pub struct TrendRequest<'a> {
     /// Columns the lots were loaded with, in order.
     pub columns: &'a [String],
     /// Selected lots, in manufacture order.
-    pub lots: &'a [LotRow],
+    pub lots: &'a Arc<LotTable>,
     /// Spec revision giving labels, units and windows (None: keys, no window).
     pub spec: Option<&'a ProductSpec>,
     /// One property, or None for every column.
@@ -302,26 +389,37 @@ pub struct TrendRequest<'a> {
 /// The trend of the one property asked for, or of every column; in the overview a property
 /// with too few values is skipped, not fatal. Errors when no trend remains.
 pub fn property_trends(req: &TrendRequest) -> Result<Vec<PropertyTrend>> {
+    use rayon::prelude::*;
+    let wanted: Vec<(usize, &String)> = req
+        .columns
+        .iter()
+        .enumerate()
+        .filter(|(_, key)| req.property.is_none_or(|p| p == *key))
+        .collect();
+    // The properties are independent: one per core at a time (issue #20), kept in column order.
+    let results: Vec<Result<PropertyTrend>> = wanted
+        .par_iter()
+        .map(|&(col, key)| {
+            let p = req.spec.and_then(|s| s.property(key));
+            let label = p.map_or(key.as_str(), |p| p.label.as_str());
+            let unit = p.map_or("", |p| if p.unit == "1" { "" } else { p.unit.as_str() });
+            property_trend(
+                req.product,
+                key,
+                col,
+                label,
+                unit,
+                req.lots,
+                spec_window(p),
+                req.spec.map(|s| s.revision.clone()),
+                req.baseline,
+                req.rules,
+            )
+        })
+        .collect();
     let mut trends = Vec::new();
-    for (col, key) in req.columns.iter().enumerate() {
-        if req.property.is_some_and(|p| p != key) {
-            continue;
-        }
-        let p = req.spec.and_then(|s| s.property(key));
-        let label = p.map_or(key.as_str(), |p| p.label.as_str());
-        let unit = p.map_or("", |p| if p.unit == "1" { "" } else { p.unit.as_str() });
-        match property_trend(
-            req.product,
-            key,
-            col,
-            label,
-            unit,
-            req.lots,
-            spec_window(p),
-            req.spec.map(|s| s.revision.clone()),
-            req.baseline,
-            req.rules,
-        ) {
+    for r in results {
+        match r {
             Ok(t) => trends.push(t),
             Err(_) if req.property.is_none() => {}
             Err(e) => return Err(e),
@@ -442,17 +540,16 @@ pub struct ViscosityPoint {
 }
 
 /// The viscosity–Mn check when both columns were loaded ([`viscosity_check`]).
-pub fn viscosity_check_of(lots: &[LotRow], columns: &[String]) -> Option<ViscosityCheck> {
+pub fn viscosity_check_of(lots: &LotTable, columns: &[String]) -> Option<ViscosityCheck> {
     let at = |k: &str| columns.iter().position(|c| c == k);
     viscosity_check(lots, at(keys::MN)?, at(keys::VISCOSITY)?)
 }
 
 /// Fits log viscosity against log Mn and lists the lots off the line, or None when fewer than
 /// three lots have both values.
-pub fn viscosity_check(lots: &[LotRow], mn: usize, visc: usize) -> Option<ViscosityCheck> {
-    let pairs: Vec<(&LotRow, f64, f64)> = lots
-        .iter()
-        .filter_map(|l| match (l.values[mn], l.values[visc]) {
+pub fn viscosity_check(lots: &LotTable, mn: usize, visc: usize) -> Option<ViscosityCheck> {
+    let pairs: Vec<(usize, f64, f64)> = (0..lots.len())
+        .filter_map(|l| match (lots.value(l, mn), lots.value(l, visc)) {
             (Some(m), Some(v)) if m > 0.0 && v > 0.0 => Some((l, m, v)),
             _ => None,
         })
@@ -464,8 +561,8 @@ pub fn viscosity_check(lots: &[LotRow], mn: usize, visc: usize) -> Option<Viscos
         .flagged
         .iter()
         .map(|&i| OffLine {
-            lot: pairs[i].0.lot.to_string(),
-            manufactured: pairs[i].0.manufactured.to_string(),
+            lot: lots.lot(pairs[i].0).to_string(),
+            manufactured: lots.made(pairs[i].0).to_string(),
             robust_z: if fit.robust_sd > 0.0 {
                 (fit.residuals[i] - fit.residual_median) / fit.robust_sd
             } else {
@@ -475,10 +572,10 @@ pub fn viscosity_check(lots: &[LotRow], mn: usize, visc: usize) -> Option<Viscos
         .collect();
     let points = pairs
         .iter()
-        .map(|(l, m, v)| ViscosityPoint {
-            lot: l.lot.to_string(),
-            mn: *m,
-            viscosity: *v,
+        .map(|&(l, m, v)| ViscosityPoint {
+            lot: lots.lot(l).to_string(),
+            mn: m,
+            viscosity: v,
         })
         .collect();
     Some(ViscosityCheck {
@@ -491,6 +588,7 @@ pub fn viscosity_check(lots: &[LotRow], mn: usize, visc: usize) -> Option<Viscos
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::record::query::LotRow;
 
     // Fixture lots with invented values; every expected number below is counted by hand.
     fn lot(
@@ -539,7 +637,7 @@ mod tests {
             0,
             "Acid value",
             "mg KOH/g",
-            lots,
+            &Arc::new(LotTable::from_rows(lots)),
             SpecWindow {
                 min: None,
                 max: None,
@@ -559,7 +657,12 @@ mod tests {
             lot(5, "B2", "2026-03-02", "rejected", &[]),
             lot(6, "D", "2026-03-04", "released", &[]),
         ];
-        let ids = |v: Vec<LotRow>| v.iter().map(|l| l.lot.to_string()).collect::<Vec<_>>();
+        let ids = |v: LotTable| {
+            (0..v.len())
+                .map(|i| v.lot(i).to_string())
+                .collect::<Vec<_>>()
+        };
+        let lots = LotTable::from_rows(&lots);
         // Same day: record order (line) decides.
         assert_eq!(
             ids(select(lots.clone(), &Selection::default())),
@@ -644,7 +747,7 @@ mod tests {
         // Up to 2026-03-03: lots L0 and L2 have values (L1 has none), so 2 baseline lots.
         let t = trend(&lots, &Baseline::Until(date("2026-03-03"))).unwrap();
         assert_eq!((t.n, t.baseline_n), (4, 2));
-        assert_eq!(t.lots, ["L0", "L2", "L3", "L4"]);
+        assert_eq!(t.lots.iter().collect::<Vec<_>>(), ["L0", "L2", "L3", "L4"]);
         // x̄ of 10 and 11 = 10.5, one range of 1.
         assert!((t.limits.mean - 10.5).abs() < 1e-12);
         assert!((t.limits.mr_bar - 1.0).abs() < 1e-12);
@@ -666,6 +769,6 @@ mod tests {
     fn viscosity_check_needs_both_columns() {
         let lots = series(&[10.0, 12.0, 11.0]);
         let cols = vec!["mn".to_string()];
-        assert!(viscosity_check_of(&lots, &cols).is_none());
+        assert!(viscosity_check_of(&LotTable::from_rows(&lots), &cols).is_none());
     }
 }

@@ -836,7 +836,13 @@ fn signal_summary(t: &PropertyTrend, marked: &[MarkedLot]) -> String {
 /// lots newest first within each group, every lot with the tag number it has on the chart.
 fn signal_lines(face: &Face, t: &PropertyTrend, marked: &[MarkedLot], width: f32) -> Vec<ListLine> {
     const SIZE: f32 = 8.0;
-    let made = |i: usize| t.dates.get(i).map(|d| d.to_string()).unwrap_or_default();
+    let made = |i: usize| {
+        if i < t.lots.len() {
+            t.lots.date(i).to_string()
+        } else {
+            String::new()
+        }
+    };
     // Each group: what was found, its colour, what it means, and its lots.
     type Group = (String, (f32, f32, f32), String, Vec<ListItem>);
     let mut groups: Vec<Group> = Vec::new();
@@ -1126,7 +1132,7 @@ fn off_line_table(page: &mut Canvas, v: &ViscosityCheck, top: f32) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::record::query::LotRow;
+    use crate::record::query::{LotRow, LotTable};
     use crate::stats::{RuleSet, SpecWindow};
     use crate::trend::product::{property_trend, viscosity_check, Baseline};
     use printpdf::PdfParseOptions;
@@ -1189,7 +1195,7 @@ mod tests {
             0,
             "Mn",
             "g/mol",
-            lots,
+            &std::sync::Arc::new(LotTable::from_rows(lots)),
             SpecWindow {
                 min: Some(1900.0),
                 max: Some(2100.0),
@@ -1205,7 +1211,7 @@ mod tests {
             1,
             "Acid value",
             "mg KOH/g",
-            lots,
+            &std::sync::Arc::new(LotTable::from_rows(lots)),
             SpecWindow {
                 min: None,
                 max: Some(2.0),
@@ -1301,7 +1307,7 @@ mod tests {
     fn viscosity_page_lists_the_lot_off_the_line() {
         let lots = invented_lots();
         let t = trends(&lots);
-        let v = viscosity_check(&lots, 0, 2).unwrap();
+        let v = viscosity_check(&LotTable::from_rows(&lots), 0, 2).unwrap();
         assert!(
             v.off_line.iter().any(|o| o.lot == "TST-020"),
             "{:?}",
@@ -1344,7 +1350,7 @@ mod tests {
             0,
             "Mn",
             "g/mol",
-            &lots,
+            &std::sync::Arc::new(LotTable::from_rows(&lots)),
             SpecWindow {
                 min: None,
                 max: None,
@@ -1388,7 +1394,7 @@ mod tests {
     fn rendering_is_deterministic() {
         let lots = invented_lots();
         let t = trends(&lots);
-        let v = viscosity_check(&lots, 0, 2).unwrap();
+        let v = viscosity_check(&LotTable::from_rows(&lots), 0, 2).unwrap();
         let a = render_report(&input(&t, Some(&v))).unwrap();
         let b = render_report(&input(&t, Some(&v))).unwrap();
         assert!(a == b, "two renders of the same input differ");
@@ -1421,7 +1427,7 @@ mod tests {
             0,
             "Mn",
             "g/mol",
-            &lots,
+            &std::sync::Arc::new(LotTable::from_rows(&lots)),
             SpecWindow {
                 min: None,
                 max: Some(175.0),

@@ -266,7 +266,7 @@ pub fn viscosity_svg(product: &str, unit: &str, v: &ViscosityCheck) -> Result<Ve
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::record::query::LotRow;
+    use crate::record::query::{LotRow, LotTable};
     use crate::support::visual::check;
     use crate::trend::product::viscosity_check;
 
@@ -297,7 +297,7 @@ mod tests {
     #[test]
     fn band_at_the_mean_is_t_s_root_of_one_plus_one_over_n() {
         // Draper & Smith §1.4: at x = x̄ the half-width is t·s·√(1 + 1/n).
-        let v = viscosity_check(&lots(), 0, 1).unwrap();
+        let v = viscosity_check(&LotTable::from_rows(&lots()), 0, 1).unwrap();
         let l = &v.fit.line;
         let (lo, hi) = prediction_band(l, l.x_mean);
         let t = student_t_quantile(0.975, (l.n - 2) as f64);
@@ -311,7 +311,7 @@ mod tests {
 
     #[test]
     fn one_marker_per_lot_the_off_line_lot_named_and_tidy_text() {
-        let v = viscosity_check(&lots(), 0, 1).unwrap();
+        let v = viscosity_check(&LotTable::from_rows(&lots()), 0, 1).unwrap();
         assert!(
             v.off_line.iter().any(|o| o.lot == "V-007"),
             "{:?}",

@@ -69,8 +69,8 @@ fn build(config: &crate::web::Config, code: &str) -> Result<ProductPage, PageErr
     let specs = SpecSet::load(&config.specs)?;
     let keys = crate::record::query::trend_keys(&path)?;
     let columns = product::columns_for(&keys, None);
-    let (_, lots) = crate::record::query::current_lots(&path, &columns, false)?;
-    let lots = product::select(lots, &Selection::default());
+    let (_, lots) = crate::record::query::current_table(&path, &columns, false)?;
+    let lots = std::sync::Arc::new(product::select(lots, &Selection::default()));
     if lots.len() < 2 {
         return Err(PageError::not_found(format!(
             "Product {code} has {} lot in the record; a trend needs at least two.",
