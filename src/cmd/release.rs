@@ -524,7 +524,7 @@ fn streamed_dry_run<'s>(
                 take(chunk);
             }
         };
-        let scan = intake::scan_wide(&file, bytes, opts.clone(), &mut |lot, twin| {
+        let scan = intake::scan_wide(file, bytes, opts.clone(), &mut |lot, twin| {
             lots.push(lot);
             twins.push(twin);
             if lots.len() == CHUNK {
@@ -1275,4 +1275,43 @@ fn render(
         .count();
     out.push_str(&summary_line(&counts, unchanged, register, dry_run));
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Issue #13 item 11: the rows a dry run keeps come back as they went in, empty cells,
+    /// every status and rows across a block boundary included.
+    #[test]
+    fn row_store_gives_back_its_rows_issue_13() {
+        let mut store = RowStore::default();
+        let rows: Vec<(Status, Vec<String>)> = (0..40_000)
+            .map(|i| {
+                let status = STATUSES[i % 4];
+                let cells = vec![
+                    format!("L{i:06}"),
+                    if i % 11 == 0 {
+                        String::new()
+                    } else {
+                        "C".into()
+                    },
+                    format!("{}.{:02} (cond. pass)", i % 7, i % 100),
+                    "mPa·s".into(),
+                ];
+                (status, cells)
+            })
+            .collect();
+        for (status, cells) in &rows {
+            let mut encoded = String::new();
+            RowStore::encode(&mut encoded, *status, cells.iter().map(String::as_str));
+            store.push(&encoded);
+        }
+        assert!(store.blocks.len() > 1, "the rows should span blocks");
+        let back: Vec<(Status, Vec<String>)> = store
+            .rows()
+            .map(|(s, cells)| (s, cells.map(str::to_string).collect()))
+            .collect();
+        assert_eq!(back, rows);
+    }
 }

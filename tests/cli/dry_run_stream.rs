@@ -294,7 +294,11 @@ fn many(
 ) {
     (
         format!("Q{i:05}"),
-        if i % 3 == 0 { "TP-3000" } else { "TP-2000" },
+        if i.is_multiple_of(3) {
+            "TP-3000"
+        } else {
+            "TP-2000"
+        },
         if i % 5 == 1 {
             format!("2025-08-{:02}", 1 + i % 28)
         } else {
@@ -303,7 +307,11 @@ fn many(
         format!("{:.2}", 0.40 + (i % 9) as f64 * 0.09),
         format!("{:.1}", 52.0 + (i % 17) as f64 * 0.45),
         format!("{}", 440 + (i % 23) * 10),
-        if i % 7 == 0 { "batch note" } else { "" },
+        if i.is_multiple_of(7) {
+            "batch note"
+        } else {
+            ""
+        },
     )
 }
 
