@@ -459,8 +459,11 @@ pub fn scan_wide<'a>(
     .wide_layout()?;
     // Sized once from the line count (an upper bound on the rows), so that neither table
     // is copied to grow while the file is read: growing them held old and new copies at once
-    // and set the peak memory of a million lots (issue #13, item 11).
-    let most = memchr::memchr_iter(b'\n', text.as_bytes()).count() + 1;
+    // and set the peak memory of a million lots (issue #13, item 11). A row holds at least a
+    // lot id, a product code and a 10-character date with two separators (14 bytes), so a
+    // file of blank lines does not reserve a table for each.
+    let lines = memchr::memchr_iter(b'\n', text.as_bytes()).count() + 1;
+    let most = lines.min(text.len() / 14 + 1);
     let mut scan = WideScan {
         name,
         text,
