@@ -436,6 +436,32 @@ fn write_csv(out: &mut impl Write, searched: &[Searched], hits: &[Hit]) -> anyho
     let mut header = vec!["lot", "product", "manufactured", "status"];
     header.extend(keys.iter().copied());
     w.write_record(&header).map_err(csv_error)?;
+    w.flush()?;
+    let out = w
+        .into_inner()
+        .map_err(|e| anyhow::anyhow!("writing CSV: {e}"))?;
+    // Issue #20: the lines are made on every core, a block of hits at a time, and written
+    // in order as each block is done, so memory holds one block's text, not the answer's.
+    use rayon::prelude::*;
+    for block in hits.chunks(CSV_BLOCK) {
+        let texts: Vec<anyhow::Result<Vec<u8>>> = block
+            .par_chunks(CSV_BLOCK / 8)
+            .map(|part| csv_lines(&keys, part))
+            .collect();
+        for t in texts {
+            out.write_all(&t?)?;
+        }
+    }
+    out.flush()?;
+    Ok(())
+}
+
+/// Hits per block of [`write_csv`].
+const CSV_BLOCK: usize = 8192;
+
+/// The CSV lines of `hits` (no header), as [`write_csv`] writes them.
+fn csv_lines(keys: &[&str], hits: &[Hit]) -> anyhow::Result<Vec<u8>> {
+    let mut w = csv::Writer::from_writer(Vec::with_capacity(hits.len() * 96));
     let mut rec: Vec<String> = Vec::new();
     for h in hits {
         let row = h.row();
@@ -449,8 +475,8 @@ fn write_csv(out: &mut impl Write, searched: &[Searched], hits: &[Hit]) -> anyho
         rec.extend(keys.iter().map(|k| h.value(&row, k).unwrap_or_default()));
         w.write_record(&rec).map_err(csv_error)?;
     }
-    w.flush()?;
-    Ok(())
+    w.into_inner()
+        .map_err(|e| anyhow::anyhow!("writing CSV: {e}"))
 }
 
 /// Writes the hits as an aligned table (streamed: [`crate::support::table::write_streamed`])

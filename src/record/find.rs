@@ -70,11 +70,6 @@ pub struct Precision {
 }
 
 impl Precision {
-    /// The precision of `loaded` keys for every revision among `lots` of `product`.
-    pub fn new(specs: &SpecSet, product: &str, lots: &[LotRow], loaded: &[String]) -> Precision {
-        Precision::of_revisions(specs, product, lots.iter().map(|r| r.revision), loaded)
-    }
-
     /// The precision of `loaded` keys for each of `revisions` of `product` (repeats allowed).
     pub fn of_revisions(
         specs: &SpecSet,
@@ -216,46 +211,11 @@ pub fn keys_to_load(keys: &[String], windows: &[Window], every: bool) -> Vec<Str
         .collect()
 }
 
-/// The lots (`lots`, loaded with the columns `loaded`) that meet `filter`, newest first (then
-/// latest record line first).
-pub fn matching_lots<'r>(
-    lots: &'r [LotRow],
-    loaded: &[String],
-    filter: &LotFilter,
-) -> Vec<&'r LotRow> {
-    matching_lots_counted(lots, loaded, filter).0
-}
-
-/// [`matching_lots`], and how many lots that met every other condition were left out as past
-/// their retest date (issue #14).
-pub fn matching_lots_counted<'r>(
-    lots: &'r [LotRow],
-    loaded: &[String],
-    filter: &LotFilter,
-) -> (Vec<&'r LotRow>, usize) {
-    let (hits, expired) = matching_indices_counted(lots, loaded, filter);
-    (hits.into_iter().map(|i| &lots[i]).collect(), expired)
-}
-
-/// [`matching_lots_counted`] as indices into `lots` (issue #21: the web page keeps the lots
-/// and their matches together).
-pub fn matching_indices_counted(
-    lots: &[LotRow],
-    loaded: &[String],
-    filter: &LotFilter,
-) -> (Vec<usize>, usize) {
-    matching_in(
-        lots.len(),
-        |i, row| row.clone_from(&lots[i]),
-        |i| (lots[i].manufactured, lots[i].line),
-        loaded,
-        filter,
-    )
-}
-
-/// [`matching_indices_counted`] over a [`LotTable`] (whose lives, when the filter has them,
-/// are the table's): each lot is looked at through one reused row, so no record is built per
-/// lot (issue #20); indices into the table, newest first.
+/// The lots of `table` (loaded with the columns `loaded`; its lives, when the filter has them,
+/// are the table's) that meet `filter`, as indices into the table, newest first (then latest
+/// record line first), and how many lots that met every other condition were left out as
+/// past their retest date (issue #14). Each lot is looked at through one reused row, so no
+/// record is built per lot (issue #20).
 pub fn matching_in_table(
     table: &LotTable,
     loaded: &[String],
@@ -467,7 +427,7 @@ impl Found {
 
 /// Runs a search over the record as it stands: checks the windows against the trend file's
 /// header, loads the customer and the specs when one is named, scans the file once
-/// ([`crate::record::query::current_lots`]) and keeps the lots that meet every condition.
+/// ([`crate::record::query::current_table_with_life`]) and keeps the lots that meet every condition.
 pub fn search(s: &Search) -> Result<Found> {
     let status = status_or_default(s.status, s.customer.is_some());
     let keys = crate::record::query::trend_keys(s.trend_file)?;
@@ -729,6 +689,24 @@ fn special_cell(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The lots of `lots` that meet `filter`, newest first, through the table.
+    fn matching_lots_counted<'r>(
+        lots: &'r [LotRow],
+        loaded: &[String],
+        filter: &LotFilter,
+    ) -> (Vec<&'r LotRow>, usize) {
+        let (hits, expired) = matching_in_table(&LotTable::from_rows(lots), loaded, filter);
+        (hits.into_iter().map(|i| &lots[i]).collect(), expired)
+    }
+
+    fn matching_lots<'r>(
+        lots: &'r [LotRow],
+        loaded: &[String],
+        filter: &LotFilter,
+    ) -> Vec<&'r LotRow> {
+        matching_lots_counted(lots, loaded, filter).0
+    }
 
     /// Issue #20: the quick date reader agrees with chrono's `%Y-%m-%d` parser.
     #[test]

@@ -489,25 +489,15 @@ fn split_spans_quoted(line: &[u8], upto: usize, out: &mut Vec<(usize, usize)>) {
     out.push(span);
 }
 
-/// Streams a trend file and keeps the latest row of every lot, with the values of `keys` (and
-/// the expanded uncertainty of Mn when asked). Returns the property keys the file has, and the
-/// lots in order of their latest row.
+/// The latest row of every lot of a trend file, column by column ([`LotTable`]), with the
+/// values of `keys` (and the expanded uncertainty of Mn when asked), in order of their latest
+/// row; and the property keys the file has.
 ///
-/// The body is scanned in parallel ([`scan::parallel_body`], one range per core) and only the
-/// columns needed are split, straight into compact column vectors (no record per row); each
-/// lot is kept as a 64-bit hash ([`scan::lot_hash`]) and the ids are compared whenever two
-/// hashes agree, so the latest row of each lot is exact. Rows are built for the kept lots only.
-pub fn current_lots(
-    path: &Path,
-    keys: &[String],
-    with_mn_uncertainty: bool,
-) -> Result<(Vec<String>, Vec<LotRow>)> {
-    let (file_keys, table) = current_table(path, keys, with_mn_uncertainty)?;
-    Ok((file_keys, table.into_rows()))
-}
-
-/// [`current_lots`] as a [`LotTable`]: the same lots, column by column (no record per lot),
-/// which is what `trend` works on (issue #20).
+/// Answered from the lot table cache ([`crate::record::table_cache`]) when it is current.
+/// Otherwise the body is scanned in parallel ([`scan::parallel_body`], one range per core) and
+/// only the columns needed are split, straight into compact column vectors (no record per
+/// row); each lot is kept as a 64-bit hash ([`scan::lot_hash`]) and the ids are compared
+/// whenever two hashes agree, so the latest row of each lot is exact.
 pub fn current_table(
     path: &Path,
     keys: &[String],
@@ -536,18 +526,7 @@ pub fn current_table_with_life(
     current_lots_in(path, keys, with_mn_uncertainty, true, None)
 }
 
-/// [`current_lots`] with each kept lot's [`Life`] (parallel to the lots).
-pub fn current_lots_with_life(
-    path: &Path,
-    keys: &[String],
-    with_mn_uncertainty: bool,
-) -> Result<(Vec<String>, Vec<LotRow>, Vec<Life>)> {
-    let (file_keys, mut table) = current_lots_in(path, keys, with_mn_uncertainty, true, None)?;
-    let lives = std::mem::take(&mut table.lives);
-    Ok((file_keys, table.into_rows(), lives))
-}
-
-/// [`current_lots`], with the lots' lives when `with_life`, and the number of scan parts fixed
+/// [`current_table`], with the lots' lives when `with_life`, and the number of scan parts fixed
 /// when `parts` is given (None: one per core for a large file).
 fn current_lots_in(
     path: &Path,
@@ -1396,6 +1375,12 @@ pub fn trend_keys(path: &Path) -> Result<Vec<String>> {
 mod tests {
     use super::*;
 
+    /// The current lots as rows (through the cache, as the commands read them).
+    fn current_rows(p: &Path, keys: &[String]) -> (Vec<String>, Vec<LotRow>) {
+        let (k, t) = current_table(p, keys, false).unwrap();
+        (k, t.into_rows())
+    }
+
     /// Issue #20: the fast decimal reader gives the standard library's value bit for bit
     /// (the reference: Rust's `f64::from_str`, correctly rounded) on every form it accepts,
     /// and declines the forms it does not handle.
@@ -1517,8 +1502,8 @@ mod tests {
             ("spec_revision", "R21".into()),
         ]];
         trend_file::write_for_test(&p, &keys, &rows);
-        let (_, first) = current_lots(&p, &keys, false).unwrap();
-        let (_, second) = current_lots(&p, &keys, false).unwrap();
+        let (_, first) = current_rows(&p, &keys);
+        let (_, second) = current_rows(&p, &keys);
         assert_eq!(first[0].status, "quarantined_for_issue_21");
         assert!(std::ptr::eq(first[0].status, second[0].status));
         assert!(std::ptr::eq(first[0].revision, second[0].revision));
@@ -1540,7 +1525,7 @@ mod tests {
             })
             .collect();
         trend_file::write_for_test(&p, &keys, &rows);
-        let (_, rows) = current_lots(&p, &keys, false).unwrap();
+        let (_, rows) = current_rows(&p, &keys);
         let got: Vec<(&str, Option<f64>)> = rows.iter().map(|r| (&*r.lot, r.values[0])).collect();
         assert_eq!(got, [("B2", Some(0.6)), ("A1", Some(0.4)), ("C3", None)]);
         assert_eq!(&*rows[0].manufactured, "2026-01-01");
@@ -1680,7 +1665,9 @@ mod tests {
                 ),
             ],
         );
-        let (_, rows, lives) = current_lots_with_life(&p, &keys, false).unwrap();
+        let (_, table) = current_table_with_life(&p, &keys, false).unwrap();
+        let lives = table.lives().to_vec();
+        let rows = table.into_rows();
         let got: Vec<(&str, Option<String>, &str)> = rows
             .iter()
             .zip(&lives)

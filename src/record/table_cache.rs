@@ -344,7 +344,7 @@ fn read(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::record::query::current_lots_with_life;
+    use crate::record::query::current_table_with_life;
     use crate::record::trend_file;
 
     /// Invented test lots: A1 retested, B2 under concession to "acme", C3 with empty cells.
@@ -385,8 +385,9 @@ mod tests {
 
     fn answer(p: &Path, keys: &[&str]) -> (Vec<crate::record::query::LotRow>, Vec<Life>) {
         let keys: Vec<String> = keys.iter().map(|s| s.to_string()).collect();
-        let (_, rows, lives) = current_lots_with_life(p, &keys, true).unwrap();
-        (rows, lives)
+        let (_, table) = current_table_with_life(p, &keys, true).unwrap();
+        let lives = table.lives().to_vec();
+        (table.into_rows(), lives)
     }
 
     /// Issue #20: the cache answers exactly as the scan does, for any subset of the keys, and

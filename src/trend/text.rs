@@ -162,7 +162,9 @@ pub fn write_overview_json(
         out.write_all(if i == 0 { b"\n    " } else { b",\n    " })?;
         let mut one = Vec::new();
         write_trend_json(&mut one, t)?;
-        write_indented(out, &String::from_utf8_lossy(&one), 2)?;
+        // serde_json writes UTF-8 only.
+        let text = String::from_utf8(one).map_err(std::io::Error::other)?;
+        write_indented(out, &text, 2)?;
     }
     out.write_all(if trends.is_empty() { b"]" } else { b"\n  ]" })?;
     out.write_all(b",\n  \"viscosity_vs_mn\": ")?;
