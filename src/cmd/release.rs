@@ -241,25 +241,171 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     })
 }
 
-/// What the table output needs of one product, measured while the lots are decided.
+/// What the table output needs of one product, gathered while the lots are decided.
 struct ProductTable {
     /// The property columns: those of the product's first lot.
     keys: Vec<String>,
     /// Column widths of the whole table.
     widths: Vec<usize>,
+    /// The table's rows, all cells but the last ("not written").
+    rows: RowStore,
     /// The positions in the file of the lots that get a line under the table.
     notes: Vec<u32>,
 }
 
+/// A dry run's table rows kept as text in blocks of about 1 MiB (no block is ever copied to
+/// grow, so memory stays near the text's size): a row is its status as one digit (its
+/// place in [`STATUSES`]), then every other cell followed by [`CELL_END`], then [`ROW_END`].
+/// Cells never hold these control characters: intake refuses them in every cell, and the
+/// other cells are numbers, words of the specs and fixed words.
+#[derive(Default)]
+struct RowStore {
+    blocks: Vec<String>,
+}
+
+const CELL_END: char = '\u{1f}';
+const ROW_END: char = '\u{1e}';
+const BLOCK: usize = 1 << 20;
+const STATUSES: [Status; 4] = [
+    Status::Released,
+    Status::OnHold,
+    Status::Rejected,
+    Status::Incomplete,
+];
+
+impl RowStore {
+    /// Appends to `out` the row of a lot with `status` whose other cells are `cells` (lot,
+    /// revision, then the properties), as the store keeps it.
+    fn encode<'c>(out: &mut String, status: Status, cells: impl IntoIterator<Item = &'c str>) {
+        let code = STATUSES.iter().position(|s| *s == status).unwrap_or(0);
+        out.push(char::from(b'0' + code as u8));
+        for c in cells {
+            out.push_str(c);
+            out.push(CELL_END);
+        }
+        out.push(ROW_END);
+    }
+
+    /// Keeps a row made by [`RowStore::encode`].
+    fn push(&mut self, encoded: &str) {
+        let fits = self
+            .blocks
+            .last()
+            .is_some_and(|b| b.capacity() - b.len() >= encoded.len());
+        if !fits {
+            self.blocks
+                .push(String::with_capacity(BLOCK.max(encoded.len())));
+        }
+        if let Some(b) = self.blocks.last_mut() {
+            b.push_str(encoded);
+        }
+    }
+
+    /// The rows, in the order pushed, each as its status and other cells.
+    fn rows(&self) -> impl Iterator<Item = (Status, impl Iterator<Item = &str>)> {
+        self.blocks
+            .iter()
+            .flat_map(|b| b.split_terminator(ROW_END))
+            .map(|row| {
+                let code = usize::from(row.as_bytes()[0] - b'0');
+                (STATUSES[code], row[1..].split_terminator(CELL_END))
+            })
+    }
+}
+
+/// Lots decided together, on every core (issue #13, item 11): enough to share out, few
+/// enough to keep memory flat.
+const CHUNK: usize = 128;
+
+/// One lot of a dry run, decided: what the bookkeeping in file order needs.
+struct Decided<'s> {
+    decision: LotDecision,
+    /// The spec revision the lot was decided on.
+    spec: Option<&'s crate::spec::ProductSpec>,
+    /// Its table row by its own properties (none for JSON).
+    row: Option<OwnRow>,
+    /// It gets a line under the table.
+    noted: bool,
+}
+
+/// A lot's table row laid out by its own properties: as [`RowStore::encode`] writes it, and
+/// the display width of each cell ([`lot_row`] with the lot's own keys, without a string for
+/// each cell).
+struct OwnRow {
+    encoded: String,
+    widths: Vec<usize>,
+}
+
+impl OwnRow {
+    fn of(d: &LotDecision) -> OwnRow {
+        use crate::support::table::width;
+        let mut encoded = String::with_capacity(16 * (d.properties.len() + 2));
+        let mut widths = Vec::with_capacity(d.properties.len() + 4);
+        let code = STATUSES.iter().position(|s| *s == d.status).unwrap_or(0);
+        encoded.push(char::from(b'0' + code as u8));
+        for cell in [d.lot.as_str(), d.spec_revision.as_str()] {
+            encoded.push_str(cell);
+            encoded.push(CELL_END);
+            widths.push(width(cell));
+        }
+        widths.push(width(d.status.as_str()));
+        for p in &d.properties {
+            let start = encoded.len();
+            encoded.push_str(p.reported.as_deref().unwrap_or("missing"));
+            encoded.push_str(short(p.verdict));
+            widths.push(width(&encoded[start..]));
+            encoded.push(CELL_END);
+        }
+        encoded.push(ROW_END);
+        widths.push(width(NOT_WRITTEN));
+        OwnRow { encoded, widths }
+    }
+}
+
+/// A chunk of lots as read, the earlier lot of each whose id differs only in case, and each
+/// lot's decision or refusal.
+type DecidedChunk<'s> = (
+    Vec<LotResults>,
+    Vec<Option<intake::Twin>>,
+    Vec<anyhow::Result<Decided<'s>>>,
+);
+
+/// Decides `lots` on every core, in order: the lot's decision or its refusal.
+fn decide_chunk<'s>(
+    file: &str,
+    specs: &'s SpecSet,
+    lots: &[LotResults],
+    now: &chrono::DateTime<chrono::Utc>,
+    rows: bool,
+) -> Vec<anyhow::Result<Decided<'s>>> {
+    use rayon::prelude::*;
+    lots.par_iter()
+        .map(|lot| {
+            let decision = decide_lot(file, specs, lot, now)?;
+            let spec = specs.for_date(&lot.product, lot.manufactured).ok();
+            let row = rows.then(|| OwnRow::of(&decision));
+            let noted = note_line(&decision).is_some();
+            Ok(Decided {
+                decision,
+                spec,
+                row,
+                noted,
+            })
+        })
+        .collect()
+}
+
 /// `release --dry-run` of a wide results file, one lot at a time (issue #13, item 11): the
-/// first pass reads, checks and decides each lot and plans it against the trend files
-/// (`record::append::StreamPlan`), keeping only counts, column widths and the plan's compact
-/// state; once nothing is refused, the second pass reads and decides the lots again and writes
-/// each line of the report (table or JSON) as it goes. It refuses what the whole-file path
-/// refuses, with the same message, and prints the same bytes. `None` for a long file.
-fn streamed_dry_run(
+/// first pass reads and checks each lot, decides lots in chunks on every core, and plans
+/// each against the trend files (`record::append::StreamPlan`), keeping counts, column
+/// widths, the plan's compact state and, for the table, each lot's row as text; once nothing
+/// is refused, the table is written from the rows kept (only lots with a note line are read
+/// and decided again), or the JSON as the lots are read and decided again. It refuses what
+/// the whole-file path refuses, with the same message, and prints the same bytes. `None` for
+/// a long file.
+fn streamed_dry_run<'s>(
     args: &Args,
-    specs: &SpecSet,
+    specs: &'s SpecSet,
     bytes: &[u8],
     opts: intake::Options,
 ) -> anyhow::Result<Option<Outcome>> {
@@ -273,48 +419,130 @@ fn streamed_dry_run(
     let mut refused: Option<anyhow::Error> = None;
     let mut counts = Counts::default();
     let mut tables: BTreeMap<String, ProductTable> = BTreeMap::new();
-    let mut used: Vec<&crate::spec::ProductSpec> = Vec::new();
+    let mut used: Vec<&'s crate::spec::ProductSpec> = Vec::new();
     let bar = progress_unsized();
     let mut position: u32 = 0;
-    let scan = intake::scan_wide(&file, bytes, opts.clone(), &mut |lot, twin| {
+    // Takes a decided chunk in file order; after a refusal, the later lots are not planned,
+    // as on the whole-file path.
+    let mut take = |chunk: DecidedChunk<'s>| {
+        let (lots, twins, decided) = chunk;
         if refused.is_some() {
             return;
         }
-        let d = match decide_lot(&file, specs, lot, &now) {
-            Ok(d) => d,
-            Err(e) => {
-                refused = Some(e);
-                return;
+        let mut spent = Vec::with_capacity(decided.len());
+        for ((lot, twin), decided) in lots.iter().zip(twins).zip(decided) {
+            let Decided {
+                decision: d,
+                spec,
+                row,
+                noted,
+            } = match decided {
+                Ok(x) => x,
+                Err(e) => {
+                    refused = Some(e);
+                    break;
+                }
+            };
+            bar.inc(1);
+            counts.add(d.status);
+            if let Some(spec) = spec {
+                if !used.iter().any(|u| std::ptr::eq(*u, spec)) {
+                    used.push(spec);
+                }
+            }
+            if let Some(row) = row {
+                if !tables.contains_key(&d.product) {
+                    let keys: Vec<String> =
+                        d.properties.iter().map(|p| p.property.clone()).collect();
+                    let mut widths = Vec::new();
+                    crate::support::table::widen(&mut widths, &table_header(&keys));
+                    let table = ProductTable {
+                        keys,
+                        widths,
+                        rows: RowStore::default(),
+                        notes: Vec::new(),
+                    };
+                    tables.insert(d.product.clone(), table);
+                }
+                let Some(t) = tables.get_mut(&d.product) else {
+                    continue;
+                };
+                // A lot decided on another revision than the product's first lot has its
+                // row laid out by the first lot's properties.
+                let same_keys = d.properties.iter().map(|p| &p.property).eq(t.keys.iter());
+                if same_keys {
+                    for (w, cell) in t.widths.iter_mut().zip(&row.widths) {
+                        *w = (*w).max(*cell);
+                    }
+                    t.rows.push(&row.encoded);
+                } else {
+                    let cells = lot_row(&d, &t.keys, &Recorded::NotWritten);
+                    crate::support::table::widen(&mut t.widths, &cells);
+                    // Every cell but the status and the last ("not written").
+                    let kept = cells[..cells.len() - 1]
+                        .iter()
+                        .enumerate()
+                        .filter(|(i, _)| *i != 2)
+                        .map(|(_, c)| c.as_str());
+                    let mut encoded = String::new();
+                    RowStore::encode(&mut encoded, d.status, kept);
+                    t.rows.push(&encoded);
+                }
+                if noted {
+                    t.notes.push(position);
+                }
+            }
+            position += 1;
+            plan.add(
+                &d,
+                lot.line,
+                twin.as_ref().map(|t| (t.lot.as_str(), t.line)),
+            );
+            spent.push(d);
+        }
+        // Freed by a worker while this thread reads on.
+        rayon::spawn(move || drop((lots, spent)));
+    };
+    // While one chunk is decided on the workers, this thread reads the next (at most two
+    // chunks in flight, taken in file order).
+    let scan = rayon::in_place_scope(|scope| {
+        let mut lots: Vec<LotResults> = Vec::with_capacity(CHUNK);
+        let mut twins: Vec<Option<intake::Twin>> = Vec::with_capacity(CHUNK);
+        let mut in_flight: Option<std::sync::mpsc::Receiver<DecidedChunk<'s>>> = None;
+        let (file, now, json) = (&file, &now, args.json);
+        let send = |lots: Vec<LotResults>, twins: Vec<Option<intake::Twin>>| {
+            let (tx, rx) = std::sync::mpsc::sync_channel(1);
+            scope.spawn(move |_| {
+                let decided = decide_chunk(file, specs, &lots, now, !json);
+                // The receiver is gone only when the run already failed.
+                let _ = tx.send((lots, twins, decided));
+            });
+            rx
+        };
+        let mut take_previous = |in_flight: &mut Option<std::sync::mpsc::Receiver<_>>| {
+            if let Some(chunk) = in_flight.take().and_then(|rx| rx.recv().ok()) {
+                take(chunk);
             }
         };
-        bar.inc(1);
-        counts.add(d.status);
-        if let Ok(spec) = specs.for_date(&lot.product, lot.manufactured) {
-            if !used.iter().any(|u| std::ptr::eq(*u, spec)) {
-                used.push(spec);
+        let scan = intake::scan_wide(file, bytes, opts.clone(), &mut |lot, twin| {
+            lots.push(lot);
+            twins.push(twin);
+            if lots.len() == CHUNK {
+                let rx = send(
+                    std::mem::replace(&mut lots, Vec::with_capacity(CHUNK)),
+                    std::mem::replace(&mut twins, Vec::with_capacity(CHUNK)),
+                );
+                take_previous(&mut in_flight);
+                in_flight = Some(rx);
             }
+        });
+        if scan.is_ok() && !lots.is_empty() {
+            let rx = send(lots, twins);
+            take_previous(&mut in_flight);
+            in_flight = Some(rx);
         }
-        if !args.json {
-            let t = tables.entry(d.product.clone()).or_insert_with(|| {
-                let keys: Vec<String> = d.properties.iter().map(|p| p.property.clone()).collect();
-                let mut widths = Vec::new();
-                crate::support::table::widen(&mut widths, &table_header(&keys));
-                ProductTable {
-                    keys,
-                    widths,
-                    notes: Vec::new(),
-                }
-            });
-            crate::support::table::widen(
-                &mut t.widths,
-                &lot_row(&d, &t.keys, &Recorded::NotWritten),
-            );
-            if note_line(&d).is_some() {
-                t.notes.push(position);
-            }
-        }
-        position += 1;
-        plan.add(&d, lot.line, twin.map(|t| (t.lot.as_str(), t.line)));
+        take_previous(&mut in_flight);
+        scan
     })?;
     bar.finish_and_clear();
     let Some(scan) = scan else {
@@ -335,12 +563,14 @@ fn streamed_dry_run(
         .cloned()
         .collect();
 
-    // Nothing was refused: the report, written as the lots are decided again.
+    // Nothing was refused: the report.
     let mut out = std::io::BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
     let decide = |lot: &LotResults| decide_lot(&file, specs, lot, &now);
     if args.json {
         write_json_streamed(&mut out, &scan, &decide)?;
     } else {
+        let mut line = String::new();
+        let mut cells: Vec<&str> = Vec::new();
         for (product, t) in &tables {
             let name = specs.latest(product).map_or("", |s| s.name.as_str());
             writeln!(out, "{product}  {name}")?;
@@ -348,19 +578,41 @@ fn streamed_dry_run(
                 crate::support::table::line(&table_header(&t.keys), &t.widths).as_bytes(),
             )?;
             out.write_all(crate::support::table::rule(&t.widths).as_bytes())?;
-            scan.for_each(Some(product), &mut |lot| -> anyhow::Result<()> {
-                let row = lot_row(&decide(&lot)?, &t.keys, &Recorded::NotWritten);
-                out.write_all(crate::support::table::line(&row, &t.widths).as_bytes())?;
-                Ok(())
-            })?;
-            if !t.notes.is_empty() {
-                scan.for_each_at(&t.notes, &mut |lot| -> anyhow::Result<()> {
-                    if let Some(line) = note_line(&decide(&lot)?) {
+            for (status, mut row) in t.rows.rows() {
+                cells.clear();
+                cells.extend(row.by_ref().take(2));
+                cells.push(status.as_str());
+                cells.extend(row);
+                cells.push(NOT_WRITTEN);
+                line.clear();
+                crate::support::table::push_line(&mut line, &cells, &t.widths);
+                out.write_all(line.as_bytes())?;
+            }
+            // The lots with a line under the table, read again and decided in chunks on
+            // every core, written in file order.
+            let mut noted: Vec<LotResults> = Vec::with_capacity(CHUNK);
+            let write_notes = |noted: &mut Vec<LotResults>, out: &mut dyn Write| {
+                use rayon::prelude::*;
+                let lines: Vec<anyhow::Result<Option<String>>> = noted
+                    .par_iter()
+                    .map(|lot| Ok(note_line(&decide(lot)?)))
+                    .collect();
+                noted.clear();
+                for line in lines {
+                    if let Some(line) = line? {
                         out.write_all(line.as_bytes())?;
                     }
-                    Ok(())
-                })?;
-            }
+                }
+                anyhow::Ok(())
+            };
+            scan.for_each_at(&t.notes, &mut |lot| -> anyhow::Result<()> {
+                noted.push(lot);
+                if noted.len() == CHUNK {
+                    write_notes(&mut noted, &mut out)?;
+                }
+                Ok(())
+            })?;
+            write_notes(&mut noted, &mut out)?;
             out.write_all(b"\n")?;
         }
         out.write_all(summary_line(&counts, 0, &args.register, true).as_bytes())?;
@@ -889,6 +1141,9 @@ fn table_header(keys: &[String]) -> Vec<String> {
     h
 }
 
+/// The record cell of a lot a dry run decides.
+const NOT_WRITTEN: &str = "not written";
+
 /// The table row of one lot.
 fn lot_row(d: &LotDecision, keys: &[String], recorded: &Recorded) -> Vec<String> {
     let mut r = vec![
@@ -911,7 +1166,7 @@ fn lot_row(d: &LotDecision, keys: &[String], recorded: &Recorded) -> Vec<String>
             format!("row {seq} (retest of {supersedes})")
         }
         Recorded::Unchanged(s) => format!("unchanged (row {s})"),
-        Recorded::NotWritten => "not written".into(),
+        Recorded::NotWritten => NOT_WRITTEN.into(),
     });
     r
 }
@@ -1020,4 +1275,43 @@ fn render(
         .count();
     out.push_str(&summary_line(&counts, unchanged, register, dry_run));
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Issue #13 item 11: the rows a dry run keeps come back as they went in, empty cells,
+    /// every status and rows across a block boundary included.
+    #[test]
+    fn row_store_gives_back_its_rows_issue_13() {
+        let mut store = RowStore::default();
+        let rows: Vec<(Status, Vec<String>)> = (0..40_000)
+            .map(|i| {
+                let status = STATUSES[i % 4];
+                let cells = vec![
+                    format!("L{i:06}"),
+                    if i % 11 == 0 {
+                        String::new()
+                    } else {
+                        "C".into()
+                    },
+                    format!("{}.{:02} (cond. pass)", i % 7, i % 100),
+                    "mPa·s".into(),
+                ];
+                (status, cells)
+            })
+            .collect();
+        for (status, cells) in &rows {
+            let mut encoded = String::new();
+            RowStore::encode(&mut encoded, *status, cells.iter().map(String::as_str));
+            store.push(&encoded);
+        }
+        assert!(store.blocks.len() > 1, "the rows should span blocks");
+        let back: Vec<(Status, Vec<String>)> = store
+            .rows()
+            .map(|(s, cells)| (s, cells.map(str::to_string).collect()))
+            .collect();
+        assert_eq!(back, rows);
+    }
 }

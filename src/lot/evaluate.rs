@@ -526,7 +526,15 @@ fn measured_results(spec: &ProductSpec, means: &Means) -> Vec<PropertyResult> {
         } else {
             Decimal::ZERO
         };
-        let mut r = decide(p, value, w, spec, Some(value.to_string()), u.map(to_f64));
+        let mut r = decide(
+            p,
+            value,
+            None,
+            w,
+            spec,
+            Some(value.to_string()),
+            u.map(to_f64),
+        );
         r.entered = Some(entered.to_string());
         results.push(r);
     }
@@ -555,18 +563,19 @@ fn derived_results(
     let hv_corr = spec
         .property(keys::HYDROXYL_VALUE)
         .map_or(AcidityCorrection::None, |p| p.acidity_correction_kind);
+    let inputs = DerivedInputs {
+        av,
+        ohv,
+        u_av: u(keys::ACID_VALUE),
+        u_ohv: u(keys::HYDROXYL_VALUE),
+        acidity_correction: hv_corr,
+    };
+    let mut analyses = Analyses::default();
     let mut any_missing = false;
     for p in spec.properties.iter().filter(|p| p.derived) {
-        let computed = derived_value(
-            spec,
-            &p.key,
-            av,
-            ohv,
-            u(keys::ACID_VALUE),
-            u(keys::HYDROXYL_VALUE),
-            hv_corr,
-        )
-        .map_err(|e| e.at(|field| format!("{file}:{}, lot '{}', {field}", lot.line, lot.lot)))?;
+        let computed = derived_value_memo(spec, &p.key, &inputs, &mut analyses).map_err(|e| {
+            e.at(|field| format!("{file}:{}, lot '{}', {field}", lot.line, lot.lot))
+        })?;
         match computed {
             Some((value, unc)) => {
                 let d = decimal_from_f64(value).unwrap_or_default();
@@ -574,9 +583,7 @@ fn derived_results(
                     (true, Some(u)) => decimal_from_f64(u).unwrap_or_default(),
                     _ => Decimal::ZERO,
                 };
-                let mut r = decide(p, d, w, spec, None, unc);
-                r.value = Some(value);
-                results.push(r);
+                results.push(decide(p, d, Some(value), w, spec, None, unc));
             }
             None => {
                 any_missing = true;
@@ -600,9 +607,12 @@ fn missing(p: &Property) -> PropertyResult {
     }
 }
 
+/// The result of property `p` with `value` (as a float `float` when it was computed as one,
+/// else converted from the decimal), decided with guard band `w`.
 fn decide(
     p: &Property,
     value: Decimal,
+    float: Option<f64>,
     w: Decimal,
     spec: &ProductSpec,
     exact: Option<String>,
@@ -611,7 +621,7 @@ fn decide(
     let reported = round(value, p.decimals, spec.rounding);
     PropertyResult {
         property: p.key.clone(),
-        value: Some(to_f64(value)),
+        value: Some(float.unwrap_or_else(|| to_f64(value))),
         exact,
         entered: None,
         reported: Some(reported.to_string()),
@@ -634,6 +644,96 @@ pub fn derived_value(
     u_ohv: Option<f64>,
     acidity_correction: AcidityCorrection,
 ) -> Result<Option<(f64, Option<f64>)>> {
+    let inputs = DerivedInputs {
+        av,
+        ohv,
+        u_av,
+        u_ohv,
+        acidity_correction,
+    };
+    derived_value_memo(spec, key, &inputs, &mut Analyses::default())
+}
+
+/// The measured inputs of one lot's derived properties.
+struct DerivedInputs {
+    av: Option<f64>,
+    ohv: Option<f64>,
+    u_av: Option<f64>,
+    u_ohv: Option<f64>,
+    acidity_correction: AcidityCorrection,
+}
+
+/// The analyses of one lot's titration made so far: a lot's derived properties share them
+/// instead of analysing the same titration once per property and per side of each finite
+/// difference (issue #13, item 11). Every derived property of a lot asks first for the
+/// analysis at the lot's own acid value (`own`), then perhaps at acid values beside it
+/// (`beside`, by their bits; `None` where the analysis failed).
+#[derive(Default)]
+struct Analyses {
+    own: Option<(u64, crate::chem::analysis::Analysis)>,
+    beside: Vec<(u64, Option<crate::chem::analysis::Analysis>)>,
+}
+
+impl Analyses {
+    /// The analysis at the lot's own acid value `av` of the titration `t` makes, made once;
+    /// its error when it fails.
+    fn own(
+        &mut self,
+        av: f64,
+        t: &dyn Fn(f64) -> Titration,
+        recipe: Option<&crate::chem::recipe::Recipe>,
+    ) -> Result<&crate::chem::analysis::Analysis> {
+        let bits = av.to_bits();
+        let current = match self.own.take() {
+            Some((b, a)) if b == bits => a,
+            _ => analyse(&t(av), recipe)?,
+        };
+        Ok(&self.own.insert((bits, current)).1)
+    }
+
+    /// The recipe figures at acid value `av`, or None when there are none or the analysis
+    /// fails.
+    fn recipe_at(
+        &mut self,
+        av: f64,
+        t: &dyn Fn(f64) -> Titration,
+        recipe: Option<&crate::chem::recipe::Recipe>,
+    ) -> Option<&crate::chem::analysis::RecipeFigures> {
+        if let Some((bits, a)) = &self.own {
+            if *bits == av.to_bits() {
+                return a.recipe.as_ref();
+            }
+        }
+        let i = match self
+            .beside
+            .iter()
+            .position(|(bits, _)| *bits == av.to_bits())
+        {
+            Some(i) => i,
+            None => {
+                self.beside
+                    .push((av.to_bits(), analyse(&t(av), recipe).ok()));
+                self.beside.len() - 1
+            }
+        };
+        self.beside[i].1.as_ref().and_then(|a| a.recipe.as_ref())
+    }
+}
+
+/// [`derived_value`], reusing the analyses of the same lot's other derived properties.
+fn derived_value_memo(
+    spec: &ProductSpec,
+    key: &str,
+    inputs: &DerivedInputs,
+    analyses: &mut Analyses,
+) -> Result<Option<(f64, Option<f64>)>> {
+    let DerivedInputs {
+        av,
+        ohv,
+        u_av,
+        u_ohv,
+        acidity_correction,
+    } = *inputs;
     let (Some(ohv), av) = (ohv, av) else {
         return Ok(None);
     };
@@ -651,25 +751,25 @@ pub fn derived_value(
         u_ohv,
         solids_fraction: None,
     };
-    let a = analyse(&t(av_v), spec.recipe.as_ref())?;
-    let spread = |f: &dyn Fn(f64) -> Option<f64>| -> Option<f64> {
+    let recipe = spec.recipe.as_ref();
+    let a = analyses.own(av_v, &t, recipe)?;
+    let (mn, mn_uncertainty) = (a.mn, a.mn_uncertainty);
+    let (hew, ohv_corrected) = (a.hydroxyl_equivalent_weight, a.hydroxyl_value_corrected);
+    let xn = a.recipe.as_ref().and_then(|r| r.xn_carothers);
+    let extent = a.recipe.as_ref().map(|r| r.extent_of_reaction);
+    let mut spread = |f: &dyn Fn(&crate::chem::analysis::RecipeFigures) -> Option<f64>| {
         let u = u_av?;
         if u == 0.0 {
             return Some(0.0);
         }
-        let hi = f(av_v + u)?;
-        let lo = f((av_v - u).max(0.0))?;
+        let hi = f(analyses.recipe_at(av_v + u, &t, recipe)?)?;
+        let lo = f(analyses.recipe_at((av_v - u).max(0.0), &t, recipe)?)?;
         let step = av_v + u - (av_v - u).max(0.0);
         Some(((hi - lo) / step * u).abs())
     };
-    let recipe_at = |x: f64| {
-        analyse(&t(x), spec.recipe.as_ref())
-            .ok()
-            .and_then(|a| a.recipe)
-    };
     Ok(match key {
-        keys::MN => a.mn.map(|mn| (mn, a.mn_uncertainty)),
-        keys::HYDROXYL_EQUIVALENT_WEIGHT => a.hydroxyl_equivalent_weight.map(|hew| {
+        keys::MN => mn.map(|mn| (mn, mn_uncertainty)),
+        keys::HYDROXYL_EQUIVALENT_WEIGHT => hew.map(|hew| {
             let u = match (u_av, u_ohv) {
                 (Some(ua), Some(uo)) => {
                     let uc = if acidity_correction.applies() {
@@ -677,23 +777,14 @@ pub fn derived_value(
                     } else {
                         uo
                     };
-                    Some(hew * uc / a.hydroxyl_value_corrected)
+                    Some(hew * uc / ohv_corrected)
                 }
                 _ => None,
             };
             (hew, u)
         }),
-        keys::XN => a
-            .recipe
-            .as_ref()
-            .and_then(|r| r.xn_carothers)
-            .map(|x| (x, spread(&|v| recipe_at(v).and_then(|r| r.xn_carothers)))),
-        keys::EXTENT_OF_REACTION => a.recipe.as_ref().map(|r| {
-            (
-                r.extent_of_reaction,
-                spread(&|v| recipe_at(v).map(|r| r.extent_of_reaction)),
-            )
-        }),
+        keys::XN => xn.map(|x| (x, spread(&|r| r.xn_carothers))),
+        keys::EXTENT_OF_REACTION => extent.map(|p| (p, spread(&|r| Some(r.extent_of_reaction)))),
         _ => None,
     })
 }

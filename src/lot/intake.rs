@@ -369,7 +369,9 @@ pub struct Twin {
     pub line: u64,
 }
 
-/// Hashes a map key that is itself a 64-bit hash: passes it through.
+/// Hashes a map key that is itself a 32-bit hash: spreads it over 64 bits by multiplying by
+/// 2^64/φ (Fibonacci hashing, Knuth, TAOCP vol. 3 §6.4), as the table takes its buckets from
+/// the low bits and its tags from the top ones.
 #[derive(Default)]
 struct PassThrough(u64);
 
@@ -382,15 +384,16 @@ impl std::hash::Hasher for PassThrough {
             self.0 = self.0.rotate_left(8) ^ u64::from(b);
         }
     }
-    fn write_u64(&mut self, n: u64) {
-        self.0 = n;
+    fn write_u32(&mut self, n: u32) {
+        self.0 = u64::from(n).wrapping_mul(0x9e37_79b9_7f4a_7c15);
     }
 }
 
-/// 64-bit hash of a lot id without regard to ASCII case (SipHash-1-3 with fixed keys, the
-/// standard library's `DefaultHasher`): it only groups ids, which are compared whenever two
-/// hashes agree.
-fn upper_hash(id: &str) -> u64 {
+/// 32-bit hash of a lot id without regard to ASCII case (the upper half of SipHash-1-3 with
+/// fixed keys, the standard library's `DefaultHasher`): it only groups ids, which are
+/// compared whenever two hashes agree. 32 bits keep the table at 8 bytes a lot; a million
+/// lots share about a hundred hashes, which go to the overflow map (issue #13, item 11).
+fn upper_hash(id: &str) -> u32 {
     use std::hash::Hasher;
     let mut h = std::collections::hash_map::DefaultHasher::new();
     let mut buf = [0u8; 64];
@@ -401,12 +404,12 @@ fn upper_hash(id: &str) -> u64 {
         h.write(part);
     }
     h.write_usize(id.len());
-    h.finish()
+    (h.finish() >> 32) as u32
 }
 
 /// A wide results file read one lot at a time (issue #13, item 11): every row is checked as
 /// [`parse_report`] checks it, but only its place is kept, with a hash of its lot id, so
-/// memory holds the file's bytes and about 50 bytes per lot instead of every lot's results.
+/// memory holds the file's bytes and about 35 bytes per lot instead of every lot's results.
 /// The lots are read again with [`WideScan::for_each`].
 pub struct WideScan<'a> {
     name: &'a str,
@@ -418,13 +421,16 @@ pub struct WideScan<'a> {
     /// Byte offset (in `text`) and line of each lot's row, in file order.
     rows: Vec<(u64, u64)>,
     /// [`upper_hash`] of a lot id -> the first lot with that hash.
-    by_hash: HashMap<u64, u32, std::hash::BuildHasherDefault<PassThrough>>,
+    by_hash: HashMap<u32, u32, std::hash::BuildHasherDefault<PassThrough>>,
     /// Lots whose hash an earlier lot with another id took: id -> lot.
     overflow: HashMap<String, u32>,
     /// Lines of the rows skipped as exact repeats of an earlier row, ascending.
     repeats: Vec<u64>,
     /// Value columns that hold no value on any row (as [`Parsed::empty`]).
     pub empty: Vec<String>,
+    /// One reader that seeks to a lot's row to read it again: building a CSV reader costs
+    /// more than reading a row (issue #13, item 11).
+    seeker: std::cell::RefCell<csv::Reader<std::io::Cursor<&'a [u8]>>>,
 }
 
 /// Reads a wide results file one lot at a time, refusing exactly what [`parse_report`]
@@ -439,7 +445,7 @@ pub fn scan_wide<'a>(
     name: &'a str,
     bytes: &'a [u8],
     opts: Options,
-    visit: &mut dyn FnMut(&LotResults, Option<&Twin>),
+    visit: &mut dyn FnMut(LotResults, Option<Twin>),
 ) -> Result<Option<WideScan<'a>>> {
     let (text, delimiter, headers) = prepare(name, bytes, &opts)?;
     if headers.iter().any(|h| h == "property") {
@@ -451,6 +457,13 @@ pub fn scan_wide<'a>(
         opts: opts.clone(),
     }
     .wide_layout()?;
+    // Sized once from the line count (an upper bound on the rows), so that neither table
+    // is copied to grow while the file is read: growing them held old and new copies at once
+    // and set the peak memory of a million lots (issue #13, item 11). A row holds at least a
+    // lot id, a product code and a 10-character date with two separators (14 bytes), so a
+    // file of blank lines does not reserve a table for each.
+    let lines = memchr::memchr_iter(b'\n', text.as_bytes()).count() + 1;
+    let most = lines.min(text.len() / 14 + 1);
     let mut scan = WideScan {
         name,
         text,
@@ -458,11 +471,19 @@ pub fn scan_wide<'a>(
         headers,
         opts,
         layout,
-        rows: Vec::new(),
-        by_hash: HashMap::default(),
+        rows: Vec::with_capacity(most),
+        by_hash: HashMap::with_capacity_and_hasher(most, Default::default()),
         overflow: HashMap::new(),
         repeats: Vec::new(),
         empty: Vec::new(),
+        seeker: std::cell::RefCell::new(
+            csv::ReaderBuilder::new()
+                .delimiter(delimiter)
+                .has_headers(false)
+                .trim(csv::Trim::All)
+                .buffer_capacity(1024)
+                .from_reader(std::io::Cursor::new(text.as_bytes())),
+        ),
     };
     let mut filled = vec![false; scan.headers.len()];
     let mut late: Option<Error> = None;
@@ -508,7 +529,7 @@ pub fn scan_wide<'a>(
         if late.is_none() {
             late = scan.ctx().check_times(&new).err();
         }
-        visit(&new, twin.as_ref());
+        visit(new, twin);
         scan.rows.push((byte, line));
     }
     if let Some(e) = late {
@@ -547,10 +568,13 @@ impl WideScan<'_> {
     /// The row of lot `j`, read again.
     fn record(&self, j: u32) -> Result<(csv::StringRecord, u64)> {
         let (byte, line) = self.rows[j as usize];
-        let mut reader = csv_reader(&self.text[byte as usize..], self.delimiter, false);
+        let mut reader = self.seeker.borrow_mut();
+        let mut at = csv::Position::new();
+        at.set_byte(byte).set_line(line).set_record(u64::from(j));
         let mut rec = csv::StringRecord::new();
         reader
-            .read_record(&mut rec)
+            .seek(at)
+            .and_then(|()| reader.read_record(&mut rec))
             .map_err(|e| crate::support::csv_input::error(self.name, &e))?;
         Ok((rec, line))
     }

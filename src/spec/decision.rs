@@ -212,13 +212,90 @@ impl RecordedResult {
     }
 }
 
-/// Converts a finite f64 to a Decimal (about 15 significant digits kept).
+/// Converts a finite f64 to a Decimal (about 15 significant digits kept): the value written
+/// with 15 significant digits (`{:.14e}`, correctly rounded), read back exactly.
+///
+/// The text goes to a buffer on the stack, not the heap: this runs several times for every
+/// lot a release decides (issue #13, item 11).
 pub fn decimal_from_f64(x: f64) -> Option<Decimal> {
+    use std::fmt::Write;
     if !x.is_finite() {
         return None;
     }
-    let text = format!("{:.*e}", 14, x);
-    Decimal::from_scientific(&text).ok().map(|d| d.normalize())
+    if let Some(d) = fifteen_digits(x) {
+        return Some(d);
+    }
+    let mut text = StackText::default();
+    write!(text, "{:.*e}", 14, x).ok()?;
+    Decimal::from_scientific(text.as_str())
+        .ok()
+        .map(|d| d.normalize())
+}
+
+/// [`decimal_from_f64`] without text, for 10^-6 <= |x| < 10^14 (`None` outside): the exact
+/// binary value m·2^e (IEEE 754) times 10^k, k = 14 − ⌊log10 |x|⌋, is an integer part of 15
+/// digits and a remainder, computed exactly in 128 bits and rounded half to even, as Rust's
+/// exact float formatting rounds (checked against it in the tests below).
+fn fifteen_digits(x: f64) -> Option<Decimal> {
+    let a = x.abs();
+    if !(1e-6..1e14).contains(&a) {
+        return None;
+    }
+    let bits = a.to_bits();
+    let m = u128::from((bits & ((1u64 << 52) - 1)) | (1u64 << 52));
+    // a = m · 2^-shift; 6 <= shift <= 73 in the range above.
+    let shift = 1075 - ((bits >> 52) & 0x7ff) as u32;
+    let mut e10 = a.log10().floor() as i32;
+    // log10 may be one off next to a power of ten: the integer part's length corrects it.
+    for _ in 0..3 {
+        let k = u32::try_from(14 - e10).ok().filter(|&k| k <= 21)?;
+        let scaled = m * 10u128.pow(k);
+        let floor = scaled >> shift;
+        if floor >= 1_000_000_000_000_000 {
+            e10 += 1;
+            continue;
+        }
+        if floor < 100_000_000_000_000 {
+            e10 -= 1;
+            continue;
+        }
+        let rem = scaled & ((1u128 << shift) - 1);
+        let half = 1u128 << (shift - 1);
+        let q = if rem > half || (rem == half && floor & 1 == 1) {
+            floor + 1
+        } else {
+            floor
+        };
+        let q = if x < 0.0 { -(q as i128) } else { q as i128 };
+        return Decimal::try_from_i128_with_scale(q, k)
+            .ok()
+            .map(|d| d.normalize());
+    }
+    None
+}
+
+/// A short text written on the stack; writing more than it holds is an error.
+#[derive(Default)]
+struct StackText {
+    bytes: [u8; 32],
+    len: usize,
+}
+
+impl StackText {
+    fn as_str(&self) -> &str {
+        // Only whole `&str`s are ever copied in, so the bytes are valid UTF-8.
+        std::str::from_utf8(&self.bytes[..self.len]).unwrap_or_default()
+    }
+}
+
+impl std::fmt::Write for StackText {
+    fn write_str(&mut self, s: &str) -> std::fmt::Result {
+        let end = self.len + s.len();
+        let slot = self.bytes.get_mut(self.len..end).ok_or(std::fmt::Error)?;
+        slot.copy_from_slice(s.as_bytes());
+        self.len = end;
+        Ok(())
+    }
 }
 
 /// A recorded value held as `f64` (queries keep a million lots as floats) rounded to
@@ -520,5 +597,62 @@ mod tests {
             d("1989.36170212766")
         );
         assert!(decimal_from_f64(f64::NAN).is_none());
+    }
+
+    /// Issue #13 item 11: the stack-buffer conversion gives exactly what the heap text did
+    /// (`format!` then `from_scientific`), over magnitudes from 1e-30 to 1e30, both signs,
+    /// the extremes of f64 and values whose 16th digit is a tie.
+    #[test]
+    fn f64_conversion_matches_the_heap_text_issue_13() {
+        let heap = |x: f64| {
+            Decimal::from_scientific(&format!("{:.*e}", 14, x))
+                .ok()
+                .map(|d| d.normalize())
+        };
+        let mut xs = vec![
+            0.0,
+            -0.0,
+            f64::MAX,
+            f64::MIN_POSITIVE,
+            -f64::MAX,
+            5e-324,
+            0.1,
+            0.125,
+            1.000000000000005,
+            2.0000000000000045,
+            1e28,
+            7.9e28,
+            // Exact ties in the 16th digit (ASTM E29 half-even, as Rust formats them).
+            1234567890123.125,
+            1234567890123.375,
+            123456789012.0625,
+            123456789012.1875,
+            0.5,
+            1e-6,
+            1e14,
+            1982.3321554770318,
+        ];
+        // Powers of ten and their neighbours, where log10 may be one off.
+        for e in -8..=15 {
+            let p = 10f64.powi(e);
+            xs.extend([p, p.next_up(), p.next_down(), -p.next_down()]);
+        }
+        let mut state = 0x2545_f491_4f6c_dd1d_u64;
+        for e in -30..=30 {
+            for _ in 0..2000 {
+                state ^= state << 13;
+                state ^= state >> 7;
+                state ^= state << 17;
+                let m = 1.0 + (state >> 11) as f64 / (1u64 << 53) as f64;
+                xs.push(m * 10f64.powi(e));
+                xs.push(-m * 10f64.powi(e));
+            }
+        }
+        for x in xs {
+            assert_eq!(decimal_from_f64(x), heap(x), "{x:e}");
+            if let Some(d) = decimal_from_f64(x) {
+                assert_eq!(d.to_string(), heap(x).unwrap().to_string(), "{x:e}");
+            }
+        }
     }
 }

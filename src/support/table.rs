@@ -4,7 +4,7 @@ use unicode_width::UnicodeWidthStr;
 
 /// The width a cell takes on a terminal: combining marks (the bar of x̄ and MR̄) take no
 /// column, so they are not counted as characters are (Unicode UAX #11 via `unicode-width`).
-fn width(cell: &str) -> usize {
+pub fn width(cell: &str) -> usize {
     UnicodeWidthStr::width(cell)
 }
 
@@ -40,19 +40,28 @@ pub fn widen(widths: &mut Vec<usize>, row: &[String]) {
 /// One row of a table whose columns are `widths` wide, with its line feed; the last cell is
 /// not padded and trailing spaces are dropped.
 pub fn line(row: &[String], widths: &[usize]) -> String {
-    let mut line = String::new();
+    let cells: Vec<&str> = row.iter().map(String::as_str).collect();
+    let mut out = String::new();
+    push_line(&mut out, &cells, widths);
+    out
+}
+
+/// Appends [`line()`] of the cells `row` to `out`: a buffer can serve row after row without
+/// a new string for each (issue #13, item 11).
+pub fn push_line(out: &mut String, row: &[&str], widths: &[usize]) {
+    let start = out.len();
     for (i, cell) in row.iter().enumerate() {
         if i > 0 {
-            line.push_str("  ");
+            out.push_str("  ");
         }
-        line.push_str(cell);
+        out.push_str(cell);
         if i + 1 < row.len() {
-            line.extend(std::iter::repeat_n(' ', widths[i] - width(cell)));
+            out.extend(std::iter::repeat_n(' ', widths[i] - width(cell)));
         }
     }
-    let mut out = line.trim_end().to_string();
+    let kept = start + out[start..].trim_end().len();
+    out.truncate(kept);
     out.push('\n');
-    out
 }
 
 /// The underline of a table's header, as wide as its columns and their separators.

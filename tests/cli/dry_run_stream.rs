@@ -277,3 +277,110 @@ fn a_streamed_dry_run_refuses_what_the_release_refuses_issue_13() {
     ws.write("again.csv", GOOD);
     assert_eq!(run(&ws, "again.csv", &["--dry-run"]).0, Some(0));
 }
+
+/// Lot `i` of a generated file of many lots (invented test data): two products, lots made
+/// under revision B and C, results cycling through passing, held and failing values, some
+/// with a lab note.
+fn many(
+    i: usize,
+) -> (
+    String,
+    &'static str,
+    String,
+    String,
+    String,
+    String,
+    &'static str,
+) {
+    (
+        format!("Q{i:05}"),
+        if i.is_multiple_of(3) {
+            "TP-3000"
+        } else {
+            "TP-2000"
+        },
+        if i % 5 == 1 {
+            format!("2025-08-{:02}", 1 + i % 28)
+        } else {
+            format!("2026-05-{:02}", 1 + i % 28)
+        },
+        format!("{:.2}", 0.40 + (i % 9) as f64 * 0.09),
+        format!("{:.1}", 52.0 + (i % 17) as f64 * 0.45),
+        format!("{}", 440 + (i % 23) * 10),
+        if i.is_multiple_of(7) {
+            "batch note"
+        } else {
+            ""
+        },
+    )
+}
+
+/// Issue #13 item 11: lots are decided in chunks on every core and each table row is kept
+/// from the first pass; with several chunks, two products, a product whose later lots are
+/// decided on a revision with other properties than its first lot's, and note lines, the
+/// report is still byte for byte the whole-file path's, and a refusal in a later chunk is
+/// the real release's.
+#[test]
+fn a_streamed_dry_run_over_several_chunks_prints_what_the_whole_file_path_prints_issue_13() {
+    let ws = workspace();
+    // TP-3000 revision B lacks extent_of_reaction: its first lot (revision C) sets the
+    // columns, so revision B lots show '-' there.
+    let b = std::fs::read_to_string(ws.path("specs/tp-2000-b.toml")).unwrap();
+    let cut = b.find("[properties.extent_of_reaction]").unwrap();
+    let b3 = b[..cut]
+        .replace("code = \"TP-2000\"", "code = \"TP-3000\"")
+        .replace("name = \"Test polyester diol", "name = \"Second test diol");
+    ws.write("specs/tp-3000-b.toml", &b3);
+    let n = 5000;
+    let mut wide = WIDE_HEADER.to_string();
+    let mut long = "lot,product,manufactured,property,value,notes\n".to_string();
+    for i in 0..n {
+        let (lot, product, made, av, ohv, visc, note) = many(i);
+        wide.push_str(&format!(
+            "{lot},{product},{made},{av},{ohv},{visc},{note}\n"
+        ));
+        for (key, v) in [
+            ("acid_value", &av),
+            ("hydroxyl_value", &ohv),
+            ("viscosity", &visc),
+        ] {
+            long.push_str(&format!("{lot},{product},{made},{key},{v},{note}\n"));
+        }
+    }
+    ws.write("many.csv", &wide);
+    ws.write("many-long.csv", &long);
+    let before = ws.snapshot();
+    for flags in [&["--dry-run"][..], &["--dry-run", "--json"][..]] {
+        let streamed = run(&ws, "many.csv", flags);
+        let whole = run(&ws, "many-long.csv", flags);
+        assert_eq!(streamed.0, Some(1), "{}", streamed.2);
+        assert!(streamed == whole, "{flags:?}: the reports differ");
+    }
+    let (_, text, _) = run(&ws, "many.csv", &["--dry-run"]);
+    assert!(text.contains(&format!("{n} lots: ")), "{text}");
+    assert!(text.contains("\nQ00001  B  "), "{text}");
+    assert!(text.contains("; lab note: batch note\n"), "{text}");
+    assert!(
+        text.contains("16.9  -                   not written\n"),
+        "{text}"
+    );
+    assert_eq!(ws.snapshot(), before, "a dry run wrote something");
+    // A future date in a late chunk; then also a bad cell after it, which is named first.
+    let mut lines: Vec<String> = wide.lines().map(str::to_string).collect();
+    lines[4501] = lines[4501].replace("2026-05-", "2027-05-");
+    let future = lines.join("\n") + "\n";
+    let (lot, product, made, _, ohv, visc, note) = many(4998);
+    lines[4999] = format!("{lot},{product},{made},0.5x,{ohv},{visc},{note}");
+    let bad = lines.join("\n") + "\n";
+    for (file, text, expected) in [
+        ("future.csv", future, "is in the future"),
+        ("bad.csv", bad, "'0.5x' is not a number"),
+    ] {
+        ws.write(file, &text);
+        let dry = run(&ws, file, &["--dry-run"]);
+        let real = run(&ws, file, &["--no-certificates"]);
+        assert_eq!(dry.0, Some(2), "{file}: {}", dry.2);
+        assert!(dry.2.contains(expected), "{file}: {}", dry.2);
+        assert_eq!(dry, real, "{file}");
+    }
+}
