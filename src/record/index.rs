@@ -30,19 +30,29 @@ const MAGIC: &[u8; 8] = b"RLOTIX01";
 const HEAD: usize = 8 + 8 * 6 + 64 + 4 + 8;
 const ENTRY: usize = 24;
 
-/// The index file of a trend file: `.<stem>.lot-index` in the same folder.
-pub fn path_for(trend: &Path) -> PathBuf {
+/// The name endings of the derived files kept beside a trend file: this lot index and the
+/// lot table cache ([`crate::record::table_cache`]).
+const DERIVED: [&str; 2] = [".lot-index", ".lot-table"];
+
+/// The derived file `.<stem><ending>` beside the trend file `trend` (`ending` one of
+/// [`DERIVED`]).
+pub(crate) fn derived_path(trend: &Path, ending: &str) -> PathBuf {
+    debug_assert!(DERIVED.contains(&ending));
     let stem = trend
         .file_stem()
         .map_or_else(String::new, |s| s.to_string_lossy().into_owned());
-    trend.with_file_name(format!(".{stem}.lot-index"))
+    trend.with_file_name(format!(".{stem}{ending}"))
 }
 
-/// True for a file name the lot index or the lot table cache
-/// ([`crate::record::table_cache`]) uses: derived files, so folder walks leave them out.
+/// The index file of a trend file: `.<stem>.lot-index` in the same folder.
+pub fn path_for(trend: &Path) -> PathBuf {
+    derived_path(trend, DERIVED[0])
+}
+
+/// True for a file name the lot index or the lot table cache uses: derived files, so folder
+/// walks leave them out.
 pub fn is_index_name(name: &str) -> bool {
-    (name.starts_with('.') && name.ends_with(".lot-index"))
-        || crate::record::table_cache::is_cache_name(name)
+    name.starts_with('.') && DERIVED.iter().any(|e| name.ends_with(e))
 }
 
 /// What the index records about the trend file it was built from.
@@ -69,10 +79,11 @@ impl Stamp {
         })
     }
 
-    /// The index's magic followed by the stamp's fields.
-    pub(crate) fn bytes(&self) -> Vec<u8> {
+    /// A derived file's head: its `magic` followed by the stamp's fields (the lot index and
+    /// the lot table cache each start so).
+    pub(crate) fn head(&self, magic: &[u8; 8]) -> Vec<u8> {
         let mut v = Vec::with_capacity(HEAD);
-        v.extend_from_slice(MAGIC);
+        v.extend_from_slice(magic);
         for x in [
             self.len,
             self.ino,
@@ -159,7 +170,7 @@ fn build(path: &Path, stamp: &Stamp) -> Result<Vec<u8>> {
         entries.par_sort_unstable();
     }
     let bits = bucket_bits(entries.len());
-    let mut out = stamp.bytes();
+    let mut out = stamp.head(MAGIC);
     out.extend_from_slice(&bits.to_le_bytes());
     out.extend_from_slice(&(entries.len() as u64).to_le_bytes());
     let mut at = 0usize;
@@ -254,7 +265,7 @@ fn open_current(index: &Path, stamp: &Stamp) -> Option<OnDisk> {
     let len = file.metadata().ok()?.len();
     let mut head = vec![0u8; HEAD];
     file.read_exact_at(&mut head, 0).ok()?;
-    if head[..HEAD - 12] != stamp.bytes()[..] {
+    if head[..HEAD - 12] != stamp.head(MAGIC)[..] {
         return None;
     }
     let bits = u32_at(&head, HEAD - 12);

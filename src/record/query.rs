@@ -1061,36 +1061,6 @@ impl LotTable {
         (self.labels.len() - 1) as u8
     }
 
-    /// A table from its columns (the lot table cache reads them so).
-    #[allow(clippy::too_many_arguments)]
-    pub(crate) fn from_parts(
-        keys: usize,
-        line: Vec<u32>,
-        ids: Vec<u8>,
-        id_end: Vec<u32>,
-        made: Vec<Day>,
-        status: Vec<u8>,
-        revision: Vec<u8>,
-        labels: Vec<&'static str>,
-        mn_uncertainty: Vec<f64>,
-        values: Vec<f64>,
-        lives: Vec<Life>,
-    ) -> LotTable {
-        LotTable {
-            keys,
-            line,
-            ids,
-            id_end,
-            made,
-            status,
-            revision,
-            labels,
-            mn_uncertainty,
-            values,
-            lives,
-        }
-    }
-
     /// This table (loaded with every property `file_keys`) with only the values of `keys`,
     /// and the uncertainty and lives only when asked for.
     pub(crate) fn project(

@@ -32,17 +32,10 @@ use crate::record::query::{Day, Life, LotTable};
 
 const MAGIC: &[u8; 8] = b"RLOTTB01";
 
-/// The cache file of a trend file: `.<stem>.lot-table` in the same folder.
+/// The cache file of a trend file: `.<stem>.lot-table` in the same folder (a name
+/// [`crate::record::index::is_index_name`] knows as derived).
 pub fn path_for(trend: &Path) -> PathBuf {
-    let stem = trend
-        .file_stem()
-        .map_or_else(String::new, |s| s.to_string_lossy().into_owned());
-    trend.with_file_name(format!(".{stem}.lot-table"))
-}
-
-/// True for a file name the cache uses.
-pub fn is_cache_name(name: &str) -> bool {
-    name.starts_with('.') && name.ends_with(".lot-table")
+    crate::record::index::derived_path(trend, ".lot-table")
 }
 
 /// The current lots of the trend file at `path` with the values of `keys` (which the caller
@@ -90,8 +83,7 @@ fn put_texts<'a>(out: &mut Vec<u8>, texts: impl ExactSizeIterator<Item = &'a str
 fn encode(t: &LotTable, file_keys: &[String], stamp: &Stamp) -> Vec<u8> {
     let n = t.len();
     let mut out = Vec::with_capacity(128 + n * (48 + 8 * file_keys.len()) + t.ids.len());
-    out.extend_from_slice(MAGIC);
-    out.extend_from_slice(&stamp.bytes()[8..]);
+    out.extend_from_slice(&stamp.head(MAGIC));
     out.extend_from_slice(&(n as u64).to_le_bytes());
     out.extend_from_slice(&(t.ids.len() as u64).to_le_bytes());
     out.extend_from_slice(&(file_keys.len() as u32).to_le_bytes());
@@ -229,11 +221,11 @@ fn read(
 ) -> Option<LotTable> {
     let file = File::open(cache).ok()?;
     let file_len = file.metadata().ok()?.len();
-    let stamp_bytes = stamp.bytes();
+    let want = stamp.head(MAGIC);
     let mut head = vec![0u8; (64 << 10).min(file_len as usize)];
     file.read_exact_at(&mut head, 0).ok()?;
-    let mut at = stamp_bytes.len();
-    if head.get(..8)? != MAGIC || head.get(8..at)? != &stamp_bytes[8..] {
+    let mut at = want.len();
+    if head.get(..at)? != want {
         return None;
     }
     let u64_at = |at: usize| -> Option<u64> {
@@ -323,22 +315,22 @@ fn read(
             values[i * stride + j] = v
         })?;
     }
-    Some(LotTable::from_parts(
-        keys.len(),
+    Some(LotTable {
+        keys: keys.len(),
         line,
         ids,
         id_end,
         made,
         status,
         revision,
-        labels
+        labels: labels
             .iter()
             .map(|l| crate::record::query::intern_label(l))
             .collect(),
         mn_uncertainty,
         values,
         lives,
-    ))
+    })
 }
 
 #[cfg(test)]
@@ -469,7 +461,8 @@ mod tests {
     fn cache_names_are_hidden_and_not_csv() {
         let c = path_for(Path::new("register/PD-2000.csv"));
         assert_eq!(c, Path::new("register/.PD-2000.lot-table"));
-        assert!(is_cache_name(".PD-2000.lot-table"));
-        assert!(!is_cache_name("PD-2000.csv"));
+        assert!(crate::record::index::is_index_name(".PD-2000.lot-table"));
+        assert!(crate::record::index::is_index_name(".PD-2000.lot-index"));
+        assert!(!crate::record::index::is_index_name("PD-2000.csv"));
     }
 }
