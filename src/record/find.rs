@@ -227,24 +227,6 @@ pub fn matching_in_table(
     loaded: &[String],
     filter: &LotFilter,
 ) -> (Vec<usize>, usize) {
-    matching_in(
-        table.len(),
-        |i, row| table.row_into(i, row),
-        |i| (table.made(i), table.line(i)),
-        loaded,
-        filter,
-    )
-}
-
-/// The lots `0..n` that meet `filter`, each put into one reused row by `fetch`, sorted newest
-/// first by `key` (manufacture date, record line); and how many were left out as expired.
-fn matching_in(
-    n: usize,
-    mut fetch: impl FnMut(usize, &mut LotRow),
-    key: impl Fn(usize) -> (Day, usize),
-    loaded: &[String],
-    filter: &LotFilter,
-) -> (Vec<usize>, usize) {
     let life_of = |i: usize| -> Life {
         filter
             .life
@@ -252,9 +234,8 @@ fn matching_in(
             .unwrap_or_default()
     };
     let mut expired = 0usize;
-    // Dates are YYYY-MM-DD, so text order is date order: no parsing per row.
-    let from = filter.from.map(|d| d.to_string());
-    let to = filter.to.map(|d| d.to_string());
+    // Dates compare as their bytes (YYYY-MM-DD): no parsing or text per lot.
+    let (from_day, to_day) = (filter.from.map(Day::from), filter.to.map(Day::from));
     let at = |k: &str| loaded.iter().position(|x| x == k).expect("key checked");
     let win_idx: Vec<usize> = filter.windows.iter().map(|w| at(&w.key)).collect();
     let bounds: Vec<(Option<Decimal>, Option<Decimal>)> = filter
@@ -276,11 +257,9 @@ fn matching_in(
         mn_uncertainty: None,
         values: Vec::new(),
     };
-    // Dates compare as their bytes (YYYY-MM-DD): no text per lot.
-    let (from_day, to_day) = (from.as_deref().map(Day::from), to.as_deref().map(Day::from));
     let mut hits: Vec<usize> = Vec::new();
-    for i in 0..n {
-        fetch(i, &mut row);
+    for i in 0..table.len() {
+        table.row_into(i, &mut row);
         let row = &row;
         if filter.status.is_some_and(|s| s.as_str() != row.status) {
             continue;
@@ -321,7 +300,7 @@ fn matching_in(
         }
         hits.push(i);
     }
-    hits.sort_by_key(|&i| std::cmp::Reverse(key(i)));
+    hits.sort_by_key(|&i| std::cmp::Reverse((table.made(i), table.line(i))));
     (hits, expired)
 }
 

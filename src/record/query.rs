@@ -266,6 +266,12 @@ impl From<&str> for Day {
     }
 }
 
+impl From<NaiveDate> for Day {
+    fn from(d: NaiveDate) -> Day {
+        Day::from(d.to_string().as_str())
+    }
+}
+
 impl std::ops::Deref for Day {
     type Target = str;
     fn deref(&self) -> &str {

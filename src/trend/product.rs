@@ -40,7 +40,7 @@ pub struct Selection {
 /// a table already selected and in order is returned as it is (no copy, issue #20).
 pub fn select(lots: LotTable, sel: &Selection) -> LotTable {
     // Dates are YYYY-MM-DD, so byte order is date order: no parsing per lot.
-    let (from, to) = (sel.from.map(day_of), sel.to.map(day_of));
+    let (from, to) = (sel.from.map(Day::from), sel.to.map(Day::from));
     let mut order: Vec<u32> = (0..lots.len() as u32)
         .filter(|&i| {
             let i = i as usize;
@@ -58,11 +58,6 @@ pub fn select(lots: LotTable, sel: &Selection) -> LotTable {
         order.sort_by_key(|&i| lots.made(i as usize));
     }
     lots.gather(&order)
-}
-
-/// A date as the record keeps it.
-fn day_of(d: chrono::NaiveDate) -> Day {
-    Day::from(d.to_string().as_str())
 }
 
 /// The lots of one property's trend, in order: indices into the selected lots, which every
@@ -246,7 +241,7 @@ pub fn property_trend(
         Baseline::All => values.len(),
         Baseline::First(n) => (*n).min(values.len()),
         Baseline::Until(d) => {
-            let d = day_of(*d);
+            let d = Day::from(*d);
             (0..ids.len()).take_while(|&i| ids.date(i) <= d).count()
         }
     };
