@@ -1362,13 +1362,7 @@ mod tests {
     /// and declines the forms it does not handle.
     #[test]
     fn exact_decimal_matches_the_standard_parser() {
-        let mut state = 0x2545_f491_4f6c_dd1du64;
-        let mut next = || {
-            state ^= state << 13;
-            state ^= state >> 7;
-            state ^= state << 17;
-            state
-        };
+        let mut next = crate::support::test_rng::xorshift(0x2545_f491_4f6c_dd1d);
         for _ in 0..200_000 {
             let r = next();
             let int_digits = 1 + (r % 9) as usize;

@@ -380,13 +380,7 @@ mod tests {
     /// and near ties, for both rounding methods.
     #[test]
     fn rounded_text_is_the_decimals_display() {
-        let mut state = 0x9e37_79b9_7f4a_7c15u64;
-        let mut next = || {
-            state ^= state << 13;
-            state ^= state >> 7;
-            state ^= state << 17;
-            state
-        };
+        let mut next = crate::support::test_rng::xorshift(0x9e37_79b9_7f4a_7c15);
         let mut values = vec![
             0.0, -0.0, 0.0205, 0.0215, -0.0049, 0.5, 2.5, 1999.5, -1999.5, 1e-12,
         ];
@@ -637,13 +631,10 @@ mod tests {
             let p = 10f64.powi(e);
             xs.extend([p, p.next_up(), p.next_down(), -p.next_down()]);
         }
-        let mut state = 0x2545_f491_4f6c_dd1d_u64;
+        let mut next = crate::support::test_rng::xorshift(0x2545_f491_4f6c_dd1d);
         for e in -30..=30 {
             for _ in 0..2000 {
-                state ^= state << 13;
-                state ^= state >> 7;
-                state ^= state << 17;
-                let m = 1.0 + (state >> 11) as f64 / (1u64 << 53) as f64;
+                let m = 1.0 + (next() >> 11) as f64 / (1u64 << 53) as f64;
                 xs.push(m * 10f64.powi(e));
                 xs.push(-m * 10f64.powi(e));
             }

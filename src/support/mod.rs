@@ -10,6 +10,8 @@ pub mod ids;
 pub mod output;
 pub mod pdf_meta;
 pub mod table;
+#[cfg(test)]
+pub mod test_rng;
 pub mod text;
 pub mod tomlfile;
 pub mod visual;
