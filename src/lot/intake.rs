@@ -89,6 +89,32 @@ pub struct LotResults {
     pub decided_at: Option<LabTime>,
 }
 
+impl LotResults {
+    /// A lot read from `line` with these readings and nothing yet from the file's who-and-when
+    /// columns (analysts, test times, notes, approver, decision time).
+    fn new(
+        lot: String,
+        product: String,
+        manufactured: NaiveDate,
+        readings: IndexMap<String, Vec<Reading>>,
+        line: u64,
+    ) -> LotResults {
+        LotResults {
+            lot,
+            product,
+            manufactured,
+            readings,
+            analysts: vec![],
+            line,
+            tested_from: None,
+            tested_to: None,
+            notes: vec![],
+            approver: None,
+            decided_at: None,
+        }
+    }
+}
+
 /// A date or time as a lab file gives it (`tested_at`, `decided_at`): a date `YYYY-MM-DD`,
 /// a time with a zone (RFC 3339, kept in UTC) or a local time `YYYY-MM-DD HH:MM[:SS]`.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -1116,19 +1142,7 @@ impl Ctx<'_> {
             );
         }
         let meta = self.row_meta(rec, line)?;
-        let mut new = LotResults {
-            lot,
-            product,
-            manufactured,
-            readings,
-            analysts: vec![],
-            line,
-            tested_from: None,
-            tested_to: None,
-            notes: vec![],
-            approver: None,
-            decided_at: None,
-        };
+        let mut new = LotResults::new(lot, product, manufactured, readings, line);
         self.merge_meta(&mut new, meta, line)?;
         Ok(new)
     }
@@ -1269,19 +1283,13 @@ impl Ctx<'_> {
             }
             return Ok(p);
         }
-        lots.push(LotResults {
-            lot: lot.to_string(),
+        lots.push(LotResults::new(
+            lot.to_string(),
             product,
-            manufactured: NaiveDate::MIN,
-            readings: IndexMap::new(),
-            analysts: vec![],
+            NaiveDate::MIN,
+            IndexMap::new(),
             line,
-            tested_from: None,
-            tested_to: None,
-            notes: vec![],
-            approver: None,
-            decided_at: None,
-        });
+        ));
         dates.push(None);
         index.insert(lot.to_string(), lots.len() - 1);
         Ok(lots.len() - 1)
