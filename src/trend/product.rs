@@ -75,9 +75,9 @@ impl TrendLots {
         TrendLots { table, rows }
     }
 
-    /// Lots with these ids (invented test fixtures and charts drawn without a record), dated
-    /// 1970-01-01.
-    pub fn of_ids<S: AsRef<str>>(ids: &[S]) -> TrendLots {
+    /// Lots with these ids, dated 1970-01-01 (invented test fixtures for charts).
+    #[cfg(test)]
+    pub(crate) fn of_ids<S: AsRef<str>>(ids: &[S]) -> TrendLots {
         let rows: Vec<crate::record::query::LotRow> = ids
             .iter()
             .enumerate()
