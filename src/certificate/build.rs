@@ -126,12 +126,13 @@ impl LotRecord {
         for p in &d.properties {
             let v = p
                 .exact
-                .clone()
+                .as_deref()
+                .map(str::to_string)
                 .or_else(|| p.value.map(|v| v.to_string()))
                 .unwrap_or_default();
-            values.insert(p.property.clone(), v);
+            values.insert(p.property.to_string(), v);
             verdicts.insert(
-                p.property.clone(),
+                p.property.to_string(),
                 p.verdict
                     .map(|v| v.as_str().to_string())
                     .unwrap_or_default(),
@@ -141,11 +142,11 @@ impl LotRecord {
             }
         }
         LotRecord {
-            lot: d.lot.clone(),
-            product: d.product.clone(),
+            lot: d.lot.to_string(),
+            product: d.product.to_string(),
             manufactured: d.manufactured,
             status: d.status,
-            revision: d.spec_revision.clone(),
+            revision: d.spec_revision.to_string(),
             values,
             verdicts,
             mn_uncertainty: mn_u,

@@ -451,9 +451,12 @@ fn streamed_dry_run<'s>(
                 }
             }
             if let Some(row) = row {
-                if !tables.contains_key(&d.product) {
-                    let keys: Vec<String> =
-                        d.properties.iter().map(|p| p.property.clone()).collect();
+                if !tables.contains_key(d.product.as_str()) {
+                    let keys: Vec<String> = d
+                        .properties
+                        .iter()
+                        .map(|p| p.property.to_string())
+                        .collect();
                     let mut widths = Vec::new();
                     crate::support::table::widen(&mut widths, &table_header(&keys));
                     let table = ProductTable {
@@ -462,9 +465,9 @@ fn streamed_dry_run<'s>(
                         rows: RowStore::default(),
                         notes: Vec::new(),
                     };
-                    tables.insert(d.product.clone(), table);
+                    tables.insert(d.product.to_string(), table);
                 }
-                let Some(t) = tables.get_mut(&d.product) else {
+                let Some(t) = tables.get_mut(d.product.as_str()) else {
                     continue;
                 };
                 // A lot decided on another revision than the product's first lot has its
@@ -781,7 +784,7 @@ fn withdraw_after_retests(
             .map(|(_, i)| i.certificate_number.clone())
             .collect();
         for e in log.withdraw_lot(&d.lot, &cause, &new, now)? {
-            out.push((d.lot.clone(), log.notice(&e)));
+            out.push((d.lot.to_string(), log.notice(&e)));
         }
     }
     Ok(out)
@@ -897,7 +900,7 @@ fn certified_rows(
             .entry(d.product.as_str())
             .or_insert_with(|| trends.get(d.product.as_str()).map_or(0, |t| t.rows.len()));
         *seq += 1;
-        rows.push((d.product.clone(), *seq));
+        rows.push((d.product.to_string(), *seq));
     }
     rows
 }
@@ -1147,8 +1150,8 @@ const NOT_WRITTEN: &str = "not written";
 /// The table row of one lot.
 fn lot_row(d: &LotDecision, keys: &[String], recorded: &Recorded) -> Vec<String> {
     let mut r = vec![
-        d.lot.clone(),
-        d.spec_revision.clone(),
+        d.lot.to_string(),
+        d.spec_revision.to_string(),
         d.status.as_str().to_string(),
     ];
     for k in keys {
@@ -1251,7 +1254,7 @@ fn render(
         let keys: Vec<String> = decisions[idx[0]]
             .properties
             .iter()
-            .map(|p| p.property.clone())
+            .map(|p| p.property.to_string())
             .collect();
         let mut rows = vec![table_header(&keys)];
         for &i in &idx {

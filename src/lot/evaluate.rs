@@ -3,7 +3,6 @@
 
 use std::str::FromStr;
 
-use rust_decimal::prelude::ToPrimitive;
 use rust_decimal::Decimal;
 use serde::Serialize;
 
@@ -13,11 +12,13 @@ use crate::error::{Error, Result};
 use crate::lot::intake::{entered_text, Form, LotResults, Reading};
 use crate::lot::note::LotNote;
 use crate::spec::decision::{
-    censored_text, censored_verdict, decimal_from_f64, round, verdict, DecisionRule, Verdict,
+    censored_text, censored_verdict, decimal_from_f64, decimal_text, decimal_to_f64, round,
+    verdict, DecisionRule, Verdict,
 };
 use crate::spec::keys;
 use crate::spec::units::unit_factor;
 use crate::spec::{ProductSpec, Property};
+pub use crate::support::text::Text;
 
 /// The guard bands live with the customer-fit rule in the spec layer; re-exported for callers
 /// of the lot layer.
@@ -65,19 +66,19 @@ impl Status {
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct PropertyResult {
     /// Property key.
-    pub property: String,
+    pub property: Text,
     /// Value at full precision (mean of replicates, in the spec's unit), None when missing.
     pub value: Option<f64>,
     /// Exact decimal text of the value for measured properties.
     #[serde(skip)]
-    pub exact: Option<String>,
+    pub exact: Option<Text>,
     /// The value as entered (mean of replicates), before any acidity correction.
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub entered: Option<String>,
+    pub entered: Option<Text>,
     /// Value rounded to the spec's decimals (ASTM E29), as text.
-    pub reported: Option<String>,
+    pub reported: Option<Text>,
     /// The spec's unit.
-    pub unit: String,
+    pub unit: Text,
     /// Verdict; None when missing or when the property has no limit.
     pub verdict: Option<Verdict>,
     /// Expanded uncertainty used as guard band (k = 2), when known.
@@ -88,11 +89,11 @@ pub struct PropertyResult {
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct LotDecision {
     /// Lot id.
-    pub lot: String,
+    pub lot: Text,
     /// Product code.
-    pub product: String,
+    pub product: Text,
     /// Spec revision applied.
-    pub spec_revision: String,
+    pub spec_revision: Text,
     /// Manufacture date.
     pub manufactured: chrono::NaiveDate,
     /// Lot status.
@@ -139,8 +140,9 @@ pub fn andrade_correct(eta: f64, t_meas_c: f64, t_spec_c: f64, b_k: f64) -> f64 
     eta * (b_k * (1.0 / k(t_spec_c) - 1.0 / k(t_meas_c))).exp()
 }
 
+/// `d` as a float, as rust_decimal converts it ([`decimal_to_f64`]).
 fn to_f64(d: Decimal) -> f64 {
-    d.to_f64().unwrap_or(f64::NAN)
+    decimal_to_f64(d)
 }
 
 struct Mean {
@@ -156,7 +158,10 @@ fn mean_reading(
     notes: &mut Vec<LotNote>,
     file: &str,
 ) -> Result<Mean> {
-    let mut values = Vec::with_capacity(readings.len());
+    // Sum, extremes and the first value, as the readings are converted.
+    let mut sum = Decimal::ZERO;
+    let mut extremes: Option<(Decimal, Decimal)> = None;
+    let mut first = None;
     for r in readings {
         let mut v = r.value;
         if let Some(u) = &r.unit {
@@ -190,15 +195,15 @@ fn mean_reading(
                 notes.push(LotNote::temperature_corrected(&p.label, t, ts, b));
             }
         }
-        values.push(v);
+        sum += v;
+        extremes = Some(extremes.map_or((v, v), |(lo, hi)| (lo.min(v), hi.max(v))));
+        first.get_or_insert(v);
     }
-    let n = values.len();
-    let sum: Decimal = values.iter().copied().sum();
-    let max = values.iter().copied().max().unwrap_or_default();
-    let min = values.iter().copied().min().unwrap_or_default();
+    let n = readings.len();
+    let (min, max) = extremes.unwrap_or_default();
     Ok(Mean {
         value: if n == 1 {
-            values[0]
+            first.unwrap_or_default()
         } else {
             (sum / Decimal::from(n as u64)).normalize()
         },
@@ -239,9 +244,9 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
         Status::Released
     };
     Ok(LotDecision {
-        lot: lot.lot.clone(),
-        product: spec.code.clone(),
-        spec_revision: spec.revision.clone(),
+        lot: Text::from(lot.lot.as_str()),
+        product: Text::from(spec.code.as_str()),
+        spec_revision: Text::from(spec.revision.as_str()),
         manufactured: lot.manufactured,
         status,
         properties: results,
@@ -297,12 +302,12 @@ enum Special {
     Below(Decimal),
 }
 
-/// The means of the measured properties of one lot.
-struct Means {
+/// The means of the measured properties of one lot, by the spec's property keys.
+struct Means<'s> {
     /// Mean of the replicates, by property key, in spec order.
-    values: Vec<(String, Decimal)>,
+    values: Vec<(&'s str, Decimal)>,
     /// Words and censored results, by property key.
-    special: Vec<(String, Special)>,
+    special: Vec<(&'s str, Special)>,
     /// A measured property has no reading.
     any_missing: bool,
     /// A replicate range exceeds the property's repeatability limit.
@@ -311,26 +316,26 @@ struct Means {
 
 /// Averages the replicates of every measured property, noting missing properties, replicate
 /// counts and ranges beyond the repeatability limit.
-fn measured_means(
-    spec: &ProductSpec,
+fn measured_means<'s>(
+    spec: &'s ProductSpec,
     lot: &LotResults,
     file: &str,
     notes: &mut Vec<LotNote>,
-) -> Result<Means> {
+) -> Result<Means<'s>> {
     let mut means = Means {
-        values: Vec::new(),
+        values: Vec::with_capacity(spec.properties.len()),
         special: Vec::new(),
         any_missing: false,
         repeat_fail: false,
     };
     for p in spec.measured() {
-        let Some(readings) = lot.readings.get(&p.key) else {
+        let Some(readings) = lot.readings.get(p.key.as_str()) else {
             means.any_missing = true;
             notes.push(LotNote::not_measured(&p.label));
             continue;
         };
         if let Some(sp) = special_result(lot, p, readings, file)? {
-            means.special.push((p.key.clone(), sp));
+            means.special.push((p.key.as_str(), sp));
             continue;
         }
         let m = mean_reading(lot, p, readings, notes, file)?;
@@ -343,7 +348,7 @@ fn measured_means(
                 _ => notes.push(LotNote::replicates(&p.label, m.n, m.range)),
             }
         }
-        means.values.push((p.key.clone(), m.value));
+        means.values.push((p.key.as_str(), m.value));
     }
     Ok(means)
 }
@@ -459,8 +464,8 @@ fn special_decided(spec: &ProductSpec, p: &Property, sp: &Special) -> PropertyRe
     let mut r = missing(p);
     match sp {
         Special::Word(w) => {
-            r.exact = Some(w.clone());
-            r.reported = Some(w.clone());
+            r.exact = Some(Text::from(w.as_str()));
+            r.reported = Some(Text::from(w.as_str()));
             r.verdict = Some(if p.conforms(w) {
                 Verdict::Pass
             } else {
@@ -473,8 +478,12 @@ fn special_decided(spec: &ProductSpec, p: &Property, sp: &Special) -> PropertyRe
                 DecisionRule::Guarded => u.unwrap_or_default(),
                 DecisionRule::Simple => Decimal::ZERO,
             };
-            r.exact = Some(crate::spec::decision::RecordedResult::Below(*l).cell());
-            r.reported = Some(censored_text(*l, p.decimals));
+            r.exact = Some(
+                crate::spec::decision::RecordedResult::Below(*l)
+                    .cell()
+                    .into(),
+            );
+            r.reported = Some(censored_text(*l, p.decimals).into());
             r.verdict = if p.has_limit() {
                 censored_verdict(*l, p.min, p.max, w)
             } else {
@@ -493,9 +502,9 @@ fn measured_results(spec: &ProductSpec, means: &Means) -> Vec<PropertyResult> {
     let guarded = spec.decision_rule == DecisionRule::Guarded;
     let av_mean = means
         .iter()
-        .find(|(k, _)| k == keys::ACID_VALUE)
+        .find(|(k, _)| *k == keys::ACID_VALUE)
         .map(|(_, v)| *v);
-    let mut results = Vec::new();
+    let mut results = Vec::with_capacity(spec.properties.len());
     for p in spec.measured() {
         if let Some((_, sp)) = special.iter().find(|(k, _)| *k == p.key) {
             results.push(special_decided(spec, p, sp));
@@ -532,10 +541,10 @@ fn measured_results(spec: &ProductSpec, means: &Means) -> Vec<PropertyResult> {
             None,
             w,
             spec,
-            Some(value.to_string()),
+            Some(decimal_text(value)),
             u.map(to_f64),
         );
-        r.entered = Some(entered.to_string());
+        r.entered = Some(decimal_text(entered));
         results.push(r);
     }
     results
@@ -547,14 +556,14 @@ fn derived_results(
     spec: &ProductSpec,
     lot: &LotResults,
     file: &str,
-    means: &[(String, Decimal)],
+    means: &[(&str, Decimal)],
     results: &mut Vec<PropertyResult>,
 ) -> Result<bool> {
     let guarded = spec.decision_rule == DecisionRule::Guarded;
     let mean_of = |k: &str| {
         means
             .iter()
-            .find(|(key, _)| key == k)
+            .find(|(key, _)| *key == k)
             .map(|(_, v)| to_f64(*v))
     };
     let av = mean_of(keys::ACID_VALUE);
@@ -596,12 +605,12 @@ fn derived_results(
 
 fn missing(p: &Property) -> PropertyResult {
     PropertyResult {
-        property: p.key.clone(),
+        property: Text::from(p.key.as_str()),
         value: None,
         exact: None,
         entered: None,
         reported: None,
-        unit: p.unit.clone(),
+        unit: Text::from(p.unit.as_str()),
         verdict: None,
         uncertainty: None,
     }
@@ -615,17 +624,17 @@ fn decide(
     float: Option<f64>,
     w: Decimal,
     spec: &ProductSpec,
-    exact: Option<String>,
+    exact: Option<Text>,
     uncertainty: Option<f64>,
 ) -> PropertyResult {
     let reported = round(value, p.decimals, spec.rounding);
     PropertyResult {
-        property: p.key.clone(),
+        property: Text::from(p.key.as_str()),
         value: Some(float.unwrap_or_else(|| to_f64(value))),
         exact,
         entered: None,
-        reported: Some(reported.to_string()),
-        unit: p.unit.clone(),
+        reported: Some(decimal_text(reported)),
+        unit: Text::from(p.unit.as_str()),
         verdict: p.has_limit().then(|| verdict(reported, p.min, p.max, w)),
         uncertainty,
     }

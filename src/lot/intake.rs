@@ -11,6 +11,7 @@ use rust_decimal::Decimal;
 use crate::error::{Error, Result};
 use crate::spec::keys;
 use crate::support::ids::is_safe_id;
+use crate::support::text::Text;
 
 /// Limits that keep a hostile or mistaken file from exhausting the machine.
 #[derive(Debug, Clone, Copy)]
@@ -62,6 +63,39 @@ pub struct Reading {
     pub line: u64,
 }
 
+/// The replicates of one property of a lot, in file order; one is kept inline (a wide file
+/// gives one per property), so reading a lot does not allocate for each property (issue #13,
+/// item 11).
+pub type ReplicateList = smallvec::SmallVec<[Reading; 1]>;
+
+/// Property key -> its replicates, in file order. Keys are short texts kept inline and hashed
+/// with [`KeyHasher`].
+pub type ReadingMap = IndexMap<Text, ReplicateList, std::hash::BuildHasherDefault<KeyHasher>>;
+
+/// FNV-1a (Fowler, Noll and Vo; the 64-bit offset basis and prime of the published
+/// parameters) for the few property keys of one lot: the standard library's SipHash guards
+/// against adversarial keys, which a lot's handful of spec keys are not, at several times
+/// the cost (issue #13, item 11).
+#[derive(Clone, Copy)]
+pub struct KeyHasher(u64);
+
+impl Default for KeyHasher {
+    fn default() -> Self {
+        KeyHasher(0xcbf2_9ce4_8422_2325)
+    }
+}
+
+impl std::hash::Hasher for KeyHasher {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+    fn write(&mut self, bytes: &[u8]) {
+        for &b in bytes {
+            self.0 = (self.0 ^ u64::from(b)).wrapping_mul(0x0000_0100_0000_01b3);
+        }
+    }
+}
+
 /// All results of one lot.
 #[derive(Debug, Clone, PartialEq)]
 pub struct LotResults {
@@ -72,7 +106,7 @@ pub struct LotResults {
     /// Manufacture date.
     pub manufactured: NaiveDate,
     /// Property key to its replicates, in file order.
-    pub readings: IndexMap<String, Vec<Reading>>,
+    pub readings: ReadingMap,
     /// Analysts named in the file.
     pub analysts: Vec<String>,
     /// Line of the lot's first row.
@@ -96,7 +130,7 @@ impl LotResults {
         lot: String,
         product: String,
         manufactured: NaiveDate,
-        readings: IndexMap<String, Vec<Reading>>,
+        readings: ReadingMap,
         line: u64,
     ) -> LotResults {
         LotResults {
@@ -854,7 +888,7 @@ impl Ctx<'_> {
     }
 
     fn date(&self, v: &str, line: u64) -> Result<NaiveDate> {
-        NaiveDate::parse_from_str(v, "%Y-%m-%d").map_err(|_| {
+        crate::support::clock::iso_date(v).ok_or_else(|| {
             Error::invalid(
                 format!("{}:{line}, column 'manufactured'", self.name),
                 format!("'{v}' is not a date"),
@@ -865,10 +899,10 @@ impl Ctx<'_> {
 
     fn number(&self, v: &str, line: u64, column: &str) -> Result<Decimal> {
         let place = || format!("{}:{line}, column '{column}'", self.name);
-        let text = if self.opts.decimal_comma {
-            v.replace(',', ".")
+        let text: std::borrow::Cow<str> = if self.opts.decimal_comma {
+            v.replace(',', ".").into()
         } else {
-            v.to_string()
+            v.into()
         };
         if self.opts.decimal_comma && v.contains('.') {
             return Err(Error::invalid(
@@ -1116,14 +1150,15 @@ impl Ctx<'_> {
             }
             None => None,
         };
-        let mut readings = IndexMap::with_capacity(layout.value_cols.len());
+        let mut readings =
+            ReadingMap::with_capacity_and_hasher(layout.value_cols.len(), Default::default());
         for &i in &layout.value_cols {
             let v = self.cell(rec, i, line)?;
             if v.is_empty() {
                 continue;
             }
             filled[i] = true;
-            let key = self.headers[i].clone();
+            let key = Text::from(self.headers[i].as_str());
             let (value, form) = self.result(v, line, &key)?;
             let t = if key == keys::VISCOSITY {
                 temperature_c
@@ -1132,7 +1167,7 @@ impl Ctx<'_> {
             };
             readings.insert(
                 key,
-                vec![Reading {
+                smallvec::smallvec![Reading {
                     value,
                     form,
                     unit: None,
@@ -1287,7 +1322,7 @@ impl Ctx<'_> {
             lot.to_string(),
             product,
             NaiveDate::MIN,
-            IndexMap::new(),
+            ReadingMap::default(),
             line,
         ));
         dates.push(None);
@@ -1354,13 +1389,17 @@ impl Ctx<'_> {
             let meta = self.row_meta(&rec, line)?;
             self.merge_meta(&mut lots[pos], meta, line)?;
             let (value, form) = value;
-            lots[pos].readings.entry(key).or_default().push(Reading {
-                value,
-                form,
-                unit: unit_v,
-                temperature_c: t,
-                line,
-            });
+            lots[pos]
+                .readings
+                .entry(key.into())
+                .or_default()
+                .push(Reading {
+                    value,
+                    form,
+                    unit: unit_v,
+                    temperature_c: t,
+                    line,
+                });
         }
         for (lot, date) in lots.iter_mut().zip(dates) {
             lot.manufactured = date.ok_or_else(|| {

@@ -101,8 +101,8 @@ pub fn lock_products<'a>(
     for d in decisions {
         let needed = needed_by.entry(&d.product).or_default();
         for p in &d.properties {
-            if !needed.contains(&p.property) {
-                needed.push(p.property.clone());
+            if !needed.iter().any(|n| *n == p.property) {
+                needed.push(p.property.to_string());
             }
         }
     }
@@ -182,7 +182,7 @@ pub fn lots_elsewhere(
     // Compared without regard to case (issue #14).
     let upper: Vec<String> = decisions
         .iter()
-        .map(|d| d.lot.to_ascii_uppercase())
+        .map(|d| d.lot.as_str().to_ascii_uppercase())
         .collect();
     let ours: HashSet<&str> = upper.iter().map(String::as_str).collect();
     lots_elsewhere_of(register, &|id| ours.contains(id), skip)
@@ -272,7 +272,7 @@ pub fn plan(
 ) -> Result<Vec<Plan>> {
     let mut seen: HashMap<String, usize> = HashMap::new();
     for (i, d) in batch.decisions.iter().enumerate() {
-        if let Some(other) = elsewhere.get(&d.lot) {
+        if let Some(other) = elsewhere.get(d.lot.as_str()) {
             return Err(Error::invalid(
                 batch.place(i),
                 format!("this lot id is already recorded for product {other}"),
@@ -291,7 +291,7 @@ pub fn plan(
             ));
         }
         // Lot ids are unique without regard to case (issue #14), also within one file.
-        if let Some(&j) = seen.get(&d.lot.to_ascii_uppercase()) {
+        if let Some(&j) = seen.get(&d.lot.as_str().to_ascii_uppercase()) {
             return Err(same_but_case(
                 &batch.place(i),
                 &d.lot,
@@ -299,7 +299,7 @@ pub fn plan(
                 &format!("line {} of {}", batch.lines[j], batch.results.display()),
             ));
         }
-        seen.insert(d.lot.to_ascii_uppercase(), i);
+        seen.insert(d.lot.as_str().to_ascii_uppercase(), i);
     }
     let mut plans = Vec::with_capacity(batch.decisions.len());
     for (i, d) in batch.decisions.iter().enumerate() {
@@ -325,7 +325,7 @@ fn plan_lot(batch: &Batch<'_>, i: usize, t: &Trend, specs: &SpecSet) -> Result<P
             .find(|r| t.cell(r, "lot").eq_ignore_ascii_case(&d.lot))
     };
     plan_one(
-        &batch.place(i),
+        &|| batch.place(i),
         d,
         t,
         latest,
@@ -335,11 +335,11 @@ fn plan_lot(batch: &Batch<'_>, i: usize, t: &Trend, specs: &SpecSet) -> Result<P
     )
 }
 
-/// The plan for lot `d` (named `place` in refusals) against its product's trend `t`, where
-/// `latest` is its latest row and `case_twin` finds a row of a lot whose id differs from its
-/// own only in case (see [`plan`]).
+/// The plan for lot `d` (named by `place` in refusals, made only for a refusal) against its
+/// product's trend `t`, where `latest` is its latest row and `case_twin` finds a row of a lot
+/// whose id differs from its own only in case (see [`plan`]).
 fn plan_one<'t>(
-    place: &str,
+    place: &dyn Fn() -> String,
     d: &LotDecision,
     t: &'t Trend,
     latest: Option<&'t trend_file::Row>,
@@ -350,7 +350,7 @@ fn plan_one<'t>(
     let Some(row) = latest else {
         if let Some(r) = case_twin() {
             let where_ = format!("{} (row {})", t.path.display(), t.cell(r, "seq"));
-            return Err(same_but_case(place, &d.lot, t.cell(r, "lot"), &where_));
+            return Err(same_but_case(&place(), &d.lot, t.cell(r, "lot"), &where_));
         }
         return Ok(Plan::New);
     };
@@ -360,7 +360,7 @@ fn plan_one<'t>(
         // A retest re-measures the same lot; it cannot move the lot's manufacture date, which
         // decides the spec revision and the retest period (issue #13, item 22).
         return Err(Error::invalid(
-            place,
+            place(),
             format!(
                 "manufacture date {} differs from {recorded_date}, recorded for this lot in {} (row {seq})",
                 d.manufactured,
@@ -380,7 +380,7 @@ fn plan_one<'t>(
             reason: reason.to_string(),
         }),
         None => Err(Error::invalid(
-            place,
+            place(),
             format!(
                 "the lot is already recorded in {} (row {seq}) with different results",
                 t.path.display()
@@ -461,10 +461,10 @@ fn audit_cells(d: &LotDecision, plan: &Plan, now: &str) -> Vec<(&'static str, St
 pub fn row_cells(d: &LotDecision, plan: &Plan, approver: &str, now: &str) -> Vec<(String, String)> {
     let mut cells: Vec<(&str, String)> = vec![
         ("recorded_at", now.to_string()),
-        ("lot", d.lot.clone()),
-        ("product", d.product.clone()),
+        ("lot", d.lot.to_string()),
+        ("product", d.product.to_string()),
         ("manufactured", d.manufactured.to_string()),
-        ("spec_revision", d.spec_revision.clone()),
+        ("spec_revision", d.spec_revision.to_string()),
         ("status", d.status.as_str().to_string()),
         (
             "approver",
@@ -481,7 +481,8 @@ pub fn row_cells(d: &LotDecision, plan: &Plan, approver: &str, now: &str) -> Vec
     for (p, verdict) in d.properties.iter().zip(&verdicts) {
         let value = p
             .exact
-            .clone()
+            .as_deref()
+            .map(str::to_string)
             .or_else(|| p.value.map(|v| v.to_string()))
             .unwrap_or_default();
         cells.push((p.property.as_str(), value));
@@ -494,7 +495,7 @@ pub fn row_cells(d: &LotDecision, plan: &Plan, approver: &str, now: &str) -> Vec
         if p.property == keys::HYDROXYL_VALUE {
             cells.push((
                 keys::HYDROXYL_VALUE_ENTERED,
-                p.entered.clone().unwrap_or_default(),
+                p.entered.as_deref().unwrap_or_default().to_string(),
             ));
         }
         if p.property == keys::MN {
@@ -652,7 +653,7 @@ impl<'a> StreamPlan<'a> {
             let where_ = format!("line {at} of {}", self.results.display());
             self.twin = Some((position, same_but_case(&place(), &d.lot, lot, &where_)));
         }
-        if !self.trends.contains_key(&d.product) {
+        if !self.trends.contains_key(d.product.as_str()) {
             let path = trend_file::path_for(self.register, &d.product);
             let read = if path.is_file() {
                 trend_file::read(&path)
@@ -679,16 +680,16 @@ impl<'a> StreamPlan<'a> {
                     None
                 }
             };
-            self.trends.insert(d.product.clone(), entry);
+            self.trends.insert(d.product.to_string(), entry);
         }
         if self.unreadable.is_some() || self.refused.is_some() {
             return;
         }
-        let Some(Some((t, ids))) = self.trends.get(&d.product) else {
+        let Some(Some((t, ids))) = self.trends.get(d.product.as_str()) else {
             return;
         };
         let rows: &[usize] = ids
-            .get(&d.lot.to_ascii_uppercase())
+            .get(d.lot.to_ascii_uppercase().as_str())
             .map_or(&[], Vec::as_slice);
         let latest = rows
             .iter()
@@ -700,15 +701,15 @@ impl<'a> StreamPlan<'a> {
                 .min_by_key(|r| r.line)
                 .filter(|r| t.cell(r, "lot") != d.lot)
         };
-        match plan_one(&place(), d, t, latest, &case_twin, self.specs, self.retest) {
+        match plan_one(&place, d, t, latest, &case_twin, self.specs, self.retest) {
             Ok(plan) => {
-                if plan.writes() && !self.writes.contains(&d.product) {
-                    self.writes.push(d.product.clone());
+                if plan.writes() && !self.writes.iter().any(|w| *w == d.product) {
+                    self.writes.push(d.product.to_string());
                 }
                 if matches!(plan, Plan::Retest { .. })
                     && crate::lot::disposition::withdraws(d.status)
                 {
-                    self.withdrawing.push(d.lot.clone());
+                    self.withdrawing.push(d.lot.to_string());
                 }
             }
             Err(e) => self.refused = Some(e),

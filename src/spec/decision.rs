@@ -363,6 +363,73 @@ fn fixed_point(units: i64, decimals: usize) -> String {
     buf[at..].iter().map(|&b| char::from(b)).collect()
 }
 
+/// `d` as text, the same characters as rust_decimal's `Display` gives (every digit of its
+/// scale, a minus sign when its sign is negative, zero included), written from the mantissa
+/// without the general formatter and without a heap allocation (issue #13, item 11: a lot's
+/// values are written this way several times per lot).
+pub fn decimal_text(d: Decimal) -> crate::support::text::Text {
+    let Ok(mut n) = u64::try_from(d.mantissa().unsigned_abs()) else {
+        return compact_str::ToCompactString::to_compact_string(&d);
+    };
+    let scale = d.scale() as usize;
+    // 20 digits of a u64, 28 places at most, a point and a sign.
+    let mut buf = [0u8; 52];
+    let mut at = buf.len();
+    let mut written = 0;
+    loop {
+        if written == scale && scale > 0 {
+            at -= 1;
+            buf[at] = b'.';
+        }
+        at -= 1;
+        buf[at] = b'0' + (n % 10) as u8;
+        n /= 10;
+        written += 1;
+        if n == 0 && written > scale {
+            break;
+        }
+    }
+    if d.is_sign_negative() {
+        at -= 1;
+        buf[at] = b'-';
+    }
+    // Only ASCII digits, '.' and '-' were written.
+    crate::support::text::Text::from(std::str::from_utf8(&buf[at..]).unwrap_or_default())
+}
+
+/// `d` as the nearest-enough `f64`, bit for bit what rust_decimal's `to_f64` gives (its
+/// `as_f64`: integral part plus fraction over 10^scale, then rounded at the scale), done in
+/// 64-bit arithmetic when the mantissa and 10^scale fit in 64 bits, which avoids 128-bit
+/// division (issue #13, item 11); otherwise rust_decimal's own conversion.
+pub fn decimal_to_f64(d: Decimal) -> f64 {
+    let scale = d.scale();
+    let mantissa = d.mantissa().unsigned_abs();
+    let (Ok(m), true) = (u64::try_from(mantissa), scale <= 19) else {
+        return rust_decimal::prelude::ToPrimitive::to_f64(&d).unwrap_or(f64::NAN);
+    };
+    let neg = d.is_sign_negative();
+    if scale == 0 {
+        // rust_decimal converts the signed integer; the magnitude and sign give the same bits
+        // except for a negative zero, which the integer path makes +0.
+        let v = m as f64;
+        return if neg && m != 0 { -v } else { v };
+    }
+    let precision = 10u64.pow(scale);
+    let integral = (m / precision) as f64;
+    let frac = (m % precision) as f64 / precision as f64;
+    if frac == 0.0 {
+        return if neg { -integral } else { integral };
+    }
+    let value = integral + frac;
+    let round_to = 10f64.powi(scale as i32);
+    let rounded = (value * round_to).round() / round_to;
+    if neg {
+        -rounded
+    } else {
+        rounded
+    }
+}
+
 /// A decimal as recorded in a trend-file cell: its exact text, or, for a cell written in
 /// floating-point form (an exponent), the nearest decimal. `None` for anything else.
 pub fn recorded_decimal(cell: &str) -> Option<Decimal> {
@@ -374,6 +441,41 @@ pub fn recorded_decimal(cell: &str) -> Option<Decimal> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue #13 item 11: [`decimal_text`] writes what rust_decimal's `Display` writes (the
+    /// reference), and [`decimal_to_f64`] gives the bits rust_decimal's `to_f64` gives (the
+    /// reference), over random mantissas, scales and signs, zeros and the widest mantissa.
+    #[test]
+    fn decimal_text_and_float_match_rust_decimal_issue_13() {
+        use rust_decimal::prelude::ToPrimitive;
+        let mut next = crate::support::test_rng::xorshift(0x2545_f491_4f6c_dd1d);
+        let mut values = vec![
+            Decimal::ZERO,
+            Decimal::new(0, 3),
+            -Decimal::new(0, 2),
+            Decimal::new(-0, 0),
+            Decimal::MAX,
+            Decimal::MIN,
+            Decimal::new(5, 28),
+            Decimal::new(i64::MAX, 19),
+            Decimal::new(i64::MIN + 1, 4),
+            Decimal::new(20005, 4),
+        ];
+        for _ in 0..200_000 {
+            let r = next();
+            let digits = 1 + (r % 19) as u32;
+            let m = (next() % 10u64.pow(digits)) as i64;
+            let m = if r & (1 << 40) != 0 { -m } else { m };
+            let scale = ((r >> 8) % 29) as u32;
+            values.push(Decimal::new(m, scale));
+        }
+        for d in values {
+            assert_eq!(decimal_text(d).as_str(), d.to_string(), "text of {d:?}");
+            let want = d.to_f64().unwrap();
+            let got = decimal_to_f64(d);
+            assert_eq!(got.to_bits(), want.to_bits(), "{d:?}: {got:e} vs {want:e}");
+        }
+    }
 
     /// Issue #20: the text of a rounded recorded value is the decimal's own display (the
     /// reference: rust_decimal's `Display` of [`round_recorded`]'s result), in the fast path

@@ -39,9 +39,51 @@ pub fn from_env(value: Option<&str>) -> Result<DateTime<Utc>> {
 /// 9999-12-31T23:59:59Z in seconds since 1970 (the last instant a four-digit year can write).
 const LAST_SECOND: i64 = 253_402_300_799;
 
+/// A date as `NaiveDate::parse_from_str(d, "%Y-%m-%d")` reads it, with the form the record
+/// keeps (`YYYY-MM-DD`, ten bytes) read without the format parser: a search may judge a
+/// million lots (issue #20) and a results file may hold a million (issue #13, item 11).
+pub fn iso_date(d: &str) -> Option<chrono::NaiveDate> {
+    let b = d.as_bytes();
+    let num = |r: std::ops::Range<usize>| -> Option<u32> {
+        b[r].iter().try_fold(0u32, |n, &c| {
+            c.is_ascii_digit().then(|| n * 10 + u32::from(c - b'0'))
+        })
+    };
+    if b.len() == 10 && b[4] == b'-' && b[7] == b'-' {
+        if let (Some(y), Some(m), Some(day)) = (num(0..4), num(5..7), num(8..10)) {
+            return chrono::NaiveDate::from_ymd_opt(y as i32, m, day);
+        }
+    }
+    chrono::NaiveDate::parse_from_str(d, "%Y-%m-%d").ok()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue #20: the quick date reader agrees with chrono's `%Y-%m-%d` parser.
+    #[test]
+    fn iso_date_reads_as_chrono_does() {
+        for d in [
+            "2026-03-01",
+            "2024-02-29",
+            "2025-02-29",
+            "2026-13-01",
+            "2026-00-10",
+            "0000-01-01",
+            "2026-1-01",
+            "2026/03/01",
+            "",
+            "2026-03-0x",
+            "9999-12-31",
+        ] {
+            assert_eq!(
+                iso_date(d),
+                chrono::NaiveDate::parse_from_str(d, "%Y-%m-%d").ok(),
+                "{d}"
+            );
+        }
+    }
 
     #[test]
     fn epoch_is_honoured() {

@@ -5,6 +5,10 @@ use unicode_width::UnicodeWidthStr;
 /// The width a cell takes on a terminal: combining marks (the bar of x̄ and MR̄) take no
 /// column, so they are not counted as characters are (Unicode UAX #11 via `unicode-width`).
 pub fn width(cell: &str) -> usize {
+    // Printable ASCII takes one column a character (UAX #11: narrow), the common case by far.
+    if cell.bytes().all(|b| (0x20..0x7f).contains(&b)) {
+        return cell.len();
+    }
     UnicodeWidthStr::width(cell)
 }
 
@@ -109,6 +113,23 @@ pub fn pairs(rows: &[(String, String)]) -> String {
 
 #[cfg(test)]
 mod tests {
+    use super::*;
+
+    /// Issue #13 item 11: the printable-ASCII shortcut gives what unicode-width gives (the
+    /// reference), for every ASCII character alone and in text, and non-ASCII still goes to it.
+    #[test]
+    fn width_shortcut_agrees_with_unicode_width_issue_13() {
+        for b in 0u8..0x80 {
+            let c = char::from(b).to_string();
+            assert_eq!(width(&c), UnicodeWidthStr::width(c.as_str()), "{b:#x}");
+            let t = format!("ab{c}9.5");
+            assert_eq!(width(&t), UnicodeWidthStr::width(t.as_str()), "{b:#x}");
+        }
+        for t in ["mPa·s", "x̄", "MR̄ 0.52", "日本", ""] {
+            assert_eq!(width(t), UnicodeWidthStr::width(t), "{t}");
+        }
+    }
+
     #[test]
     fn aligns_unicode_by_characters() {
         let t = super::render(&[

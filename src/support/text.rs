@@ -3,6 +3,10 @@
 
 use crate::error::{Error, Result};
 
+/// A short text (a property key, a unit, a value as text): kept inline up to 24 bytes, so the
+/// many short texts of a lot's decision need no heap allocation each (issue #13, item 11).
+pub type Text = compact_str::CompactString;
+
 /// Characters that reorder the text around them when displayed (Unicode bidirectional
 /// embeddings, overrides and isolates, UAX #9 §2): a customer name holding U+202E would print
 /// on a certificate as something other than what was typed.
@@ -14,6 +18,10 @@ const BIDI_CONTROLS: [char; 9] = [
 /// What is wrong with `text` as one line of printable text, or `None` when it is fine:
 /// control characters (line breaks, tabs, NUL...) and bidirectional controls are refused.
 pub fn unprintable(text: &str) -> Option<&'static str> {
+    // Printable ASCII holds neither kind, and is nearly every cell of a results file.
+    if text.bytes().all(|b| (0x20..0x7f).contains(&b)) {
+        return None;
+    }
     if text.chars().any(char::is_control) {
         Some("it contains a control character (a line break, a tab or similar)")
     } else if text.chars().any(|c| BIDI_CONTROLS.contains(&c)) {
