@@ -153,7 +153,7 @@ impl LotRecord {
             approver: approver.to_string(),
             decided_at: now.to_string(),
             notes: d.notes.clone(),
-            spec_sha256: d.spec_sha256.clone(),
+            spec_sha256: d.spec_sha256.to_string(),
             concession: None,
             latest_retest: None,
             // As the row records them (issue #15): the results file's test times, else the

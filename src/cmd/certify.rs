@@ -113,7 +113,7 @@ pub fn run(args: &Args) -> anyhow::Result<Outcome> {
     // the lot was decided on it.
     if let Some(rec) = recs
         .iter()
-        .find(|r| !r.spec_sha256.is_empty() && r.spec_sha256 != spec.sha256)
+        .find(|r| !r.spec_sha256.is_empty() && *r.spec_sha256 != *spec.sha256)
     {
         crate::record::frozen::refuse_changed(
             &trend_lock.trend.path,

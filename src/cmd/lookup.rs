@@ -237,7 +237,7 @@ fn limits_source<'a>(spec: Option<&ProductSpec>, c: &dyn Fn(&str) -> &'a str) ->
             "Limits: from today's {} revision {} file (this row was recorded before the spec's SHA-256 was kept, so it cannot be confirmed as the file used).\n",
             s.code, s.revision
         ),
-        Some(s) if s.sha256 == recorded => format!(
+        Some(s) if *s.sha256 == *recorded => format!(
             "Limits: {} revision {}, the file the lot was decided against (SHA-256 {}…).\n",
             s.code,
             s.revision,

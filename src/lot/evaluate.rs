@@ -117,7 +117,7 @@ pub struct LotDecision {
     #[serde(skip_serializing_if = "Option::is_none")]
     pub decided_at: Option<String>,
     /// SHA-256 of the spec revision file the lot was decided on.
-    pub spec_sha256: String,
+    pub spec_sha256: std::sync::Arc<str>,
 }
 
 impl LotDecision {
@@ -244,7 +244,7 @@ pub fn evaluate(spec: &ProductSpec, lot: &LotResults, file: &str) -> Result<LotD
         Status::Released
     };
     Ok(LotDecision {
-        lot: Text::from(lot.lot.as_str()),
+        lot: lot.lot.clone(),
         product: Text::from(spec.code.as_str()),
         spec_revision: Text::from(spec.revision.as_str()),
         manufactured: lot.manufactured,

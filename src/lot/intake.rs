@@ -100,9 +100,9 @@ impl std::hash::Hasher for KeyHasher {
 #[derive(Debug, Clone, PartialEq)]
 pub struct LotResults {
     /// Lot id (safe characters only).
-    pub lot: String,
+    pub lot: Text,
     /// Product code.
-    pub product: String,
+    pub product: Text,
     /// Manufacture date.
     pub manufactured: NaiveDate,
     /// Property key to its replicates, in file order.
@@ -127,8 +127,8 @@ impl LotResults {
     /// A lot read from `line` with these readings and nothing yet from the file's who-and-when
     /// columns (analysts, test times, notes, approver, decision time).
     fn new(
-        lot: String,
-        product: String,
+        lot: Text,
+        product: Text,
         manufactured: NaiveDate,
         readings: ReadingMap,
         line: u64,
@@ -385,6 +385,18 @@ fn csv_reader(text: &str, delimiter: u8, has_headers: bool) -> csv::Reader<&[u8]
         .from_reader(text.as_bytes())
 }
 
+/// The fields of `raw` trimmed into `out`, which keeps its buffers from row to row: what
+/// csv's `Trim::All` gives a `StringRecord` (every field without leading and trailing
+/// Unicode whitespace, the position kept), without the two new records csv builds for each
+/// row to trim it (issue #13, item 11).
+fn trim_into(raw: &csv::StringRecord, out: &mut csv::StringRecord) {
+    out.clear();
+    for field in raw {
+        out.push_field(field.trim());
+    }
+    out.set_position(raw.position().cloned());
+}
+
 /// Parses results from bytes, also naming the columns nothing reads.
 pub fn parse_report(name: &str, bytes: &[u8], opts: Options) -> Result<Parsed> {
     let (text, delimiter, headers) = prepare(name, bytes, &opts)?;
@@ -547,14 +559,19 @@ pub fn scan_wide<'a>(
     };
     let mut filled = vec![false; scan.headers.len()];
     let mut late: Option<Error> = None;
-    let mut reader = csv_reader(text, delimiter, true);
+    // Read untrimmed; each row is trimmed into `rec` as `csv_reader`'s reader would trim it.
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .has_headers(true)
+        .from_reader(text.as_bytes());
     reader
         .headers()
         .map_err(|e| crate::support::csv_input::error(name, &e))?;
+    let mut raw = csv::StringRecord::new();
     let mut rec = csv::StringRecord::new();
     loop {
-        match reader.read_record(&mut rec) {
-            Ok(true) => {}
+        match reader.read_record(&mut raw) {
+            Ok(true) => trim_into(&raw, &mut rec),
             Ok(false) => break,
             Err(e) => return Err(crate::support::csv_input::error(name, &e)),
         }
@@ -572,7 +589,7 @@ pub fn scan_wide<'a>(
                 let same = if scan.id_of(first)? == new.lot {
                     Some(first)
                 } else {
-                    scan.overflow.get(&new.lot).copied()
+                    scan.overflow.get(new.lot.as_str()).copied()
                 };
                 if let Some(j) = same {
                     let old = scan.lot(j)?;
@@ -583,7 +600,7 @@ pub fn scan_wide<'a>(
                     continue;
                 }
                 twin = scan.first_twin(&new.lot)?;
-                scan.overflow.insert(new.lot.clone(), n);
+                scan.overflow.insert(new.lot.to_string(), n);
             }
         }
         if late.is_none() {
@@ -860,12 +877,12 @@ impl Ctx<'_> {
     }
 
     /// The lot id of a row: a safe id, as it names files and trend-file rows.
-    fn lot_id(&self, v: &str, line: u64) -> Result<String> {
+    fn lot_id(&self, v: &str, line: u64) -> Result<Text> {
         self.safe_id(v, line, "lot", "lot id", "Lot ids are 1 to 40 letters, digits, '-', '_' or '.', starting with a letter or digit.")
     }
 
     /// The product code of a row: a safe id, as it names the product's trend file.
-    fn product(&self, v: &str, line: u64) -> Result<String> {
+    fn product(&self, v: &str, line: u64) -> Result<Text> {
         self.safe_id(
             v,
             line,
@@ -876,7 +893,7 @@ impl Ctx<'_> {
     }
 
     /// `v` when it is a safe id ([`is_safe_id`]); else a refusal naming the line and `column`.
-    fn safe_id(&self, v: &str, line: u64, column: &str, what: &str, fix: &str) -> Result<String> {
+    fn safe_id(&self, v: &str, line: u64, column: &str, what: &str, fix: &str) -> Result<Text> {
         if !is_safe_id(v) {
             return Err(Error::invalid(
                 format!("{}:{line}, column '{column}'", self.name),
@@ -884,7 +901,7 @@ impl Ctx<'_> {
                 fix,
             ));
         }
-        Ok(v.to_string())
+        Ok(Text::from(v))
     }
 
     fn date(&self, v: &str, line: u64) -> Result<NaiveDate> {
@@ -1214,13 +1231,13 @@ impl Ctx<'_> {
             let rec = rec.map_err(|e| crate::support::csv_input::error(self.name, &e))?;
             let line = rec.position().map_or(0, |p| p.line());
             let new = self.wide_row(&layout, &rec, line, &mut filled)?;
-            if let Some(old) = index.get(&new.lot).map(|&i| &lots[i]) {
+            if let Some(old) = index.get(new.lot.as_str()).map(|&i| &lots[i]) {
                 match self.repeated_row(old, &new, line) {
                     Some(e) => return Err(e),
                     None => continue,
                 }
             }
-            index.insert(new.lot.clone(), lots.len());
+            index.insert(new.lot.to_string(), lots.len());
             lots.push(new);
         }
         Ok((lots, self.empty_columns(&layout, &filled)))
@@ -1302,7 +1319,7 @@ impl Ctx<'_> {
         dates: &mut Vec<Option<NaiveDate>>,
         index: &mut HashMap<String, usize>,
         lot: &str,
-        product: String,
+        product: Text,
         line: u64,
     ) -> Result<usize> {
         if let Some(&p) = index.get(lot) {
@@ -1319,7 +1336,7 @@ impl Ctx<'_> {
             return Ok(p);
         }
         lots.push(LotResults::new(
-            lot.to_string(),
+            Text::from(lot),
             product,
             NaiveDate::MIN,
             ReadingMap::default(),
@@ -1368,7 +1385,7 @@ impl Ctx<'_> {
             };
             if let Some(i) = replicate {
                 let r = self.cell(&rec, i, line)?.to_string();
-                let row = (lot.clone(), key.clone(), r, value.clone(), line);
+                let row = (lot.to_string(), key.clone(), r, value.clone(), line);
                 if self.repeated_replicate(&mut seen_replicates, row)? {
                     continue;
                 }
@@ -1474,6 +1491,31 @@ fn same_results(a: &LotResults, b: &LotResults) -> bool {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue #13 item 11: rows trimmed by `trim_into` equal what csv's own `Trim::All` reader
+    /// gives (the reference), fields and positions, for ASCII and Unicode whitespace, quoted
+    /// fields, empty fields and short rows.
+    #[test]
+    fn trim_into_is_csvs_own_trim_issue_13() {
+        let text = "lot,product,acid_value\n  R1 ,PD-2000,\t0.52\u{a0}\n\"  R2\u{2003}\", PD-2000 ,\n,,\n\u{3000}R4\u{b},x, 1 \n";
+        let mut trimmed = csv_reader(text, b',', true);
+        let mut raw_reader = csv::ReaderBuilder::new()
+            .has_headers(true)
+            .flexible(true)
+            .from_reader(text.as_bytes());
+        let mut raw = csv::StringRecord::new();
+        let mut out = csv::StringRecord::new();
+        let mut want = csv::StringRecord::new();
+        let mut rows = 0;
+        while raw_reader.read_record(&mut raw).unwrap() {
+            assert!(trimmed.read_record(&mut want).unwrap());
+            trim_into(&raw, &mut out);
+            assert_eq!(out, want);
+            assert_eq!(out.position(), want.position());
+            rows += 1;
+        }
+        assert_eq!(rows, 4);
+    }
 
     fn p(text: &str) -> Result<Vec<LotResults>> {
         parse("r.csv", text.as_bytes(), Options::default())

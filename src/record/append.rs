@@ -451,7 +451,7 @@ fn audit_cells(d: &LotDecision, plan: &Plan, now: &str) -> Vec<(&'static str, St
             "recorded_by",
             crate::support::audit::recorded_by().to_string(),
         ),
-        ("spec_sha256", d.spec_sha256.clone()),
+        ("spec_sha256", d.spec_sha256.to_string()),
     ]
 }
 

@@ -132,7 +132,7 @@ pub fn spec_use(path: &Path, specs: &SpecSet) -> Result<SpecUse> {
         }
         let key = (product, revision, sha);
         let verdict = differs.entry(key.clone()).or_insert_with(|| {
-            let now = specs.revision(&key.0, &key.1).map(|s| s.sha256.clone());
+            let now = specs.revision(&key.0, &key.1).map(|s| s.sha256.to_string());
             (now.as_deref() != Some(key.2.as_str())).then_some(now)
         });
         if verdict.is_some() {
@@ -229,7 +229,7 @@ mod tests {
     fn an_edited_revision_is_found_with_its_lots_issue_15() {
         let dir = tempfile::tempdir().unwrap();
         let set = specs(dir.path(), SPEC);
-        let sha = set.revision("PX-1", "A").unwrap().sha256.clone();
+        let sha = set.revision("PX-1", "A").unwrap().sha256.to_string();
         let path = dir.path().join("PX-1.csv");
         let keys = vec!["acid_value".to_string()];
         trend_file::write_for_test(

@@ -3,7 +3,6 @@
 use std::path::{Path, PathBuf};
 
 use indexmap::IndexMap;
-use rust_decimal::prelude::ToPrimitive;
 use rust_decimal::Decimal;
 use serde::Deserialize;
 
@@ -429,7 +428,7 @@ pub fn guard_uncertainty(spec: &ProductSpec, p: &Property) -> Option<Decimal> {
 }
 
 fn to_f64(d: Decimal) -> f64 {
-    d.to_f64().unwrap_or(f64::NAN)
+    crate::spec::decision::decimal_to_f64(d)
 }
 
 /// Guard band of a recorded value for a later check (a customer's window): the recorded

@@ -173,7 +173,7 @@ pub struct ProductSpec {
     pub path: PathBuf,
     /// SHA-256 (lower-case hex) of the file's bytes as read: recorded on every lot decided
     /// on this revision, so an edit of the revision after use is found.
-    pub sha256: String,
+    pub sha256: std::sync::Arc<str>,
 }
 
 impl ProductSpec {
@@ -276,7 +276,7 @@ impl ProductSpec {
             recipe,
             properties,
             path: path.to_path_buf(),
-            sha256: crate::support::audit::sha256_hex(text.as_bytes()),
+            sha256: crate::support::audit::sha256_hex(text.as_bytes()).into(),
         };
         for needs in keys::DERIVED {
             if spec.property(needs).is_none() {
