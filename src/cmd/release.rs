@@ -333,14 +333,15 @@ struct Decided<'s> {
 /// each cell).
 struct OwnRow {
     encoded: String,
-    widths: Vec<usize>,
+    /// Inline for a product of up to 16 properties, so that a row costs one allocation.
+    widths: smallvec::SmallVec<[usize; 20]>,
 }
 
 impl OwnRow {
     fn of(d: &LotDecision) -> OwnRow {
         use crate::support::table::width;
         let mut encoded = String::with_capacity(16 * (d.properties.len() + 2));
-        let mut widths = Vec::with_capacity(d.properties.len() + 4);
+        let mut widths = smallvec::SmallVec::new();
         let code = STATUSES.iter().position(|s| *s == d.status).unwrap_or(0);
         encoded.push(char::from(b'0' + code as u8));
         for cell in [d.lot.as_str(), d.spec_revision.as_str()] {
@@ -636,11 +637,12 @@ fn streamed_dry_run<'s>(
 }
 
 /// Writes a dry run's JSON as [`report_text`] builds it (the same keys in the same order,
-/// pretty-printed alike), one lot at a time.
+/// pretty-printed alike): the lots are read again in chunks, each chunk decided and written
+/// as text on every core, and the texts written in file order.
 fn write_json_streamed(
     out: &mut dyn Write,
     scan: &intake::WideScan<'_>,
-    decide: &dyn Fn(&LotResults) -> anyhow::Result<LotDecision>,
+    decide: &(dyn Fn(&LotResults) -> anyhow::Result<LotDecision> + Sync),
 ) -> anyhow::Result<()> {
     // The other members of a dry run's report are empty; an empty list prints as `[]`.
     let wrapper = serde_json::json!({
@@ -658,26 +660,31 @@ fn write_json_streamed(
         if key == "lots" {
             out.write_all(b"[\n")?;
             let mut first = true;
-            scan.for_each(None, &mut |lot| -> anyhow::Result<()> {
-                let d = decide(&lot)?;
-                let v = serde_json::to_value(JsonLot {
-                    decision: &d,
-                    recorded: &Recorded::NotWritten,
-                })?;
-                if !first {
-                    out.write_all(b",\n")?;
-                }
-                first = false;
-                // Strings in JSON hold no raw line break, so each line is indented alike.
-                for (i, line) in serde_json::to_string_pretty(&v)?.split('\n').enumerate() {
-                    if i > 0 {
-                        out.write_all(b"\n")?;
+            let mut chunk: Vec<LotResults> = Vec::with_capacity(CHUNK);
+            let mut write_chunk = |chunk: &mut Vec<LotResults>, out: &mut dyn Write| {
+                use rayon::prelude::*;
+                let texts: Vec<anyhow::Result<String>> = chunk
+                    .par_iter()
+                    .map(|lot| json_lot(&decide(lot)?))
+                    .collect();
+                chunk.clear();
+                for text in texts {
+                    if !first {
+                        out.write_all(b",\n")?;
                     }
-                    out.write_all(b"    ")?;
-                    out.write_all(line.as_bytes())?;
+                    first = false;
+                    out.write_all(text?.as_bytes())?;
+                }
+                anyhow::Ok(())
+            };
+            scan.for_each(None, &mut |lot| -> anyhow::Result<()> {
+                chunk.push(lot);
+                if chunk.len() == CHUNK {
+                    write_chunk(&mut chunk, out)?;
                 }
                 Ok(())
             })?;
+            write_chunk(&mut chunk, out)?;
             out.write_all(b"\n  ]")?;
         } else {
             out.write_all(serde_json::to_string_pretty(value)?.as_bytes())?;
@@ -686,6 +693,25 @@ fn write_json_streamed(
     }
     out.write_all(b"}\n")?;
     Ok(())
+}
+
+/// One lot of a dry run's JSON report: its member of `"lots"`, pretty-printed and indented
+/// by four spaces as `serde_json::to_string_pretty` lays it out inside the report.
+fn json_lot(d: &LotDecision) -> anyhow::Result<String> {
+    let v = serde_json::to_value(JsonLot {
+        decision: d,
+        recorded: &Recorded::NotWritten,
+    })?;
+    let mut text = String::new();
+    // Strings in JSON hold no raw line break, so each line is indented alike.
+    for (i, line) in serde_json::to_string_pretty(&v)?.split('\n').enumerate() {
+        if i > 0 {
+            text.push('\n');
+        }
+        text.push_str("    ");
+        text.push_str(line);
+    }
+    Ok(text)
 }
 
 /// The columns of the results file that nothing reads (issue #15): unknown columns of a long
