@@ -854,7 +854,10 @@ impl Ctx<'_> {
 
     fn cell<'r>(&self, rec: &'r csv::StringRecord, i: usize, line: u64) -> Result<&'r str> {
         let v = rec.get(i).unwrap_or("");
-        if v.chars().count() > self.opts.limits.max_cell_chars {
+        // A cell of no more bytes than the limit has no more characters either.
+        if v.len() > self.opts.limits.max_cell_chars
+            && v.chars().count() > self.opts.limits.max_cell_chars
+        {
             return Err(Error::invalid(
                 format!("{}:{line}, column '{}'", self.name, self.headers[i]),
                 format!(
