@@ -339,28 +339,8 @@ pub fn round_recorded_text(value: f64, decimals: u32, method: Rounding) -> Optio
 /// `units / 10^decimals` written with exactly `decimals` places (at most 9; `units` below
 /// 10^9 in size, as [`round_recorded_text`]'s fast path gives them), in one allocation.
 fn fixed_point(units: i64, decimals: usize) -> String {
-    let mut buf = [0u8; 24];
-    let mut at = buf.len();
-    let mut n = units.unsigned_abs();
-    let mut written = 0;
-    loop {
-        if written == decimals && decimals > 0 {
-            at -= 1;
-            buf[at] = b'.';
-        }
-        at -= 1;
-        buf[at] = b'0' + (n % 10) as u8;
-        n /= 10;
-        written += 1;
-        if n == 0 && written > decimals {
-            break;
-        }
-    }
-    if units < 0 {
-        at -= 1;
-        buf[at] = b'-';
-    }
-    buf[at..].iter().map(|&b| char::from(b)).collect()
+    let mut buf = [0u8; FIXED_BUF];
+    write_fixed(&mut buf, units.unsigned_abs(), decimals, units < 0).to_string()
 }
 
 /// `d` as text, the same characters as rust_decimal's `Display` gives (every digit of its
@@ -368,16 +348,26 @@ fn fixed_point(units: i64, decimals: usize) -> String {
 /// without the general formatter and without a heap allocation (issue #13, item 11: a lot's
 /// values are written this way several times per lot).
 pub fn decimal_text(d: Decimal) -> crate::support::text::Text {
-    let Ok(mut n) = u64::try_from(d.mantissa().unsigned_abs()) else {
+    let Ok(n) = u64::try_from(d.mantissa().unsigned_abs()) else {
         return compact_str::ToCompactString::to_compact_string(&d);
     };
-    let scale = d.scale() as usize;
-    // 20 digits of a u64, 28 places at most, a point and a sign.
-    let mut buf = [0u8; 52];
+    let mut buf = [0u8; FIXED_BUF];
+    let text = write_fixed(&mut buf, n, d.scale() as usize, d.is_sign_negative());
+    crate::support::text::Text::from(text)
+}
+
+/// Room for a u64's 20 digits, 28 places at most (rust_decimal's largest scale), a point and
+/// a sign.
+const FIXED_BUF: usize = 52;
+
+/// `magnitude / 10^places` written at the end of `buf` with exactly `places` places (a `0`
+/// before the point when the magnitude is below one), after a minus sign when `negative`.
+fn write_fixed(buf: &mut [u8; FIXED_BUF], magnitude: u64, places: usize, negative: bool) -> &str {
     let mut at = buf.len();
+    let mut n = magnitude;
     let mut written = 0;
     loop {
-        if written == scale && scale > 0 {
+        if written == places && places > 0 {
             at -= 1;
             buf[at] = b'.';
         }
@@ -385,16 +375,16 @@ pub fn decimal_text(d: Decimal) -> crate::support::text::Text {
         buf[at] = b'0' + (n % 10) as u8;
         n /= 10;
         written += 1;
-        if n == 0 && written > scale {
+        if n == 0 && written > places {
             break;
         }
     }
-    if d.is_sign_negative() {
+    if negative {
         at -= 1;
         buf[at] = b'-';
     }
     // Only ASCII digits, '.' and '-' were written.
-    crate::support::text::Text::from(std::str::from_utf8(&buf[at..]).unwrap_or_default())
+    std::str::from_utf8(&buf[at..]).unwrap_or_default()
 }
 
 /// `d` as the nearest-enough `f64`, bit for bit what rust_decimal's `to_f64` gives (its
