@@ -18,7 +18,7 @@ use crate::spec::decision::{
 use crate::spec::keys;
 use crate::spec::units::unit_factor;
 use crate::spec::{ProductSpec, Property};
-pub use crate::support::text::Text;
+use crate::support::text::Text;
 
 /// The guard bands live with the customer-fit rule in the spec layer; re-exported for callers
 /// of the lot layer.
