@@ -277,13 +277,18 @@ impl RowStore {
     /// Appends to `out` the row of a lot with `status` whose other cells are `cells` (lot,
     /// revision, then the properties), as the store keeps it.
     fn encode<'c>(out: &mut String, status: Status, cells: impl IntoIterator<Item = &'c str>) {
-        let code = STATUSES.iter().position(|s| *s == status).unwrap_or(0);
-        out.push(char::from(b'0' + code as u8));
+        RowStore::push_status(out, status);
         for c in cells {
             out.push_str(c);
             out.push(CELL_END);
         }
         out.push(ROW_END);
+    }
+
+    /// Starts a row in `out` with its status, as one digit (its place in [`STATUSES`]).
+    fn push_status(out: &mut String, status: Status) {
+        let code = STATUSES.iter().position(|s| *s == status).unwrap_or(0);
+        out.push(char::from(b'0' + code as u8));
     }
 
     /// Keeps a row made by [`RowStore::encode`].
@@ -342,8 +347,7 @@ impl OwnRow {
         use crate::support::table::width;
         let mut encoded = String::with_capacity(16 * (d.properties.len() + 2));
         let mut widths = smallvec::SmallVec::new();
-        let code = STATUSES.iter().position(|s| *s == d.status).unwrap_or(0);
-        encoded.push(char::from(b'0' + code as u8));
+        RowStore::push_status(&mut encoded, d.status);
         for cell in [d.lot.as_str(), d.spec_revision.as_str()] {
             encoded.push_str(cell);
             encoded.push(CELL_END);
@@ -592,31 +596,12 @@ fn streamed_dry_run<'s>(
                 crate::support::table::push_line(&mut line, &cells, &t.widths);
                 out.write_all(line.as_bytes())?;
             }
-            // The lots with a line under the table, read again and decided in chunks on
-            // every core, written in file order.
-            let mut noted: Vec<LotResults> = Vec::with_capacity(CHUNK);
-            let write_notes = |noted: &mut Vec<LotResults>, out: &mut dyn Write| {
-                use rayon::prelude::*;
-                let lines: Vec<anyhow::Result<Option<String>>> = noted
-                    .par_iter()
-                    .map(|lot| Ok(note_line(&decide(lot)?)))
-                    .collect();
-                noted.clear();
-                for line in lines {
-                    if let Some(line) = line? {
-                        out.write_all(line.as_bytes())?;
-                    }
-                }
-                anyhow::Ok(())
-            };
-            scan.for_each_at(&t.notes, &mut |lot| -> anyhow::Result<()> {
-                noted.push(lot);
-                if noted.len() == CHUNK {
-                    write_notes(&mut noted, &mut out)?;
-                }
-                Ok(())
-            })?;
-            write_notes(&mut noted, &mut out)?;
+            // The lots with a line under the table, read again and decided again.
+            in_chunks(
+                |visit| scan.for_each_at(&t.notes, visit),
+                &|lot| Ok(note_line(&decide(lot)?)),
+                &mut |line| Ok(out.write_all(line.as_bytes())?),
+            )?;
             out.write_all(b"\n")?;
         }
         out.write_all(summary_line(&counts, 0, &args.register, true).as_bytes())?;
@@ -660,31 +645,17 @@ fn write_json_streamed(
         if key == "lots" {
             out.write_all(b"[\n")?;
             let mut first = true;
-            let mut chunk: Vec<LotResults> = Vec::with_capacity(CHUNK);
-            let mut write_chunk = |chunk: &mut Vec<LotResults>, out: &mut dyn Write| {
-                use rayon::prelude::*;
-                let texts: Vec<anyhow::Result<String>> = chunk
-                    .par_iter()
-                    .map(|lot| json_lot(&decide(lot)?))
-                    .collect();
-                chunk.clear();
-                for text in texts {
+            in_chunks(
+                |visit| scan.for_each(None, visit),
+                &|lot| json_lot(&decide(lot)?).map(Some),
+                &mut |text| {
                     if !first {
                         out.write_all(b",\n")?;
                     }
                     first = false;
-                    out.write_all(text?.as_bytes())?;
-                }
-                anyhow::Ok(())
-            };
-            scan.for_each(None, &mut |lot| -> anyhow::Result<()> {
-                chunk.push(lot);
-                if chunk.len() == CHUNK {
-                    write_chunk(&mut chunk, out)?;
-                }
-                Ok(())
-            })?;
-            write_chunk(&mut chunk, out)?;
+                    Ok(out.write_all(text.as_bytes())?)
+                },
+            )?;
             out.write_all(b"\n  ]")?;
         } else {
             out.write_all(serde_json::to_string_pretty(value)?.as_bytes())?;
@@ -693,6 +664,37 @@ fn write_json_streamed(
     }
     out.write_all(b"}\n")?;
     Ok(())
+}
+
+/// Gives `sink`, in file order, the text `make` makes of each lot that `read` hands on (none
+/// where it makes `None`): the lots are gathered in chunks of [`CHUNK`] and each chunk's texts
+/// made on every core, so a dry run's second pass decides its lots in parallel and writes
+/// them in order.
+fn in_chunks(
+    read: impl FnOnce(&mut dyn FnMut(LotResults) -> anyhow::Result<()>) -> anyhow::Result<()>,
+    make: &(dyn Fn(&LotResults) -> anyhow::Result<Option<String>> + Sync),
+    sink: &mut dyn FnMut(String) -> anyhow::Result<()>,
+) -> anyhow::Result<()> {
+    use rayon::prelude::*;
+    let mut chunk: Vec<LotResults> = Vec::with_capacity(CHUNK);
+    let mut flush = |chunk: &mut Vec<LotResults>| -> anyhow::Result<()> {
+        let texts: Vec<anyhow::Result<Option<String>>> = chunk.par_iter().map(make).collect();
+        chunk.clear();
+        for text in texts {
+            if let Some(text) = text? {
+                sink(text)?;
+            }
+        }
+        Ok(())
+    };
+    read(&mut |lot| {
+        chunk.push(lot);
+        if chunk.len() == CHUNK {
+            flush(&mut chunk)?;
+        }
+        Ok(())
+    })?;
+    flush(&mut chunk)
 }
 
 /// One lot of a dry run's JSON report: its member of `"lots"`, pretty-printed and indented
