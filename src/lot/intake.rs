@@ -397,6 +397,47 @@ fn trim_into(raw: &csv::StringRecord, out: &mut csv::StringRecord) {
     out.set_position(raw.position().cloned());
 }
 
+/// The rows of a results file after its header, one at a time, each trimmed as
+/// [`csv_reader`]'s reader trims it ([`trim_into`]) into one record kept from row to row: the
+/// streaming reads of a wide file (issue #13, item 11).
+struct TrimmedRows<'t> {
+    name: &'t str,
+    reader: csv::Reader<&'t [u8]>,
+    raw: csv::StringRecord,
+    row: csv::StringRecord,
+}
+
+impl<'t> TrimmedRows<'t> {
+    /// The rows of `text` (named `name` in refusals), its header read and checked.
+    fn new(name: &'t str, text: &'t str, delimiter: u8) -> Result<TrimmedRows<'t>> {
+        let mut reader = csv::ReaderBuilder::new()
+            .delimiter(delimiter)
+            .has_headers(true)
+            .from_reader(text.as_bytes());
+        reader
+            .headers()
+            .map_err(|e| crate::support::csv_input::error(name, &e))?;
+        Ok(TrimmedRows {
+            name,
+            reader,
+            raw: csv::StringRecord::new(),
+            row: csv::StringRecord::new(),
+        })
+    }
+
+    /// The next row, trimmed, or `None` after the last.
+    fn next_row(&mut self) -> Result<Option<&csv::StringRecord>> {
+        match self.reader.read_record(&mut self.raw) {
+            Ok(true) => {
+                trim_into(&self.raw, &mut self.row);
+                Ok(Some(&self.row))
+            }
+            Ok(false) => Ok(None),
+            Err(e) => Err(crate::support::csv_input::error(self.name, &e)),
+        }
+    }
+}
+
 /// Parses results from bytes, also naming the columns nothing reads.
 pub fn parse_report(name: &str, bytes: &[u8], opts: Options) -> Result<Parsed> {
     let (text, delimiter, headers) = prepare(name, bytes, &opts)?;
@@ -559,25 +600,11 @@ pub fn scan_wide<'a>(
     };
     let mut filled = vec![false; scan.headers.len()];
     let mut late: Option<Error> = None;
-    // Read untrimmed; each row is trimmed into `rec` as `csv_reader`'s reader would trim it.
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(delimiter)
-        .has_headers(true)
-        .from_reader(text.as_bytes());
-    reader
-        .headers()
-        .map_err(|e| crate::support::csv_input::error(name, &e))?;
-    let mut raw = csv::StringRecord::new();
-    let mut rec = csv::StringRecord::new();
-    loop {
-        match reader.read_record(&mut raw) {
-            Ok(true) => trim_into(&raw, &mut rec),
-            Ok(false) => break,
-            Err(e) => return Err(crate::support::csv_input::error(name, &e)),
-        }
+    let mut rows = TrimmedRows::new(name, text, delimiter)?;
+    while let Some(rec) = rows.next_row()? {
         let (byte, line) = rec.position().map_or((0, 0), |p| (p.byte(), p.line()));
         let ctx = scan.ctx();
-        let new = ctx.wide_row(&scan.layout, &rec, line, &mut filled)?;
+        let new = ctx.wide_row(&scan.layout, rec, line, &mut filled)?;
         let hash = upper_hash(&new.lot);
         let n = scan.rows.len() as u32;
         let mut twin = None;
@@ -730,17 +757,8 @@ impl WideScan<'_> {
         let ctx = self.ctx();
         let mut filled = vec![false; self.headers.len()];
         let mut repeats = self.repeats.iter().peekable();
-        let mut reader = csv_reader(self.text, self.delimiter, true);
-        reader
-            .headers()
-            .map_err(|e| crate::support::csv_input::error(self.name, &e))?;
-        let mut rec = csv::StringRecord::new();
-        loop {
-            match reader.read_record(&mut rec) {
-                Ok(true) => {}
-                Ok(false) => break,
-                Err(e) => return Err(crate::support::csv_input::error(self.name, &e).into()),
-            }
+        let mut rows = TrimmedRows::new(self.name, self.text, self.delimiter)?;
+        while let Some(rec) = rows.next_row()? {
             let line = rec.position().map_or(0, |p| p.line());
             if repeats.peek() == Some(&&line) {
                 repeats.next();
@@ -749,7 +767,7 @@ impl WideScan<'_> {
             if product.is_some_and(|p| rec.get(self.layout.idx[1]) != Some(p)) {
                 continue;
             }
-            visit(ctx.wide_row(&self.layout, &rec, line, &mut filled)?)?;
+            visit(ctx.wide_row(&self.layout, rec, line, &mut filled)?)?;
         }
         Ok(())
     }
@@ -1497,14 +1515,13 @@ mod tests {
 
     /// Issue #13 item 11: rows trimmed by `trim_into` equal what csv's own `Trim::All` reader
     /// gives (the reference), fields and positions, for ASCII and Unicode whitespace, quoted
-    /// fields, empty fields and short rows.
+    /// fields and empty fields.
     #[test]
     fn trim_into_is_csvs_own_trim_issue_13() {
         let text = "lot,product,acid_value\n  R1 ,PD-2000,\t0.52\u{a0}\n\"  R2\u{2003}\", PD-2000 ,\n,,\n\u{3000}R4\u{b},x, 1 \n";
         let mut trimmed = csv_reader(text, b',', true);
         let mut raw_reader = csv::ReaderBuilder::new()
             .has_headers(true)
-            .flexible(true)
             .from_reader(text.as_bytes());
         let mut raw = csv::StringRecord::new();
         let mut out = csv::StringRecord::new();
