@@ -12,8 +12,8 @@ use crate::error::{Error, Result};
 use crate::lot::intake::{entered_text, Form, LotResults, Reading};
 use crate::lot::note::LotNote;
 use crate::spec::decision::{
-    censored_text, censored_verdict, decimal_from_f64, decimal_text, decimal_to_f64, round,
-    verdict, DecisionRule, Verdict,
+    censored_text, censored_verdict, decimal_from_f64, decimal_text, decimal_to_f64 as to_f64,
+    round, verdict, DecisionRule, Verdict,
 };
 use crate::spec::keys;
 use crate::spec::units::unit_factor;
@@ -138,11 +138,6 @@ pub const MAX_CORRECTION_SPAN_C: f64 = 10.0;
 pub fn andrade_correct(eta: f64, t_meas_c: f64, t_spec_c: f64, b_k: f64) -> f64 {
     let k = |c: f64| c + 273.15;
     eta * (b_k * (1.0 / k(t_spec_c) - 1.0 / k(t_meas_c))).exp()
-}
-
-/// `d` as a float, as rust_decimal converts it ([`decimal_to_f64`]).
-fn to_f64(d: Decimal) -> f64 {
-    decimal_to_f64(d)
 }
 
 struct Mean {
@@ -535,16 +530,15 @@ fn measured_results(spec: &ProductSpec, means: &Means) -> Vec<PropertyResult> {
         } else {
             Decimal::ZERO
         };
-        let mut r = decide(
-            p,
-            value,
-            None,
-            w,
-            spec,
-            Some(decimal_text(value)),
-            u.map(to_f64),
-        );
-        r.entered = Some(decimal_text(entered));
+        let exact = decimal_text(value);
+        // Uncorrected, the value is the entered one: its text is written once.
+        let entered = if corrected {
+            decimal_text(entered)
+        } else {
+            exact.clone()
+        };
+        let mut r = decide(p, value, None, w, spec, Some(exact), u.map(to_f64));
+        r.entered = Some(entered);
         results.push(r);
     }
     results
@@ -629,14 +623,12 @@ fn decide(
 ) -> PropertyResult {
     let reported = round(value, p.decimals, spec.rounding);
     PropertyResult {
-        property: Text::from(p.key.as_str()),
         value: Some(float.unwrap_or_else(|| to_f64(value))),
         exact,
-        entered: None,
         reported: Some(decimal_text(reported)),
-        unit: Text::from(p.unit.as_str()),
         verdict: p.has_limit().then(|| verdict(reported, p.min, p.max, w)),
         uncertainty,
+        ..missing(p)
     }
 }
 

@@ -9,7 +9,9 @@ use serde::Deserialize;
 use crate::error::{Error, Result};
 use crate::spec::keys;
 
-use crate::spec::decision::{decimal_from_f64, round, verdict, DecisionRule, Verdict};
+use crate::spec::decision::{
+    decimal_from_f64, decimal_to_f64 as to_f64, round, verdict, DecisionRule, Verdict,
+};
 use crate::spec::{ProductSpec, Property, SpecSet};
 
 #[derive(Debug, Clone, Deserialize)]
@@ -425,10 +427,6 @@ pub fn guard_uncertainty(spec: &ProductSpec, p: &Property) -> Option<Decimal> {
     } else {
         p.uncertainty
     }
-}
-
-fn to_f64(d: Decimal) -> f64 {
-    crate::spec::decision::decimal_to_f64(d)
 }
 
 /// Guard band of a recorded value for a later check (a customer's window): the recorded
