@@ -6,7 +6,7 @@ use unicode_width::UnicodeWidthStr;
 /// column, so they are not counted as characters are (Unicode UAX #11 via `unicode-width`).
 pub fn width(cell: &str) -> usize {
     // Printable ASCII takes one column a character (UAX #11: narrow), the common case by far.
-    if cell.bytes().all(|b| (0x20..0x7f).contains(&b)) {
+    if crate::support::text::is_printable_ascii(cell) {
         return cell.len();
     }
     UnicodeWidthStr::width(cell)

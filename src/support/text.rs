@@ -15,11 +15,18 @@ const BIDI_CONTROLS: [char; 9] = [
     '\u{2069}',
 ];
 
+/// True when every character of `text` is printable ASCII (space to `~`): no control
+/// character, no bidirectional control, one terminal column each. Most cells and values are,
+/// so checks and widths take this short way first (issue #13, item 11).
+pub fn is_printable_ascii(text: &str) -> bool {
+    text.bytes().all(|b| (0x20..0x7f).contains(&b))
+}
+
 /// What is wrong with `text` as one line of printable text, or `None` when it is fine:
 /// control characters (line breaks, tabs, NUL...) and bidirectional controls are refused.
 pub fn unprintable(text: &str) -> Option<&'static str> {
     // Printable ASCII holds neither kind, and is nearly every cell of a results file.
-    if text.bytes().all(|b| (0x20..0x7f).contains(&b)) {
+    if is_printable_ascii(text) {
         return None;
     }
     if text.chars().any(char::is_control) {
